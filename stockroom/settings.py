@@ -1,0 +1,113 @@
+"""Every setting stockroom reads, declared once with its default and help text.
+
+A setting's value comes from, in order: the dict passed to create_app(config=...), an environment
+variable STOCKROOM_<NAME>, the instance file `stockroom.toml` beside the database, then the default.
+"""
+
+from __future__ import annotations
+
+import os
+import secrets
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+
+@dataclass(frozen=True)
+class Setting:
+    name: str
+    default: Any
+    help: str
+    kind: type = str
+
+
+SETTINGS: tuple[Setting, ...] = (
+    Setting("DATABASE", "instance/stockroom.db", "Path of the SQLite database file."),
+    Setting("SECRET_KEY", None, "Key that signs session cookies and CSRF tokens. Read from the "
+            "environment or the instance file; if absent a random key is made and kept in "
+            "instance/secret_key beside the database (never a fixed string)."),
+    Setting("LAB_TIMEZONE", "Europe/London", "IANA time zone of the lab; dates and times are shown in it."),
+    Setting("BASE_URL", "http://127.0.0.1:8000", "Public address of this server, used in label QR codes."),
+    Setting("OPEN_READS", True, "Allow reading pages without signing in (lab network kiosks).", bool),
+    Setting("SESSION_COOKIE_SECURE", False, "Send the session cookie only over HTTPS; turn on behind TLS.",
+            bool),
+    Setting("TRUSTED_HOSTS", "", "Comma-separated host names the server answers for; empty allows any.",
+            str),
+    Setting("MAX_CONTENT_LENGTH", 2 * 1024 * 1024, "Largest request body accepted, in bytes.", int),
+    Setting("CSV_MAX_ROWS", 2000, "Most rows accepted from one uploaded CSV file.", int),
+    # Defaults below feed the science core; a reagent's own policy overrides the tolerances.
+    Setting("DEFAULT_TOLERANCE_REL", 0.005, "Drift tolerance, relative to the certified value (0.005 = 0.5 %).",
+            float),
+    Setting("DEFAULT_MAX_RSD", 0.002, "Largest repeatability RSD a run may have to be accepted (0.2 %, the "
+            "pharmacopoeial limit for volumetric solutions).", float),
+    Setting("DEFAULT_MIN_REPLICATES", 3, "Fewest replicates a run needs to be accepted.", int),
+    Setting("COVERAGE_FACTOR", 2.0, "Coverage factor k for expanded uncertainty U = k u.", float),
+    Setting("BALANCE_READABILITY_G", 0.0001, "Analytical balance readability (last digit), g.", float),
+    Setting("BALANCE_LINEARITY_G", 0.00015, "Balance linearity half-width (rectangular), g.", float),
+    Setting("BURETTE_CAPACITY_ML", 50.0, "Default burette capacity, mL.", float),
+    Setting("BURETTE_TOLERANCE_ML", 0.05, "Default burette tolerance half-width (Class A 50 mL), mL.", float),
+    Setting("PIPETTE_TOLERANCE_ML", 0.03, "Default aliquot pipette tolerance half-width (Class A 25 mL), mL.",
+            float),
+    Setting("LAB_TEMPERATURE_HALF_RANGE_K", 3.0, "Half-width of the lab temperature range (rectangular), K.",
+            float),
+    Setting("EXPANSION_COEFFICIENT_PER_K", 2.1e-4, "Volume expansion coefficient of dilute aqueous titrants, "
+            "1/K (the value EURACHEM/CITAC QUAM:2012 uses for water).", float),
+    Setting("MONTE_CARLO_DRAWS", 100_000, "Monte Carlo draws for the uncertainty cross-check.", int),
+)
+
+_BY_NAME = {s.name: s for s in SETTINGS}
+
+
+def _coerce(setting: Setting, value: Any) -> Any:
+    if value is None or setting.kind is str:
+        return value
+    if setting.kind is bool and isinstance(value, str):
+        return value.strip().lower() in {"1", "true", "yes", "on"}
+    return setting.kind(value)
+
+
+def resolve(overrides: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Return every setting's value, from overrides, environment, instance file, then default."""
+    overrides = dict(overrides or {})
+    db_path = overrides.get("DATABASE") or os.environ.get("STOCKROOM_DATABASE") or _BY_NAME["DATABASE"].default
+    instance_dir = Path(db_path).resolve().parent
+    file_values: dict[str, Any] = {}
+    instance_file = instance_dir / "stockroom.toml"
+    if instance_file.is_file():
+        with instance_file.open("rb") as fh:
+            file_values = {k.upper(): v for k, v in tomllib.load(fh).items()}
+    values: dict[str, Any] = {}
+    for s in SETTINGS:
+        env = os.environ.get(f"STOCKROOM_{s.name}")
+        if s.name in overrides:
+            raw = overrides.pop(s.name)
+        elif env is not None:
+            raw = env
+        elif s.name in file_values:
+            raw = file_values[s.name]
+        else:
+            raw = s.default
+        values[s.name] = _coerce(s, raw)
+    if not values["SECRET_KEY"]:
+        values["SECRET_KEY"] = _instance_secret(instance_dir)
+    values.update(overrides)  # anything else (TESTING, WTF_CSRF_ENABLED...) passes through to Flask
+    return values
+
+
+def _instance_secret(instance_dir: Path) -> str:
+    """Read or create a random secret kept beside the database, readable by its owner only."""
+    path = instance_dir / "secret_key"
+    if path.is_file():
+        return path.read_text().strip()
+    instance_dir.mkdir(parents=True, exist_ok=True)
+    key = secrets.token_hex(32)
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    with os.fdopen(fd, "w") as fh:
+        fh.write(key)
+    return key
+
+
+def describe() -> list[tuple[str, Any, str]]:
+    """(name, default, help) of every setting, for `stockroom settings` and the docs."""
+    return [(s.name, s.default, s.help) for s in SETTINGS]
