@@ -1,0 +1,113 @@
+"""The SQLite database: one connection per request, pragmas, the write lock, and schema migrations."""
+
+from __future__ import annotations
+
+import sqlite3
+import threading
+from collections.abc import Iterator
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any
+
+import sqlite_utils
+
+from stockroom.schema import MIGRATIONS, SCHEMA_VERSION
+
+# SQLite 3.40.x (Debian 12) has a known WAL-reset corruption bug when two connections write
+# concurrently (fixed upstream in 3.51.3). Every write in this process therefore goes through one
+# lock and starts with BEGIN IMMEDIATE, so at most one writer is ever inside a transaction; readers
+# are unaffected and keep WAL's concurrency.
+_WRITE_LOCK = threading.RLock()
+
+BUSY_TIMEOUT_MS = 10_000
+
+
+def connect(path: str | Path) -> sqlite_utils.Database:
+    """Open the database file with stockroom's pragmas (WAL, foreign keys, busy timeout, NORMAL sync)."""
+    Path(path).parent.mkdir(parents=True, exist_ok=True)
+    conn = sqlite3.connect(str(path), timeout=BUSY_TIMEOUT_MS / 1000, check_same_thread=False)
+    # Autocommit at the driver level: transactions are only the explicit ones below and atomic().
+    conn.isolation_level = None
+    conn.row_factory = sqlite3.Row
+    conn.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+    conn.execute("PRAGMA foreign_keys = ON")
+    mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+    if mode.lower() != "wal" and str(path) != ":memory:":
+        raise RuntimeError(f"could not switch {path} to WAL journal mode (got {mode})")
+    conn.execute("PRAGMA synchronous = NORMAL")
+    return sqlite_utils.Database(conn, execute_plugins=False)
+
+
+@contextmanager
+def write(db: sqlite_utils.Database) -> Iterator[sqlite_utils.Database]:
+    """Run a block as one atomic write: process-wide lock, BEGIN IMMEDIATE, commit or roll back."""
+    with _WRITE_LOCK:
+        if db.conn.in_transaction:
+            # Nested use joins the outer transaction through a savepoint.
+            with db.atomic():
+                yield db
+            return
+        db.conn.execute("BEGIN IMMEDIATE")
+        try:
+            yield db
+        except BaseException:
+            if db.conn.in_transaction:
+                db.conn.execute("ROLLBACK")
+            raise
+        else:
+            db.conn.execute("COMMIT")
+
+
+def schema_version(db: sqlite_utils.Database) -> int:
+    """Number of stockroom migrations applied to this database."""
+    if not db["_sqlite_migrations"].exists():
+        return 0
+    row = db.execute(
+        "SELECT count(*) FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATIONS.name]
+    ).fetchone()
+    return int(row[0])
+
+
+def migrate(db: sqlite_utils.Database) -> int:
+    """Apply pending migrations under the write lock; return the schema version reached."""
+    with _WRITE_LOCK:
+        version = schema_version(db)
+        if version > SCHEMA_VERSION:
+            raise RuntimeError(
+                f"database schema version {version} is newer than this stockroom ({SCHEMA_VERSION}); "
+                "upgrade stockroom before opening it"
+            )
+        if version < SCHEMA_VERSION:
+            MIGRATIONS.apply(db)
+    return schema_version(db)
+
+
+def query(db: sqlite_utils.Database, sql: str, params: Any = ()) -> list[dict[str, Any]]:
+    """Run a read query with bound parameters and return plain dict rows."""
+    return [dict(r) for r in db.execute(sql, params).fetchall()]
+
+
+def init_app(app: Any) -> None:
+    """Attach per-request connection handling to a Flask app and bring its schema up to date."""
+    from flask import g
+
+    db = connect(app.config["DATABASE"])
+    try:
+        migrate(db)
+    finally:
+        db.close()
+
+    @app.teardown_appcontext
+    def _close(exc: BaseException | None) -> None:
+        conn = g.pop("db", None)
+        if conn is not None:
+            conn.close()
+
+
+def get_db() -> sqlite_utils.Database:
+    """The connection of the current request, opened on first use."""
+    from flask import current_app, g
+
+    if "db" not in g:
+        g.db = connect(current_app.config["DATABASE"])
+    return g.db

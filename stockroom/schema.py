@@ -1,0 +1,253 @@
+"""Versioned schema migrations. A database is only ever created or upgraded by these, in order.
+
+Every record table is append-only: triggers refuse UPDATE and DELETE, so a correction can only be a
+new, attributed row (an amendment, a superseding release, a withdrawal) and the history stays whole.
+"""
+
+from __future__ import annotations
+
+import sqlite_utils
+from sqlite_utils import Migrations
+
+MIGRATIONS = Migrations("stockroom")
+
+# Tables whose rows may never change once written.
+APPEND_ONLY = (
+    "reagent_policies",
+    "batches",
+    "standard_lots",
+    "runs",
+    "replicates",
+    "exclusions",
+    "decisions",
+    "releases",
+    "withdrawals",
+    "label_prints",
+    "amendments",
+    "events",
+)
+
+_V1 = [
+    """CREATE TABLE users (
+        id INTEGER PRIMARY KEY,
+        username TEXT NOT NULL UNIQUE COLLATE NOCASE,
+        display_name TEXT NOT NULL,
+        role TEXT NOT NULL CHECK (role IN ('staff', 'instructor', 'admin')),
+        password_hash TEXT NOT NULL,
+        created_at TEXT NOT NULL,
+        disabled_at TEXT
+    )""",
+    # Policy of a titrant reagent; the newest row with effective_from <= a date is the one in force.
+    """CREATE TABLE reagent_policies (
+        id INTEGER PRIMARY KEY,
+        reagent TEXT NOT NULL,
+        nominal_molarities TEXT NOT NULL,          -- JSON list of mol/L offered
+        shelf_life_days INTEGER NOT NULL CHECK (shelf_life_days > 0),
+        recheck_interval_days INTEGER NOT NULL CHECK (recheck_interval_days > 0),
+        tolerance_rel REAL NOT NULL CHECK (tolerance_rel > 0),
+        max_rsd REAL NOT NULL CHECK (max_rsd > 0),
+        min_replicates INTEGER NOT NULL CHECK (min_replicates >= 1),
+        effective_from TEXT NOT NULL,
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL,
+        reason TEXT NOT NULL DEFAULT ''
+    )""",
+    "CREATE INDEX ix_policy_reagent ON reagent_policies (reagent, effective_from)",
+    """CREATE TABLE batches (
+        id INTEGER PRIMARY KEY,
+        code TEXT NOT NULL UNIQUE,
+        reagent TEXT NOT NULL,
+        nominal_molarity REAL NOT NULL CHECK (nominal_molarity > 0),
+        volume_l REAL NOT NULL CHECK (volume_l > 0),
+        prepared_on TEXT NOT NULL,
+        prepared_by TEXT NOT NULL,
+        concentrate_lot TEXT NOT NULL DEFAULT '',
+        concentrate_assay_w_w REAL,                 -- mass fraction, e.g. 0.37
+        concentrate_density_g_ml REAL,
+        water_grade TEXT NOT NULL DEFAULT '',
+        container TEXT NOT NULL DEFAULT '',
+        notes TEXT NOT NULL DEFAULT '',
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_batches_reagent ON batches (reagent, prepared_on)",
+    """CREATE TABLE standard_lots (
+        id INTEGER PRIMARY KEY,
+        code TEXT NOT NULL UNIQUE,
+        substance TEXT NOT NULL,                    -- chemistry catalogue key
+        supplier TEXT NOT NULL DEFAULT '',
+        supplier_lot TEXT NOT NULL DEFAULT '',
+        assay REAL NOT NULL CHECK (assay > 0 AND assay <= 1.0001),   -- mass fraction
+        assay_U REAL NOT NULL CHECK (assay_U >= 0),
+        assay_k REAL NOT NULL CHECK (assay_k > 0),
+        expires_on TEXT NOT NULL,
+        dried_on TEXT,
+        dried_at_c REAL,
+        storage_note TEXT NOT NULL DEFAULT '',
+        received_on TEXT,
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    # One standardization: a certifying run or a re-check, primary (weighed standard lot) or
+    # secondary (aliquots against a certified reference batch). The computed figures are a snapshot
+    # of what the science core returned when the run was recorded; result_json keeps all of it.
+    """CREATE TABLE runs (
+        id INTEGER PRIMARY KEY,
+        batch_id INTEGER NOT NULL REFERENCES batches (id),
+        purpose TEXT NOT NULL CHECK (purpose IN ('certify', 'recheck')),
+        method TEXT NOT NULL CHECK (method IN ('primary', 'secondary')),
+        standard_lot_id INTEGER REFERENCES standard_lots (id),
+        reference_batch_id INTEGER REFERENCES batches (id),
+        reference_release_id INTEGER REFERENCES releases (id),
+        performed_on TEXT NOT NULL,
+        analyst TEXT NOT NULL,
+        temperature_c REAL,
+        burette_capacity_ml REAL,
+        endpoint TEXT NOT NULL DEFAULT '',
+        notes TEXT NOT NULL DEFAULT '',
+        molarity REAL,
+        u REAL,
+        U REAL,
+        k REAL,
+        n INTEGER,
+        sd REAL,
+        rsd REAL,
+        accepted_by_rule INTEGER NOT NULL DEFAULT 0,
+        result_json TEXT NOT NULL DEFAULT '{}',
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL,
+        CHECK ((method = 'primary' AND standard_lot_id IS NOT NULL)
+            OR (method = 'secondary' AND reference_batch_id IS NOT NULL))
+    )""",
+    "CREATE INDEX ix_runs_batch ON runs (batch_id, performed_on)",
+    """CREATE TABLE replicates (
+        id INTEGER PRIMARY KEY,
+        run_id INTEGER NOT NULL REFERENCES runs (id),
+        position INTEGER NOT NULL,
+        mass_gross_g REAL,
+        mass_tare_g REAL,
+        mass_g REAL,                               -- weighed mass in air (direct, or gross - tare)
+        aliquot_ml REAL,                           -- secondary standardization
+        initial_ml REAL,
+        final_ml REAL,
+        volume_ml REAL NOT NULL,
+        blank_ml REAL NOT NULL DEFAULT 0,
+        temperature_c REAL,
+        molarity REAL,
+        UNIQUE (run_id, position)
+    )""",
+    """CREATE TABLE exclusions (
+        id INTEGER PRIMARY KEY,
+        run_id INTEGER NOT NULL REFERENCES runs (id),
+        position INTEGER NOT NULL,
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_exclusions_run ON exclusions (run_id)",
+    """CREATE TABLE decisions (
+        id INTEGER PRIMARY KEY,
+        run_id INTEGER NOT NULL REFERENCES runs (id),
+        decision TEXT NOT NULL CHECK (decision IN ('accept', 'reject')),
+        reason TEXT NOT NULL DEFAULT '',
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_decisions_run ON decisions (run_id)",
+    """CREATE TABLE releases (
+        id INTEGER PRIMARY KEY,
+        batch_id INTEGER NOT NULL REFERENCES batches (id),
+        run_id INTEGER NOT NULL REFERENCES runs (id),
+        molarity REAL NOT NULL CHECK (molarity > 0),
+        u REAL NOT NULL CHECK (u >= 0),
+        U REAL NOT NULL CHECK (U >= 0),
+        k REAL NOT NULL CHECK (k > 0),
+        reference_temperature_c REAL NOT NULL DEFAULT 20,
+        released_on TEXT NOT NULL,
+        expires_on TEXT NOT NULL,
+        recheck_interval_days INTEGER NOT NULL,
+        tolerance_rel REAL NOT NULL,
+        supersedes_id INTEGER REFERENCES releases (id),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_releases_batch ON releases (batch_id, released_on)",
+    """CREATE TABLE withdrawals (
+        id INTEGER PRIMARY KEY,
+        batch_id INTEGER NOT NULL REFERENCES batches (id),
+        withdrawn_on TEXT NOT NULL,
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_withdrawals_batch ON withdrawals (batch_id)",
+    """CREATE TABLE label_prints (
+        id INTEGER PRIMARY KEY,
+        batch_id INTEGER NOT NULL REFERENCES batches (id),
+        release_id INTEGER REFERENCES releases (id),
+        layout TEXT NOT NULL,
+        copies INTEGER NOT NULL CHECK (copies > 0),
+        serial_first INTEGER NOT NULL,
+        serial_last INTEGER NOT NULL,
+        value_printed TEXT NOT NULL,
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_prints_batch ON label_prints (batch_id)",
+    # A correction of one field of an earlier record; the original row stays as it was written.
+    """CREATE TABLE amendments (
+        id INTEGER PRIMARY KEY,
+        entity TEXT NOT NULL,
+        entity_id INTEGER NOT NULL,
+        field TEXT NOT NULL,
+        old_value TEXT,
+        new_value TEXT,
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_amendments_entity ON amendments (entity, entity_id)",
+    # The audit trail: one row per write, each carrying the hash of the one before it.
+    """CREATE TABLE events (
+        id INTEGER PRIMARY KEY,
+        occurred_at TEXT NOT NULL,
+        actor TEXT NOT NULL,
+        action TEXT NOT NULL,
+        entity TEXT NOT NULL DEFAULT '',
+        entity_id INTEGER,
+        batch_id INTEGER,
+        reason TEXT NOT NULL DEFAULT '',
+        detail TEXT NOT NULL DEFAULT '{}',
+        prev_hash TEXT NOT NULL,
+        hash TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_events_batch ON events (batch_id)",
+]
+
+
+def _append_only_triggers() -> list[str]:
+    out = []
+    for table in APPEND_ONLY:
+        for verb in ("UPDATE", "DELETE"):
+            out.append(
+                f"CREATE TRIGGER {table}_no_{verb.lower()} BEFORE {verb} ON {table} "
+                f"BEGIN SELECT RAISE(ABORT, '{table} is append-only: record a correction instead'); END"
+            )
+    return out
+
+
+@MIGRATIONS(name="0001_initial")
+def _initial(db: sqlite_utils.Database) -> None:
+    for statement in _V1 + _append_only_triggers():
+        db.execute(statement)
+
+
+
+@MIGRATIONS(name="0002_starting_policies")
+def _starting_policies(db: sqlite_utils.Database) -> None:
+    from stockroom.records import seed_default_policies
+
+    seed_default_policies(db)
+
+
+SCHEMA_VERSION = len(MIGRATIONS._migrations)

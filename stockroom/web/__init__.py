@@ -1,0 +1,79 @@
+"""The web layer: blueprints, the one error page, CSRF, security headers and template filters."""
+
+from __future__ import annotations
+
+import datetime as dt
+from typing import Any
+from zoneinfo import ZoneInfo
+
+from flask import Flask, current_app, jsonify, render_template, request
+from flask_wtf.csrf import CSRFProtect
+from werkzeug.exceptions import HTTPException
+
+from stockroom.errors import InvalidInput, StockroomError
+
+csrf = CSRFProtect()
+
+
+def lab_today() -> dt.date:
+    """Today's date in the lab's time zone."""
+    return dt.datetime.now(ZoneInfo(current_app.config["LAB_TIMEZONE"])).date()
+
+
+def wants_json() -> bool:
+    return request.path.startswith("/api/") or request.accept_mimetypes.best == "application/json"
+
+
+def register(app: Flask) -> None:
+    """Attach every blueprint, the error handlers and the response headers to the app."""
+    from stockroom.web import api, batches, dashboard, formatting, health, preview
+
+    csrf.init_app(app)
+    for module in (health, dashboard, batches, api, preview):
+        app.register_blueprint(module.bp)
+    # The JSON API is for programs; it takes no cookies-based form posts (token auth comes later).
+    csrf.exempt(api.bp)
+    csrf.exempt(preview.bp)
+    formatting.install(app)
+
+    @app.errorhandler(StockroomError)
+    def _stockroom_error(exc: StockroomError) -> Any:
+        if wants_json():
+            if isinstance(exc, InvalidInput):
+                body = {"errors": [e.as_dict() for e in exc.errors]}
+            else:
+                body = {"errors": [{"field": "_", "message": exc.message}]}
+            return jsonify(body), exc.status
+        return render_template("error.html", status=exc.status, message=exc.message), exc.status
+
+    @app.errorhandler(HTTPException)
+    def _http_error(exc: HTTPException) -> Any:
+        status = exc.code or 500
+        message = exc.description or exc.name
+        if wants_json():
+            return jsonify({"errors": [{"field": "_", "message": message}]}), status
+        return render_template("error.html", status=status, message=message), status
+
+    @app.after_request
+    def _headers(resp: Any) -> Any:
+        resp.headers.setdefault(
+            "Content-Security-Policy",
+            "default-src 'self'; script-src 'self'; style-src 'self'; img-src 'self' data:; "
+            "object-src 'none'; base-uri 'self'; form-action 'self'; frame-ancestors 'none'",
+        )
+        resp.headers.setdefault("X-Content-Type-Options", "nosniff")
+        resp.headers.setdefault("Referrer-Policy", "same-origin")
+        resp.headers.setdefault("X-Frame-Options", "DENY")
+        return resp
+
+
+def parse_date_arg(value: str | None, field: str) -> dt.date | None:
+    """An optional ISO date from a query string; InvalidInput naming the field if malformed."""
+    from stockroom.errors import FieldError
+
+    if value is None or value.strip() == "":
+        return None
+    try:
+        return dt.date.fromisoformat(value.strip())
+    except ValueError:
+        raise InvalidInput([FieldError(field, f"{value!r} is not a date; write it as YYYY-MM-DD")]) from None
