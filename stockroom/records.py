@@ -174,7 +174,7 @@ def batch_by_id(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:
 
 # ---------------------------------------------------------------- standard lots
 
-LOT_FIELDS = ("substance", "supplier", "supplier_lot", "assay", "assay_U", "assay_k", "expires_on",
+LOT_FIELDS = ("substance", "supplier", "supplier_lot", "assay", "assay_expanded_u", "assay_k", "expires_on",
               "dried_on", "dried_at_c", "storage_note", "received_on")
 
 
@@ -230,7 +230,7 @@ def record_run(
         row["endpoint"] = row["endpoint"] or ""
         row["notes"] = row["notes"] or ""
         row.update({
-            "molarity": result.get("molarity"), "u": result.get("u"), "U": result.get("U"),
+            "molarity": result.get("molarity"), "u": result.get("u"), "expanded_u": result.get("U"),
             "k": result.get("k"), "n": result.get("n"), "sd": result.get("sd"), "rsd": result.get("rsd"),
             "accepted_by_rule": 1 if result.get("accepted") else 0,
             "result_json": json.dumps(result, default=str),
@@ -307,7 +307,7 @@ def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict
                           [batch_id]).fetchone()
     row = {
         "batch_id": batch_id, "run_id": run["id"], "molarity": release["molarity"], "u": release["u"],
-        "U": release["U"], "k": release["k"],
+        "expanded_u": release["U"], "k": release["k"],
         "reference_temperature_c": release.get("reference_temperature_c", 20.0),
         "released_on": release["released_on"], "expires_on": release["expires_on"],
         "recheck_interval_days": release["recheck_interval_days"], "tolerance_rel": release["tolerance_rel"],
@@ -316,7 +316,7 @@ def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict
     }
     release_id = int(db["releases"].insert(row).last_pk)
     append_event(db, actor, "batch.release", entity="releases", entity_id=release_id, batch_id=batch_id,
-                 detail={"molarity": row["molarity"], "U": row["U"], "k": row["k"],
+                 detail={"molarity": row["molarity"], "U": row["expanded_u"], "k": row["k"],
                          "released_on": row["released_on"], "expires_on": row["expires_on"],
                          "supersedes": row["supersedes_id"]})
     return release_id
@@ -363,7 +363,7 @@ def _facts_bulk(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = Non
         where = f" WHERE batch_id IN ({','.join('?' * len(ids))})"
         params = ids
     releases: dict[int, list[ReleaseFact]] = defaultdict(list)
-    for r in db.execute("SELECT id, batch_id, released_on, expires_on, molarity, u, U, k, recheck_interval_days, "
+    for r in db.execute("SELECT id, batch_id, released_on, expires_on, molarity, u, expanded_u AS U, k, recheck_interval_days, "
                         "tolerance_rel FROM releases" + where, params):
         releases[r["batch_id"]].append(ReleaseFact(
             id=r["id"], released_on=dt.date.fromisoformat(r["released_on"]),

@@ -58,13 +58,13 @@ def batch(code: str) -> Any:
         "water_grade": b["water_grade"],
         "container": b["container"],
         "releases": [
-            {"molarity": r["molarity"], "u": r["u"], "U": r["U"], "k": r["k"],
+            {"molarity": r["molarity"], "u": r["u"], "U": r["expanded_u"], "k": r["k"],
              "reference_temperature_c": r["reference_temperature_c"], "released_on": r["released_on"],
              "expires_on": r["expires_on"], "released_by": r["recorded_by"], "superseded": r["superseded"]}
             for r in history["releases"]
         ],
         "rechecks": [
-            {"performed_on": r["performed_on"], "molarity": r["molarity"], "u": r["u"], "U": r["U"],
+            {"performed_on": r["performed_on"], "molarity": r["molarity"], "u": r["u"], "U": r["expanded_u"],
              "k": r["k"], "n": r["n"], "analyst": r["analyst"],
              "decision": r["decision"]["decision"] if r["decision"] else None}
             for r in history["runs"] if r["purpose"] == "recheck"
