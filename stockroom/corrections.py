@@ -238,9 +238,7 @@ def delivered_volume(initial_ml: float, final_ml: float) -> float:
     if i < 0 or f < 0:
         raise ReadingError(f"burette readings cannot be negative (initial {i:g} mL, final {f:g} mL)")
     if f < i:
-        raise ReadingError(
-            f"the final reading {f:g} mL is below the initial {i:g} mL; are they swapped?"
-        )
+        raise ReadingError(f"the final reading {f:g} mL is below the initial {i:g} mL; are they swapped?")
     return f - i
 
 

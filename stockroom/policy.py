@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import datetime as dt
 from dataclasses import dataclass, field
-from enum import Enum
+from enum import StrEnum
 
 
 @dataclass(frozen=True)
@@ -42,7 +42,7 @@ DEFAULT_POLICIES: tuple[ReagentPolicy, ...] = (
 )
 
 
-class Status(str, Enum):
+class Status(StrEnum):
     """The states a batch can be in on a given date."""
 
     AWAITING = "awaiting"

@@ -217,63 +217,91 @@ REPLICATE_FIELDS = ("position", "mass_gross_g", "mass_tare_g", "mass_g", "aliquo
                     "volume_ml", "blank_ml", "temperature_c", "molarity")
 
 
+def _result_row(run_id: int, result: dict[str, Any], cause: str, actor: str) -> dict[str, Any]:
+    return {
+        "run_id": run_id, "cause": cause, "molarity": result["molarity"], "u": result["u"],
+        "expanded_u": result["U"], "k": result["k"], "n": result["n"], "sd": result.get("sd"),
+        "rsd": result.get("rsd"), "accepted_by_rule": 1 if result.get("accepted") else 0,
+        "result_json": json.dumps(result, default=str), "recorded_at": utc_now(), "recorded_by": actor,
+    }
+
+
 def record_run(
     db: sqlite_utils.Database, run: dict[str, Any], replicates: list[dict[str, Any]], result: dict[str, Any],
-    actor: str,
+    actor: str, exclusions: Iterable[tuple[int, str]] = (),
 ) -> int:
-    """Store a run, its replicates and the computed result snapshot in one write; return the run id.
+    """Store a run, its replicates, exclusions and computed result in one write; return the run id.
 
-    `result` is the science core's answer as a plain dict (molarity, u, U, k, n, sd, rsd, accepted).
+    `result` is the science core's answer as a plain dict (molarity, u, U, k, n, sd, rsd, accepted...);
+    `exclusions` are (position, reason) pairs chosen when the run was entered.
     """
     with dbmod.write(db):
         row = {k: run.get(k) for k in RUN_FIELDS}
         row["endpoint"] = row["endpoint"] or ""
         row["notes"] = row["notes"] or ""
-        row.update({
-            "molarity": result.get("molarity"), "u": result.get("u"), "expanded_u": result.get("U"),
-            "k": result.get("k"), "n": result.get("n"), "sd": result.get("sd"), "rsd": result.get("rsd"),
-            "accepted_by_rule": 1 if result.get("accepted") else 0,
-            "result_json": json.dumps(result, default=str),
-            "recorded_at": utc_now(), "recorded_by": actor,
-        })
+        row["recorded_at"] = utc_now()
+        row["recorded_by"] = actor
         run_id = int(db["runs"].insert(row).last_pk)
         for rep in replicates:
             rep_row = {k: rep.get(k) for k in REPLICATE_FIELDS}
             rep_row["blank_ml"] = rep_row["blank_ml"] or 0.0
             rep_row["run_id"] = run_id
             db["replicates"].insert(rep_row)
+        for position, reason in exclusions:
+            db["exclusions"].insert({"run_id": run_id, "position": position, "reason": reason.strip(),
+                                     "recorded_at": row["recorded_at"], "recorded_by": actor})
+        db["run_results"].insert(_result_row(run_id, result, "recorded", actor))
         append_event(db, actor, f"run.record.{row['purpose']}", entity="runs", entity_id=run_id,
                      batch_id=row["batch_id"],
-                     detail={"n": result.get("n"), "molarity": result.get("molarity"), "U": result.get("U")})
+                     detail={"n": result.get("n"), "molarity": result.get("molarity"), "U": result.get("U"),
+                             "excluded": [p for p, _ in exclusions]})
     return run_id
 
 
+def _latest_results(db: sqlite_utils.Database, run_ids: list[int]) -> dict[int, dict[str, Any]]:
+    if not run_ids:
+        return {}
+    marks = ",".join("?" * len(run_ids))
+    rows = dbmod.query(db, f"SELECT * FROM run_results WHERE id IN (SELECT max(id) FROM run_results "
+                           f"WHERE run_id IN ({marks}) GROUP BY run_id)", run_ids)
+    out = {}
+    for r in rows:
+        r["result"] = json.loads(r.pop("result_json"))
+        out[r["run_id"]] = r
+    return out
+
+
 def run_by_id(db: sqlite_utils.Database, run_id: int) -> dict[str, Any]:
+    """A run with its replicates, exclusions, decisions and current (newest) result."""
     rows = dbmod.query(db, "SELECT * FROM runs WHERE id = ?", [run_id])
     if not rows:
         raise NotFound(f"no run with id {run_id}")
     run = rows[0]
-    run["result"] = json.loads(run.pop("result_json") or "{}")
+    run["current"] = _latest_results(db, [run_id]).get(run_id)
     run["replicates"] = dbmod.query(db, "SELECT * FROM replicates WHERE run_id = ? ORDER BY position", [run_id])
     run["exclusions"] = dbmod.query(db, "SELECT * FROM exclusions WHERE run_id = ? ORDER BY id", [run_id])
     run["decisions"] = dbmod.query(db, "SELECT * FROM decisions WHERE run_id = ? ORDER BY id", [run_id])
     return run
 
 
-def exclude_replicate(db: sqlite_utils.Database, run_id: int, position: int, reason: str, actor: str) -> None:
-    """Record that one replicate of a run is left out of its result, with the reason."""
+def exclude_replicate(db: sqlite_utils.Database, run_id: int, position: int, reason: str,
+                      result: dict[str, Any], actor: str) -> None:
+    """Record that one replicate is left out of an undecided run, with the reason and the new result."""
     if not reason.strip():
         raise InvalidInput([FieldError("reason", "give the reason for excluding this replicate")])
     with dbmod.write(db):
         run = run_by_id(db, run_id)
         if position not in {r["position"] for r in run["replicates"]}:
             raise NotFound(f"run {run_id} has no replicate {position}")
+        if position in {e["position"] for e in run["exclusions"]}:
+            raise Conflict(f"replicate {position} is already excluded")
         if run["decisions"]:
             raise Conflict("this run has already been decided; record a new run instead")
         db["exclusions"].insert({"run_id": run_id, "position": position, "reason": reason.strip(),
                                  "recorded_at": utc_now(), "recorded_by": actor})
+        db["run_results"].insert(_result_row(run_id, result, f"exclusion of replicate {position}", actor))
         append_event(db, actor, "replicate.exclude", entity="runs", entity_id=run_id, batch_id=run["batch_id"],
-                     reason=reason.strip(), detail={"position": position})
+                     reason=reason.strip(), detail={"position": position, "molarity": result["molarity"]})
 
 
 def decide_run(
@@ -372,10 +400,11 @@ def _facts_bulk(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = Non
     checks: dict[int, list[CheckFact]] = defaultdict(list)
     check_where = where.replace("batch_id", "r.batch_id")
     for r in db.execute(
-        "SELECT r.batch_id, r.performed_on, r.molarity, r.u FROM runs r "
+        "SELECT r.batch_id, r.performed_on, res.molarity, res.u FROM runs r "
+        "JOIN run_results res ON res.id = (SELECT max(id) FROM run_results WHERE run_id = r.id) "
         "LEFT JOIN decisions d ON d.run_id = r.id"
         + (check_where + " AND" if check_where else " WHERE")
-        + " r.purpose = 'recheck' AND r.molarity IS NOT NULL AND coalesce(d.decision, 'accept') = 'accept'",
+        + " r.purpose = 'recheck' AND coalesce(d.decision, 'accept') = 'accept'",
         params,
     ):
         checks[r["batch_id"]].append(CheckFact(dt.date.fromisoformat(r["performed_on"]), r["molarity"], r["u"]))
@@ -444,8 +473,9 @@ def batch_history(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:
     if ref_ids:
         refs = {r["id"]: r for r in dbmod.query(
             db, f"SELECT id, code FROM batches WHERE id IN ({','.join('?' * len(ref_ids))})", list(ref_ids))}
+    current = _latest_results(db, run_ids)
     for r in runs:
-        r["result"] = json.loads(r.pop("result_json") or "{}")
+        r["current"] = current.get(r["id"])
         r["replicates"] = reps[r["id"]]
         r["exclusions"] = excl[r["id"]]
         r["decisions"] = decs[r["id"]]

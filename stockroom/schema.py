@@ -17,6 +17,7 @@ APPEND_ONLY = (
     "batches",
     "standard_lots",
     "runs",
+    "run_results",
     "replicates",
     "exclusions",
     "decisions",
@@ -105,21 +106,31 @@ _V1 = [
         burette_capacity_ml REAL,
         endpoint TEXT NOT NULL DEFAULT '',
         notes TEXT NOT NULL DEFAULT '',
-        molarity REAL,
-        u REAL,
-        expanded_u REAL,
-        k REAL,
-        n INTEGER,
-        sd REAL,
-        rsd REAL,
-        accepted_by_rule INTEGER NOT NULL DEFAULT 0,
-        result_json TEXT NOT NULL DEFAULT '{}',
         recorded_at TEXT NOT NULL,
         recorded_by TEXT NOT NULL,
         CHECK ((method = 'primary' AND standard_lot_id IS NOT NULL)
             OR (method = 'secondary' AND reference_batch_id IS NOT NULL))
     )""",
     "CREATE INDEX ix_runs_batch ON runs (batch_id, performed_on)",
+    # What the science core computed for a run: one row when the run is recorded and one more each
+    # time its set of excluded replicates changes. The newest row of a run is its current result.
+    """CREATE TABLE run_results (
+        id INTEGER PRIMARY KEY,
+        run_id INTEGER NOT NULL REFERENCES runs (id),
+        cause TEXT NOT NULL,
+        molarity REAL NOT NULL,
+        u REAL NOT NULL,
+        expanded_u REAL NOT NULL,
+        k REAL NOT NULL,
+        n INTEGER NOT NULL,
+        sd REAL,
+        rsd REAL,
+        accepted_by_rule INTEGER NOT NULL,
+        result_json TEXT NOT NULL,
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_run_results_run ON run_results (run_id, id)",
     """CREATE TABLE replicates (
         id INTEGER PRIMARY KEY,
         run_id INTEGER NOT NULL REFERENCES runs (id),

@@ -64,7 +64,7 @@ def test_write_rolls_back_whole_block_on_error(database):
     with pytest.raises(ZeroDivisionError):
         with dbmod.write(database):
             records.append_event(database, "tester", "test.action")
-            1 / 0
+            1 / 0  # noqa: B018
     assert database.execute("SELECT count(*) FROM events").fetchone()[0] == before
 
 

@@ -64,8 +64,9 @@ def batch(code: str) -> Any:
             for r in history["releases"]
         ],
         "rechecks": [
-            {"performed_on": r["performed_on"], "molarity": r["molarity"], "u": r["u"], "U": r["expanded_u"],
-             "k": r["k"], "n": r["n"], "analyst": r["analyst"],
+            {"performed_on": r["performed_on"], "molarity": r["current"]["molarity"], "u": r["current"]["u"],
+             "U": r["current"]["expanded_u"], "k": r["current"]["k"], "n": r["current"]["n"],
+             "analyst": r["analyst"],
              "decision": r["decision"]["decision"] if r["decision"] else None}
             for r in history["runs"] if r["purpose"] == "recheck"
         ],

@@ -1,7 +1,436 @@
-"""POST /api/v1/standardizations/preview: compute a standardization run without storing it."""
+"""POST /api/v1/standardizations/preview: compute a standardization run without storing it.
+
+The run form's live preview calls this. Every bad input is a 422 with
+{"errors": [{"field", "message"}]} naming the request path of each bad field; a body that is not
+JSON is a 400 and one that is not a JSON object a 422, in the same shape. Instrument defaults come
+from the app config (the setting names in stockroom.settings).
+"""
 
 from __future__ import annotations
 
-from flask import Blueprint
+import json
+import math
+from typing import Any
+
+from flask import Blueprint, current_app, jsonify, request
+
+from stockroom import chemistry, stats
+from stockroom.corrections import ReadingError, delivered_volume
+from stockroom.errors import FieldError, InvalidInput, StockroomError
+from stockroom.standardization import (
+    AliquotReplicate,
+    Exclusion,
+    Instruments,
+    PrimaryRun,
+    Reference,
+    Replicate,
+    SecondaryRun,
+    StandardizationResult,
+    StandardSpec,
+    acceptance_rule_from_settings,
+    standardize_primary,
+    standardize_secondary,
+)
+from stockroom.uncertainty import InputQuantity
+from stockroom.web.inputs import MISSING, Parser, field_path
 
 bp = Blueprint("preview", __name__)
+
+MAX_REPLICATES = 50
+# A preview may ask for more draws than the default, up to the 10^6 the benchmark times.
+MAX_DRAWS = 1_000_000
+MIN_DRAWS = 1_000
+
+_COMMON_KEYS = {
+    "titrant", "replicates", "u_volume_ml", "u_repeatability_rel", "nominal_molarity", "exclusions",
+    "burette_capacity_ml", "min_replicates", "max_rsd", "monte_carlo_draws",
+}
+PRIMARY_KEYS = _COMMON_KEYS | {
+    "standard", "purity", "u_purity", "purity_tolerance", "purity_U", "purity_k", "u_mass_g", "buoyancy",
+    "molar_mass_g_mol", "u_molar_mass_g_mol", "dried_at_c",
+}
+SECONDARY_KEYS = _COMMON_KEYS | {"reference", "standard", "aliquot_of", "u_aliquot_ml"}
+PRIMARY_REPLICATE_KEYS = {"mass_g", "gross_g", "tare_g", "volume_ml", "initial_ml", "final_ml", "blank_ml",
+                          "temperature_c"}
+SECONDARY_REPLICATE_KEYS = {"aliquot_ml", "volume_ml", "initial_ml", "final_ml", "blank_ml", "temperature_c"}
+REFERENCE_KEYS = {"molarity", "u", "titrant"}
+
+
+def _error_response(errors: list[FieldError], status: int) -> Any:
+    return jsonify({"errors": [e.as_dict() for e in errors]}), status
+
+
+@bp.post("/api/v1/standardizations/preview")
+def preview() -> Any:
+    raw = request.get_data(cache=True)
+    try:
+        data = json.loads(raw)
+    except (ValueError, RecursionError):
+        # RecursionError: a deeply nested body; json raises it rather than a ValueError.
+        return _error_response([FieldError("_body", "the request body must be a JSON object")], 400)
+    if not isinstance(data, dict):
+        return _error_response([FieldError("_body", "the request body must be a JSON object, "
+                                                    "not a JSON " + type(data).__name__)], 422)
+    config = current_app.config
+    try:
+        result, extra = compute_preview(data, config)
+    except InvalidInput as exc:
+        return _error_response(exc.errors, 422)
+    except StockroomError as exc:
+        return _error_response([FieldError("_", exc.message)], 422)
+    except (ArithmeticError, ValueError) as exc:
+        # Only reachable with valid-looking numbers whose arithmetic still fails (e.g. overflow);
+        # the answer stays a 422 naming the request as a whole rather than a 500.
+        return _error_response([FieldError("_", f"these values cannot be computed: {exc}")], 422)
+    return jsonify(result_json(result, extra))
+
+
+# --------------------------------------------------------------------------- request → run
+
+
+def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationResult, dict[str, Any]]:
+    """Parse a preview request and compute it.
+
+    data: the decoded JSON object; config: settings mapping (app.config). Returns the result and
+    the extra fields the response echoes (titrant, standard or reference). Raises InvalidInput.
+    """
+    p = Parser()
+    secondary = "reference" in data
+    p.known_keys(data, SECONDARY_KEYS if secondary else PRIMARY_KEYS)
+    instruments = Instruments.from_settings(config)
+    draws = p.integer(data.get("monte_carlo_draws", MISSING), "monte_carlo_draws", required=False,
+                      ge=MIN_DRAWS, le=MAX_DRAWS)
+    if draws is not None:
+        instruments = _replace(instruments, monte_carlo_draws=draws)
+    rule = _rule(p, data, config)
+    titrant = _titrant(p, data.get("titrant", MISSING), "titrant")
+    common = {
+        "nominal_molarity": p.number(data.get("nominal_molarity", MISSING), "nominal_molarity",
+                                     required=False, gt=0, unit="mol/L"),
+        "u_volume_ml": p.number(data.get("u_volume_ml", MISSING), "u_volume_ml", required=False, ge=0,
+                                unit="mL"),
+        "u_repeatability_rel": p.number(data.get("u_repeatability_rel", MISSING), "u_repeatability_rel",
+                                        required=False, ge=0, lt=1),
+        "burette_capacity_ml": p.number(data.get("burette_capacity_ml", MISSING), "burette_capacity_ml",
+                                        required=False, gt=0, le=1000, unit="mL"),
+    }
+    reps_raw = p.array(data.get("replicates", MISSING), "replicates", min_items=1, max_items=MAX_REPLICATES)
+    exclusions = _exclusions(p, data.get("exclusions", MISSING), len(reps_raw) if reps_raw else 0)
+    if secondary:
+        result, extra = _secondary(p, data, titrant, reps_raw, exclusions, common, instruments, rule)
+    else:
+        result, extra = _primary(p, data, titrant, reps_raw, exclusions, common, instruments, rule)
+    return result, extra
+
+
+def _replace(instruments: Instruments, **changes: Any) -> Instruments:
+    from dataclasses import replace
+
+    return replace(instruments, **changes)
+
+
+def _rule(p: Parser, data: dict[str, Any], config: Any) -> stats.AcceptanceRule:
+    default = acceptance_rule_from_settings(config)
+    min_n = p.integer(data.get("min_replicates", MISSING), "min_replicates", required=False, ge=1,
+                      le=MAX_REPLICATES)
+    max_rsd = p.number(data.get("max_rsd", MISSING), "max_rsd", required=False, gt=0, le=0.1)
+    return stats.AcceptanceRule(min_n=min_n if min_n is not None else default.min_n,
+                                max_rsd=max_rsd if max_rsd is not None else default.max_rsd)
+
+
+def _titrant(p: Parser, raw: Any, field: str) -> chemistry.Titrant | None:
+    key = p.text(raw, field)
+    if key is None:
+        return None
+    try:
+        return chemistry.titrant(key)
+    except StockroomError as exc:
+        p.error(field, exc.message)
+        return None
+
+
+def _exclusions(p: Parser, raw: Any, n: int) -> tuple[Exclusion, ...]:
+    items = p.array(raw, "exclusions", required=False, max_items=MAX_REPLICATES)
+    out: list[Exclusion] = []
+    for j, item in enumerate(items or ()):
+        base = field_path("exclusions", j)
+        obj = p.mapping(item, base)
+        if obj is None:
+            continue
+        p.known_keys(obj, {"index", "reason"}, base)
+        index = p.integer(obj.get("index", MISSING), field_path(base, "index"), ge=0,
+                          le=max(n - 1, 0))
+        reason = p.text(obj.get("reason", MISSING), field_path(base, "reason"), max_length=500)
+        if index is not None and reason is not None:
+            out.append(Exclusion(index, reason))
+    return tuple(out)
+
+
+def _titre(p: Parser, obj: dict[str, Any], base: str) -> float | None:
+    """volume_ml, or final_ml − initial_ml; an error names whichever field is wrong."""
+    has_readings = "initial_ml" in obj or "final_ml" in obj
+    if "volume_ml" in obj or not has_readings:
+        if has_readings:
+            p.error(field_path(base, "volume_ml"), "give volume_ml, or initial_ml and final_ml, not both")
+            return None
+        return p.number(obj.get("volume_ml", MISSING), field_path(base, "volume_ml"), gt=0, unit="mL")
+    initial = p.number(obj.get("initial_ml", MISSING), field_path(base, "initial_ml"), ge=0, unit="mL")
+    final = p.number(obj.get("final_ml", MISSING), field_path(base, "final_ml"), gt=0, unit="mL")
+    if initial is None or final is None:
+        return None
+    try:
+        v = delivered_volume(initial, final)
+    except ReadingError as exc:
+        p.error(field_path(base, "final_ml"), exc.message)
+        return None
+    if v <= 0:
+        p.error(field_path(base, "final_ml"), "must be greater than initial_ml (nothing was delivered)")
+        return None
+    return v
+
+
+def _blank_and_temperature(p: Parser, obj: dict[str, Any], base: str) -> tuple[float | None, float | None]:
+    blank = p.number(obj.get("blank_ml", MISSING), field_path(base, "blank_ml"), required=False, ge=0,
+                     unit="mL")
+    temperature = p.number(obj.get("temperature_c", MISSING), field_path(base, "temperature_c"),
+                           required=False, ge=5, le=40, unit="°C")
+    return blank, temperature
+
+
+def _primary_replicates(p: Parser, reps_raw: list[Any] | None) -> list[Replicate]:
+    out: list[Replicate] = []
+    for i, item in enumerate(reps_raw or ()):
+        base = field_path("replicates", i)
+        obj = p.mapping(item, base)
+        if obj is None:
+            continue
+        p.known_keys(obj, PRIMARY_REPLICATE_KEYS, base)
+        mass = gross = tare = None
+        if "gross_g" in obj or "tare_g" in obj:
+            if "mass_g" in obj:
+                p.error(field_path(base, "mass_g"), "give mass_g, or gross_g and tare_g, not both")
+            gross = p.number(obj.get("gross_g", MISSING), field_path(base, "gross_g"), gt=0, unit="g")
+            tare = p.number(obj.get("tare_g", MISSING), field_path(base, "tare_g"), ge=0, unit="g")
+            if gross is not None and tare is not None and gross <= tare:
+                p.error(field_path(base, "gross_g"), "must be greater than tare_g (mass by difference)")
+        else:
+            mass = p.number(obj.get("mass_g", MISSING), field_path(base, "mass_g"), gt=0, unit="g")
+        volume = _titre(p, obj, base)
+        blank, temperature = _blank_and_temperature(p, obj, base)
+        if volume is not None and blank is not None and blank >= volume:
+            p.error(field_path(base, "blank_ml"), f"must be less than the titre ({volume:g} mL)")
+        if not p.has_error(base):
+            out.append(Replicate(volume_ml=volume, mass_g=mass, gross_g=gross, tare_g=tare,  # type: ignore[arg-type]
+                                 blank_ml=blank or 0.0, temperature_c=temperature))
+    return out
+
+
+def _purity(p: Parser, data: dict[str, Any]) -> tuple[float | None, InputQuantity | None]:
+    """The purity (mass fraction) and, when an uncertainty form was given, the InputQuantity."""
+    value = p.number(data.get("purity", MISSING), "purity", gt=0, le=1)
+    return value, _purity_quantity(p, data, value)
+
+
+def _purity_quantity(p: Parser, data: dict[str, Any], value: float | None) -> InputQuantity | None:
+    forms = [k for k in ("u_purity", "purity_tolerance", "purity_U") if k in data]
+    if len(forms) > 1:
+        p.error(forms[1], f"give one of u_purity, purity_tolerance or purity_U with purity_k, not "
+                          f"{' and '.join(forms)}")
+        return None
+    if "purity_k" in data and "purity_U" not in data:
+        p.error("purity_k", "goes with purity_U (the certificate's expanded uncertainty)")
+    if value is None:
+        return None
+    if "u_purity" in data:
+        u = p.number(data["u_purity"], "u_purity", ge=0, lt=1)
+        return None if u is None else InputQuantity.normal("purity", value, u, "", "stated standard uncertainty")
+    if "purity_tolerance" in data:
+        a = p.number(data["purity_tolerance"], "purity_tolerance", ge=0, lt=1)
+        return None if a is None else InputQuantity.rectangular("purity", value, a)
+    if "purity_U" in data:
+        big_u = p.number(data["purity_U"], "purity_U", ge=0, lt=1)
+        k = p.number(data.get("purity_k", MISSING), "purity_k", gt=0, le=10)
+        if big_u is None or k is None:
+            return None
+        return InputQuantity.expanded("purity", value, big_u, k)
+    return None
+
+
+def _primary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | None, reps_raw: list[Any] | None,
+             exclusions: tuple[Exclusion, ...], common: dict[str, Any], instruments: Instruments,
+             rule: stats.AcceptanceRule) -> tuple[StandardizationResult, dict[str, Any]]:
+    std_key = p.text(data.get("standard", MISSING), "standard")
+    std: chemistry.PrimaryStandard | None = None
+    if std_key is not None:
+        try:
+            std = chemistry.standard(std_key)
+        except StockroomError as exc:
+            p.error("standard", exc.message)
+    nu = None
+    if titrant is not None and std is not None:
+        try:
+            nu = chemistry.stoichiometric_factor(titrant, std)
+        except StockroomError as exc:
+            p.error("standard", exc.message)
+    purity_value, purity = _purity(p, data)
+    u_mass = p.number(data.get("u_mass_g", MISSING), "u_mass_g", required=False, ge=0, unit="g")
+    buoyancy = p.boolean(data.get("buoyancy", MISSING), "buoyancy", default=True)
+    mm_value = p.number(data.get("molar_mass_g_mol", MISSING), "molar_mass_g_mol", required=False, gt=0,
+                        unit="g/mol")
+    mm_u = p.number(data.get("u_molar_mass_g_mol", MISSING), "u_molar_mass_g_mol", required=False, ge=0,
+                    unit="g/mol")
+    if mm_u is not None and "molar_mass_g_mol" not in data:
+        p.error("u_molar_mass_g_mol", "goes with molar_mass_g_mol")
+    dried_at = p.number(data.get("dried_at_c", MISSING), "dried_at_c", required=False, ge=0, le=400,
+                        unit="°C")
+    replicates = _primary_replicates(p, reps_raw)
+    p.raise_if_errors()
+    assert titrant is not None and std is not None and nu is not None
+    mm = std.molar_mass
+    spec = StandardSpec(key=std.key, name=std.name,
+                        molar_mass_g_mol=mm_value if mm_value is not None else mm.value,
+                        u_molar_mass_g_mol=(mm_u if mm_u is not None else mm.u) if mm_value is not None
+                        else mm.u, nu=nu, density_g_cm3=std.density_g_cm3)
+    alternatives = tuple(
+        StandardSpec(key=s.key, name=s.name, molar_mass_g_mol=s.molar_mass.value, u_molar_mass_g_mol=s.molar_mass.u,
+                     nu=chemistry.stoichiometric_factor(titrant, s), density_g_cm3=s.density_g_cm3)
+        for s in chemistry.list_standards(titrant))
+    run = PrimaryRun(standard=spec, replicates=tuple(replicates), purity=purity,
+                     purity_value=purity_value if purity_value is not None else 1.0,
+                     buoyancy=bool(buoyancy), exclusions=exclusions, u_mass_g=u_mass,
+                     alternatives=alternatives, **common)
+    result = standardize_primary(run, instruments, rule)
+    drying = chemistry.check_drying(std, dried_at) if dried_at is not None else None
+    if drying:
+        result = _with_warning(result, drying)
+    extra = {"titrant": titrant.key, "standard": {"key": std.key, "name": std.name,
+                                                  "molar_mass_g_mol": spec.molar_mass_g_mol,
+                                                  "u_molar_mass_g_mol": spec.u_molar_mass_g_mol,
+                                                  "nu": nu, "endpoint": std.endpoint}}
+    return result, extra
+
+
+def _with_warning(result: StandardizationResult, warning: str) -> StandardizationResult:
+    from dataclasses import replace
+
+    return replace(result, warnings=(*result.warnings, warning))
+
+
+def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | None, reps_raw: list[Any] | None,
+               exclusions: tuple[Exclusion, ...], common: dict[str, Any], instruments: Instruments,
+               rule: stats.AcceptanceRule) -> tuple[StandardizationResult, dict[str, Any]]:
+    ref_obj = p.mapping(data.get("reference"), "reference")
+    ref_molarity = ref_u = None
+    ref_titrant: chemistry.Titrant | None = None
+    if ref_obj is not None:
+        p.known_keys(ref_obj, REFERENCE_KEYS, "reference")
+        ref_molarity = p.number(ref_obj.get("molarity", MISSING), "reference.molarity", gt=0, unit="mol/L")
+        ref_u = p.number(ref_obj.get("u", MISSING), "reference.u", ge=0, unit="mol/L")
+        if "titrant" in ref_obj:
+            ref_titrant = _titrant(p, ref_obj["titrant"], "reference.titrant")
+        elif "standard" in data:
+            ref_titrant = _titrant(p, data["standard"], "standard")
+        else:
+            p.error("reference.titrant", "is required: name the certified titrant (e.g. NaOH)")
+    nu = None
+    if titrant is not None and ref_titrant is not None:
+        try:
+            nu = chemistry.stoichiometric_factor(titrant, ref_titrant)
+        except StockroomError as exc:
+            p.error("reference.titrant" if ref_obj and "titrant" in ref_obj else "standard", exc.message)
+    aliquot_of = p.choice(data.get("aliquot_of", MISSING), "aliquot_of", ("new", "reference"), default="new")
+    u_aliquot = p.number(data.get("u_aliquot_ml", MISSING), "u_aliquot_ml", required=False, ge=0, unit="mL")
+    replicates: list[AliquotReplicate] = []
+    for i, item in enumerate(reps_raw or ()):
+        base = field_path("replicates", i)
+        obj = p.mapping(item, base)
+        if obj is None:
+            continue
+        p.known_keys(obj, SECONDARY_REPLICATE_KEYS, base)
+        aliquot = p.number(obj.get("aliquot_ml", MISSING), field_path(base, "aliquot_ml"), gt=0, unit="mL")
+        volume = _titre(p, obj, base)
+        blank, temperature = _blank_and_temperature(p, obj, base)
+        if volume is not None and blank is not None and blank >= volume:
+            p.error(field_path(base, "blank_ml"), f"must be less than the titre ({volume:g} mL)")
+        if not p.has_error(base):
+            assert aliquot is not None and volume is not None
+            replicates.append(AliquotReplicate(aliquot_ml=aliquot, volume_ml=volume, blank_ml=blank or 0.0,
+                                               temperature_c=temperature))
+    p.raise_if_errors()
+    assert titrant is not None and ref_titrant is not None and nu is not None
+    assert ref_molarity is not None and ref_u is not None and aliquot_of is not None
+    run = SecondaryRun(reference=Reference(ref_molarity, ref_u, f"reference {ref_titrant.key}"), nu=nu,
+                       replicates=tuple(replicates), aliquot_of=aliquot_of, exclusions=exclusions,
+                       u_aliquot_ml=u_aliquot, **common)
+    result = standardize_secondary(run, instruments, rule)
+    extra = {"titrant": titrant.key, "reference": {"titrant": ref_titrant.key, "molarity": ref_molarity,
+                                                   "u": ref_u, "nu": nu}, "aliquot_of": aliquot_of}
+    return result, extra
+
+
+# --------------------------------------------------------------------------- result → JSON
+
+
+def _f(x: float | None) -> float | None:
+    """A float for JSON: None for missing or non-finite (JSON has no NaN)."""
+    if x is None or not math.isfinite(x):
+        return None
+    return float(x)
+
+
+def result_json(result: StandardizationResult, extra: dict[str, Any] | None = None) -> dict[str, Any]:
+    """The preview response body for a StandardizationResult (numbers in mol/L, mL, g; shares as fractions)."""
+    s = result.summary
+    gum = result.gum
+    lines_by_factor: dict[str, list[Any]] = {}
+    for line in gum.lines:
+        lines_by_factor.setdefault(line.factor, []).append(line)
+    budget = [
+        {
+            "source": f.name, "value": _f(f.value), "u": _f(f.u), "unit": f.unit, "u_rel": _f(f.u_rel),
+            "contribution": _f(f.contribution), "contribution_rel": _f(f.contribution_rel), "share": _f(f.share),
+            "components": [
+                {"source": ln.source, "u": _f(ln.u), "unit": ln.unit, "u_rel": _f(ln.u_rel),
+                 "distribution": ln.distribution, "derivation": ln.derivation, "share": _f(ln.share)}
+                for ln in lines_by_factor.get(f.name, []) if ln.u > 0
+            ],
+        }
+        for f in gum.factors
+    ]
+    mc = result.monte_carlo
+    body: dict[str, Any] = {
+        "kind": result.kind,
+        **(extra or {}),
+        "unit": "mol/L",
+        "reference_temperature_c": 20.0,
+        "molarity": _f(result.molarity),
+        "u": _f(result.u),
+        "u_rel": _f(result.u_rel),
+        "U": _f(result.U),
+        "k": _f(result.k),
+        "n": result.n,
+        "n_total": result.n_total,
+        "sd": _f(s.sd),
+        "rsd": _f(s.rsd),
+        "ci95": [_f(s.ci_low), _f(s.ci_high)] if s.ci_low is not None else [None, None],
+        "replicates": [
+            {"index": r.index, "molarity": _f(r.molarity), "outlier": r.outlier,
+             "outlier_tests": list(r.outlier_tests), "excluded": r.excluded,
+             "exclusion_reason": r.exclusion_reason, "mass_g": _f(r.mass_g), "titre_ml": _f(r.titre_ml),
+             "aliquot_ml": _f(r.aliquot_ml), "warnings": list(r.warnings)}
+            for r in result.replicates
+        ],
+        "screening": [
+            {"test": o.test, "applicable": o.applicable, "index": o.index, "statistic": _f(o.statistic),
+             "critical": _f(o.critical), "outlier": o.outlier, "note": o.note}
+            for o in result.screening
+        ],
+        "budget": budget,
+        "monte_carlo": {"u": _f(mc.u), "mean": _f(mc.mean), "interval95": [_f(mc.low), _f(mc.high)],
+                        "draws": mc.draws, "seed": mc.seed},
+        "nominal_ratio": _f(result.nominal_ratio),
+        "accepted": result.accepted,
+        "reasons": list(result.reasons),
+        "warnings": list(result.warnings),
+    }
+    return body

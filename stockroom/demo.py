@@ -1,0 +1,99 @@
+"""Load the invented demo scenario (demo_data/scenario.json) into a fresh database."""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import secrets
+from typing import Any
+
+from stockroom import db as dbmod
+from stockroom import records, settings, workflow
+from stockroom.resources import resource_dir
+
+
+def load_scenario() -> dict[str, Any]:
+    """The scenario as shipped (days relative to the day it is built)."""
+    return json.loads((resource_dir("demo_data") / "scenario.json").read_text(encoding="utf-8"))
+
+
+def build_demo(path: str, today: dt.date | None = None) -> list[str]:
+    """Create a database at `path` holding the demo scenario anchored at `today`; return summary lines."""
+    scenario = load_scenario()
+    today = today or dt.date.today()
+
+    def day(n: int) -> str:
+        return (today + dt.timedelta(days=n)).isoformat()
+
+    config = settings.resolve({"DATABASE": path, "SECRET_KEY": "demo-build"})
+    conn = dbmod.connect(path)
+    try:
+        dbmod.migrate(conn)
+        lines = [scenario["title"]]
+        lines += _demo_users(conn, scenario["users"])
+        lots = {}
+        for lot in scenario["lots"]:
+            values = {k: v for k, v in lot.items() if not k.endswith("_day") and k != "key"}
+            values["assay_expanded_u"] = values.pop("assay_U")
+            values["expires_on"] = day(lot["expires_day"])
+            values["dried_on"] = day(lot["dried_day"]) if "dried_day" in lot else None
+            values["received_on"] = day(lot["received_day"]) if "received_day" in lot else None
+            lots[lot["key"]] = records.create_lot(conn, values, "demo-loader")
+        batches: dict[str, dict[str, Any]] = {}
+        for b in sorted(scenario["batches"], key=lambda b: b["prepared_day"]):
+            values = {k: v for k, v in b.items() if k not in ("key", "runs", "withdrawn", "prepared_day")}
+            values["prepared_on"] = day(b["prepared_day"])
+            batches[b["key"]] = records.create_batch(conn, values, "demo-loader")
+        # Runs in date order across batches, so a reference is released before it is used.
+        runs = sorted(((r["day"], b["key"], r) for b in scenario["batches"] for r in b["runs"]),
+                      key=lambda t: t[0])
+        for run_day, key, r in runs:
+            batch = batches[key]
+            meta = {"purpose": r["purpose"], "performed_on": day(run_day), "analyst": r["analyst"],
+                    "endpoint": r.get("endpoint", ""), "burette_capacity_ml": r.get("burette_capacity_ml", 50.0),
+                    "notes": r.get("notes", "")}
+            reps = [_replicate(x) for x in r["replicates"]]
+            excluded = {e["position"]: e["reason"] for e in r.get("exclusions", [])}
+            actor = _username(scenario["users"], r["analyst"])
+            if r.get("method") == "secondary":
+                run_id, _ = workflow.record_secondary_run(conn, config, batch, batches[r["reference"]], meta,
+                                                          reps, actor, excluded)
+            else:
+                run_id, _ = workflow.record_primary_run(conn, config, batch, lots[r["lot"]], meta, reps, actor,
+                                                        excluded)
+            if r.get("decision") == "accept":
+                workflow.accept(conn, run_id, actor)
+            elif r.get("decision") == "reject":
+                workflow.reject(conn, run_id, r["reason"], actor)
+        for b in scenario["batches"]:
+            if "withdrawn" in b:
+                records.withdraw_batch(conn, batches[b["key"]]["id"],
+                                       dt.date.fromisoformat(day(b["withdrawn"]["day"])),
+                                       b["withdrawn"]["reason"], "okafor")
+        lines.append(f"{len(batches)} batches, {len(lots)} standard lots, {len(runs)} runs")
+    finally:
+        conn.close()
+    return lines
+
+
+def _replicate(x: dict[str, Any]) -> dict[str, Any]:
+    rep = dict(x)
+    rep["volume_ml"] = round(x["final_ml"] - x["initial_ml"], 2)
+    return rep
+
+
+def _username(users: list[dict[str, Any]], display: str) -> str:
+    return next((u["username"] for u in users if u["display_name"] == display), "demo-loader")
+
+
+def _demo_users(conn: Any, users: list[dict[str, Any]]) -> list[str]:
+    """Create the scenario's users with one fresh random password, printed once for the demo only."""
+    try:
+        from stockroom import accounts
+    except ImportError:  # accounts arrive with the sign-in work
+        return []
+    password = "demo-" + secrets.token_urlsafe(9)
+    for u in users:
+        accounts.create_user(conn, u["username"], u["display_name"], u["role"], password, "demo-loader")
+    names = ", ".join(f"{u['username']} ({u['role']})" for u in users)
+    return [f"sign in as any of: {names}", f"demo password (this database only): {password}"]

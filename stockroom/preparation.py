@@ -1,0 +1,664 @@
+"""Preparation and adjustment calculators for titrant batches: how much concentrate to take, what to add.
+
+Pure module: plain values and frozen dataclasses in and out; no web or database import.
+
+Molarities are in mol/L of the reagent's formula unit (H2SO4: mol of H2SO4 per litre, not equivalents),
+the same convention as a batch's nominal molarity. Volume contraction on mixing is neglected throughout:
+the plans are for making up to the mark and then standardizing, which measures what was really made.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from stockroom import chemistry
+from stockroom.chemistry import ACID, BASE, Titrant
+from stockroom.errors import FieldError, InvalidInput
+
+LIQUID = "liquid"
+SOLID = "solid"
+FORMS: tuple[str, ...] = (LIQUID, SOLID)
+
+# ---------------------------------------------------------------------------------------------------------
+# Concentrate catalogue
+#
+# Typical commercial concentrates, 20 °C. Every assay and density here is from memory — verify against the
+# supplier's certificate. They are defaults for a form to offer; the plans always take the assay and
+# density of the lot actually in use, which the batch record keeps.
+
+VERIFY = "from memory — verify against the supplier's certificate"
+
+
+@dataclass(frozen=True)
+class Concentrate:
+    """A typical commercial concentrate: typical assay (mass fraction) and density at 20 °C (g/mL)."""
+
+    key: str
+    reagent: str  # titrant key in chemistry.TITRANTS
+    name: str
+    form: str  # "liquid" | "solid"
+    assay_w_w: float  # mass fraction, typical
+    assay_range_w_w: tuple[float, float]  # mass fraction, usual commercial spread
+    density_g_ml: float | None  # g/mL at 20 °C; None for a solid
+    density_range_g_ml: tuple[float, float] | None  # g/mL at 20 °C
+    source: str = VERIFY
+
+    @property
+    def molarity_mol_l(self) -> float | None:
+        """Molarity at the typical assay and density, mol/L; None for a solid."""
+        if self.density_g_ml is None:
+            return None
+        return concentrate_molarity(self.reagent, self.assay_w_w, self.density_g_ml)
+
+
+CONCENTRATES: tuple[Concentrate, ...] = (
+    Concentrate("HCl-37", "HCl", "hydrochloric acid 37 %", LIQUID, 0.37, (0.36, 0.38), 1.19, (1.18, 1.19)),
+    Concentrate("HCl-32", "HCl", "hydrochloric acid 32 %", LIQUID, 0.32, (0.31, 0.33), 1.16, (1.15, 1.17)),
+    Concentrate("H2SO4-96", "H2SO4", "sulfuric acid 95–98 %", LIQUID, 0.96, (0.95, 0.98), 1.84, (1.83, 1.84)),
+    Concentrate("HNO3-65", "HNO3", "nitric acid 65 %", LIQUID, 0.65, (0.64, 0.66), 1.39, (1.39, 1.40)),
+    Concentrate("HNO3-70", "HNO3", "nitric acid 70 %", LIQUID, 0.70, (0.69, 0.71), 1.41, (1.40, 1.42)),
+    Concentrate("HClO4-70", "HClO4", "perchloric acid 70 %", LIQUID, 0.70, (0.69, 0.72), 1.67, (1.66, 1.68)),
+    Concentrate("NaOH-50", "NaOH", "sodium hydroxide 50 %", LIQUID, 0.50, (0.49, 0.51), 1.52, (1.51, 1.53)),
+    Concentrate("KOH-45", "KOH", "potassium hydroxide 45 %", LIQUID, 0.45, (0.44, 0.46), 1.456, (1.45, 1.46)),
+    Concentrate("NaOH-pellets", "NaOH", "sodium hydroxide pellets", SOLID, 0.98, (0.97, 0.99), None, None),
+    # KOH pellets carry water and some K2CO3; about 85 % KOH is the usual reagent-grade minimum.
+    Concentrate("KOH-pellets", "KOH", "potassium hydroxide pellets", SOLID, 0.85, (0.85, 0.90), None, None),
+)
+
+
+def concentrate(key: str) -> Concentrate:
+    """The catalogue concentrate for a key such as "HCl-37" or "NaOH-pellets" (case-insensitive).
+
+    key: catalogue key. Returns a Concentrate. Raises InvalidInput on field "concentrate".
+    """
+    wanted = key.strip().casefold() if isinstance(key, str) else ""
+    for entry in CONCENTRATES:
+        if entry.key.casefold() == wanted:
+            return entry
+    known = ", ".join(c.key for c in CONCENTRATES)
+    raise InvalidInput([FieldError("concentrate", f"unknown concentrate {key!r}; known: {known}")])
+
+
+def concentrates_for(reagent: str | Titrant) -> tuple[Concentrate, ...]:
+    """Catalogue concentrates of one reagent, in catalogue order (for a form's choices).
+
+    reagent: titrant key, name or Titrant. Returns a tuple of Concentrate (empty when none is held).
+    """
+    key = _titrant(reagent, []).key
+    return tuple(c for c in CONCENTRATES if c.reagent == key)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Cautions
+
+# Shown with every plan, whatever the reagent: a calculator that tells someone to handle concentrates shows
+# the usual cautions and defers to the documents that govern the lab (project rule; common practice).
+CAUTIONS: tuple[str, ...] = (
+    "Add acid to water, never the reverse: water poured onto a concentrated acid can boil and spatter "
+    "(common practice).",
+    "Work in a fume hood when opening, measuring or diluting concentrates (common practice).",
+    "Wear goggles and a face shield, acid-resistant gloves and a lab coat when handling concentrates; "
+    "know where the eyewash and safety shower are (common practice).",
+    "Dissolving or diluting concentrated NaOH or KOH is strongly exothermic: add it in portions with "
+    "stirring and let the solution cool to room temperature before making up to volume (common practice).",
+    "These are the usual cautions only: the concentrate's safety data sheet, local regulations and the "
+    "institution's chemical hygiene plan take precedence.",
+)
+
+_EXTRA_CAUTIONS: dict[str, tuple[str, ...]] = {
+    "H2SO4": (
+        "Diluting concentrated sulfuric acid releases much heat: add it slowly, in portions, stirring, and "
+        "let it cool between portions (common practice).",
+    ),
+    "HNO3": (
+        "Nitric acid is a strong oxidizer and gives off nitrogen oxides: keep it away from organic matter "
+        "and measure it only in the fume hood (common practice).",
+    ),
+    "HClO4": (
+        "Perchloric acid is a strong oxidizer: keep it away from organic matter and reducing agents, never "
+        "let it evaporate to dryness, and heat it only in a hood built for perchloric acid (common "
+        "practice; from memory — check the safety data sheet).",
+    ),
+    "HCl": ("Concentrated hydrochloric acid fumes: open and measure it only in the fume hood (common practice).",),
+    "NaOH": ("Concentrated NaOH attacks glass and skin quickly: use plastic ware for it (common practice).",),
+    "KOH": ("Concentrated KOH attacks glass and skin quickly: use plastic ware for it (common practice).",),
+}
+
+
+def cautions_for(reagent: str | Titrant) -> tuple[str, ...]:
+    """The cautions shown with a plan for this reagent: the general ones, then any the reagent adds.
+
+    reagent: titrant key, name or Titrant. Returns a tuple of sentences.
+    """
+    key = _titrant(reagent, []).key
+    return CAUTIONS + _EXTRA_CAUTIONS.get(key, ())
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Input checks (collecting every broken rule, so a form can show each beside its field)
+
+
+def _number(errors: list[FieldError], field: str, value: object) -> float | None:
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        errors.append(FieldError(field, f"must be a number (got {value!r})"))
+        return None
+    if not math.isfinite(value):
+        errors.append(FieldError(field, f"must be a finite number (got {value!r})"))
+        return None
+    return float(value)
+
+
+def _positive(errors: list[FieldError], field: str, value: object, unit: str) -> float | None:
+    x = _number(errors, field, value)
+    if x is not None and x <= 0:
+        errors.append(FieldError(field, f"must be above zero, in {unit} (got {x:g})"))
+        return None
+    return x
+
+
+def _fraction(errors: list[FieldError], field: str, value: object) -> float | None:
+    x = _number(errors, field, value)
+    if x is None:
+        return None
+    if x <= 0 or x > 1:
+        hint = f"; {x:g} looks like a percentage: give {x / 100:g}" if 1 < x <= 100 else ""
+        errors.append(FieldError(field, f"is a mass fraction and must be above 0 and at most 1{hint}"))
+        return None
+    return x
+
+
+# Aqueous concentrates of these reagents lie between water (1.0) and about 1.9 g/mL (sulfuric acid);
+# the wide bounds only catch a wrong unit (kg/m3, kg/L typed as g/L) — not a table check.
+_DENSITY_BOUNDS_G_ML = (0.8, 2.5)
+
+
+def _density(errors: list[FieldError], field: str, value: object) -> float | None:
+    x = _positive(errors, field, value, "g/mL")
+    if x is None:
+        return None
+    lo, hi = _DENSITY_BOUNDS_G_ML
+    if not lo <= x <= hi:
+        errors.append(
+            FieldError(field, f"must be in g/mL at 20 °C, between {lo:g} and {hi:g} for an aqueous concentrate "
+                       f"(got {x:g}; 1190 would be kg/m³)")
+        )
+        return None
+    return x
+
+
+def _titrant(reagent: object, errors: list[FieldError]) -> Titrant:
+    """The catalogue titrant; an unknown one raises at once, since every later check depends on it."""
+    if isinstance(reagent, Titrant):
+        return reagent
+    try:
+        return chemistry.titrant(reagent)  # type: ignore[arg-type]
+    except chemistry.UnknownSubstance as exc:
+        raise InvalidInput(errors + [FieldError("reagent", exc.message)]) from None
+
+
+def _raise(errors: list[FieldError]) -> None:
+    if errors:
+        raise InvalidInput(errors)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Formatting for instructions (4 significant figures, no exponent: people read these at the bench)
+
+
+def _sig(x: float, digits: int = 4) -> str:
+    if x == 0:
+        return "0"
+    decimals = max(0, digits - 1 - math.floor(math.log10(abs(x))))
+    return f"{x:.{decimals}f}"
+
+
+def _pct(w: float) -> str:
+    return f"{w * 100:g} %"
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Concentrate molarity
+
+
+def concentrate_molarity(reagent: str | Titrant, assay_w_w: float, density_g_ml: float) -> float:
+    """Molarity of a liquid concentrate, c = 1000·ρ·w/M.
+
+    reagent: titrant key, name or Titrant. assay_w_w: mass fraction of the reagent (0–1].
+    density_g_ml: density of the concentrate at 20 °C, g/mL. Returns mol/L of the formula unit.
+    Raises InvalidInput naming the field.
+    """
+    errors: list[FieldError] = []
+    t = _titrant(reagent, errors)
+    w = _fraction(errors, "assay_w_w", assay_w_w)
+    rho = _density(errors, "density_g_ml", density_g_ml)
+    _raise(errors)
+    assert w is not None and rho is not None
+    return 1000.0 * rho * w / t.molar_mass.value
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Preparation
+
+
+@dataclass(frozen=True)
+class PreparationPlan:
+    """What to take and how to make a batch of nominal titrant from a concentrate or a solid."""
+
+    reagent: str  # titrant key
+    form: str  # "liquid" | "solid"
+    target_molarity_mol_l: float  # nominal, mol/L
+    planned_molarity_mol_l: float  # nominal × (1 + overshoot_rel), mol/L
+    overshoot_rel: float  # dimensionless
+    final_volume_l: float  # L
+    assay_w_w: float  # mass fraction of the concentrate or solid
+    density_g_ml: float | None  # g/mL at 20 °C; None for a solid
+    molar_mass_g_mol: float  # g/mol of the reagent
+    reagent_mass_g: float  # g of pure reagent the batch holds
+    concentrate_mass_g: float  # g of concentrate (or solid) to take
+    concentrate_volume_ml: float | None  # mL of liquid concentrate to take; None for a solid
+    concentrate_molarity_mol_l: float | None  # mol/L of the liquid concentrate; None for a solid
+    water_approx_l: float  # L of water to bring to volume, roughly (make up to the mark, not this)
+    instructions: tuple[str, ...]
+    cautions: tuple[str, ...]
+    notes: tuple[str, ...]
+
+
+def _typical_mismatch(t: Titrant, form: str, w: float, rho: float | None) -> str | None:
+    """A note when the lot's density is unlike a catalogue concentrate of about the same assay."""
+    if rho is None:
+        return None
+    for c in CONCENTRATES:
+        if c.reagent != t.key or c.form != form or c.density_range_g_ml is None:
+            continue
+        lo_w, hi_w = c.assay_range_w_w
+        lo, hi = c.density_range_g_ml
+        if lo_w <= w <= hi_w and not (lo - 0.02 <= rho <= hi + 0.02):
+            return (
+                f"A {_pct(w)} {t.name} concentrate usually has a density of {lo:g}–{hi:g} g/mL at 20 °C "
+                f"({VERIFY}); {rho:g} g/mL was given: check the lot's certificate and the unit."
+            )
+    return None
+
+
+def _base_water(t: Titrant) -> str:
+    return "boiled, CO2-free water" if t.role == BASE else "water"
+
+
+def _acid_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float, vol_l: float) -> list[str]:
+    first_l = 0.75 * vol_l
+    steps = [
+        f"Put about {_sig(first_l, 3)} L of water (about three quarters of the final {_sig(vol_l, 3)} L) into "
+        f"the clean, labelled container first.",
+        f"In the fume hood, measure {_sig(v_ml)} mL of the {_pct(w)} {t.name} (density {rho:g} g/mL) in a "
+        f"dry measuring cylinder, or weigh {_sig(m_g)} g of it.",
+        "Add the acid slowly to the water, stirring or swirling as you go: acid to water, never the reverse.",
+        "Rinse the cylinder two or three times with a little water and add the rinsings to the container.",
+        f"Let the solution come to room temperature, make up to {_sig(vol_l, 3)} L with water and mix "
+        f"thoroughly (stir, or close and invert many times) so the batch is uniform.",
+    ]
+    if t.key == "H2SO4":
+        steps.insert(2, "Sulfuric acid heats the water strongly: add it in small portions and let the "
+                        "solution cool between them.")
+    return steps
+
+
+def _base_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float, vol_l: float) -> list[str]:
+    steps = [
+        f"Boil about {_sig(vol_l * 1.1, 3)} L of purified water for a few minutes and let it cool with the "
+        f"air kept out (a soda-lime guard tube on the vessel): CO2-free water (AOAC Official Methods, "
+        f"Appendix A).",
+    ]
+    if t.key == "NaOH" and w >= 0.45:
+        steps.append(
+            f"Use the clear liquid of the {_pct(w)} NaOH: sodium carbonate is nearly insoluble in it and "
+            f"settles out, so draw or decant from the top without stirring up the sediment (AOAC Official "
+            f"Methods, Appendix A; common practice)."
+        )
+    elif t.key == "NaOH":
+        steps.append(
+            "Carbonate settles out of NaOH only near 50 %: a weaker concentrate passes its carbonate on to the "
+            "batch; where carbonate matters, start from the clear liquid of 50 % NaOH (AOAC Official Methods, "
+            "Appendix A; common practice)."
+        )
+    elif t.key == "KOH":
+        steps.append(
+            "Carbonate does not settle out of concentrated KOH as it does from 50 % NaOH, so this batch will "
+            "carry the concentrate's carbonate; where carbonate matters, prefer NaOH (common practice)."
+        )
+    steps += [
+        f"Put about {_sig(0.75 * vol_l, 3)} L of the CO2-free water into a polyethylene container.",
+        f"In the fume hood, measure {_sig(v_ml)} mL of the concentrate (density {rho:g} g/mL) in a plastic "
+        f"measuring cylinder, or weigh {_sig(m_g)} g of it, and add it slowly to the water with stirring.",
+        "Rinse the cylinder with a little CO2-free water into the container.",
+        f"Let the solution cool to room temperature, make up to {_sig(vol_l, 3)} L with CO2-free water and mix "
+        f"thoroughly.",
+        "Store in polyethylene with a soda-lime guard tube on the air inlet, so CO2 from the air cannot get "
+        "in (AOAC Official Methods, Appendix A).",
+    ]
+    return steps
+
+
+def _solid_steps(t: Titrant, m_g: float, w: float, vol_l: float) -> list[str]:
+    steps = [
+        f"Boil about {_sig(vol_l * 1.1, 3)} L of purified water for a few minutes and let it cool with the "
+        f"air kept out (a soda-lime guard tube on the vessel): CO2-free water (AOAC Official Methods, "
+        f"Appendix A).",
+        f"Weigh {_sig(m_g)} g of {t.name} ({_pct(w)} assay) quickly into a plastic beaker on a top-pan "
+        f"balance: the solid takes up water and CO2 from the air (common practice).",
+    ]
+    if t.key == "NaOH":
+        steps.append(
+            "Pellets carry a surface film of sodium carbonate; where carbonate matters, prepare from the clear "
+            "liquid of 50 % NaOH instead (AOAC Official Methods, Appendix A; common practice)."
+        )
+    steps += [
+        f"Dissolve it in portions in about {_sig(max(0.1 * vol_l, 0.25), 2)} L of the CO2-free water, stirring: "
+        f"dissolution is strongly exothermic. Let it cool.",
+        f"Pour it into a polyethylene container holding about {_sig(0.6 * vol_l, 3)} L of the CO2-free water, "
+        f"rinse the beaker into it, make up to {_sig(vol_l, 3)} L with CO2-free water and mix thoroughly.",
+        "Store in polyethylene with a soda-lime guard tube on the air inlet (AOAC Official Methods, "
+        "Appendix A).",
+    ]
+    return steps
+
+
+def preparation_plan(
+    reagent: str | Titrant,
+    target_molarity_mol_l: float,
+    final_volume_l: float,
+    assay_w_w: float,
+    density_g_ml: float | None = None,
+    form: str = LIQUID,
+    overshoot_rel: float = 0.0,
+    container_capacity_l: float | None = None,
+) -> PreparationPlan:
+    """Concentrate (or solid) to take for a batch of the target molarity and volume.
+
+    reagent: titrant key, name or Titrant. target_molarity_mol_l: nominal, mol/L. final_volume_l: L.
+    assay_w_w: mass fraction of the reagent in the concentrate or solid (the lot's certificate), (0–1].
+    density_g_ml: concentrate density at 20 °C, g/mL; needed for form "liquid", ignored for "solid".
+    form: "liquid" (a concentrate to dilute) or "solid" (pellets to dissolve; bases only).
+    overshoot_rel: aim this fraction above nominal, dimensionless, 0 ≤ x < 0.1 (default 0: nominal).
+    container_capacity_l: the container's capacity, L, or None to skip that check.
+    Returns a PreparationPlan (mL, g, L and mol/L as its field names say). Raises InvalidInput.
+    """
+    errors: list[FieldError] = []
+    t = _titrant(reagent, errors)
+    c = _positive(errors, "target_molarity_mol_l", target_molarity_mol_l, "mol/L")
+    vol = _positive(errors, "final_volume_l", final_volume_l, "L")
+    w = _fraction(errors, "assay_w_w", assay_w_w)
+    over = _number(errors, "overshoot_rel", overshoot_rel)
+    if over is not None and not 0.0 <= over < 0.1:
+        errors.append(FieldError("overshoot_rel", "must be from 0 up to (not including) 0.1: a batch 10 % or "
+                                 "more above nominal fails acceptance (Ph. Eur. volumetric solutions)"))
+        over = None
+    cap = None
+    if container_capacity_l is not None:
+        cap = _positive(errors, "container_capacity_l", container_capacity_l, "L")
+    rho: float | None = None
+    if form not in FORMS:
+        errors.append(FieldError("form", f"must be one of {', '.join(FORMS)} (got {form!r})"))
+    elif form == LIQUID:
+        if density_g_ml is None:
+            errors.append(FieldError("density_g_ml", "is needed for a liquid concentrate, in g/mL at 20 °C"))
+        else:
+            rho = _density(errors, "density_g_ml", density_g_ml)
+    elif t.role != BASE:
+        errors.append(FieldError("form", f"{t.name} is not prepared from a solid here: choose liquid"))
+    if vol is not None and cap is not None and vol > cap:
+        errors.append(FieldError("final_volume_l", f"{vol:g} L does not fit the {cap:g} L container"))
+    _raise(errors)
+    assert c is not None and vol is not None and w is not None and over is not None
+
+    m_r = t.molar_mass.value
+    planned = c * (1.0 + over)
+    reagent_g = planned * vol * m_r
+    notes: list[str] = [
+        "Volume contraction on mixing is neglected: make up to the mark; the water figure is approximate.",
+        "The batch's real strength comes from its standardization, not from this plan.",
+    ]
+    if over > 0:
+        notes.append(f"Aimed {_sig(over * 100, 2)} % above nominal, at {_sig(planned)} mol/L.")
+
+    if form == LIQUID:
+        assert rho is not None
+        c_conc = 1000.0 * rho * w / m_r
+        if planned >= c_conc:
+            raise InvalidInput([FieldError(
+                "target_molarity_mol_l",
+                f"{_sig(planned)} mol/L is not below the concentrate's own strength ({_sig(c_conc)} mol/L from "
+                f"{_pct(w)} and {rho:g} g/mL): a dilution cannot reach it",
+            )])
+        v_ml = 1000.0 * planned * vol / c_conc
+        m_g = v_ml * rho
+        water_l = vol - v_ml / 1000.0
+        mismatch = _typical_mismatch(t, form, w, rho)
+        if mismatch:
+            notes.append(mismatch)
+        steps = (_acid_liquid_steps if t.role == ACID else _base_liquid_steps)(t, v_ml, m_g, w, rho, vol)
+        conc_ml: float | None = v_ml
+        conc_mol_l: float | None = c_conc
+    else:
+        m_g = reagent_g / w
+        # The dissolved solid's own volume is neglected, as is contraction: make up to the mark.
+        water_l = vol
+        steps = _solid_steps(t, m_g, w, vol)
+        notes.append(
+            "Solids take up water and CO2 once the container is opened, so the real assay drifts below the "
+            "certificate's; standardization measures the result (common practice)."
+        )
+        conc_ml = None
+        conc_mol_l = None
+    steps.append("Label the container with the batch details; it awaits standardization before any use.")
+
+    return PreparationPlan(
+        reagent=t.key,
+        form=form,
+        target_molarity_mol_l=c,
+        planned_molarity_mol_l=planned,
+        overshoot_rel=over,
+        final_volume_l=vol,
+        assay_w_w=w,
+        density_g_ml=rho,
+        molar_mass_g_mol=m_r,
+        reagent_mass_g=reagent_g,
+        concentrate_mass_g=m_g,
+        concentrate_volume_ml=conc_ml,
+        concentrate_molarity_mol_l=conc_mol_l,
+        water_approx_l=water_l,
+        instructions=tuple(steps),
+        cautions=cautions_for(t),
+        notes=tuple(notes),
+    )
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Adjustment of a standardized batch
+
+NO_ADJUSTMENT = "none"
+ADD_WATER = "add_water"
+ADD_CONCENTRATE = "add_concentrate"
+
+
+@dataclass(frozen=True)
+class AdjustmentPlan:
+    """What to add to a standardized batch to bring it to nominal, or that nothing is needed."""
+
+    reagent: str  # titrant key
+    action: str  # "none" | "add_water" | "add_concentrate"
+    measured_molarity_mol_l: float  # mol/L, from the standardization
+    target_molarity_mol_l: float  # mol/L, nominal
+    deviation_rel: float  # measured/target − 1, dimensionless
+    tolerance_rel: float  # dimensionless
+    current_volume_l: float  # L in the container now
+    water_to_add_l: float  # L (0 unless action is add_water)
+    concentrate_to_add_ml: float  # mL (0 unless action is add_concentrate)
+    concentrate_molarity_mol_l: float | None  # mol/L of the concentrate used, when one was given
+    final_volume_l: float  # L after the addition
+    expected_molarity_mol_l: float  # mol/L after the addition (contraction neglected)
+    restandardize: bool  # True whenever something is added
+    instructions: tuple[str, ...]
+    cautions: tuple[str, ...]
+    notes: tuple[str, ...]
+
+
+def adjustment_plan(
+    reagent: str | Titrant,
+    measured_molarity_mol_l: float,
+    target_molarity_mol_l: float,
+    current_volume_l: float,
+    tolerance_rel: float = 0.005,
+    concentrate_molarity_mol_l: float | None = None,
+    concentrate_assay_w_w: float | None = None,
+    concentrate_density_g_ml: float | None = None,
+    container_capacity_l: float | None = None,
+) -> AdjustmentPlan:
+    """Water or concentrate to add so a standardized batch comes to the target molarity.
+
+    reagent: titrant key, name or Titrant. measured_molarity_mol_l: the standardized value, mol/L.
+    target_molarity_mol_l: nominal, mol/L. current_volume_l: volume in the container now, L.
+    tolerance_rel: relative deviation accepted without adjustment, dimensionless, 0 ≤ x < 0.1.
+    concentrate_molarity_mol_l: concentrate to raise the strength with, mol/L; or give instead
+    concentrate_assay_w_w (mass fraction) and concentrate_density_g_ml (g/mL at 20 °C). Needed only
+    when the batch is weak. container_capacity_l: L, or None to skip the overflow check.
+    Water: w = V·(c/c_target − 1). Concentrate: c·V + c_conc·v = c_target·(V + v), so
+    v = V·(c_target − c)/(c_conc − c_target). Returns an AdjustmentPlan. Raises InvalidInput.
+    """
+    errors: list[FieldError] = []
+    t = _titrant(reagent, errors)
+    c = _positive(errors, "measured_molarity_mol_l", measured_molarity_mol_l, "mol/L")
+    ct = _positive(errors, "target_molarity_mol_l", target_molarity_mol_l, "mol/L")
+    vol = _positive(errors, "current_volume_l", current_volume_l, "L")
+    tol = _number(errors, "tolerance_rel", tolerance_rel)
+    if tol is not None and not 0.0 <= tol < 0.1:
+        errors.append(FieldError("tolerance_rel", "must be from 0 up to (not including) 0.1, a fraction of "
+                                 "nominal (0.005 is 0.5 %)"))
+        tol = None
+    cap = None
+    if container_capacity_l is not None:
+        cap = _positive(errors, "container_capacity_l", container_capacity_l, "L")
+        if cap is not None and vol is not None and vol > cap:
+            errors.append(FieldError("current_volume_l", f"{vol:g} L is more than the {cap:g} L container holds"))
+    _raise(errors)
+    assert c is not None and ct is not None and vol is not None and tol is not None
+
+    deviation = c / ct - 1.0
+    cautions = cautions_for(t)
+    water = _base_water(t)
+    notes: list[str] = []
+    if abs(deviation) > 0.1:
+        notes.append(
+            f"The batch is {_sig(abs(deviation) * 100, 2)} % from nominal: check the standardization (standard, "
+            f"units, dilution) before adjusting, since so large a miss often means a mistake there (common "
+            f"practice)."
+        )
+
+    if abs(deviation) <= tol:
+        return AdjustmentPlan(
+            reagent=t.key, action=NO_ADJUSTMENT, measured_molarity_mol_l=c, target_molarity_mol_l=ct,
+            deviation_rel=deviation, tolerance_rel=tol, current_volume_l=vol, water_to_add_l=0.0,
+            concentrate_to_add_ml=0.0, concentrate_molarity_mol_l=None, final_volume_l=vol,
+            expected_molarity_mol_l=c, restandardize=False,
+            instructions=(
+                f"No adjustment is needed: {_sig(c)} mol/L is within {_sig(tol * 100, 2)} % of the nominal "
+                f"{_sig(ct)} mol/L (off by {_sig(deviation * 100, 2)} %).",
+            ),
+            cautions=cautions, notes=tuple(notes),
+        )
+
+    notes += [
+        "Volume contraction on mixing is neglected.",
+        "The adjusted batch must be re-standardized: the earlier result no longer describes it, and the new "
+        "value is a new measurement.",
+        "The figure aims at nominal from the measured value, so that value's uncertainty carries over.",
+    ]
+    after = [
+        "Close the container and mix thoroughly (stir, or invert many times) until uniform.",
+        "Record the addition on the batch, then re-standardize it before any use.",
+    ]
+
+    if deviation > 0:
+        w_l = vol * (c / ct - 1.0)
+        final = vol + w_l
+        if cap is not None and final > cap:
+            raise InvalidInput([FieldError(
+                "current_volume_l",
+                f"adding {_sig(w_l)} L of water brings the batch to {_sig(final)} L, more than the {cap:g} L "
+                f"container holds: move it to a larger container or split it",
+            )])
+        steps = [
+            f"The batch is {_sig(deviation * 100, 2)} % strong. Add {_sig(w_l)} L ({_sig(w_l * 1000)} mL) of "
+            f"{water} to the {_sig(vol)} L in the container.",
+            *after,
+        ]
+        return AdjustmentPlan(
+            reagent=t.key, action=ADD_WATER, measured_molarity_mol_l=c, target_molarity_mol_l=ct,
+            deviation_rel=deviation, tolerance_rel=tol, current_volume_l=vol, water_to_add_l=w_l,
+            concentrate_to_add_ml=0.0, concentrate_molarity_mol_l=None, final_volume_l=final,
+            expected_molarity_mol_l=c * vol / final, restandardize=True, instructions=tuple(steps),
+            cautions=cautions, notes=tuple(notes),
+        )
+
+    # Weak batch: concentrate needed.
+    by_composition = concentrate_assay_w_w is not None or concentrate_density_g_ml is not None
+    if concentrate_molarity_mol_l is not None and by_composition:
+        raise InvalidInput([FieldError(
+            "concentrate_molarity_mol_l",
+            "give either the concentrate's molarity or its assay and density, not both",
+        )])
+    if concentrate_molarity_mol_l is not None:
+        c_conc = _positive(errors, "concentrate_molarity_mol_l", concentrate_molarity_mol_l, "mol/L")
+        _raise(errors)
+    elif by_composition:
+        if concentrate_assay_w_w is None:
+            errors.append(FieldError("concentrate_assay_w_w", "is needed with the density, as a mass fraction"))
+        if concentrate_density_g_ml is None:
+            errors.append(FieldError("concentrate_density_g_ml", "is needed with the assay, in g/mL at 20 °C"))
+        w = rho = None
+        if concentrate_assay_w_w is not None:
+            w = _fraction(errors, "concentrate_assay_w_w", concentrate_assay_w_w)
+        if concentrate_density_g_ml is not None:
+            rho = _density(errors, "concentrate_density_g_ml", concentrate_density_g_ml)
+        _raise(errors)
+        assert w is not None and rho is not None
+        c_conc = 1000.0 * rho * w / t.molar_mass.value
+    else:
+        raise InvalidInput([FieldError(
+            "concentrate_molarity_mol_l",
+            f"the batch is {_sig(-deviation * 100, 2)} % weak: raising it needs a concentrate; give its "
+            f"molarity, or its assay and density",
+        )])
+    assert c_conc is not None
+    if c_conc <= ct:
+        raise InvalidInput([FieldError(
+            "concentrate_molarity_mol_l",
+            f"the concentrate ({_sig(c_conc)} mol/L) is not stronger than the target ({_sig(ct)} mol/L): "
+            f"adding it cannot raise the batch to the target",
+        )])
+    v_ml = 1000.0 * vol * (ct - c) / (c_conc - ct)
+    final = vol + v_ml / 1000.0
+    if cap is not None and final > cap:
+        raise InvalidInput([FieldError(
+            "current_volume_l",
+            f"adding {_sig(v_ml)} mL of concentrate brings the batch to {_sig(final)} L, more than the "
+            f"{cap:g} L container holds",
+        )])
+    if v_ml < 1.0:
+        notes.append(
+            f"{_sig(v_ml)} mL is hard to measure well; a graduated pipette is needed, or a weaker intermediate "
+            f"solution (common practice)."
+        )
+    steps = [
+        f"The batch is {_sig(-deviation * 100, 2)} % weak. In the fume hood, measure {_sig(v_ml)} mL of the "
+        f"concentrate ({_sig(c_conc)} mol/L) with a pipette and a pipette filler (never by mouth).",
+        "Add it slowly to the batch with stirring: concentrate into the dilute solution, as acid to water.",
+        *after,
+    ]
+    return AdjustmentPlan(
+        reagent=t.key, action=ADD_CONCENTRATE, measured_molarity_mol_l=c, target_molarity_mol_l=ct,
+        deviation_rel=deviation, tolerance_rel=tol, current_volume_l=vol, water_to_add_l=0.0,
+        concentrate_to_add_ml=v_ml, concentrate_molarity_mol_l=c_conc, final_volume_l=final,
+        expected_molarity_mol_l=(c * vol + c_conc * v_ml / 1000.0) / final, restandardize=True,
+        instructions=tuple(steps), cautions=cautions, notes=tuple(notes),
+    )

@@ -1,0 +1,818 @@
+"""Standardization of a titrant: replicate molarities, run statistics, checks and the certified value's uncertainty.
+
+Pure module: frozen dataclasses in and out; no web or database import. The measurement model and
+every equation are written out in docs/measurement-model.md; in short:
+
+* primary, per replicate: c_i = 1000·m_i·P·ν / (M·(V_i − b_i)), m_i the buoyancy-corrected mass
+  (mass by difference or direct), then referred to 20 °C when the titration temperature is given;
+* secondary, per replicate: c_i = c_ref·ν·V_titre,i / V_aliquot,i (aliquot of the new batch titrated
+  with the reference) or c_ref·ν·V_aliquot,i / V_titre,i (aliquot of the reference titrated with the
+  new batch);
+* certified value: the mean of the included replicates, with a GUM budget of the product model
+  c = K·m*·P·M⁻¹·V*⁻¹·R written at "effective" mass m* and volume V*, chosen so that the product
+  model gives exactly the mean and its sensitivity coefficients equal those of the mean of the
+  replicates (see _effective), cross-checked by Monte Carlo.
+
+A flagged outlier is never dropped: excluding a replicate is an explicit Exclusion with a reason,
+and an excluded replicate stays in the result, marked.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from stockroom import corrections, settings, stats
+from stockroom.errors import FieldError, InvalidInput, StockroomError
+from stockroom.uncertainty import (
+    Z95,
+    GumResult,
+    InputQuantity,
+    MonteCarloResult,
+    ProductModel,
+    Term,
+    combine,
+    factor,
+    monte_carlo,
+    u_resolution,
+)
+
+UNIT = "mol/L"
+
+# A titre below this fraction of the burette's capacity reads too imprecisely (USP <31>, the
+# pharmacopoeial rule for volumetric apparatus in titrimetry).
+LOW_TITRE_FRACTION = 0.30
+# Strength within ±10 % of the stated nominal (Ph. Eur./BP general text on volumetric solutions).
+NOMINAL_WARN_REL = 0.10
+# An answer off by this factor or more is a wrong standard, unit or dilution, not chemistry
+# (common practice), and is refused rather than warned about.
+NOMINAL_REFUSE_FACTOR = 3.0
+# A ratio within this factor of a power of ten is read as a decade slip (common practice).
+_DECADE_TOLERANCE = 1.5
+# Temperatures certified values are referred to (volumetric glassware is graduated at 20 °C).
+REFERENCE_TEMPERATURE_C = corrections.REFERENCE_TEMPERATURE_C
+
+
+# --------------------------------------------------------------------------- parameters
+
+
+@dataclass(frozen=True)
+class Instruments:
+    """Instrument and laboratory figures the uncertainty budget uses.
+
+    balance_readability_g: last digit of the balance, g (u = d/√12 per reading);
+    balance_linearity_g: linearity half-width, g (rectangular, per weighing);
+    burette_capacity_ml, burette_tolerance_ml: burette size and tolerance half-width, mL
+    (triangular); pipette_tolerance_ml: aliquot pipette tolerance half-width, mL (triangular);
+    lab_temperature_half_range_k: half-width of the lab temperature range, K;
+    lab_temperature_distribution: "rectangular" (the default) or "normal" (the half-range is a
+    95 % interval, as QUAM:2012 A2 states it); expansion_coefficient_per_k: α of the titrant, 1/K;
+    coverage_factor: k (dimensionless); monte_carlo_draws: count; monte_carlo_seed: generator seed;
+    endpoint_u_ml: standard uncertainty of locating an end point, mL (0 leaves it to the
+    repeatability, as QUAM does); purity_tolerance_default: rectangular half-width (mass
+    fraction) used when a purity comes with no uncertainty.
+    """
+
+    balance_readability_g: float
+    balance_linearity_g: float
+    burette_capacity_ml: float
+    burette_tolerance_ml: float
+    pipette_tolerance_ml: float
+    lab_temperature_half_range_k: float
+    expansion_coefficient_per_k: float
+    coverage_factor: float
+    monte_carlo_draws: int
+    lab_temperature_distribution: str = "rectangular"
+    monte_carlo_seed: int = 20_080_901
+    endpoint_u_ml: float = 0.0
+    # ±0.05 %, the purity tolerance QUAM:2012 A2 takes for KHP from its supplier's certificate.
+    purity_tolerance_default: float = 0.0005
+
+    @classmethod
+    def from_settings(cls, config: Mapping[str, Any]) -> Instruments:
+        """Fill from a settings mapping (keys as in stockroom.settings), defaults for missing keys.
+
+        config: e.g. a Flask app.config or settings.resolve(). Returns Instruments.
+        """
+        defaults = {s.name: s.default for s in settings.SETTINGS}
+
+        def get(name: str) -> Any:
+            return config.get(name, defaults[name])
+
+        return cls(
+            balance_readability_g=float(get("BALANCE_READABILITY_G")),
+            balance_linearity_g=float(get("BALANCE_LINEARITY_G")),
+            burette_capacity_ml=float(get("BURETTE_CAPACITY_ML")),
+            burette_tolerance_ml=float(get("BURETTE_TOLERANCE_ML")),
+            pipette_tolerance_ml=float(get("PIPETTE_TOLERANCE_ML")),
+            lab_temperature_half_range_k=float(get("LAB_TEMPERATURE_HALF_RANGE_K")),
+            expansion_coefficient_per_k=float(get("EXPANSION_COEFFICIENT_PER_K")),
+            coverage_factor=float(get("COVERAGE_FACTOR")),
+            monte_carlo_draws=int(get("MONTE_CARLO_DRAWS")),
+        )
+
+
+def acceptance_rule_from_settings(config: Mapping[str, Any]) -> stats.AcceptanceRule:
+    """The default acceptance rule from settings DEFAULT_MIN_REPLICATES and DEFAULT_MAX_RSD.
+
+    config: a settings mapping. Returns a stats.AcceptanceRule (min_n count, max_rsd fraction).
+    """
+    defaults = {s.name: s.default for s in settings.SETTINGS}
+    return stats.AcceptanceRule(
+        min_n=int(config.get("DEFAULT_MIN_REPLICATES", defaults["DEFAULT_MIN_REPLICATES"])),
+        max_rsd=float(config.get("DEFAULT_MAX_RSD", defaults["DEFAULT_MAX_RSD"])),
+    )
+
+
+@dataclass(frozen=True)
+class StandardSpec:
+    """What the model needs to know of a primary standard paired with a titrant.
+
+    molar_mass_g_mol and u_molar_mass_g_mol in g/mol; nu: mol of titrant per mol of standard
+    (dimensionless); density_g_cm3: for the buoyancy correction, g/cm3, or None.
+    """
+
+    key: str
+    name: str
+    molar_mass_g_mol: float
+    u_molar_mass_g_mol: float
+    nu: float
+    density_g_cm3: float | None = None
+
+
+def standard_spec(titrant_key: str, standard_key: str) -> StandardSpec:
+    """StandardSpec from the chemistry catalogue (CIAAW 2021 molar mass, ν from equivalents).
+
+    titrant_key, standard_key: catalogue keys, aliases or formulas. Returns a StandardSpec.
+    Raises chemistry.UnknownSubstance or chemistry.IncompatiblePair (both status 422).
+    """
+    from stockroom import chemistry
+
+    t = chemistry.titrant(titrant_key)
+    s = chemistry.standard(standard_key)
+    nu = chemistry.stoichiometric_factor(t, s)
+    mm = s.molar_mass
+    return StandardSpec(key=s.key, name=s.name, molar_mass_g_mol=mm.value, u_molar_mass_g_mol=mm.u, nu=nu,
+                        density_g_cm3=s.density_g_cm3)
+
+
+# --------------------------------------------------------------------------- run inputs
+
+
+@dataclass(frozen=True)
+class Replicate:
+    """One titration of a weighed primary standard.
+
+    Either mass_g (direct weighing) or gross_g and tare_g (mass by difference, gross − tare), all
+    balance readings in air, g. volume_ml: titre delivered, mL; blank_ml: blank titre, mL;
+    temperature_c: titrant temperature during the titration, °C, or None (taken as 20 °C).
+    """
+
+    volume_ml: float
+    mass_g: float | None = None
+    gross_g: float | None = None
+    tare_g: float | None = None
+    blank_ml: float = 0.0
+    temperature_c: float | None = None
+
+    @property
+    def by_difference(self) -> bool:
+        """True when the mass is gross − tare (two weighings)."""
+        return self.mass_g is None
+
+    @property
+    def air_mass_g(self) -> float:
+        """Mass of standard as the balance saw it (uncorrected for buoyancy), g."""
+        if self.mass_g is not None:
+            return self.mass_g
+        assert self.gross_g is not None and self.tare_g is not None
+        return self.gross_g - self.tare_g
+
+
+@dataclass(frozen=True)
+class AliquotReplicate:
+    """One titration of a pipetted aliquot (secondary standardization).
+
+    aliquot_ml: pipetted volume, mL; volume_ml: titre delivered by the burette, mL; blank_ml: blank
+    titre, mL; temperature_c: °C or None.
+    """
+
+    aliquot_ml: float
+    volume_ml: float
+    blank_ml: float = 0.0
+    temperature_c: float | None = None
+
+
+@dataclass(frozen=True)
+class Exclusion:
+    """A replicate the analyst chose to leave out: 0-based index into the run's replicates, and why."""
+
+    index: int
+    reason: str
+
+
+@dataclass(frozen=True)
+class PrimaryRun:
+    """A run against a weighed primary standard.
+
+    purity: an InputQuantity (mass fraction; from a certificate's U and k, or a rectangular
+    tolerance), or None to use the instruments' default tolerance about `purity_value`.
+    nominal_molarity: mol/L or None. u_mass_g: standard uncertainty of one mass, g, replacing the
+    balance terms; u_volume_ml: of one titre, mL, replacing the burette and temperature terms;
+    u_repeatability_rel: relative standard uncertainty of the repeatability of the certified value,
+    replacing s/√n. alternatives: other standards the titrant pairs with, used only to name the
+    likely one when the answer is refused as a wrong standard.
+    """
+
+    standard: StandardSpec
+    replicates: tuple[Replicate, ...]
+    purity: InputQuantity | None = None
+    purity_value: float = 1.0
+    buoyancy: bool = True
+    nominal_molarity: float | None = None
+    exclusions: tuple[Exclusion, ...] = ()
+    u_mass_g: float | None = None
+    u_volume_ml: float | None = None
+    u_repeatability_rel: float | None = None
+    burette_capacity_ml: float | None = None
+    alternatives: tuple[StandardSpec, ...] = ()
+
+
+@dataclass(frozen=True)
+class Reference:
+    """The certified titrant a secondary standardization is made against: molarity and u, mol/L (at 20 °C)."""
+
+    molarity: float
+    u: float
+    name: str = "reference titrant"
+
+
+@dataclass(frozen=True)
+class SecondaryRun:
+    """A run against a certified titrant batch.
+
+    nu: mol of the new titrant per mol of the reference titrant (chemistry.stoichiometric_factor);
+    aliquot_of: "new" (an aliquot of the new batch titrated with the reference from the burette, as
+    QUAM:2012 A3) or "reference" (an aliquot of the reference titrated with the new batch).
+    u_aliquot_ml replaces the pipette terms, u_volume_ml the burette and temperature terms.
+    """
+
+    reference: Reference
+    nu: float
+    replicates: tuple[AliquotReplicate, ...]
+    aliquot_of: str = "new"
+    nominal_molarity: float | None = None
+    exclusions: tuple[Exclusion, ...] = ()
+    u_aliquot_ml: float | None = None
+    u_volume_ml: float | None = None
+    u_repeatability_rel: float | None = None
+    burette_capacity_ml: float | None = None
+
+
+# --------------------------------------------------------------------------- results
+
+
+@dataclass(frozen=True)
+class ReplicateResult:
+    """One replicate as computed.
+
+    molarity: mol/L at 20 °C; mass_g: buoyancy-corrected mass, g (primary) or None; titre_ml: net
+    titre (less blank), mL; aliquot_ml: mL (secondary) or None; outlier: flagged by a screen of the
+    whole run; outlier_tests names the tests that flagged it; excluded and exclusion_reason as the
+    analyst chose; warnings about this replicate.
+    """
+
+    index: int
+    molarity: float
+    mass_g: float | None
+    titre_ml: float
+    aliquot_ml: float | None
+    outlier: bool
+    outlier_tests: tuple[str, ...]
+    excluded: bool
+    exclusion_reason: str | None
+    warnings: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class StandardizationResult:
+    """Everything a run yields: the certified value and how it was reached.
+
+    molarity, u (combined standard uncertainty) and U = k·u in mol/L at 20 °C; n counts included
+    replicates, n_total all of them; summary of the included molarities (stats.Summary, mol/L);
+    screening: outlier tests on all replicates in entry order; gum: GUM budget; monte_carlo:
+    the JCGM 101 cross-check; accepted, reasons (why not) and warnings (accepted or not);
+    nominal_ratio: molarity / nominal, or None.
+    """
+
+    kind: str
+    molarity: float
+    u: float
+    U: float
+    k: float
+    n: int
+    n_total: int
+    summary: stats.Summary
+    replicates: tuple[ReplicateResult, ...]
+    screening: tuple[stats.OutlierResult, ...]
+    gum: GumResult
+    monte_carlo: MonteCarloResult
+    accepted: bool
+    reasons: tuple[str, ...]
+    warnings: tuple[str, ...]
+    nominal_ratio: float | None
+    model: ProductModel = field(repr=False)
+
+    @property
+    def u_rel(self) -> float:
+        """u/molarity (dimensionless)."""
+        return self.u / self.molarity
+
+
+# --------------------------------------------------------------------------- validation helpers
+
+
+def _path(index: int, name: str) -> str:
+    return f"replicates[{index}].{name}"
+
+
+def _finite(x: Any) -> bool:
+    return isinstance(x, int | float) and not isinstance(x, bool) and math.isfinite(x)
+
+
+def _check_positive(errors: list[FieldError], name: str, value: Any, unit: str) -> bool:
+    if not _finite(value):
+        errors.append(FieldError(name, "must be a number"))
+        return False
+    if value <= 0:
+        errors.append(FieldError(name, f"must be greater than 0 {unit}".rstrip()))
+        return False
+    return True
+
+
+def _check_optional_u(errors: list[FieldError], name: str, value: Any, unit: str) -> None:
+    if value is not None and (not _finite(value) or value < 0):
+        zero = f"0 {unit}" if unit else "0"
+        errors.append(FieldError(name, f"must be a standard uncertainty of {zero} or more"))
+
+
+def _check_exclusions(errors: list[FieldError], exclusions: Sequence[Exclusion], n: int) -> set[int]:
+    seen: set[int] = set()
+    for j, ex in enumerate(exclusions):
+        if not isinstance(ex.index, int) or isinstance(ex.index, bool) or not 0 <= ex.index < n:
+            errors.append(FieldError(f"exclusions[{j}].index",
+                                     f"must be the position of a replicate, 0 to {n - 1}"))
+            continue
+        if ex.index in seen:
+            errors.append(FieldError(f"exclusions[{j}].index", f"replicate {ex.index} is already excluded"))
+        if not isinstance(ex.reason, str) or not ex.reason.strip():
+            errors.append(FieldError(f"exclusions[{j}].reason",
+                                     "give the reason for leaving this replicate out"))
+        seen.add(ex.index)
+    if n and len(seen) >= n:
+        errors.append(FieldError("exclusions", "at least one replicate must stay in the run"))
+    return seen
+
+
+def _net_titre(errors: list[FieldError], i: int, volume: float, blank: float) -> float | None:
+    try:
+        return corrections.net_titre(volume, blank)
+    except StockroomError as exc:
+        errors.append(FieldError(_path(i, "blank_ml"), exc.message))
+        return None
+
+
+def _temperature_factor(t_c: float | None, alpha: float) -> float:
+    """Factor taking a molarity measured at t_c to 20 °C (1 when no temperature was recorded)."""
+    if t_c is None:
+        return 1.0
+    return corrections.molarity_at_temperature(1.0, t_c, REFERENCE_TEMPERATURE_C, alpha)
+
+
+def _check_temperature(errors: list[FieldError], i: int, t_c: float | None) -> None:
+    if t_c is not None and (not _finite(t_c) or not 5.0 <= t_c <= 40.0):
+        errors.append(FieldError(_path(i, "temperature_c"), "must be between 5 and 40 °C"))
+
+
+# --------------------------------------------------------------------------- shared pieces
+
+
+def _effective(values: Sequence[float], quantities: Sequence[float]) -> float:
+    """The x* with c̄/x* = mean(c_i/x_i): the value at which a product model matches the mean.
+
+    values: replicate molarities c_i, mol/L; quantities: the replicates' x_i (masses g or volumes
+    mL). For c̄ = mean(c_i) with c_i ∝ x_i^±1 and one error δ shared by every x_i,
+    ∂c̄/∂δ = ±mean(c_i/x_i) = ±c̄/x*, so a source of u(δ) written on x* carries exactly the
+    sensitivity it has in the mean of the replicates. Equal replicates give x* = x.
+    """
+    c_bar = math.fsum(values) / len(values)
+    return c_bar / (math.fsum(c / x for c, x in zip(values, quantities, strict=True)) / len(values))
+
+
+def _temperature_source(volume_ml: float, instruments: Instruments, what: str) -> InputQuantity:
+    a = instruments.lab_temperature_half_range_k
+    alpha = instruments.expansion_coefficient_per_k
+    half = volume_ml * alpha * a
+    if instruments.lab_temperature_distribution == "normal":
+        return InputQuantity.normal(
+            f"{what} temperature", 0.0, half / Z95, "mL",
+            f"lab within ±{a:g} K at 95 %: {volume_ml:.4g} mL × {alpha:g}/K × {a:g} K / 1.96")
+    return InputQuantity.rectangular(
+        f"{what} temperature", 0.0, half, "mL",
+        f"lab within ±{a:g} K, rectangular: {volume_ml:.4g} mL × {alpha:g}/K × {a:g} K / √3")
+
+
+def _titre_terms(titre: float, blanks: Sequence[float], instruments: Instruments,
+                 u_volume_ml: float | None) -> list[InputQuantity | Term]:
+    """The titre volume and its error sources (burette, temperature, end point, blank)."""
+    terms: list[InputQuantity | Term] = [InputQuantity.normal("titre volume", titre, 0.0, "mL",
+                                                              "mean effective titre of the run")]
+    if u_volume_ml is not None:
+        terms.append(InputQuantity.normal("titre volume (stated u)", 0.0, u_volume_ml, "mL",
+                                          "stated standard uncertainty of one titre"))
+    else:
+        terms.append(InputQuantity.triangular(
+            "burette calibration", 0.0, instruments.burette_tolerance_ml, "mL",
+            f"burette tolerance ±{instruments.burette_tolerance_ml:g} mL, triangular, u = a/√6"))
+        terms.append(_temperature_source(titre, instruments, "titre"))
+    if instruments.endpoint_u_ml > 0:
+        terms.append(InputQuantity.normal("end point", 0.0, instruments.endpoint_u_ml, "mL",
+                                          "stated standard uncertainty of locating the end point"))
+    mean_blank = math.fsum(blanks) / len(blanks) if blanks else 0.0
+    if mean_blank > 0:
+        # The blank correction b is known to lie between 0 and 2b: rectangular of half-width b.
+        terms.append(Term(InputQuantity.rectangular(
+            "blank", 0.0, mean_blank, "mL",
+            f"blank correction {mean_blank:.3g} mL known within ±{mean_blank:.3g} mL, rectangular"), -1.0))
+    return terms
+
+
+def _repeatability(summary: stats.Summary, stated: float | None, rule: stats.AcceptanceRule,
+                   warnings: list[str]) -> InputQuantity:
+    """Repeatability factor R = 1 with u = s/(c̄·√n), or a stated relative u."""
+    n = summary.n
+    observed = (summary.sd / math.sqrt(n) / abs(summary.mean)) if summary.sd is not None and n >= 2 else None
+    if stated is not None:
+        if observed is not None and n >= 3 and observed > stated:
+            warnings.append(f"the stated repeatability ({stated:.2g} relative) is below this run's own "
+                            f"s/√n ({observed:.2g}); the stated figure is used as asked")
+        return InputQuantity.normal("repeatability", 1.0, stated, "",
+                                    "stated relative standard uncertainty of repeatability")
+    if observed is not None and n >= 3:
+        return InputQuantity.normal("repeatability", 1.0, observed, "",
+                                    f"s/√n of the {n} included replicates, relative to their mean")
+    fallback = rule.max_rsd / math.sqrt(n)
+    warnings.append(f"with {n} replicate{'s' if n != 1 else ''} the repeatability cannot be estimated; "
+                    f"the acceptance limit RSD {rule.max_rsd * 100:g} % /√{n} stands in for it — "
+                    f"give u_repeatability_rel for a stated figure")
+    return InputQuantity.normal("repeatability", 1.0, fallback, "",
+                                f"acceptance limit RSD {rule.max_rsd:g} divided by √{n} (no estimate "
+                                f"from {n} replicate{'s' if n != 1 else ''})")
+
+
+def _screen(values: Sequence[float]) -> tuple[list[stats.OutlierResult], dict[int, list[str]]]:
+    results = stats.screen(values)
+    flags: dict[int, list[str]] = {}
+    for r in results:
+        if r.applicable and r.outlier and r.index is not None:
+            flags.setdefault(r.index, []).append(r.test)
+    return results, flags
+
+
+def _nominal_check(molarity: float, nominal: float | None, reasons: list[str], warnings: list[str],
+                   alt_hint: str | None) -> float | None:
+    """Compare with the nominal strength: warn beyond ±10 %, refuse a factor of 3 or more."""
+    if nominal is None:
+        return None
+    ratio = molarity / nominal
+    factor_off = max(ratio, 1.0 / ratio)
+    if factor_off >= NOMINAL_REFUSE_FACTOR:
+        decade = math.log10(ratio)
+        k = round(decade)
+        near_decade = k != 0 and abs(decade - k) <= math.log10(_DECADE_TOLERANCE)
+        said = f"{molarity:.5g} mol/L is {ratio:.3g} times the nominal {nominal:g} mol/L"
+        if near_decade and abs(k) == 3:
+            cause = ("a factor of 1000 is a unit slip: a mass entered in mg as g, a volume in L as mL, "
+                     "or a nominal in mmol/L as mol/L")
+        elif near_decade:
+            cause = (f"a factor of {10 ** abs(k):g} is a dilution or decimal-point slip: check the "
+                     f"nominal strength, the dilution made and the decimal point of each entry")
+        else:
+            cause = "not a power of ten, so the likely cause is a wrong standard (or titrant) for the entries"
+            if alt_hint:
+                cause += f"; {alt_hint}"
+        reasons.append(f"{said}: {cause}")
+    elif abs(ratio - 1.0) > NOMINAL_WARN_REL:
+        warnings.append(f"{molarity:.5g} mol/L is {(ratio - 1) * 100:+.1f} % from the nominal {nominal:g} "
+                        f"mol/L, beyond ±{NOMINAL_WARN_REL * 100:g} %")
+    return ratio
+
+
+def _low_titre_warning(titre: float, capacity: float) -> str | None:
+    if titre < LOW_TITRE_FRACTION * capacity:
+        return (f"titre {titre:.2f} mL is under {LOW_TITRE_FRACTION * 100:g} % of the {capacity:g} mL "
+                f"burette (USP <31>): take more standard or a smaller burette")
+    return None
+
+
+def _finish(kind: str, molarities: list[float], included: list[int], excluded: dict[int, str],
+            per_rep: list[dict[str, Any]], model_factors: list[Any], constant_for: Any,
+            nominal: float | None, instruments: Instruments, rule: stats.AcceptanceRule,
+            stated_rep: float | None, warnings: list[str], alt_hint_for: Any) -> StandardizationResult:
+    """Statistics, model, GUM, Monte Carlo and verdict shared by both kinds of run."""
+    inc_values = [molarities[i] for i in included]
+    summary = stats.summarize(inc_values)
+    screening, flags = _screen(molarities)
+    for i, tests in sorted(flags.items()):
+        if i not in excluded:
+            warnings.append(f"replicate {i} is flagged as an outlier ({', '.join(tests)}); it stays in "
+                            f"the run unless you exclude it with a reason")
+    reasons: list[str] = []
+    R = _repeatability(summary, stated_rep, rule, warnings)
+    factors = [*model_factors, factor("repeatability", 1, R)]
+    constant = constant_for(summary.mean, factors)
+    model = ProductModel(constant, tuple(factors), UNIT, "c")
+    gum = combine(model, instruments.coverage_factor)
+    mc = monte_carlo(model, instruments.monte_carlo_draws, instruments.monte_carlo_seed)
+    verdict = stats.judge(summary, rule)
+    reasons.extend(verdict.reasons)
+    ratio = _nominal_check(summary.mean, nominal, reasons, warnings,
+                           alt_hint_for(summary.mean, nominal) if nominal else None)
+    replicates = tuple(
+        ReplicateResult(index=i, molarity=molarities[i], mass_g=per_rep[i].get("mass_g"),
+                        titre_ml=per_rep[i]["titre_ml"], aliquot_ml=per_rep[i].get("aliquot_ml"),
+                        outlier=i in flags, outlier_tests=tuple(flags.get(i, ())), excluded=i in excluded,
+                        exclusion_reason=excluded.get(i), warnings=tuple(per_rep[i]["warnings"]))
+        for i in range(len(molarities)))
+    for r in replicates:
+        warnings.extend(f"replicate {r.index}: {w}" for w in r.warnings)
+    return StandardizationResult(
+        kind=kind, molarity=gum.value, u=gum.u, U=gum.U, k=gum.k, n=summary.n, n_total=len(molarities),
+        summary=summary, replicates=replicates, screening=tuple(screening), gum=gum, monte_carlo=mc,
+        accepted=not reasons, reasons=tuple(reasons), warnings=tuple(warnings), nominal_ratio=ratio,
+        model=model)
+
+
+# --------------------------------------------------------------------------- primary
+
+
+def primary_replicate_molarity(rep: Replicate, spec: StandardSpec, purity: float, buoyancy: bool,
+                               alpha_per_k: float) -> tuple[float, float, float]:
+    """c = 1000·m·P·ν/(M·(V − V_blank)) for one replicate, referred to 20 °C.
+
+    rep: the replicate (g, mL, °C); spec: the standard; purity: mass fraction; buoyancy: correct
+    the mass to vacuum; alpha_per_k: 1/K. Returns (molarity mol/L at 20 °C, true mass g, net titre mL).
+    """
+    m = rep.air_mass_g
+    if buoyancy and spec.density_g_cm3:
+        m = corrections.true_mass(m, spec.density_g_cm3)
+    titre = corrections.net_titre(rep.volume_ml, rep.blank_ml)
+    c = 1000.0 * m * purity * spec.nu / (spec.molar_mass_g_mol * titre)
+    return c * _temperature_factor(rep.temperature_c, alpha_per_k), m, titre
+
+
+def _purity_quantity(run: PrimaryRun, instruments: Instruments, warnings: list[str]) -> InputQuantity:
+    if run.purity is not None:
+        q = run.purity
+        return InputQuantity(f"purity of {run.standard.key}", q.value, q.u, "", q.distribution, q.derivation)
+    a = instruments.purity_tolerance_default
+    warnings.append(f"no purity uncertainty was given; ±{a:g} (rectangular) is assumed")
+    return InputQuantity.rectangular(f"purity of {run.standard.key}", run.purity_value, a, "",
+                                     f"assumed tolerance ±{a:g}, rectangular (none given)")
+
+
+def _validate_primary(run: PrimaryRun) -> None:
+    errors: list[FieldError] = []
+    if not run.replicates:
+        errors.append(FieldError("replicates", "give at least one replicate"))
+    purity = run.purity.value if run.purity is not None else run.purity_value
+    if not _finite(purity) or not 0 < purity <= 1:
+        errors.append(FieldError("purity", "must be a mass fraction greater than 0 and at most 1"))
+    for i, rep in enumerate(run.replicates):
+        if rep.mass_g is not None:
+            if rep.gross_g is not None or rep.tare_g is not None:
+                errors.append(FieldError(_path(i, "mass_g"), "give mass_g, or gross_g and tare_g, not both"))
+            _check_positive(errors, _path(i, "mass_g"), rep.mass_g, "g")
+        elif rep.gross_g is None or rep.tare_g is None:
+            errors.append(FieldError(_path(i, "mass_g"), "is required (or gross_g and tare_g)"))
+        else:
+            gross_ok = _check_positive(errors, _path(i, "gross_g"), rep.gross_g, "g")
+            tare_ok = _finite(rep.tare_g) and rep.tare_g >= 0
+            if not tare_ok:
+                errors.append(FieldError(_path(i, "tare_g"), "must be at least 0 g"))
+            if gross_ok and tare_ok and rep.gross_g <= rep.tare_g:
+                errors.append(FieldError(_path(i, "gross_g"),
+                                         "must be greater than tare_g (mass by difference)"))
+        if _check_positive(errors, _path(i, "volume_ml"), rep.volume_ml, "mL"):
+            if not _finite(rep.blank_ml) or rep.blank_ml < 0:
+                errors.append(FieldError(_path(i, "blank_ml"), "must be at least 0 mL"))
+            else:
+                _net_titre(errors, i, rep.volume_ml, rep.blank_ml)
+        _check_temperature(errors, i, rep.temperature_c)
+    spec = run.standard
+    if not _finite(spec.molar_mass_g_mol) or spec.molar_mass_g_mol <= 0:
+        errors.append(FieldError("standard", "molar mass must be greater than 0 g/mol"))
+    if not _finite(spec.nu) or spec.nu <= 0:
+        errors.append(FieldError("standard", "stoichiometric factor must be greater than 0"))
+    if run.nominal_molarity is not None:
+        _check_positive(errors, "nominal_molarity", run.nominal_molarity, "mol/L")
+    _check_optional_u(errors, "u_mass_g", run.u_mass_g, "g")
+    _check_optional_u(errors, "u_volume_ml", run.u_volume_ml, "mL")
+    _check_optional_u(errors, "u_repeatability_rel", run.u_repeatability_rel, "")
+    if run.burette_capacity_ml is not None:
+        _check_positive(errors, "burette_capacity_ml", run.burette_capacity_ml, "mL")
+    _check_exclusions(errors, run.exclusions, len(run.replicates))
+    if errors:
+        raise InvalidInput(errors)
+
+
+def _alternative_hint(run: PrimaryRun) -> Any:
+    def hint(molarity: float, nominal: float) -> str | None:
+        # Same masses and titres read as another standard: c scales with ν/M.
+        own = run.standard.nu / run.standard.molar_mass_g_mol
+        fits = [alt for alt in run.alternatives if alt.key != run.standard.key
+                and abs(molarity * (alt.nu / alt.molar_mass_g_mol) / own / nominal - 1) <= NOMINAL_WARN_REL]
+        if not fits:
+            return None
+        names = " or ".join(f"{a.name} ({a.key})" for a in fits)
+        return f"the entries fit {names} rather than {run.standard.name} ({run.standard.key})"
+    return hint
+
+
+def standardize_primary(run: PrimaryRun, instruments: Instruments,
+                        rule: stats.AcceptanceRule | None = None) -> StandardizationResult:
+    """Compute a primary standardization run: replicates, statistics, checks, GUM and Monte Carlo.
+
+    run: the PrimaryRun (g, mL, °C, mass fractions); instruments: Instruments; rule: acceptance
+    rule (default n >= 3, RSD <= 0.2 %). Returns a StandardizationResult in mol/L at 20 °C.
+    Raises InvalidInput naming each bad field (replicates[i].mass_g ...).
+    """
+    rule = rule or stats.AcceptanceRule()
+    _validate_primary(run)
+    warnings: list[str] = []
+    spec = run.standard
+    purity_q = _purity_quantity(run, instruments, warnings)
+    if run.buoyancy and not spec.density_g_cm3:
+        warnings.append(f"no density is known for {spec.name}; masses are not corrected for air buoyancy")
+    alpha = instruments.expansion_coefficient_per_k
+    capacity = run.burette_capacity_ml or instruments.burette_capacity_ml
+    excluded = {ex.index: ex.reason.strip() for ex in run.exclusions}
+    molarities: list[float] = []
+    per_rep: list[dict[str, Any]] = []
+    for rep in run.replicates:
+        c, m, titre = primary_replicate_molarity(rep, spec, purity_q.value, run.buoyancy, alpha)
+        molarities.append(c)
+        low = _low_titre_warning(titre, capacity)
+        per_rep.append({"mass_g": m, "titre_ml": titre, "warnings": [low] if low else []})
+    included = [i for i in range(len(molarities)) if i not in excluded]
+    inc_c = [molarities[i] for i in included]
+    m_star = _effective(inc_c, [per_rep[i]["mass_g"] for i in included])
+    v_star = _effective(inc_c, [per_rep[i]["titre_ml"] for i in included])
+    blanks = [run.replicates[i].blank_ml for i in included]
+
+    # Mass: one shared error per reading, so the balance terms enter once for the run (see docs).
+    mass_terms: list[InputQuantity | Term] = [InputQuantity.normal("mass", m_star, 0.0, "g",
+                                                                   "effective mass of the run")]
+    if run.u_mass_g is not None:
+        mass_terms.append(InputQuantity.normal("mass (stated u)", 0.0, run.u_mass_g, "g",
+                                               "stated standard uncertainty of one mass"))
+    else:
+        weighings = ("gross", "tare") if any(run.replicates[i].by_difference for i in included) else ("single",)
+        lin, d = instruments.balance_linearity_g, instruments.balance_readability_g
+        for w in weighings:
+            if lin > 0:
+                mass_terms.append(Term(InputQuantity.rectangular(
+                    f"balance linearity ({w} weighing)", 0.0, lin, "g",
+                    f"linearity ±{lin * 1000:g} mg, rectangular, u = a/√3"), 1.0 if w != "tare" else -1.0))
+            if d > 0:
+                mass_terms.append(Term(InputQuantity.rectangular(
+                    f"balance readability ({w} weighing)", 0.0, d / 2, "g",
+                    f"readability {d * 1000:g} mg, u = d/√12 ({u_resolution(d) * 1000:.3g} mg)"),
+                    1.0 if w != "tare" else -1.0))
+    model_factors = [
+        factor("mass", 1, *mass_terms, unit="g"),
+        factor("purity", 1, purity_q),
+        factor("molar mass", -1, InputQuantity.normal(
+            f"molar mass of {spec.key}", spec.molar_mass_g_mol, spec.u_molar_mass_g_mol, "g/mol",
+            "from the atomic weights' uncertainties"), unit="g/mol"),
+        factor("titre volume", -1, *_titre_terms(v_star, blanks, instruments, run.u_volume_ml), unit="mL"),
+    ]
+
+    def constant_for(c_bar: float, factors: list[Any]) -> float:
+        # K = c̄·M·V*/(m*·P·R): the exact numbers (1000, ν, buoyancy and 20 °C factors) lumped so the
+        # product model returns the mean exactly.
+        prod = 1.0
+        for f in factors:
+            prod *= f.value ** f.exponent
+        return c_bar / prod
+
+    return _finish("primary", molarities, included, excluded, per_rep, model_factors, constant_for,
+                   run.nominal_molarity, instruments, rule, run.u_repeatability_rel, warnings,
+                   _alternative_hint(run))
+
+
+# --------------------------------------------------------------------------- secondary
+
+
+def secondary_replicate_molarity(rep: AliquotReplicate, reference: Reference, nu: float,
+                                 aliquot_of: str) -> tuple[float, float]:
+    """c_x = c_ref·ν·V_titre/V_aliquot (aliquot of the new batch) or c_ref·ν·V_aliquot/V_titre.
+
+    rep: the replicate (mL); reference: mol/L at 20 °C; nu: dimensionless; aliquot_of: "new" or
+    "reference". Returns (molarity mol/L at 20 °C, net titre mL). Both solutions are measured at the
+    same temperature and expand alike, so the 20 °C referral cancels here.
+    """
+    titre = corrections.net_titre(rep.volume_ml, rep.blank_ml)
+    if aliquot_of == "new":
+        return reference.molarity * nu * titre / rep.aliquot_ml, titre
+    return reference.molarity * nu * rep.aliquot_ml / titre, titre
+
+
+def _validate_secondary(run: SecondaryRun) -> None:
+    errors: list[FieldError] = []
+    if not run.replicates:
+        errors.append(FieldError("replicates", "give at least one replicate"))
+    if run.aliquot_of not in ("new", "reference"):
+        errors.append(FieldError("aliquot_of", "must be 'new' or 'reference'"))
+    _check_positive(errors, "reference.molarity", run.reference.molarity, "mol/L")
+    _check_optional_u(errors, "reference.u", run.reference.u, "mol/L")
+    if run.reference.u is None:
+        errors.append(FieldError("reference.u", "is required: the certified titrant's standard uncertainty"))
+    if not _finite(run.nu) or run.nu <= 0:
+        errors.append(FieldError("reference", "stoichiometric factor must be greater than 0"))
+    for i, rep in enumerate(run.replicates):
+        _check_positive(errors, _path(i, "aliquot_ml"), rep.aliquot_ml, "mL")
+        if _check_positive(errors, _path(i, "volume_ml"), rep.volume_ml, "mL"):
+            if not _finite(rep.blank_ml) or rep.blank_ml < 0:
+                errors.append(FieldError(_path(i, "blank_ml"), "must be at least 0 mL"))
+            else:
+                _net_titre(errors, i, rep.volume_ml, rep.blank_ml)
+        _check_temperature(errors, i, rep.temperature_c)
+    if run.nominal_molarity is not None:
+        _check_positive(errors, "nominal_molarity", run.nominal_molarity, "mol/L")
+    _check_optional_u(errors, "u_aliquot_ml", run.u_aliquot_ml, "mL")
+    _check_optional_u(errors, "u_volume_ml", run.u_volume_ml, "mL")
+    _check_optional_u(errors, "u_repeatability_rel", run.u_repeatability_rel, "")
+    if run.burette_capacity_ml is not None:
+        _check_positive(errors, "burette_capacity_ml", run.burette_capacity_ml, "mL")
+    _check_exclusions(errors, run.exclusions, len(run.replicates))
+    if errors:
+        raise InvalidInput(errors)
+
+
+def standardize_secondary(run: SecondaryRun, instruments: Instruments,
+                          rule: stats.AcceptanceRule | None = None) -> StandardizationResult:
+    """Compute a secondary standardization against a certified titrant, carrying u(c_ref).
+
+    run: the SecondaryRun (mL, mol/L); instruments: Instruments; rule: acceptance rule. Returns a
+    StandardizationResult in mol/L at 20 °C. The reference's full u (its own repeatability
+    included) enters as one source, and this run's repeatability as another.
+    """
+    rule = rule or stats.AcceptanceRule()
+    _validate_secondary(run)
+    warnings: list[str] = []
+    capacity = run.burette_capacity_ml or instruments.burette_capacity_ml
+    excluded = {ex.index: ex.reason.strip() for ex in run.exclusions}
+    molarities: list[float] = []
+    per_rep: list[dict[str, Any]] = []
+    for rep in run.replicates:
+        c, titre = secondary_replicate_molarity(rep, run.reference, run.nu, run.aliquot_of)
+        molarities.append(c)
+        low = _low_titre_warning(titre, capacity)
+        per_rep.append({"titre_ml": titre, "aliquot_ml": rep.aliquot_ml, "warnings": [low] if low else []})
+    included = [i for i in range(len(molarities)) if i not in excluded]
+    inc_c = [molarities[i] for i in included]
+    t_star = _effective(inc_c, [per_rep[i]["titre_ml"] for i in included])
+    a_star = _effective(inc_c, [per_rep[i]["aliquot_ml"] for i in included])
+    blanks = [run.replicates[i].blank_ml for i in included]
+    aliquot_terms: list[InputQuantity | Term] = [InputQuantity.normal("aliquot volume", a_star, 0.0, "mL",
+                                                                      "effective aliquot of the run")]
+    if run.u_aliquot_ml is not None:
+        aliquot_terms.append(InputQuantity.normal("aliquot (stated u)", 0.0, run.u_aliquot_ml, "mL",
+                                                  "stated standard uncertainty of one aliquot"))
+    else:
+        tol = instruments.pipette_tolerance_ml
+        aliquot_terms.append(InputQuantity.triangular(
+            "pipette calibration", 0.0, tol, "mL", f"pipette tolerance ±{tol:g} mL, triangular, u = a/√6"))
+        aliquot_terms.append(_temperature_source(a_star, instruments, "aliquot"))
+    e_titre = 1 if run.aliquot_of == "new" else -1
+    ref = run.reference
+    model_factors = [
+        factor("reference molarity", 1, InputQuantity.normal(
+            ref.name, ref.molarity, ref.u, UNIT, "certified value of the reference and its standard "
+            "uncertainty (its own repeatability included)")),
+        factor("titre volume", e_titre, *_titre_terms(t_star, blanks, instruments, run.u_volume_ml), unit="mL"),
+        factor("aliquot volume", -e_titre, *aliquot_terms, unit="mL"),
+    ]
+
+    def constant_for(c_bar: float, factors: list[Any]) -> float:
+        prod = 1.0
+        for f in factors:
+            prod *= f.value ** f.exponent
+        return c_bar / prod
+
+    return _finish("secondary", molarities, included, excluded, per_rep, model_factors, constant_for,
+                   run.nominal_molarity, instruments, rule, run.u_repeatability_rel, warnings,
+                   lambda c, nominal: None)

@@ -1,0 +1,256 @@
+"""The prep room's actions: record a run, exclude a replicate, accept or reject, withdraw.
+
+Each action composes the pure science core (standardization, policy) with the record layer, so the
+web forms, the CSV import and the demo loader all go through the same path and store the same thing.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import sqlite_utils
+
+from stockroom import chemistry, records, standardization, stats
+from stockroom.errors import Conflict, FieldError, InvalidInput
+from stockroom.policy import ReagentPolicy, expiry_for, release_in_force
+from stockroom.standardization import StandardizationResult
+from stockroom.uncertainty import InputQuantity
+
+
+def _num(x: float | None) -> float | None:
+    return None if x is None or (isinstance(x, float) and not math.isfinite(x)) else x
+
+
+def snapshot(result: StandardizationResult) -> dict[str, Any]:
+    """A JSON-ready dict of a computed run (what is stored with the run and what the API returns)."""
+    s = result.summary
+    return {
+        "kind": result.kind,
+        "molarity": result.molarity, "u": result.u, "U": result.U, "k": result.k, "unit": "mol/L",
+        "reference_temperature_c": standardization.REFERENCE_TEMPERATURE_C,
+        "n": result.n, "n_total": result.n_total,
+        "mean": s.mean, "sd": _num(s.sd), "rsd": _num(s.rsd),
+        "ci95": [s.ci_low, s.ci_high] if s.ci_low is not None else [None, None],
+        "replicates": [
+            {"index": r.index, "molarity": r.molarity, "mass_g": r.mass_g, "titre_ml": r.titre_ml,
+             "aliquot_ml": r.aliquot_ml, "outlier": r.outlier, "outlier_tests": list(r.outlier_tests),
+             "excluded": r.excluded, "exclusion_reason": r.exclusion_reason, "warnings": list(r.warnings)}
+            for r in result.replicates
+        ],
+        "screening": [
+            {"test": o.test, "applicable": o.applicable, "index": o.index, "statistic": o.statistic,
+             "critical": o.critical, "outlier": o.outlier, "note": o.note}
+            for o in result.screening
+        ],
+        "budget": [
+            {"source": b.source, "factor": b.factor, "value": b.value, "u": b.u, "unit": b.unit,
+             "distribution": b.distribution, "derivation": b.derivation, "u_rel": b.u_rel,
+             "contribution": b.contribution, "share": b.share}
+            for b in result.gum.lines
+        ],
+        "monte_carlo": {"mean": result.monte_carlo.mean, "u": result.monte_carlo.u,
+                        "interval95": [result.monte_carlo.low, result.monte_carlo.high],
+                        "draws": result.monte_carlo.draws},
+        "accepted": result.accepted, "reasons": list(result.reasons), "warnings": list(result.warnings),
+        "nominal_ratio": result.nominal_ratio,
+    }
+
+
+def rule_for(policy: ReagentPolicy) -> stats.AcceptanceRule:
+    """The acceptance rule of a reagent's policy."""
+    return stats.AcceptanceRule(min_n=policy.min_replicates, max_rsd=policy.max_rsd)
+
+
+def _purity(lot: Mapping[str, Any]) -> InputQuantity:
+    return InputQuantity.expanded("purity", float(lot["assay"]), float(lot["assay_expanded_u"]),
+                                  float(lot["assay_k"]), derivation=f"lot {lot['code']} certificate: "
+                                  f"U = {lot['assay_expanded_u']} (k = {lot['assay_k']:g})")
+
+
+def compute_primary(
+    config: Mapping[str, Any], batch: Mapping[str, Any], lot: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]],
+    excluded: Mapping[int, str], policy: ReagentPolicy, burette_capacity_ml: float | None = None,
+) -> StandardizationResult:
+    """Compute a primary run from stored-form replicate dicts (1-based positions in `excluded`)."""
+    spec = standardization.standard_spec(batch["reagent"], lot["substance"])
+    titrant = chemistry.titrant(batch["reagent"])
+    alternatives = tuple(
+        standardization.standard_spec(titrant.key, s.key)
+        for s in chemistry.list_standards(titrant) if s.key != spec.key
+    )
+    reps = tuple(
+        standardization.Replicate(
+            volume_ml=float(r["volume_ml"]), mass_g=r.get("mass_g") if r.get("mass_gross_g") is None else None,
+            gross_g=r.get("mass_gross_g"), tare_g=r.get("mass_tare_g"), blank_ml=float(r.get("blank_ml") or 0.0),
+            temperature_c=r.get("temperature_c"))
+        for r in replicates
+    )
+    run = standardization.PrimaryRun(
+        standard=spec, replicates=reps, purity=_purity(lot), purity_value=float(lot["assay"]),
+        nominal_molarity=float(batch["nominal_molarity"]),
+        exclusions=tuple(standardization.Exclusion(p - 1, why) for p, why in sorted(excluded.items())),
+        burette_capacity_ml=burette_capacity_ml, alternatives=alternatives,
+    )
+    return standardization.standardize_primary(run, standardization.Instruments.from_settings(config),
+                                               rule_for(policy))
+
+
+def compute_secondary(
+    config: Mapping[str, Any], batch: Mapping[str, Any], reference_batch: Mapping[str, Any],
+    reference_molarity: float, reference_u: float, replicates: Sequence[Mapping[str, Any]],
+    excluded: Mapping[int, str], policy: ReagentPolicy, burette_capacity_ml: float | None = None,
+) -> StandardizationResult:
+    """Compute a secondary run: aliquots of this batch titrated with a certified reference batch."""
+    nu = chemistry.stoichiometric_factor(chemistry.titrant(batch["reagent"]),
+                                         chemistry.titrant(reference_batch["reagent"]))
+    reps = tuple(
+        standardization.AliquotReplicate(aliquot_ml=float(r["aliquot_ml"]), volume_ml=float(r["volume_ml"]),
+                                         blank_ml=float(r.get("blank_ml") or 0.0),
+                                         temperature_c=r.get("temperature_c"))
+        for r in replicates
+    )
+    run = standardization.SecondaryRun(
+        reference=standardization.Reference(reference_molarity, reference_u, name=reference_batch["code"]),
+        nu=nu, replicates=reps, nominal_molarity=float(batch["nominal_molarity"]),
+        exclusions=tuple(standardization.Exclusion(p - 1, why) for p, why in sorted(excluded.items())),
+        burette_capacity_ml=burette_capacity_ml,
+    )
+    return standardization.standardize_secondary(run, standardization.Instruments.from_settings(config),
+                                                 rule_for(policy))
+
+
+def _replicate_rows(replicates: Sequence[Mapping[str, Any]], result: StandardizationResult) -> list[dict[str, Any]]:
+    rows = []
+    for i, (r, res) in enumerate(zip(replicates, result.replicates, strict=True), start=1):
+        row = dict(r)
+        row["position"] = i
+        if row.get("mass_gross_g") is not None and row.get("mass_tare_g") is not None:
+            row["mass_g"] = row["mass_gross_g"] - row["mass_tare_g"]
+        row["molarity"] = res.molarity
+        rows.append(row)
+    return rows
+
+
+def check_lot_usable(lot: Mapping[str, Any], on: dt.date) -> list[str]:
+    """Refuse an expired lot; return warnings (e.g. a drying record missing) for a usable one."""
+    if dt.date.fromisoformat(lot["expires_on"]) < on:
+        raise InvalidInput([FieldError("standard_lot_id",
+                                       f"lot {lot['code']} expired on {lot['expires_on']}; use a lot in date")])
+    warnings = []
+    broken = chemistry.check_drying(lot["substance"], lot.get("dried_at_c"))
+    if broken:
+        warnings.append(f"lot {lot['code']}: {broken}")
+    elif lot.get("dried_at_c") is None:
+        missing = chemistry.missing_drying_warning(lot["substance"])
+        if missing:
+            warnings.append(f"lot {lot['code']}: {missing}")
+    return warnings
+
+
+def record_primary_run(
+    db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], lot: Mapping[str, Any],
+    meta: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]], actor: str,
+    excluded: Mapping[int, str] | None = None,
+) -> tuple[int, StandardizationResult]:
+    """Compute and store a primary run (meta: purpose, performed_on, analyst, endpoint...); return its id."""
+    excluded = dict(excluded or {})
+    performed_on = dt.date.fromisoformat(str(meta["performed_on"]))
+    check_lot_usable(lot, performed_on)
+    policy = records.policy_for(db, batch["reagent"], performed_on)
+    result = compute_primary(config, batch, lot, replicates, excluded, policy, meta.get("burette_capacity_ml"))
+    run = dict(meta)
+    run.update({"batch_id": batch["id"], "method": "primary", "standard_lot_id": lot["id"]})
+    run_id = records.record_run(db, run, _replicate_rows(replicates, result), snapshot(result), actor,
+                                exclusions=sorted(excluded.items()))
+    return run_id, result
+
+
+def reference_in_force(db: sqlite_utils.Database, reference_batch: Mapping[str, Any], on: dt.date):
+    """The reference batch's release in force on `on`; Conflict-free InvalidInput when it has none."""
+    release = release_in_force(records.batch_facts(db, reference_batch["id"]), on)
+    if release is None:
+        raise InvalidInput([FieldError("reference_batch", f"batch {reference_batch['code']} has no certified "
+                                       f"value in force on {on.isoformat()}; it cannot serve as a reference")])
+    return release
+
+
+def record_secondary_run(
+    db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any],
+    reference_batch: Mapping[str, Any], meta: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]],
+    actor: str, excluded: Mapping[int, str] | None = None,
+) -> tuple[int, StandardizationResult]:
+    """Compute and store a secondary run against the reference's release in force that day."""
+    excluded = dict(excluded or {})
+    performed_on = dt.date.fromisoformat(str(meta["performed_on"]))
+    if reference_batch["id"] == batch["id"]:
+        raise InvalidInput([FieldError("reference_batch", "a batch cannot be its own reference")])
+    ref = reference_in_force(db, reference_batch, performed_on)
+    policy = records.policy_for(db, batch["reagent"], performed_on)
+    result = compute_secondary(config, batch, reference_batch, ref.molarity, ref.u, replicates, excluded, policy,
+                               meta.get("burette_capacity_ml"))
+    run = dict(meta)
+    run.update({"batch_id": batch["id"], "method": "secondary", "reference_batch_id": reference_batch["id"],
+                "reference_release_id": ref.id})
+    run_id = records.record_run(db, run, _replicate_rows(replicates, result), snapshot(result), actor,
+                                exclusions=sorted(excluded.items()))
+    return run_id, result
+
+
+def recompute(db: sqlite_utils.Database, config: Mapping[str, Any], run: Mapping[str, Any],
+              excluded: Mapping[int, str]) -> StandardizationResult:
+    """Compute a stored run again with a given set of exclusions (1-based positions)."""
+    batch = records.batch_by_id(db, run["batch_id"])
+    performed_on = dt.date.fromisoformat(run["performed_on"])
+    policy = records.policy_for(db, batch["reagent"], performed_on)
+    if run["method"] == "primary":
+        lot = records.lot_by_id(db, run["standard_lot_id"])
+        return compute_primary(config, batch, lot, run["replicates"], excluded, policy, run["burette_capacity_ml"])
+    ref_batch = records.batch_by_id(db, run["reference_batch_id"])
+    ref = next(r for r in records.batch_facts(db, ref_batch["id"]).releases if r.id == run["reference_release_id"])
+    return compute_secondary(config, batch, ref_batch, ref.molarity, ref.u, run["replicates"], excluded, policy,
+                             run["burette_capacity_ml"])
+
+
+def exclude(db: sqlite_utils.Database, config: Mapping[str, Any], run_id: int, position: int, reason: str,
+            actor: str) -> StandardizationResult:
+    """Leave one replicate of an undecided run out, with a reason; store the recomputed result."""
+    run = records.run_by_id(db, run_id)
+    excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
+    excluded[position] = reason
+    result = recompute(db, config, run, excluded)
+    records.exclude_replicate(db, run_id, position, reason, snapshot(result), actor)
+    return result
+
+
+def accept(db: sqlite_utils.Database, run_id: int, actor: str, released_on: dt.date | None = None,
+           reason: str = "") -> int | None:
+    """Accept a run. A certifying run releases the batch with its current result; return the release id."""
+    run = records.run_by_id(db, run_id)
+    current = run["current"]
+    if not current["accepted_by_rule"]:
+        why = "; ".join(current["result"].get("reasons", [])) or "it does not meet the acceptance rule"
+        raise Conflict(f"this run cannot be accepted: {why}. Exclude a replicate with a reason, or reject the run")
+    if run["purpose"] != "certify":
+        return records.decide_run(db, run_id, "accept", reason, actor)
+    batch = records.batch_by_id(db, run["batch_id"])
+    released_on = released_on or dt.date.fromisoformat(run["performed_on"])
+    policy = records.policy_for(db, batch["reagent"], released_on)
+    prepared_on = dt.date.fromisoformat(batch["prepared_on"])
+    expires_on = expiry_for(released_on, policy, prepared_on=prepared_on)
+    if expires_on < released_on:
+        raise Conflict(f"this batch passed its shelf life on {expires_on.isoformat()}; it cannot be released")
+    release = {
+        "molarity": current["molarity"], "u": current["u"], "U": current["expanded_u"], "k": current["k"],
+        "reference_temperature_c": standardization.REFERENCE_TEMPERATURE_C,
+        "released_on": released_on.isoformat(), "expires_on": expires_on.isoformat(),
+        "recheck_interval_days": policy.recheck_interval_days, "tolerance_rel": policy.tolerance_rel,
+    }
+    return records.decide_run(db, run_id, "accept", reason, actor, release=release)
+
+
+def reject(db: sqlite_utils.Database, run_id: int, reason: str, actor: str) -> None:
+    """Reject a run with the reason; nothing is released."""
+    records.decide_run(db, run_id, "reject", reason, actor)
