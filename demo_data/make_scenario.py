@@ -125,7 +125,7 @@ def main() -> None:
         "prepared_by": "J. Abara", "concentrate_lot": "NaOH 50 % lot SH-559 (invented)",
         "concentrate_assay_w_w": 0.50, "concentrate_density_g_ml": 1.52,
         "water_grade": "boiled, CO2-free deionized", "container": "20 L polyethylene carboy, soda-lime guard tube",
-        "notes": "guard tube found exhausted on day -20 (invented scenario)", "runs": runs,
+        "notes": "soda-lime guard tube found exhausted at the third re-check and replaced", "runs": runs,
     })
     # 4. NaOH 0.1 M expired, re-standardized once (the later release supersedes the first).
     c1, c2 = 0.09987, 0.09958

@@ -69,8 +69,10 @@ def preview() -> Any:
         # RecursionError: a deeply nested body; json raises it rather than a ValueError.
         return _error_response([FieldError("_body", "the request body must be a JSON object")], 400)
     if not isinstance(data, dict):
-        return _error_response([FieldError("_body", "the request body must be a JSON object, "
-                                                    "not a JSON " + type(data).__name__)], 422)
+        kind = {list: "a list", str: "a string", bool: "true or false", type(None): "null"}.get(
+            type(data), "a number")
+        return _error_response([FieldError("_body", f"the request body must be a JSON object, not {kind}")],
+                               422)
     config = current_app.config
     try:
         result, extra = compute_preview(data, config)

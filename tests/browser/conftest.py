@@ -81,9 +81,14 @@ def page(browser):
     context.close()
 
 
-def screenshot(page, name: str) -> Path:
+@pytest.fixture
+def screenshot():
     """Save a full-page screenshot under test-artifacts/ for a person to look at."""
-    ARTIFACTS.mkdir(exist_ok=True)
-    out = ARTIFACTS / f"{name}.png"
-    page.screenshot(path=str(out), full_page=True)
-    return out
+
+    def take(page, name: str) -> Path:
+        ARTIFACTS.mkdir(exist_ok=True)
+        out = ARTIFACTS / f"{name}.png"
+        page.screenshot(path=str(out), full_page=True)
+        return out
+
+    return take
