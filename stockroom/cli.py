@@ -81,5 +81,100 @@ def demo(db_path: str | None, host: str, port: int, no_serve: bool) -> None:
         _serve(create_app({"DATABASE": str(target)}), host, port)
 
 
+# ---------------------------------------------------------------- accounts
+
+_ROLE_CHOICE = click.Choice(["staff", "instructor", "admin"])  # accounts.ROLES (a test keeps them equal)
+
+
+def _accounts_db(db_path: str | None):  # -> sqlite_utils.Database
+    from stockroom import db as dbmod
+
+    conn = dbmod.connect(_db_path(db_path))
+    dbmod.migrate(conn)
+    return conn
+
+
+def _cli_actor() -> str:
+    import getpass
+
+    try:
+        return f"cli:{getpass.getuser()}"
+    except (KeyError, OSError):  # no login name in some containers
+        return "cli"
+
+
+def _new_password(prompt: str) -> str:
+    """The password from STOCKROOM_PASSWORD when set (for scripts), else asked for twice, hidden."""
+    from_env = os.environ.get("STOCKROOM_PASSWORD")
+    if from_env is not None:
+        return from_env
+    return str(click.prompt(prompt, hide_input=True, confirmation_prompt=True))
+
+
+def _account_call(fn, *args):  # a StockroomError becomes a one-line message and exit status 1
+    from stockroom.errors import InvalidInput, StockroomError
+
+    try:
+        return fn(*args)
+    except InvalidInput as exc:
+        raise click.ClickException("\n".join(f"{e.field}: {e.message}" for e in exc.errors)) from None
+    except StockroomError as exc:
+        raise click.ClickException(exc.message) from None
+
+
+@main.command("add-user")
+@click.argument("name")
+@click.option("--role", required=True, type=_ROLE_CHOICE, help="What the account may do.")
+@click.option("--display-name", default=None, help="The person's name as shown (default: NAME).")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False),
+              help="SQLite file (default: the configured one).")
+def add_user(name: str, role: str, display_name: str | None, db_path: str | None) -> None:
+    """Create an account. The password is read from STOCKROOM_PASSWORD if set, else asked for twice."""
+    from stockroom import accounts
+
+    password = _new_password("Password for the new account (at least 12 characters)")
+    conn = _accounts_db(db_path)
+    try:
+        user = _account_call(accounts.create_user, conn, name, display_name or name, role, password,
+                             _cli_actor())
+    finally:
+        conn.close()
+    click.echo(f"created {user.username} ({user.role_label})")
+
+
+@main.command("disable-user")
+@click.argument("name")
+@click.option("--reason", default="", help="Why, for the audit trail.")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False),
+              help="SQLite file (default: the configured one).")
+def disable_user(name: str, reason: str, db_path: str | None) -> None:
+    """Disable an account; every session it has ends at once."""
+    from stockroom import accounts
+
+    conn = _accounts_db(db_path)
+    try:
+        user = _account_call(accounts.disable_user, conn, name, _cli_actor(), reason)
+    finally:
+        conn.close()
+    click.echo(f"disabled {user.username}; its sessions have ended")
+
+
+@main.command("set-password")
+@click.argument("name")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False),
+              help="SQLite file (default: the configured one).")
+def set_password(name: str, db_path: str | None) -> None:
+    """Give an account a new password (forgotten password); from STOCKROOM_PASSWORD or asked for twice."""
+    from stockroom import accounts
+
+    password = _new_password(f"New password for {name} (at least 12 characters)")
+    conn = _accounts_db(db_path)
+    try:
+        user = _account_call(accounts.set_password, conn, name, password, _cli_actor())
+    finally:
+        conn.close()
+    click.echo(f"password of {user.username} changed; its sessions have ended")
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())

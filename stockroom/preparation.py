@@ -179,9 +179,10 @@ def _density(errors: list[FieldError], field: str, value: object) -> float | Non
         return None
     lo, hi = _DENSITY_BOUNDS_G_ML
     if not lo <= x <= hi:
+        hint = f"; that looks like kg/m³: give {x / 1000:g}" if 800 <= x <= 2500 else ""
         errors.append(
             FieldError(field, f"must be in g/mL at 20 °C, between {lo:g} and {hi:g} for an aqueous concentrate "
-                       f"(got {x:g}; 1190 would be kg/m³)")
+                       f"(got {x:g}{hint})")
         )
         return None
     return x
@@ -574,6 +575,8 @@ def adjustment_plan(
         "The figure aims at nominal from the measured value, so that value's uncertainty carries over.",
     ]
     after = [
+        *(["Open the container as briefly as possible and keep the soda-lime guard tube in place: the batch "
+           "takes up CO2 each time it is opened (common practice)."] if t.role == BASE else []),
         "Close the container and mix thoroughly (stir, or invert many times) until uniform.",
         "Record the addition on the batch, then re-standardize it before any use.",
     ]
@@ -649,10 +652,12 @@ def adjustment_plan(
             f"{_sig(v_ml)} mL is hard to measure well; a graduated pipette is needed, or a weaker intermediate "
             f"solution (common practice)."
         )
+    clear = (" For NaOH use the clear liquid of 50 % NaOH, from which carbonate has settled (AOAC Official "
+             "Methods, Appendix A).") if t.key == "NaOH" else ""
     steps = [
         f"The batch is {_sig(-deviation * 100, 2)} % weak. In the fume hood, measure {_sig(v_ml)} mL of the "
-        f"concentrate ({_sig(c_conc)} mol/L) with a pipette and a pipette filler (never by mouth).",
-        "Add it slowly to the batch with stirring: concentrate into the dilute solution, as acid to water.",
+        f"concentrate ({_sig(c_conc)} mol/L) with a pipette and a pipette filler (never by mouth).{clear}",
+        "Add it slowly to the batch with stirring: concentrate into the dilute solution, as with acid to water.",
         *after,
     ]
     return AdjustmentPlan(

@@ -261,4 +261,41 @@ def _starting_policies(db: sqlite_utils.Database) -> None:
     seed_default_policies(db)
 
 
+
+# Accounts: a session generation per user (bumped when the user is disabled or the password changes,
+# which ends every session signed with the old value), one row per browser session so sign-out ends
+# it on the server, and every sign-in attempt so repeated failures pause further attempts.
+_ACCOUNTS = [
+    "ALTER TABLE users ADD COLUMN session_generation INTEGER NOT NULL DEFAULT 0",
+    """CREATE TABLE web_sessions (
+        id INTEGER PRIMARY KEY,
+        token_hash TEXT NOT NULL UNIQUE,            -- SHA-256 of the random token kept in the cookie
+        user_id INTEGER NOT NULL REFERENCES users (id),
+        generation INTEGER NOT NULL,
+        started_at TEXT NOT NULL,
+        ended_at TEXT
+    )""",
+    "CREATE INDEX ix_web_sessions_user ON web_sessions (user_id)",
+    """CREATE TABLE signin_attempts (
+        id INTEGER PRIMARY KEY,
+        username TEXT NOT NULL COLLATE NOCASE,      -- as typed, matched like users.username
+        occurred_at TEXT NOT NULL,
+        succeeded INTEGER NOT NULL CHECK (succeeded IN (0, 1))
+    )""",
+    "CREATE INDEX ix_signin_attempts_user ON signin_attempts (username, id)",
+]
+
+
+@MIGRATIONS(name="0003_accounts")
+def _accounts(db: sqlite_utils.Database) -> None:
+    for statement in _ACCOUNTS:
+        db.execute(statement)
+    # The attempt log is evidence for the lock-out; like the record tables it is append-only.
+    for verb in ("UPDATE", "DELETE"):
+        db.execute(
+            f"CREATE TRIGGER signin_attempts_no_{verb.lower()} BEFORE {verb} ON signin_attempts "
+            "BEGIN SELECT RAISE(ABORT, 'signin_attempts is append-only'); END"
+        )
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)

@@ -366,7 +366,7 @@ def _check_exclusions(errors: list[FieldError], exclusions: Sequence[Exclusion],
                                      f"must be the position of a replicate, 0 to {n - 1}"))
             continue
         if ex.index in seen:
-            errors.append(FieldError(f"exclusions[{j}].index", f"replicate {ex.index} is already excluded"))
+            errors.append(FieldError(f"exclusions[{j}].index", f"replicates[{ex.index}] is already excluded"))
         if not isinstance(ex.reason, str) or not ex.reason.strip():
             errors.append(FieldError(f"exclusions[{j}].reason",
                                      "give the reason for leaving this replicate out"))
@@ -527,7 +527,7 @@ def _finish(kind: str, molarities: list[float], included: list[int], excluded: d
     screening, flags = _screen(molarities)
     for i, tests in sorted(flags.items()):
         if i not in excluded:
-            warnings.append(f"replicate {i} is flagged as an outlier ({', '.join(tests)}); it stays in "
+            warnings.append(f"replicate {i + 1} is flagged as an outlier ({', '.join(tests)}); it stays in "
                             f"the run unless you exclude it with a reason")
     reasons: list[str] = []
     R = _repeatability(summary, stated_rep, rule, warnings)
@@ -547,7 +547,7 @@ def _finish(kind: str, molarities: list[float], included: list[int], excluded: d
                         exclusion_reason=excluded.get(i), warnings=tuple(per_rep[i]["warnings"]))
         for i in range(len(molarities)))
     for r in replicates:
-        warnings.extend(f"replicate {r.index}: {w}" for w in r.warnings)
+        warnings.extend(f"replicate {r.index + 1}: {w}" for w in r.warnings)
     return StandardizationResult(
         kind=kind, molarity=gum.value, u=gum.u, U=gum.U, k=gum.k, n=summary.n, n_total=len(molarities),
         summary=summary, replicates=replicates, screening=tuple(screening), gum=gum, monte_carlo=mc,
@@ -665,16 +665,19 @@ def standardize_primary(run: PrimaryRun, instruments: Instruments,
         c, m, titre = primary_replicate_molarity(rep, spec, purity_q.value, run.buoyancy, alpha)
         molarities.append(c)
         low = _low_titre_warning(titre, capacity)
-        per_rep.append({"mass_g": m, "titre_ml": titre, "warnings": [low] if low else []})
+        per_rep.append({"mass_g": m, "air_mass_g": rep.air_mass_g, "titre_ml": titre,
+                        "warnings": [low] if low else []})
     included = [i for i in range(len(molarities)) if i not in excluded]
     inc_c = [molarities[i] for i in included]
-    m_star = _effective(inc_c, [per_rep[i]["mass_g"] for i in included])
+    # The balance errors act on the readings, so m* is an effective balance reading; the buoyancy
+    # factor, like 1000 and ν, goes into the constant K.
+    m_star = _effective(inc_c, [per_rep[i]["air_mass_g"] for i in included])
     v_star = _effective(inc_c, [per_rep[i]["titre_ml"] for i in included])
     blanks = [run.replicates[i].blank_ml for i in included]
 
     # Mass: one shared error per reading, so the balance terms enter once for the run (see docs).
     mass_terms: list[InputQuantity | Term] = [InputQuantity.normal("mass", m_star, 0.0, "g",
-                                                                   "effective mass of the run")]
+                                                                   "effective balance reading of the run")]
     if run.u_mass_g is not None:
         mass_terms.append(InputQuantity.normal("mass (stated u)", 0.0, run.u_mass_g, "g",
                                                "stated standard uncertainty of one mass"))

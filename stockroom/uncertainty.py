@@ -441,7 +441,13 @@ def monte_carlo(model: ProductModel, draws: int = DEFAULT_DRAWS, seed: int = DEF
     input (fresh large arrays cost page faults that took longer than drawing the numbers).
     """
     _check_mc_args(draws, coverage)
-    n = int(draws)
+    # A draw may land where the model is undefined (a volume drawn through zero when its u is
+    # absurdly large): that trial is inf or nan and shows in the result rather than as a warning.
+    with np.errstate(all="ignore"):
+        return _monte_carlo(model, int(draws), int(seed), coverage)
+
+
+def _monte_carlo(model: ProductModel, n: int, seed: int, coverage: float) -> MonteCarloResult:
     rng = np.random.default_rng(seed)
     y = np.full(n, model.constant, dtype=np.float64)
     x = np.empty(n, dtype=np.float64)
@@ -491,7 +497,7 @@ def monte_carlo(model: ProductModel, draws: int = DEFAULT_DRAWS, seed: int = DEF
             y /= x
         else:
             y *= np.power(x, f.exponent)
-    return _summarize_draws(y, coverage, int(seed), model.unit)
+    return _summarize_draws(y, coverage, seed, model.unit)
 
 
 def monte_carlo_function(func: Callable[..., np.ndarray], quantities: Sequence[InputQuantity],
@@ -505,6 +511,7 @@ def monte_carlo_function(func: Callable[..., np.ndarray], quantities: Sequence[I
     _check_mc_args(draws, coverage)
     n = int(draws)
     rng = np.random.default_rng(seed)
-    samples = [_draw(q, n, rng) for q in quantities]
-    y = np.broadcast_to(np.asarray(func(*samples), dtype=np.float64), (n,))
-    return _summarize_draws(np.array(y), coverage, int(seed), unit)
+    with np.errstate(all="ignore"):
+        samples = [_draw(q, n, rng) for q in quantities]
+        y = np.broadcast_to(np.asarray(func(*samples), dtype=np.float64), (n,))
+        return _summarize_draws(np.array(y), coverage, int(seed), unit)

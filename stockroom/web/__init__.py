@@ -26,11 +26,12 @@ def wants_json() -> bool:
 
 def register(app: Flask) -> None:
     """Attach every blueprint, the error handlers and the response headers to the app."""
-    from stockroom.web import api, batches, dashboard, formatting, health, preview
+    from stockroom.web import access, account, api, batches, dashboard, formatting, health, preview
 
     csrf.init_app(app)
-    for module in (health, dashboard, batches, api, preview):
+    for module in (health, dashboard, batches, api, preview, account):
         app.register_blueprint(module.bp)
+    access.init_app(app)
     # The JSON API is for programs; it takes no cookies-based form posts (token auth comes later).
     csrf.exempt(api.bp)
     csrf.exempt(preview.bp)

@@ -22,7 +22,18 @@ from collections.abc import Callable
 from typing import Any, TypeVar
 from urllib.parse import urlsplit
 
-from flask import Flask, current_app, flash, g, has_request_context, jsonify, redirect, request, session, url_for
+from flask import (
+    Flask,
+    current_app,
+    flash,
+    g,
+    has_request_context,
+    jsonify,
+    redirect,
+    request,
+    session,
+    url_for,
+)
 
 from stockroom import accounts, records
 from stockroom.accounts import User
@@ -33,6 +44,8 @@ F = TypeVar("F", bound=Callable[..., Any])
 
 SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 _KEYS = ("uid", "gen", "sid")
+# Endpoints of other modules that answer anyone: static files and the liveness probe of monitoring.
+ALWAYS_OPEN = frozenset({"static", "health.healthz"})
 _UNSET = object()
 
 
@@ -54,7 +67,10 @@ def current_user() -> User | None:
 
 
 def begin_session(user: User) -> None:
-    """Start a fresh session for a user who just proved who they are (clears the old one first)."""
+    """Start a fresh session for a user who just proved who they are (ends and clears the old one first)."""
+    previous = session.get("sid")
+    if previous is not None:
+        accounts.end_session(get_db(), previous, user.username)
     session.clear()
     g.pop("csrf_token", None)  # flask-wtf caches the raw token of the cleared session here
     session["uid"] = user.id
@@ -92,7 +108,8 @@ def safe_next(target: str | None) -> str | None:
 def anonymous_response() -> Any:
     """The answer to an anonymous request that needs a user: 401 JSON, or 303 to the sign-in page."""
     if wants_json_answer():
-        return jsonify({"errors": [{"field": "_", "message": "Sign in first: this needs a signed-in user."}]}), 401
+        message = "Sign in first: this needs a signed-in user."
+        return jsonify({"errors": [{"field": "_", "message": message}]}), 401
     target = None
     if request.method in SAFE_METHODS:
         target = request.full_path if request.query_string else request.path
@@ -153,13 +170,14 @@ def refuse(user: User, permission: str) -> None:
         records.append_event(db, user.username, "access.refused",
                              detail={"permission": permission, "method": request.method, "path": request.path,
                                      "role": user.role})
-    raise Forbidden(f"Your role ({user.role_label}) does not allow you to {accounts.PERMISSIONS[permission]}.")
+    raise Forbidden(f"Your role ({user.role_label}) does not allow you to "
+                    f"{accounts.PERMISSIONS[permission]}.")
 
 
 def _gate() -> Any:
     """before_request: refuse anonymous requests the settings do not allow (see the module docstring)."""
-    if request.endpoint is None or request.endpoint == "static":
-        return None  # unknown URL (404/405 follow) or a static file
+    if request.endpoint is None or request.endpoint in ALWAYS_OPEN:
+        return None  # unknown URL (404/405 follow), a static file or the liveness probe
     view = current_app.view_functions.get(request.endpoint)
     if getattr(view, "access_rule", None) == "public":
         return None
@@ -173,6 +191,9 @@ def _gate() -> Any:
 def init_app(app: Flask) -> None:
     """Register the gate in front of every view and expose `current_user` and `user_can` to templates."""
     app.before_request(_gate)
+    # Browsers then send the session cookie on top-level navigation from other sites but not on their
+    # form posts or scripted requests: a second line behind the CSRF token. Strict may be set instead.
+    app.config["SESSION_COOKIE_SAMESITE"] = app.config.get("SESSION_COOKIE_SAMESITE") or "Lax"
 
     @app.context_processor
     def _who() -> dict[str, Any]:

@@ -32,14 +32,38 @@ from stockroom.standardization import (
     standardize_secondary,
 )
 from stockroom.uncertainty import InputQuantity
-from stockroom.web.inputs import MISSING, Parser, field_path
+from stockroom.web.access import anonymous_response, current_user, public
+from stockroom.web.inputs import MISSING, Parser, field_path, number_problem
 
 bp = Blueprint("preview", __name__)
 
+URL_RULE = "/api/v1/standardizations/preview"
 MAX_REPLICATES = 50
 # A preview may ask for more draws than the default, up to the 10^6 the benchmark times.
 MAX_DRAWS = 1_000_000
 MIN_DRAWS = 1_000
+# Upper bounds well past any bench titration; they keep nonsense (a mass of 1e300 g) out of the
+# arithmetic so every answer stays finite.
+MAX_MASS_G = 1000.0
+MAX_VOLUME_ML = 1000.0
+MAX_MOLARITY = 20.0
+MAX_U_MASS_G = 1.0
+MAX_U_VOLUME_ML = 10.0
+# Smallest amounts that can be measured at all: a hundredth of a 0.1 mg balance digit, a
+# thousandth of a mL. Below them the arithmetic would reach infinities rather than an answer.
+MIN_MASS_G = 1e-5
+MIN_VOLUME_ML = 1e-3
+# A standard assaying under half its label is not a primary standard (common practice: they are
+# >= 99.9 %); the floor only keeps absurd fractions out.
+MIN_PURITY = 0.5
+
+
+def _measurable(p: Parser, value: float | None, field: str, smallest: float, unit: str) -> float | None:
+    """value, unless it is positive but below what can be measured (an error is then recorded)."""
+    if value is not None and value < smallest:
+        p.error(field, f"is too small to measure: must be at least {smallest:g} {unit}")
+        return None
+    return value
 
 _COMMON_KEYS = {
     "titrant", "replicates", "u_volume_ml", "u_repeatability_rel", "nominal_molarity", "exclusions",
@@ -60,8 +84,14 @@ def _error_response(errors: list[FieldError], status: int) -> Any:
     return jsonify({"errors": [e.as_dict() for e in errors]}), status
 
 
-@bp.post("/api/v1/standardizations/preview")
+@bp.post(URL_RULE)
+@public
 def preview() -> Any:
+    # Storing nothing, a preview is a read in all but method: open to anonymous requests exactly
+    # when OPEN_READS opens reads, otherwise it needs a signed-in user (the access gate lets only
+    # `public` views take anonymous POSTs, so the rule is applied here).
+    if not current_app.config.get("OPEN_READS", True) and current_user() is None:
+        return anonymous_response()
     raw = request.get_data(cache=True)
     try:
         data = json.loads(raw)
@@ -108,9 +138,9 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
     titrant = _titrant(p, data.get("titrant", MISSING), "titrant")
     common = {
         "nominal_molarity": p.number(data.get("nominal_molarity", MISSING), "nominal_molarity",
-                                     required=False, gt=0, unit="mol/L"),
+                                     required=False, gt=0, le=MAX_MOLARITY, unit="mol/L"),
         "u_volume_ml": p.number(data.get("u_volume_ml", MISSING), "u_volume_ml", required=False, ge=0,
-                                unit="mL"),
+                                le=MAX_U_VOLUME_ML, unit="mL"),
         "u_repeatability_rel": p.number(data.get("u_repeatability_rel", MISSING), "u_repeatability_rel",
                                         required=False, ge=0, lt=1),
         "burette_capacity_ml": p.number(data.get("burette_capacity_ml", MISSING), "burette_capacity_ml",
@@ -175,9 +205,13 @@ def _titre(p: Parser, obj: dict[str, Any], base: str) -> float | None:
         if has_readings:
             p.error(field_path(base, "volume_ml"), "give volume_ml, or initial_ml and final_ml, not both")
             return None
-        return p.number(obj.get("volume_ml", MISSING), field_path(base, "volume_ml"), gt=0, unit="mL")
-    initial = p.number(obj.get("initial_ml", MISSING), field_path(base, "initial_ml"), ge=0, unit="mL")
-    final = p.number(obj.get("final_ml", MISSING), field_path(base, "final_ml"), gt=0, unit="mL")
+        return _measurable(p, p.number(obj.get("volume_ml", MISSING), field_path(base, "volume_ml"), gt=0,
+                                       le=MAX_VOLUME_ML, unit="mL"),
+                           field_path(base, "volume_ml"), MIN_VOLUME_ML, "mL")
+    initial = p.number(obj.get("initial_ml", MISSING), field_path(base, "initial_ml"), ge=0,
+                       le=MAX_VOLUME_ML, unit="mL")
+    final = p.number(obj.get("final_ml", MISSING), field_path(base, "final_ml"), gt=0,
+                     le=MAX_VOLUME_ML, unit="mL")
     if initial is None or final is None:
         return None
     try:
@@ -185,7 +219,7 @@ def _titre(p: Parser, obj: dict[str, Any], base: str) -> float | None:
     except ReadingError as exc:
         p.error(field_path(base, "final_ml"), exc.message)
         return None
-    if v <= 0:
+    if v < MIN_VOLUME_ML:
         p.error(field_path(base, "final_ml"), "must be greater than initial_ml (nothing was delivered)")
         return None
     return v
@@ -193,10 +227,16 @@ def _titre(p: Parser, obj: dict[str, Any], base: str) -> float | None:
 
 def _blank_and_temperature(p: Parser, obj: dict[str, Any], base: str) -> tuple[float | None, float | None]:
     blank = p.number(obj.get("blank_ml", MISSING), field_path(base, "blank_ml"), required=False, ge=0,
+                     le=MAX_VOLUME_ML,
                      unit="mL")
     temperature = p.number(obj.get("temperature_c", MISSING), field_path(base, "temperature_c"),
                            required=False, ge=5, le=40, unit="°C")
     return blank, temperature
+
+
+def _check_blank(p: Parser, base: str, volume: float | None, blank: float | None) -> None:
+    if volume is not None and blank is not None and volume - blank < MIN_VOLUME_ML:
+        p.error(field_path(base, "blank_ml"), f"must be less than the titre ({volume:g} mL)")
 
 
 def _primary_replicates(p: Parser, reps_raw: list[Any] | None) -> list[Replicate]:
@@ -211,25 +251,39 @@ def _primary_replicates(p: Parser, reps_raw: list[Any] | None) -> list[Replicate
         if "gross_g" in obj or "tare_g" in obj:
             if "mass_g" in obj:
                 p.error(field_path(base, "mass_g"), "give mass_g, or gross_g and tare_g, not both")
-            gross = p.number(obj.get("gross_g", MISSING), field_path(base, "gross_g"), gt=0, unit="g")
-            tare = p.number(obj.get("tare_g", MISSING), field_path(base, "tare_g"), ge=0, unit="g")
-            if gross is not None and tare is not None and gross <= tare:
+            gross = p.number(obj.get("gross_g", MISSING), field_path(base, "gross_g"), gt=0,
+                             le=MAX_MASS_G, unit="g")
+            tare = p.number(obj.get("tare_g", MISSING), field_path(base, "tare_g"), ge=0,
+                            le=MAX_MASS_G, unit="g")
+            if gross is not None and tare is not None and gross - tare < MIN_MASS_G:
                 p.error(field_path(base, "gross_g"), "must be greater than tare_g (mass by difference)")
         else:
-            mass = p.number(obj.get("mass_g", MISSING), field_path(base, "mass_g"), gt=0, unit="g")
+            mass = _measurable(p, p.number(obj.get("mass_g", MISSING), field_path(base, "mass_g"), gt=0,
+                                           le=MAX_MASS_G, unit="g"),
+                               field_path(base, "mass_g"), MIN_MASS_G, "g")
         volume = _titre(p, obj, base)
         blank, temperature = _blank_and_temperature(p, obj, base)
-        if volume is not None and blank is not None and blank >= volume:
-            p.error(field_path(base, "blank_ml"), f"must be less than the titre ({volume:g} mL)")
+        _check_blank(p, base, volume, blank)
         if not p.has_error(base):
-            out.append(Replicate(volume_ml=volume, mass_g=mass, gross_g=gross, tare_g=tare,  # type: ignore[arg-type]
+            assert volume is not None  # _titre records an error under base whenever it returns None
+            out.append(Replicate(volume_ml=volume, mass_g=mass, gross_g=gross, tare_g=tare,
                                  blank_ml=blank or 0.0, temperature_c=temperature))
     return out
 
 
 def _purity(p: Parser, data: dict[str, Any]) -> tuple[float | None, InputQuantity | None]:
     """The purity (mass fraction) and, when an uncertainty form was given, the InputQuantity."""
-    value = p.number(data.get("purity", MISSING), "purity", gt=0, le=1)
+    raw = data.get("purity", MISSING)
+    value = p.number(raw, "purity", gt=0, le=1)
+    if value is None and p.has_error("purity"):
+        given, _ = number_problem(raw)
+        if given is not None and 1 < given <= 100:
+            p.errors[-1] = FieldError("purity", "must be greater than 0 and at most 1: a mass fraction, "
+                                                "so write 0.9995 for 99.95 %")
+    elif value is not None and value < MIN_PURITY:
+        p.error("purity", f"must be at least {MIN_PURITY:g}: a primary standard is nearly pure "
+                          "(a mass fraction such as 0.9995)")
+        value = None
     return value, _purity_quantity(p, data, value)
 
 
@@ -275,11 +329,12 @@ def _primary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | None,
         except StockroomError as exc:
             p.error("standard", exc.message)
     purity_value, purity = _purity(p, data)
-    u_mass = p.number(data.get("u_mass_g", MISSING), "u_mass_g", required=False, ge=0, unit="g")
+    u_mass = p.number(data.get("u_mass_g", MISSING), "u_mass_g", required=False, ge=0,
+                      le=MAX_U_MASS_G, unit="g")
     buoyancy = p.boolean(data.get("buoyancy", MISSING), "buoyancy", default=True)
-    mm_value = p.number(data.get("molar_mass_g_mol", MISSING), "molar_mass_g_mol", required=False, gt=0,
+    mm_value = p.number(data.get("molar_mass_g_mol", MISSING), "molar_mass_g_mol", required=False, gt=0, le=5000,
                         unit="g/mol")
-    mm_u = p.number(data.get("u_molar_mass_g_mol", MISSING), "u_molar_mass_g_mol", required=False, ge=0,
+    mm_u = p.number(data.get("u_molar_mass_g_mol", MISSING), "u_molar_mass_g_mol", required=False, ge=0, le=10,
                     unit="g/mol")
     if mm_u is not None and "molar_mass_g_mol" not in data:
         p.error("u_molar_mass_g_mol", "goes with molar_mass_g_mol")
@@ -326,8 +381,9 @@ def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | Non
     ref_titrant: chemistry.Titrant | None = None
     if ref_obj is not None:
         p.known_keys(ref_obj, REFERENCE_KEYS, "reference")
-        ref_molarity = p.number(ref_obj.get("molarity", MISSING), "reference.molarity", gt=0, unit="mol/L")
-        ref_u = p.number(ref_obj.get("u", MISSING), "reference.u", ge=0, unit="mol/L")
+        ref_molarity = p.number(ref_obj.get("molarity", MISSING), "reference.molarity", gt=0,
+                                  le=MAX_MOLARITY, unit="mol/L")
+        ref_u = p.number(ref_obj.get("u", MISSING), "reference.u", ge=0, le=1, unit="mol/L")
         if "titrant" in ref_obj:
             ref_titrant = _titrant(p, ref_obj["titrant"], "reference.titrant")
         elif "standard" in data:
@@ -341,7 +397,8 @@ def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | Non
         except StockroomError as exc:
             p.error("reference.titrant" if ref_obj and "titrant" in ref_obj else "standard", exc.message)
     aliquot_of = p.choice(data.get("aliquot_of", MISSING), "aliquot_of", ("new", "reference"), default="new")
-    u_aliquot = p.number(data.get("u_aliquot_ml", MISSING), "u_aliquot_ml", required=False, ge=0, unit="mL")
+    u_aliquot = p.number(data.get("u_aliquot_ml", MISSING), "u_aliquot_ml", required=False, ge=0,
+                         le=MAX_U_VOLUME_ML, unit="mL")
     replicates: list[AliquotReplicate] = []
     for i, item in enumerate(reps_raw or ()):
         base = field_path("replicates", i)
@@ -349,11 +406,12 @@ def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | Non
         if obj is None:
             continue
         p.known_keys(obj, SECONDARY_REPLICATE_KEYS, base)
-        aliquot = p.number(obj.get("aliquot_ml", MISSING), field_path(base, "aliquot_ml"), gt=0, unit="mL")
+        aliquot = _measurable(p, p.number(obj.get("aliquot_ml", MISSING), field_path(base, "aliquot_ml"),
+                                          gt=0, le=MAX_VOLUME_ML, unit="mL"),
+                              field_path(base, "aliquot_ml"), MIN_VOLUME_ML, "mL")
         volume = _titre(p, obj, base)
         blank, temperature = _blank_and_temperature(p, obj, base)
-        if volume is not None and blank is not None and blank >= volume:
-            p.error(field_path(base, "blank_ml"), f"must be less than the titre ({volume:g} mL)")
+        _check_blank(p, base, volume, blank)
         if not p.has_error(base):
             assert aliquot is not None and volume is not None
             replicates.append(AliquotReplicate(aliquot_ml=aliquot, volume_ml=volume, blank_ml=blank or 0.0,
