@@ -166,6 +166,10 @@ BAD_CASES = [
     (("purity",), "abc", "purity", "plain decimal"),
     (("purity",), True, "purity", "not true"),
     (("purity",), KeyError, "purity", "is required"),
+    (("purity",), 99.95, "purity", "write 0.9995 for 99.95 %"),
+    (("purity",), 0.2, "purity", "must be at least 0.5"),
+    (("replicates", 3, "volume_ml"), 1e-9, "replicates[3].volume_ml", "too small to measure"),
+    (("replicates", 0, "mass_g"), 1e-300, "replicates[0].mass_g", "too small to measure"),
     (("replicates", 0, "mass_g"), -0.8, "replicates[0].mass_g", "must be greater than 0 g"),
     (("replicates", 0, "mass_g"), 0, "replicates[0].mass_g", "must be greater than 0 g"),
     (("replicates", 0, "mass_g"), "0,8123", "replicates[0].mass_g", "use a point"),
@@ -237,6 +241,13 @@ def test_secondary_errors(client):
     base = {"titrant": "HCl", "reference": {"molarity": 0.1, "u": 0.0001, "titrant": "NaOH"},
             "replicates": [{"aliquot_ml": 25, "volume_ml": 24.9}]}
     assert post(client, base).status_code == 200
+    # The reference titrant may be named by the top-level `standard` instead (H2SO4 against NaOH:
+    # ν = 1/2 from the equivalents, chemistry.stoichiometric_factor).
+    other = {"titrant": "H2SO4", "standard": "NaOH", "reference": {"molarity": 0.1, "u": 0.0001},
+             "replicates": [{"aliquot_ml": 25, "volume_ml": 24.9}]}
+    j = post(client, other).get_json()
+    assert j["reference"]["nu"] == 0.5
+    assert j["molarity"] == pytest.approx(0.1 * 0.5 * 24.9 / 25, rel=1e-12)
     cases = [
         ({"reference": {"molarity": 0.1, "titrant": "NaOH"}}, "reference.u"),
         ({"reference": {"molarity": -1, "u": 0.0001, "titrant": "NaOH"}}, "reference.molarity"),
@@ -247,6 +258,7 @@ def test_secondary_errors(client):
         ({"replicates": [{"volume_ml": 24.9}]}, "replicates[0].aliquot_ml"),
         ({"aliquot_of": "sideways"}, "aliquot_of"),
         ({"purity": 1.0}, "purity"),
+        ({"reference": {"molarity": 1e-30, "u": 0.0, "titrant": "NaOH"}}, "reference.molarity"),
     ]
     for change, field in cases:
         r = post(client, base | change)

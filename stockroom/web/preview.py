@@ -56,14 +56,8 @@ MIN_VOLUME_ML = 1e-3
 # A standard assaying under half its label is not a primary standard (common practice: they are
 # >= 99.9 %); the floor only keeps absurd fractions out.
 MIN_PURITY = 0.5
+MIN_MOLARITY = 1e-6
 
-
-def _measurable(p: Parser, value: float | None, field: str, smallest: float, unit: str) -> float | None:
-    """value, unless it is positive but below what can be measured (an error is then recorded)."""
-    if value is not None and value < smallest:
-        p.error(field, f"is too small to measure: must be at least {smallest:g} {unit}")
-        return None
-    return value
 
 _COMMON_KEYS = {
     "titrant", "replicates", "u_volume_ml", "u_repeatability_rel", "nominal_molarity", "exclusions",
@@ -78,6 +72,14 @@ PRIMARY_REPLICATE_KEYS = {"mass_g", "gross_g", "tare_g", "volume_ml", "initial_m
                           "temperature_c"}
 SECONDARY_REPLICATE_KEYS = {"aliquot_ml", "volume_ml", "initial_ml", "final_ml", "blank_ml", "temperature_c"}
 REFERENCE_KEYS = {"molarity", "u", "titrant"}
+
+
+def _measurable(p: Parser, value: float | None, field: str, smallest: float, unit: str) -> float | None:
+    """value, unless it is positive but below what can be measured (an error is then recorded)."""
+    if value is not None and value < smallest:
+        p.error(field, f"is too small to measure: must be at least {smallest:g} {unit}")
+        return None
+    return value
 
 
 def _error_response(errors: list[FieldError], status: int) -> Any:
@@ -137,8 +139,9 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
     rule = _rule(p, data, config)
     titrant = _titrant(p, data.get("titrant", MISSING), "titrant")
     common = {
-        "nominal_molarity": p.number(data.get("nominal_molarity", MISSING), "nominal_molarity",
-                                     required=False, gt=0, le=MAX_MOLARITY, unit="mol/L"),
+        "nominal_molarity": _measurable(p, p.number(data.get("nominal_molarity", MISSING), "nominal_molarity",
+                                                    required=False, gt=0, le=MAX_MOLARITY, unit="mol/L"),
+                                        "nominal_molarity", MIN_MOLARITY, "mol/L"),
         "u_volume_ml": p.number(data.get("u_volume_ml", MISSING), "u_volume_ml", required=False, ge=0,
                                 le=MAX_U_VOLUME_ML, unit="mL"),
         "u_repeatability_rel": p.number(data.get("u_repeatability_rel", MISSING), "u_repeatability_rel",
@@ -381,8 +384,9 @@ def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | Non
     ref_titrant: chemistry.Titrant | None = None
     if ref_obj is not None:
         p.known_keys(ref_obj, REFERENCE_KEYS, "reference")
-        ref_molarity = p.number(ref_obj.get("molarity", MISSING), "reference.molarity", gt=0,
-                                  le=MAX_MOLARITY, unit="mol/L")
+        ref_molarity = _measurable(p, p.number(ref_obj.get("molarity", MISSING), "reference.molarity", gt=0,
+                                               le=MAX_MOLARITY, unit="mol/L"),
+                                   "reference.molarity", MIN_MOLARITY, "mol/L")
         ref_u = p.number(ref_obj.get("u", MISSING), "reference.u", ge=0, le=1, unit="mol/L")
         if "titrant" in ref_obj:
             ref_titrant = _titrant(p, ref_obj["titrant"], "reference.titrant")
