@@ -28,6 +28,7 @@ from stockroom import corrections, settings, stats
 from stockroom.errors import FieldError, InvalidInput, StockroomError
 from stockroom.uncertainty import (
     Z95,
+    Factor,
     GumResult,
     InputQuantity,
     MonteCarloResult,
@@ -517,10 +518,19 @@ def _low_titre_warning(titre: float, capacity: float) -> str | None:
     return None
 
 
+def _matching_constant(c_bar: float, factors: Sequence[Factor]) -> float:
+    """K with K·Π X_i^e_i = c̄: the exact numbers (1000, ν, buoyancy and 20 °C factors, the
+    effective-quantity ratios) lumped so that the product model returns the mean exactly."""
+    prod = 1.0
+    for f in factors:
+        prod *= f.value ** f.exponent
+    return c_bar / prod
+
+
 def _finish(kind: str, molarities: list[float], included: list[int], excluded: dict[int, str],
-            per_rep: list[dict[str, Any]], model_factors: list[Any], constant_for: Any,
-            nominal: float | None, instruments: Instruments, rule: stats.AcceptanceRule,
-            stated_rep: float | None, warnings: list[str], alt_hint_for: Any) -> StandardizationResult:
+            per_rep: list[dict[str, Any]], model_factors: list[Factor], nominal: float | None,
+            instruments: Instruments, rule: stats.AcceptanceRule, stated_rep: float | None,
+            warnings: list[str], alt_hint_for: Any) -> StandardizationResult:
     """Statistics, model, GUM, Monte Carlo and verdict shared by both kinds of run."""
     inc_values = [molarities[i] for i in included]
     summary = stats.summarize(inc_values)
@@ -532,7 +542,7 @@ def _finish(kind: str, molarities: list[float], included: list[int], excluded: d
     reasons: list[str] = []
     R = _repeatability(summary, stated_rep, rule, warnings)
     factors = [*model_factors, factor("repeatability", 1, R)]
-    constant = constant_for(summary.mean, factors)
+    constant = _matching_constant(summary.mean, factors)
     model = ProductModel(constant, tuple(factors), UNIT, "c")
     gum = combine(model, instruments.coverage_factor)
     mc = monte_carlo(model, instruments.monte_carlo_draws, instruments.monte_carlo_seed)
@@ -549,7 +559,7 @@ def _finish(kind: str, molarities: list[float], included: list[int], excluded: d
     for r in replicates:
         warnings.extend(f"replicate {r.index + 1}: {w}" for w in r.warnings)
     return StandardizationResult(
-        kind=kind, molarity=gum.value, u=gum.u, U=gum.U, k=gum.k, n=summary.n, n_total=len(molarities),
+        kind=kind, molarity=summary.mean, u=gum.u, U=gum.U, k=gum.k, n=summary.n, n_total=len(molarities),
         summary=summary, replicates=replicates, screening=tuple(screening), gum=gum, monte_carlo=mc,
         accepted=not reasons, reasons=tuple(reasons), warnings=tuple(warnings), nominal_ratio=ratio,
         model=model)
@@ -703,15 +713,7 @@ def standardize_primary(run: PrimaryRun, instruments: Instruments,
         factor("titre volume", -1, *_titre_terms(v_star, blanks, instruments, run.u_volume_ml), unit="mL"),
     ]
 
-    def constant_for(c_bar: float, factors: list[Any]) -> float:
-        # K = c̄·M·V*/(m*·P·R): the exact numbers (1000, ν, buoyancy and 20 °C factors) lumped so the
-        # product model returns the mean exactly.
-        prod = 1.0
-        for f in factors:
-            prod *= f.value ** f.exponent
-        return c_bar / prod
-
-    return _finish("primary", molarities, included, excluded, per_rep, model_factors, constant_for,
+    return _finish("primary", molarities, included, excluded, per_rep, model_factors,
                    run.nominal_molarity, instruments, rule, run.u_repeatability_rel, warnings,
                    _alternative_hint(run))
 
@@ -810,12 +812,77 @@ def standardize_secondary(run: SecondaryRun, instruments: Instruments,
         factor("aliquot volume", -e_titre, *aliquot_terms, unit="mL"),
     ]
 
-    def constant_for(c_bar: float, factors: list[Any]) -> float:
-        prod = 1.0
-        for f in factors:
-            prod *= f.value ** f.exponent
-        return c_bar / prod
-
-    return _finish("secondary", molarities, included, excluded, per_rep, model_factors, constant_for,
+    return _finish("secondary", molarities, included, excluded, per_rep, model_factors,
                    run.nominal_molarity, instruments, rule, run.u_repeatability_rel, warnings,
                    lambda c, nominal: None)
+
+
+# --------------------------------------------------------------------------- serialization
+
+
+def _f(x: float | None) -> float | None:
+    """A float for JSON: None for missing or non-finite (JSON has no NaN)."""
+    if x is None or not math.isfinite(x):
+        return None
+    return float(x)
+
+
+def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None = None) -> dict[str, Any]:
+    """A JSON-ready dict of a result: the preview API's body and the snapshot stored with a run.
+
+    Numbers in mol/L, mL, g; shares as fractions; non-finite numbers become None.
+    """
+    s = result.summary
+    gum = result.gum
+    lines_by_factor: dict[str, list[Any]] = {}
+    for line in gum.lines:
+        lines_by_factor.setdefault(line.factor, []).append(line)
+    budget = [
+        {
+            "source": f.name, "value": _f(f.value), "u": _f(f.u), "unit": f.unit, "u_rel": _f(f.u_rel),
+            "contribution": _f(f.contribution), "contribution_rel": _f(f.contribution_rel), "share": _f(f.share),
+            "components": [
+                {"source": ln.source, "u": _f(ln.u), "unit": ln.unit, "u_rel": _f(ln.u_rel),
+                 "distribution": ln.distribution, "derivation": ln.derivation, "share": _f(ln.share)}
+                for ln in lines_by_factor.get(f.name, []) if ln.u > 0
+            ],
+        }
+        for f in gum.factors
+    ]
+    mc = result.monte_carlo
+    body: dict[str, Any] = {
+        "kind": result.kind,
+        **(extra or {}),
+        "unit": "mol/L",
+        "reference_temperature_c": REFERENCE_TEMPERATURE_C,
+        "molarity": _f(result.molarity),
+        "u": _f(result.u),
+        "u_rel": _f(result.u_rel),
+        "U": _f(result.U),
+        "k": _f(result.k),
+        "n": result.n,
+        "n_total": result.n_total,
+        "sd": _f(s.sd),
+        "rsd": _f(s.rsd),
+        "ci95": [_f(s.ci_low), _f(s.ci_high)] if s.ci_low is not None else [None, None],
+        "replicates": [
+            {"index": r.index, "molarity": _f(r.molarity), "outlier": r.outlier,
+             "outlier_tests": list(r.outlier_tests), "excluded": r.excluded,
+             "exclusion_reason": r.exclusion_reason, "mass_g": _f(r.mass_g), "titre_ml": _f(r.titre_ml),
+             "aliquot_ml": _f(r.aliquot_ml), "warnings": list(r.warnings)}
+            for r in result.replicates
+        ],
+        "screening": [
+            {"test": o.test, "applicable": o.applicable, "index": o.index, "statistic": _f(o.statistic),
+             "critical": _f(o.critical), "outlier": o.outlier, "note": o.note}
+            for o in result.screening
+        ],
+        "budget": budget,
+        "monte_carlo": {"u": _f(mc.u), "mean": _f(mc.mean), "interval95": [_f(mc.low), _f(mc.high)],
+                        "draws": mc.draws, "seed": mc.seed},
+        "nominal_ratio": _f(result.nominal_ratio),
+        "accepted": result.accepted,
+        "reasons": list(result.reasons),
+        "warnings": list(result.warnings),
+    }
+    return body

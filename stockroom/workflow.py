@@ -7,7 +7,6 @@ web forms, the CSV import and the demo loader all go through the same path and s
 from __future__ import annotations
 
 import datetime as dt
-import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -20,43 +19,9 @@ from stockroom.standardization import StandardizationResult
 from stockroom.uncertainty import InputQuantity
 
 
-def _num(x: float | None) -> float | None:
-    return None if x is None or (isinstance(x, float) and not math.isfinite(x)) else x
-
-
 def snapshot(result: StandardizationResult) -> dict[str, Any]:
-    """A JSON-ready dict of a computed run (what is stored with the run and what the API returns)."""
-    s = result.summary
-    return {
-        "kind": result.kind,
-        "molarity": result.molarity, "u": result.u, "U": result.U, "k": result.k, "unit": "mol/L",
-        "reference_temperature_c": standardization.REFERENCE_TEMPERATURE_C,
-        "n": result.n, "n_total": result.n_total,
-        "mean": s.mean, "sd": _num(s.sd), "rsd": _num(s.rsd),
-        "ci95": [s.ci_low, s.ci_high] if s.ci_low is not None else [None, None],
-        "replicates": [
-            {"index": r.index, "molarity": r.molarity, "mass_g": r.mass_g, "titre_ml": r.titre_ml,
-             "aliquot_ml": r.aliquot_ml, "outlier": r.outlier, "outlier_tests": list(r.outlier_tests),
-             "excluded": r.excluded, "exclusion_reason": r.exclusion_reason, "warnings": list(r.warnings)}
-            for r in result.replicates
-        ],
-        "screening": [
-            {"test": o.test, "applicable": o.applicable, "index": o.index, "statistic": o.statistic,
-             "critical": o.critical, "outlier": o.outlier, "note": o.note}
-            for o in result.screening
-        ],
-        "budget": [
-            {"source": b.source, "factor": b.factor, "value": b.value, "u": b.u, "unit": b.unit,
-             "distribution": b.distribution, "derivation": b.derivation, "u_rel": b.u_rel,
-             "contribution": b.contribution, "share": b.share}
-            for b in result.gum.lines
-        ],
-        "monte_carlo": {"mean": result.monte_carlo.mean, "u": result.monte_carlo.u,
-                        "interval95": [result.monte_carlo.low, result.monte_carlo.high],
-                        "draws": result.monte_carlo.draws},
-        "accepted": result.accepted, "reasons": list(result.reasons), "warnings": list(result.warnings),
-        "nominal_ratio": result.nominal_ratio,
-    }
+    """A JSON-ready dict of a computed run (stored with the run; the same body the preview API returns)."""
+    return standardization.result_as_dict(result)
 
 
 def rule_for(policy: ReagentPolicy) -> stats.AcceptanceRule:

@@ -9,7 +9,6 @@ from the app config (the setting names in stockroom.settings).
 from __future__ import annotations
 
 import json
-import math
 from typing import Any
 
 from flask import Blueprint, current_app, jsonify, request
@@ -28,6 +27,7 @@ from stockroom.standardization import (
     StandardizationResult,
     StandardSpec,
     acceptance_rule_from_settings,
+    result_as_dict,
     standardize_primary,
     standardize_secondary,
 )
@@ -116,7 +116,7 @@ def preview() -> Any:
         # Only reachable with valid-looking numbers whose arithmetic still fails (e.g. overflow);
         # the answer stays a 422 naming the request as a whole rather than a 500.
         return _error_response([FieldError("_", f"these values cannot be computed: {exc}")], 422)
-    return jsonify(result_json(result, extra))
+    return jsonify(result_as_dict(result, extra))
 
 
 # --------------------------------------------------------------------------- request → run
@@ -433,68 +433,3 @@ def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | Non
 
 
 # --------------------------------------------------------------------------- result → JSON
-
-
-def _f(x: float | None) -> float | None:
-    """A float for JSON: None for missing or non-finite (JSON has no NaN)."""
-    if x is None or not math.isfinite(x):
-        return None
-    return float(x)
-
-
-def result_json(result: StandardizationResult, extra: dict[str, Any] | None = None) -> dict[str, Any]:
-    """The preview response body for a StandardizationResult (numbers in mol/L, mL, g; shares as fractions)."""
-    s = result.summary
-    gum = result.gum
-    lines_by_factor: dict[str, list[Any]] = {}
-    for line in gum.lines:
-        lines_by_factor.setdefault(line.factor, []).append(line)
-    budget = [
-        {
-            "source": f.name, "value": _f(f.value), "u": _f(f.u), "unit": f.unit, "u_rel": _f(f.u_rel),
-            "contribution": _f(f.contribution), "contribution_rel": _f(f.contribution_rel), "share": _f(f.share),
-            "components": [
-                {"source": ln.source, "u": _f(ln.u), "unit": ln.unit, "u_rel": _f(ln.u_rel),
-                 "distribution": ln.distribution, "derivation": ln.derivation, "share": _f(ln.share)}
-                for ln in lines_by_factor.get(f.name, []) if ln.u > 0
-            ],
-        }
-        for f in gum.factors
-    ]
-    mc = result.monte_carlo
-    body: dict[str, Any] = {
-        "kind": result.kind,
-        **(extra or {}),
-        "unit": "mol/L",
-        "reference_temperature_c": 20.0,
-        "molarity": _f(result.molarity),
-        "u": _f(result.u),
-        "u_rel": _f(result.u_rel),
-        "U": _f(result.U),
-        "k": _f(result.k),
-        "n": result.n,
-        "n_total": result.n_total,
-        "sd": _f(s.sd),
-        "rsd": _f(s.rsd),
-        "ci95": [_f(s.ci_low), _f(s.ci_high)] if s.ci_low is not None else [None, None],
-        "replicates": [
-            {"index": r.index, "molarity": _f(r.molarity), "outlier": r.outlier,
-             "outlier_tests": list(r.outlier_tests), "excluded": r.excluded,
-             "exclusion_reason": r.exclusion_reason, "mass_g": _f(r.mass_g), "titre_ml": _f(r.titre_ml),
-             "aliquot_ml": _f(r.aliquot_ml), "warnings": list(r.warnings)}
-            for r in result.replicates
-        ],
-        "screening": [
-            {"test": o.test, "applicable": o.applicable, "index": o.index, "statistic": _f(o.statistic),
-             "critical": _f(o.critical), "outlier": o.outlier, "note": o.note}
-            for o in result.screening
-        ],
-        "budget": budget,
-        "monte_carlo": {"u": _f(mc.u), "mean": _f(mc.mean), "interval95": [_f(mc.low), _f(mc.high)],
-                        "draws": mc.draws, "seed": mc.seed},
-        "nominal_ratio": _f(result.nominal_ratio),
-        "accepted": result.accepted,
-        "reasons": list(result.reasons),
-        "warnings": list(result.warnings),
-    }
-    return body

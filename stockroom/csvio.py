@@ -1,0 +1,168 @@
+"""stockroom's CSV layouts: the replicate sheet (import and export) and the batch history export.
+
+Replicate sheet, one row per replicate, header row required, columns in any order, unknown columns
+refused, `#` lines are comments:
+
+    replicate,gross_g,tare_g,mass_g,aliquot_ml,initial_ml,final_ml,blank_ml,temperature_c,exclude_reason
+
+Masses in g (either gross_g and tare_g for mass by difference, or mass_g), volumes in mL, burette
+readings as read, temperature in °C; decimal point only. `aliquot_ml` is for a run against a
+certified titrant batch (then the mass columns stay empty). A non-empty `exclude_reason` leaves that
+replicate out of the result, with that reason.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+SHEET_COLUMNS = ("replicate", "gross_g", "tare_g", "mass_g", "aliquot_ml", "initial_ml", "final_ml", "blank_ml",
+                 "temperature_c", "exclude_reason")
+NUMERIC_COLUMNS = SHEET_COLUMNS[1:9]
+
+
+@dataclass(frozen=True)
+class SheetRow:
+    """One replicate read from a sheet: its line number and raw text values by column."""
+
+    line: int
+    values: dict[str, str]
+
+
+@dataclass
+class Sheet:
+    """A parsed replicate sheet: rows, and problems by line (line 0 is the file as a whole)."""
+
+    rows: list[SheetRow] = field(default_factory=list)
+    problems: list[tuple[int, str]] = field(default_factory=list)
+
+    @property
+    def ok(self) -> bool:
+        return not self.problems
+
+
+def read_sheet(text: str, max_rows: int) -> Sheet:
+    """Read a replicate sheet's text; structure problems are reported per line, values stay text.
+
+    The numbers are checked later by the same rules as the run form, so a sheet and a typed run can
+    never be judged differently.
+    """
+    sheet = Sheet()
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    lines = [(i, line) for i, line in enumerate(text.splitlines(), start=1)
+             if line.strip() and not line.lstrip().startswith("#")]
+    if not lines:
+        sheet.problems.append((0, "the file has no header row and no data"))
+        return sheet
+    reader = csv.reader([line for _, line in lines])
+    try:
+        header = [h.strip().lower() for h in next(reader)]
+    except csv.Error as exc:
+        sheet.problems.append((lines[0][0], f"the header row cannot be read: {exc}"))
+        return sheet
+    unknown = [h for h in header if h not in SHEET_COLUMNS]
+    if unknown:
+        sheet.problems.append((lines[0][0], "unknown column(s) " + ", ".join(repr(h) for h in unknown)
+                               + "; the columns are " + ", ".join(SHEET_COLUMNS)))
+    if len(set(header)) != len(header):
+        sheet.problems.append((lines[0][0], "a column name appears twice in the header"))
+    if not {"initial_ml", "final_ml"} <= set(header):
+        sheet.problems.append((lines[0][0], "the header needs at least initial_ml and final_ml"))
+    if sheet.problems:
+        return sheet
+    data = lines[1:]
+    if len(data) > max_rows:
+        sheet.problems.append((0, f"the file has {len(data)} data rows; at most {max_rows} are accepted"))
+        return sheet
+    for (line_no, _), cells in zip(data, reader, strict=False):
+        if len(cells) != len(header):
+            sheet.problems.append((line_no, f"has {len(cells)} cells; the header has {len(header)}"))
+            continue
+        sheet.rows.append(SheetRow(line_no, {h: c.strip() for h, c in zip(header, cells, strict=True)}))
+    if not sheet.rows and not sheet.problems:
+        sheet.problems.append((0, "the file has a header but no replicate rows"))
+    return sheet
+
+
+def _fmt(value: Any) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return f"{value:.10g}"
+    return str(value)
+
+
+def write_run(run: Mapping[str, Any], batch: Mapping[str, Any]) -> str:
+    """One run as a replicate sheet (re-importable) followed by its computed molarities, as CSV text."""
+    out = io.StringIO()
+    current = run["current"]
+    out.write(f"# stockroom run {run['id']} of batch {batch['code']} ({batch['reagent']}, "
+              f"nominal {batch['nominal_molarity']} mol/L)\n")
+    out.write(f"# {run['purpose']} / {run['method']} on {run['performed_on']} by {run['analyst']}\n")
+    out.write(f"# result: {current['molarity']:.6f} mol/L, U = {current['expanded_u']:.6f} mol/L "
+              f"(k = {current['k']:g}), n = {current['n']}, at 20 °C\n")
+    w = csv.writer(out, lineterminator="\n")
+    w.writerow([*SHEET_COLUMNS, "molarity_mol_l"])
+    excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
+    for rep in run["replicates"]:
+        w.writerow([rep["position"], *(_fmt(rep.get(c)) for c in NUMERIC_COLUMNS),
+                    excluded.get(rep["position"], ""), _fmt(rep["molarity"])])
+    return out.getvalue()
+
+
+HISTORY_COLUMNS = ("batch", "reagent", "nominal_mol_l", "run_id", "purpose", "method", "performed_on", "analyst",
+                   "standard_or_reference", "n", "molarity_mol_l", "U_mol_l", "k", "rsd_percent", "decision",
+                   "decision_reason", "released_on", "expires_on", "superseded")
+
+
+def write_history(batch: Mapping[str, Any], history: Mapping[str, Any]) -> str:
+    """A batch's runs, decisions and releases, one row per run, as CSV text."""
+    releases = {r["run_id"]: r for r in history["releases"]}
+    out = io.StringIO()
+    w = csv.writer(out, lineterminator="\n")
+    w.writerow(HISTORY_COLUMNS)
+    for run in history["runs"]:
+        cur = run["current"] or {}
+        rel = releases.get(run["id"])
+        source = (run["lot"]["code"] if run.get("lot") else (run["reference"]["code"] if run.get("reference") else ""))
+        decision = run["decision"] or {}
+        w.writerow([
+            batch["code"], batch["reagent"], _fmt(batch["nominal_molarity"]), run["id"], run["purpose"],
+            run["method"], run["performed_on"], run["analyst"], source, _fmt(cur.get("n")),
+            _fmt(cur.get("molarity")), _fmt(cur.get("expanded_u")), _fmt(cur.get("k")),
+            _fmt(cur["rsd"] * 100 if cur.get("rsd") is not None else None), decision.get("decision", ""),
+            decision.get("reason", ""), rel["released_on"] if rel else "", rel["expires_on"] if rel else "",
+            ("yes" if rel["superseded"] else "no") if rel else "",
+        ])
+    for wd in history["withdrawals"]:
+        w.writerow([batch["code"], batch["reagent"], _fmt(batch["nominal_molarity"]), "", "withdrawal", "",
+                    wd["withdrawn_on"], wd["recorded_by"], "", "", "", "", "", "", "", wd["reason"], "", "", ""])
+    return out.getvalue()
+
+
+def rows_as_form(rows: Sequence[SheetRow], secondary: bool) -> dict[str, str]:
+    """Sheet rows as run-form fields (r1_gross_g, ...) so an import fills the same grid a person types in."""
+    form: dict[str, str] = {}
+    for i, row in enumerate(rows, start=1):
+        for col in NUMERIC_COLUMNS:
+            if secondary and col in ("gross_g", "tare_g", "mass_g"):
+                continue
+            if not secondary and col == "aliquot_ml":
+                continue
+            if row.values.get(col):
+                form[f"r{i}_{col}"] = row.values[col]
+        reason = row.values.get("exclude_reason", "")
+        if reason:
+            form[f"r{i}_exclude"] = "on"
+            form[f"r{i}_exclude_reason"] = reason
+    return form
+
+
+def columns_unused(rows: Iterable[SheetRow], secondary: bool) -> list[str]:
+    """Columns with values that this kind of run does not use (e.g. masses in a run against a titrant)."""
+    unused = {"gross_g", "tare_g", "mass_g"} if secondary else {"aliquot_ml"}
+    return sorted({c for r in rows for c in unused if r.values.get(c)})
