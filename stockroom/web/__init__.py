@@ -27,9 +27,10 @@ def wants_json() -> bool:
 def register(app: Flask) -> None:
     """Attach every blueprint, the error handlers and the response headers to the app."""
     from stockroom.web import access, account, api, batches, dashboard, formatting, health, preview
+    from stockroom.web import runs
 
     csrf.init_app(app)
-    for module in (health, dashboard, batches, api, preview, account):
+    for module in (health, dashboard, batches, api, preview, account, runs):
         app.register_blueprint(module.bp)
     access.init_app(app)
     # The JSON API is for programs; it takes no cookies-based form posts (token auth comes later).

@@ -89,10 +89,15 @@ def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: 
             if mass is not None and not (MIN_MASS_G <= mass <= MAX_MASS_G):
                 p.error(f"r{i}_mass_g" if raw["mass_g"] else f"r{i}_gross_g",
                         f"a mass of {mass:.4f} g is outside {MIN_MASS_G:g}–{MAX_MASS_G:g} g: check the unit")
-        initial = num("initial_ml", ge=0, le=capacity_ml, unit="mL")
-        final = num("final_ml", gt=0, le=capacity_ml, unit="mL")
-        if final is not None and final > capacity_ml:
-            p.error(f"r{i}_final_ml", f"is beyond the {capacity_ml:g} mL burette")
+        initial = num("initial_ml", ge=0, unit="mL")
+        final = num("final_ml", gt=0, unit="mL")
+        for col, reading in (("initial_ml", initial), ("final_ml", final)):
+            if reading is not None and reading > capacity_ml:
+                p.error(f"r{i}_{col}", f"{reading:g} mL is beyond the scale of the {capacity_ml:g} mL burette")
+                if col == "final_ml":
+                    final = None
+                else:
+                    initial = None
         if initial is not None and final is not None:
             if final <= initial:
                 p.error(f"r{i}_final_ml", f"the final reading must be greater than the initial reading "
@@ -156,6 +161,9 @@ def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date)
         "in_force": release_in_force(facts, on), "burettes": BURETTES_ML,
         "rows": GRID_ROWS, "today": on,
         "standards": {s.key: s for s in chemistry.list_standards(titrant)},
+        # Mass of each standard that gives a 40 mL titre at the nominal strength (a 50 mL burette).
+        "suggested": {s.key: chemistry.suggested_standard_mass(titrant, s, batch["nominal_molarity"], 40.0)
+                      for s in chemistry.list_standards(titrant)},
     }
 
 
