@@ -273,17 +273,22 @@ def _reagent(p: Parser, raw: Any, pols: Mapping[str, ReagentPolicy]) -> chemistr
     return t
 
 
-def _percent(p: Parser, raw: Any, field: str, *, required: bool, gt: float, le: float) -> float | None:
-    """A percentage typed as such (37 for 37 %), above gt and at most le; a mass fraction is refused."""
-    value = p.number(raw, field, required=required, gt=0, le=le, unit="%")
+def read_percent(p: Parser, raw: Any, field: str, *, required: bool, gt: float, le: float,
+                 why: str = "") -> float | None:
+    """A percentage typed as such (37 for 37 %), above gt and at most le, or None with an error recorded.
+
+    A value of 1 or less is refused as a likely mass fraction, with the percentage to type instead;
+    why: an optional clause saying why the range is what it is. Returns the value in %.
+    """
+    value = p.number(raw, field, required=required)
     if value is None:
         return None
-    if value <= 1:
+    if 0 < value <= 1:
         p.error(field, f"is in percent: {value:g} looks like a mass fraction; for {value * 100:g} % "
                        f"type {value * 100:g}")
         return None
-    if value <= gt:
-        p.error(field, f"must be greater than {gt:g} % and at most {le:g} %")
+    if not gt < value <= le:
+        p.error(field, f"must be greater than {gt:g} % and at most {le:g} %" + (f": {why}" if why else ""))
         return None
     return value
 
@@ -299,7 +304,7 @@ def _read_plan_fields(p: Parser, data: Mapping[str, Any], pols: Mapping[str, Rea
     if form == SOLID and t is not None and t.role != BASE:
         p.error("source_form", f"{t.name} is made from a liquid concentrate: choose the concentrate")
         form = None
-    pct = _percent(p, data.get("concentrate_assay_pct"), "concentrate_assay_pct", required=need_concentrate,
+    pct = read_percent(p, data.get("concentrate_assay_pct"), "concentrate_assay_pct", required=need_concentrate,
                    gt=1, le=100)
     density = None
     if form != SOLID:  # a solid's density is meaningless here; the form disables that field for solids
@@ -486,7 +491,7 @@ def work_out_adjustment(args: Mapping[str, Any], batch: Mapping[str, Any],
                                                 "adjust from")])
     key = p.choice(args.get("basis"), "basis", [b["key"] for b in bases], default=bases[0]["key"])
     volume = p.number(args.get("volume_l"), "volume_l", gt=0, le=MAX_VOLUME_L * 1.2, unit="L")
-    pct = _percent(p, args.get("concentrate_assay_pct"), "concentrate_assay_pct", required=False, gt=1, le=100)
+    pct = read_percent(p, args.get("concentrate_assay_pct"), "concentrate_assay_pct", required=False, gt=1, le=100)
     density = p.number(args.get("concentrate_density_g_ml"), "concentrate_density_g_ml", required=False,
                        ge=MIN_DENSITY_G_ML, le=MAX_DENSITY_G_ML, unit="g/mL")
     if (pct is None) != (density is None) and p.ok:

@@ -18,9 +18,11 @@ from flask import Blueprint, flash, redirect, render_template, request, url_for
 
 from stockroom import chemistry, records
 from stockroom.db import get_db
+from stockroom.errors import InvalidInput
 from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
+from stockroom.web.intake import read_percent
 
 bp = Blueprint("lots", __name__, url_prefix="/lots")
 
@@ -74,7 +76,7 @@ def new_lot() -> Any:
                                errors={}, **context)
     try:
         values, warnings = read_lot(request.form, today)
-    except forms.InvalidInput as exc:
+    except InvalidInput as exc:
         return forms.reshow("lots/new.html", exc, **context)
     user = current_user()
     assert user is not None
@@ -141,7 +143,8 @@ def read_lot(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, Any], l
                                  "the list")
     supplier = p.text(form.get("supplier"), "supplier", max_length=120)
     supplier_lot = p.text(form.get("supplier_lot"), "supplier_lot", max_length=80)
-    assay = _percent(p, form.get("assay_pct"), "assay_pct", gt=MIN_ASSAY_PCT, le=MAX_ASSAY_PCT)
+    assay = read_percent(p, form.get("assay_pct"), "assay_pct", required=True, gt=MIN_ASSAY_PCT, le=MAX_ASSAY_PCT,
+                         why=f"a primary standard assays above {MIN_ASSAY_PCT:g} %")
     u = p.number(form.get("assay_u_pct"), "assay_u_pct", ge=0, le=MAX_U_PCT, unit="% w/w")
     k = p.number(form.get("assay_k") or "2", "assay_k", ge=MIN_K, le=MAX_K)
     expires_on = forms.date(p, form.get("expires_on"), "expires_on")
@@ -175,24 +178,8 @@ def read_lot(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, Any], l
     if dried_at is None:
         missing = chemistry.missing_drying_warning(std)
         if missing:
-            warnings.append(f"Registered, but {missing} A run on this lot will warn until it is dried and "
-                            "registered as a dried lot.")
+            warnings.append(f"Registered, but {missing} Runs on this lot will warn that no drying is recorded.")
     if expires_on < today:
         warnings.append(f"This lot expired on {expires_on.isoformat()}: runs refuse an expired lot.")
     return values, warnings
 
-
-def _percent(p: Parser, raw: Any, field: str, *, gt: float, le: float) -> float | None:
-    """A percentage typed as such (99.98 for 99.98 %); a value that looks like a mass fraction is refused."""
-    value = p.number(raw, field, gt=0, le=le, unit="%")
-    if value is None:
-        return None
-    if value <= 1:
-        p.error(field, f"is in percent: {value:g} looks like a mass fraction; for {value * 100:g} % type "
-                       f"{value * 100:g}")
-        return None
-    if value <= gt:
-        p.error(field, f"must be greater than {gt:g} % and at most {le:g} %: a primary standard assays above "
-                       f"{gt:g} %")
-        return None
-    return value
