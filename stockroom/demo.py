@@ -17,8 +17,11 @@ def load_scenario() -> dict[str, Any]:
     return json.loads((resource_dir("demo_data") / "scenario.json").read_text(encoding="utf-8"))
 
 
-def build_demo(path: str, today: dt.date | None = None) -> list[str]:
-    """Create a database at `path` holding the demo scenario anchored at `today`; return summary lines."""
+def build_demo(path: str, today: dt.date | None = None, password: str | None = None) -> list[str]:
+    """Create a database at `path` holding the demo scenario anchored at `today`; return summary lines.
+
+    password: the demo users' password (tests pass a known one); None makes a fresh random one.
+    """
     scenario = load_scenario()
     today = today or dt.date.today()
 
@@ -30,7 +33,7 @@ def build_demo(path: str, today: dt.date | None = None) -> list[str]:
     try:
         dbmod.migrate(conn)
         lines = [scenario["title"]]
-        lines += _demo_users(conn, scenario["users"])
+        lines += _demo_users(conn, scenario["users"], password)
         lots = {}
         for lot in scenario["lots"]:
             values = {k: v for k, v in lot.items() if not k.endswith("_day") and k != "key"}
@@ -86,13 +89,13 @@ def _username(users: list[dict[str, Any]], display: str) -> str:
     return next((u["username"] for u in users if u["display_name"] == display), "demo-loader")
 
 
-def _demo_users(conn: Any, users: list[dict[str, Any]]) -> list[str]:
-    """Create the scenario's users with one fresh random password, printed once for the demo only."""
+def _demo_users(conn: Any, users: list[dict[str, Any]], password: str | None = None) -> list[str]:
+    """Create the scenario's users with one password (fresh and random unless given), printed once."""
     try:
         from stockroom import accounts
     except ImportError:  # accounts arrive with the sign-in work
         return []
-    password = "demo-" + secrets.token_urlsafe(9)
+    password = password or "demo-" + secrets.token_urlsafe(9)
     for u in users:
         accounts.create_user(conn, u["username"], u["display_name"], u["role"], password, "demo-loader")
     names = ", ".join(f"{u['username']} ({u['role']})" for u in users)

@@ -1,7 +1,10 @@
 """Reagent policy and a batch's status, derived from its recorded facts, its policy and a date.
 
 Status is never stored: it is this function of the history, so "what was true on day D" is the same
-call with D, and it can never disagree with the records.
+call with D, and it can never disagree with the records. Drift (stockroom.drift) is part of it: a
+re-check outside the tolerance band, or a significant trend whose line is already outside the band on
+the day asked, makes a batch DRIFTING; a trend expected to leave the band later in the batch's life is
+a flag shown with the status, and changes it only once that day has come.
 """
 
 from __future__ import annotations
@@ -9,6 +12,9 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass, field
 from enum import StrEnum
+
+from stockroom import drift
+from stockroom.drift import DriftReport, Flag, FlagKind
 
 
 @dataclass(frozen=True)
@@ -94,11 +100,12 @@ class ReleaseFact:
 
 @dataclass(frozen=True)
 class CheckFact:
-    """A re-check of a released batch: measured molarity and standard uncertainty, mol/L."""
+    """A re-check of a released batch: measured molarity and standard uncertainty, mol/L; k dimensionless."""
 
     performed_on: dt.date
     molarity: float
     u: float
+    k: float = 2.0  # coverage factor of the re-check's expanded uncertainty (stockroom's default k)
 
 
 @dataclass(frozen=True)
@@ -113,7 +120,11 @@ class BatchFacts:
 
 @dataclass(frozen=True)
 class StatusReport:
-    """A batch's status on a date, the release in force then, and why, in plain words."""
+    """A batch's status on a date, the release in force then, and why, in plain words.
+
+    reasons explain the status; flags are every drift flag raised that day (stockroom.drift.Flag),
+    including those that do not set the status (a forecast); drift is the release's drift report.
+    """
 
     status: Status
     on: dt.date
@@ -121,6 +132,18 @@ class StatusReport:
     next_check_due: dt.date | None = None
     last_check: CheckFact | None = None
     reasons: tuple[str, ...] = field(default_factory=tuple)
+    flags: tuple[Flag, ...] = field(default_factory=tuple)
+    drift: DriftReport | None = None
+
+    @property
+    def forecast(self) -> Flag | None:
+        """The "expected to leave tolerance on DATE" flag, or None."""
+        return next((f for f in self.flags if f.kind is FlagKind.EXPECTED_TO_LEAVE), None)
+
+    @property
+    def remarks(self) -> tuple[str, ...]:
+        """The reasons, then the message of every other flag raised: what a list of batches shows."""
+        return self.reasons + tuple(f.message for f in self.flags if f.message not in self.reasons)
 
 
 def expiry_for(released_on: dt.date, policy: ReagentPolicy, prepared_on: dt.date | None = None) -> dt.date:
@@ -145,34 +168,58 @@ def release_in_force(facts: BatchFacts, on: dt.date) -> ReleaseFact | None:
     return release
 
 
+def release_points(facts: BatchFacts, release: ReleaseFact, until: dt.date) -> tuple[drift.Point, ...]:
+    """A release's own certified value and the re-checks made under it up to `until` (mol/L, u in mol/L).
+
+    A re-check belongs to the release in force when it was made: from the release date (inclusive) to the
+    next release of the batch (exclusive).
+    """
+    later = [r.released_on for r in facts.releases if (r.released_on, r.id) > (release.released_on, release.id)]
+    end = min(later) if later else None
+    points = [drift.Point(release.released_on, release.molarity, release.u, "release", release.k)]
+    points += [drift.Point(c.performed_on, c.molarity, c.u, "recheck", c.k) for c in facts.rechecks
+               if release.released_on <= c.performed_on <= until and (end is None or c.performed_on < end)]
+    return tuple(points)
+
+
+def drift_on(facts: BatchFacts, on: dt.date, release: ReleaseFact | None = None) -> DriftReport | None:
+    """The drift report of a release (the newest made by `on` unless given) as it stands on date `on`.
+
+    Only standardizations made by `on` count. Returns None when nothing has been released by `on`.
+    """
+    release = release or latest_release(facts, on)
+    if release is None:
+        return None
+    band = drift.Band(release.molarity, release.tolerance_rel)
+    return drift.assess(release_points(facts, release, on), band, release.released_on, release.expires_on,
+                        release.recheck_interval_days, on)
+
+
+_DRIFTING_KINDS = (FlagKind.RECHECK_OUTSIDE, FlagKind.PREDICTED_OUTSIDE)
+_DUE_KINDS = (FlagKind.RECHECK_DUE, FlagKind.RECHECK_OVERDUE)
+
+
 def status_on(facts: BatchFacts, on: dt.date) -> StatusReport:
-    """Derive a batch's status on date `on` from its facts alone."""
+    """Derive a batch's status on date `on` from its facts alone (standardizations made after `on` unseen)."""
     if facts.withdrawn_on is not None and facts.withdrawn_on <= on:
         return StatusReport(Status.WITHDRAWN, on, reasons=(f"withdrawn on {facts.withdrawn_on.isoformat()}",))
     release = latest_release(facts, on)
     if release is None:
         return StatusReport(Status.AWAITING, on, reasons=("no accepted standardization yet",))
+    report = drift_on(facts, on, release)
+    assert report is not None
     if on > release.expires_on:
         return StatusReport(Status.EXPIRED, on, release=release,
-                            reasons=(f"expired on {release.expires_on.isoformat()}",))
+                            reasons=(f"expired on {release.expires_on.isoformat()}",), flags=report.flags,
+                            drift=report)
     checks = sorted(
         (c for c in facts.rechecks if release.released_on <= c.performed_on <= on),
         key=lambda c: c.performed_on,
     )
     last = checks[-1] if checks else None
-    last_date = last.performed_on if last else release.released_on
-    due = min(last_date + dt.timedelta(days=release.recheck_interval_days), release.expires_on)
-    if last is not None:
-        deviation = (last.molarity - release.molarity) / release.molarity
-        if abs(deviation) > release.tolerance_rel:
-            return StatusReport(
-                Status.DRIFTING, on, release=release, next_check_due=due, last_check=last,
-                reasons=(f"re-check on {last.performed_on.isoformat()} differs from the certified value by "
-                         f"{deviation * 100:+.2f} % (tolerance ±{release.tolerance_rel * 100:.2f} %)",),
-            )
-    if on >= due and due < release.expires_on:
-        overdue = (on - due).days
-        why = "re-check due today" if overdue == 0 else f"re-check overdue by {overdue} day(s)"
-        return StatusReport(Status.RECHECK_DUE, on, release=release, next_check_due=due, last_check=last,
-                            reasons=(why,))
-    return StatusReport(Status.IN_SERVICE, on, release=release, next_check_due=due, last_check=last)
+    drifting = tuple(f.message for f in report.flags if f.kind in _DRIFTING_KINDS)
+    due = tuple(f.message for f in report.flags if f.kind in _DUE_KINDS)
+    status, reasons = ((Status.DRIFTING, drifting) if drifting else (Status.RECHECK_DUE, due) if due
+                       else (Status.IN_SERVICE, ()))
+    return StatusReport(status, on, release=release, next_check_due=report.next_check_due, last_check=last,
+                        reasons=reasons, flags=report.flags, drift=report)

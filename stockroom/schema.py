@@ -298,4 +298,61 @@ def _accounts(db: sqlite_utils.Database) -> None:
         )
 
 
+# Hazard classification of titrant solutions per reagent and concentration band, as an administrator
+# edits it (stockroom.hazards explains the bands and which row wins). Codes are JSON lists. The
+# starting rows are typical values from memory, marked as such in their source note.
+_HAZARDS = [
+    """CREATE TABLE hazard_classifications (
+        id INTEGER PRIMARY KEY,
+        reagent TEXT NOT NULL,
+        min_molarity REAL NOT NULL CHECK (min_molarity >= 0),          -- mol/L, inclusive
+        max_molarity REAL CHECK (max_molarity IS NULL OR max_molarity > min_molarity),  -- exclusive
+        signal_word TEXT NOT NULL CHECK (signal_word IN ('Danger', 'Warning', '')),
+        pictograms TEXT NOT NULL DEFAULT '[]',                         -- JSON list, e.g. ["GHS05"]
+        hazard_statements TEXT NOT NULL DEFAULT '[]',                  -- JSON list, e.g. ["H290", "H314"]
+        precautionary_statements TEXT NOT NULL DEFAULT '[]',
+        source_note TEXT NOT NULL DEFAULT '',
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        effective_from TEXT NOT NULL,
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_hazards_reagent ON hazard_classifications (reagent, effective_from)",
+    # Print serials are unique across the database: each print takes a fresh range, one serial per copy.
+    "CREATE UNIQUE INDEX ix_prints_serial ON label_prints (serial_first)",
+    """CREATE TRIGGER label_prints_serials BEFORE INSERT ON label_prints
+       WHEN NEW.serial_first < 1 OR NEW.serial_last - NEW.serial_first + 1 != NEW.copies
+         OR EXISTS (SELECT 1 FROM label_prints
+                    WHERE serial_first <= NEW.serial_last AND serial_last >= NEW.serial_first)
+       BEGIN SELECT RAISE(ABORT, 'label serials must be a fresh range with one serial per copy'); END""",
+]
+
+
+@MIGRATIONS(name="0005_hazards")
+def _hazards(db: sqlite_utils.Database) -> None:
+    import json
+
+    from stockroom.hazards import DEFAULT_CLASSIFICATIONS
+    from stockroom.records import utc_now
+
+    now = utc_now()
+    for statement in _HAZARDS:
+        db.execute(statement)
+    for verb in ("UPDATE", "DELETE"):
+        db.execute(
+            f"CREATE TRIGGER hazard_classifications_no_{verb.lower()} BEFORE {verb} ON hazard_classifications "
+            "BEGIN SELECT RAISE(ABORT, 'hazard_classifications is append-only: record a correction instead'); END"
+        )
+    for c in DEFAULT_CLASSIFICATIONS:
+        db["hazard_classifications"].insert({
+            "reagent": c.reagent, "min_molarity": c.min_molarity, "max_molarity": c.max_molarity,
+            "signal_word": c.signal_word, "pictograms": json.dumps(list(c.pictograms)),
+            "hazard_statements": json.dumps(list(c.hazard_statements)),
+            "precautionary_statements": json.dumps(list(c.precautionary_statements)),
+            "source_note": c.source_note, "reason": "starting classification",
+            "effective_from": c.effective_from.isoformat(), "recorded_at": now,
+            "recorded_by": "system",
+        })
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)

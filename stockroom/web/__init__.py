@@ -26,16 +26,17 @@ def wants_json() -> bool:
 
 def register(app: Flask) -> None:
     """Attach every blueprint, the error handlers and the response headers to the app."""
-    from stockroom.web import access, account, api, batches, dashboard, formatting, health, preview
-    from stockroom.web import runs
+    from stockroom.web import access, account, api, batches, dashboard, formatting, health, intake, lots, preview, runs
 
     csrf.init_app(app)
-    for module in (health, dashboard, batches, api, preview, account, runs):
+    for module in (health, dashboard, batches, api, preview, account, runs, intake, lots):
         app.register_blueprint(module.bp)
+    app.register_blueprint(intake.api_bp)
     access.init_app(app)
     # The JSON API is for programs; it takes no cookies-based form posts (token auth comes later).
     csrf.exempt(api.bp)
     csrf.exempt(preview.bp)
+    csrf.exempt(intake.api_bp)  # the preparation calculator: computes, stores nothing
     formatting.install(app)
 
     @app.errorhandler(StockroomError)

@@ -152,6 +152,7 @@ def adjust(code: str) -> Any:
     bases = [] if status is Status.WITHDRAWN else adjustment_bases(db, batch, today)
     context: dict[str, Any] = {"batch": batch, "bases": bases, "titrant": chemistry.titrant(batch["reagent"]),
                                "status": status,
+                               "basis_options": [(b["key"], b["label"]) for b in bases],
                                "cautions": preparation.cautions_for(batch["reagent"]), "labels": ADJUST_LABELS}
     if "volume_l" not in request.args:
         defaults = _adjust_defaults(batch, bases)
@@ -172,18 +173,20 @@ def withdraw(code: str) -> Any:
     today = lab_today()
     batch = records.batch_by_code(db, code)
     existing = records.withdrawal_of(db, batch["id"])
-    context = {"batch": batch, "existing": existing, "labels": WITHDRAW_LABELS}
+    context: dict[str, Any] = {"batch": batch, "existing": existing, "labels": WITHDRAW_LABELS}
     if request.method == "GET":
         return render_template("intake/withdraw.html", values={"withdrawn_on": today.isoformat()}, errors={},
                                **context)
     user = current_user()
     assert user is not None
     try:
+        if existing is not None:  # said before any field check: no input can make a second withdrawal right
+            raise Conflict("this batch is already withdrawn")
         withdrawn_on, reason = read_withdrawal(request.form, batch, today)
         records.withdraw_batch(db, batch["id"], withdrawn_on, reason, user.username)
     except InvalidInput as exc:
         return forms.reshow("intake/withdraw.html", exc, **context)
-    except Conflict as exc:
+    except Conflict as exc:  # also when another withdrawal landed between the read above and this write
         context["existing"] = records.withdrawal_of(db, batch["id"])
         return render_template("intake/withdraw.html", values=request.form, errors={}, conflict=exc.message,
                                **context), 409
@@ -498,6 +501,7 @@ def work_out_adjustment(args: Mapping[str, Any], batch: Mapping[str, Any],
         missing = "concentrate_density_g_ml" if density is None else "concentrate_assay_pct"
         p.error(missing, "give the concentrate's assay and density together")
     p.raise_if_errors()
+    assert volume is not None
     basis = next(b for b in bases if b["key"] == key)
     target = float(batch["nominal_molarity"])
     weak = basis["molarity"] / target - 1.0 < -basis["tolerance_rel"]

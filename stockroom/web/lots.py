@@ -70,7 +70,7 @@ def show(lot_id: int) -> str:
 @require("lot.register")
 def new_lot() -> Any:
     today = lab_today()
-    context = {"standards": _standard_options(), "rules": _rules(), "labels": LOT_LABELS}
+    context: dict[str, Any] = {"standards": _standard_options(), "rules": _rules(), "labels": LOT_LABELS}
     if request.method == "GET":
         return render_template("lots/new.html", values={"assay_k": "2", "received_on": today.isoformat()},
                                errors={}, **context)

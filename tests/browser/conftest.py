@@ -92,3 +92,43 @@ def screenshot():
         return out
 
     return take
+
+
+# ---------------------------------------------------------------- a signed-in prep-staff page
+
+# Invented, for the browser tests' own demo database only; long and not on the common-password list.
+DEMO_PASSWORD = "invented lantern for browser tests"
+DEMO_STAFF = "okafor"  # a prep-staff user of the demo scenario (demo_data/scenario.json)
+
+
+@pytest.fixture(scope="session")
+def staff_demo_server(tmp_path_factory):
+    """A live demo like demo_server, but its users share DEMO_PASSWORD; yields its base URL.
+
+    A separate server, because demo_server's users get a random password; tests that write (register
+    a batch or a lot) use this one and leave demo_server's data as the scenario made it.
+    """
+    from waitress.server import create_server
+
+    from stockroom import create_app
+    from stockroom.demo import build_demo
+
+    path = tmp_path_factory.mktemp("live-staff") / "demo.db"
+    build_demo(str(path), password=DEMO_PASSWORD)
+    app = create_app({"DATABASE": str(path), "SECRET_KEY": "browser-tests-staff", "LAB_TIMEZONE": "UTC"})
+    server = create_server(app, host="127.0.0.1", port=_free_port(), threads=4)
+    thread = threading.Thread(target=server.run, daemon=True)
+    thread.start()
+    yield f"http://127.0.0.1:{server.effective_port}"
+    server.close()
+
+
+@pytest.fixture
+def staff_page(page, staff_demo_server):
+    """The page, signed in through the sign-in form as the demo's prep-staff user (on staff_demo_server)."""
+    page.goto(staff_demo_server + "/sign-in")
+    page.fill("#f-username", DEMO_STAFF)
+    page.fill("#f-password", DEMO_PASSWORD)
+    page.locator("main button[type=submit]").click()
+    page.wait_for_url(staff_demo_server + "/")
+    return page

@@ -1,0 +1,1 @@
+"""PDF and vector-graphics output: charts, lab-day sheets, labels and certificates."""
