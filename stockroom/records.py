@@ -391,11 +391,11 @@ def _facts_bulk(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = Non
         where = f" WHERE batch_id IN ({','.join('?' * len(ids))})"
         params = ids
     releases: dict[int, list[ReleaseFact]] = defaultdict(list)
-    for r in db.execute("SELECT id, batch_id, released_on, expires_on, molarity, u, expanded_u AS U, k, recheck_interval_days, "
+    for r in db.execute("SELECT id, batch_id, released_on, expires_on, molarity, u, expanded_u, k, recheck_interval_days, "
                         "tolerance_rel FROM releases" + where, params):
         releases[r["batch_id"]].append(ReleaseFact(
             id=r["id"], released_on=dt.date.fromisoformat(r["released_on"]),
-            expires_on=dt.date.fromisoformat(r["expires_on"]), molarity=r["molarity"], u=r["u"], U=r["U"],
+            expires_on=dt.date.fromisoformat(r["expires_on"]), molarity=r["molarity"], u=r["u"], U=r["expanded_u"],
             k=r["k"], recheck_interval_days=r["recheck_interval_days"], tolerance_rel=r["tolerance_rel"]))
     checks: dict[int, list[CheckFact]] = defaultdict(list)
     check_where = where.replace("batch_id", "r.batch_id")

@@ -103,6 +103,14 @@ def test_record_then_accept_releases_the_batch(app, setup, signed_in_client, for
     assert body["status"] == "in_service"
     assert body["releases"][0]["molarity"] == pytest.approx(run["current"]["molarity"])
     assert body["releases"][0]["released_by"] == "staff-user"
+    # The value in force carries the expanded uncertainty U = k u of its release, everywhere it is shown.
+    release = body["releases"][0]
+    assert release["U"] == pytest.approx(release["k"] * release["u"])
+    assert body["U"] == release["U"] and body["molarity"] == release["molarity"]
+    page = staff.get(f"/batches/{code}").get_data(as_text=True)
+    from stockroom.web.formatting import molarity as fmt
+
+    assert page.count(fmt(release["molarity"], release["U"], release["k"])) >= 2  # value panel and releases
     # NaOH starting policy: shelf life 90 days from preparation.
     assert body["expires_on"] == (TODAY - dt.timedelta(days=2) + dt.timedelta(days=90)).isoformat()
     # A second decision on the same run is refused.
