@@ -71,6 +71,7 @@ def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: 
             gross = num("gross_g", required=False, gt=0, le=1000, unit="g")
             tare = num("tare_g", required=False, ge=0, le=1000, unit="g")
             direct = num("mass_g", required=False, unit="g")
+            mass: float | None = None
             if raw["mass_g"] and (raw["gross_g"] or raw["tare_g"]):
                 p.error(f"r{i}_mass_g", "give either the mass or gross and tare, not both")
             elif raw["mass_g"]:
@@ -85,7 +86,6 @@ def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: 
             else:
                 missing = "tare_g" if raw["gross_g"] else "gross_g"
                 p.error(f"r{i}_{missing}", "is required (or give the mass directly)")
-                mass = None
             if mass is not None and not (MIN_MASS_G <= mass <= MAX_MASS_G):
                 p.error(f"r{i}_mass_g" if raw["mass_g"] else f"r{i}_gross_g",
                         f"a mass of {mass:.4f} g is outside {MIN_MASS_G:g}–{MAX_MASS_G:g} g: check the unit")
