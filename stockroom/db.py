@@ -82,8 +82,21 @@ def migrate(db: sqlite_utils.Database) -> int:
     return schema_version(db)
 
 
+_SQLITE_INT = (-(2**63), 2**63 - 1)
+
+
+def _bindable(value: Any) -> Any:
+    # An integer beyond SQLite's 64-bit range (e.g. /runs/99999999999999999999) can match no row;
+    # binding NULL instead makes the read find nothing rather than raise OverflowError.
+    if isinstance(value, int) and not isinstance(value, bool) and not _SQLITE_INT[0] <= value <= _SQLITE_INT[1]:
+        return None
+    return value
+
+
 def query(db: sqlite_utils.Database, sql: str, params: Any = ()) -> list[dict[str, Any]]:
     """Run a read query with bound parameters and return plain dict rows."""
+    if isinstance(params, (list, tuple)):
+        params = [_bindable(p) for p in params]
     return [dict(r) for r in db.execute(sql, params).fetchall()]
 
 

@@ -133,3 +133,7 @@ def test_create_app_without_config_uses_settings(tmp_path, monkeypatch):
     # No fixed secret: one was generated beside the database and is reused.
     assert len(app.config["SECRET_KEY"]) == 64
     assert create_app().config["SECRET_KEY"] == app.config["SECRET_KEY"]
+
+
+def test_an_id_beyond_sqlite_range_is_not_found(demo_client):
+    assert demo_client.get("/runs/99999999999999999999").status_code == 404
