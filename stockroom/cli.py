@@ -176,5 +176,70 @@ def set_password(name: str, db_path: str | None) -> None:
     click.echo(f"password of {user.username} changed; its sessions have ended")
 
 
+# ---------------------------------------------------------------- labels and certificates
+
+def _lab_today(config: dict):  # -> datetime.date: today in the lab's time zone
+    import datetime as dt
+    from zoneinfo import ZoneInfo
+
+    return dt.datetime.now(ZoneInfo(config["LAB_TIMEZONE"])).date()
+
+
+@main.command("labels")
+@click.argument("batch_id")
+@click.option("--layout", "layout_name", required=True,
+              help="Label layout: the name of a file in labels/ without .toml (e.g. carboy-a5, bottle, sheet-a4-24).")
+@click.option("--copies", default=1, show_default=True, type=click.IntRange(1, 200),
+              help="How many labels to print (each gets its own serial).")
+@click.option("--start", default=1, show_default=True, type=click.IntRange(1, None),
+              help="Position of the first label on a partly used sheet, counted along rows from the top left.")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True),
+              help="PDF file to write.")
+def labels_command(batch_id: str, layout_name: str, copies: int, start: int, db_path: str | None,
+                   out_path: str) -> None:
+    """Print labels of a batch to a PDF; the print is recorded (as cli:<your login>) with its serials."""
+    from stockroom import records
+    from stockroom.pdf import labels, layouts
+
+    path = _db_path(db_path)
+    config = settings.resolve({"DATABASE": path})
+    conn = _accounts_db(path)
+    try:
+        layout = _account_call(layouts.get, layout_name)
+        batch = _account_call(records.batch_by_code, conn, batch_id)
+        job = _account_call(labels.print_labels, conn, config, batch, layout, copies, start, _cli_actor(),
+                            _lab_today(config))
+    finally:
+        conn.close()
+    Path(out_path).write_bytes(job.pdf)
+    rec = job.record
+    click.echo(f"{copies} label{'s' if copies != 1 else ''} of {batch_id} on {layout.name}, serials "
+               f"{labels.format_serial(rec['serial_first'])}-{labels.format_serial(rec['serial_last'])}: "
+               f"{job.content.certified}")
+    click.echo(f"written to {out_path}")
+
+
+@main.command("certificate")
+@click.argument("batch_id")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True),
+              help="PDF file to write.")
+def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> None:
+    """Write the certificate of standardization of a batch's release in force (else its latest) to a PDF."""
+    from stockroom.pdf import certificates
+
+    path = _db_path(db_path)
+    config = settings.resolve({"DATABASE": path})
+    conn = _accounts_db(path)
+    try:
+        data = _account_call(certificates.certificate_data_for_batch, conn, batch_id, _lab_today(config))
+        pdf = certificates.build_certificate(data)
+    finally:
+        conn.close()
+    Path(out_path).write_bytes(pdf)
+    click.echo(f"certificate of {batch_id}, release {data['release']['id']}, written to {out_path}")
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())

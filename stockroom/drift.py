@@ -43,8 +43,9 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from enum import StrEnum
+from functools import lru_cache
 
-from scipy import stats as _sps
+from scipy.special import stdtr
 
 from stockroom.stats import t_quantile
 
@@ -187,6 +188,8 @@ class FlagKind(StrEnum):
     RECHECK_DUE = "recheck_due"
     RECHECK_OVERDUE = "recheck_overdue"
     EXPIRED = "expired"
+    # Only in a look-back (stockroom.labday): re-checks made after a day put that day outside the band.
+    HINDSIGHT_OUTSIDE = "outside_in_hindsight"
 
 
 @dataclass(frozen=True)
@@ -230,6 +233,12 @@ class DriftReport:
     def has(self, kind: FlagKind) -> bool:
         """True when a flag of this kind is raised."""
         return any(f.kind is kind for f in self.flags)
+
+
+@lru_cache(maxsize=256)
+def _t_crit(confidence: float, dof: int) -> float:
+    # Cached: every batch on a list page asks for the same few quantiles, and the quantile is the slow part.
+    return t_quantile(1.0 - (1.0 - confidence) / 2.0, dof)
 
 
 def _usable(points: Sequence[Point]) -> tuple[list[Point], list[str]]:
@@ -277,7 +286,7 @@ def fit_line(points: Sequence[Point], origin: dt.date, confidence: float = CONFI
     se_b = math.sqrt(cov[1][1])
     if se_b > 0:
         t_stat = b / se_b
-        p_value = float(2.0 * _sps.t.sf(abs(t_stat), dof))
+        p_value = float(2.0 * stdtr(dof, -abs(t_stat)))  # two-sided, Student t CDF (scipy.special)
     else:
         # Points exactly on a line: any non-zero slope is certain, a zero one is no drift.
         t_stat = math.copysign(math.inf, b) if b else 0.0
@@ -285,7 +294,7 @@ def fit_line(points: Sequence[Point], origin: dt.date, confidence: float = CONFI
     fit = Fit(
         origin=origin, last_on=max(p.on for p in good), n=n, intercept=a, slope=b,
         cov=cov,  # type: ignore[arg-type]
-        cov_absolute=abs_cov, s2=s2, dof=dof, t_crit=t_quantile(1.0 - (1.0 - confidence) / 2.0, dof),
+        cov_absolute=abs_cov, s2=s2, dof=dof, t_crit=_t_crit(confidence, dof),
         t_stat=t_stat, p_value=p_value, confidence=confidence, alpha=alpha, sum_w=S, t_mean=t_mean, stt=stt,
         w_new=S / n,
     )

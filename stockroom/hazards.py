@@ -240,15 +240,25 @@ def label_elements(c: Classification) -> LabelElements:
     H318 is left out beside H314 (serious eye damage is part of H314); the exclamation mark is left out
     where a stronger pictogram covers the only statements it would stand for.
     """
-    h = tuple(code for code in c.hazard_statements if not (code == "H318" and "H314" in c.hazard_statements))
+    h = tuple(code for code in statement_order(c.hazard_statements)
+              if not (code == "H318" and "H314" in c.hazard_statements))
     pictograms = tuple(p for p in _order_pictograms(c.pictograms) if not (p == "GHS07" and _ghs07_redundant(c.pictograms, h)))
     return LabelElements(
         signal_word=c.signal_word,
         pictograms=pictograms,
         hazard_statements=tuple((code, HAZARD_TEXT.get(code, "")) for code in h),
-        precautionary_statements=tuple((code, PRECAUTION_TEXT.get(code, "")) for code in c.precautionary_statements),
+        precautionary_statements=tuple((code, PRECAUTION_TEXT.get(code, ""))
+                                       for code in statement_order(c.precautionary_statements)),
         classification=c,
     )
+
+
+def statement_order(codes: Iterable[str]) -> tuple[str, ...]:
+    """Codes in the order labels list them: by number (P2xx prevention before P3xx response...), EUH last."""
+    def key(code: str) -> tuple[int, tuple[int, ...]]:
+        return (1 if code.startswith("EUH") else 0, tuple(int(n) for n in re.findall(r"\d+", code)))
+
+    return tuple(sorted(dict.fromkeys(codes), key=key))
 
 
 def _order_pictograms(codes: Iterable[str]) -> tuple[str, ...]:
@@ -392,7 +402,8 @@ def _row(reagent: str, lo: float, hi: float | None, h: tuple[str, ...], p: tuple
     return Classification(reagent, lo, hi, word, pictograms, h, p, _SDS_NOTE + note)
 
 
-# Band limits converted from the % w/w limits with solution densities near 1.0-1.1 g/mL (from memory).
+# Band limits converted from the % w/w limits with solution densities near 1.0-1.1 g/mL (from memory),
+# rounded down, so a solution at a limit always gets the stronger band.
 # H290 (corrosive to metals) is suppliers' self-classification of dilute acids and bases, not Annex VI.
 DEFAULT_CLASSIFICATIONS: tuple[Classification, ...] = (
     _row("NaOH", 0.0, 0.125, ("H290",), _H290_P, "Below 0.5 % w/w (about 0.125 mol/L): many suppliers give "
@@ -401,23 +412,23 @@ DEFAULT_CLASSIFICATIONS: tuple[Classification, ...] = (
          "Irrit. 2 and Eye Irrit. 2 from 0.5 % to under 2 % w/w (about 0.125 to 0.5 mol/L)."),
     _row("NaOH", 0.5, None, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1B from 2 % w/w (about "
          "0.5 mol/L), 1A from 5 %."),
-    _row("KOH", 0.0, 0.09, ("H290",), _H290_P, "Below 0.5 % w/w (about 0.09 mol/L): H290 only."),
-    _row("KOH", 0.09, 0.36, ("H290", "H315", "H319"), _IRRITANT_P, "CLP Annex VI specific limits: Skin Irrit. 2 "
+    _row("KOH", 0.0, 0.085, ("H290",), _H290_P, "Below 0.5 % w/w (about 0.09 mol/L): H290 only."),
+    _row("KOH", 0.085, 0.36, ("H290", "H315", "H319"), _IRRITANT_P, "CLP Annex VI specific limits: Skin Irrit. 2 "
          "and Eye Irrit. 2 from 0.5 % to under 2 % w/w (about 0.09 to 0.36 mol/L)."),
     _row("KOH", 0.36, 3.0, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1B from 2 % w/w (about "
          "0.36 mol/L). Above about 3 mol/L acute oral toxicity (H302) may apply: not entered, so no label "
          "prints there until an administrator adds it."),
-    _row("HCl", 0.0, 2.9, ("H290",), _H290_P, "Below 10 % w/w (about 2.9 mol/L) no Annex VI health class; "
+    _row("HCl", 0.0, 2.85, ("H290",), _H290_P, "Below 10 % w/w (about 2.9 mol/L) no Annex VI health class; "
          "0.1-1 mol/L solutions usually H290 only, though some suppliers add H315/H319/H335 at 1 mol/L."),
-    _row("HCl", 2.9, 7.7, ("H290", "H315", "H319", "H335"), _IRRITANT_P + ("P261",), "CLP Annex VI: Skin "
+    _row("HCl", 2.85, 7.7, ("H290", "H315", "H319", "H335"), _IRRITANT_P + ("P261",), "CLP Annex VI: Skin "
          "Irrit. 2, Eye Irrit. 2, STOT SE 3 from 10 % to under 25 % w/w (about 2.9 to 7.7 mol/L)."),
     _row("HCl", 7.7, None, ("H290", "H314", "H335"), _CORROSIVE_P + ("P261",), "CLP Annex VI: Skin Corr. 1B "
          "from 25 % w/w (about 7.7 mol/L); STOT SE 3 from 10 %. Concentrated acid about 37 % (12 mol/L)."),
     _row("H2SO4", 0.0, 0.5, ("H290",), _H290_P, "Below 5 % w/w (about 0.5 mol/L) no Annex VI health class; "
          "H290 only."),
-    _row("H2SO4", 0.5, 1.7, ("H290", "H315", "H319"), _IRRITANT_P, "CLP Annex VI specific limits: Skin Irrit. 2 "
+    _row("H2SO4", 0.5, 1.65, ("H290", "H315", "H319"), _IRRITANT_P, "CLP Annex VI specific limits: Skin Irrit. 2 "
          "and Eye Irrit. 2 from 5 % to under 15 % w/w (about 0.5 to 1.7 mol/L)."),
-    _row("H2SO4", 1.7, None, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1A from 15 % w/w (about "
+    _row("H2SO4", 1.65, None, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1A from 15 % w/w (about "
          "1.7 mol/L)."),
     _row("HNO3", 0.0, 0.8, ("H290",), _H290_P, "Below 5 % w/w (about 0.8 mol/L): H290 only."),
     _row("HNO3", 0.8, 10.0, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1B from 5 % w/w (about "

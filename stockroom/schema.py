@@ -355,4 +355,41 @@ def _hazards(db: sqlite_utils.Database) -> None:
         })
 
 
+# Class-data corrections: each time an instructor recomputes a class's titration results with the
+# molarity in force on a lab day. One row per correction, with the release it used (so a recall of a
+# release finds every correction made with it), the molarity applied, and a copy and hash of the rows.
+_CLASS_CORRECTIONS = [
+    """CREATE TABLE class_corrections (
+        id INTEGER PRIMARY KEY,
+        lab_day TEXT NOT NULL,                      -- ISO date of the lab day
+        titrant TEXT NOT NULL,                      -- chemistry catalogue key
+        batch_id INTEGER NOT NULL REFERENCES batches (id),
+        release_id INTEGER NOT NULL REFERENCES releases (id),
+        certified_molarity REAL NOT NULL CHECK (certified_molarity > 0),   -- mol/L at 20 °C
+        bench_temperature_c REAL,                   -- °C; NULL when the certified value was used as is
+        molarity_used REAL NOT NULL CHECK (molarity_used > 0),             -- mol/L applied to the rows
+        nominal_molarity REAL NOT NULL CHECK (nominal_molarity > 0),       -- mol/L on the bottle
+        row_count INTEGER NOT NULL CHECK (row_count > 0),
+        upload_name TEXT NOT NULL DEFAULT '',
+        upload_sha256 TEXT NOT NULL,                -- of the uploaded file's bytes
+        rows_csv TEXT NOT NULL,                     -- the rows as read (stockroom.labday.rows_to_csv)
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_class_corrections_release ON class_corrections (release_id)",
+    "CREATE INDEX ix_class_corrections_day ON class_corrections (lab_day, titrant)",
+]
+
+
+@MIGRATIONS(name="0004_class_corrections")
+def _class_corrections(db: sqlite_utils.Database) -> None:
+    for statement in _CLASS_CORRECTIONS:
+        db.execute(statement)
+    for verb in ("UPDATE", "DELETE"):
+        db.execute(
+            f"CREATE TRIGGER class_corrections_no_{verb.lower()} BEFORE {verb} ON class_corrections "
+            "BEGIN SELECT RAISE(ABORT, 'class_corrections is append-only: record a correction instead'); END"
+        )
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)

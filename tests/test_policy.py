@@ -103,3 +103,73 @@ def test_a_recheck_inside_the_band_never_flags(offset, check_day):
     facts = BatchFacts(prepared_on=day(0), releases=(release(1),),
                        rechecks=(CheckFact(day(check_day), 0.1002 * (1 + offset), 5e-5),))
     assert status_on(facts, day(check_day)).status is Status.IN_SERVICE
+
+
+# ---------------------------------------------------------------- drift in the status (stockroom.drift)
+
+from stockroom.drift import FlagKind  # noqa: E402
+
+
+def drifting_facts(rel_per_day: float = -1.2e-4, days=(7, 14), expires: int = 90, interval: int = 14) -> BatchFacts:
+    """A release on day 0 and re-checks lying exactly on 0.1002·(1 + rel_per_day·t) (invented)."""
+    c0 = 0.1002
+    return BatchFacts(prepared_on=day(-1), releases=(release(0, c0, expires=expires, interval=interval),),
+                      rechecks=tuple(CheckFact(day(d), c0 * (1 + rel_per_day * d), 5e-5) for d in days))
+
+
+def test_forecast_is_shown_but_does_not_change_the_status_before_its_date():
+    # Exact line -0.012 %/day: leaves the ±0.5 % band after 0.005/1.2e-4 = 41.7 days (hand computation).
+    facts = drifting_facts()
+    report = status_on(facts, day(20))
+    assert report.status is Status.IN_SERVICE
+    assert report.forecast is not None and report.forecast.date == day(42)
+    assert "expected to leave tolerance on 2026-04-12" in report.remarks[0]  # 2026-03-01 + 42 days
+    assert report.reasons == ()
+
+
+def test_predicted_value_outside_the_band_makes_it_drifting_once_that_day_comes():
+    facts = drifting_facts(interval=60)
+    assert status_on(facts, day(41)).status is Status.IN_SERVICE
+    report = status_on(facts, day(42))
+    assert report.status is Status.DRIFTING
+    assert report.flags[0].kind is FlagKind.PREDICTED_OUTSIDE
+    assert f"predicted {0.1002 * (1 - 1.2e-4 * 42):.5f} mol/L on 2026-04-12" in report.reasons[0]
+
+
+def test_a_recheck_outside_keeps_its_own_reason_first():
+    facts = BatchFacts(prepared_on=day(0), releases=(release(1),),
+                       rechecks=(CheckFact(day(5), 0.1001, 5e-5), CheckFact(day(9), 0.1000, 5e-5),
+                                 CheckFact(day(13), 0.09960, 5e-5)))
+    report = status_on(facts, day(13))
+    assert report.status is Status.DRIFTING
+    assert report.reasons[0].startswith("re-check on 2026-03-14 differs")
+    assert [f.kind for f in report.flags] == [FlagKind.RECHECK_OUTSIDE]
+
+
+def test_status_keeps_the_drift_report_of_the_release():
+    facts = drifting_facts(days=(7, 14, 21))
+    report = status_on(facts, day(22))
+    assert report.drift is not None and report.drift.fit is not None and report.drift.fit.n == 4
+    assert report.drift.band.certified == 0.1002
+
+
+checks_inside = st.lists(st.tuples(st.integers(1, 80), st.floats(-0.0049, 0.0049)), min_size=0, max_size=6)
+
+
+@given(history=checks_inside, new_day=st.integers(1, 89), new_offset=st.floats(-0.0049, 0.0049))
+def test_adding_a_recheck_inside_the_band_never_raises_a_flag_that_day(history, new_day, new_offset):
+    # Any history of re-checks inside the band, then one more inside the band, looked at on its own day.
+    # The re-check's own value decides that day: no tolerance flag, no re-check due, the batch in service.
+    # Only a forecast ("expected to leave tolerance on D") may appear: a run of in-band re-checks trending
+    # towards an edge is exactly what it is there to announce.
+    c0 = 0.1002
+    before = tuple(CheckFact(day(d), c0 * (1 + e), 5e-5) for d, e in history if d < new_day)
+    base = BatchFacts(prepared_on=day(0), releases=(release(0, c0, expires=90),), rechecks=before)
+    added = BatchFacts(prepared_on=day(0), releases=base.releases,
+                       rechecks=before + (CheckFact(day(new_day), c0 * (1 + new_offset), 5e-5),))
+    old, new = status_on(base, day(new_day)), status_on(added, day(new_day))
+    raised = {f.kind for f in new.flags} - {f.kind for f in old.flags}
+    assert raised <= {FlagKind.EXPECTED_TO_LEAVE}
+    assert new.status is Status.IN_SERVICE
+    if len(added.rechecks) < 2:  # fewer than 3 points: no trend, so nothing at all can be raised
+        assert new.flags == ()

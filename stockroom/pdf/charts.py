@@ -13,7 +13,7 @@ from collections.abc import Callable, Sequence
 from xml.sax.saxutils import escape
 
 from reportlab.graphics import renderSVG
-from reportlab.graphics.shapes import Circle, Drawing, Group, Line, Polygon, Rect, String
+from reportlab.graphics.shapes import Circle, Drawing, Group, Line, Polygon, PolyLine, Rect, String
 from reportlab.lib import colors
 from reportlab.pdfbase.pdfmetrics import stringWidth
 
@@ -33,6 +33,14 @@ OUTSIDE = colors.HexColor("#9b2226")
 ON_LINE = colors.HexColor("#8a5a00")
 
 _SAMPLES = 80  # straight pieces of each prediction-band edge (a hyperbola)
+
+
+def _dashed(x1: float, y1: float, x2: float, y2: float, dash: list[float] | None, **kw: object) -> Line | PolyLine:
+    """A straight line, dashed when `dash` is given; why PolyLine: renderSVG closes a Line's path (M…L…Z),
+    and the stroke back over it fills the gaps of the dash."""
+    if dash:
+        return PolyLine([x1, y1, x2, y2], strokeDashArray=dash, **kw)
+    return Line(x1, y1, x2, y2, **kw)
 
 
 def _nice_step(span: float, target: int) -> float:
@@ -144,16 +152,31 @@ def _marker(report: DriftReport) -> tuple[dt.date, str] | None:
     return None
 
 
+BASE_FONT = 8.5  # pt: the size the layout below is drawn at; other sizes scale the whole drawing
+
+
 def drift_drawing(report: DriftReport, width_pt: float = 640, height_pt: float = 300, *,
-                  on_label: str | None = None) -> Drawing:
+                  on_label: str | None = None, font_size: float | None = None) -> Drawing:
     """The drift chart of one release as a reportlab Drawing (vector; embed in a PDF or render to SVG).
 
     report: the release's drift (stockroom.drift.assess / policy.drift_on); width_pt, height_pt: size in
     points (1/72 in; one SVG px each); on_label: caption of the vertical line at report.on (default the
-    date). Molarity axis in mol/L at 20 °C, time axis in calendar dates.
+    date); font_size: text size in points (default 8.5, or 7 below 420 pt wide); lines and markers
+    scale with it. Molarity axis in mol/L at 20 °C, time axis in calendar dates.
     """
+    if font_size is not None and abs(font_size - BASE_FONT) > 1e-9:
+        k = font_size / BASE_FONT
+        inner = _draw(report, width_pt / k, height_pt / k, on_label, BASE_FONT)
+        outer = Drawing(width_pt, height_pt)
+        group = Group(*inner.contents)
+        group.scale(k, k)
+        outer.add(group)
+        return outer
+    return _draw(report, width_pt, height_pt, on_label, BASE_FONT if width_pt >= 420 else 7.0)
+
+
+def _draw(report: DriftReport, width_pt: float, height_pt: float, on_label: str | None, fs: float) -> Drawing:
     d = Drawing(width_pt, height_pt)
-    fs = 8.5 if width_pt >= 420 else 7.0
     left, right, bottom = 62.0, 14.0, 40.0
     start, end = _domain(report)
     fit = report.fit
@@ -206,16 +229,18 @@ def drift_drawing(report: DriftReport, width_pt: float = 640, height_pt: float =
         d.add(Polygon(pts, fillColor=PI_FILL, strokeColor=None))
     for edge in (band.low, band.high):
         if y0 <= Y(edge) <= y1:
-            d.add(Line(x0, Y(edge), x1, Y(edge), strokeColor=BAND_EDGE, strokeWidth=0.8, strokeDashArray=[3, 2]))
+            d.add(_dashed(x0, Y(edge), x1, Y(edge), [3, 2], strokeColor=BAND_EDGE, strokeWidth=0.8))
     d.add(Line(x0, Y(band.certified), x1, Y(band.certified), strokeColor=CERTIFIED, strokeWidth=1.2))
     if fit is not None:
         last_t = fit.days(fit.last_on)
-        for (ta, tb), dash in (((0, last_t), None), ((last_t, t_end), [5, 3])):
+        segments: tuple[tuple[tuple[float, float], list[float] | None], ...] = (((0, last_t), None),
+                                                                                ((last_t, t_end), [5.0, 3.0]))
+        for (ta, tb), dash in segments:
             if tb <= ta:
                 continue
             seg = _clip_segment(X(ta), Y(fit.value_at(ta)), X(tb), Y(fit.value_at(tb)), box)
             if seg:
-                d.add(Line(*seg, strokeColor=TREND, strokeWidth=1.4, strokeDashArray=dash))
+                d.add(_dashed(*seg, dash, strokeColor=TREND, strokeWidth=1.4))
 
     # Expiry, the day asked about, and where the trend meets the band.
     if start < report.expires_on <= end:
@@ -225,10 +250,15 @@ def drift_drawing(report: DriftReport, width_pt: float = 640, height_pt: float =
                      fillColor=MUTED, textAnchor="end"))
     if start <= report.on <= end:
         xo = X(report.on)
-        d.add(Line(xo, y0, xo, y1, strokeColor=ON_LINE, strokeWidth=0.9, strokeDashArray=[2, 2]))
+        d.add(_dashed(xo, y0, xo, y1, [2, 2], strokeColor=ON_LINE, strokeWidth=0.9))
         anchor = "end" if xo > (x0 + x1) / 2 else "start"
-        d.add(String(xo + (-3 if anchor == "end" else 3), y1 - fs - 2, on_label or report.on.isoformat(),
-                     fontName=FONT, fontSize=fs, fillColor=ON_LINE, textAnchor=anchor))
+        label = on_label or report.on.isoformat()
+        w = stringWidth(label, FONT, fs)
+        tx = xo + (-3 if anchor == "end" else 3)
+        # A white ground keeps the date readable where it crosses a band edge or the prediction band.
+        d.add(Rect(tx - w - 1 if anchor == "end" else tx - 1, y1 - fs - 4, w + 2, fs + 2, fillColor=colors.white,
+                   strokeColor=None))
+        d.add(String(tx, y1 - fs - 2, label, fontName=FONT, fontSize=fs, fillColor=ON_LINE, textAnchor=anchor))
     if fit is not None and marker is not None and start <= marker[0] <= end:
         edge = band.low if fit.slope < 0 else band.high
         xm, ym = X(marker[0]), clamp(Y(edge))
@@ -309,9 +339,9 @@ def _legend(d: Drawing | None, report: DriftReport, x: float, y: float, x_max: f
 
 
 def drift_svg(report: DriftReport, width_pt: float = 640, height_pt: float = 300, *, title: str = "",
-              on_label: str | None = None) -> str:
+              on_label: str | None = None, font_size: float | None = None) -> str:
     """The drift chart as SVG text (UTF-8), with `title` as its accessible title; sizes in points = px."""
-    svg = renderSVG.drawToString(drift_drawing(report, width_pt, height_pt, on_label=on_label))
+    svg = renderSVG.drawToString(drift_drawing(report, width_pt, height_pt, on_label=on_label, font_size=font_size))
     summary = title or "Drift chart"
     desc = _describe(report)
     svg = svg.replace("<title>...</title>", f"<title>{escape(summary)}</title>", 1)

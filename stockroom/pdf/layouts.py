@@ -54,11 +54,14 @@ PLACEHOLDERS: dict[str, str] = {
     "hazard_statements": "the H statements with their text",
     "precautionary_statements": "the P statements with their text (codes only when the text cannot fit)",
     "regulations": "the line deferring to local regulations and the chemical hygiene plan",
+    "regulations_short": "the same line, shorter, for small labels",
     "serial": "this label's print serial (unique in the database)",
     "printed_on": "the date of printing",
 }
 REQUIRED = ("batch_id", "reagent", "nominal", "certified", "standardized_on", "expires_on", "prepared_by",
             "signal_word", "hazard_statements", "precautionary_statements", "regulations", "serial")
+# A required item any one of whose forms will do.
+ALTERNATIVES: dict[str, tuple[str, ...]] = {"regulations": ("regulations", "regulations_short")}
 KINDS = ("text", "qr", "pictograms")
 ALIGNS = ("left", "centre", "center", "right")
 VALIGNS = ("top", "middle", "bottom")
@@ -274,8 +277,8 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
     page = r.table(data, "page")
     r.known(page, "[page] ", _PAGE_KEYS)
     if "size" in page:
-        size = r.text(page, "size", "[page] ", choices=tuple(PAGE_SIZES))
-        pw, ph = PAGE_SIZES.get(size, (0.0, 0.0))
+        paper = r.text(page, "size", "[page] ", choices=tuple(PAGE_SIZES))
+        pw, ph = PAGE_SIZES.get(paper, (0.0, 0.0))
         if "width_mm" in page or "height_mm" in page:
             r.problem("[page] size", "give either size or width_mm and height_mm, not both")
     else:
@@ -387,7 +390,7 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
 
     _check_overlaps(r, fields)
     used = {p for f in fields if f.kind == "text" for p in _safe_placeholders(f)}
-    missing = [p for p in REQUIRED if p not in used]
+    missing = [p for p in REQUIRED if not any(a in used for a in ALTERNATIVES.get(p, (p,)))]
     if missing:
         r.problem("[[field]]", "every label must show " + ", ".join("{" + p + "}" for p in missing))
     for kind in ("qr", "pictograms"):

@@ -26,17 +26,36 @@ def wants_json() -> bool:
 
 def register(app: Flask) -> None:
     """Attach every blueprint, the error handlers and the response headers to the app."""
-    from stockroom.web import access, account, api, batches, dashboard, formatting, health, intake, lots, preview, runs
+    from stockroom.web import (
+        access,
+        account,
+        api,
+        batches,
+        dashboard,
+        formatting,
+        hazards_admin,
+        health,
+        intake,
+        labday,
+        lots,
+        preview,
+        printing,
+        runs,
+    )
 
     csrf.init_app(app)
-    for module in (health, dashboard, batches, api, preview, account, runs, intake, lots):
+    for module in (health, dashboard, batches, api, preview, account, runs, intake, lots, labday):
+        app.register_blueprint(module.bp)
+    for module in (printing, hazards_admin):  # labels, certificates and hazard data
         app.register_blueprint(module.bp)
     app.register_blueprint(intake.api_bp)
+    app.register_blueprint(labday.api_bp)
     access.init_app(app)
     # The JSON API is for programs; it takes no cookies-based form posts (token auth comes later).
     csrf.exempt(api.bp)
     csrf.exempt(preview.bp)
     csrf.exempt(intake.api_bp)  # the preparation calculator: computes, stores nothing
+    csrf.exempt(labday.api_bp)  # the lab-day look-up: JSON reads only
     formatting.install(app)
 
     @app.errorhandler(StockroomError)

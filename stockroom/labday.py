@@ -1,0 +1,513 @@
+"""The lab-day look-up and the class-data correction.
+
+Pure composition: batch facts and a date in, the batches in force that day with the molarity to use,
+and a class's titration results recomputed with it, out. No web or database import.
+
+"In force" on a day D is policy.release_in_force: the newest release made on or before D, unless the
+batch had expired or been withdrawn by D. The certified value is at 20 °C; at the bench temperature
+T it is c(T) = c(20 °C)·[1 − α(T − 20 °C)] (corrections.molarity_at_temperature, EURACHEM/CITAC
+QUAM:2012), the value to use with burette readings taken at T.
+
+The predicted value on D comes from the drift fit of the release in force (stockroom.drift), using
+every standardization of that release recorded up to `known_on` (normally today): for a past lab day,
+re-checks made after it sharpen the estimate of what the titrant was that day; for a future day the
+line is extrapolated. The status and flags "that day" are policy.status_on(facts, D), as things stood
+on D. A flag is added when the fuller record shows the molarity was probably outside tolerance on D
+although nothing said so then.
+
+Class-data sheet (CSV, UTF-8, header row, columns in any order, `#` lines ignored, decimal point):
+
+    group,aliquot_ml,titrant_ml,ratio,analyte_per_titrant,reported_molarity,notes
+
+group: the bench or student group (text). aliquot_ml: volume of the analyte solution titrated, mL.
+titrant_ml: titrant delivered to the end point, mL. The stoichiometry as either `ratio`, written
+titrant:analyte in moles (NaOH titrating H2SO4 is 2:1), or `analyte_per_titrant`, moles of analyte per
+mole of titrant (0.5 for the same case) — one of the two per row. reported_molarity (optional): the
+analyte concentration the group reported, mol/L. notes (optional): text. Each result is
+
+    c_analyte = c_titrant · V_titrant · (analyte per titrant) / V_aliquot      (mol/L; volumes in mL)
+
+once with the titrant's nominal strength (the bottle's label) and once with the molarity in force
+that day; the relative error is (nominal result − corrected result) / corrected result.
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as dt
+import io
+import math
+import re
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass, field
+
+from stockroom import chemistry, corrections, drift
+from stockroom.drift import Flag, FlagKind
+from stockroom.errors import FieldError, InvalidInput
+from stockroom.policy import BatchFacts, ReleaseFact, Status, StatusReport, release_in_force, release_points, status_on
+
+BENCH_MIN_C = 5.0
+BENCH_MAX_C = 40.0
+REFERENCE_TEMPERATURE_C = corrections.REFERENCE_TEMPERATURE_C
+
+
+# ---------------------------------------------------------------------------------------------------------
+# The look-up
+
+
+@dataclass(frozen=True)
+class BatchRecord:
+    """One batch as the look-up needs it: its readable ID, titrant key, nominal molarity (mol/L), facts."""
+
+    code: str
+    reagent: str
+    nominal_molarity: float
+    facts: BatchFacts
+    id: int = 0
+
+
+@dataclass(frozen=True)
+class LabDayEntry:
+    """A batch in force on the day, with the molarity to use and what to know about it.
+
+    Molarities in mol/L (certified ones at 20 °C); bench_temperature_c in °C; dates as dates. status is
+    the batch's status as it stood that day; fit/prediction use standardizations up to known_on.
+    flags: the day's drift flags, then any seen only with the fuller record (kind HINDSIGHT_OUTSIDE).
+    """
+
+    batch: BatchRecord
+    on: dt.date
+    release: ReleaseFact
+    status: StatusReport
+    known_on: dt.date
+    fit: drift.Fit | None
+    fit_note: str | None
+    prediction: drift.Prediction | None
+    bench_temperature_c: float | None
+    molarity_at_bench: float | None
+    predicted_at_bench: float | None
+    flags: tuple[Flag, ...]
+
+    @property
+    def U(self) -> float:
+        """Expanded uncertainty of the certified value, mol/L (k as released)."""
+        return self.release.U
+
+    @property
+    def decimals(self) -> int:
+        """Decimals to show this batch's molarities with: U to two significant figures, as on every page."""
+        U = self.release.U
+        return max(0, 1 - math.floor(math.log10(U))) if U > 0 and math.isfinite(U) else 5
+
+    @property
+    def plain(self) -> tuple[str, ...]:
+        """Every flag as a sentence for a person; empty when nothing needs saying."""
+        return tuple(_sentence(f) for f in self.flags)
+
+    @property
+    def advice(self) -> str | None:
+        """What the status means for whoever uses the titrant that day, or None when it is in service."""
+        if any(f.kind is FlagKind.HINDSIGHT_OUTSIDE for f in self.flags) and self.status.status is Status.IN_SERVICE:
+            return "Results made with it that day may be off by more than the tolerance: correct them with care."
+        return ADVICE.get(self.status.status)
+
+
+ADVICE = {
+    Status.DRIFTING: "Ask the prep room before use: its strength may be outside tolerance.",
+    Status.RECHECK_DUE: "The certified value stands until the prep room re-checks it.",
+}
+
+
+@dataclass(frozen=True)
+class LabDay:
+    """The answer for one day: entries in force (may be empty), and when empty the reason in plain words.
+
+    reason is the whole answer as one text; headline and detail are its two parts (for a page or sheet).
+    future: the day is after the date the record was read on.
+    """
+
+    on: dt.date
+    titrant: str | None
+    bench_temperature_c: float | None
+    entries: tuple[LabDayEntry, ...]
+    headline: str | None = None
+    detail: str | None = None
+    future: bool = False
+
+    @property
+    def reason(self) -> str | None:
+        """Why nothing was in force, in plain words; None when something was."""
+        if self.headline is None:
+            return None
+        return self.headline + (f" {self.detail}" if self.detail else "")
+
+
+def _sentence(flag: Flag) -> str:
+    text = flag.message
+    return text[:1].upper() + text[1:] + ("" if text.endswith(".") else ".")
+
+
+def check_bench_temperature(value: float | None) -> float | None:
+    """The bench temperature if within 5–40 °C (the range the linear expansion model is used in), °C."""
+    if value is None:
+        return None
+    if not (isinstance(value, int | float) and math.isfinite(value) and BENCH_MIN_C <= value <= BENCH_MAX_C):
+        raise InvalidInput([FieldError("bench_temperature_c",
+                                       f"must be between {BENCH_MIN_C:g} and {BENCH_MAX_C:g} °C")])
+    return float(value)
+
+
+def _hindsight(entry_release: ReleaseFact, status: StatusReport, fit: drift.Fit | None,
+               prediction: drift.Prediction | None, on: dt.date, known_on: dt.date) -> Flag | None:
+    """A flag when later standardizations put the day's molarity outside tolerance and that day did not say so."""
+    if known_on <= on or fit is None or prediction is None or not fit.significant or fit.last_on <= on:
+        return None
+    band = drift.Band(entry_release.molarity, entry_release.tolerance_rel)
+    if band.contains(prediction.molarity) or status.status is Status.DRIFTING:
+        return None
+    dev = band.deviation(prediction.molarity) * 100
+    return Flag(FlagKind.HINDSIGHT_OUTSIDE,
+                f"by the standardizations recorded up to {fit.last_on.isoformat()}, it was probably outside "
+                f"tolerance that day: {prediction.molarity:.5f} mol/L ({dev:+.2f} %, tolerance "
+                f"±{band.tolerance_rel * 100:.2f} %)", on)
+
+
+def entry_for(batch: BatchRecord, on: dt.date, known_on: dt.date, bench_temperature_c: float | None = None,
+              alpha_per_k: float = corrections.ALPHA_WATER_PER_K) -> LabDayEntry | None:
+    """The lab-day entry of one batch, or None when no release of it was in force on `on`.
+
+    on: the lab day; known_on: standardizations recorded up to this date inform the prediction (a
+    later date than `on` for a past day); bench_temperature_c in °C or None; alpha_per_k in 1/K.
+    """
+    release = release_in_force(batch.facts, on)
+    if release is None:
+        return None
+    bench = check_bench_temperature(bench_temperature_c)
+    status = status_on(batch.facts, on)
+    until = max(on, known_on)
+    fit, note = drift.fit_line(release_points(batch.facts, release, until), release.released_on)
+    prediction = drift.predict(fit, on) if fit is not None else None
+    at_bench = predicted_bench = None
+    if bench is not None:
+        at_bench = corrections.molarity_at_temperature(release.molarity, REFERENCE_TEMPERATURE_C, bench, alpha_per_k)
+        if prediction is not None:
+            predicted_bench = corrections.molarity_at_temperature(prediction.molarity, REFERENCE_TEMPERATURE_C, bench,
+                                                                  alpha_per_k)
+    flags = list(status.flags)
+    late = _hindsight(release, status, fit, prediction, on, until)
+    if late is not None:
+        flags.append(late)
+    return LabDayEntry(batch=batch, on=on, release=release, status=status, known_on=until, fit=fit, fit_note=note,
+                       prediction=prediction, bench_temperature_c=bench, molarity_at_bench=at_bench,
+                       predicted_at_bench=predicted_bench, flags=tuple(flags))
+
+
+def _why_not(batch: BatchRecord, on: dt.date) -> str:
+    """Why one batch was not in force on `on`, in a few words."""
+    facts = batch.facts
+    if facts.prepared_on > on:
+        return f"{batch.code} was prepared later, on {facts.prepared_on.isoformat()}"
+    report = status_on(facts, on)
+    if report.status is Status.AWAITING:
+        first = min((r.released_on for r in facts.releases), default=None)
+        later = f" (first released {first.isoformat()})" if first else ""
+        return f"{batch.code} was not yet standardized{later}"
+    if report.status is Status.WITHDRAWN and facts.withdrawn_on is not None:
+        return f"{batch.code} had been withdrawn on {facts.withdrawn_on.isoformat()}"
+    if report.status is Status.EXPIRED and report.release is not None:
+        return f"{batch.code} had expired on {report.release.expires_on.isoformat()}"
+    return f"{batch.code} was not in force"
+
+
+def lab_day(batches: Iterable[BatchRecord], on: dt.date, known_on: dt.date, titrant: str | None = None,
+            bench_temperature_c: float | None = None,
+            alpha_per_k: float = corrections.ALPHA_WATER_PER_K) -> LabDay:
+    """Every batch of a titrant (all titrants when None) in force on `on`, most urgent flags first.
+
+    batches: BatchRecords (any titrants; those of other titrants are ignored); on: the lab day;
+    known_on: the date the record is read on (today); titrant: catalogue key; bench_temperature_c in °C
+    (5–40) or None; alpha_per_k in 1/K. Returns a LabDay; an empty one carries the reason.
+    """
+    bench = check_bench_temperature(bench_temperature_c)
+    key = chemistry.titrant(titrant).key if titrant else None
+    mine = [b for b in batches if key is None or b.reagent == key]
+    entries = [e for e in (entry_for(b, on, known_on, bench, alpha_per_k) for b in mine) if e is not None]
+    order = {s: i for i, s in enumerate((Status.DRIFTING, Status.RECHECK_DUE, Status.IN_SERVICE))}
+    entries.sort(key=lambda e: (e.batch.reagent, e.batch.nominal_molarity, order.get(e.status.status, 9),
+                                e.batch.code))
+    headline = detail = None
+    if not entries:
+        what = f"{key} batch" if key else "titrant batch"
+        headline = f"No {what} was in force on {on.isoformat()}."
+        if not mine:
+            detail = f"None is recorded{' for ' + key if key else ''}."
+        else:
+            why = [_why_not(b, on) for b in sorted(mine, key=lambda b: b.code)]
+            detail = "; ".join(why[:6]) + ("; …" if len(why) > 6 else "")
+            detail = detail[:1].upper() + detail[1:] + "."
+    return LabDay(on=on, titrant=key, bench_temperature_c=bench, entries=tuple(entries), headline=headline,
+                  detail=detail, future=on > known_on)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Cautions for a sheet posted at the bench
+
+
+def cautions(entries: Sequence[LabDayEntry]) -> tuple[str, ...]:
+    """The usual cautions for handling the titrants listed (common practice), deferring to the local rules."""
+    lines = ["Wear eye protection, gloves and a lab coat when filling burettes; rinse any splash from skin or "
+             "eyes at once with plenty of water and tell the instructor (common practice)."]
+    strong = sorted({f"{e.batch.reagent} {e.batch.nominal_molarity:g} mol/L" for e in entries
+                     if chemistry.titrant(e.batch.reagent).role == chemistry.BASE and e.batch.nominal_molarity >= 0.5
+                     or chemistry.titrant(e.batch.reagent).role == chemistry.ACID and e.batch.nominal_molarity >= 1.0})
+    if strong:
+        lines.append(", ".join(strong) + ": at this strength the solution can burn skin and damage eyes; fill "
+                     "burettes below eye level with a funnel (common practice; check the bottle's label).")
+    lines.append("These are the usual cautions only: the label, the safety data sheet, local regulations and the "
+                 "institution's chemical hygiene plan take precedence.")
+    return tuple(lines)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Class-data correction
+
+CLASS_COLUMNS = ("group", "aliquot_ml", "titrant_ml", "ratio", "analyte_per_titrant", "reported_molarity", "notes")
+_REQUIRED = ("group", "aliquot_ml", "titrant_ml")
+_PLAIN = re.compile(r"[+]?(?:\d+\.?\d*|\.\d+)")
+MAX_VOLUME_ML = 1000.0
+MAX_RATIO = 10.0
+MAX_GROUP_LENGTH = 60
+
+
+@dataclass(frozen=True)
+class ClassRow:
+    """One group's titration: line in the file, volumes in mL, moles of analyte per mole of titrant.
+
+    reported_molarity in mol/L or None; ratio_text the stoichiometry as written in the file.
+    """
+
+    line: int
+    group: str
+    aliquot_ml: float
+    titrant_ml: float
+    analyte_per_titrant: float
+    ratio_text: str = ""
+    reported_molarity: float | None = None
+    notes: str = ""
+
+
+@dataclass(frozen=True)
+class ClassSheet:
+    """A read class-data sheet: the good rows and the problems by line (line 0: the file as a whole)."""
+
+    rows: tuple[ClassRow, ...] = ()
+    problems: tuple[tuple[int, str], ...] = field(default_factory=tuple)
+
+    @property
+    def ok(self) -> bool:
+        return not self.problems and bool(self.rows)
+
+
+def _positive(text: str, column: str, upper: float, unit: str) -> tuple[float | None, str | None]:
+    t = text.strip()
+    if "," in t and _PLAIN.fullmatch(t.replace(",", ".")):
+        return None, f"{column}: use a point, not a comma, for the decimal sign ({t.replace(',', '.')})"
+    if not _PLAIN.fullmatch(t):
+        return None, f"{column}: {t!r} is not a plain decimal number"
+    v = float(t)
+    if not (0 < v <= upper):
+        return None, f"{column}: must be above 0 and at most {upper:g}{(' ' + unit) if unit else ''} (got {t})"
+    return v, None
+
+
+def _ratio(text: str) -> tuple[float | None, str | None]:
+    parts = text.strip().split(":")
+    if len(parts) != 2:
+        return None, (f"ratio: write it titrant:analyte in moles, e.g. 2:1 (got {text.strip()!r}); a spreadsheet "
+                      "may have turned it into a time — use analyte_per_titrant instead")
+    (t, p1), (a, p2) = (_positive(parts[0], "ratio", 1000, ""), _positive(parts[1], "ratio", 1000, ""))
+    if p1 or p2:
+        return None, p1 or p2
+    assert t is not None and a is not None
+    value = a / t
+    if value > MAX_RATIO:
+        return None, f"ratio: {text.strip()} means {value:g} mol of analyte per mol of titrant, more than {MAX_RATIO:g}"
+    return value, None
+
+
+def read_class_sheet(text: str, max_rows: int) -> ClassSheet:
+    """Read a class-data CSV (layout in the module docstring); every problem is reported with its line.
+
+    text: the file's text; max_rows: most data rows accepted. Returns a ClassSheet; rows with a problem
+    are left out of rows and named in problems.
+    """
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    lines = [(i, line) for i, line in enumerate(text.splitlines(), start=1)
+             if line.strip() and not line.lstrip().startswith("#")]
+    if not lines:
+        return ClassSheet(problems=((0, "the file has no header row and no data"),))
+    reader = csv.reader([line for _, line in lines])
+    header_line = lines[0][0]
+    try:
+        header = [h.strip().lower() for h in next(reader)]
+    except csv.Error as exc:
+        return ClassSheet(problems=((header_line, f"the header row cannot be read: {exc}"),))
+    problems: list[tuple[int, str]] = []
+    unknown = [h for h in header if h not in CLASS_COLUMNS]
+    if unknown:
+        problems.append((header_line, "unknown column(s) " + ", ".join(repr(h) for h in unknown) + "; the columns are "
+                         + ", ".join(CLASS_COLUMNS)))
+    if len(set(header)) != len(header):
+        problems.append((header_line, "a column name appears twice in the header"))
+    missing = [c for c in _REQUIRED if c not in header]
+    if missing:
+        problems.append((header_line, "the header lacks " + ", ".join(missing)))
+    if "ratio" not in header and "analyte_per_titrant" not in header:
+        problems.append((header_line, "the header needs a ratio (titrant:analyte) or an analyte_per_titrant column"))
+    if problems:
+        return ClassSheet(problems=tuple(problems))
+    data = lines[1:]
+    if len(data) > max_rows:
+        return ClassSheet(problems=((0, f"the file has {len(data)} data rows; at most {max_rows} are accepted"),))
+    rows: list[ClassRow] = []
+    try:
+        cells_list = list(reader)
+    except csv.Error as exc:
+        return ClassSheet(problems=((0, f"the file cannot be read as CSV: {exc}"),))
+    for (line_no, _), cells in zip(data, cells_list, strict=False):
+        if len(cells) != len(header):
+            problems.append((line_no, f"has {len(cells)} cells; the header has {len(header)}"))
+            continue
+        v = {h: c.strip() for h, c in zip(header, cells, strict=True)}
+        errs: list[str] = []
+        group = v.get("group", "")
+        if not group:
+            errs.append("group: is required")
+        elif len(group) > MAX_GROUP_LENGTH:
+            errs.append(f"group: at most {MAX_GROUP_LENGTH} characters")
+        nums: dict[str, float | None] = {}
+        for col in ("aliquot_ml", "titrant_ml"):
+            if not v.get(col):
+                errs.append(f"{col}: is required")
+                nums[col] = None
+            else:
+                nums[col], why = _positive(v[col], col, MAX_VOLUME_ML, "mL")
+                if why:
+                    errs.append(why)
+        ratio_text, per = v.get("ratio", ""), v.get("analyte_per_titrant", "")
+        apt: float | None = None
+        if ratio_text and per:
+            errs.append("give the stoichiometry once: ratio or analyte_per_titrant, not both")
+        elif ratio_text:
+            apt, why = _ratio(ratio_text)
+            if why:
+                errs.append(why)
+        elif per:
+            apt, why = _positive(per, "analyte_per_titrant", MAX_RATIO, "")
+            if why:
+                errs.append(why)
+        else:
+            errs.append("the stoichiometry is missing: fill ratio (titrant:analyte) or analyte_per_titrant")
+        reported = None
+        if v.get("reported_molarity"):
+            reported, why = _positive(v["reported_molarity"], "reported_molarity", 100.0, "mol/L")
+            if why:
+                errs.append(why)
+        if errs:
+            problems.extend((line_no, e) for e in errs)
+            continue
+        assert nums["aliquot_ml"] is not None and nums["titrant_ml"] is not None and apt is not None
+        rows.append(ClassRow(line=line_no, group=group, aliquot_ml=nums["aliquot_ml"], titrant_ml=nums["titrant_ml"],
+                             analyte_per_titrant=apt, ratio_text=ratio_text, reported_molarity=reported,
+                             notes=v.get("notes", "")))
+    if not rows and not problems:
+        problems.append((0, "the file has a header but no data rows"))
+    return ClassSheet(rows=tuple(rows), problems=tuple(problems))
+
+
+def analyte_molarity(titrant_molarity: float, titrant_ml: float, analyte_per_titrant: float, aliquot_ml: float) -> float:
+    """Analyte concentration from a titration, mol/L.
+
+    titrant_molarity in mol/L; titrant_ml and aliquot_ml in mL (their unit cancels); analyte_per_titrant
+    in mol/mol. Returns c_titrant·V_titrant·ratio/V_aliquot.
+    """
+    return titrant_molarity * titrant_ml * analyte_per_titrant / aliquot_ml
+
+
+@dataclass(frozen=True)
+class ClassResult:
+    """One row recomputed: analyte molarities (mol/L) with the nominal and the in-force titrant strength.
+
+    relative_error: (nominal − corrected)/corrected, a fraction; reported_error likewise for the
+    group's own reported value (None when not given).
+    """
+
+    row: ClassRow
+    with_nominal: float
+    corrected: float
+    relative_error: float
+    reported_error: float | None
+
+
+def correct_class(rows: Sequence[ClassRow], molarity_used: float, nominal_molarity: float) -> tuple[ClassResult, ...]:
+    """Each row's result with the titrant molarity in force (mol/L) beside the nominal one (mol/L)."""
+    out = []
+    for r in rows:
+        nominal = analyte_molarity(nominal_molarity, r.titrant_ml, r.analyte_per_titrant, r.aliquot_ml)
+        corrected = analyte_molarity(molarity_used, r.titrant_ml, r.analyte_per_titrant, r.aliquot_ml)
+        reported = (r.reported_molarity - corrected) / corrected if r.reported_molarity is not None else None
+        out.append(ClassResult(row=r, with_nominal=nominal, corrected=corrected,
+                               relative_error=(nominal - corrected) / corrected, reported_error=reported))
+    return tuple(out)
+
+
+_STORED = ("line", "group", "aliquot_ml", "titrant_ml", "analyte_per_titrant", "ratio", "reported_molarity", "notes")
+
+
+def _g(value: float | None) -> str:
+    return "" if value is None else f"{value:.10g}"
+
+
+def rows_to_csv(rows: Sequence[ClassRow]) -> str:
+    """The rows as read, as CSV text: the copy of the upload kept with a correction."""
+    out = io.StringIO()
+    w = csv.writer(out, lineterminator="\n")
+    w.writerow(_STORED)
+    for r in rows:
+        w.writerow([r.line, r.group, _g(r.aliquot_ml), _g(r.titrant_ml), repr(r.analyte_per_titrant), r.ratio_text,
+                    _g(r.reported_molarity), r.notes])
+    return out.getvalue()
+
+
+def rows_from_csv(text: str) -> tuple[ClassRow, ...]:
+    """Rows back from rows_to_csv's text (stockroom's own stored copy)."""
+    rows = []
+    for d in csv.DictReader(io.StringIO(text)):
+        rows.append(ClassRow(line=int(d["line"]), group=d["group"], aliquot_ml=float(d["aliquot_ml"]),
+                             titrant_ml=float(d["titrant_ml"]), analyte_per_titrant=float(d["analyte_per_titrant"]),
+                             ratio_text=d["ratio"],
+                             reported_molarity=float(d["reported_molarity"]) if d["reported_molarity"] else None,
+                             notes=d["notes"]))
+    return tuple(rows)
+
+
+RESULT_COLUMNS = ("line", "group", "aliquot_ml", "titrant_ml", "analyte_per_titrant", "result_nominal_mol_l",
+                  "result_corrected_mol_l", "relative_error_percent", "reported_mol_l", "reported_error_percent",
+                  "notes")
+
+
+def results_to_csv(results: Sequence[ClassResult], about: Mapping[str, str]) -> str:
+    """The corrected results as CSV text, preceded by `# key: value` lines saying how they were made."""
+    out = io.StringIO()
+    for k, v in about.items():
+        out.write(f"# {k}: {v}\n")
+    w = csv.writer(out, lineterminator="\n")
+    w.writerow(RESULT_COLUMNS)
+    for res in results:
+        r = res.row
+        w.writerow([r.line, r.group, _g(r.aliquot_ml), _g(r.titrant_ml), f"{r.analyte_per_titrant:.6g}",
+                    f"{res.with_nominal:.6f}", f"{res.corrected:.6f}", f"{res.relative_error * 100:.3f}",
+                    _g(r.reported_molarity),
+                    "" if res.reported_error is None else f"{res.reported_error * 100:.3f}", r.notes])
+    return out.getvalue()

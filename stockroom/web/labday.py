@@ -1,0 +1,375 @@
+"""The lab-day look-up (page, printable sheet, JSON), the class-data correction, and a batch's drift chart.
+
+Reads are open like every other page (OPEN_READS); correcting class data needs `classdata.correct`
+(instructors: it is their students' data). The look-up answers "what molarity do we use that day?"
+from stockroom.labday; the correction stores one append-only row per upload plus its audit event.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+from collections.abc import Mapping
+from typing import Any
+
+import sqlite_utils
+from flask import Blueprint, Response, current_app, jsonify, redirect, render_template, request, url_for
+
+from stockroom import chemistry, records
+from stockroom import db as dbmod
+from stockroom import labday as ld
+from stockroom.chemistry import UnknownSubstance
+from stockroom.db import get_db
+from stockroom.errors import InvalidInput, NotFound
+from stockroom.pdf.charts import drift_svg
+from stockroom.pdf.labday_sheet import labday_sheet_pdf
+from stockroom.policy import drift_on
+from stockroom.web import lab_today
+from stockroom.web.access import current_user, require
+from stockroom.web.inputs import MISSING, Parser
+
+bp = Blueprint("labday", __name__)
+api_bp = Blueprint("labday_api", __name__, url_prefix="/api/v1")
+
+API_KEYS = ("date", "titrant", "bench_temperature_c")
+CHART_WIDTH, CHART_HEIGHT = 1080, 430  # px: the width of a batch page's panel
+
+
+# ---------------------------------------------------------------- loading
+
+def load_batches(db: sqlite_utils.Database, titrant: str | None) -> list[ld.BatchRecord]:
+    """Every batch of a titrant (all when None) with its facts, in a fixed number of queries."""
+    sql, params = "SELECT id, code, reagent, nominal_molarity FROM batches", []
+    if titrant:
+        sql += " WHERE reagent = ?"
+        params.append(titrant)
+    rows = dbmod.query(db, sql + " ORDER BY code", params)
+    if not rows:
+        return []
+    facts = records._facts_bulk(db, [r["id"] for r in rows])
+    return [ld.BatchRecord(code=r["code"], reagent=r["reagent"], nominal_molarity=float(r["nominal_molarity"]),
+                           facts=facts[r["id"]], id=r["id"]) for r in rows]
+
+
+def _alpha() -> float:
+    return float(current_app.config.get("EXPANSION_COEFFICIENT_PER_K", 2.1e-4))
+
+
+# ---------------------------------------------------------------- parsing the question
+
+def _titrant_key(p: Parser, raw: Any, field: str, required: bool) -> str | None:
+    if raw is MISSING or raw is None or (isinstance(raw, str) and not raw.strip()):
+        if required:
+            p.error(field, "is required: a titrant such as HCl or NaOH")
+        return None
+    try:
+        return chemistry.titrant(str(raw)).key
+    except UnknownSubstance:
+        known = ", ".join(t.key for t in chemistry.list_titrants())
+        p.error(field, f"unknown titrant {str(raw)!r}; known: {known}")
+        return None
+
+
+def _date(p: Parser, raw: Any, field: str, default: dt.date | None) -> dt.date | None:
+    if raw is MISSING or raw is None or (isinstance(raw, str) and not raw.strip()):
+        if default is None:
+            p.error(field, "is required; write it as YYYY-MM-DD")
+        return default
+    try:
+        return dt.date.fromisoformat(str(raw).strip())
+    except ValueError:
+        p.error(field, f"{raw!r} is not a date; write it as YYYY-MM-DD")
+        return None
+
+
+def parse_question(args: Mapping[str, Any], *, strict: bool, default_day: dt.date | None = None
+                   ) -> tuple[dt.date, str | None, float | None]:
+    """(day, titrant key or None, bench temperature °C or None) from a query; InvalidInput naming each field.
+
+    strict (the API): date and titrant are required and unknown keys are refused.
+    """
+    p = Parser()
+    if strict:
+        p.known_keys(args, API_KEYS)
+    day = _date(p, args.get("date", MISSING), "date", None if strict else default_day)
+    titrant = _titrant_key(p, args.get("titrant", MISSING), "titrant", strict)
+    bench = p.number(args.get("bench_temperature_c", MISSING), "bench_temperature_c", required=False,
+                     ge=ld.BENCH_MIN_C, le=ld.BENCH_MAX_C, unit="°C")
+    p.raise_if_errors()
+    assert day is not None
+    return day, titrant, bench
+
+
+def look_up(day: dt.date, titrant: str | None, bench: float | None) -> ld.LabDay:
+    """The lab day read from the database today."""
+    return ld.lab_day(load_batches(get_db(), titrant), day, lab_today(), titrant, bench, _alpha())
+
+
+# ---------------------------------------------------------------- the look-up
+
+@bp.get("/lab-day")
+def page() -> Any:
+    """The look-up page; a bad question re-shows the form with the message beside the field (422)."""
+    today = lab_today()
+    values = {"date": request.args.get("date") or today.isoformat(), "titrant": request.args.get("titrant", ""),
+              "bench_temperature_c": request.args.get("bench_temperature_c", "")}
+    context: dict[str, Any] = {"values": values, "errors": {}, "day": None, "today": today, "alpha": _alpha(),
+                               "titrants": [(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()]}
+    try:
+        day, titrant, bench = parse_question(request.args, strict=False, default_day=today)
+    except InvalidInput as exc:
+        context["errors"] = exc.fields
+        return render_template("labday/index.html", **context), 422
+    query: dict[str, Any] = {"date": day.isoformat(), **({"titrant": titrant} if titrant else {}),
+             **({"bench_temperature_c": f"{bench:g}"} if bench is not None else {})}
+    result = look_up(day, titrant, bench)
+    context.update(day=result, cautions=ld.cautions(result.entries), query=query,
+                   pdf_url=url_for("labday.sheet", **query),
+                   json_url=url_for("labday_api.lab_day_json", **query) if titrant else None)
+    return render_template("labday/index.html", **context)
+
+
+@bp.get("/lab-day.pdf")
+def sheet() -> Response:
+    """The printable lab-day sheet (A4 PDF) for the same question as the page."""
+    day, titrant, bench = parse_question(request.args, strict=False, default_day=lab_today())
+    result = look_up(day, titrant, bench)
+    pdf = labday_sheet_pdf(result, printed_on=lab_today())
+    name = f"lab-day-{day.isoformat()}{'-' + titrant if titrant else ''}.pdf"
+    return Response(pdf, mimetype="application/pdf", headers={"Content-Disposition": f'inline; filename="{name}"'})
+
+
+def _iso(d: dt.date | None) -> str | None:
+    return d.isoformat() if d else None
+
+
+def entry_json(e: ld.LabDayEntry, bench_asked: bool) -> dict[str, Any]:
+    """One batch of the lab-day answer as JSON-ready values (mol/L, dates ISO)."""
+    r = e.release
+    body: dict[str, Any] = {
+        "batch_id": e.batch.code,
+        "titrant": e.batch.reagent,
+        "nominal_molarity": e.batch.nominal_molarity,
+        "unit": "mol/L",
+        "release_id": r.id,
+        "molarity": r.molarity,
+        "u": r.u,
+        "U": r.U,
+        "k": r.k,
+        "reference_temperature_c": ld.REFERENCE_TEMPERATURE_C,
+        "released_on": r.released_on.isoformat(),
+        "expires_on": r.expires_on.isoformat(),
+        "tolerance_rel": r.tolerance_rel,
+        "status": e.status.status.value,
+        "status_label": e.status.status.label,
+        "predicted_molarity": e.prediction.molarity if e.prediction else None,
+        "prediction_interval": ({"low": e.prediction.pi_low, "high": e.prediction.pi_high,
+                                 "confidence": e.prediction.confidence} if e.prediction else None),
+        "trend": None,
+        "trend_note": e.fit_note,
+        "flags": [{"kind": f.kind.value, "message": f.message, "date": _iso(f.date)} for f in e.flags],
+    }
+    if e.fit is not None:
+        lo, hi = e.fit.slope_per_period_ci
+        body["trend"] = {
+            "points": e.fit.n, "through": e.fit.last_on.isoformat(),
+            "slope_per_30_days": e.fit.slope_per_period, "slope_per_30_days_ci": [lo, hi],
+            "confidence": e.fit.confidence, "p_value": e.fit.p_value, "significant": e.fit.significant,
+        }
+    if bench_asked:
+        body["bench_temperature_c"] = e.bench_temperature_c
+        body["molarity_at_bench"] = e.molarity_at_bench
+        body["predicted_molarity_at_bench"] = e.predicted_at_bench
+    return body
+
+
+@api_bp.get("/lab-day")
+def lab_day_json() -> Any:
+    """GET /api/v1/lab-day?date=YYYY-MM-DD&titrant=HCl[&bench_temperature_c=23]."""
+    day, titrant, bench = parse_question(request.args, strict=True)
+    result = look_up(day, titrant, bench)
+    body: dict[str, Any] = {
+        "date": day.isoformat(), "titrant": titrant, "known_on": lab_today().isoformat(),
+        "batches": [entry_json(e, bench is not None) for e in result.entries],
+        "reason": result.reason,
+    }
+    if bench is not None:
+        body["bench_temperature_c"] = bench
+    return jsonify(body)
+
+
+# ---------------------------------------------------------------- drift chart
+
+@bp.get("/batches/<code>/drift.svg")
+def drift_chart(code: str) -> Response:
+    """The drift chart of a batch's release as of ?on= (default today), as SVG."""
+    db = get_db()
+    batch = records.batch_by_code(db, code)
+    p = Parser()
+    on = _date(p, request.args.get("on", MISSING), "on", lab_today())
+    p.raise_if_errors()
+    assert on is not None
+    report = drift_on(records.batch_facts(db, batch["id"]), on)
+    if report is None:
+        raise NotFound(f"batch {code} has no release by {on.isoformat()}, so it has no drift chart")
+    svg = drift_svg(report, CHART_WIDTH, CHART_HEIGHT, title=f"Drift of {code} as of {on.isoformat()}", font_size=11.5)
+    resp = Response(svg, mimetype="image/svg+xml")
+    # reportlab's SVG styles its shapes with style attributes; this image runs no script, so allow those.
+    resp.headers["Content-Security-Policy"] = "default-src 'none'; style-src 'unsafe-inline'"
+    resp.headers["Cache-Control"] = "no-cache"
+    return resp
+
+
+# ---------------------------------------------------------------- class-data correction
+
+def record_correction(db: sqlite_utils.Database, *, lab_day: dt.date, entry: ld.LabDayEntry, molarity_used: float,
+                      rows: tuple[ld.ClassRow, ...], upload: bytes, upload_name: str, actor: str) -> int:
+    """Store one class-data correction and its audit event in one write; return its id."""
+    with dbmod.write(db):
+        row = {
+            "lab_day": lab_day.isoformat(), "titrant": entry.batch.reagent, "batch_id": entry.batch.id,
+            "release_id": entry.release.id, "certified_molarity": entry.release.molarity,
+            "bench_temperature_c": entry.bench_temperature_c, "molarity_used": molarity_used,
+            "nominal_molarity": entry.batch.nominal_molarity, "row_count": len(rows),
+            "upload_name": upload_name[:200], "upload_sha256": hashlib.sha256(upload).hexdigest(),
+            "rows_csv": ld.rows_to_csv(rows), "recorded_at": records.utc_now(), "recorded_by": actor,
+        }
+        pk = db.table("class_corrections").insert(row).last_pk
+        assert pk is not None
+        cid = int(pk)
+        records.append_event(db, actor, "classdata.correct", entity="class_corrections", entity_id=cid,
+                             batch_id=entry.batch.id,
+                             detail={"lab_day": row["lab_day"], "titrant": row["titrant"],
+                                     "release_id": row["release_id"], "molarity_used": molarity_used,
+                                     "rows": len(rows), "upload_sha256": row["upload_sha256"]})
+    return cid
+
+
+def correction_by_id(db: sqlite_utils.Database, cid: int) -> dict[str, Any]:
+    """One stored class-data correction with its batch code; NotFound if none."""
+    rows = dbmod.query(db, "SELECT c.*, b.code AS batch_code FROM class_corrections c JOIN batches b "
+                           "ON b.id = c.batch_id WHERE c.id = ?", [cid])
+    if not rows:
+        raise NotFound(f"no class-data correction with id {cid}")
+    return rows[0]
+
+
+def corrections_with_release(db: sqlite_utils.Database, release_id: int) -> list[dict[str, Any]]:
+    """Every class-data correction made with a release (for a recall), oldest first."""
+    return dbmod.query(db, "SELECT * FROM class_corrections WHERE release_id = ? ORDER BY id", [release_id])
+
+
+def _correct_form(values: Mapping[str, Any], errors: Mapping[str, str], problems: list[tuple[int, str]],
+                  choices: list[ld.LabDayEntry], status: int = 200) -> tuple[str, int]:
+    return render_template(
+        "labday/correct.html", values=values, errors=errors, problems=problems, choices=choices,
+        titrants=[(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
+        columns=ld.CLASS_COLUMNS, max_rows=int(current_app.config["CSV_MAX_ROWS"]),
+        max_bytes=int(current_app.config.get("MAX_CONTENT_LENGTH") or 0)), status
+
+
+@bp.route("/lab-day/correct", methods=["GET", "POST"])
+@require("classdata.correct")
+def correct() -> Any:
+    """Upload a class's results for a lab day; each is recomputed with the molarity in force that day."""
+    if request.method == "GET":
+        values = {"lab_day": request.args.get("date") or lab_today().isoformat(),
+                  "titrant": request.args.get("titrant", ""),
+                  "bench_temperature_c": request.args.get("bench_temperature_c", ""), "batch": ""}
+        return _correct_form(values, {}, [], [])
+    form = request.form
+    p = Parser()
+    day = _date(p, form.get("lab_day", MISSING), "lab_day", None)
+    titrant = _titrant_key(p, form.get("titrant", MISSING), "titrant", True)
+    bench = p.number(form.get("bench_temperature_c", MISSING), "bench_temperature_c", required=False,
+                     ge=ld.BENCH_MIN_C, le=ld.BENCH_MAX_C, unit="°C")
+    chosen = (form.get("batch") or "").strip()
+    choices: list[ld.LabDayEntry] = []
+    entry = None
+    if p.ok and day is not None and titrant is not None:
+        result = look_up(day, titrant, bench)
+        choices = list(result.entries)
+        if not choices:
+            p.error("lab_day", result.reason or f"no {titrant} batch was in force that day")
+        elif chosen:
+            entry = next((e for e in choices if e.batch.code == chosen), None)
+            if entry is None:
+                p.error("batch", f"{chosen} was not in force on {day.isoformat()}; in force then: "
+                        + ", ".join(e.batch.code for e in choices))
+        elif len(choices) > 1:
+            p.error("batch", f"{len(choices)} {titrant} batches were in force on {day.isoformat()}: choose the one "
+                    "the class used")
+        else:
+            entry = choices[0]
+    upload = request.files.get("sheet")
+    problems: list[tuple[int, str]] = []
+    raw = b""
+    sheet: ld.ClassSheet | None = None
+    if upload is None or not upload.filename:
+        p.error("sheet", "choose the class's CSV file")
+    else:
+        raw = upload.read()
+        try:
+            text = raw.decode("utf-8")
+        except UnicodeDecodeError:
+            p.error("sheet", "the file is not UTF-8 text; save it as CSV (UTF-8)")
+            text = None
+        if text is not None:
+            sheet = ld.read_class_sheet(text, int(current_app.config["CSV_MAX_ROWS"]))
+            problems = list(sheet.problems)
+            if problems:
+                p.error("sheet", f"{len(problems)} problem(s) in the file; nothing was recorded")
+    if not p.ok:
+        return _correct_form(form, InvalidInput(p.errors).fields, problems, choices, 422)
+    assert entry is not None and day is not None and sheet is not None and upload is not None
+    molarity_used = entry.molarity_at_bench if entry.molarity_at_bench is not None else entry.release.molarity
+    user = current_user()
+    assert user is not None
+    cid = record_correction(get_db(), lab_day=day, entry=entry, molarity_used=molarity_used, rows=sheet.rows,
+                            upload=raw, upload_name=upload.filename or "", actor=user.username)
+    return redirect(url_for("labday.correction", cid=cid), 303)
+
+
+def _stored(cid: int) -> tuple[dict[str, Any], tuple[ld.ClassResult, ...], ld.LabDayEntry | None]:
+    db = get_db()
+    row = correction_by_id(db, cid)
+    results = ld.correct_class(ld.rows_from_csv(row["rows_csv"]), row["molarity_used"], row["nominal_molarity"])
+    day = dt.date.fromisoformat(row["lab_day"])
+    batch = next((b for b in load_batches(db, row["titrant"]) if b.id == row["batch_id"]), None)
+    entry = ld.entry_for(batch, day, lab_today(), row["bench_temperature_c"], _alpha()) if batch else None
+    return row, results, entry
+
+
+@bp.get("/lab-day/corrections/<int:cid>")
+@require("classdata.correct")
+def correction(cid: int) -> Any:
+    row, results, entry = _stored(cid)
+    errors = [r.relative_error for r in results]
+    return render_template("labday/correction.html", c=row, results=results, entry=entry,
+                           relative_error=errors[0] if errors else None)
+
+
+def _about(row: Mapping[str, Any]) -> dict[str, str]:
+    bench = row["bench_temperature_c"]
+    return {
+        "stockroom class-data correction": str(row["id"]),
+        "lab day": row["lab_day"],
+        "titrant": f"{row['titrant']} batch {row['batch_code']} (release {row['release_id']})",
+        "certified molarity at 20 °C": f"{row['certified_molarity']:.6f} mol/L",
+        "bench temperature": f"{bench:g} °C" if bench is not None else "not given (20 °C value used)",
+        "molarity used": f"{row['molarity_used']:.6f} mol/L",
+        "nominal molarity": f"{row['nominal_molarity']:g} mol/L",
+        "formula": "c_analyte = c_titrant * V_titrant * analyte_per_titrant / V_aliquot",
+        "relative error": "(result_nominal - result_corrected) / result_corrected",
+        "recorded": f"{row['recorded_at']} by {row['recorded_by']}",
+    }
+
+
+@bp.get("/lab-day/corrections/<int:cid>.csv")
+@require("classdata.correct")
+def correction_csv(cid: int) -> Response:
+    row, results, _ = _stored(cid)
+    name = f"class-data-{row['lab_day']}-{row['batch_code']}-{cid}.csv"
+    safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in name)
+    return Response(ld.results_to_csv(results, _about(row)), mimetype="text/csv",
+                    headers={"Content-Disposition": f'attachment; filename="{safe}"'})

@@ -1,0 +1,170 @@
+"""Labels and certificates from the batch page.
+
+    GET/POST /batches/<code>/labels           choose a layout, copies and start position; POST records the
+                                              print (label.print) and answers with the PDF
+    GET      /releases/<id>/certificate.pdf   the certificate of standardization of one release
+    GET      /batches/<code>/certificate.pdf  the certificate of the release in force (else the latest)
+
+The batch page asks `labels_in_circulation(...)` (a template global) whether printed labels show a value
+other than the one a label printed now would show, and offers the reprint.
+"""
+
+from __future__ import annotations
+
+import base64
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+from flask import Blueprint, Response, current_app, render_template, request
+
+from stockroom import records
+from stockroom.db import get_db
+from stockroom.errors import Conflict, FieldError, InvalidInput
+from stockroom.pdf import certificates, ghs, layouts
+from stockroom.pdf import labels as pdflabels
+from stockroom.policy import Status, release_in_force, status_on
+from stockroom.web import lab_today
+from stockroom.web.access import current_user, require
+from stockroom.web.forms import field
+from stockroom.web.inputs import Parser
+
+bp = Blueprint("printing", __name__)
+
+DEFAULT_LAYOUT = "carboy-a5"
+PRINT_LABELS = {"layout": "Layout", "copies": "Copies", "start": "Start at position"}
+
+
+def pictogram_uri(code: str, size_px: int = 56) -> str:
+    """A data: URI of the pictogram's SVG, for an <img> (the pages' CSP allows data: images)."""
+    return "data:image/svg+xml;base64," + base64.b64encode(ghs.svg(code, size_px).encode("utf-8")).decode("ascii")
+
+
+def safe_filename(text: str) -> str:
+    """A file name of letters, digits, '-', '_' and '.', for Content-Disposition."""
+    return "".join(ch if ch.isascii() and (ch.isalnum() or ch in "-_.") else "_" for ch in text)[:120] or "file"
+
+
+def _pdf_response(pdf: bytes, filename: str) -> Response:
+    resp = Response(pdf, mimetype="application/pdf")
+    resp.headers["Content-Disposition"] = f'attachment; filename="{safe_filename(filename)}"'
+    resp.headers["Cache-Control"] = "no-store"
+    return resp
+
+
+@bp.app_template_global("labels_in_circulation")
+def labels_in_circulation(history: Mapping[str, Any], in_force: Any, status: Status) -> dict[str, Any] | None:
+    """What the batch page says about printed labels: None when every print shows what a new one would.
+
+    history: records.batch_history(...); in_force: the ReleaseFact in force (or None); status: the
+    batch's status. Returns the current text, the stale prints, their copies and serial ranges, and
+    whether a print with the current value was made after the last stale one (the reprint).
+    """
+    prints = list(history.get("prints") or [])
+    if not prints:
+        return None
+    current = pdflabels.current_value_text(history, in_force, status)
+    stale = pdflabels.stale_prints(prints, current)
+    if not stale:
+        return None
+    last_stale = max(p["id"] for p in stale)
+    reprinted = any(p["id"] > last_stale and p["value_printed"] == current for p in prints)
+    return {
+        "current": current,
+        "current_is_value": in_force is not None,
+        "stale": stale,
+        "copies": sum(p["copies"] for p in stale),
+        "shown": sorted({p["value_printed"] for p in stale}),
+        "serials": ", ".join(_serial_range(p) for p in stale),
+        "reprinted": reprinted,
+    }
+
+
+def _serial_range(p: Mapping[str, Any]) -> str:
+    first, last = pdflabels.format_serial(p["serial_first"]), pdflabels.format_serial(p["serial_last"])
+    return first if first == last else f"{first}–{last}"
+
+
+def _context(batch: Mapping[str, Any], available: Mapping[str, layouts.Layout],
+             broken: Sequence[layouts.LayoutError]) -> dict[str, Any]:
+    db = get_db()
+    on = lab_today()
+    content, problem = None, None
+    try:
+        content = pdflabels.label_content(db, current_app.config, batch, on)
+    except Conflict as exc:
+        problem = exc.message
+    history = records.batch_history(db, batch["id"])
+    facts = records.batch_facts(db, batch["id"])
+    report = status_on(facts, on)
+    in_force = release_in_force(facts, on)
+    current = pdflabels.current_value_text(history, in_force, report.status)
+    prints = [dict(p, serials=_serial_range(p), current=p["value_printed"] == current)
+              for p in reversed(history["prints"])]
+    return {
+        "batch": batch, "content": content, "problem": problem, "layouts": list(available.values()),
+        "broken": broken, "labels": PRINT_LABELS,
+        "layout_options": [(lay.name, f"{lay.title} [{lay.name}]") for lay in available.values()],
+        "prints": prints, "report": report,
+        "pictograms": [(code, ghs.name(code), pictogram_uri(code)) for code in
+                       (content.elements.pictograms if content else ())],
+        "circulation": labels_in_circulation(history, in_force, report.status),
+        "has_release": bool(history["releases"]), "max_copies": pdflabels.MAX_COPIES,
+    }
+
+
+def _read_print_form(form: Mapping[str, Any], available: Mapping[str, layouts.Layout]
+                     ) -> tuple[layouts.Layout | None, int | None, int | None, Parser]:
+    p = Parser()
+    name = p.choice(field("layout"), "layout", tuple(available))
+    copies = p.integer(field("copies"), "copies", ge=1, le=pdflabels.MAX_COPIES)
+    layout = available.get(name) if name else None
+    start = p.integer(field("start") or "1", "start", ge=1, le=layout.per_page if layout else None)
+    return layout, copies, start, p
+
+
+@bp.route("/batches/<code>/labels", methods=["GET", "POST"])
+@require("label.print")
+def print_labels(code: str) -> Any:
+    db = get_db()
+    batch = records.batch_by_code(db, code)
+    available, broken = layouts.load_all()
+    ctx = _context(batch, available, broken)
+    if request.method == "GET":
+        wanted = request.args.get("layout")
+        values = {"layout": wanted if wanted in available else (DEFAULT_LAYOUT if DEFAULT_LAYOUT in available else
+                                                                 next(iter(available), "")),
+                  "copies": request.args.get("copies", "1"), "start": "1"}
+        return render_template("printing/labels.html", values=values, errors={}, **ctx)
+    layout, copies, start, p = _read_print_form(request.form, available)
+    if ctx["problem"]:
+        p.error("_", ctx["problem"])
+    try:
+        p.raise_if_errors()
+        assert layout is not None and copies is not None and start is not None
+        user = current_user()
+        assert user is not None
+        job = pdflabels.print_labels(db, current_app.config, batch, layout, copies, start, user.username, lab_today())
+    except pdflabels.LabelOverflow as exc:
+        return _reshow(ctx, InvalidInput([FieldError("layout", exc.message)]))
+    except InvalidInput as exc:
+        return _reshow(ctx, exc)
+    name = f"labels-{batch['code']}-{pdflabels.format_serial(job.record['serial_first'])}.pdf"
+    return _pdf_response(job.pdf, name)
+
+
+def _reshow(ctx: dict[str, Any], exc: InvalidInput) -> tuple[str, int]:
+    return render_template("printing/labels.html", values=request.form, errors=exc.fields, **ctx), 422
+
+
+@bp.get("/releases/<int:release_id>/certificate.pdf")
+def release_certificate(release_id: int) -> Response:
+    data = certificates.certificate_data(get_db(), release_id, lab_today())
+    pdf = certificates.build_certificate(data)
+    return _pdf_response(pdf, f"certificate-{data['batch']['code']}-release-{release_id}.pdf")
+
+
+@bp.get("/batches/<code>/certificate.pdf")
+def batch_certificate(code: str) -> Response:
+    data = certificates.certificate_data_for_batch(get_db(), code, lab_today())
+    pdf = certificates.build_certificate(data)
+    return _pdf_response(pdf, f"certificate-{data['batch']['code']}-release-{data['release']['id']}.pdf")
