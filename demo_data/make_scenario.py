@@ -50,7 +50,7 @@ def primary_replicates(titrant: str, std: str, c_true: float, mass_range: tuple[
 
 
 def secondary_replicates(titrant: str, reference: str, c_true: float, c_ref: float, n: int,
-                         aliquot: float = 25.0, noise_rel: float = 1.5e-4) -> list[dict]:
+                         aliquot: float = 25.0, noise_rel: float = 6e-4) -> list[dict]:
     nu = TITRANT_EQ[reference] / TITRANT_EQ[titrant]
     reps = []
     for _ in range(n):

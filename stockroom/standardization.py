@@ -88,6 +88,9 @@ class Instruments:
     lab_temperature_distribution: str = "rectangular"
     monte_carlo_seed: int = 20_080_901
     endpoint_u_ml: float = 0.0
+    # Smallest division a burette is read to, mL: two readings make a titre, so replicates that agree
+    # to the reading cannot show a scatter below it (the repeatability floor below).
+    burette_reading_ml: float = 0.01
     # ±0.05 %, the purity tolerance QUAM:2012 A2 takes for KHP from its supplier's certificate.
     purity_tolerance_default: float = 0.0005
 
@@ -451,10 +454,18 @@ def _titre_terms(titre: float, blanks: Sequence[float], instruments: Instruments
 
 
 def _repeatability(summary: stats.Summary, stated: float | None, rule: stats.AcceptanceRule,
-                   warnings: list[str]) -> InputQuantity:
-    """Repeatability factor R = 1 with u = s/(c̄·√n), or a stated relative u."""
+                   warnings: list[str], floor_rel: float = 0.0) -> InputQuantity:
+    """Repeatability factor R = 1 with u = s/(c̄·√n), or a stated relative u.
+
+    floor_rel: the relative u below which an observed s/√n is not believed (readings quantized to the
+    burette's division can agree exactly); an observed value under it is raised to it, with a note.
+    """
     n = summary.n
     observed = (summary.sd / math.sqrt(n) / abs(summary.mean)) if summary.sd is not None and n >= 2 else None
+    if stated is None and observed is not None and n >= 3 and observed < floor_rel:
+        return InputQuantity.normal("repeatability", 1.0, floor_rel, "",
+                                    f"s/√n of the {n} replicates ({observed:.2g}) is below what two burette "
+                                    f"readings can resolve; the floor (d·√2/√12)/V̄/√n for a burette division d is used")
     if stated is not None:
         if observed is not None and n >= 3 and observed > stated:
             warnings.append(f"the stated repeatability ({stated:.2g} relative) is below this run's own "
@@ -540,7 +551,12 @@ def _finish(kind: str, molarities: list[float], included: list[int], excluded: d
             warnings.append(f"replicate {i + 1} is flagged as an outlier ({', '.join(tests)}); it stays in "
                             f"the run unless you exclude it with a reason")
     reasons: list[str] = []
-    R = _repeatability(summary, stated_rep, rule, warnings)
+    titres = [per_rep[i]["titre_ml"] for i in included]
+    floor_rel = 0.0
+    if titres:
+        reading_u = instruments.burette_reading_ml / math.sqrt(12) * math.sqrt(2)  # two readings per titre
+        floor_rel = reading_u / (sum(titres) / len(titres)) / math.sqrt(len(titres))
+    R = _repeatability(summary, stated_rep, rule, warnings, floor_rel)
     factors = [*model_factors, factor("repeatability", 1, R)]
     constant = _matching_constant(summary.mean, factors)
     model = ProductModel(constant, tuple(factors), UNIT, "c")

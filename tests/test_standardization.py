@@ -447,3 +447,24 @@ def test_molarity_finite_and_positive_for_valid_input(rows, buoyancy):
     for x in (r.molarity, r.u, r.U, r.monte_carlo.u, *(x.molarity for x in r.replicates)):
         assert math.isfinite(x) and x > 0
     assert math.fsum(f.share for f in r.gum.factors) == pytest.approx(1.0, rel=1e-9)
+
+
+def test_repeatability_never_below_what_two_burette_readings_resolve():
+    """Four titres identical to 0.01 mL show s = 0; the repeatability then takes the reading floor.
+
+    Independent arithmetic (GUM 4.3.7 rectangular resolution, JCGM 100:2008 F.2.2.1): one reading of a
+    burette read to d = 0.01 mL has u = d/√12; a titre is two readings (×√2); the mean of n titres /√n.
+    """
+    from stockroom.standardization import AliquotReplicate, Instruments, Reference, SecondaryRun
+    from stockroom.standardization import standardize_secondary
+
+    inst = Instruments(balance_readability_g=0.0001, balance_linearity_g=0.00015, burette_capacity_ml=50,
+                       burette_tolerance_ml=0.05, pipette_tolerance_ml=0.03, lab_temperature_half_range_k=3,
+                       expansion_coefficient_per_k=2.1e-4, coverage_factor=2, monte_carlo_draws=2000)
+    reps = tuple(AliquotReplicate(aliquot_ml=25.0, volume_ml=24.85) for _ in range(4))
+    result = standardize_secondary(SecondaryRun(reference=Reference(1.0032, 0.00085), nu=1.0, replicates=reps),
+                                   inst)
+    line = next(b for b in result.gum.lines if b.source == "repeatability")
+    expected = 0.01 / math.sqrt(12) * math.sqrt(2) / 24.85 / math.sqrt(4)
+    assert line.u == pytest.approx(expected, rel=1e-12)
+    assert result.summary.sd == 0.0
