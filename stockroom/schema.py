@@ -392,4 +392,36 @@ def _class_corrections(db: sqlite_utils.Database) -> None:
         )
 
 
+
+# Per-user API tokens for programs that write through the JSON API. Only a SHA-256 of the token is
+# kept; revoking is a new row, so the history of who could write, and until when, stays whole.
+_API_TOKENS = [
+    """CREATE TABLE api_tokens (
+        id INTEGER PRIMARY KEY,
+        user_id INTEGER NOT NULL REFERENCES users (id),
+        label TEXT NOT NULL CHECK (length(trim(label)) > 0),
+        token_sha256 TEXT NOT NULL UNIQUE,
+        shown_prefix TEXT NOT NULL,
+        created_at TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_api_tokens_user ON api_tokens (user_id)",
+    """CREATE TABLE api_token_revocations (
+        id INTEGER PRIMARY KEY,
+        token_id INTEGER NOT NULL UNIQUE REFERENCES api_tokens (id),
+        revoked_at TEXT NOT NULL,
+        revoked_by TEXT NOT NULL
+    )""",
+]
+
+
+@MIGRATIONS(name="0007_api_tokens")
+def _api_tokens(db: sqlite_utils.Database) -> None:
+    for statement in _API_TOKENS:
+        db.execute(statement)
+    for table in ("api_tokens", "api_token_revocations"):
+        for verb in ("UPDATE", "DELETE"):
+            db.execute(f"CREATE TRIGGER {table}_no_{verb.lower()} BEFORE {verb} ON {table} "
+                       f"BEGIN SELECT RAISE(ABORT, '{table} is append-only'); END")
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)

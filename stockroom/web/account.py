@@ -131,3 +131,36 @@ def first_run() -> Any:
           "accounts on the server with the command stockroom add-user NAME --role staff (or instructor, "
           "admin).", "info")
     return redirect(_home(), code=303)
+
+
+@bp.route("/account/tokens", methods=["GET", "POST"])
+@login_required
+def api_tokens() -> Any:
+    """List, make and revoke one's own API tokens (for programs writing through the JSON API)."""
+    from stockroom import tokens
+
+    user = current_user()
+    assert user is not None
+    db = get_db()
+    secret = None
+    errors: dict[str, str] = {}
+    status = 200
+    if request.method == "POST":
+        try:
+            _, secret = tokens.create(db, user.id, user.username, request.form.get("label", ""))
+        except InvalidInput as exc:
+            errors, status = exc.fields, 422
+    return render_template("account/tokens.html", tokens=tokens.list_for(db, user.id), secret=secret,
+                           errors=errors, values=request.form), status
+
+
+@bp.post("/account/tokens/<int:token_id>/revoke")
+@login_required
+def revoke_token(token_id: int) -> Any:
+    from stockroom import tokens
+
+    user = current_user()
+    assert user is not None
+    tokens.revoke(get_db(), token_id, user.id, user.username)
+    flash("Token revoked: programs using it are refused from now on.", "info")
+    return redirect(url_for("account.api_tokens"), code=303)

@@ -167,8 +167,17 @@ def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date)
     }
 
 
-def _parse_run(batch: dict[str, Any], method: str, form: Any) -> tuple[dict[str, Any], Any, list[dict], dict, Parser]:
+def parse_run(batch: dict[str, Any], method: str, form: Any) -> tuple[dict[str, Any], Any, list[dict], dict, Parser]:
+    """The run form (or the API's equivalent mapping) -> run meta, lot or reference, replicates, exclusions.
+
+    Errors are collected in the returned Parser, named by the form's fields (r3_final_ml ...).
+    """
     p = Parser()
+
+    def field(name: str) -> Any:
+        value = form.get(name)
+        return None if value is None or (isinstance(value, str) and value.strip() == "") else value
+
     today = lab_today()
     purpose = p.choice(form.get("purpose") or None, "purpose", ("certify", "recheck"))
     performed_on = form_date(p, field("performed_on"), "performed_on", not_after=today,
@@ -251,7 +260,7 @@ def new_run(code: str) -> Any:
     if request.method == "GET":
         return render_template("runs/new.html", values=defaults, errors={}, result=None, **ctx)
     form = request.form
-    meta, partner, reps, excluded, p = _parse_run(batch, method, form)
+    meta, partner, reps, excluded, p = parse_run(batch, method, form)
     ctx["purpose"] = meta["purpose"] or "certify"
     result = None
     if p.ok:
