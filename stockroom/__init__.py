@@ -19,6 +19,10 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
         static_folder="static",
     )
     app.config.update(settings.resolve(config))
+    hosts = app.config.get("TRUSTED_HOSTS")
+    if isinstance(hosts, str):  # the setting is comma-separated text; Flask wants a list (or None: any host)
+        app.config["TRUSTED_HOSTS"] = [h.strip() for h in hosts.split(",") if h.strip()] or None
+    app.config["SESSION_COOKIE_HTTPONLY"] = True
     db.init_app(app)
     register(app)
     return app

@@ -41,6 +41,8 @@ PERMISSIONS: dict[str, str] = {
     "batch.release": "release a batch",
     "batch.withdraw": "withdraw a batch",
     "label.print": "print labels",
+    "instrument.register": "register an instrument or record its calibration",
+    "recall.manage": "mark a lot, instrument or batch as suspect, or clear a recall",
     "labday.lookup": "look up the titrants in use on a lab day",
     "classdata.correct": "correct class data",
     "users.manage": "manage user accounts",
@@ -52,7 +54,7 @@ PERMISSIONS: dict[str, str] = {
 
 _EVERYONE = frozenset({"read", "account.own"})
 _STAFF = frozenset({"batch.register", "lot.register", "run.record", "run.decide", "batch.release",
-                    "batch.withdraw", "label.print"})
+                    "batch.withdraw", "label.print", "instrument.register", "recall.manage"})
 _INSTRUCTOR = frozenset({"labday.lookup", "classdata.correct"})
 _ADMIN = frozenset({"users.manage", "policy.edit", "hazard.edit", "settings.edit"})
 

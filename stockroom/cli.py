@@ -13,7 +13,7 @@ from stockroom import settings
 
 
 def _db_path(db: str | None) -> str:
-    return db or os.environ.get("STOCKROOM_DATABASE") or settings.resolve()["DATABASE"]
+    return db or settings.database_path()
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -65,7 +65,7 @@ def demo(db_path: str | None, host: str, port: int, no_serve: bool) -> None:
     from stockroom import create_app
     from stockroom.demo import build_demo
 
-    working = Path(settings.resolve()["DATABASE"]).resolve()
+    working = Path(settings.database_path()).resolve()
     if db_path is None:
         db_path = str(Path(tempfile.mkdtemp(prefix="stockroom-demo-")) / "demo.db")
     target = Path(db_path).resolve()
@@ -239,6 +239,40 @@ def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> No
         conn.close()
     Path(out_path).write_bytes(pdf)
     click.echo(f"certificate of {batch_id}, release {data['release']['id']}, written to {out_path}")
+
+
+
+@main.command()
+@click.option("--db", "db_path", type=click.Path(dir_okay=False, exists=True), help="SQLite file (default: the configured one).")
+def verify(db_path: str | None) -> None:
+    """Check the audit trail's hash chain and that every record has its entry; exit 1 if not."""
+    from stockroom import db as dbmod
+    from stockroom import records
+
+    path = _db_path(db_path)
+    conn = dbmod.connect(path)
+    try:
+        total = conn.execute("SELECT count(*) FROM events").fetchone()[0]
+        broken = records.verify_chain(conn)
+        missing = records.unaudited_records(conn)
+        integrity = conn.execute("PRAGMA integrity_check").fetchone()[0]
+    finally:
+        conn.close()
+    problems = []
+    if integrity != "ok":
+        problems.append(f"SQLite integrity check failed: {integrity}")
+    if broken is not None:
+        problems.append(f"the hash chain is broken at entry {broken}: that entry, or the one before it, was "
+                        "changed or removed outside stockroom")
+    for table, row_id in missing[:20]:
+        problems.append(f"{table} row {row_id} has no audit entry (an entry was removed)")
+    if len(missing) > 20:
+        problems.append(f"... and {len(missing) - 20} more records without an entry")
+    if problems:
+        for line in problems:
+            click.echo(f"PROBLEM: {line}", err=True)
+        raise SystemExit(1)
+    click.echo(f"audit trail of {path} is whole: {total} entries, every record accounted for")
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -12,6 +12,7 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass, field
 from enum import StrEnum
+from typing import cast
 
 from stockroom import drift
 from stockroom.drift import DriftReport, Flag, FlagKind
@@ -108,14 +109,52 @@ class CheckFact:
     k: float = 2.0  # coverage factor of the re-check's expanded uncertainty (stockroom's default k)
 
 
+class ReviewKind(StrEnum):
+    """The kind of flag a recall puts on a batch; it travels with drift's flags (drift.FlagKind)."""
+
+    UNDER_REVIEW = "under_review"
+
+
+# A recall's flag rides in StatusReport.flags beside the drift flags, so every page, list and the lab-day
+# JSON that shows flags shows it too. Its kind is ReviewKind's own value, outside drift's vocabulary; the
+# cast only tells the type checker that a Flag may carry it (kind.value reads "under_review").
+_UNDER_REVIEW = cast(FlagKind, ReviewKind.UNDER_REVIEW)
+
+
+@dataclass(frozen=True)
+class ReviewFact:
+    """A recall that puts one release of a batch under review (stockroom.recall finds which).
+
+    recall_id, release_id: record ids; subject: what is suspect, in words ("primary-standard lot
+    STD-KHP-001"); suspect_from: the date from which it is suspect; opened_on: the date the recall was
+    recorded; cleared_on: the date it was cleared for this batch or as a whole, or None while open.
+    """
+
+    recall_id: int
+    release_id: int
+    subject: str
+    suspect_from: dt.date
+    opened_on: dt.date
+    cleared_on: dt.date | None = None
+
+    def open_on(self, on: dt.date) -> bool:
+        """Whether the review stood on date `on`: recorded by then and not yet cleared."""
+        return self.opened_on <= on and (self.cleared_on is None or on < self.cleared_on)
+
+
 @dataclass(frozen=True)
 class BatchFacts:
-    """What the records say about one batch, in the plain values the status rules need."""
+    """What the records say about one batch, in the plain values the status rules need.
+
+    reviews: the recalls that reach any release of the batch (a release made after a recall, on a chain
+    free of the suspect item, is not among them: that is how re-standardizing ends a review).
+    """
 
     prepared_on: dt.date
     releases: tuple[ReleaseFact, ...] = ()
     rechecks: tuple[CheckFact, ...] = ()
     withdrawn_on: dt.date | None = None
+    reviews: tuple[ReviewFact, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -139,6 +178,16 @@ class StatusReport:
     def forecast(self) -> Flag | None:
         """The "expected to leave tolerance on DATE" flag, or None."""
         return next((f for f in self.flags if f.kind is FlagKind.EXPECTED_TO_LEAVE), None)
+
+    @property
+    def under_review(self) -> Flag | None:
+        """The first "under review" flag of a recall that reaches the release in force, or None."""
+        return next((f for f in self.flags if f.kind == ReviewKind.UNDER_REVIEW), None)
+
+    @property
+    def attention(self) -> Flag | None:
+        """The flag that puts a batch in service on the attention list: a recall's review, else a forecast."""
+        return self.under_review or self.forecast
 
     @property
     def remarks(self) -> tuple[str, ...]:
@@ -195,6 +244,14 @@ def drift_on(facts: BatchFacts, on: dt.date, release: ReleaseFact | None = None)
                         release.recheck_interval_days, on)
 
 
+def review_flags(facts: BatchFacts, release: ReleaseFact, on: dt.date) -> tuple[Flag, ...]:
+    """The "under review" flags of the recalls open on `on` that reach `release` (dates as dates)."""
+    return tuple(
+        Flag(_UNDER_REVIEW, f"under review since {rv.opened_on.isoformat()}: its certified value rests on "
+             f"{rv.subject}, suspect from {rv.suspect_from.isoformat()} (recall {rv.recall_id})", rv.opened_on)
+        for rv in facts.reviews if rv.release_id == release.id and rv.open_on(on))
+
+
 _DRIFTING_KINDS = (FlagKind.RECHECK_OUTSIDE, FlagKind.PREDICTED_OUTSIDE)
 _DUE_KINDS = (FlagKind.RECHECK_DUE, FlagKind.RECHECK_OVERDUE)
 
@@ -222,4 +279,4 @@ def status_on(facts: BatchFacts, on: dt.date) -> StatusReport:
     status, reasons = ((Status.DRIFTING, drifting) if drifting else (Status.RECHECK_DUE, due) if due
                        else (Status.IN_SERVICE, ()))
     return StatusReport(status, on, release=release, next_check_due=report.next_check_due, last_check=last,
-                        reasons=reasons, flags=report.flags, drift=report)
+                        reasons=reasons, flags=report.flags + review_flags(facts, release, on), drift=report)

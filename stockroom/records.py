@@ -65,6 +65,28 @@ def append_event(
     return int(db["events"].insert(row).last_pk)
 
 
+# Each record table and the audit action its rows are written with: a record without its entry means
+# the entry (perhaps the newest, which the chain alone cannot miss) was removed behind our back.
+RECORD_EVENTS = {
+    "batches": "batch.register", "standard_lots": "lot.register", "releases": "batch.release",
+    "withdrawals": "batch.withdraw", "amendments": "batch.amend",
+}
+
+
+def unaudited_records(db: sqlite_utils.Database) -> list[tuple[str, int]]:
+    """(table, id) of every record row that has no audit entry of its own."""
+    out: list[tuple[str, int]] = []
+    for table, action in RECORD_EVENTS.items():
+        for row in db.execute(
+            f"SELECT t.id FROM {table} t WHERE NOT EXISTS (SELECT 1 FROM events e WHERE e.entity = ? "
+            f"AND e.entity_id = t.id AND e.action = ?) ORDER BY t.id", [table, action]):
+            out.append((table, int(row[0])))
+    for row in db.execute("SELECT r.id FROM runs r WHERE NOT EXISTS (SELECT 1 FROM events e WHERE "
+                          "e.entity = 'runs' AND e.entity_id = r.id AND e.action LIKE 'run.record.%') ORDER BY r.id"):
+        out.append(("runs", int(row[0])))
+    return out
+
+
 def verify_chain(db: sqlite_utils.Database) -> int | None:
     """Recompute the audit hash chain; return the id of the first broken entry, or None if whole."""
     prev = GENESIS_HASH
@@ -157,19 +179,66 @@ def create_batch(db: sqlite_utils.Database, values: dict[str, Any], actor: str) 
     return row
 
 
+# Fields of a batch that a correction may change; the reagent, nominal and dates are what the batch is,
+# so a mistake there is a new batch, not a correction.
+AMENDABLE_BATCH_FIELDS = ("volume_l", "prepared_by", "concentrate_lot", "concentrate_assay_w_w",
+                          "concentrate_density_g_ml", "water_grade", "container", "notes")
+
+
+def _overlay(rows: list[dict[str, Any]], db: sqlite_utils.Database) -> list[dict[str, Any]]:
+    """Batches as they now read: each original row with its later corrections applied, field by field."""
+    if not rows:
+        return rows
+    ids = [r["id"] for r in rows]
+    found: dict[int, dict[str, Any]] = defaultdict(dict)
+    for i in range(0, len(ids), 500):
+        chunk = ids[i:i + 500]
+        for a in db.execute(f"SELECT entity_id, field, new_value FROM amendments WHERE entity = 'batches' AND "
+                            f"entity_id IN ({','.join('?' * len(chunk))}) ORDER BY id", chunk):
+            found[a["entity_id"]][a["field"]] = json.loads(a["new_value"])
+    for r in rows:
+        changes = found.get(r["id"])
+        r["amended_fields"] = sorted(changes) if changes else []
+        if changes:
+            r.update(changes)
+    return rows
+
+
 def batch_by_code(db: sqlite_utils.Database, code: str) -> dict[str, Any]:
-    """One batch row by its readable ID; NotFound if none."""
+    """One batch by its readable ID, as it now reads (corrections applied); NotFound if none."""
     rows = dbmod.query(db, "SELECT * FROM batches WHERE code = ?", [code])
     if not rows:
         raise NotFound(f"no batch with ID {code!r}")
-    return rows[0]
+    return _overlay(rows, db)[0]
 
 
 def batch_by_id(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:
+    """One batch by its row id, as it now reads (corrections applied); NotFound if none."""
     rows = dbmod.query(db, "SELECT * FROM batches WHERE id = ?", [batch_id])
     if not rows:
         raise NotFound(f"no batch with id {batch_id}")
-    return rows[0]
+    return _overlay(rows, db)[0]
+
+
+def amend_batch(db: sqlite_utils.Database, batch_id: int, field: str, new_value: Any, reason: str,
+                actor: str) -> int:
+    """Correct one descriptive field of a batch: a new attributed entry with the reason, before and after."""
+    if field not in AMENDABLE_BATCH_FIELDS:
+        raise InvalidInput([FieldError("field", "this detail cannot be corrected; register a new batch instead")])
+    if not reason.strip():
+        raise InvalidInput([FieldError("reason", "give the reason for the correction")])
+    with dbmod.write(db):
+        batch = batch_by_id(db, batch_id)
+        old_value = batch.get(field)
+        if old_value == new_value:
+            raise InvalidInput([FieldError("new_value", "is the same as the current value")])
+        aid = int(db["amendments"].insert({
+            "entity": "batches", "entity_id": batch_id, "field": field, "old_value": json.dumps(old_value),
+            "new_value": json.dumps(new_value), "reason": reason.strip(), "recorded_at": utc_now(),
+            "recorded_by": actor}).last_pk)
+        append_event(db, actor, "batch.amend", entity="amendments", entity_id=aid, batch_id=batch_id,
+                     reason=reason.strip(), detail={"field": field, "before": old_value, "after": new_value})
+    return aid
 
 
 # ---------------------------------------------------------------- standard lots
@@ -440,7 +509,7 @@ def batch_views(
         sql += " AND (code LIKE ? OR prepared_by LIKE ? OR notes LIKE ?)"
         params += [f"%{search}%"] * 3
     sql += " ORDER BY prepared_on DESC, id DESC"
-    rows = dbmod.query(db, sql, params)
+    rows = _overlay(dbmod.query(db, sql, params), db)
     facts = _facts_bulk(db, [r["id"] for r in rows] if (reagent or search) else None)
     views = [BatchView(r, status_on(facts[r["id"]], on)) for r in rows]
     if status:

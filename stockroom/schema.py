@@ -405,6 +405,9 @@ _API_TOKENS = [
         created_at TEXT NOT NULL
     )""",
     "CREATE INDEX ix_api_tokens_user ON api_tokens (user_id)",
+    # `stockroom verify` and the audit page look entries up by what they are about.
+    "CREATE INDEX ix_events_entity ON events (entity, entity_id)",
+    "CREATE INDEX ix_events_actor ON events (actor, id)",
     """CREATE TABLE api_token_revocations (
         id INTEGER PRIMARY KEY,
         token_id INTEGER NOT NULL UNIQUE REFERENCES api_tokens (id),
@@ -422,6 +425,85 @@ def _api_tokens(db: sqlite_utils.Database) -> None:
         for verb in ("UPDATE", "DELETE"):
             db.execute(f"CREATE TRIGGER {table}_no_{verb.lower()} BEFORE {verb} ON {table} "
                        f"BEGIN SELECT RAISE(ABORT, '{table} is append-only'); END")
+
+
+# Instruments and recalls. The register of balances, burettes and pipettes with their calibrations (a
+# recalibration is one more row: the history stays); which instruments each run used, with the
+# calibration in force that day; and recalls: a lot, an instrument or a batch marked suspect from a
+# date, with the reason, and the clearances that end a recall for one batch or for all of them.
+_INSTRUMENTS_RECALLS = [
+    """CREATE TABLE instruments (
+        id INTEGER PRIMARY KEY,
+        code TEXT NOT NULL UNIQUE COLLATE NOCASE,        -- the lab's own ID on the instrument, e.g. BAL-02
+        kind TEXT NOT NULL CHECK (kind IN ('balance', 'burette', 'pipette')),
+        description TEXT NOT NULL DEFAULT '',             -- make, model, serial number
+        capacity REAL NOT NULL CHECK (capacity > 0),      -- g for a balance, mL for glassware
+        accuracy_class TEXT NOT NULL DEFAULT '',          -- 'A' or 'B' for glassware; as marked for a balance
+        tolerance REAL CHECK (tolerance IS NULL OR tolerance > 0),          -- ± half-width, mL (glassware) or g
+        readability REAL CHECK (readability IS NULL OR readability > 0),    -- g (balance), mL (scale division)
+        linearity_g REAL CHECK (linearity_g IS NULL OR linearity_g >= 0),   -- ± half-width, balances only
+        notes TEXT NOT NULL DEFAULT '',
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL,
+        CHECK (kind != 'balance' OR (readability IS NOT NULL AND linearity_g IS NOT NULL)),
+        CHECK (kind = 'balance' OR tolerance IS NOT NULL)
+    )""",
+    """CREATE TABLE calibrations (
+        id INTEGER PRIMARY KEY,
+        instrument_id INTEGER NOT NULL REFERENCES instruments (id),
+        calibrated_on TEXT NOT NULL,
+        next_due_on TEXT NOT NULL,
+        outcome TEXT NOT NULL CHECK (outcome IN ('pass', 'fail')),
+        certificate_ref TEXT NOT NULL CHECK (length(trim(certificate_ref)) > 0),
+        calibrated_by TEXT NOT NULL DEFAULT '',           -- the lab or service that calibrated it
+        tolerance REAL CHECK (tolerance IS NULL OR tolerance > 0),          -- as the certificate states; NULL
+        linearity_g REAL CHECK (linearity_g IS NULL OR linearity_g >= 0),   -- keeps the register's figure
+        notes TEXT NOT NULL DEFAULT '',
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL,
+        CHECK (next_due_on > calibrated_on)
+    )""",
+    "CREATE INDEX ix_calibrations_instrument ON calibrations (instrument_id, calibrated_on)",
+    """CREATE TABLE run_instruments (
+        id INTEGER PRIMARY KEY,
+        run_id INTEGER NOT NULL REFERENCES runs (id),
+        instrument_id INTEGER NOT NULL REFERENCES instruments (id),
+        role TEXT NOT NULL CHECK (role IN ('balance', 'burette', 'pipette')),
+        calibration_id INTEGER REFERENCES calibrations (id),   -- in force on the run's date; NULL: none was
+        UNIQUE (run_id, role)
+    )""",
+    "CREATE INDEX ix_run_instruments_instrument ON run_instruments (instrument_id)",
+    """CREATE TABLE recalls (
+        id INTEGER PRIMARY KEY,
+        subject_kind TEXT NOT NULL CHECK (subject_kind IN ('lot', 'instrument', 'batch')),
+        subject_id INTEGER NOT NULL,                      -- standard_lots, instruments or batches id
+        suspect_from TEXT NOT NULL,                       -- ISO date from which the subject is suspect
+        opened_on TEXT NOT NULL,                          -- lab date the recall was recorded
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    """CREATE TABLE recall_clearances (
+        id INTEGER PRIMARY KEY,
+        recall_id INTEGER NOT NULL REFERENCES recalls (id),
+        batch_id INTEGER REFERENCES batches (id),         -- NULL: the whole recall is cleared
+        cleared_on TEXT NOT NULL,
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_recall_clearances_recall ON recall_clearances (recall_id)",
+]
+
+
+@MIGRATIONS(name="0006_instruments_recalls")
+def _instruments_recalls(db: sqlite_utils.Database) -> None:
+    for statement in _INSTRUMENTS_RECALLS:
+        db.execute(statement)
+    for table in ("instruments", "calibrations", "run_instruments", "recalls", "recall_clearances"):
+        for verb in ("UPDATE", "DELETE"):
+            db.execute(f"CREATE TRIGGER {table}_no_{verb.lower()} BEFORE {verb} ON {table} "
+                       f"BEGIN SELECT RAISE(ABORT, '{table} is append-only: record a correction instead'); END")
 
 
 SCHEMA_VERSION = len(MIGRATIONS._migrations)

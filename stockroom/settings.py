@@ -95,6 +95,11 @@ def resolve(overrides: dict[str, Any] | None = None) -> dict[str, Any]:
     return values
 
 
+def database_path() -> str:
+    """The configured database file (environment, then default), read without side effects."""
+    return os.environ.get("STOCKROOM_DATABASE") or _BY_NAME["DATABASE"].default
+
+
 def _instance_secret(instance_dir: Path) -> str:
     """Read or create a random secret kept beside the database, readable by its owner only."""
     path = instance_dir / "secret_key"

@@ -74,7 +74,6 @@ def _role_without(permission):
 def test_wrong_role_writes_are_refused_everywhere(tmp_path, make_user, quick_password_hashing):
     app = _app(tmp_path)
     from stockroom import db as dbmod
-
     from stockroom import tokens
 
     conn = dbmod.connect(app.config["DATABASE"])

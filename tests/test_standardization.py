@@ -455,8 +455,7 @@ def test_repeatability_never_below_what_two_burette_readings_resolve():
     Independent arithmetic (GUM 4.3.7 rectangular resolution, JCGM 100:2008 F.2.2.1): one reading of a
     burette read to d = 0.01 mL has u = d/√12; a titre is two readings (×√2); the mean of n titres /√n.
     """
-    from stockroom.standardization import AliquotReplicate, Instruments, Reference, SecondaryRun
-    from stockroom.standardization import standardize_secondary
+    from stockroom.standardization import AliquotReplicate, Instruments, Reference, SecondaryRun, standardize_secondary
 
     inst = Instruments(balance_readability_g=0.0001, balance_linearity_g=0.00015, burette_capacity_ml=50,
                        burette_tolerance_ml=0.05, pipette_tolerance_ml=0.03, lab_temperature_half_range_k=3,

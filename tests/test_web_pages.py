@@ -137,3 +137,20 @@ def test_create_app_without_config_uses_settings(tmp_path, monkeypatch):
 
 def test_an_id_beyond_sqlite_range_is_not_found(demo_client):
     assert demo_client.get("/runs/99999999999999999999").status_code == 404
+
+
+def test_hardening_settings(tmp_path):
+    app = create_app({"DATABASE": str(tmp_path / "h.db"), "SECRET_KEY": "t", "TRUSTED_HOSTS": "lab.example, localhost",
+                      "SESSION_COOKIE_SECURE": True})
+    client = app.test_client()
+    assert client.get("/healthz", headers={"Host": "evil.example"}).status_code == 400
+    assert client.get("/healthz", headers={"Host": "localhost"}).status_code == 200
+    resp = client.get("/sign-in", headers={"Host": "localhost"})
+    cookie = resp.headers.get("Set-Cookie", "")
+    assert "HttpOnly" in cookie and "Secure" in cookie and "SameSite=Lax" in cookie
+    assert resp.headers["X-Frame-Options"] == "DENY"
+    assert "frame-ancestors 'none'" in resp.headers["Content-Security-Policy"]
+    # Bodies past MAX_CONTENT_LENGTH are refused before any view reads them.
+    big = client.post("/api/v1/standardizations/preview", data=b"x" * (app.config["MAX_CONTENT_LENGTH"] + 1),
+                      headers={"Host": "localhost"}, content_type="application/json")
+    assert big.status_code == 413

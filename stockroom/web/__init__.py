@@ -8,7 +8,7 @@ from zoneinfo import ZoneInfo
 
 from flask import Flask, current_app, jsonify, render_template, request
 from flask_wtf.csrf import CSRFProtect
-from werkzeug.exceptions import HTTPException
+from werkzeug.exceptions import HTTPException, SecurityError
 
 from stockroom.errors import InvalidInput, StockroomError
 
@@ -30,6 +30,7 @@ def register(app: Flask) -> None:
         access,
         account,
         api,
+        audit,
         batches,
         dashboard,
         formatting,
@@ -48,10 +49,12 @@ def register(app: Flask) -> None:
         app.register_blueprint(module.bp)
     for module in (printing, hazards_admin):  # labels, certificates and hazard data
         app.register_blueprint(module.bp)
+    app.register_blueprint(audit.bp)
     app.register_blueprint(intake.api_bp)
     app.register_blueprint(labday.api_bp)
     access.init_app(app)
-    # The JSON API is for programs; it takes no cookies-based form posts (token auth comes later).
+    # The JSON API is for programs: its writes take an API token and refuse the session cookie
+    # (access.api_require), so it needs no CSRF token.
     csrf.exempt(api.bp)
     csrf.exempt(preview.bp)
     csrf.exempt(intake.api_bp)  # the preparation calculator: computes, stores nothing
@@ -72,6 +75,9 @@ def register(app: Flask) -> None:
     def _http_error(exc: HTTPException) -> Any:
         status = exc.code or 500
         message = exc.description or exc.name
+        if isinstance(exc, SecurityError):
+            # An untrusted Host header: no URL can be built for it, so answer in plain text.
+            return message, status, {"Content-Type": "text/plain; charset=utf-8"}
         if wants_json():
             return jsonify({"errors": [{"field": "_", "message": message}]}), status
         return render_template("error.html", status=status, message=message), status

@@ -2,12 +2,16 @@
 
 from __future__ import annotations
 
-from flask import Blueprint, render_template, request
+from typing import Any
+
+from flask import Blueprint, flash, redirect, render_template, request, url_for
 
 from stockroom import chemistry, records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, release_in_force
 from stockroom.web import lab_today, parse_date_arg
+from stockroom.web.access import current_user, require
+from stockroom.web.inputs import Parser
 
 bp = Blueprint("batches", __name__, url_prefix="/batches")
 
@@ -48,5 +52,38 @@ def show(code: str) -> str:
     return render_template(
         "batches/show.html", batch=batch, report=report, history=history, on=on,
         in_force=release_in_force(facts, on),
-        titrant=chemistry.titrant(batch["reagent"]),
+        titrant=chemistry.titrant(batch["reagent"]), amend_labels=_AMEND_LABELS,
     )
+
+
+_AMEND_LABELS = {
+    "volume_l": "Volume (L)", "prepared_by": "Prepared by", "concentrate_lot": "Concentrate lot",
+    "concentrate_assay_w_w": "Concentrate assay (mass fraction)", "concentrate_density_g_ml": "Concentrate density (g/mL)",
+    "water_grade": "Water", "container": "Container", "notes": "Notes",
+}
+_AMEND_NUMERIC = {"volume_l": (0.1, 50.0), "concentrate_assay_w_w": (0.01, 1.0), "concentrate_density_g_ml": (0.8, 2.5)}
+
+
+@bp.post("/<code>/amend")
+@require("batch.register")
+def amend(code: str) -> Any:
+    """Correct one descriptive detail of a batch, with a reason; the original entry stays as written."""
+    db = get_db()
+    batch = records.batch_by_code(db, code)
+    p = Parser()
+    name = p.choice(request.form.get("field") or None, "field", records.AMENDABLE_BATCH_FIELDS)
+    reason = p.text(request.form.get("reason") or None, "reason", max_length=500)
+    raw = request.form.get("new_value")
+    value: Any = None
+    if name in _AMEND_NUMERIC:
+        low, high = _AMEND_NUMERIC[name]
+        value = p.number(raw or None, "new_value", ge=low, le=high)
+    elif name is not None:
+        value = p.text(raw, "new_value", required=name not in ("notes", "concentrate_lot", "container", "water_grade"),
+                       max_length=2000 if name == "notes" else 120) or ""
+    p.raise_if_errors()
+    user = current_user()
+    assert name is not None and reason is not None
+    records.amend_batch(db, batch["id"], name, value, reason, user.username if user else "?")
+    flash(f"{_AMEND_LABELS[name]} corrected; the earlier value and your reason stay on record.", "ok")
+    return redirect(url_for("batches.show", code=code), 303)

@@ -45,9 +45,41 @@ def date(value: Any) -> str:
     return str(value)[:10]
 
 
+# Plain words for the audit trail's action codes; an unknown code is shown as it is.
+ACTION_LABELS = {
+    "batch.register": "registered a batch", "batch.release": "released a batch", "batch.withdraw": "withdrew a batch",
+    "batch.amend": "corrected a batch detail", "lot.register": "registered a standard lot",
+    "run.record.certify": "recorded a standardization", "run.record.recheck": "recorded a re-check",
+    "run.accept": "accepted a run", "run.reject": "rejected a run", "replicate.exclude": "left out a replicate",
+    "label.print": "printed labels", "hazard.classify": "added a hazard classification",
+    "classdata.correct": "corrected class data", "token.create": "made an API token",
+    "token.revoke": "revoked an API token", "account.create": "created an account",
+    "account.disable": "disabled an account", "account.password_change": "changed their password",
+    "account.password_reset": "reset a password", "account.signin": "signed in",
+    "account.signin_failed": "failed to sign in", "account.signin_paused": "sign-in paused after failures",
+    "account.signout": "signed out", "access.refused": "was refused an action",
+}
+
+
+def fromjson(text: str | None) -> Any:
+    """A JSON-encoded stored value (amendments keep before and after as JSON), for display."""
+    import json
+
+    if text is None:
+        return "—"
+    value = json.loads(text)
+    return "—" if value in (None, "") else value
+
+
+def action_label(code: str) -> str:
+    return ACTION_LABELS.get(code, code)
+
+
 def install(app: Flask) -> None:
     """Register the filters with Jinja."""
     app.add_template_filter(molarity, "molarity")
     app.add_template_filter(percent, "percent")
     app.add_template_filter(quantity, "quantity")
     app.add_template_filter(date, "date")
+    app.add_template_filter(action_label, "action_label")
+    app.add_template_filter(fromjson, "fromjson")

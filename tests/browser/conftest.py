@@ -44,10 +44,10 @@ def chromium_path() -> str:
 @pytest.fixture(scope="session")
 def demo_server(tmp_path_factory):
     """A live stockroom on loopback serving a fresh demo database; yields its base URL."""
-    from stockroom.demo import build_demo
     from waitress.server import create_server
 
     from stockroom import create_app
+    from stockroom.demo import build_demo
 
     path = tmp_path_factory.mktemp("live") / "demo.db"
     build_demo(str(path))
