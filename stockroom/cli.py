@@ -275,5 +275,40 @@ def verify(db_path: str | None) -> None:
     click.echo(f"audit trail of {path} is whole: {total} entries, every record accounted for")
 
 
+
+@main.command("backup")
+@click.argument("dest", type=click.Path(dir_okay=False))
+@click.option("--db", "db_path", type=click.Path(dir_okay=False, exists=True), help="SQLite file (default: the configured one).")
+def backup_command(dest: str, db_path: str | None) -> None:
+    """Write a consistent copy of the database to DEST, safely while the server is running."""
+    from stockroom import backup
+
+    try:
+        pages = backup.backup(_db_path(db_path), dest)
+    except FileExistsError as exc:
+        raise click.UsageError(str(exc)) from None
+    click.echo(f"backup written to {dest} ({pages} pages), integrity check ok")
+
+
+@main.command("restore")
+@click.argument("src", type=click.Path(dir_okay=False))
+@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file to replace (default: the configured one).")
+@click.option("--yes", is_flag=True, help="Do not ask for confirmation.")
+def restore_command(src: str, db_path: str | None, yes: bool) -> None:
+    """Replace the database with the backup SRC (stop the server first); refuses a damaged or newer file."""
+    from stockroom import backup
+
+    target = _db_path(db_path)
+    try:
+        backup.check_restorable(src)
+    except backup.RestoreRefused as exc:
+        click.echo(f"refused: {exc}", err=True)
+        raise SystemExit(1) from None
+    if not yes:
+        click.confirm(f"Replace {target} with {src}? Everything recorded since that backup is lost", abort=True)
+    version = backup.restore(src, target)
+    click.echo(f"{target} restored from {src} (schema version {version}, brought up to date)")
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
