@@ -98,3 +98,158 @@ def main() -> None:
 
 if __name__ == "__main__":
     main()
+
+
+# ---------------------------------------------------------------- the served application
+
+def _percentile(values: list[float], q: float) -> float:
+    ordered = sorted(values)
+    if not ordered:
+        return float("nan")
+    k = max(0, min(len(ordered) - 1, round(q * (len(ordered) - 1))))
+    return ordered[k]
+
+
+def _client_worker(args: tuple[str, int, str, str, bytes | None, float]) -> list[float]:
+    """One client process: keep-alive requests to one URL for `seconds`; return each latency in s."""
+    import http.client
+
+    host, port, method, path, body, seconds = args
+    conn = http.client.HTTPConnection(host, port, timeout=30)
+    headers = {"Content-Type": "application/json"} if body is not None else {}
+    latencies: list[float] = []
+    deadline = time.perf_counter() + seconds
+    while time.perf_counter() < deadline:
+        start = time.perf_counter()
+        conn.request(method, path, body=body, headers=headers)
+        resp = conn.getresponse()
+        resp.read()
+        if resp.status != 200:
+            raise RuntimeError(f"{method} {path} answered {resp.status}")
+        latencies.append(time.perf_counter() - start)
+    conn.close()
+    return latencies
+
+
+def measure(port: int, method: str, path: str, body: bytes | None = None, clients: int = 4,
+            seconds: float = 3.0) -> dict[str, float]:
+    """Throughput (requests/s) and p50/p95 latency (ms) of one route under `clients` concurrent clients."""
+    from multiprocessing import get_context
+
+    _client_worker(("127.0.0.1", port, method, path, body, 0.3))  # warm the route
+    with get_context("spawn").Pool(clients) as pool:
+        start = time.perf_counter()
+        results = pool.map(_client_worker, [("127.0.0.1", port, method, path, body, seconds)] * clients)
+        elapsed = time.perf_counter() - start
+    latencies = [x for r in results for x in r]
+    return {"requests": len(latencies), "throughput": len(latencies) / elapsed,
+            "p50_ms": _percentile(latencies, 0.50) * 1000, "p95_ms": _percentile(latencies, 0.95) * 1000}
+
+
+def synthetic_database(years: int, seed: int = 1, cache_dir: Path | None = None) -> Path:
+    """A synthetic history of `years` years, built once and kept in a cache folder for later runs."""
+    import datetime as dt
+
+    from stockroom import synth
+
+    cache_dir = cache_dir or Path(tempfile.gettempdir()) / "stockroom-bench"
+    cache_dir.mkdir(parents=True, exist_ok=True)
+    end = dt.date.today()
+    path = cache_dir / f"synth-{years}y-seed{seed}-{end.isoformat()}.db"
+    if not path.exists():
+        partial = path.with_suffix(".building")
+        partial.unlink(missing_ok=True)
+        synth.build(str(partial), years=years, seed=seed, end=end)
+        partial.rename(path)
+    return path
+
+
+def _serve(path: Path) -> tuple[Any, int]:
+    import os
+    import socket
+    import subprocess
+    import sys
+    import urllib.request
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    env = dict(os.environ, STOCKROOM_SECRET_KEY="bench", STOCKROOM_LAB_TIMEZONE="UTC")
+    proc = subprocess.Popen([sys.executable, "-m", "stockroom.cli", "serve", "--db", str(path), "--port", str(port)],
+                            env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    deadline = time.monotonic() + 60
+    while time.monotonic() < deadline:
+        try:
+            with urllib.request.urlopen(f"http://127.0.0.1:{port}/healthz", timeout=1):
+                return proc, port
+        except OSError:
+            time.sleep(0.1)
+    proc.kill()
+    raise RuntimeError("the server did not start")
+
+
+def web_figures(years: int, seconds: float = 3.0, clients: int = 4) -> dict[str, Any]:
+    """Serve a synthetic database of `years` years on loopback and measure each route against /healthz."""
+    import datetime as dt
+    import json
+    import sqlite3
+
+    path = synthetic_database(years)
+    conn = sqlite3.connect(path)
+    code = conn.execute("SELECT code FROM batches ORDER BY id DESC LIMIT 1 OFFSET 5").fetchone()[0]
+    conn.close()
+    today = dt.date.today().isoformat()
+    routes = [
+        ("healthz", "GET", "/healthz", None),
+        ("dashboard", "GET", "/", None),
+        ("batch page", "GET", f"/batches/{code}", None),
+        ("lab-day JSON", "GET", f"/api/v1/lab-day?date={today}&titrant=HCl", None),
+        ("preview API", "POST", "/api/v1/standardizations/preview", json.dumps(sample_request(100_000)).encode()),
+    ]
+    proc, port = _serve(path)
+    try:
+        rows = {name: measure(port, method, url, body, clients, seconds) for name, method, url, body in routes}
+    finally:
+        proc.terminate()
+        proc.wait(timeout=10)
+    base = rows["healthz"]["throughput"]
+    for r in rows.values():
+        r["throughput_ratio"] = r["throughput"] / base
+    return {"years": years, "database": str(path), "routes": rows}
+
+
+def label_sheet_seconds(path: Path, repeats: int = 7) -> float:
+    """Median time to build a 30-label letter sheet PDF for a batch of the database at `path` (s)."""
+    import datetime as dt
+
+    from stockroom import db as dbmod
+    from stockroom import records, settings
+    from stockroom.pdf import labels, layouts
+
+    conn = dbmod.connect(path)
+    try:
+        code = conn.execute("SELECT code FROM batches WHERE reagent = 'HCl' ORDER BY id DESC LIMIT 1").fetchone()[0]
+        batch = records.batch_by_code(conn, code)
+        content = labels.label_content(conn, settings.resolve({"DATABASE": str(path), "SECRET_KEY": "bench"}),
+                                       batch, dt.date.today())
+    finally:
+        conn.close()
+    layout = layouts.get("sheet-letter-30")
+    return _median_seconds(lambda: labels.build_labels(content, layout, 30), repeats)
+
+
+def print_web_figures(figures: list[dict[str, Any]]) -> None:
+    """Print the served-route figures side by side, with ratios to /healthz and between data sizes."""
+    print(f"{'route':<14}" + "".join(f"  {f['years']:>2} y: req/s  ratio   p50 ms   p95 ms" for f in figures))
+    for name in figures[0]["routes"]:
+        line = f"{name:<14}"
+        for f in figures:
+            r = f["routes"][name]
+            line += f"  {r['throughput']:>11.0f}  {r['throughput_ratio']:>5.2f}  {r['p50_ms']:>7.2f}  {r['p95_ms']:>7.2f}"
+        print(line)
+    if len(figures) == 2:
+        small, big = figures
+        for name in ("dashboard", "batch page"):
+            growth = big["routes"][name]["p95_ms"] / small["routes"][name]["p95_ms"]
+            print(f"{name}: p95 at {big['years']} y is {growth:.2f}x the {small['years']} y figure (goal <= 1.2x, "
+                  f"and <= 50 ms)")

@@ -310,5 +310,31 @@ def restore_command(src: str, db_path: str | None, yes: bool) -> None:
     click.echo(f"{target} restored from {src} (schema version {version}, brought up to date)")
 
 
+
+@main.command()
+@click.option("--years", default=10, show_default=True, type=click.IntRange(1, 30),
+              help="Years of synthetic history for the large case (a 1-year case always runs beside it).")
+@click.option("--seconds", default=3.0, show_default=True, type=click.FloatRange(0.5, 60),
+              help="Load time per route, in seconds.")
+@click.option("--clients", default=4, show_default=True, type=click.IntRange(1, 32),
+              help="Concurrent client processes per route.")
+def bench(years: int, seconds: float, clients: int) -> None:
+    """Measure the real server on loopback at 1 and N years of synthetic data, with ratios to /healthz."""
+    from stockroom import benchmark
+
+    sizes = [1] if years == 1 else [1, years]
+    click.echo(f"building or reusing synthetic databases ({', '.join(f'{y} y' for y in sizes)}) ...")
+    figures = [benchmark.web_figures(y, seconds=seconds, clients=clients) for y in sizes]
+    click.echo(f"served by waitress on 127.0.0.1, {clients} keep-alive clients, {seconds:g} s per route")
+    benchmark.print_web_figures(figures)
+    sheet = benchmark.label_sheet_seconds(Path(figures[-1]["database"]))
+    click.echo(f"30-label letter sheet PDF: {sheet * 1000:.1f} ms (goal <= 300 ms, ratio {sheet / 0.3:.2f})")
+    science = benchmark.science_figures(repeats_1e5=11, repeats_1e6=5)
+    for case in science["cases"]:
+        click.echo(f"preview, 10 replicates, {case['draws']:,} Monte Carlo draws: {case['pure_ms']:.1f} ms pure, "
+                   f"{case['client_ms']:.1f} ms through Flask (goal {case['goal_ms']:.0f} ms, "
+                   f"ratio {case['client_over_goal']:.2f})")
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())

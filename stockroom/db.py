@@ -100,6 +100,26 @@ def query(db: sqlite_utils.Database, sql: str, params: Any = ()) -> list[dict[st
     return [dict(r) for r in db.execute(sql, params).fetchall()]
 
 
+# Each server thread keeps its connection between requests: opening one (and the WAL checkpoint SQLite
+# runs when the last connection to a file closes) costs more than most pages. A request still has the
+# connection to itself; it is handed back clean (any open transaction rolled back) when the request ends.
+_POOL = threading.local()
+_POOL_SIZE = 4  # distinct database files one thread keeps open (tests make many)
+
+
+def _pooled(path: str) -> sqlite_utils.Database:
+    cache: dict[str, sqlite_utils.Database] = getattr(_POOL, "conns", None) or {}
+    _POOL.conns = cache
+    conn = cache.pop(path, None)
+    if conn is None:
+        conn = connect(path)
+        while len(cache) >= _POOL_SIZE:
+            oldest = next(iter(cache))
+            cache.pop(oldest).close()
+    cache[path] = conn  # most recently used last
+    return conn
+
+
 def init_app(app: Any) -> None:
     """Attach per-request connection handling to a Flask app and bring its schema up to date."""
     from flask import g
@@ -111,16 +131,21 @@ def init_app(app: Any) -> None:
         db.close()
 
     @app.teardown_appcontext
-    def _close(exc: BaseException | None) -> None:
+    def _release(exc: BaseException | None) -> None:
         conn = g.pop("db", None)
-        if conn is not None:
+        if conn is None:
+            return
+        if conn.conn.in_transaction:
+            conn.conn.execute("ROLLBACK")
+        if not app.config.get("REUSE_CONNECTIONS", True):
+            _POOL.conns.pop(str(app.config["DATABASE"]), None)
             conn.close()
 
 
 def get_db() -> sqlite_utils.Database:
-    """The connection of the current request, opened on first use."""
+    """The connection of the current request (the thread's own, reused across its requests)."""
     from flask import current_app, g
 
     if "db" not in g:
-        g.db = connect(current_app.config["DATABASE"])
+        g.db = _pooled(str(current_app.config["DATABASE"]))
     return g.db

@@ -482,9 +482,12 @@ def _facts_bulk(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = Non
                                      + where + " GROUP BY batch_id", params)}
     prepared = {r["id"]: dt.date.fromisoformat(r["prepared_on"]) for r in db.execute(
         "SELECT id, prepared_on FROM batches" + (where.replace("batch_id", "id") if where else ""), params)}
+    from stockroom.recall import review_facts  # recall reads these records: imported here to avoid a cycle
+
+    reviews = review_facts(db)  # one query while no recall is on record
     return {
         bid: BatchFacts(prepared_on=p, releases=tuple(releases.get(bid, ())), rechecks=tuple(checks.get(bid, ())),
-                        withdrawn_on=withdrawn.get(bid))
+                        withdrawn_on=withdrawn.get(bid), reviews=reviews.get(bid, ()))
         for bid, p in prepared.items()
     }
 
@@ -496,25 +499,94 @@ def batch_facts(db: sqlite_utils.Database, batch_id: int) -> BatchFacts:
     return facts
 
 
-def batch_views(
-    db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None, status: str | None = None,
-    search: str | None = None,
-) -> list[BatchView]:
-    """Every batch (optionally filtered) with its status on `on`, newest first."""
-    sql, params = "SELECT * FROM batches WHERE 1 = 1", []
+COARSE_FINAL = ("expired", "withdrawn")
+
+
+def coarse_statuses(
+    db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None, search: str | None = None,
+) -> list[tuple[int, str, str | None]]:
+    """(batch id, coarse status, since) of every batch that existed on `on`, newest first, from SQL alone.
+
+    The coarse status is "withdrawn", "expired" or "awaiting" exactly as policy.status_on would say, or
+    "live" for a batch whose finer status (in service, re-check due, drifting) needs its history; `since`
+    is the ISO date withdrawn or the expiry date, else None. Lists
+    that show thousands of batches use this so that only the rows they display pay for the rest.
+    """
+    day = on.isoformat()
+    sql = (
+        "SELECT b.id, "
+        "(SELECT min(w.withdrawn_on) FROM withdrawals w WHERE w.batch_id = b.id) AS withdrawn_on, "
+        "(SELECT r.expires_on FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ? "
+        " ORDER BY r.released_on DESC, r.id DESC LIMIT 1) AS expires_on, "
+        "EXISTS (SELECT 1 FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ?) AS released "
+        "FROM batches b WHERE b.prepared_on <= ?"
+    )
+    params: list[Any] = [day, day, day]
     if reagent:
-        sql += " AND reagent = ?"
+        sql += " AND b.reagent = ?"
         params.append(reagent)
     if search:
-        sql += " AND (code LIKE ? OR prepared_by LIKE ? OR notes LIKE ?)"
+        sql += " AND (b.code LIKE ? OR b.prepared_by LIKE ? OR b.notes LIKE ?)"
         params += [f"%{search}%"] * 3
-    sql += " ORDER BY prepared_on DESC, id DESC"
-    rows = _overlay(dbmod.query(db, sql, params), db)
-    facts = _facts_bulk(db, [r["id"] for r in rows] if (reagent or search) else None)
-    views = [BatchView(r, status_on(facts[r["id"]], on)) for r in rows]
-    if status:
-        views = [v for v in views if v.report.status.value == status]
-    return views
+    sql += " ORDER BY b.prepared_on DESC, b.id DESC"
+    out = []
+    for r in db.execute(sql, params):
+        since = None
+        if r["withdrawn_on"] is not None and r["withdrawn_on"] <= day:
+            coarse, since = "withdrawn", r["withdrawn_on"]
+        elif not r["released"]:
+            coarse = "awaiting"
+        elif r["expires_on"] < day:
+            coarse, since = "expired", r["expires_on"]
+        else:
+            coarse = "live"
+        out.append((int(r["id"]), coarse, since))
+    return out
+
+
+def views_of(db: sqlite_utils.Database, ids: list[int], on: dt.date) -> list[BatchView]:
+    """BatchViews (row as it now reads, full status on `on`) of the given batches, in the order given."""
+    if not ids:
+        return []
+    rows: dict[int, dict[str, Any]] = {}
+    for i in range(0, len(ids), 500):
+        chunk = ids[i:i + 500]
+        for r in dbmod.query(db, f"SELECT * FROM batches WHERE id IN ({','.join('?' * len(chunk))})", chunk):
+            rows[r["id"]] = r
+    _overlay(list(rows.values()), db)
+    facts = _facts_bulk(db, ids) if len(ids) <= 500 else _facts_bulk(db)
+    return [BatchView(rows[i], status_on(facts[i], on)) for i in ids if i in rows]
+
+
+def batch_views(
+    db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None, status: str | None = None,
+    search: str | None = None, limit: int | None = None, offset: int = 0,
+) -> list[BatchView]:
+    """Batches that existed on `on` (optionally filtered) with their status then, newest first.
+
+    With `limit`, only that page of the matching batches is computed in full.
+    """
+    coarse = coarse_statuses(db, on, reagent=reagent, search=search)
+    if status in ("expired", "withdrawn", "awaiting"):
+        ids = [i for i, c, _ in coarse if c == status]
+        return views_of(db, ids[offset: offset + limit] if limit is not None else ids, on)
+    if status is not None:
+        live = views_of(db, [i for i, c, _ in coarse if c == "live"], on)
+        matching = [v for v in live if v.report.status.value == status]
+        return matching[offset: offset + limit] if limit is not None else matching
+    ids = [i for i, _, _ in coarse]
+    return views_of(db, ids[offset: offset + limit] if limit is not None else ids, on)
+
+
+def count_batches(db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None,
+                  status: str | None = None, search: str | None = None) -> int:
+    """How many batches batch_views would list without a limit (cheap for the coarse statuses)."""
+    coarse = coarse_statuses(db, on, reagent=reagent, search=search)
+    if status is None:
+        return len(coarse)
+    if status in ("expired", "withdrawn", "awaiting"):
+        return sum(1 for _, c, _ in coarse if c == status)
+    return len(batch_views(db, on, reagent=reagent, status=status, search=search))
 
 
 def batch_history(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:

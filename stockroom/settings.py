@@ -36,6 +36,8 @@ SETTINGS: tuple[Setting, ...] = (
             str),
     Setting("MAX_CONTENT_LENGTH", 2 * 1024 * 1024, "Largest request body accepted, in bytes.", int),
     Setting("CSV_MAX_ROWS", 2000, "Most rows accepted from one uploaded CSV file.", int),
+    Setting("REUSE_CONNECTIONS", True, "Keep each server thread's database connection open between requests "
+            "(faster; turn off to open one per request).", bool),
     # Defaults below feed the science core; a reagent's own policy overrides the tolerances.
     Setting("DEFAULT_TOLERANCE_REL", 0.005, "Drift tolerance, relative to the certified value (0.005 = 0.5 %).",
             float),

@@ -37,9 +37,35 @@ def _summary(batch: dict[str, Any], report: StatusReport) -> dict[str, Any]:
 @bp.get("/batches")
 def batches() -> Any:
     on = parse_date_arg(request.args.get("on"), "on") or lab_today()
-    views = records.batch_views(get_db(), on, reagent=request.args.get("titrant") or None,
-                                status=request.args.get("status") or None)
-    return jsonify({"on": on.isoformat(), "batches": [_summary(v.batch, v.report) for v in views]})
+    from stockroom.errors import FieldError, InvalidInput
+
+    db = get_db()
+    titrant, status = request.args.get("titrant") or None, request.args.get("status") or None
+    try:
+        limit = int(request.args.get("limit", "200"))
+        offset = int(request.args.get("offset", "0"))
+    except ValueError:
+        raise InvalidInput([FieldError("limit", "limit and offset must be whole numbers")]) from None
+    if not 1 <= limit <= 1000 or offset < 0:
+        raise InvalidInput([FieldError("limit", "limit must be between 1 and 1000 and offset at least 0")])
+    total = records.count_batches(db, on, reagent=titrant, status=status)
+    views = records.batch_views(db, on, reagent=titrant, status=status, limit=limit, offset=offset)
+    body: dict[str, Any] = {"on": on.isoformat(), "total": total, "limit": limit, "offset": offset,
+                            "batches": [_summary(v.batch, v.report) for v in views]}
+    if offset + limit < total:
+        body["next"] = f"{request.path}?{_query(on, titrant, status, limit, offset + limit)}"
+    return jsonify(body)
+
+
+def _query(on: Any, titrant: str | None, status: str | None, limit: int, offset: int) -> str:
+    from urllib.parse import urlencode
+
+    q = {"on": on.isoformat(), "limit": limit, "offset": offset}
+    if titrant:
+        q["titrant"] = titrant
+    if status:
+        q["status"] = status
+    return urlencode(q)
 
 
 @bp.get("/batches/<code>")

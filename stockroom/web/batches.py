@@ -24,18 +24,20 @@ def list_batches() -> str:
     reagent = request.args.get("reagent") or None
     status = request.args.get("status") or None
     search = (request.args.get("q") or "").strip() or None
-    views = records.batch_views(get_db(), on, reagent=reagent, status=status, search=search)
+    db = get_db()
+    total = records.count_batches(db, on, reagent=reagent, status=status, search=search)
     try:
         page = max(1, int(request.args.get("page", "1")))
     except ValueError:
         page = 1
-    pages = max(1, -(-len(views) // PAGE_SIZE))
+    pages = max(1, -(-total // PAGE_SIZE))
     page = min(page, pages)
-    shown = views[(page - 1) * PAGE_SIZE: page * PAGE_SIZE]
+    shown = records.batch_views(db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE,
+                                offset=(page - 1) * PAGE_SIZE)
     return render_template(
         "batches/list.html", views=shown, on=on, reagent=reagent, status=status, q=search or "",
         statuses=URGENCY, reagents=[t.key for t in chemistry.list_titrants()], page=page, pages=pages,
-        total=len(views),
+        total=total,
     )
 
 

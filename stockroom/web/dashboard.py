@@ -3,25 +3,42 @@
 from __future__ import annotations
 
 import datetime as dt
+from typing import Any
 
 from flask import Blueprint, render_template, request
 
 from stockroom import records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, Status
-from stockroom.web import lab_today, parse_date_arg
+from stockroom.web import lab_today, parse_date_arg, viewcache
 
 bp = Blueprint("dashboard", __name__)
+
+# Batches out of use (expired or withdrawn) are listed for this many days; older ones are only counted.
+RECENT_DAYS = 30
 
 
 @bp.get("/")
 def index() -> str:
     on = parse_date_arg(request.args.get("on"), "on") or lab_today()
-    views = records.batch_views(get_db(), on)
-    groups: dict[Status, list[records.BatchView]] = {s: [] for s in URGENCY}
-    for v in views:
-        groups[v.report.status].append(v)
+    db = get_db()
+    groups, counts, total = viewcache.cached(db, ("dashboard", on), lambda: _board(db, on))
     return render_template(
-        "dashboard/index.html", on=on, groups=groups, urgency=URGENCY, Status=Status,
-        is_today=(on == lab_today()), total=len(views), one_day=dt.timedelta(days=1),
+        "dashboard/index.html", on=on, groups=groups, counts=counts, urgency=URGENCY, Status=Status,
+        is_today=(on == lab_today()), total=total, one_day=dt.timedelta(days=1), recent_days=RECENT_DAYS,
     )
+
+
+def _board(db: Any, on: dt.date) -> tuple[dict[Status, list[records.BatchView]], dict[Status, int], int]:
+    """Batches shown on the board by status, the count of each status, and how many batches existed."""
+    coarse = records.coarse_statuses(db, on)
+    recent_from = (on - dt.timedelta(days=RECENT_DAYS)).isoformat()
+    shown = [i for i, c, since in coarse
+             if c in ("live", "awaiting") or (since is not None and since >= recent_from)]
+    groups: dict[Status, list[records.BatchView]] = {s: [] for s in URGENCY}
+    for v in records.views_of(db, shown, on):
+        groups[v.report.status].append(v)
+    counts = {s: len(groups[s]) for s in URGENCY}
+    for s in (Status.EXPIRED, Status.WITHDRAWN):
+        counts[s] = sum(1 for _, c, _ in coarse if c == s.value)
+    return groups, counts, len(coarse)

@@ -24,7 +24,7 @@ from stockroom.errors import InvalidInput, NotFound
 from stockroom.pdf.charts import drift_svg
 from stockroom.pdf.labday_sheet import labday_sheet_pdf
 from stockroom.policy import drift_on
-from stockroom.web import lab_today
+from stockroom.web import lab_today, viewcache
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import MISSING, Parser
 
@@ -37,12 +37,23 @@ CHART_WIDTH, CHART_HEIGHT = 1080, 430  # px: the width of a batch page's panel
 
 # ---------------------------------------------------------------- loading
 
-def load_batches(db: sqlite_utils.Database, titrant: str | None) -> list[ld.BatchRecord]:
-    """Every batch of a titrant (all when None) with its facts, in a fixed number of queries."""
-    sql, params = "SELECT id, code, reagent, nominal_molarity FROM batches", []
+def load_batches(db: sqlite_utils.Database, titrant: str | None, day: dt.date | None = None
+                 ) -> list[ld.BatchRecord]:
+    """Batches of a titrant (all when None) with their facts, in a fixed number of queries.
+
+    With `day`, only batches that can have a value in force that day (a release made by then whose
+    expiry is not before it, and no withdrawal by then) are loaded: the rest cannot appear.
+    """
+    sql, params = "SELECT id, code, reagent, nominal_molarity FROM batches b WHERE 1 = 1", []
     if titrant:
-        sql += " WHERE reagent = ?"
+        sql += " AND reagent = ?"
         params.append(titrant)
+    if day is not None:
+        iso = day.isoformat()
+        sql += (" AND EXISTS (SELECT 1 FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ? "
+                "AND r.expires_on >= ?) AND NOT EXISTS (SELECT 1 FROM withdrawals w WHERE w.batch_id = b.id "
+                "AND w.withdrawn_on <= ?)")
+        params += [iso, iso, iso]
     rows = dbmod.query(db, sql + " ORDER BY code", params)
     if not rows:
         return []
@@ -102,7 +113,16 @@ def parse_question(args: Mapping[str, Any], *, strict: bool, default_day: dt.dat
 
 def look_up(day: dt.date, titrant: str | None, bench: float | None) -> ld.LabDay:
     """The lab day read from the database today."""
-    return ld.lab_day(load_batches(get_db(), titrant), day, lab_today(), titrant, bench, _alpha())
+    db = get_db()
+    today = lab_today()
+
+    def compute() -> ld.LabDay:
+        # Only the batches that can be in force are loaded; when none can, all are, so that the
+        # answer can say why (none made yet, all expired, withdrawn...).
+        batches = load_batches(db, titrant, day) or load_batches(db, titrant)
+        return ld.lab_day(batches, day, today, titrant, bench, _alpha())
+
+    return viewcache.cached(db, ("lab-day", day, titrant, bench, today), compute)
 
 
 # ---------------------------------------------------------------- the look-up

@@ -1,0 +1,41 @@
+"""A small in-process cache of computed views, keyed by the audit trail's newest entry.
+
+Every write appends an audit entry, so the newest entry's id is a version of everything recorded: a
+cached view computed at that version is exactly what computing it again would give. Pages that many
+people open at once (the front page, the lab-day answer) reuse their computation until the next write.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections import OrderedDict
+from collections.abc import Callable, Hashable
+from typing import Any, TypeVar
+
+import sqlite_utils
+
+T = TypeVar("T")
+_LOCK = threading.Lock()
+_ENTRIES: OrderedDict[Hashable, Any] = OrderedDict()
+MAX_ENTRIES = 128
+
+
+def data_version(db: sqlite_utils.Database) -> int:
+    """The id of the newest audit entry (0 for an empty database)."""
+    row = db.execute("SELECT max(id) FROM events").fetchone()
+    return int(row[0] or 0)
+
+
+def cached(db: sqlite_utils.Database, key: tuple[Hashable, ...], compute: Callable[[], T]) -> T:
+    """compute(), or its result from an earlier call with the same key at the same data version."""
+    full = (str(db.conn.execute("PRAGMA database_list").fetchone()[2]), data_version(db), *key)
+    with _LOCK:
+        if full in _ENTRIES:
+            _ENTRIES.move_to_end(full)
+            return _ENTRIES[full]  # type: ignore[no-any-return]
+    value = compute()
+    with _LOCK:
+        _ENTRIES[full] = value
+        while len(_ENTRIES) > MAX_ENTRIES:
+            _ENTRIES.popitem(last=False)
+    return value
