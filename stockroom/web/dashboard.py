@@ -6,6 +6,7 @@ import datetime as dt
 from typing import Any
 
 from flask import Blueprint, render_template, request
+from markupsafe import Markup
 
 from stockroom import records
 from stockroom.db import get_db
@@ -22,11 +23,15 @@ RECENT_DAYS = 30
 def index() -> str:
     on = parse_date_arg(request.args.get("on"), "on") or lab_today()
     db = get_db()
-    groups, counts, total = viewcache.cached(db, ("dashboard", on), lambda: _board(db, on))
-    return render_template(
-        "dashboard/index.html", on=on, groups=groups, counts=counts, urgency=URGENCY, Status=Status,
-        is_today=(on == lab_today()), total=total, one_day=dt.timedelta(days=1), recent_days=RECENT_DAYS,
-    )
+    # Markup() marks the cached fragment as already escaped (it was rendered by Jinja with autoescape).
+    board = viewcache.cached(db, ("dashboard", on), lambda: Markup(_render_board(db, on)))
+    return render_template("dashboard/index.html", on=on, is_today=(on == lab_today()), board=board)
+
+
+def _render_board(db: Any, on: dt.date) -> str:
+    groups, counts, total = _board(db, on)
+    return render_template("dashboard/_board.html", on=on, groups=groups, counts=counts, urgency=URGENCY,
+                           Status=Status, total=total, recent_days=RECENT_DAYS)
 
 
 def _board(db: Any, on: dt.date) -> tuple[dict[Status, list[records.BatchView]], dict[Status, int], int]:
