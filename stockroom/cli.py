@@ -336,5 +336,32 @@ def bench(years: int, seconds: float, clients: int) -> None:
                    f"ratio {case['client_over_goal']:.2f})")
 
 
+
+@main.command()
+@click.option("--years", default=10, show_default=True, type=click.IntRange(1, 30), help="Years of history to write.")
+@click.option("--db", "db_path", required=True, type=click.Path(dir_okay=False),
+              help="New SQLite file to write (must not exist; never the working database).")
+@click.option("--seed", default=1, show_default=True, type=int, help="Seed: the same seed gives the same history.")
+@click.option("--end", "end_day", default=None, help="Last day of the history, YYYY-MM-DD (default: today).")
+def synth(years: int, db_path: str, seed: int, end_day: str | None) -> None:
+    """Write a plausible, clearly synthetic history (about 200 batches a year) for load tests."""
+    import datetime as dt
+
+    from stockroom import synth as synthmod
+
+    target = Path(db_path)
+    if target.exists():
+        raise click.UsageError(f"{target} already exists; synth writes a new file")
+    if target.resolve() == Path(settings.database_path()).resolve():
+        raise click.UsageError("synth never writes into the working database; pick another --db file")
+    try:
+        end = dt.date.fromisoformat(end_day) if end_day else None
+    except ValueError:
+        raise click.BadParameter("write it as YYYY-MM-DD", param_hint="--end") from None
+    counts = synthmod.build(str(target), years=years, seed=seed, end=end)
+    click.echo(f"synthetic history of {years} years written to {target}: " +
+               ", ".join(f"{v} {k}" for k, v in counts.items()))
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())

@@ -91,3 +91,25 @@ def test_demo_command_serves_on_loopback(tmp_path):
         proc.wait(timeout=10)
         if proc.stdout:
             proc.stdout.close()
+
+
+def test_synth_is_deterministic_for_a_seed(tmp_path):
+    import sqlite3
+
+    def content(path):
+        conn = sqlite3.connect(path)
+        try:
+            return (conn.execute("SELECT code, reagent, nominal_molarity, prepared_on FROM batches ORDER BY id").fetchall(),
+                    conn.execute("SELECT mass_g, volume_ml FROM replicates ORDER BY id").fetchall())
+        finally:
+            conn.close()
+
+    args = ["--years", "1", "--seed", "7", "--end", "2026-06-30"]
+    for name in ("a.db", "b.db"):
+        result = CliRunner().invoke(main, ["synth", "--db", str(tmp_path / name), *args])
+        assert result.exit_code == 0, result.output
+    a, b = content(tmp_path / "a.db"), content(tmp_path / "b.db")
+    assert a == b and 100 < len(a[0]) < 400 and len(a[1]) > 3 * len(a[0])
+    assert all("synthetic" in n for (n,) in sqlite3.connect(tmp_path / "a.db").execute("SELECT notes FROM batches"))
+    again = CliRunner().invoke(main, ["synth", "--db", str(tmp_path / "a.db"), *args])
+    assert again.exit_code != 0 and "already exists" in again.output
