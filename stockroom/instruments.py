@@ -218,7 +218,7 @@ def figures(config: Mapping[str, Any], chosen: Mapping[str, Instrument], on: dt.
     run's date (picks the calibration whose stated figures hold). Returns standardization.Instruments.
     """
     base = standardization.Instruments.from_settings(config)
-    changes: dict[str, float] = {}
+    changes: dict[str, Any] = {}
     balance = chosen.get("balance")
     if balance is not None:
         if balance.readability is not None:

@@ -51,7 +51,7 @@ class Node:
     """One thing a certified value can rest on, or a certified value itself.
 
     kind: release, lot or instrument; id: its record id; label: what people call it (batch ID, lot
-    code, instrument ID); detail: one line about it. value and u: a release's molarity and standard
+    code, instrument ID); detail: a line or two about it (split by "\n"). value and u: a release's molarity and standard
     uncertainty (mol/L), a lot's assay and its standard uncertainty (mass fractions), None for an
     instrument. batch_id, released_on and ends_on (the last day the value was in force: its expiry,
     or the day before the next release or a withdrawal) for releases only.
@@ -84,7 +84,7 @@ class Node:
 class Edge:
     """A release resting on a node: release and on are node keys; role is "primary standard",
     "reference", "balance", "burette" or "pipette"; used_on: the date of the run; run_id: the run;
-    note: a line about the use (e.g. the calibration certificate in force)."""
+    note: a line or two about the use, split by "\n" (e.g. the calibration in force and its due date)."""
 
     release: str
     on: str
@@ -312,8 +312,9 @@ def downstream(graph: Graph, suspect: Suspect) -> dict[str, Reached]:
 # ---------------------------------------------------------------------------------------------------------
 # The drawn chain (SVG)
 
-_W, _H, _GAP = 340, 74, 48          # px: a release or lot box, and the space between rows
-_IW, _IH, _IGAP = 200, 58, 14       # px: an instrument box and the space between them
+_W, _H, _GAP = 400, 84, 48          # px: a release or lot box, and the space between rows
+_MIN_WIDTH = 580                    # px: room for the label beside each connector
+_IW, _IH, _IGAP = 210, 72, 14       # px: an instrument box and the space between them
 _MARGIN, _REACH = 10, 40            # px: around the drawing; from a release box to its first instrument
 _INK, _MUTED, _LINE = "#1d2327", "#5b6770", "#8a949b"
 _BAD, _BAD_BG = "#9b2226", "#fbe9e9"
@@ -369,7 +370,7 @@ def chain_svg(chain: Chain, *, hrefs: Mapping[str, str] | None = None, suspect: 
     if chain.origin is not None:
         rows.append((chain.origin, None))
     kit_max = max((len(s.instruments) for s in chain.steps), default=0)
-    width = _MARGIN * 2 + _W + (_REACH + kit_max * (_IW + _IGAP) - _IGAP if kit_max else 0)
+    width = max(_MIN_WIDTH, _MARGIN * 2 + _W + (_REACH + kit_max * (_IW + _IGAP) - _IGAP if kit_max else 0))
     height = _MARGIN * 2 + len(rows) * _H + max(0, len(rows) - 1) * _GAP
     out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="chain-tree" role="img" width="{width}" '
            f'height="{height}" viewBox="0 0 {width} {height}" font-family="system-ui, -apple-system, '
@@ -379,15 +380,15 @@ def chain_svg(chain: Chain, *, hrefs: Mapping[str, str] | None = None, suspect: 
     cx = _MARGIN + _W / 2
     for i, (node, step) in enumerate(rows):
         y = _MARGIN + i * (_H + _GAP)
+        detail = [(line, 11.5, "normal", _INK) for line in node.detail.split("\n")[:2]]
         if step is not None:
             u_line = f"u_rel {_pct(step.u_rel)}"
             if step.u_rel_added is not None:
                 u_line += f" · this step adds {_pct(step.u_rel_added)}"
-            lines = [(f"{node.label} · certified value", 13, "bold", _INK), (node.detail, 11.5, "normal", _INK),
-                     (u_line, 11.5, "normal", _MUTED)]
+            lines = [(f"{node.label} · certified value", 13, "bold", _INK), *detail, (u_line, 11.5, "normal", _MUTED)]
         else:
-            lines = [(f"{node.label} · primary-standard lot", 13, "bold", _INK), (node.detail, 11.5, "normal", _INK),
-                     (f"assay u_rel {_pct(node.u_rel)} (certificate U/k)", 11.5, "normal", _MUTED)]
+            lines = [(f"{node.label} · primary-standard lot", 13, "bold", _INK), *detail,
+                     (f"assay u_rel {_pct(node.u_rel)} (the certificate's U/k)", 11.5, "normal", _MUTED)]
         boxes.append(_box(node, _MARGIN, y, _W, _H, lines, suspect=node.key in suspect, root=i == 0,
                           href=hrefs.get(node.key)))
         if i + 1 < len(rows) and step is not None:
@@ -397,7 +398,7 @@ def chain_svg(chain: Chain, *, hrefs: Mapping[str, str] | None = None, suspect: 
             lines_layer.append(f'<path d="M{cx - 5:.1f},{y1 - 8:.1f} L{cx:.1f},{y1:.1f} L{cx + 5:.1f},{y1 - 8:.1f} Z" '
                                f'fill="{_LINE}"/>')
             used = f" on {step.used_on.isoformat()}" if step.used_on else ""
-            label = "standardized against a weighed lot" if step.role == PRIMARY else "standardized against"
+            label = "rests on: weighed from this lot" if step.role == PRIMARY else "rests on: titrated against this"
             lines_layer.append(_text(cx + 10, y0 + _GAP / 2 + 4, f"{label}{used}", 11, fill=_MUTED))
         if step is not None and step.instruments:
             ym = y + _H / 2
@@ -407,8 +408,8 @@ def chain_svg(chain: Chain, *, hrefs: Mapping[str, str] | None = None, suspect: 
             for j, (edge, inst) in enumerate(step.instruments):
                 ix = _MARGIN + _W + _REACH + j * (_IW + _IGAP)
                 iy = y + (_H - _IH) / 2
-                ilines = [(f"{inst.label} · {edge.role}", 12, "bold", _INK), (inst.detail, 10.5, "normal", _INK),
-                          (edge.note, 10.5, "normal", _MUTED)]
+                ilines = [(f"{inst.label} · {edge.role}", 12, "bold", _INK), (inst.detail, 10.5, "normal", _INK)]
+                ilines += [(line, 10.5, "normal", _MUTED) for line in edge.note.split("\n")[:2]]
                 boxes.append(_box(inst, ix, iy, _IW, _IH, ilines, suspect=inst.key in suspect, root=False,
                                   href=hrefs.get(inst.key)))
     out += lines_layer + boxes

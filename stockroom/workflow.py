@@ -2,6 +2,11 @@
 
 Each action composes the pure science core (standardization, policy) with the record layer, so the
 web forms, the CSV import and the demo loader all go through the same path and store the same thing.
+
+A run may name the instruments it used (stockroom.instruments): their figures replace the settings'
+defaults in the uncertainty budget, they are stored with the run, and a certifying run made with an
+instrument past its calibration due date (or failed, or never calibrated) cannot be accepted; a
+re-check is recorded with a warning.
 """
 
 from __future__ import annotations
@@ -13,6 +18,8 @@ from typing import Any
 import sqlite_utils
 
 from stockroom import chemistry, records, standardization, stats
+from stockroom import db as dbmod
+from stockroom import instruments as inst_mod
 from stockroom.errors import Conflict, FieldError, InvalidInput
 from stockroom.policy import ReagentPolicy, expiry_for, release_in_force
 from stockroom.standardization import StandardizationResult
@@ -38,8 +45,12 @@ def _purity(lot: Mapping[str, Any]) -> InputQuantity:
 def compute_primary(
     config: Mapping[str, Any], batch: Mapping[str, Any], lot: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]],
     excluded: Mapping[int, str], policy: ReagentPolicy, burette_capacity_ml: float | None = None,
+    figures: standardization.Instruments | None = None,
 ) -> StandardizationResult:
-    """Compute a primary run from stored-form replicate dicts (1-based positions in `excluded`)."""
+    """Compute a primary run from stored-form replicate dicts (1-based positions in `excluded`).
+
+    figures: the instrument figures of the run (instruments.figures); None takes the settings' defaults.
+    """
     spec = standardization.standard_spec(batch["reagent"], lot["substance"])
     titrant = chemistry.titrant(batch["reagent"])
     alternatives = tuple(
@@ -59,7 +70,7 @@ def compute_primary(
         exclusions=tuple(standardization.Exclusion(p - 1, why) for p, why in sorted(excluded.items())),
         burette_capacity_ml=burette_capacity_ml, alternatives=alternatives,
     )
-    return standardization.standardize_primary(run, standardization.Instruments.from_settings(config),
+    return standardization.standardize_primary(run, figures or standardization.Instruments.from_settings(config),
                                                rule_for(policy))
 
 
@@ -67,8 +78,12 @@ def compute_secondary(
     config: Mapping[str, Any], batch: Mapping[str, Any], reference_batch: Mapping[str, Any],
     reference_molarity: float, reference_u: float, replicates: Sequence[Mapping[str, Any]],
     excluded: Mapping[int, str], policy: ReagentPolicy, burette_capacity_ml: float | None = None,
+    figures: standardization.Instruments | None = None,
 ) -> StandardizationResult:
-    """Compute a secondary run: aliquots of this batch titrated with a certified reference batch."""
+    """Compute a secondary run: aliquots of this batch titrated with a certified reference batch.
+
+    figures: the instrument figures of the run (instruments.figures); None takes the settings' defaults.
+    """
     nu = chemistry.stoichiometric_factor(chemistry.titrant(batch["reagent"]),
                                          chemistry.titrant(reference_batch["reagent"]))
     reps = tuple(
@@ -83,7 +98,7 @@ def compute_secondary(
         exclusions=tuple(standardization.Exclusion(p - 1, why) for p, why in sorted(excluded.items())),
         burette_capacity_ml=burette_capacity_ml,
     )
-    return standardization.standardize_secondary(run, standardization.Instruments.from_settings(config),
+    return standardization.standardize_secondary(run, figures or standardization.Instruments.from_settings(config),
                                                  rule_for(policy))
 
 
@@ -115,22 +130,53 @@ def check_lot_usable(lot: Mapping[str, Any], on: dt.date) -> list[str]:
     return warnings
 
 
+def run_figures(config: Mapping[str, Any], chosen: Mapping[str, inst_mod.Instrument],
+                on: dt.date) -> standardization.Instruments | None:
+    """The budget's figures for a run that named instruments (role -> Instrument), or None for the defaults."""
+    return inst_mod.figures(config, chosen, on) if chosen else None
+
+
+def _stored_result(result: StandardizationResult, chosen: Mapping[str, inst_mod.Instrument], on: dt.date,
+                   purpose: str) -> dict[str, Any]:
+    """The snapshot stored with a run, with the warnings about its instruments added."""
+    body = snapshot(result)
+    extra = inst_mod.warnings_for(chosen, on, purpose)
+    if extra:
+        body["warnings"] = list(body.get("warnings") or []) + extra
+    return body
+
+
+def _record(db: sqlite_utils.Database, run: dict[str, Any], replicates: Sequence[Mapping[str, Any]],
+            result: StandardizationResult, actor: str, excluded: Mapping[int, str],
+            chosen: Mapping[str, inst_mod.Instrument], on: dt.date) -> int:
+    """Store a run and the instruments it named in one write."""
+    with dbmod.write(db):
+        run_id = records.record_run(db, run, _replicate_rows(replicates, result),
+                                    _stored_result(result, chosen, on, str(run["purpose"])), actor,
+                                    exclusions=sorted(excluded.items()))
+        inst_mod.link_run(db, run_id, run["batch_id"], chosen, on, actor)
+    return run_id
+
+
 def record_primary_run(
     db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], lot: Mapping[str, Any],
     meta: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]], actor: str,
-    excluded: Mapping[int, str] | None = None,
+    excluded: Mapping[int, str] | None = None, instruments: Mapping[str, inst_mod.Instrument] | None = None,
 ) -> tuple[int, StandardizationResult]:
-    """Compute and store a primary run (meta: purpose, performed_on, analyst, endpoint...); return its id."""
+    """Compute and store a primary run (meta: purpose, performed_on, analyst, endpoint...); return its id.
+
+    instruments: role ("balance", "burette") -> Instrument the run used; their figures enter the budget.
+    """
     excluded = dict(excluded or {})
+    chosen = dict(instruments or {})
     performed_on = dt.date.fromisoformat(str(meta["performed_on"]))
     check_lot_usable(lot, performed_on)
     policy = records.policy_for(db, batch["reagent"], performed_on)
-    result = compute_primary(config, batch, lot, replicates, excluded, policy, meta.get("burette_capacity_ml"))
-    run = dict(meta)
+    result = compute_primary(config, batch, lot, replicates, excluded, policy, meta.get("burette_capacity_ml"),
+                             run_figures(config, chosen, performed_on))
+    run = {k: v for k, v in meta.items() if k != "instruments"}
     run.update({"batch_id": batch["id"], "method": "primary", "standard_lot_id": lot["id"]})
-    run_id = records.record_run(db, run, _replicate_rows(replicates, result), snapshot(result), actor,
-                                exclusions=sorted(excluded.items()))
-    return run_id, result
+    return _record(db, run, replicates, result, actor, excluded, chosen, performed_on), result
 
 
 def reference_in_force(db: sqlite_utils.Database, reference_batch: Mapping[str, Any], on: dt.date):
@@ -146,22 +192,25 @@ def record_secondary_run(
     db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any],
     reference_batch: Mapping[str, Any], meta: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]],
     actor: str, excluded: Mapping[int, str] | None = None,
+    instruments: Mapping[str, inst_mod.Instrument] | None = None,
 ) -> tuple[int, StandardizationResult]:
-    """Compute and store a secondary run against the reference's release in force that day."""
+    """Compute and store a secondary run against the reference's release in force that day.
+
+    instruments: role ("burette", "pipette") -> Instrument the run used; their figures enter the budget.
+    """
     excluded = dict(excluded or {})
+    chosen = dict(instruments or {})
     performed_on = dt.date.fromisoformat(str(meta["performed_on"]))
     if reference_batch["id"] == batch["id"]:
         raise InvalidInput([FieldError("reference_batch", "a batch cannot be its own reference")])
     ref = reference_in_force(db, reference_batch, performed_on)
     policy = records.policy_for(db, batch["reagent"], performed_on)
     result = compute_secondary(config, batch, reference_batch, ref.molarity, ref.u, replicates, excluded, policy,
-                               meta.get("burette_capacity_ml"))
-    run = dict(meta)
+                               meta.get("burette_capacity_ml"), run_figures(config, chosen, performed_on))
+    run = {k: v for k, v in meta.items() if k != "instruments"}
     run.update({"batch_id": batch["id"], "method": "secondary", "reference_batch_id": reference_batch["id"],
                 "reference_release_id": ref.id})
-    run_id = records.record_run(db, run, _replicate_rows(replicates, result), snapshot(result), actor,
-                                exclusions=sorted(excluded.items()))
-    return run_id, result
+    return _record(db, run, replicates, result, actor, excluded, chosen, performed_on), result
 
 
 def recompute(db: sqlite_utils.Database, config: Mapping[str, Any], run: Mapping[str, Any],
@@ -170,13 +219,15 @@ def recompute(db: sqlite_utils.Database, config: Mapping[str, Any], run: Mapping
     batch = records.batch_by_id(db, run["batch_id"])
     performed_on = dt.date.fromisoformat(run["performed_on"])
     policy = records.policy_for(db, batch["reagent"], performed_on)
+    figures = run_figures(config, inst_mod.instruments_of_run(db, run["id"]), performed_on)
     if run["method"] == "primary":
         lot = records.lot_by_id(db, run["standard_lot_id"])
-        return compute_primary(config, batch, lot, run["replicates"], excluded, policy, run["burette_capacity_ml"])
+        return compute_primary(config, batch, lot, run["replicates"], excluded, policy, run["burette_capacity_ml"],
+                               figures)
     ref_batch = records.batch_by_id(db, run["reference_batch_id"])
     ref = next(r for r in records.batch_facts(db, ref_batch["id"]).releases if r.id == run["reference_release_id"])
     return compute_secondary(config, batch, ref_batch, ref.molarity, ref.u, run["replicates"], excluded, policy,
-                             run["burette_capacity_ml"])
+                             run["burette_capacity_ml"], figures)
 
 
 def exclude(db: sqlite_utils.Database, config: Mapping[str, Any], run_id: int, position: int, reason: str,
@@ -186,7 +237,9 @@ def exclude(db: sqlite_utils.Database, config: Mapping[str, Any], run_id: int, p
     excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
     excluded[position] = reason
     result = recompute(db, config, run, excluded)
-    records.exclude_replicate(db, run_id, position, reason, snapshot(result), actor)
+    body = _stored_result(result, inst_mod.instruments_of_run(db, run_id),
+                          dt.date.fromisoformat(run["performed_on"]), run["purpose"])
+    records.exclude_replicate(db, run_id, position, reason, body, actor)
     return result
 
 
@@ -198,6 +251,13 @@ def accept(db: sqlite_utils.Database, run_id: int, actor: str, released_on: dt.d
     if not current["accepted_by_rule"]:
         why = "; ".join(current["result"].get("reasons", [])) or "it does not meet the acceptance rule"
         raise Conflict(f"this run cannot be accepted: {why}. Exclude a replicate with a reason, or reject the run")
+    if run["purpose"] == "certify":
+        used_on = dt.date.fromisoformat(run["performed_on"])
+        problems = [p for inst in inst_mod.instruments_of_run(db, run_id).values()
+                    if (p := inst_mod.problem_for_release(inst, used_on)) is not None]
+        if problems:
+            raise Conflict("this run cannot release the batch: " + "; ".join(problems) + ". Recalibrate the "
+                           "instrument and repeat the standardization; a re-check may still be recorded with it")
     if run["purpose"] != "certify":
         return records.decide_run(db, run_id, "accept", reason, actor)
     batch = records.batch_by_id(db, run["batch_id"])

@@ -36,11 +36,13 @@ def register(app: Flask) -> None:
         formatting,
         hazards_admin,
         health,
+        instruments,
         intake,
         labday,
         lots,
         preview,
         printing,
+        recalls,
         runs,
     )
 
@@ -49,6 +51,9 @@ def register(app: Flask) -> None:
         app.register_blueprint(module.bp)
     for module in (printing, hazards_admin):  # labels, certificates and hazard data
         app.register_blueprint(module.bp)
+    for module in (instruments, recalls):  # the instrument register, recalls and their impact
+        app.register_blueprint(module.bp)
+    app.register_blueprint(recalls.trace_bp)  # a batch's traceability chain
     app.register_blueprint(audit.bp)
     app.register_blueprint(intake.api_bp)
     app.register_blueprint(labday.api_bp)

@@ -20,6 +20,7 @@ from stockroom import chemistry, csvio, records, workflow
 from stockroom.db import get_db
 from stockroom.errors import FieldError, InvalidInput, StockroomError
 from stockroom.policy import release_in_force
+from stockroom.web import instruments as web_instruments
 from stockroom.web import lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.forms import date as form_date
@@ -159,6 +160,7 @@ def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date)
         "lots": _lots_for(batch, on) if method == "primary" else [],
         "references": _references_for(batch, on) if method == "secondary" else [],
         "in_force": release_in_force(facts, on), "burettes": BURETTES_ML,
+        "instrument_choices": web_instruments.run_choices(method, on),
         "rows": GRID_ROWS, "today": on,
         "standards": {s.key: s for s in chemistry.list_standards(titrant)},
         # Mass of each standard that gives a 40 mL titre at the nominal strength (a 50 mL burette).
@@ -211,9 +213,10 @@ def parse_run(batch: dict[str, Any], method: str, form: Any) -> tuple[dict[str, 
                 p.error("reference_batch", exc.message)
     reps, excluded, grid = parse_grid(form, method == "secondary", capacity or 100.0, run_t)
     p.errors.extend(grid.errors)
+    chosen = web_instruments.read_run_instruments(p, form, method, capacity)
     meta = {"purpose": purpose, "performed_on": performed_on.isoformat() if performed_on else None,
             "analyst": analyst, "burette_capacity_ml": capacity, "temperature_c": run_t,
-            "endpoint": endpoint, "notes": notes}
+            "endpoint": endpoint, "notes": notes, "instruments": chosen}
     if purpose == "recheck" and performed_on is not None:
         if release_in_force(records.batch_facts(get_db(), batch["id"]), performed_on) is None:
             p.error("purpose", "a re-check needs a certified value in force that day; record a standardization")
@@ -225,13 +228,14 @@ def _compute(batch: dict[str, Any], method: str, meta: dict[str, Any], partner: 
     db = get_db()
     on = dt.date.fromisoformat(meta["performed_on"])
     policy = records.policy_for(db, batch["reagent"], on)
+    figures = workflow.run_figures(current_app.config, meta["instruments"], on)
     if method == "primary":
         workflow.check_lot_usable(partner, on)
         return workflow.compute_primary(current_app.config, batch, partner, reps, excluded, policy,
-                                        meta["burette_capacity_ml"])
+                                        meta["burette_capacity_ml"], figures)
     ref = workflow.reference_in_force(db, partner, on)
     return workflow.compute_secondary(current_app.config, batch, partner, ref.molarity, ref.u, reps, excluded,
-                                      policy, meta["burette_capacity_ml"])
+                                      policy, meta["burette_capacity_ml"], figures)
 
 
 # ---------------------------------------------------------------- views
@@ -278,10 +282,11 @@ def new_run(code: str) -> Any:
         return render_template("runs/new.html", values=form, errors={}, result=workflow.snapshot(result), **ctx)
     actor = user.username if user else "?"
     if method == "primary":
-        run_id, _ = workflow.record_primary_run(db, current_app.config, batch, partner, meta, reps, actor, excluded)
+        run_id, _ = workflow.record_primary_run(db, current_app.config, batch, partner, meta, reps, actor, excluded,
+                                                instruments=meta["instruments"])
     else:
         run_id, _ = workflow.record_secondary_run(db, current_app.config, batch, partner, meta, reps, actor,
-                                                  excluded)
+                                                  excluded, instruments=meta["instruments"])
     flash(f"Run recorded for {batch['code']}. Review it, then accept or reject it.", "ok")
     return redirect(url_for("runs.show", run_id=run_id), 303)
 
