@@ -69,7 +69,9 @@ def append_event(
 # the entry (perhaps the newest, which the chain alone cannot miss) was removed behind our back.
 RECORD_EVENTS = {
     "batches": "batch.register", "standard_lots": "lot.register", "releases": "batch.release",
-    "withdrawals": "batch.withdraw", "amendments": "batch.amend",
+    "withdrawals": "batch.withdraw", "amendments": "batch.amend", "label_prints": "label.print",
+    "class_corrections": "classdata.correct", "instruments": "instrument.register",
+    "calibrations": "instrument.calibrate", "recalls": "recall.open", "recall_clearances": "recall.clear",
 }
 
 

@@ -111,5 +111,6 @@ def test_synth_is_deterministic_for_a_seed(tmp_path):
     a, b = content(tmp_path / "a.db"), content(tmp_path / "b.db")
     assert a == b and 100 < len(a[0]) < 400 and len(a[1]) > 3 * len(a[0])
     assert all("synthetic" in n for (n,) in sqlite3.connect(tmp_path / "a.db").execute("SELECT notes FROM batches"))
+    assert CliRunner().invoke(main, ["verify", "--db", str(tmp_path / "a.db")]).exit_code == 0
     again = CliRunner().invoke(main, ["synth", "--db", str(tmp_path / "a.db"), *args])
     assert again.exit_code != 0 and "already exists" in again.output

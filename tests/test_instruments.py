@@ -128,7 +128,9 @@ def test_no_instrument_named_keeps_the_settings_defaults(conn, setup, signed_in_
 def test_balance_figures_feed_the_mass_terms(conn, setup, signed_in_client, form_token):
     bal = balance(conn, "BAL-9", readability_g=0.00001, linearity_g=0.0003)
     staff = signed_in_client("staff")
-    cur = records.run_by_id(conn, record_run(staff, form_token, setup, balance_id=str(bal.id)))["current"]
+    run_id = record_run(staff, form_token, setup, balance_id=str(bal.id))
+    cur = records.run_by_id(conn, run_id)["current"]
+    assert f'balance <a href="/instruments/{bal.id}">BAL-9</a>' in staff.get(f"/runs/{run_id}").get_data(as_text=True)
     mass = next(f for f in cur["result"]["budget"] if f["source"] == "mass")
     comps = {x["source"]: x["u"] for x in mass["components"]}
     # Linearity ±a, rectangular: u = a/√3 (GUM 4.3.7); readability d: u = d/√12 (GUM F.2.2.1).

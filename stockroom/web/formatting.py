@@ -58,6 +58,9 @@ ACTION_LABELS = {
     "account.password_reset": "reset a password", "account.signin": "signed in",
     "account.signin_failed": "failed to sign in", "account.signin_paused": "sign-in paused after failures",
     "account.signout": "signed out", "access.refused": "was refused an action",
+    "instrument.register": "registered an instrument", "instrument.calibrate": "recorded a calibration",
+    "run.instruments": "named the instruments of a run", "recall.open": "opened a recall",
+    "recall.clear": "cleared a recall",
 }
 
 

@@ -312,7 +312,10 @@ def show(run_id: int) -> Any:
     batch = records.batch_by_id(db, run["batch_id"])
     lot = records.lot_by_id(db, run["standard_lot_id"]) if run["standard_lot_id"] else None
     reference = records.batch_by_id(db, run["reference_batch_id"]) if run["reference_batch_id"] else None
-    return render_template("runs/show.html", run=run, batch=batch, lot=lot, reference=reference,
+    from stockroom import instruments
+
+    used = instruments.instruments_of_run(db, run_id)
+    return render_template("runs/show.html", run=run, batch=batch, lot=lot, reference=reference, used=used,
                            result=run["current"]["result"], today=lab_today(),
                            excluded={e["position"]: e for e in run["exclusions"]})
 
