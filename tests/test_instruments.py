@@ -113,6 +113,15 @@ def test_class_b_burette_widens_u_by_exactly_its_triangular_term(app, conn, setu
     rows = conn.execute("SELECT role, instrument_id, calibration_id FROM run_instruments ORDER BY id").fetchall()
     assert [(r[0], r[1]) for r in rows] == [("burette", a.id), ("burette", b.id)]
     assert rows[1][2] == b.calibrations[-1].id
+    # The run form's live preview, sent the chosen burette's figure, computes the same u as recording.
+    page = staff.get(f"/batches/{setup['batch']['code']}/runs/new").get_data(as_text=True)
+    assert f'&#34;{b.id}&#34;: {{&#34;burette_tolerance_ml&#34;: 0.1}}' in page
+    body = {"titrant": "NaOH", "standard": "KHP", "purity": 1.0, "purity_U": 0.0002, "purity_k": 2,
+            "nominal_molarity": 0.1, "burette_capacity_ml": 50, "burette_tolerance_ml": 0.1,
+            "replicates": [{"gross_g": float(g), "tare_g": float(t), "initial_ml": float(i), "final_ml": float(f)}
+                           for g, t, i, f in GOOD]}
+    preview = staff.post("/api/v1/standardizations/preview", json=body).get_json()
+    assert preview["u"] == pytest.approx(res_b["u"], rel=1e-9)
 
 
 def test_no_instrument_named_keeps_the_settings_defaults(conn, setup, signed_in_client, form_token):

@@ -44,6 +44,14 @@
       replicates: [],
       exclusions: []
     };
+    // The figures of the balance, burette or pipette chosen replace the defaults, as when recording.
+    var figures = JSON.parse(form.dataset.instrumentFigures || "{}");
+    ["balance_id", "burette_id", "pipette_id"].forEach(function (name) {
+      var chosen = val(name);
+      if (chosen && figures[chosen]) {
+        Object.keys(figures[chosen]).forEach(function (k) { req[k] = figures[chosen][k]; });
+      }
+    });
     var cap = val("burette_capacity_ml");
     if (cap) { req.burette_capacity_ml = num(cap); }
     var runT = val("temperature_c");

@@ -171,6 +171,26 @@ def run_choices(method: str, on: dt.date) -> list[tuple[str, str, list[tuple[str
     return out
 
 
+def preview_figures(method: str, on: dt.date) -> dict[str, dict[str, float]]:
+    """For the run form's live preview: instrument id -> the budget figures it stands for on `on`.
+
+    Keys are the preview API's (balance_readability_g, balance_linearity_g, burette_tolerance_ml,
+    pipette_tolerance_ml); the script sends those of the instruments chosen.
+    """
+    out: dict[str, dict[str, float]] = {}
+    for role in inst_mod.ROLES_FOR_METHOD.get(method, ()):
+        for inst in inst_mod.list_instruments(get_db(), role):
+            f = inst_mod.figures({}, {role: inst}, on)
+            if role == "balance":
+                out[str(inst.id)] = {"balance_readability_g": f.balance_readability_g,
+                                     "balance_linearity_g": f.balance_linearity_g}
+            elif role == "burette":
+                out[str(inst.id)] = {"burette_tolerance_ml": f.burette_tolerance_ml}
+            else:
+                out[str(inst.id)] = {"pipette_tolerance_ml": f.pipette_tolerance_ml}
+    return out
+
+
 def read_run_instruments(p: Parser, form: Mapping[str, Any], method: str, capacity_ml: float | None
                          ) -> dict[str, Instrument]:
     """The instruments a run form names (role -> Instrument); errors go to `p` under <role>_id.

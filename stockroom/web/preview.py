@@ -59,9 +59,11 @@ MIN_PURITY = 0.5
 MIN_MOLARITY = 1e-6
 
 
+# Figures of the instruments a run names (the register's), replacing the settings' defaults.
+INSTRUMENT_KEYS = ("balance_readability_g", "balance_linearity_g", "burette_tolerance_ml", "pipette_tolerance_ml")
 _COMMON_KEYS = {
     "titrant", "replicates", "u_volume_ml", "u_repeatability_rel", "nominal_molarity", "exclusions",
-    "burette_capacity_ml", "min_replicates", "max_rsd", "monte_carlo_draws",
+    "burette_capacity_ml", "min_replicates", "max_rsd", "monte_carlo_draws", *INSTRUMENT_KEYS,
 }
 PRIMARY_KEYS = _COMMON_KEYS | {
     "standard", "purity", "u_purity", "purity_tolerance", "purity_U", "purity_k", "u_mass_g", "buoyancy",
@@ -136,6 +138,14 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
                       ge=MIN_DRAWS, le=MAX_DRAWS)
     if draws is not None:
         instruments = _replace(instruments, monte_carlo_draws=draws)
+    figures = {}
+    for key in INSTRUMENT_KEYS:
+        value = p.number(data.get(key, MISSING), key, required=False, gt=0, le=10, unit="g" if key.endswith("_g")
+                         else "mL")
+        if value is not None:
+            figures[key] = value
+    if figures:
+        instruments = _replace(instruments, **figures)
     rule = _rule(p, data, config)
     titrant = _titrant(p, data.get("titrant", MISSING), "titrant")
     common = {

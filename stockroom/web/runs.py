@@ -161,6 +161,7 @@ def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date)
         "references": _references_for(batch, on) if method == "secondary" else [],
         "in_force": release_in_force(facts, on), "burettes": BURETTES_ML,
         "instrument_choices": web_instruments.run_choices(method, on),
+        "instrument_figures": web_instruments.preview_figures(method, on),
         "rows": GRID_ROWS, "today": on,
         "standards": {s.key: s for s in chemistry.list_standards(titrant)},
         # Mass of each standard that gives a 40 mL titre at the nominal strength (a 50 mL burette).
