@@ -247,6 +247,9 @@ def print_web_figures(figures: list[dict[str, Any]]) -> None:
             r = f["routes"][name]
             line += f"  {r['throughput']:>11.0f}  {r['throughput_ratio']:>5.2f}  {r['p50_ms']:>7.2f}  {r['p95_ms']:>7.2f}"
         print(line)
+    for f in figures:
+        ratio = f["routes"]["lab-day JSON"]["throughput_ratio"]
+        print(f"lab-day JSON at {f['years']} y: {ratio:.2f} of /healthz throughput (goal >= 0.50)")
     if len(figures) == 2:
         small, big = figures
         for name in ("dashboard", "batch page"):

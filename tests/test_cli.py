@@ -114,3 +114,17 @@ def test_synth_is_deterministic_for_a_seed(tmp_path):
     assert CliRunner().invoke(main, ["verify", "--db", str(tmp_path / "a.db")]).exit_code == 0
     again = CliRunner().invoke(main, ["synth", "--db", str(tmp_path / "a.db"), *args])
     assert again.exit_code != 0 and "already exists" in again.output
+
+
+@pytest.mark.slow
+def test_bench_runs_end_to_end(tmp_path, monkeypatch):
+    """The benchmark itself works (its figures are machine-dependent and not asserted)."""
+    monkeypatch.setenv("TMPDIR", str(tmp_path))
+    import tempfile
+
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_path))
+    result = CliRunner().invoke(main, ["bench", "--years", "1", "--seconds", "0.5", "--clients", "1"])
+    assert result.exit_code == 0, result.output
+    for route in ("healthz", "dashboard", "batch page", "lab-day JSON", "preview API"):
+        assert route in result.output
+    assert "30-label letter sheet PDF" in result.output and "of /healthz throughput" in result.output
