@@ -9,6 +9,7 @@ import re
 import sqlite3
 
 import pytest
+from formposts import post
 
 from stockroom import db as dbmod
 from stockroom import instruments as inst_mod
@@ -62,12 +63,6 @@ def run_form(setup, **extra):
         form.update({f"r{i}_gross_g": gross, f"r{i}_tare_g": tare, f"r{i}_initial_ml": initial, f"r{i}_final_ml": final})
     form.update(extra)
     return form
-
-
-def post(client, form_token, url, data):
-    data = dict(data)
-    data["csrf_token"] = form_token(client, "/")
-    return client.post(url, data=data)
 
 
 def count(conn, table):

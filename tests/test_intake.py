@@ -13,6 +13,7 @@ from html import escape, unescape
 
 import periodictable
 import pytest
+from formposts import count, post
 
 from stockroom import db as dbmod
 from stockroom import policy, records
@@ -32,20 +33,6 @@ def good_form(**changes):
             "water_grade": "deionized, Type II", "container": "20 L HDPE carboy", "notes": "", "action": "register"}
     form.update(changes)
     return form
-
-
-def post(client, form_token, url, data):
-    data = dict(data)
-    data["csrf_token"] = form_token(client, "/")
-    return client.post(url, data=data)
-
-
-def count(app, table):
-    conn = dbmod.connect(app.config["DATABASE"])
-    try:
-        return conn.execute(f"SELECT count(*) FROM {table}").fetchone()[0]
-    finally:
-        conn.close()
 
 
 def rows(app, sql, params=()):

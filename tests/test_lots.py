@@ -12,6 +12,7 @@ import re
 from html import escape, unescape
 
 import pytest
+from formposts import count
 
 from stockroom import db as dbmod
 from stockroom import records
@@ -43,14 +44,6 @@ def lots(app):
     conn = dbmod.connect(app.config["DATABASE"])
     try:
         return records.list_lots(conn)
-    finally:
-        conn.close()
-
-
-def count(app, table):
-    conn = dbmod.connect(app.config["DATABASE"])
-    try:
-        return conn.execute(f"SELECT count(*) FROM {table}").fetchone()[0]
     finally:
         conn.close()
 

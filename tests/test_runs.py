@@ -9,6 +9,7 @@ import re
 
 import periodictable
 import pytest
+from formposts import count, post
 
 from stockroom import db as dbmod
 from stockroom import records
@@ -45,20 +46,6 @@ def run_form(setup, rows=GOOD, **extra):
                      f"r{i}_final_ml": final})
     form.update(extra)
     return form
-
-
-def post(client, form_token, url, data):
-    data = dict(data)
-    data["csrf_token"] = form_token(client, "/")
-    return client.post(url, data=data)
-
-
-def count(app, table):
-    conn = dbmod.connect(app.config["DATABASE"])
-    try:
-        return conn.execute(f"SELECT count(*) FROM {table}").fetchone()[0]
-    finally:
-        conn.close()
 
 
 def independent_molarity(gross, tare, initial, final):
