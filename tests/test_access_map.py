@@ -113,3 +113,58 @@ def test_wrong_role_writes_are_refused_everywhere(tmp_path, make_user, quick_pas
 @pytest.fixture
 def app(tmp_path):  # the shared fixtures (make_user) need an `app`; this one matches _app's database
     return _app(tmp_path)
+
+
+def test_no_get_changes_anything(tmp_path, quick_password_hashing):
+    """Every GET route, visited by a signed-in user, leaves every record table as it was."""
+    import sqlite3
+
+    from flask import url_for
+
+    from stockroom.demo import build_demo
+
+    path = tmp_path / "get.db"
+    build_demo(str(path), password="visiting-Test-4d2a")
+    app = create_app({"DATABASE": str(path), "TESTING": True, "SECRET_KEY": "t", "LAB_TIMEZONE": "UTC",
+                      "WTF_CSRF_ENABLED": False})
+    client = app.test_client()
+    assert client.post("/sign-in", data={"username": "okafor", "password": "visiting-Test-4d2a"}).status_code == 303
+    from stockroom import db as dbmod
+
+    conn = dbmod.connect(path)
+    code = conn.execute("SELECT code FROM batches ORDER BY id LIMIT 1").fetchone()[0]
+    conn.close()
+
+    def snapshot():
+        c = sqlite3.connect(path)
+        try:
+            tables = [r[0] for r in c.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
+            # Session bookkeeping of the visitor is not a record; refused authorisations are logged on
+            # purpose (the audit trail keeps them), so they are the one entry a GET may add.
+            counts = {t: c.execute(f"SELECT count(*) FROM {t}").fetchone()[0] for t in tables
+                      if t not in ("web_sessions", "events")}
+            counts["events"] = c.execute("SELECT count(*) FROM events WHERE action != 'access.refused'").fetchone()[0]
+            return counts
+        finally:
+            c.close()
+
+    before = snapshot()
+    visited = 0
+    for rule in app.url_map.iter_rules():
+        if "GET" not in (rule.methods or set()) or rule.endpoint == "static":
+            continue
+        values = {arg: (1 if "int" in str(rule._converters.get(arg, "")).lower() else code) for arg in rule.arguments}
+        with app.test_request_context():
+            url = url_for(rule.endpoint, **values)
+        resp = client.get(url)
+        assert resp.status_code < 500, url
+        resp.close()
+        visited += 1
+    assert visited > 20
+    after = snapshot()
+    if after != before:
+        c = sqlite3.connect(path)
+        new = c.execute("SELECT action, detail FROM events WHERE action != 'access.refused' ORDER BY id DESC "
+                        "LIMIT ?", [max(1, after["events"] - before["events"])]).fetchall()
+        c.close()
+        raise AssertionError(f"GET requests wrote: {new}")

@@ -86,6 +86,8 @@ def render_png(pdf: bytes, dpi: int = 300, page: int = 1):
     from PIL import Image
 
     if shutil.which("pdftoppm") is None:
+        if os.environ.get("CI") == "true":
+            pytest.fail("CI=true but pdftoppm (poppler-utils) is not installed; .ci/run installs it")
         pytest.skip("pdftoppm (poppler-utils) is not installed")
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "l.pdf"
