@@ -82,6 +82,14 @@ def migrate(db: sqlite_utils.Database) -> int:
     return schema_version(db)
 
 
+def insert_row(db: sqlite_utils.Database, table: str, row: dict[str, Any]) -> int:
+    """Append one row to a table (inside a write) and return its new id."""
+    pk = db.table(table).insert(row).last_pk
+    if pk is None:
+        raise RuntimeError(f"insert into {table} returned no id")
+    return int(pk)
+
+
 _SQLITE_INT = (-(2**63), 2**63 - 1)
 
 

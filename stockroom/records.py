@@ -62,7 +62,7 @@ def append_event(
     }
     row["prev_hash"] = prev_hash
     row["hash"] = _event_hash(prev_hash, row)
-    return int(db["events"].insert(row).last_pk)
+    return dbmod.insert_row(db, "events", row)
 
 
 # Each record table and the audit action its rows are written with: a record without its entry means
@@ -110,7 +110,7 @@ def seed_default_policies(db: sqlite_utils.Database) -> None:
     """Write the starting reagent policies (used by a migration on a new database)."""
     now = utc_now()
     for p in DEFAULT_POLICIES:
-        db["reagent_policies"].insert({
+        dbmod.insert_row(db, "reagent_policies", {
             "reagent": p.reagent, "nominal_molarities": json.dumps(list(p.nominal_molarities)),
             "shelf_life_days": p.shelf_life_days, "recheck_interval_days": p.recheck_interval_days,
             "tolerance_rel": p.tolerance_rel, "max_rsd": p.max_rsd, "min_replicates": p.min_replicates,
@@ -173,7 +173,7 @@ def create_batch(db: sqlite_utils.Database, values: dict[str, Any], actor: str) 
         row["code"] = values.get("code") or next_batch_code(db, values["reagent"], prepared_on)
         row["recorded_at"] = utc_now()
         row["recorded_by"] = actor
-        batch_id = int(db["batches"].insert(row).last_pk)
+        batch_id = dbmod.insert_row(db, "batches", row)
         append_event(db, actor, "batch.register", entity="batches", entity_id=batch_id, batch_id=batch_id,
                      detail={"code": row["code"], "reagent": row["reagent"],
                              "nominal_molarity": row["nominal_molarity"]})
@@ -234,10 +234,10 @@ def amend_batch(db: sqlite_utils.Database, batch_id: int, field: str, new_value:
         old_value = batch.get(field)
         if old_value == new_value:
             raise InvalidInput([FieldError("new_value", "is the same as the current value")])
-        aid = int(db["amendments"].insert({
+        aid = dbmod.insert_row(db, "amendments", {
             "entity": "batches", "entity_id": batch_id, "field": field, "old_value": json.dumps(old_value),
             "new_value": json.dumps(new_value), "reason": reason.strip(), "recorded_at": utc_now(),
-            "recorded_by": actor}).last_pk)
+            "recorded_by": actor})
         append_event(db, actor, "batch.amend", entity="amendments", entity_id=aid, batch_id=batch_id,
                      reason=reason.strip(), detail={"field": field, "before": old_value, "after": new_value})
     return aid
@@ -262,7 +262,7 @@ def create_lot(db: sqlite_utils.Database, values: dict[str, Any], actor: str) ->
             row["code"] = values["code"]
         row["recorded_at"] = utc_now()
         row["recorded_by"] = actor
-        lot_id = int(db["standard_lots"].insert(row).last_pk)
+        lot_id = dbmod.insert_row(db, "standard_lots", row)
         append_event(db, actor, "lot.register", entity="standard_lots", entity_id=lot_id,
                      detail={"code": row["code"], "substance": row["substance"], "assay": row["assay"]})
         row["id"] = lot_id
@@ -312,16 +312,16 @@ def record_run(
         row["notes"] = row["notes"] or ""
         row["recorded_at"] = utc_now()
         row["recorded_by"] = actor
-        run_id = int(db["runs"].insert(row).last_pk)
+        run_id = dbmod.insert_row(db, "runs", row)
         for rep in replicates:
             rep_row = {k: rep.get(k) for k in REPLICATE_FIELDS}
             rep_row["blank_ml"] = rep_row["blank_ml"] or 0.0
             rep_row["run_id"] = run_id
-            db["replicates"].insert(rep_row)
+            dbmod.insert_row(db, "replicates", rep_row)
         for position, reason in exclusions:
-            db["exclusions"].insert({"run_id": run_id, "position": position, "reason": reason.strip(),
+            dbmod.insert_row(db, "exclusions", {"run_id": run_id, "position": position, "reason": reason.strip(),
                                      "recorded_at": row["recorded_at"], "recorded_by": actor})
-        db["run_results"].insert(_result_row(run_id, result, "recorded", actor))
+        dbmod.insert_row(db, "run_results", _result_row(run_id, result, "recorded", actor))
         append_event(db, actor, f"run.record.{row['purpose']}", entity="runs", entity_id=run_id,
                      batch_id=row["batch_id"],
                      detail={"n": result.get("n"), "molarity": result.get("molarity"), "U": result.get("U"),
@@ -368,9 +368,9 @@ def exclude_replicate(db: sqlite_utils.Database, run_id: int, position: int, rea
             raise Conflict(f"replicate {position} is already excluded")
         if run["decisions"]:
             raise Conflict("this run has already been decided; record a new run instead")
-        db["exclusions"].insert({"run_id": run_id, "position": position, "reason": reason.strip(),
+        dbmod.insert_row(db, "exclusions", {"run_id": run_id, "position": position, "reason": reason.strip(),
                                  "recorded_at": utc_now(), "recorded_by": actor})
-        db["run_results"].insert(_result_row(run_id, result, f"exclusion of replicate {position}", actor))
+        dbmod.insert_row(db, "run_results", _result_row(run_id, result, f"exclusion of replicate {position}", actor))
         append_event(db, actor, "replicate.exclude", entity="runs", entity_id=run_id, batch_id=run["batch_id"],
                      reason=reason.strip(), detail={"position": position, "molarity": result["molarity"]})
 
@@ -386,7 +386,7 @@ def decide_run(
             raise Conflict("this run has already been decided")
         if decision == "reject" and not reason.strip():
             raise InvalidInput([FieldError("reason", "give the reason for rejecting this run")])
-        db["decisions"].insert({"run_id": run_id, "decision": decision, "reason": reason.strip(),
+        dbmod.insert_row(db, "decisions", {"run_id": run_id, "decision": decision, "reason": reason.strip(),
                                 "recorded_at": utc_now(), "recorded_by": actor})
         append_event(db, actor, f"run.{decision}", entity="runs", entity_id=run_id, batch_id=run["batch_id"],
                      reason=reason.strip())
@@ -413,7 +413,7 @@ def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict
         "supersedes_id": previous[0] if previous else None,
         "recorded_at": utc_now(), "recorded_by": actor,
     }
-    release_id = int(db["releases"].insert(row).last_pk)
+    release_id = dbmod.insert_row(db, "releases", row)
     append_event(db, actor, "batch.release", entity="releases", entity_id=release_id, batch_id=batch_id,
                  detail={"molarity": row["molarity"], "U": row["expanded_u"], "k": row["k"],
                          "released_on": row["released_on"], "expires_on": row["expires_on"],
@@ -434,9 +434,9 @@ def withdraw_batch(db: sqlite_utils.Database, batch_id: int, withdrawn_on: dt.da
     with dbmod.write(db):
         if withdrawal_of(db, batch_id) is not None:
             raise Conflict("this batch is already withdrawn")
-        wid = int(db["withdrawals"].insert({
+        wid = dbmod.insert_row(db, "withdrawals", {
             "batch_id": batch_id, "withdrawn_on": withdrawn_on.isoformat(), "reason": reason.strip(),
-            "recorded_at": utc_now(), "recorded_by": actor}).last_pk)
+            "recorded_at": utc_now(), "recorded_by": actor})
         append_event(db, actor, "batch.withdraw", entity="withdrawals", entity_id=wid, batch_id=batch_id,
                      reason=reason.strip(), detail={"withdrawn_on": withdrawn_on.isoformat()})
     return wid

@@ -344,7 +344,7 @@ def _hazards(db: sqlite_utils.Database) -> None:
             "BEGIN SELECT RAISE(ABORT, 'hazard_classifications is append-only: record a correction instead'); END"
         )
     for c in DEFAULT_CLASSIFICATIONS:
-        db["hazard_classifications"].insert({
+        db.table("hazard_classifications").insert({
             "reagent": c.reagent, "min_molarity": c.min_molarity, "max_molarity": c.max_molarity,
             "signal_word": c.signal_word, "pictograms": json.dumps(list(c.pictograms)),
             "hazard_statements": json.dumps(list(c.hazard_statements)),

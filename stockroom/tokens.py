@@ -41,9 +41,9 @@ def create(db: sqlite_utils.Database, user_id: int, username: str, label: str) -
     secret = PREFIX + secrets.token_urlsafe(32)
     with dbmod.write(db):
         now = records.utc_now()
-        token_id = int(db["api_tokens"].insert({
+        token_id = dbmod.insert_row(db, "api_tokens", {
             "user_id": user_id, "label": label, "token_sha256": _digest(secret), "shown_prefix": secret[:10],
-            "created_at": now}).last_pk)
+            "created_at": now})
         records.append_event(db, username, "token.create", entity="api_tokens", entity_id=token_id,
                              detail={"label": label, "prefix": secret[:10]})
     return Token(token_id, user_id, label, secret[:10], now, None), secret
@@ -66,7 +66,7 @@ def revoke(db: sqlite_utils.Database, token_id: int, user_id: int, username: str
             raise NotFound("you have no token with that number")
         if rows[0]["rid"] is not None:
             raise Conflict("that token is already revoked")
-        db["api_token_revocations"].insert({"token_id": token_id, "revoked_at": records.utc_now(),
+        dbmod.insert_row(db, "api_token_revocations", {"token_id": token_id, "revoked_at": records.utc_now(),
                                             "revoked_by": username})
         records.append_event(db, username, "token.revoke", entity="api_tokens", entity_id=token_id)
 

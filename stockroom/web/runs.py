@@ -54,7 +54,7 @@ def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: 
     p = Parser()
     reps: list[dict[str, Any]] = []
     excluded: dict[int, str] = {}
-    numeric = ("aliquot_ml",) if secondary else ("gross_g", "tare_g", "mass_g")
+    numeric: tuple[str, ...] = ("aliquot_ml",) if secondary else ("gross_g", "tare_g", "mass_g")
     numeric += ("initial_ml", "final_ml", "blank_ml", "temperature_c")
     for i in range(1, _rows_in_form(form) + 1):
         raw = {c: form.get(f"r{i}_{c}", "").strip() for c in numeric}
@@ -278,6 +278,7 @@ def new_run(code: str) -> Any:
     if not p.ok:
         errors = InvalidInput(p.errors).fields
         return render_template("runs/new.html", values=form, errors=errors, result=None, **ctx), 422
+    assert result is not None  # p.ok, so the computation ran
     if form.get("action") != "record":
         # "Compute" without JavaScript: show the same result the live preview shows, store nothing.
         return render_template("runs/new.html", values=form, errors={}, result=workflow.snapshot(result), **ctx)
