@@ -1,6 +1,9 @@
-"""Posting forms the way a browser does (with the page's CSRF token) and counting rows, for the form tests."""
+"""Posting forms the way a browser does (with the page's CSRF token), reading the answer, counting rows."""
 
 from __future__ import annotations
+
+import re
+from html import unescape
 
 from stockroom import db as dbmod
 
@@ -19,3 +22,12 @@ def count(app, table):
         return conn.execute(f"SELECT count(*) FROM {table}").fetchone()[0]
     finally:
         conn.close()
+
+
+def error_beside(html: str, field: str) -> str | None:
+    """The message shown inside the field's own box (label, control, message), or None."""
+    for box in re.findall(r'<div class="field[^"]*">(.*?)</div>', html, re.S):
+        if f'name="{field}"' in box:
+            found = re.search(rf'<span class="field-error" id="e-{re.escape(field)}">(.*?)</span>', box, re.S)
+            return unescape(found.group(1)) if found else None
+    return None

@@ -13,7 +13,7 @@ from html import escape, unescape
 
 import periodictable
 import pytest
-from formposts import count, post
+from formposts import count, error_beside, post
 
 from stockroom import db as dbmod
 from stockroom import policy, records
@@ -41,15 +41,6 @@ def rows(app, sql, params=()):
         return dbmod.query(conn, sql, params)
     finally:
         conn.close()
-
-
-def error_beside(html: str, field: str) -> str | None:
-    """The message shown inside the field's own box (label, control, message), or None."""
-    for box in re.findall(r'<div class="field[^"]*">(.*?)</div>', html, re.S):
-        if f'name="{field}"' in box:
-            found = re.search(rf'<span class="field-error" id="e-{re.escape(field)}">(.*?)</span>', box, re.S)
-            return unescape(found.group(1)) if found else None
-    return None
 
 
 def kept(html: str, field: str, value: str) -> bool:

@@ -12,7 +12,7 @@ import re
 from html import escape, unescape
 
 import pytest
-from formposts import count
+from formposts import count, error_beside
 
 from stockroom import db as dbmod
 from stockroom import records
@@ -46,15 +46,6 @@ def lots(app):
         return records.list_lots(conn)
     finally:
         conn.close()
-
-
-def error_beside(html: str, field: str) -> str | None:
-    """The message shown inside the field's own box (label, control, message), or None."""
-    for box in re.findall(r'<div class="field[^"]*">(.*?)</div>', html, re.S):
-        if f'name="{field}"' in box:
-            found = re.search(rf'<span class="field-error" id="e-{re.escape(field)}">(.*?)</span>', box, re.S)
-            return unescape(found.group(1)) if found else None
-    return None
 
 
 @pytest.fixture

@@ -238,7 +238,7 @@ def test_dixon_table_independent_check_by_monte_carlo() -> None:
 
     200 000 seeded normal samples per n; the 90/95/99 % quantiles of r10 must match the table
     within 0.01 (sampling error is about 0.001 at 95 %). Rorabacher's 99 % column sits up to about
-    0.006 away from simulation for n = 4..7; a transcription slip of a digit would be far larger.
+    0.006 away from simulation for n = 4..7; a digit copied wrongly would be far larger.
     """
     rng = np.random.default_rng(20240611)
     for n in range(3, 11):
