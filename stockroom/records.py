@@ -72,6 +72,7 @@ RECORD_EVENTS = {
     "withdrawals": "batch.withdraw", "amendments": "batch.amend", "label_prints": "label.print",
     "class_corrections": "classdata.correct", "instruments": "instrument.register",
     "calibrations": "instrument.calibrate", "recalls": "recall.open", "recall_clearances": "recall.clear",
+    "api_tokens": "token.create",
 }
 
 
@@ -117,6 +118,32 @@ def seed_default_policies(db: sqlite_utils.Database) -> None:
             "effective_from": "2000-01-01", "recorded_at": now, "recorded_by": "system",
             "reason": "starting policy",
         })
+
+
+def add_policy(db: sqlite_utils.Database, policy: ReagentPolicy, effective_from: dt.date, reason: str,
+               actor: str) -> int:
+    """Record a new policy for a reagent from a date; earlier policy rows stay as they were written."""
+    if not reason.strip():
+        raise InvalidInput([FieldError("reason", "give the reason for the change of policy")])
+    with dbmod.write(db):
+        pid = dbmod.insert_row(db, "reagent_policies", {
+            "reagent": policy.reagent, "nominal_molarities": json.dumps(list(policy.nominal_molarities)),
+            "shelf_life_days": policy.shelf_life_days, "recheck_interval_days": policy.recheck_interval_days,
+            "tolerance_rel": policy.tolerance_rel, "max_rsd": policy.max_rsd,
+            "min_replicates": policy.min_replicates, "effective_from": effective_from.isoformat(),
+            "recorded_at": utc_now(), "recorded_by": actor, "reason": reason.strip()})
+        append_event(db, actor, "policy.change", entity="reagent_policies", entity_id=pid, reason=reason.strip(),
+                     detail={"reagent": policy.reagent, "effective_from": effective_from.isoformat(),
+                             "shelf_life_days": policy.shelf_life_days,
+                             "recheck_interval_days": policy.recheck_interval_days,
+                             "tolerance_rel": policy.tolerance_rel, "max_rsd": policy.max_rsd,
+                             "min_replicates": policy.min_replicates})
+    return pid
+
+
+def policy_history(db: sqlite_utils.Database) -> list[dict[str, Any]]:
+    """Every policy row ever recorded, newest first."""
+    return dbmod.query(db, "SELECT * FROM reagent_policies ORDER BY id DESC")
 
 
 def _policy_from_row(r: dict[str, Any]) -> ReagentPolicy:

@@ -29,6 +29,7 @@ def register(app: Flask) -> None:
     from stockroom.web import (
         access,
         account,
+        admin,
         api,
         audit,
         batches,
@@ -55,6 +56,7 @@ def register(app: Flask) -> None:
         app.register_blueprint(module.bp)
     app.register_blueprint(recalls.trace_bp)  # a batch's traceability chain
     app.register_blueprint(audit.bp)
+    app.register_blueprint(admin.bp)
     app.register_blueprint(intake.api_bp)
     app.register_blueprint(labday.api_bp)
     access.init_app(app)

@@ -60,7 +60,7 @@ ACTION_LABELS = {
     "account.signout": "signed out", "access.refused": "was refused an action",
     "instrument.register": "registered an instrument", "instrument.calibrate": "recorded a calibration",
     "run.instruments": "named the instruments of a run", "recall.open": "opened a recall",
-    "recall.clear": "cleared a recall",
+    "recall.clear": "cleared a recall", "policy.change": "changed a reagent policy",
 }
 
 
