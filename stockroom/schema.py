@@ -236,9 +236,10 @@ _V1 = [
 ]
 
 
-def _append_only_triggers() -> list[str]:
+def _append_only_triggers(tables: tuple[str, ...] = APPEND_ONLY) -> list[str]:
+    """Triggers that refuse UPDATE and DELETE on each table: its rows stay as they were written."""
     out = []
-    for table in APPEND_ONLY:
+    for table in tables:
         for verb in ("UPDATE", "DELETE"):
             out.append(
                 f"CREATE TRIGGER {table}_no_{verb.lower()} BEFORE {verb} ON {table} "
@@ -291,11 +292,8 @@ def _accounts(db: sqlite_utils.Database) -> None:
     for statement in _ACCOUNTS:
         db.execute(statement)
     # The attempt log is evidence for the lock-out; like the record tables it is append-only.
-    for verb in ("UPDATE", "DELETE"):
-        db.execute(
-            f"CREATE TRIGGER signin_attempts_no_{verb.lower()} BEFORE {verb} ON signin_attempts "
-            "BEGIN SELECT RAISE(ABORT, 'signin_attempts is append-only'); END"
-        )
+    for statement in _append_only_triggers(("signin_attempts",)):
+        db.execute(statement)
 
 
 # Hazard classification of titrant solutions per reagent and concentration band, as an administrator
@@ -338,11 +336,8 @@ def _hazards(db: sqlite_utils.Database) -> None:
     now = utc_now()
     for statement in _HAZARDS:
         db.execute(statement)
-    for verb in ("UPDATE", "DELETE"):
-        db.execute(
-            f"CREATE TRIGGER hazard_classifications_no_{verb.lower()} BEFORE {verb} ON hazard_classifications "
-            "BEGIN SELECT RAISE(ABORT, 'hazard_classifications is append-only: record a correction instead'); END"
-        )
+    for statement in _append_only_triggers(("hazard_classifications",)):
+        db.execute(statement)
     for c in DEFAULT_CLASSIFICATIONS:
         db.table("hazard_classifications").insert({
             "reagent": c.reagent, "min_molarity": c.min_molarity, "max_molarity": c.max_molarity,
@@ -385,11 +380,8 @@ _CLASS_CORRECTIONS = [
 def _class_corrections(db: sqlite_utils.Database) -> None:
     for statement in _CLASS_CORRECTIONS:
         db.execute(statement)
-    for verb in ("UPDATE", "DELETE"):
-        db.execute(
-            f"CREATE TRIGGER class_corrections_no_{verb.lower()} BEFORE {verb} ON class_corrections "
-            "BEGIN SELECT RAISE(ABORT, 'class_corrections is append-only: record a correction instead'); END"
-        )
+    for statement in _append_only_triggers(("class_corrections",)):
+        db.execute(statement)
 
 
 
@@ -421,10 +413,8 @@ _API_TOKENS = [
 def _api_tokens(db: sqlite_utils.Database) -> None:
     for statement in _API_TOKENS:
         db.execute(statement)
-    for table in ("api_tokens", "api_token_revocations"):
-        for verb in ("UPDATE", "DELETE"):
-            db.execute(f"CREATE TRIGGER {table}_no_{verb.lower()} BEFORE {verb} ON {table} "
-                       f"BEGIN SELECT RAISE(ABORT, '{table} is append-only'); END")
+    for statement in _append_only_triggers(("api_tokens", "api_token_revocations")):
+        db.execute(statement)
 
 
 # Instruments and recalls. The register of balances, burettes and pipettes with their calibrations (a
@@ -500,10 +490,9 @@ _INSTRUMENTS_RECALLS = [
 def _instruments_recalls(db: sqlite_utils.Database) -> None:
     for statement in _INSTRUMENTS_RECALLS:
         db.execute(statement)
-    for table in ("instruments", "calibrations", "run_instruments", "recalls", "recall_clearances"):
-        for verb in ("UPDATE", "DELETE"):
-            db.execute(f"CREATE TRIGGER {table}_no_{verb.lower()} BEFORE {verb} ON {table} "
-                       f"BEGIN SELECT RAISE(ABORT, '{table} is append-only: record a correction instead'); END")
+    for statement in _append_only_triggers(("instruments", "calibrations", "run_instruments", "recalls",
+                                            "recall_clearances")):
+        db.execute(statement)
 
 
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
