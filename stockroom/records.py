@@ -587,35 +587,31 @@ def views_of(db: sqlite_utils.Database, ids: list[int], on: dt.date) -> list[Bat
     return [BatchView(rows[i], status_on(facts[i], on)) for i in ids if i in rows]
 
 
-def batch_views(
+def batch_page(
     db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None, status: str | None = None,
     search: str | None = None, limit: int | None = None, offset: int = 0,
-) -> list[BatchView]:
-    """Batches that existed on `on` (optionally filtered) with their status then, newest first.
+) -> tuple[list[BatchView], int]:
+    """One page of the batches that existed on `on` (optionally filtered), newest first, and how many match.
 
-    With `limit`, only that page of the matching batches is computed in full.
+    Only the page's batches are computed in full, except for the finer statuses (in service, re-check
+    due, drifting), which need every live batch's history to filter on.
     """
     coarse = coarse_statuses(db, on, reagent=reagent, search=search)
-    if status in ("expired", "withdrawn", "awaiting"):
-        ids = [i for i, c, _ in coarse if c == status]
-        return views_of(db, ids[offset: offset + limit] if limit is not None else ids, on)
-    if status is not None:
+    end = None if limit is None else offset + limit
+    if status is not None and status not in ("expired", "withdrawn", "awaiting"):
         live = views_of(db, [i for i, c, _ in coarse if c == "live"], on)
         matching = [v for v in live if v.report.status.value == status]
-        return matching[offset: offset + limit] if limit is not None else matching
-    ids = [i for i, _, _ in coarse]
-    return views_of(db, ids[offset: offset + limit] if limit is not None else ids, on)
+        return matching[offset:end], len(matching)
+    ids = [i for i, c, _ in coarse if status is None or c == status]
+    return views_of(db, ids[offset:end], on), len(ids)
 
 
-def count_batches(db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None,
-                  status: str | None = None, search: str | None = None) -> int:
-    """How many batches batch_views would list without a limit (cheap for the coarse statuses)."""
-    coarse = coarse_statuses(db, on, reagent=reagent, search=search)
-    if status is None:
-        return len(coarse)
-    if status in ("expired", "withdrawn", "awaiting"):
-        return sum(1 for _, c, _ in coarse if c == status)
-    return len(batch_views(db, on, reagent=reagent, status=status, search=search))
+def batch_views(
+    db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None, status: str | None = None,
+    search: str | None = None,
+) -> list[BatchView]:
+    """Every batch that existed on `on` (optionally filtered) with its status then, newest first."""
+    return batch_page(db, on, reagent=reagent, status=status, search=search)[0]
 
 
 def batch_history(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:

@@ -48,8 +48,7 @@ def batches() -> Any:
         raise InvalidInput([FieldError("limit", "limit and offset must be whole numbers")]) from None
     if not 1 <= limit <= 1000 or offset < 0:
         raise InvalidInput([FieldError("limit", "limit must be between 1 and 1000 and offset at least 0")])
-    total = records.count_batches(db, on, reagent=titrant, status=status)
-    views = records.batch_views(db, on, reagent=titrant, status=status, limit=limit, offset=offset)
+    views, total = records.batch_page(db, on, reagent=titrant, status=status, limit=limit, offset=offset)
     body: dict[str, Any] = {"on": on.isoformat(), "total": total, "limit": limit, "offset": offset,
                             "batches": [_summary(v.batch, v.report) for v in views]}
     if offset + limit < total:

@@ -25,15 +25,17 @@ def list_batches() -> str:
     status = request.args.get("status") or None
     search = (request.args.get("q") or "").strip() or None
     db = get_db()
-    total = records.count_batches(db, on, reagent=reagent, status=status, search=search)
     try:
         page = max(1, int(request.args.get("page", "1")))
     except ValueError:
         page = 1
+    shown, total = records.batch_page(db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE,
+                                      offset=(page - 1) * PAGE_SIZE)
     pages = max(1, -(-total // PAGE_SIZE))
-    page = min(page, pages)
-    shown = records.batch_views(db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE,
-                                offset=(page - 1) * PAGE_SIZE)
+    if page > pages:  # past the end: show the last page
+        page = pages
+        shown, total = records.batch_page(db, on, reagent=reagent, status=status, search=search,
+                                          limit=PAGE_SIZE, offset=(page - 1) * PAGE_SIZE)
     return render_template(
         "batches/list.html", views=shown, on=on, reagent=reagent, status=status, q=search or "",
         statuses=URGENCY, reagents=[t.key for t in chemistry.list_titrants()], page=page, pages=pages,

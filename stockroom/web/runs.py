@@ -133,20 +133,20 @@ def _lots_for(batch: dict[str, Any], on: dt.date) -> list[dict[str, Any]]:
 
 def _references_for(batch: dict[str, Any], on: dt.date) -> list[tuple[dict[str, Any], Any]]:
     """Certified batches of the opposite role with a value in force on `on` (candidates for reference)."""
-    titrant = chemistry.titrant(batch["reagent"])
+    db = get_db()
+    role = chemistry.titrant(batch["reagent"]).role
+    # Only live batches (released, not expired or withdrawn) can have a value in force; their release
+    # in the status report is that value.
+    live = [i for i, c, _ in records.coarse_statuses(db, on) if c == "live" and i != batch["id"]]
     out = []
-    for v in records.batch_views(get_db(), on):
-        other = v.batch
-        if other["id"] == batch["id"]:
-            continue
+    for v in records.views_of(db, live, on):
         try:
-            if chemistry.titrant(other["reagent"]).role == titrant.role:
+            if chemistry.titrant(v.batch["reagent"]).role == role:
                 continue
         except StockroomError:
             continue
-        release = release_in_force(records.batch_facts(get_db(), other["id"]), on)
-        if release is not None:
-            out.append((other, release))
+        if v.report.release is not None:
+            out.append((v.batch, v.report.release))
     return out
 
 
