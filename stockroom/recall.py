@@ -353,7 +353,7 @@ _REVIEW_CACHE: weakref.WeakKeyDictionary[sqlite_utils.Database, tuple[int, dict[
 
 
 def review_facts(db: sqlite_utils.Database) -> dict[int, tuple[ReviewFact, ...]]:
-    """batch id -> the recalls reaching any of its releases, as policy.ReviewFact (records._facts_bulk adds them).
+    """batch id -> the recalls reaching any of its releases, as policy.ReviewFact (records.facts_of adds them).
 
     One query when no recall is on record. Otherwise the answer is kept per connection until the next
     audit entry (every write makes one), so the many status look-ups of a page read the graph once.
@@ -521,7 +521,7 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
     reached = traceability.downstream(graph, recall.suspect)
     nodes = {k: graph.node(k) for k in reached}
     batch_ids = sorted({n.batch_id for n in nodes.values() if n.batch_id is not None})
-    facts = records._facts_bulk(db, batch_ids)
+    facts = records.facts_of(db, batch_ids)
     batches = {b["id"]: b for b in dbmod.query(
         db, f"SELECT id, code, reagent, nominal_molarity FROM batches WHERE id IN ({','.join('?' * len(batch_ids))})",
         batch_ids)} if batch_ids else {}

@@ -479,7 +479,7 @@ class BatchView:
     report: StatusReport
 
 
-def _facts_bulk(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = None) -> dict[int, BatchFacts]:
+def facts_of(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = None) -> dict[int, BatchFacts]:
     """BatchFacts of many batches from three queries in all (never one query per batch)."""
     where, params = "", []
     ids = list(batch_ids) if batch_ids is not None else None
@@ -522,7 +522,7 @@ def _facts_bulk(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = Non
 
 
 def batch_facts(db: sqlite_utils.Database, batch_id: int) -> BatchFacts:
-    facts = _facts_bulk(db, [batch_id]).get(batch_id)
+    facts = facts_of(db, [batch_id]).get(batch_id)
     if facts is None:
         raise NotFound(f"no batch with id {batch_id}")
     return facts
@@ -583,7 +583,7 @@ def views_of(db: sqlite_utils.Database, ids: list[int], on: dt.date) -> list[Bat
         for r in dbmod.query(db, f"SELECT * FROM batches WHERE id IN ({','.join('?' * len(chunk))})", chunk):
             rows[r["id"]] = r
     _overlay(list(rows.values()), db)
-    facts = _facts_bulk(db, ids) if len(ids) <= 500 else _facts_bulk(db)
+    facts = facts_of(db, ids) if len(ids) <= 500 else facts_of(db)
     return [BatchView(rows[i], status_on(facts[i], on)) for i in ids if i in rows]
 
 

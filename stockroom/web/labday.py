@@ -58,7 +58,7 @@ def load_batches(db: sqlite_utils.Database, titrant: str | None, day: dt.date | 
     rows = dbmod.query(db, sql + " ORDER BY code", params)
     if not rows:
         return []
-    facts = records._facts_bulk(db, [r["id"] for r in rows])
+    facts = records.facts_of(db, [r["id"] for r in rows])
     return [ld.BatchRecord(code=r["code"], reagent=r["reagent"], nominal_molarity=float(r["nominal_molarity"]),
                            facts=facts[r["id"]], id=r["id"]) for r in rows]
 
