@@ -53,8 +53,19 @@ PERMISSIONS: dict[str, str] = {
 }
 
 _EVERYONE = frozenset({"read", "account.own"})
-_STAFF = frozenset({"batch.register", "lot.register", "run.record", "run.decide", "batch.release",
-                    "batch.withdraw", "label.print", "instrument.register", "recall.manage"})
+_STAFF = frozenset(
+    {
+        "batch.register",
+        "lot.register",
+        "run.record",
+        "run.decide",
+        "batch.release",
+        "batch.withdraw",
+        "label.print",
+        "instrument.register",
+        "recall.manage",
+    }
+)
 _INSTRUCTOR = frozenset({"labday.lookup", "classdata.correct"})
 _ADMIN = frozenset({"users.manage", "policy.edit", "hazard.edit", "settings.edit"})
 
@@ -100,12 +111,19 @@ class User:
 
     @classmethod
     def from_row(cls, row: dict[str, Any]) -> User:
-        return cls(id=int(row["id"]), username=row["username"], display_name=row["display_name"],
-                   role=row["role"], created_at=row["created_at"], disabled_at=row["disabled_at"],
-                   session_generation=int(row["session_generation"]))
+        return cls(
+            id=int(row["id"]),
+            username=row["username"],
+            display_name=row["display_name"],
+            role=row["role"],
+            created_at=row["created_at"],
+            disabled_at=row["disabled_at"],
+            session_generation=int(row["session_generation"]),
+        )
 
 
 # ---------------------------------------------------------------- errors
+
 
 class SignInRefused(StockroomError):
     """The credentials may be right but this account cannot sign in (it is disabled)."""
@@ -153,8 +171,9 @@ def password_problems(password: str, *, username: str = "", display_name: str = 
     """
     problems = []
     if len(password) < MIN_PASSWORD_LENGTH:
-        problems.append(f"Use at least {MIN_PASSWORD_LENGTH} characters ({len(password)} given); "
-                        "a few unrelated words make a good one.")
+        problems.append(
+            f"Use at least {MIN_PASSWORD_LENGTH} characters ({len(password)} given); a few unrelated words make a good one."
+        )
     elif len(password) > MAX_PASSWORD_LENGTH:
         problems.append(f"Use at most {MAX_PASSWORD_LENGTH} characters.")
     lowered = password.strip().lower()
@@ -222,8 +241,9 @@ def validate_new_user(username: str, display_name: str, role: str, password: str
     """
     errors = []
     if not _USERNAME.fullmatch(username):
-        errors.append(FieldError("username", "Use 1 to 40 letters, digits, dots, hyphens or underscores, "
-                                             "starting with a letter or digit."))
+        errors.append(
+            FieldError("username", "Use 1 to 40 letters, digits, dots, hyphens or underscores, starting with a letter or digit.")
+        )
     if not display_name or len(display_name) > 80:
         errors.append(FieldError("display_name", "Give the person's name (1 to 80 characters)."))
     if role not in ROLES:
@@ -234,7 +254,12 @@ def validate_new_user(username: str, display_name: str, role: str, password: str
 
 
 def create_user(
-    db: sqlite_utils.Database, username: str, display_name: str, role: str, password: str, actor: str,
+    db: sqlite_utils.Database,
+    username: str,
+    display_name: str,
+    role: str,
+    password: str,
+    actor: str,
 ) -> User:
     """Create an account; InvalidInput naming the field when a rule is broken or the username is taken.
 
@@ -251,10 +276,18 @@ def create_user(
             raise InvalidInput([FieldError("username", f"The username {username!r} is taken.")])
         cur = db.execute(
             "INSERT INTO users (username, display_name, role, password_hash, created_at, session_generation) "
-            "VALUES (?, ?, ?, ?, ?, 0)", [username, display_name, role, password_hash, records.utc_now()])
+            "VALUES (?, ?, ?, ?, ?, 0)",
+            [username, display_name, role, password_hash, records.utc_now()],
+        )
         user_id = int(cur.lastrowid or 0)
-        records.append_event(db, actor, "account.create", entity="users", entity_id=user_id,
-                             detail={"username": username, "role": role, "display_name": display_name})
+        records.append_event(
+            db,
+            actor,
+            "account.create",
+            entity="users",
+            entity_id=user_id,
+            detail={"username": username, "role": role, "display_name": display_name},
+        )
     found = user_by_id(db, user_id)
     assert found is not None
     return found
@@ -265,8 +298,7 @@ def create_first_admin(db: sqlite_utils.Database, username: str, display_name: s
     with dbmod.write(db):
         if has_users(db):
             raise Conflict("An account already exists; the first-run set-up is closed.")
-        return create_user(db, username, display_name, "admin", password,
-                           actor=username.strip() or "first-run")
+        return create_user(db, username, display_name, "admin", password, actor=username.strip() or "first-run")
 
 
 def _end_sessions(db: sqlite_utils.Database, user_id: int, now: str) -> None:
@@ -290,11 +322,11 @@ def disable_user(db: sqlite_utils.Database, username: str, actor: str, reason: s
             if admins.fetchone()[0] <= 1:
                 raise Conflict("This is the last active administrator; make another admin first.")
         now = records.utc_now()
-        db.execute("UPDATE users SET disabled_at = ?, session_generation = session_generation + 1 "
-                   "WHERE id = ?", [now, row["id"]])
+        db.execute("UPDATE users SET disabled_at = ?, session_generation = session_generation + 1 WHERE id = ?", [now, row["id"]])
         _end_sessions(db, row["id"], now)
-        records.append_event(db, actor, "account.disable", entity="users", entity_id=row["id"], reason=reason,
-                             detail={"username": row["username"]})
+        records.append_event(
+            db, actor, "account.disable", entity="users", entity_id=row["id"], reason=reason, detail={"username": row["username"]}
+        )
     found = user_by_id(db, row["id"])
     assert found is not None
     return found
@@ -302,13 +334,19 @@ def disable_user(db: sqlite_utils.Database, username: str, actor: str, reason: s
 
 def _store_password(db: sqlite_utils.Database, user_id: int, password_hash: str) -> None:
     # A new generation ends every session signed before the change (other browsers included).
-    db.execute("UPDATE users SET password_hash = ?, session_generation = session_generation + 1 WHERE id = ?",
-               [password_hash, user_id])
+    db.execute(
+        "UPDATE users SET password_hash = ?, session_generation = session_generation + 1 WHERE id = ?", [password_hash, user_id]
+    )
     _end_sessions(db, user_id, records.utc_now())
 
 
 def change_password(
-    db: sqlite_utils.Database, user: User, current: str, new: str, *, now: dt.datetime | None = None,
+    db: sqlite_utils.Database,
+    user: User,
+    current: str,
+    new: str,
+    *,
+    now: dt.datetime | None = None,
 ) -> User:
     """Change one's own password given the current one; every existing session of the user ends.
 
@@ -337,8 +375,7 @@ def change_password(
     password_hash = hash_password(new)
     with dbmod.write(db):
         _store_password(db, row["id"], password_hash)
-        records.append_event(db, row["username"], "account.password_change", entity="users",
-                             entity_id=row["id"])
+        records.append_event(db, row["username"], "account.password_change", entity="users", entity_id=row["id"])
     found = user_by_id(db, row["id"])
     assert found is not None
     return found
@@ -355,8 +392,9 @@ def set_password(db: sqlite_utils.Database, username: str, new: str, actor: str)
     password_hash = hash_password(new)
     with dbmod.write(db):
         _store_password(db, row["id"], password_hash)
-        records.append_event(db, actor, "account.password_reset", entity="users", entity_id=row["id"],
-                             detail={"username": row["username"]})
+        records.append_event(
+            db, actor, "account.password_reset", entity="users", entity_id=row["id"], detail={"username": row["username"]}
+        )
     found = user_by_id(db, row["id"])
     assert found is not None
     return found
@@ -373,7 +411,9 @@ FAILURE_DELAY_S = 0.4
 
 
 def lockout_until(
-    db: sqlite_utils.Database, username: str, now: dt.datetime | None = None,
+    db: sqlite_utils.Database,
+    username: str,
+    now: dt.datetime | None = None,
 ) -> dt.datetime | None:
     """When sign-in for this username resumes (UTC), or None if it is not paused.
 
@@ -382,8 +422,11 @@ def lockout_until(
     so the pause does not extend itself.
     """
     moment = _now(now)
-    rows = dbmod.query(db, "SELECT occurred_at, succeeded FROM signin_attempts WHERE username = ? "
-                           "ORDER BY id DESC LIMIT ?", [username.strip()[:80], LOCKOUT_FAILURES])
+    rows = dbmod.query(
+        db,
+        "SELECT occurred_at, succeeded FROM signin_attempts WHERE username = ? ORDER BY id DESC LIMIT ?",
+        [username.strip()[:80], LOCKOUT_FAILURES],
+    )
     failures = []
     for r in rows:
         if r["succeeded"]:
@@ -396,25 +439,44 @@ def lockout_until(
 
 
 def _record_attempt(
-    db: sqlite_utils.Database, username: str, moment: dt.datetime, *, succeeded: bool,
+    db: sqlite_utils.Database,
+    username: str,
+    moment: dt.datetime,
+    *,
+    succeeded: bool,
 ) -> None:
-    db.execute("INSERT INTO signin_attempts (username, occurred_at, succeeded) VALUES (?, ?, ?)",
-               [username[:80], moment.isoformat(), int(succeeded)])
+    db.execute(
+        "INSERT INTO signin_attempts (username, occurred_at, succeeded) VALUES (?, ?, ?)",
+        [username[:80], moment.isoformat(), int(succeeded)],
+    )
 
 
 def _record_failure(
-    db: sqlite_utils.Database, username: str, moment: dt.datetime, row: dict[str, Any] | None, why: str,
+    db: sqlite_utils.Database,
+    username: str,
+    moment: dt.datetime,
+    row: dict[str, Any] | None,
+    why: str,
 ) -> None:
     with dbmod.write(db):
         _record_attempt(db, username, moment, succeeded=False)
-        records.append_event(db, "anonymous", "account.signin_failed", entity="users",
-                             entity_id=row["id"] if row else None,
-                             detail={"username": username[:80], "why": why})
+        records.append_event(
+            db,
+            "anonymous",
+            "account.signin_failed",
+            entity="users",
+            entity_id=row["id"] if row else None,
+            detail={"username": username[:80], "why": why},
+        )
     time.sleep(FAILURE_DELAY_S)
 
 
 def authenticate(
-    db: sqlite_utils.Database, username: str, password: str, *, now: dt.datetime | None = None,
+    db: sqlite_utils.Database,
+    username: str,
+    password: str,
+    *,
+    now: dt.datetime | None = None,
 ) -> User | None:
     """The user whose username and password these are, or None; records the attempt.
 
@@ -427,8 +489,9 @@ def authenticate(
     until = lockout_until(db, username, moment)
     if until is not None:
         with dbmod.write(db):
-            records.append_event(db, "anonymous", "account.signin_paused",
-                                 detail={"username": username[:80], "until": until.isoformat()})
+            records.append_event(
+                db, "anonymous", "account.signin_paused", detail={"username": username[:80], "until": until.isoformat()}
+            )
         time.sleep(FAILURE_DELAY_S)
         raise SignInLocked(until, moment)
     row = _user_row(db, username) if len(username) <= 40 else None
@@ -459,28 +522,40 @@ def start_session(db: sqlite_utils.Database, user: User, *, now: dt.datetime | N
     """Open a server-side session for a signed-in user; return the random token the cookie carries."""
     token = secrets.token_urlsafe(32)
     with dbmod.write(db):
-        db.execute("INSERT INTO web_sessions (token_hash, user_id, generation, started_at) "
-                   "VALUES (?, ?, ?, ?)",
-                   [_token_hash(token), user.id, user.session_generation, _now(now).isoformat()])
+        db.execute(
+            "INSERT INTO web_sessions (token_hash, user_id, generation, started_at) VALUES (?, ?, ?, ?)",
+            [_token_hash(token), user.id, user.session_generation, _now(now).isoformat()],
+        )
     return token
 
 
 def session_user(
-    db: sqlite_utils.Database, user_id: Any, generation: Any, token: Any, *, now: dt.datetime | None = None,
+    db: sqlite_utils.Database,
+    user_id: Any,
+    generation: Any,
+    token: Any,
+    *,
+    now: dt.datetime | None = None,
 ) -> User | None:
     """The user a cookie's (user id, generation, token) still stands for, or None if that session is over."""
     if not isinstance(token, str) or not isinstance(user_id, int) or not isinstance(generation, int):
         return None
     rows = dbmod.query(
-        db, "SELECT u.*, s.generation AS s_generation, s.started_at AS s_started, s.ended_at AS s_ended "
-            "FROM web_sessions s JOIN users u ON u.id = s.user_id WHERE s.token_hash = ? AND u.id = ?",
-        [_token_hash(token), user_id])
+        db,
+        "SELECT u.*, s.generation AS s_generation, s.started_at AS s_started, s.ended_at AS s_ended "
+        "FROM web_sessions s JOIN users u ON u.id = s.user_id WHERE s.token_hash = ? AND u.id = ?",
+        [_token_hash(token), user_id],
+    )
     if not rows:
         return None
     r = rows[0]
-    if (r["s_ended"] is not None or r["disabled_at"] is not None
-            or r["session_generation"] != generation or r["s_generation"] != generation
-            or _now(now) - dt.datetime.fromisoformat(r["s_started"]) > SESSION_MAX_AGE):
+    if (
+        r["s_ended"] is not None
+        or r["disabled_at"] is not None
+        or r["session_generation"] != generation
+        or r["s_generation"] != generation
+        or _now(now) - dt.datetime.fromisoformat(r["s_started"]) > SESSION_MAX_AGE
+    ):
         return None
     return User.from_row(r)
 
@@ -490,7 +565,9 @@ def end_session(db: sqlite_utils.Database, token: Any, actor: str) -> None:
     if not isinstance(token, str):
         return
     with dbmod.write(db):
-        cur = db.execute("UPDATE web_sessions SET ended_at = ? WHERE token_hash = ? AND ended_at IS NULL",
-                         [records.utc_now(), _token_hash(token)])
+        cur = db.execute(
+            "UPDATE web_sessions SET ended_at = ? WHERE token_hash = ? AND ended_at IS NULL",
+            [records.utc_now(), _token_hash(token)],
+        )
         if cur.rowcount:
             records.append_event(db, actor, "account.signout")

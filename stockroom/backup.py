@@ -52,8 +52,9 @@ def check_restorable(path: str | Path) -> int:
             if result != "ok":
                 raise RestoreRefused(f"{path} fails SQLite's integrity check: {result}")
             try:
-                names = [r[0] for r in conn.execute(
-                    "SELECT name FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATIONS.name])]
+                names = [
+                    r[0] for r in conn.execute("SELECT name FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATIONS.name])
+                ]
             except sqlite3.DatabaseError:
                 raise RestoreRefused(f"{path} is not a stockroom database (no migration record)") from None
         finally:
@@ -63,8 +64,9 @@ def check_restorable(path: str | Path) -> int:
     known = {m.name for m in MIGRATIONS._migrations}
     unknown = [n for n in names if n not in known]
     if unknown or len(names) > SCHEMA_VERSION:
-        raise RestoreRefused(f"{path} has a newer schema than this stockroom ({', '.join(unknown) or len(names)}); "
-                             "upgrade stockroom first")
+        raise RestoreRefused(
+            f"{path} has a newer schema than this stockroom ({', '.join(unknown) or len(names)}); upgrade stockroom first"
+        )
     return len(names)
 
 

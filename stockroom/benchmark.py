@@ -26,10 +26,17 @@ def sample_request(draws: int) -> dict[str, Any]:
     masses = (0.8123, 0.8241, 0.8090, 0.8302, 0.8177, 0.8212, 0.8150, 0.8266, 0.8105, 0.8230)
     titres = (39.80, 40.39, 39.62, 40.70, 40.04, 40.22, 39.93, 40.49, 39.71, 40.33)
     return {
-        "titrant": "NaOH", "standard": "KHP", "purity": 0.99995, "purity_U": 0.0002, "purity_k": 2,
-        "nominal_molarity": 0.1, "monte_carlo_draws": draws,
-        "replicates": [{"gross_g": round(15.0 + m, 4), "tare_g": 15.0, "volume_ml": v, "blank_ml": 0.03,
-                        "temperature_c": 21.0} for m, v in zip(masses, titres, strict=True)],
+        "titrant": "NaOH",
+        "standard": "KHP",
+        "purity": 0.99995,
+        "purity_U": 0.0002,
+        "purity_k": 2,
+        "nominal_molarity": 0.1,
+        "monte_carlo_draws": draws,
+        "replicates": [
+            {"gross_g": round(15.0 + m, 4), "tare_g": 15.0, "volume_ml": v, "blank_ml": 0.03, "temperature_c": 21.0}
+            for m, v in zip(masses, titres, strict=True)
+        ],
     }
 
 
@@ -59,6 +66,7 @@ def science_figures(repeats_1e5: int = 25, repeats_1e6: int = 7) -> dict[str, An
         client = app.test_client()
         for draws, repeats in ((100_000, repeats_1e5), (1_000_000, repeats_1e6)):
             body = sample_request(draws)
+
             def pure_computation(b: dict[str, Any] = body) -> None:
                 compute_preview(b, app.config)
 
@@ -72,11 +80,19 @@ def science_figures(repeats_1e5: int = 25, repeats_1e6: int = 7) -> dict[str, An
 
             via = _median_seconds(through_client, repeats)
             goal = GOALS_S[draws]
-            out["cases"].append({
-                "draws": draws, "replicates": len(body["replicates"]), "repeats": repeats,
-                "pure_ms": pure * 1000, "client_ms": via * 1000, "goal_ms": goal * 1000,
-                "pure_over_goal": pure / goal, "client_over_goal": via / goal, "client_over_pure": via / pure,
-            })
+            out["cases"].append(
+                {
+                    "draws": draws,
+                    "replicates": len(body["replicates"]),
+                    "repeats": repeats,
+                    "pure_ms": pure * 1000,
+                    "client_ms": via * 1000,
+                    "goal_ms": goal * 1000,
+                    "pure_over_goal": pure / goal,
+                    "client_over_goal": via / goal,
+                    "client_over_pure": via / pure,
+                }
+            )
     cases = out["cases"]
     out["met"] = all(c["client_over_goal"] < 1 and c["pure_over_goal"] < 1 for c in cases)
     out["ratio_1e6_over_1e5"] = cases[1]["pure_ms"] / cases[0]["pure_ms"]
@@ -87,11 +103,14 @@ def main() -> None:
     """Print the figures as a small table."""
     figures = science_figures()
     print("preview of a 10-replicate run (median wall time)")
-    print(f"{'draws':>9}  {'pure ms':>9}  {'Flask ms':>9}  {'goal ms':>8}  {'pure/goal':>9}  "
-          f"{'Flask/goal':>10}  {'Flask/pure':>10}")
+    print(
+        f"{'draws':>9}  {'pure ms':>9}  {'Flask ms':>9}  {'goal ms':>8}  {'pure/goal':>9}  {'Flask/goal':>10}  {'Flask/pure':>10}"
+    )
     for c in figures["cases"]:
-        print(f"{c['draws']:>9}  {c['pure_ms']:>9.2f}  {c['client_ms']:>9.2f}  {c['goal_ms']:>8.0f}  "
-              f"{c['pure_over_goal']:>9.3f}  {c['client_over_goal']:>10.3f}  {c['client_over_pure']:>10.3f}")
+        print(
+            f"{c['draws']:>9}  {c['pure_ms']:>9.2f}  {c['client_ms']:>9.2f}  {c['goal_ms']:>8.0f}  "
+            f"{c['pure_over_goal']:>9.3f}  {c['client_over_goal']:>10.3f}  {c['client_over_pure']:>10.3f}"
+        )
     print(f"10^6 / 10^5 draws (pure): {figures['ratio_1e6_over_1e5']:.1f}x")
     print("goals met" if figures["met"] else "GOALS NOT MET")
 
@@ -101,6 +120,7 @@ if __name__ == "__main__":
 
 
 # ---------------------------------------------------------------- the served application
+
 
 def _percentile(values: list[float], q: float) -> float:
     ordered = sorted(values)
@@ -131,8 +151,9 @@ def _client_worker(args: tuple[str, int, str, str, bytes | None, float]) -> list
     return latencies
 
 
-def measure(port: int, method: str, path: str, body: bytes | None = None, clients: int = 4,
-            seconds: float = 3.0) -> dict[str, float]:
+def measure(
+    port: int, method: str, path: str, body: bytes | None = None, clients: int = 4, seconds: float = 3.0
+) -> dict[str, float]:
     """Throughput (requests/s) and p50/p95 latency (ms) of one route under `clients` concurrent clients."""
     from multiprocessing import get_context
 
@@ -142,8 +163,12 @@ def measure(port: int, method: str, path: str, body: bytes | None = None, client
         results = pool.map(_client_worker, [("127.0.0.1", port, method, path, body, seconds)] * clients)
         elapsed = time.perf_counter() - start
     latencies = [x for r in results for x in r]
-    return {"requests": len(latencies), "throughput": len(latencies) / elapsed,
-            "p50_ms": _percentile(latencies, 0.50) * 1000, "p95_ms": _percentile(latencies, 0.95) * 1000}
+    return {
+        "requests": len(latencies),
+        "throughput": len(latencies) / elapsed,
+        "p50_ms": _percentile(latencies, 0.50) * 1000,
+        "p95_ms": _percentile(latencies, 0.95) * 1000,
+    }
 
 
 def synthetic_database(years: int, seed: int = 1, cache_dir: Path | None = None) -> Path:
@@ -175,8 +200,12 @@ def _serve(path: Path) -> tuple[Any, int]:
         s.bind(("127.0.0.1", 0))
         port = s.getsockname()[1]
     env = dict(os.environ, STOCKROOM_SECRET_KEY="bench", STOCKROOM_LAB_TIMEZONE="UTC")
-    proc = subprocess.Popen([sys.executable, "-m", "stockroom.cli", "serve", "--db", str(path), "--port", str(port)],
-                            env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "stockroom.cli", "serve", "--db", str(path), "--port", str(port)],
+        env=env,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
     deadline = time.monotonic() + 60
     while time.monotonic() < deadline:
         try:
@@ -230,8 +259,9 @@ def label_sheet_seconds(path: Path, repeats: int = 7) -> float:
     try:
         code = conn.execute("SELECT code FROM batches WHERE reagent = 'HCl' ORDER BY id DESC LIMIT 1").fetchone()[0]
         batch = records.batch_by_code(conn, code)
-        content = labels.label_content(conn, settings.resolve({"DATABASE": str(path), "SECRET_KEY": "bench"}),
-                                       batch, dt.date.today())
+        content = labels.label_content(
+            conn, settings.resolve({"DATABASE": str(path), "SECRET_KEY": "bench"}), batch, dt.date.today()
+        )
     finally:
         conn.close()
     layout = layouts.get("sheet-letter-30")
@@ -254,5 +284,4 @@ def print_web_figures(figures: list[dict[str, Any]]) -> None:
         small, big = figures
         for name in ("dashboard", "batch page"):
             growth = big["routes"][name]["p95_ms"] / small["routes"][name]["p95_ms"]
-            print(f"{name}: p95 at {big['years']} y is {growth:.2f}x the {small['years']} y figure (goal <= 1.2x, "
-                  f"and <= 50 ms)")
+            print(f"{name}: p95 at {big['years']} y is {growth:.2f}x the {small['years']} y figure (goal <= 1.2x, and <= 50 ms)")

@@ -112,9 +112,7 @@ _ATOMIC_WEIGHT_TABLE: dict[str, tuple[float, float]] = {
 }
 
 # Elements whose CIAAW 2021 standard atomic weight is an interval (their table value is the abridged one).
-INTERVAL_ELEMENTS: frozenset[str] = frozenset(
-    {"H", "Li", "B", "C", "N", "O", "Mg", "Si", "S", "Cl", "Ar", "Br", "Tl", "Pb"}
-)
+INTERVAL_ELEMENTS: frozenset[str] = frozenset({"H", "Li", "B", "C", "N", "O", "Mg", "Si", "S", "Cl", "Ar", "Br", "Tl", "Pb"})
 
 
 @dataclass(frozen=True)
@@ -155,8 +153,7 @@ def atomic_weight(symbol: str) -> AtomicWeight:
         return ATOMIC_WEIGHTS[symbol]
     if symbol in _ALL_SYMBOLS:
         raise FormulaError(
-            f"element {symbol!r} has no atomic weight in stockroom's table; "
-            f"known: {', '.join(sorted(ATOMIC_WEIGHTS))}"
+            f"element {symbol!r} has no atomic weight in stockroom's table; known: {', '.join(sorted(ATOMIC_WEIGHTS))}"
         )
     raise FormulaError(f"{symbol!r} is not an element symbol")
 
@@ -273,15 +270,11 @@ class _FormulaReader:
                     "(a coefficient may only open the formula or a hydrate part)"
                 )
             elif ch.islower():
-                raise self.fail(
-                    f"element symbols start with a capital letter ({ch!r} at position {self.pos + 1})"
-                )
+                raise self.fail(f"element symbols start with a capital letter ({ch!r} at position {self.pos + 1})")
             elif ch.isspace():
                 raise self.fail(f"a space at position {self.pos + 1}; write the formula without spaces")
             else:
-                raise self.fail(
-                    f"unexpected {ch!r} at position {self.pos + 1} (charges and isotopes are not read)"
-                )
+                raise self.fail(f"unexpected {ch!r} at position {self.pos + 1} (charges and isotopes are not read)")
 
 
 @lru_cache(maxsize=512)
@@ -500,8 +493,7 @@ STANDARDS: tuple[PrimaryStandard, ...] = (
             max_c=120.0,
             text="Dry 2 h at 110–120 °C, cool in a desiccator (common practice)",
         ),
-        endpoint="Phenolphthalein (about pH 8.6), with a blank on the CO2-free water used (AOAC; "
-        "common practice)",
+        endpoint="Phenolphthalein (about pH 8.6), with a blank on the CO2-free water used (AOAC; common practice)",
         aliases=(
             "KHPh",
             "potassium hydrogen phthalate",
@@ -522,8 +514,7 @@ STANDARDS: tuple[PrimaryStandard, ...] = (
             oven_allowed=True,
             min_c=None,
             max_c=110.0,
-            text="Keep in a desiccator over silica gel; if oven-dried, not above 110 °C (common practice; "
-            "from memory — verify)",
+            text="Keep in a desiccator over silica gel; if oven-dried, not above 110 °C (common practice; from memory — verify)",
         ),
         endpoint="Phenolphthalein or bromothymol blue (a strong acid: any indicator changing in "
         "pH 4.5–9 serves; common practice)",
@@ -563,11 +554,9 @@ STANDARDS: tuple[PrimaryStandard, ...] = (
             oven_allowed=False,
             min_c=None,
             max_c=None,
-            text="Do not oven-dry: it sublimes and melts at about 122 °C; keep in a desiccator over silica "
-            "gel (common practice)",
+            text="Do not oven-dry: it sublimes and melts at about 122 °C; keep in a desiccator over silica gel (common practice)",
         ),
-        endpoint="Phenolphthalein; dissolve first in neutralized ethanol, as it is sparingly soluble in "
-        "water (common practice)",
+        endpoint="Phenolphthalein; dissolve first in neutralized ethanol, as it is sparingly soluble in water (common practice)",
         aliases=("benzoic acid",),
     ),
     PrimaryStandard(
@@ -689,12 +678,7 @@ def _a(role: str) -> str:
 
 
 def _positive(name: str, value: float) -> float:
-    if (
-        isinstance(value, bool)
-        or not isinstance(value, (int, float))
-        or not math.isfinite(value)
-        or value <= 0
-    ):
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0:
         raise InvalidInput([FieldError(name, f"must be a number above zero (got {value!r})")])
     return float(value)
 
@@ -747,10 +731,7 @@ def check_drying(standard: PrimaryStandard | str, dried_at_c: float | None) -> s
             f"is weighed as standard, so the titrant's molarity would come out high. {rule.text}"
         )
     if rule.max_c is not None and t > rule.max_c:
-        return (
-            f"{std.name} dried at {t:g} °C, above the {rule.max_c:g} °C the rule allows: it may have "
-            f"decomposed. {rule.text}"
-        )
+        return f"{std.name} dried at {t:g} °C, above the {rule.max_c:g} °C the rule allows: it may have decomposed. {rule.text}"
     return None
 
 

@@ -55,8 +55,12 @@ def serve(db_path: str | None, host: str, port: int) -> None:
 
 
 @main.command()
-@click.option("--db", "db_path", type=click.Path(dir_okay=False),
-              help="File for the demo database (default: a new file in a temporary folder).")
+@click.option(
+    "--db",
+    "db_path",
+    type=click.Path(dir_okay=False),
+    help="File for the demo database (default: a new file in a temporary folder).",
+)
 @click.option("--host", default="127.0.0.1", show_default=True, help="Address to listen on.")
 @click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535), help="Port to listen on.")
 @click.option("--no-serve", is_flag=True, help="Build the demo database and stop.")
@@ -126,8 +130,7 @@ def _account_call(fn, *args):  # a StockroomError becomes a one-line message and
 @click.argument("name")
 @click.option("--role", required=True, type=_ROLE_CHOICE, help="What the account may do.")
 @click.option("--display-name", default=None, help="The person's name as shown (default: NAME).")
-@click.option("--db", "db_path", type=click.Path(dir_okay=False),
-              help="SQLite file (default: the configured one).")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
 def add_user(name: str, role: str, display_name: str | None, db_path: str | None) -> None:
     """Create an account. The password is read from STOCKROOM_PASSWORD if set, else asked for twice."""
     from stockroom import accounts
@@ -135,8 +138,7 @@ def add_user(name: str, role: str, display_name: str | None, db_path: str | None
     password = _new_password("Password for the new account (at least 12 characters)")
     conn = _accounts_db(db_path)
     try:
-        user = _account_call(accounts.create_user, conn, name, display_name or name, role, password,
-                             _cli_actor())
+        user = _account_call(accounts.create_user, conn, name, display_name or name, role, password, _cli_actor())
     finally:
         conn.close()
     click.echo(f"created {user.username} ({user.role_label})")
@@ -145,8 +147,7 @@ def add_user(name: str, role: str, display_name: str | None, db_path: str | None
 @main.command("disable-user")
 @click.argument("name")
 @click.option("--reason", default="", help="Why, for the audit trail.")
-@click.option("--db", "db_path", type=click.Path(dir_okay=False),
-              help="SQLite file (default: the configured one).")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
 def disable_user(name: str, reason: str, db_path: str | None) -> None:
     """Disable an account; every session it has ends at once."""
     from stockroom import accounts
@@ -161,8 +162,7 @@ def disable_user(name: str, reason: str, db_path: str | None) -> None:
 
 @main.command("set-password")
 @click.argument("name")
-@click.option("--db", "db_path", type=click.Path(dir_okay=False),
-              help="SQLite file (default: the configured one).")
+@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
 def set_password(name: str, db_path: str | None) -> None:
     """Give an account a new password (forgotten password); from STOCKROOM_PASSWORD or asked for twice."""
     from stockroom import accounts
@@ -178,6 +178,7 @@ def set_password(name: str, db_path: str | None) -> None:
 
 # ---------------------------------------------------------------- labels and certificates
 
+
 def _lab_today(config: dict):  # -> datetime.date: today in the lab's time zone
     import datetime as dt
     from zoneinfo import ZoneInfo
@@ -187,17 +188,29 @@ def _lab_today(config: dict):  # -> datetime.date: today in the lab's time zone
 
 @main.command("labels")
 @click.argument("batch_id")
-@click.option("--layout", "layout_name", required=True,
-              help="Label layout: the name of a file in labels/ without .toml (e.g. carboy-a5, bottle, sheet-a4-24).")
-@click.option("--copies", default=1, show_default=True, type=click.IntRange(1, 200),
-              help="How many labels to print (each gets its own serial).")
-@click.option("--start", default=1, show_default=True, type=click.IntRange(1, None),
-              help="Position of the first label on a partly used sheet, counted along rows from the top left.")
+@click.option(
+    "--layout",
+    "layout_name",
+    required=True,
+    help="Label layout: the name of a file in labels/ without .toml (e.g. carboy-a5, bottle, sheet-a4-24).",
+)
+@click.option(
+    "--copies",
+    default=1,
+    show_default=True,
+    type=click.IntRange(1, 200),
+    help="How many labels to print (each gets its own serial).",
+)
+@click.option(
+    "--start",
+    default=1,
+    show_default=True,
+    type=click.IntRange(1, None),
+    help="Position of the first label on a partly used sheet, counted along rows from the top left.",
+)
 @click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
-@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True),
-              help="PDF file to write.")
-def labels_command(batch_id: str, layout_name: str, copies: int, start: int, db_path: str | None,
-                   out_path: str) -> None:
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True), help="PDF file to write.")
+def labels_command(batch_id: str, layout_name: str, copies: int, start: int, db_path: str | None, out_path: str) -> None:
     """Print labels of a batch to a PDF; the print is recorded (as cli:<your login>) with its serials."""
     from stockroom import records
     from stockroom.pdf import labels, layouts
@@ -208,23 +221,23 @@ def labels_command(batch_id: str, layout_name: str, copies: int, start: int, db_
     try:
         layout = _account_call(layouts.get, layout_name)
         batch = _account_call(records.batch_by_code, conn, batch_id)
-        job = _account_call(labels.print_labels, conn, config, batch, layout, copies, start, _cli_actor(),
-                            _lab_today(config))
+        job = _account_call(labels.print_labels, conn, config, batch, layout, copies, start, _cli_actor(), _lab_today(config))
     finally:
         conn.close()
     Path(out_path).write_bytes(job.pdf)
     rec = job.record
-    click.echo(f"{copies} label{'s' if copies != 1 else ''} of {batch_id} on {layout.name}, serials "
-               f"{labels.format_serial(rec['serial_first'])}-{labels.format_serial(rec['serial_last'])}: "
-               f"{job.content.certified}")
+    click.echo(
+        f"{copies} label{'s' if copies != 1 else ''} of {batch_id} on {layout.name}, serials "
+        f"{labels.format_serial(rec['serial_first'])}-{labels.format_serial(rec['serial_last'])}: "
+        f"{job.content.certified}"
+    )
     click.echo(f"written to {out_path}")
 
 
 @main.command("certificate")
 @click.argument("batch_id")
 @click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
-@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True),
-              help="PDF file to write.")
+@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True), help="PDF file to write.")
 def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> None:
     """Write the certificate of standardization of a batch's release in force (else its latest) to a PDF."""
     from stockroom.pdf import certificates
@@ -239,7 +252,6 @@ def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> No
         conn.close()
     Path(out_path).write_bytes(pdf)
     click.echo(f"certificate of {batch_id}, release {data['release']['id']}, written to {out_path}")
-
 
 
 @main.command()
@@ -262,8 +274,10 @@ def verify(db_path: str | None) -> None:
     if integrity != "ok":
         problems.append(f"SQLite integrity check failed: {integrity}")
     if broken is not None:
-        problems.append(f"the hash chain is broken at entry {broken}: that entry, or the one before it, was "
-                        "changed or removed outside stockroom")
+        problems.append(
+            f"the hash chain is broken at entry {broken}: that entry, or the one before it, was "
+            "changed or removed outside stockroom"
+        )
     for table, row_id in missing[:20]:
         problems.append(f"{table} row {row_id} has no audit entry (an entry was removed)")
     if len(missing) > 20:
@@ -273,7 +287,6 @@ def verify(db_path: str | None) -> None:
             click.echo(f"PROBLEM: {line}", err=True)
         raise SystemExit(1)
     click.echo(f"audit trail of {path} is whole: {total} entries, every record accounted for")
-
 
 
 @main.command("backup")
@@ -310,14 +323,20 @@ def restore_command(src: str, db_path: str | None, yes: bool) -> None:
     click.echo(f"{target} restored from {src} (schema version {version}, brought up to date)")
 
 
-
 @main.command()
-@click.option("--years", default=10, show_default=True, type=click.IntRange(1, 30),
-              help="Years of synthetic history for the large case (a 1-year case always runs beside it).")
-@click.option("--seconds", default=3.0, show_default=True, type=click.FloatRange(0.5, 60),
-              help="Load time per route, in seconds.")
-@click.option("--clients", default=4, show_default=True, type=click.IntRange(1, 32),
-              help="Concurrent client processes per route.")
+@click.option(
+    "--years",
+    default=10,
+    show_default=True,
+    type=click.IntRange(1, 30),
+    help="Years of synthetic history for the large case (a 1-year case always runs beside it).",
+)
+@click.option(
+    "--seconds", default=3.0, show_default=True, type=click.FloatRange(0.5, 60), help="Load time per route, in seconds."
+)
+@click.option(
+    "--clients", default=4, show_default=True, type=click.IntRange(1, 32), help="Concurrent client processes per route."
+)
 def bench(years: int, seconds: float, clients: int) -> None:
     """Measure the real server on loopback at 1 and N years of synthetic data, with ratios to /healthz."""
     from stockroom import benchmark
@@ -331,16 +350,22 @@ def bench(years: int, seconds: float, clients: int) -> None:
     click.echo(f"30-label letter sheet PDF: {sheet * 1000:.1f} ms (goal <= 300 ms, ratio {sheet / 0.3:.2f})")
     science = benchmark.science_figures(repeats_1e5=11, repeats_1e6=5)
     for case in science["cases"]:
-        click.echo(f"preview, 10 replicates, {case['draws']:,} Monte Carlo draws: {case['pure_ms']:.1f} ms pure, "
-                   f"{case['client_ms']:.1f} ms through Flask (goal {case['goal_ms']:.0f} ms, "
-                   f"ratio {case['client_over_goal']:.2f})")
-
+        click.echo(
+            f"preview, 10 replicates, {case['draws']:,} Monte Carlo draws: {case['pure_ms']:.1f} ms pure, "
+            f"{case['client_ms']:.1f} ms through Flask (goal {case['goal_ms']:.0f} ms, "
+            f"ratio {case['client_over_goal']:.2f})"
+        )
 
 
 @main.command()
 @click.option("--years", default=10, show_default=True, type=click.IntRange(1, 30), help="Years of history to write.")
-@click.option("--db", "db_path", required=True, type=click.Path(dir_okay=False),
-              help="New SQLite file to write (must not exist; never the working database).")
+@click.option(
+    "--db",
+    "db_path",
+    required=True,
+    type=click.Path(dir_okay=False),
+    help="New SQLite file to write (must not exist; never the working database).",
+)
 @click.option("--seed", default=1, show_default=True, type=int, help="Seed: the same seed gives the same history.")
 @click.option("--end", "end_day", default=None, help="Last day of the history, YYYY-MM-DD (default: today).")
 def synth(years: int, db_path: str, seed: int, end_day: str | None) -> None:
@@ -359,8 +384,7 @@ def synth(years: int, db_path: str, seed: int, end_day: str | None) -> None:
     except ValueError:
         raise click.BadParameter("write it as YYYY-MM-DD", param_hint="--end") from None
     counts = synthmod.build(str(target), years=years, seed=seed, end=end)
-    click.echo(f"synthetic history of {years} years written to {target}: " +
-               ", ".join(f"{v} {k}" for k, v in counts.items()))
+    click.echo(f"synthetic history of {years} years written to {target}: " + ", ".join(f"{v} {k}" for k, v in counts.items()))
 
 
 if __name__ == "__main__":  # pragma: no cover

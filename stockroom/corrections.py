@@ -172,9 +172,7 @@ def water_density(t_c: float) -> float:
 # Temperature of the titrant
 
 
-def molarity_at_temperature(
-    c_mol_l: float, from_c: float, to_c: float, alpha_per_k: float = ALPHA_WATER_PER_K
-) -> float:
+def molarity_at_temperature(c_mol_l: float, from_c: float, to_c: float, alpha_per_k: float = ALPHA_WATER_PER_K) -> float:
     """Molarity of a dilute aqueous solution moved from one temperature to another, linear model.
 
     c_mol_l: molarity at from_c, mol/L. from_c, to_c: temperatures, °C. alpha_per_k: volume expansion
@@ -253,7 +251,5 @@ def net_titre(volume_ml: float, blank_ml: float = 0.0) -> float:
     if b < 0:
         raise ReadingError(f"a blank cannot be negative (got {b:g} mL)")
     if b >= v:
-        raise ReadingError(
-            f"the blank ({b:g} mL) is not below the titre ({v:g} mL): check the readings or the blank"
-        )
+        raise ReadingError(f"the blank ({b:g} mL) is not below the titre ({v:g} mL): check the readings or the blank")
     return v - b

@@ -19,8 +19,18 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-SHEET_COLUMNS = ("replicate", "gross_g", "tare_g", "mass_g", "aliquot_ml", "initial_ml", "final_ml", "blank_ml",
-                 "temperature_c", "exclude_reason")
+SHEET_COLUMNS = (
+    "replicate",
+    "gross_g",
+    "tare_g",
+    "mass_g",
+    "aliquot_ml",
+    "initial_ml",
+    "final_ml",
+    "blank_ml",
+    "temperature_c",
+    "exclude_reason",
+)
 NUMERIC_COLUMNS = SHEET_COLUMNS[1:9]
 
 
@@ -53,8 +63,7 @@ def read_sheet(text: str, max_rows: int) -> Sheet:
     sheet = Sheet()
     if text.startswith("\ufeff"):
         text = text[1:]
-    lines = [(i, line) for i, line in enumerate(text.splitlines(), start=1)
-             if line.strip() and not line.lstrip().startswith("#")]
+    lines = [(i, line) for i, line in enumerate(text.splitlines(), start=1) if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
         sheet.problems.append((0, "the file has no header row and no data"))
         return sheet
@@ -66,8 +75,12 @@ def read_sheet(text: str, max_rows: int) -> Sheet:
         return sheet
     unknown = [h for h in header if h not in SHEET_COLUMNS]
     if unknown:
-        sheet.problems.append((lines[0][0], "unknown column(s) " + ", ".join(repr(h) for h in unknown)
-                               + "; the columns are " + ", ".join(SHEET_COLUMNS)))
+        sheet.problems.append(
+            (
+                lines[0][0],
+                "unknown column(s) " + ", ".join(repr(h) for h in unknown) + "; the columns are " + ", ".join(SHEET_COLUMNS),
+            )
+        )
     if len(set(header)) != len(header):
         sheet.problems.append((lines[0][0], "a column name appears twice in the header"))
     if not {"initial_ml", "final_ml"} <= set(header):
@@ -100,23 +113,50 @@ def write_run(run: Mapping[str, Any], batch: Mapping[str, Any]) -> str:
     """One run as a replicate sheet (re-importable) followed by its computed molarities, as CSV text."""
     out = io.StringIO()
     current = run["current"]
-    out.write(f"# stockroom run {run['id']} of batch {batch['code']} ({batch['reagent']}, "
-              f"nominal {batch['nominal_molarity']} mol/L)\n")
+    out.write(
+        f"# stockroom run {run['id']} of batch {batch['code']} ({batch['reagent']}, nominal {batch['nominal_molarity']} mol/L)\n"
+    )
     out.write(f"# {run['purpose']} / {run['method']} on {run['performed_on']} by {run['analyst']}\n")
-    out.write(f"# result: {current['molarity']:.6f} mol/L, U = {current['expanded_u']:.6f} mol/L "
-              f"(k = {current['k']:g}), n = {current['n']}, at 20 °C\n")
+    out.write(
+        f"# result: {current['molarity']:.6f} mol/L, U = {current['expanded_u']:.6f} mol/L "
+        f"(k = {current['k']:g}), n = {current['n']}, at 20 °C\n"
+    )
     w = csv.writer(out, lineterminator="\n")
     w.writerow([*SHEET_COLUMNS, "molarity_mol_l"])
     excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
     for rep in run["replicates"]:
-        w.writerow([rep["position"], *(_fmt(rep.get(c)) for c in NUMERIC_COLUMNS),
-                    excluded.get(rep["position"], ""), _fmt(rep["molarity"])])
+        w.writerow(
+            [
+                rep["position"],
+                *(_fmt(rep.get(c)) for c in NUMERIC_COLUMNS),
+                excluded.get(rep["position"], ""),
+                _fmt(rep["molarity"]),
+            ]
+        )
     return out.getvalue()
 
 
-HISTORY_COLUMNS = ("batch", "reagent", "nominal_mol_l", "run_id", "purpose", "method", "performed_on", "analyst",
-                   "standard_or_reference", "n", "molarity_mol_l", "U_mol_l", "k", "rsd_percent", "decision",
-                   "decision_reason", "released_on", "expires_on", "superseded")
+HISTORY_COLUMNS = (
+    "batch",
+    "reagent",
+    "nominal_mol_l",
+    "run_id",
+    "purpose",
+    "method",
+    "performed_on",
+    "analyst",
+    "standard_or_reference",
+    "n",
+    "molarity_mol_l",
+    "U_mol_l",
+    "k",
+    "rsd_percent",
+    "decision",
+    "decision_reason",
+    "released_on",
+    "expires_on",
+    "superseded",
+)
 
 
 def write_history(batch: Mapping[str, Any], history: Mapping[str, Any]) -> str:
@@ -128,19 +168,55 @@ def write_history(batch: Mapping[str, Any], history: Mapping[str, Any]) -> str:
     for run in history["runs"]:
         cur = run["current"] or {}
         rel = releases.get(run["id"])
-        source = (run["lot"]["code"] if run.get("lot") else (run["reference"]["code"] if run.get("reference") else ""))
+        source = run["lot"]["code"] if run.get("lot") else (run["reference"]["code"] if run.get("reference") else "")
         decision = run["decision"] or {}
-        w.writerow([
-            batch["code"], batch["reagent"], _fmt(batch["nominal_molarity"]), run["id"], run["purpose"],
-            run["method"], run["performed_on"], run["analyst"], source, _fmt(cur.get("n")),
-            _fmt(cur.get("molarity")), _fmt(cur.get("expanded_u")), _fmt(cur.get("k")),
-            _fmt(cur["rsd"] * 100 if cur.get("rsd") is not None else None), decision.get("decision", ""),
-            decision.get("reason", ""), rel["released_on"] if rel else "", rel["expires_on"] if rel else "",
-            ("yes" if rel["superseded"] else "no") if rel else "",
-        ])
+        w.writerow(
+            [
+                batch["code"],
+                batch["reagent"],
+                _fmt(batch["nominal_molarity"]),
+                run["id"],
+                run["purpose"],
+                run["method"],
+                run["performed_on"],
+                run["analyst"],
+                source,
+                _fmt(cur.get("n")),
+                _fmt(cur.get("molarity")),
+                _fmt(cur.get("expanded_u")),
+                _fmt(cur.get("k")),
+                _fmt(cur["rsd"] * 100 if cur.get("rsd") is not None else None),
+                decision.get("decision", ""),
+                decision.get("reason", ""),
+                rel["released_on"] if rel else "",
+                rel["expires_on"] if rel else "",
+                ("yes" if rel["superseded"] else "no") if rel else "",
+            ]
+        )
     for wd in history["withdrawals"]:
-        w.writerow([batch["code"], batch["reagent"], _fmt(batch["nominal_molarity"]), "", "withdrawal", "",
-                    wd["withdrawn_on"], wd["recorded_by"], "", "", "", "", "", "", "", wd["reason"], "", "", ""])
+        w.writerow(
+            [
+                batch["code"],
+                batch["reagent"],
+                _fmt(batch["nominal_molarity"]),
+                "",
+                "withdrawal",
+                "",
+                wd["withdrawn_on"],
+                wd["recorded_by"],
+                "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                "",
+                wd["reason"],
+                "",
+                "",
+                "",
+            ]
+        )
     return out.getvalue()
 
 

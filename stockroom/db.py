@@ -62,9 +62,7 @@ def schema_version(db: sqlite_utils.Database) -> int:
     """Number of stockroom migrations applied to this database."""
     if not db["_sqlite_migrations"].exists():
         return 0
-    row = db.execute(
-        "SELECT count(*) FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATIONS.name]
-    ).fetchone()
+    row = db.execute("SELECT count(*) FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATIONS.name]).fetchone()
     return int(row[0])
 
 

@@ -48,31 +48,39 @@ def build_demo(path: str, today: dt.date | None = None, password: str | None = N
             values["prepared_on"] = day(b["prepared_day"])
             batches[b["key"]] = records.create_batch(conn, values, "demo-loader")
         # Runs in date order across batches, so a reference is released before it is used.
-        runs = sorted(((r["day"], b["key"], r) for b in scenario["batches"] for r in b["runs"]),
-                      key=lambda t: t[0])
+        runs = sorted(((r["day"], b["key"], r) for b in scenario["batches"] for r in b["runs"]), key=lambda t: t[0])
         for run_day, key, r in runs:
             batch = batches[key]
-            meta = {"purpose": r["purpose"], "performed_on": day(run_day), "analyst": r["analyst"],
-                    "endpoint": r.get("endpoint", ""), "burette_capacity_ml": r.get("burette_capacity_ml", 50.0),
-                    "notes": r.get("notes", "")}
+            meta = {
+                "purpose": r["purpose"],
+                "performed_on": day(run_day),
+                "analyst": r["analyst"],
+                "endpoint": r.get("endpoint", ""),
+                "burette_capacity_ml": r.get("burette_capacity_ml", 50.0),
+                "notes": r.get("notes", ""),
+            }
             reps = [_replicate(x) for x in r["replicates"]]
             excluded = {e["position"]: e["reason"] for e in r.get("exclusions", [])}
             actor = _username(scenario["users"], r["analyst"])
             if r.get("method") == "secondary":
-                run_id, _ = workflow.record_secondary_run(conn, config, batch, batches[r["reference"]], meta,
-                                                          reps, actor, excluded)
+                run_id, _ = workflow.record_secondary_run(
+                    conn, config, batch, batches[r["reference"]], meta, reps, actor, excluded
+                )
             else:
-                run_id, _ = workflow.record_primary_run(conn, config, batch, lots[r["lot"]], meta, reps, actor,
-                                                        excluded)
+                run_id, _ = workflow.record_primary_run(conn, config, batch, lots[r["lot"]], meta, reps, actor, excluded)
             if r.get("decision") == "accept":
                 workflow.accept(conn, run_id, actor)
             elif r.get("decision") == "reject":
                 workflow.reject(conn, run_id, r["reason"], actor)
         for b in scenario["batches"]:
             if "withdrawn" in b:
-                records.withdraw_batch(conn, batches[b["key"]]["id"],
-                                       dt.date.fromisoformat(day(b["withdrawn"]["day"])),
-                                       b["withdrawn"]["reason"], "okafor")
+                records.withdraw_batch(
+                    conn,
+                    batches[b["key"]]["id"],
+                    dt.date.fromisoformat(day(b["withdrawn"]["day"])),
+                    b["withdrawn"]["reason"],
+                    "okafor",
+                )
         lines.append(f"{len(batches)} batches, {len(lots)} standard lots, {len(runs)} runs")
     finally:
         conn.close()

@@ -252,8 +252,9 @@ def _usable(points: Sequence[Point]) -> tuple[list[Point], list[str]]:
     return good, notes
 
 
-def fit_line(points: Sequence[Point], origin: dt.date, confidence: float = CONFIDENCE,
-             alpha: float = SIGNIFICANCE) -> tuple[Fit | None, str | None]:
+def fit_line(
+    points: Sequence[Point], origin: dt.date, confidence: float = CONFIDENCE, alpha: float = SIGNIFICANCE
+) -> tuple[Fit | None, str | None]:
     """Weighted least-squares line of molarity against days since `origin`, or None with the reason.
 
     points: standardizations (mol/L, u in mol/L); origin: date of t = 0; confidence, alpha: fractions.
@@ -263,8 +264,10 @@ def fit_line(points: Sequence[Point], origin: dt.date, confidence: float = CONFI
     good, notes = _usable(points)
     n = len(good)
     if n < MIN_POINTS:
-        why = (f"{n} standardization{'' if n == 1 else 's'} so far; a trend needs at least {MIN_POINTS} "
-               "(the release and two re-checks)")
+        why = (
+            f"{n} standardization{'' if n == 1 else 's'} so far; a trend needs at least {MIN_POINTS} "
+            "(the release and two re-checks)"
+        )
         return None, "; ".join([why, *notes])
     t = [float((p.on - origin).days) for p in good]
     y = [p.molarity for p in good]
@@ -281,7 +284,7 @@ def fit_line(points: Sequence[Point], origin: dt.date, confidence: float = CONFI
     dof = n - 2
     chi2 = math.fsum(wi * (yi - a - b * ti) ** 2 for wi, ti, yi in zip(w, t, y, strict=True))
     s2 = chi2 / dof
-    abs_cov = ((1.0 / S + t_mean ** 2 / stt, -t_mean / stt), (-t_mean / stt, 1.0 / stt))
+    abs_cov = ((1.0 / S + t_mean**2 / stt, -t_mean / stt), (-t_mean / stt, 1.0 / stt))
     cov = tuple(tuple(s2 * c for c in row) for row in abs_cov)
     se_b = math.sqrt(cov[1][1])
     if se_b > 0:
@@ -292,10 +295,23 @@ def fit_line(points: Sequence[Point], origin: dt.date, confidence: float = CONFI
         t_stat = math.copysign(math.inf, b) if b else 0.0
         p_value = 0.0 if b else 1.0
     fit = Fit(
-        origin=origin, last_on=max(p.on for p in good), n=n, intercept=a, slope=b,
+        origin=origin,
+        last_on=max(p.on for p in good),
+        n=n,
+        intercept=a,
+        slope=b,
         cov=cov,  # type: ignore[arg-type]
-        cov_absolute=abs_cov, s2=s2, dof=dof, t_crit=_t_crit(confidence, dof),
-        t_stat=t_stat, p_value=p_value, confidence=confidence, alpha=alpha, sum_w=S, t_mean=t_mean, stt=stt,
+        cov_absolute=abs_cov,
+        s2=s2,
+        dof=dof,
+        t_crit=_t_crit(confidence, dof),
+        t_stat=t_stat,
+        p_value=p_value,
+        confidence=confidence,
+        alpha=alpha,
+        sum_w=S,
+        t_mean=t_mean,
+        stt=stt,
         w_new=S / n,
     )
     return fit, ("; ".join(notes) or None)
@@ -308,15 +324,15 @@ def interval_at(fit: Fit, t_days: float) -> tuple[float, float, float]:
     """
     line_var = 1.0 / fit.sum_w + (t_days - fit.t_mean) ** 2 / fit.stt
     s = math.sqrt(fit.s2)
-    return (fit.value_at(t_days), fit.t_crit * s * math.sqrt(1.0 / fit.w_new + line_var),
-            fit.t_crit * s * math.sqrt(line_var))
+    return (fit.value_at(t_days), fit.t_crit * s * math.sqrt(1.0 / fit.w_new + line_var), fit.t_crit * s * math.sqrt(line_var))
 
 
 def predict(fit: Fit, on: dt.date) -> Prediction:
     """The fitted molarity on a date with its prediction and confidence intervals (mol/L)."""
     y0, pi, ci = interval_at(fit, float(fit.days(on)))
-    return Prediction(on=on, molarity=y0, pi_low=y0 - pi, pi_high=y0 + pi, ci_low=y0 - ci, ci_high=y0 + ci,
-                      confidence=fit.confidence)
+    return Prediction(
+        on=on, molarity=y0, pi_low=y0 - pi, pi_high=y0 + pi, ci_low=y0 - ci, ci_high=y0 + ci, confidence=fit.confidence
+    )
 
 
 def crossing(fit: Fit, band: Band) -> dt.date | None:
@@ -356,9 +372,16 @@ def _pct(x: float, digits: int = 2) -> str:
     return f"{x * 100:+.{digits}f} %"
 
 
-def assess(points: Sequence[Point], band: Band, released_on: dt.date, expires_on: dt.date,
-           recheck_interval_days: int, on: dt.date, confidence: float = CONFIDENCE,
-           alpha: float = SIGNIFICANCE) -> DriftReport:
+def assess(
+    points: Sequence[Point],
+    band: Band,
+    released_on: dt.date,
+    expires_on: dt.date,
+    recheck_interval_days: int,
+    on: dt.date,
+    confidence: float = CONFIDENCE,
+    alpha: float = SIGNIFICANCE,
+) -> DriftReport:
     """The drift of one release as known on `on`: fit of its points up to that date, forecast, flags.
 
     points: the release's certified value and re-checks (later points are ignored); band: tolerance
@@ -383,30 +406,54 @@ def assess(points: Sequence[Point], band: Band, released_on: dt.date, expires_on
     else:
         measured_out = last is not None and not band.contains(last.molarity)
         if last is not None and measured_out:
-            flags.append(Flag(
-                FlagKind.RECHECK_OUTSIDE,
-                f"re-check on {last.on.isoformat()} differs from the certified value by "
-                f"{_pct(band.deviation(last.molarity))} ({tol})", last.on))
+            flags.append(
+                Flag(
+                    FlagKind.RECHECK_OUTSIDE,
+                    f"re-check on {last.on.isoformat()} differs from the certified value by "
+                    f"{_pct(band.deviation(last.molarity))} ({tol})",
+                    last.on,
+                )
+            )
         # A re-check already outside says it plainly; a forecast from the line would add nothing.
         if trending and fit is not None and prediction is not None and not measured_out:
-            trend = (f"{_pct(fit.slope_per_period / band.certified, 3)} per 30 days, {fit.n} standardizations, "
-                     f"p = {fit.p_value:.2g}")
+            trend = (
+                f"{_pct(fit.slope_per_period / band.certified, 3)} per 30 days, {fit.n} standardizations, p = {fit.p_value:.2g}"
+            )
             if on > fit.last_on and not band.contains(prediction.molarity):
                 since = f"outside the band since {first_out.isoformat()}" if first_out else "outside the band"
-                flags.append(Flag(
-                    FlagKind.PREDICTED_OUTSIDE,
-                    f"predicted {prediction.molarity:.5f} mol/L on {on.isoformat()} "
-                    f"({_pct(band.deviation(prediction.molarity))}, {tol}): {since} on a trend of {trend}",
-                    first_out))
+                flags.append(
+                    Flag(
+                        FlagKind.PREDICTED_OUTSIDE,
+                        f"predicted {prediction.molarity:.5f} mol/L on {on.isoformat()} "
+                        f"({_pct(band.deviation(prediction.molarity))}, {tol}): {since} on a trend of {trend}",
+                        first_out,
+                    )
+                )
             elif forecast is not None and on < forecast <= expires_on:
-                flags.append(Flag(FlagKind.EXPECTED_TO_LEAVE,
-                                  f"expected to leave tolerance on {forecast.isoformat()} (trend {trend})", forecast))
+                flags.append(
+                    Flag(
+                        FlagKind.EXPECTED_TO_LEAVE,
+                        f"expected to leave tolerance on {forecast.isoformat()} (trend {trend})",
+                        forecast,
+                    )
+                )
         if on >= due and due < expires_on:
             overdue = (on - due).days
             if overdue == 0:
                 flags.append(Flag(FlagKind.RECHECK_DUE, "re-check due today", due))
             else:
                 flags.append(Flag(FlagKind.RECHECK_OVERDUE, f"re-check overdue by {overdue} day(s)", due))
-    return DriftReport(on=on, released_on=released_on, expires_on=expires_on, band=band, points=known, fit=fit,
-                       fit_note=fit_note, prediction=prediction, crossing=first_out, forecast=forecast,
-                       next_check_due=due, flags=tuple(flags))
+    return DriftReport(
+        on=on,
+        released_on=released_on,
+        expires_on=expires_on,
+        band=band,
+        points=known,
+        fit=fit,
+        fit_note=fit_note,
+        prediction=prediction,
+        crossing=first_out,
+        forecast=forecast,
+        next_check_due=due,
+        flags=tuple(flags),
+    )

@@ -84,11 +84,10 @@ PRECAUTION_TEXT: dict[str, str] = {
     "P301+P312": "IF SWALLOWED: Call a POISON CENTER/doctor if you feel unwell.",
     "P301+P330+P331": "IF SWALLOWED: Rinse mouth. Do NOT induce vomiting.",
     "P302+P352": "IF ON SKIN: Wash with plenty of water.",
-    "P303+P361+P353": "IF ON SKIN (or hair): Take off immediately all contaminated clothing. Rinse skin with "
-                      "water [or shower].",
+    "P303+P361+P353": "IF ON SKIN (or hair): Take off immediately all contaminated clothing. Rinse skin with water [or shower].",
     "P304+P340": "IF INHALED: Remove person to fresh air and keep comfortable for breathing.",
     "P305+P351+P338": "IF IN EYES: Rinse cautiously with water for several minutes. Remove contact lenses, if "
-                      "present and easy to do. Continue rinsing.",
+    "present and easy to do. Continue rinsing.",
     "P310": "Immediately call a POISON CENTER/doctor.",
     "P312": "Call a POISON CENTER/doctor if you feel unwell.",
     "P332+P313": "If skin irritation occurs: Get medical advice/attention.",
@@ -119,19 +118,44 @@ DRAWN: tuple[str, ...] = ("GHS02", "GHS03", "GHS05", "GHS07")
 # The pictogram and signal word each hazard statement carries (GHS Annex 1 allocation, from memory —
 # verify). None: the statement carries no pictogram or no signal word of its own.
 IMPLIED: dict[str, tuple[str | None, str | None]] = {
-    "H225": ("GHS02", DANGER), "H226": ("GHS02", WARNING),
-    "H270": ("GHS03", DANGER), "H271": ("GHS03", DANGER), "H272": ("GHS03", WARNING),
-    "H290": ("GHS05", WARNING), "H314": ("GHS05", DANGER), "H318": ("GHS05", DANGER),
-    "H300": ("GHS06", DANGER), "H301": ("GHS06", DANGER), "H310": ("GHS06", DANGER),
-    "H311": ("GHS06", DANGER), "H330": ("GHS06", DANGER), "H331": ("GHS06", DANGER),
-    "H302": ("GHS07", WARNING), "H312": ("GHS07", WARNING), "H332": ("GHS07", WARNING),
-    "H315": ("GHS07", WARNING), "H317": ("GHS07", WARNING), "H319": ("GHS07", WARNING),
-    "H335": ("GHS07", WARNING), "H336": ("GHS07", WARNING),
-    "H304": ("GHS08", DANGER), "H334": ("GHS08", DANGER), "H340": ("GHS08", DANGER),
-    "H350": ("GHS08", DANGER), "H360": ("GHS08", DANGER), "H370": ("GHS08", DANGER),
-    "H372": ("GHS08", DANGER), "H341": ("GHS08", WARNING), "H351": ("GHS08", WARNING),
-    "H361": ("GHS08", WARNING), "H371": ("GHS08", WARNING), "H373": ("GHS08", WARNING),
-    "H400": ("GHS09", WARNING), "H410": ("GHS09", WARNING), "H411": ("GHS09", None), "H412": (None, None),
+    "H225": ("GHS02", DANGER),
+    "H226": ("GHS02", WARNING),
+    "H270": ("GHS03", DANGER),
+    "H271": ("GHS03", DANGER),
+    "H272": ("GHS03", WARNING),
+    "H290": ("GHS05", WARNING),
+    "H314": ("GHS05", DANGER),
+    "H318": ("GHS05", DANGER),
+    "H300": ("GHS06", DANGER),
+    "H301": ("GHS06", DANGER),
+    "H310": ("GHS06", DANGER),
+    "H311": ("GHS06", DANGER),
+    "H330": ("GHS06", DANGER),
+    "H331": ("GHS06", DANGER),
+    "H302": ("GHS07", WARNING),
+    "H312": ("GHS07", WARNING),
+    "H332": ("GHS07", WARNING),
+    "H315": ("GHS07", WARNING),
+    "H317": ("GHS07", WARNING),
+    "H319": ("GHS07", WARNING),
+    "H335": ("GHS07", WARNING),
+    "H336": ("GHS07", WARNING),
+    "H304": ("GHS08", DANGER),
+    "H334": ("GHS08", DANGER),
+    "H340": ("GHS08", DANGER),
+    "H350": ("GHS08", DANGER),
+    "H360": ("GHS08", DANGER),
+    "H370": ("GHS08", DANGER),
+    "H372": ("GHS08", DANGER),
+    "H341": ("GHS08", WARNING),
+    "H351": ("GHS08", WARNING),
+    "H361": ("GHS08", WARNING),
+    "H371": ("GHS08", WARNING),
+    "H373": ("GHS08", WARNING),
+    "H400": ("GHS09", WARNING),
+    "H410": ("GHS09", WARNING),
+    "H411": ("GHS09", None),
+    "H412": (None, None),
     "EUH071": (None, None),
 }
 
@@ -226,8 +250,7 @@ def _covered(row: Classification, others: Sequence[Classification]) -> bool:
     point = row.min_molarity
     end = row.max_molarity if row.max_molarity is not None else float("inf")
     while point < end:
-        reach = [o.max_molarity if o.max_molarity is not None else float("inf")
-                 for o in others if o.covers(point)]
+        reach = [o.max_molarity if o.max_molarity is not None else float("inf") for o in others if o.covers(point)]
         if not reach:
             return False
         point = max(reach)
@@ -240,21 +263,22 @@ def label_elements(c: Classification) -> LabelElements:
     H318 is left out beside H314 (serious eye damage is part of H314); the exclamation mark is left out
     where a stronger pictogram covers the only statements it would stand for.
     """
-    h = tuple(code for code in statement_order(c.hazard_statements)
-              if not (code == "H318" and "H314" in c.hazard_statements))
+    h = tuple(code for code in statement_order(c.hazard_statements) if not (code == "H318" and "H314" in c.hazard_statements))
     pictograms = tuple(p for p in _order_pictograms(c.pictograms) if not (p == "GHS07" and _ghs07_redundant(c.pictograms, h)))
     return LabelElements(
         signal_word=c.signal_word,
         pictograms=pictograms,
         hazard_statements=tuple((code, HAZARD_TEXT.get(code, "")) for code in h),
-        precautionary_statements=tuple((code, PRECAUTION_TEXT.get(code, ""))
-                                       for code in statement_order(c.precautionary_statements)),
+        precautionary_statements=tuple(
+            (code, PRECAUTION_TEXT.get(code, "")) for code in statement_order(c.precautionary_statements)
+        ),
         classification=c,
     )
 
 
 def statement_order(codes: Iterable[str]) -> tuple[str, ...]:
     """Codes in the order labels list them: by number (P2xx prevention before P3xx response...), EUH last."""
+
     def key(code: str) -> tuple[int, tuple[int, ...]]:
         return (1 if code.startswith("EUH") else 0, tuple(int(n) for n in re.findall(r"\d+", code)))
 
@@ -311,9 +335,15 @@ def split_codes(text: str) -> list[str]:
     return [part for part in re.split(r"[\s,;]+", cleaned) if part]
 
 
-def check(reagent: str, min_molarity: float, max_molarity: float | None, signal_word: str,
-          pictograms: Sequence[str], hazard_statements: Sequence[str],
-          precautionary_statements: Sequence[str]) -> list[FieldError]:
+def check(
+    reagent: str,
+    min_molarity: float,
+    max_molarity: float | None,
+    signal_word: str,
+    pictograms: Sequence[str],
+    hazard_statements: Sequence[str],
+    precautionary_statements: Sequence[str],
+) -> list[FieldError]:
     """Every rule a proposed classification breaks, as FieldErrors named after the admin form's fields.
 
     Concentrations in mol/L; codes as typed (see split_codes). Empty list when the entry is consistent:
@@ -327,17 +357,24 @@ def check(reagent: str, min_molarity: float, max_molarity: float | None, signal_
         errors.append(FieldError("min_molarity", "must be 0 mol/L or more"))
     if max_molarity is not None:
         if max_molarity <= min_molarity:
-            errors.append(FieldError("max_molarity", f"must be above the lower limit ({min_molarity:g} mol/L), "
-                                                     "or blank for no upper limit"))
+            errors.append(
+                FieldError("max_molarity", f"must be above the lower limit ({min_molarity:g} mol/L), or blank for no upper limit")
+            )
         elif max_molarity > MAX_MOLARITY:
-            errors.append(FieldError("max_molarity", f"must be at most {MAX_MOLARITY:g} mol/L (or blank): check "
-                                                     "the unit"))
+            errors.append(FieldError("max_molarity", f"must be at most {MAX_MOLARITY:g} mol/L (or blank): check the unit"))
     if min_molarity > MAX_MOLARITY:
         errors.append(FieldError("min_molarity", f"must be at most {MAX_MOLARITY:g} mol/L: check the unit"))
-    h_ok = _check_codes(errors, "hazard_statements", hazard_statements, _H_CODE, HAZARD_TEXT,
-                        "H followed by three digits, e.g. H290 (or EUH071)")
-    _check_codes(errors, "precautionary_statements", precautionary_statements, _P_CODE, PRECAUTION_TEXT,
-                 "P followed by three digits, combinations joined by +, e.g. P305+P351+P338")
+    h_ok = _check_codes(
+        errors, "hazard_statements", hazard_statements, _H_CODE, HAZARD_TEXT, "H followed by three digits, e.g. H290 (or EUH071)"
+    )
+    _check_codes(
+        errors,
+        "precautionary_statements",
+        precautionary_statements,
+        _P_CODE,
+        PRECAUTION_TEXT,
+        "P followed by three digits, combinations joined by +, e.g. P305+P351+P338",
+    )
     bad_pictograms = [p for p in pictograms if p not in DRAWN]
     if bad_pictograms:
         known = ", ".join(f"{code} ({PICTOGRAMS[code]})" for code in DRAWN)
@@ -345,40 +382,54 @@ def check(reagent: str, min_molarity: float, max_molarity: float | None, signal_
     if signal_word not in SIGNAL_WORDS:
         errors.append(FieldError("signal_word", "must be Danger, Warning or none"))
     if "H318" in hazard_statements and "H314" in hazard_statements:
-        errors.append(FieldError("hazard_statements", "leave out H318: serious eye damage is part of H314, and "
-                                                      "H318 is not printed beside it"))
+        errors.append(
+            FieldError(
+                "hazard_statements", "leave out H318: serious eye damage is part of H314, and H318 is not printed beside it"
+            )
+        )
     if not h_ok or bad_pictograms or signal_word not in SIGNAL_WORDS:
         return errors
     word, needed = implied_elements(hazard_statements)
     if signal_word != word:
         want = word or "none"
-        errors.append(FieldError("signal_word", f"the hazard statements given call for {want!s}"
-                                                f"{'' if word else ' (no signal word)'}"))
+        errors.append(
+            FieldError("signal_word", f"the hazard statements given call for {want!s}{'' if word else ' (no signal word)'}")
+        )
     missing = [p for p in needed if p not in pictograms]
     extra = [p for p in pictograms if p not in needed]
     if missing:
-        errors.append(FieldError("pictograms", "the hazard statements need " + ", ".join(
-            f"{p} ({PICTOGRAMS[p]})" for p in missing)))
+        errors.append(
+            FieldError("pictograms", "the hazard statements need " + ", ".join(f"{p} ({PICTOGRAMS[p]})" for p in missing))
+        )
     elif extra:
-        errors.append(FieldError("pictograms", ", ".join(f"{p} ({PICTOGRAMS[p]})" for p in extra)
-                                 + " is not called for by the hazard statements given (or yields to a stronger "
-                                   "pictogram)"))
+        errors.append(
+            FieldError(
+                "pictograms",
+                ", ".join(f"{p} ({PICTOGRAMS[p]})" for p in extra)
+                + " is not called for by the hazard statements given (or yields to a stronger "
+                "pictogram)",
+            )
+        )
     if hazard_statements and not precautionary_statements:
-        errors.append(FieldError("precautionary_statements", "give the precautionary statements of the safety "
-                                                             "data sheet"))
+        errors.append(FieldError("precautionary_statements", "give the precautionary statements of the safety data sheet"))
     return errors
 
 
-def _check_codes(errors: list[FieldError], field: str, codes: Sequence[str], pattern: re.Pattern[str],
-                 known: dict[str, str], shape: str) -> bool:
+def _check_codes(
+    errors: list[FieldError], field: str, codes: Sequence[str], pattern: re.Pattern[str], known: dict[str, str], shape: str
+) -> bool:
     malformed = [c for c in codes if not pattern.fullmatch(c)]
     if malformed:
         errors.append(FieldError(field, f"{', '.join(malformed[:5])}: write each code as {shape}"))
         return False
     unknown = [c for c in codes if c not in known]
     if unknown:
-        errors.append(FieldError(field, f"{', '.join(unknown[:5])}: well formed, but stockroom has no text for it; "
-                                        "use a code from the list on this page"))
+        errors.append(
+            FieldError(
+                field,
+                f"{', '.join(unknown[:5])}: well formed, but stockroom has no text for it; use a code from the list on this page",
+            )
+        )
         return False
     repeated = sorted({c for c in codes if list(codes).count(c) > 1})
     if repeated:
@@ -389,15 +440,16 @@ def _check_codes(errors: list[FieldError], field: str, codes: Sequence[str], pat
 
 # ---------------------------------------------------------------- starting classifications
 
-_SDS_NOTE = ("Typical values from memory, not from one supplier: verify against the supplier's safety data "
-             "sheet and CLP Annex VI before use. ")
+_SDS_NOTE = (
+    "Typical values from memory, not from one supplier: verify against the supplier's safety data "
+    "sheet and CLP Annex VI before use. "
+)
 _H290_P = ("P234", "P390")
 _IRRITANT_P = ("P234", "P280", "P302+P352", "P305+P351+P338", "P337+P313")
 _CORROSIVE_P = ("P234", "P280", "P303+P361+P353", "P305+P351+P338", "P310")
 
 
-def _row(reagent: str, lo: float, hi: float | None, h: tuple[str, ...], p: tuple[str, ...], note: str
-         ) -> Classification:
+def _row(reagent: str, lo: float, hi: float | None, h: tuple[str, ...], p: tuple[str, ...], note: str) -> Classification:
     word, pictograms = implied_elements(h)
     return Classification(reagent, lo, hi, word, pictograms, h, p, _SDS_NOTE + note)
 
@@ -406,32 +458,87 @@ def _row(reagent: str, lo: float, hi: float | None, h: tuple[str, ...], p: tuple
 # rounded down, so a solution at a limit always gets the stronger band.
 # H290 (corrosive to metals) is suppliers' self-classification of dilute acids and bases, not Annex VI.
 DEFAULT_CLASSIFICATIONS: tuple[Classification, ...] = (
-    _row("NaOH", 0.0, 0.125, ("H290",), _H290_P, "Below 0.5 % w/w (about 0.125 mol/L): many suppliers give "
-         "H290 only."),
-    _row("NaOH", 0.125, 0.5, ("H290", "H315", "H319"), _IRRITANT_P, "CLP Annex VI specific limits: Skin "
-         "Irrit. 2 and Eye Irrit. 2 from 0.5 % to under 2 % w/w (about 0.125 to 0.5 mol/L)."),
-    _row("NaOH", 0.5, None, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1B from 2 % w/w (about "
-         "0.5 mol/L), 1A from 5 %."),
+    _row("NaOH", 0.0, 0.125, ("H290",), _H290_P, "Below 0.5 % w/w (about 0.125 mol/L): many suppliers give H290 only."),
+    _row(
+        "NaOH",
+        0.125,
+        0.5,
+        ("H290", "H315", "H319"),
+        _IRRITANT_P,
+        "CLP Annex VI specific limits: Skin Irrit. 2 and Eye Irrit. 2 from 0.5 % to under 2 % w/w (about 0.125 to 0.5 mol/L).",
+    ),
+    _row(
+        "NaOH",
+        0.5,
+        None,
+        ("H290", "H314"),
+        _CORROSIVE_P,
+        "CLP Annex VI: Skin Corr. 1B from 2 % w/w (about 0.5 mol/L), 1A from 5 %.",
+    ),
     _row("KOH", 0.0, 0.085, ("H290",), _H290_P, "Below 0.5 % w/w (about 0.09 mol/L): H290 only."),
-    _row("KOH", 0.085, 0.36, ("H290", "H315", "H319"), _IRRITANT_P, "CLP Annex VI specific limits: Skin Irrit. 2 "
-         "and Eye Irrit. 2 from 0.5 % to under 2 % w/w (about 0.09 to 0.36 mol/L)."),
-    _row("KOH", 0.36, 3.0, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1B from 2 % w/w (about "
-         "0.36 mol/L). Above about 3 mol/L acute oral toxicity (H302) may apply: not entered, so no label "
-         "prints there until an administrator adds it."),
-    _row("HCl", 0.0, 2.85, ("H290",), _H290_P, "Below 10 % w/w (about 2.9 mol/L) no Annex VI health class; "
-         "0.1-1 mol/L solutions usually H290 only, though some suppliers add H315/H319/H335 at 1 mol/L."),
-    _row("HCl", 2.85, 7.7, ("H290", "H315", "H319", "H335"), _IRRITANT_P + ("P261",), "CLP Annex VI: Skin "
-         "Irrit. 2, Eye Irrit. 2, STOT SE 3 from 10 % to under 25 % w/w (about 2.9 to 7.7 mol/L)."),
-    _row("HCl", 7.7, None, ("H290", "H314", "H335"), _CORROSIVE_P + ("P261",), "CLP Annex VI: Skin Corr. 1B "
-         "from 25 % w/w (about 7.7 mol/L); STOT SE 3 from 10 %. Concentrated acid about 37 % (12 mol/L)."),
-    _row("H2SO4", 0.0, 0.5, ("H290",), _H290_P, "Below 5 % w/w (about 0.5 mol/L) no Annex VI health class; "
-         "H290 only."),
-    _row("H2SO4", 0.5, 1.65, ("H290", "H315", "H319"), _IRRITANT_P, "CLP Annex VI specific limits: Skin Irrit. 2 "
-         "and Eye Irrit. 2 from 5 % to under 15 % w/w (about 0.5 to 1.7 mol/L)."),
-    _row("H2SO4", 1.65, None, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1A from 15 % w/w (about "
-         "1.7 mol/L)."),
+    _row(
+        "KOH",
+        0.085,
+        0.36,
+        ("H290", "H315", "H319"),
+        _IRRITANT_P,
+        "CLP Annex VI specific limits: Skin Irrit. 2 and Eye Irrit. 2 from 0.5 % to under 2 % w/w (about 0.09 to 0.36 mol/L).",
+    ),
+    _row(
+        "KOH",
+        0.36,
+        3.0,
+        ("H290", "H314"),
+        _CORROSIVE_P,
+        "CLP Annex VI: Skin Corr. 1B from 2 % w/w (about "
+        "0.36 mol/L). Above about 3 mol/L acute oral toxicity (H302) may apply: not entered, so no label "
+        "prints there until an administrator adds it.",
+    ),
+    _row(
+        "HCl",
+        0.0,
+        2.85,
+        ("H290",),
+        _H290_P,
+        "Below 10 % w/w (about 2.9 mol/L) no Annex VI health class; "
+        "0.1-1 mol/L solutions usually H290 only, though some suppliers add H315/H319/H335 at 1 mol/L.",
+    ),
+    _row(
+        "HCl",
+        2.85,
+        7.7,
+        ("H290", "H315", "H319", "H335"),
+        _IRRITANT_P + ("P261",),
+        "CLP Annex VI: Skin Irrit. 2, Eye Irrit. 2, STOT SE 3 from 10 % to under 25 % w/w (about 2.9 to 7.7 mol/L).",
+    ),
+    _row(
+        "HCl",
+        7.7,
+        None,
+        ("H290", "H314", "H335"),
+        _CORROSIVE_P + ("P261",),
+        "CLP Annex VI: Skin Corr. 1B "
+        "from 25 % w/w (about 7.7 mol/L); STOT SE 3 from 10 %. Concentrated acid about 37 % (12 mol/L).",
+    ),
+    _row("H2SO4", 0.0, 0.5, ("H290",), _H290_P, "Below 5 % w/w (about 0.5 mol/L) no Annex VI health class; H290 only."),
+    _row(
+        "H2SO4",
+        0.5,
+        1.65,
+        ("H290", "H315", "H319"),
+        _IRRITANT_P,
+        "CLP Annex VI specific limits: Skin Irrit. 2 and Eye Irrit. 2 from 5 % to under 15 % w/w (about 0.5 to 1.7 mol/L).",
+    ),
+    _row("H2SO4", 1.65, None, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1A from 15 % w/w (about 1.7 mol/L)."),
     _row("HNO3", 0.0, 0.8, ("H290",), _H290_P, "Below 5 % w/w (about 0.8 mol/L): H290 only."),
-    _row("HNO3", 0.8, 10.0, ("H290", "H314"), _CORROSIVE_P, "CLP Annex VI: Skin Corr. 1B from 5 % w/w (about "
-         "0.8 mol/L), 1A from 20 %. Stops at 10 mol/L: concentrated nitric acid is also an oxidiser (H272, "
-         "flame over circle) and toxic by inhalation; enter that band from its SDS before labelling it."),
+    _row(
+        "HNO3",
+        0.8,
+        10.0,
+        ("H290", "H314"),
+        _CORROSIVE_P,
+        "CLP Annex VI: Skin Corr. 1B from 5 % w/w (about "
+        "0.8 mol/L), 1A from 20 %. Stops at 10 mol/L: concentrated nitric acid is also an oxidiser (H272, "
+        "flame over circle) and toxic by inhalation; enter that band from its SDS before labelling it.",
+    ),
 )

@@ -84,12 +84,20 @@ class Calibration:
 
     @classmethod
     def from_row(cls, r: Mapping[str, Any]) -> Calibration:
-        return cls(id=int(r["id"]), instrument_id=int(r["instrument_id"]),
-                   calibrated_on=dt.date.fromisoformat(r["calibrated_on"]),
-                   next_due_on=dt.date.fromisoformat(r["next_due_on"]), outcome=r["outcome"],
-                   certificate_ref=r["certificate_ref"], calibrated_by=r["calibrated_by"] or "",
-                   tolerance=r["tolerance"], linearity_g=r["linearity_g"], notes=r["notes"] or "",
-                   recorded_at=r["recorded_at"], recorded_by=r["recorded_by"])
+        return cls(
+            id=int(r["id"]),
+            instrument_id=int(r["instrument_id"]),
+            calibrated_on=dt.date.fromisoformat(r["calibrated_on"]),
+            next_due_on=dt.date.fromisoformat(r["next_due_on"]),
+            outcome=r["outcome"],
+            certificate_ref=r["certificate_ref"],
+            calibrated_by=r["calibrated_by"] or "",
+            tolerance=r["tolerance"],
+            linearity_g=r["linearity_g"],
+            notes=r["notes"] or "",
+            recorded_at=r["recorded_at"],
+            recorded_by=r["recorded_by"],
+        )
 
 
 @dataclass(frozen=True)
@@ -116,11 +124,21 @@ class Instrument:
 
     @classmethod
     def from_row(cls, r: Mapping[str, Any], calibrations: Iterable[Calibration] = ()) -> Instrument:
-        return cls(id=int(r["id"]), code=r["code"], kind=r["kind"], capacity=float(r["capacity"]),
-                   accuracy_class=r["accuracy_class"] or "", tolerance=r["tolerance"], readability=r["readability"],
-                   linearity_g=r["linearity_g"], description=r["description"] or "", notes=r["notes"] or "",
-                   recorded_at=r["recorded_at"], recorded_by=r["recorded_by"],
-                   calibrations=tuple(sorted(calibrations, key=lambda c: (c.calibrated_on, c.id))))
+        return cls(
+            id=int(r["id"]),
+            code=r["code"],
+            kind=r["kind"],
+            capacity=float(r["capacity"]),
+            accuracy_class=r["accuracy_class"] or "",
+            tolerance=r["tolerance"],
+            readability=r["readability"],
+            linearity_g=r["linearity_g"],
+            description=r["description"] or "",
+            notes=r["notes"] or "",
+            recorded_at=r["recorded_at"],
+            recorded_by=r["recorded_by"],
+            calibrations=tuple(sorted(calibrations, key=lambda c: (c.calibrated_on, c.id))),
+        )
 
     @property
     def unit(self) -> str:
@@ -183,17 +201,31 @@ def standing(instrument: Instrument, on: dt.date) -> Standing:
     if cal is None:
         return Standing("never", f"no calibration on record by {on.isoformat()}", None, None, False)
     if cal.outcome != "pass":
-        return Standing("failed", f"failed its calibration of {cal.calibrated_on.isoformat()} "
-                        f"(certificate {cal.certificate_ref})", cal, cal.next_due_on, False)
+        return Standing(
+            "failed",
+            f"failed its calibration of {cal.calibrated_on.isoformat()} (certificate {cal.certificate_ref})",
+            cal,
+            cal.next_due_on,
+            False,
+        )
     days = (cal.next_due_on - on).days
     if days < 0:
-        return Standing("overdue", f"OVERDUE: calibration was due on {cal.next_due_on.isoformat()} "
-                        f"({-days} day{'s' if days != -1 else ''} ago)", cal, cal.next_due_on, False)
+        return Standing(
+            "overdue",
+            f"OVERDUE: calibration was due on {cal.next_due_on.isoformat()} ({-days} day{'s' if days != -1 else ''} ago)",
+            cal,
+            cal.next_due_on,
+            False,
+        )
     if days <= DUE_SOON_DAYS:
-        return Standing("due_soon", f"due on {cal.next_due_on.isoformat()} (in {days} day{'s' if days != 1 else ''})",
-                        cal, cal.next_due_on, True)
-    return Standing("in_calibration", f"in calibration until {cal.next_due_on.isoformat()}", cal, cal.next_due_on,
-                    True)
+        return Standing(
+            "due_soon",
+            f"due on {cal.next_due_on.isoformat()} (in {days} day{'s' if days != 1 else ''})",
+            cal,
+            cal.next_due_on,
+            True,
+        )
+    return Standing("in_calibration", f"in calibration until {cal.next_due_on.isoformat()}", cal, cal.next_due_on, True)
 
 
 def problem_for_release(instrument: Instrument, on: dt.date) -> str | None:
@@ -203,8 +235,10 @@ def problem_for_release(instrument: Instrument, on: dt.date) -> str | None:
         return None
     if s.state == "overdue":
         assert s.due_on is not None
-        return (f"{instrument.name} was past its calibration due date ({s.due_on.isoformat()}) when the run was made "
-                f"on {on.isoformat()}")
+        return (
+            f"{instrument.name} was past its calibration due date ({s.due_on.isoformat()}) when the run was made "
+            f"on {on.isoformat()}"
+        )
     if s.state == "failed":
         assert s.calibration is not None
         return f"{instrument.name} had failed its calibration of {s.calibration.calibrated_on.isoformat()}"
@@ -323,25 +357,46 @@ def instruments_of_run(db: sqlite_utils.Database, run_id: int) -> dict[str, Inst
 
 def runs_using(db: sqlite_utils.Database, instrument_id: int, limit: int = 200) -> list[dict[str, Any]]:
     """The runs that used an instrument, newest first: run id, date, purpose, role, batch code, release id."""
-    return dbmod.query(db, "SELECT ri.run_id, ri.role, ri.calibration_id, r.performed_on, r.purpose, b.code AS batch_code, "
-                           "(SELECT d.decision FROM decisions d WHERE d.run_id = r.id ORDER BY d.id DESC LIMIT 1) "
-                           "AS decision, (SELECT rl.id FROM releases rl WHERE rl.run_id = r.id) AS release_id "
-                           "FROM run_instruments ri JOIN runs r ON r.id = ri.run_id JOIN batches b ON b.id = r.batch_id "
-                           "WHERE ri.instrument_id = ? ORDER BY r.performed_on DESC, r.id DESC LIMIT ?",
-                       [instrument_id, limit])
+    return dbmod.query(
+        db,
+        "SELECT ri.run_id, ri.role, ri.calibration_id, r.performed_on, r.purpose, b.code AS batch_code, "
+        "(SELECT d.decision FROM decisions d WHERE d.run_id = r.id ORDER BY d.id DESC LIMIT 1) "
+        "AS decision, (SELECT rl.id FROM releases rl WHERE rl.run_id = r.id) AS release_id "
+        "FROM run_instruments ri JOIN runs r ON r.id = ri.run_id JOIN batches b ON b.id = r.batch_id "
+        "WHERE ri.instrument_id = ? ORDER BY r.performed_on DESC, r.id DESC LIMIT ?",
+        [instrument_id, limit],
+    )
 
 
 # ---------------------------------------------------------------------------------------------------------
 # Appends
 
-INSTRUMENT_FIELDS = ("code", "kind", "description", "capacity", "accuracy_class", "tolerance", "readability",
-                     "linearity_g", "notes")
-CALIBRATION_FIELDS = ("calibrated_on", "next_due_on", "outcome", "certificate_ref", "calibrated_by", "tolerance",
-                      "linearity_g", "notes")
+INSTRUMENT_FIELDS = (
+    "code",
+    "kind",
+    "description",
+    "capacity",
+    "accuracy_class",
+    "tolerance",
+    "readability",
+    "linearity_g",
+    "notes",
+)
+CALIBRATION_FIELDS = (
+    "calibrated_on",
+    "next_due_on",
+    "outcome",
+    "certificate_ref",
+    "calibrated_by",
+    "tolerance",
+    "linearity_g",
+    "notes",
+)
 
 
-def register(db: sqlite_utils.Database, values: Mapping[str, Any], actor: str,
-             calibration: Mapping[str, Any] | None = None) -> Instrument:
+def register(
+    db: sqlite_utils.Database, values: Mapping[str, Any], actor: str, calibration: Mapping[str, Any] | None = None
+) -> Instrument:
     """Register an instrument (values already checked), with its calibration on record if given; one write.
 
     values: INSTRUMENT_FIELDS (units as in the module docstring); calibration: CALIBRATION_FIELDS with
@@ -350,8 +405,7 @@ def register(db: sqlite_utils.Database, values: Mapping[str, Any], actor: str,
     with dbmod.write(db):
         taken = db.execute("SELECT 1 FROM instruments WHERE code = ? COLLATE NOCASE", [values["code"]]).fetchone()
         if taken:
-            raise InvalidInput([FieldError("code", f"{values['code']} is already registered; give the "
-                                                   "instrument's own ID")])
+            raise InvalidInput([FieldError("code", f"{values['code']} is already registered; give the instrument's own ID")])
         row = {k: values.get(k) for k in INSTRUMENT_FIELDS}
         for k in ("description", "accuracy_class", "notes"):
             row[k] = row[k] or ""
@@ -360,10 +414,21 @@ def register(db: sqlite_utils.Database, values: Mapping[str, Any], actor: str,
         pk = db["instruments"].insert(row).last_pk  # type: ignore[union-attr]
         assert pk is not None
         iid = int(pk)
-        records.append_event(db, actor, "instrument.register", entity="instruments", entity_id=iid,
-                             detail={"code": row["code"], "kind": row["kind"], "capacity": row["capacity"],
-                                     "tolerance": row["tolerance"], "readability": row["readability"],
-                                     "linearity_g": row["linearity_g"]})
+        records.append_event(
+            db,
+            actor,
+            "instrument.register",
+            entity="instruments",
+            entity_id=iid,
+            detail={
+                "code": row["code"],
+                "kind": row["kind"],
+                "capacity": row["capacity"],
+                "tolerance": row["tolerance"],
+                "readability": row["readability"],
+                "linearity_g": row["linearity_g"],
+            },
+        )
         if calibration is not None:
             record_calibration(db, iid, calibration, actor)
     return instrument_by_id(db, iid)
@@ -378,8 +443,10 @@ def record_calibration(db: sqlite_utils.Database, instrument_id: int, values: Ma
             row[k] = row[k] or ""
         if inst.kind != "balance":
             row["linearity_g"] = None
-        if any(c.calibrated_on.isoformat() == row["calibrated_on"] and c.certificate_ref == row["certificate_ref"]
-               for c in inst.calibrations):
+        if any(
+            c.calibrated_on.isoformat() == row["calibrated_on"] and c.certificate_ref == row["certificate_ref"]
+            for c in inst.calibrations
+        ):
             raise Conflict(f"{inst.name} already has the calibration {row['certificate_ref']} of {row['calibrated_on']}")
         row["instrument_id"] = instrument_id
         row["recorded_at"] = records.utc_now()
@@ -387,15 +454,26 @@ def record_calibration(db: sqlite_utils.Database, instrument_id: int, values: Ma
         pk = db["calibrations"].insert(row).last_pk  # type: ignore[union-attr]
         assert pk is not None
         cid = int(pk)
-        records.append_event(db, actor, "instrument.calibrate", entity="calibrations", entity_id=cid,
-                             detail={"instrument": inst.code, "calibrated_on": row["calibrated_on"],
-                                     "next_due_on": row["next_due_on"], "outcome": row["outcome"],
-                                     "certificate_ref": row["certificate_ref"]})
+        records.append_event(
+            db,
+            actor,
+            "instrument.calibrate",
+            entity="calibrations",
+            entity_id=cid,
+            detail={
+                "instrument": inst.code,
+                "calibrated_on": row["calibrated_on"],
+                "next_due_on": row["next_due_on"],
+                "outcome": row["outcome"],
+                "certificate_ref": row["certificate_ref"],
+            },
+        )
     return cid
 
 
-def link_run(db: sqlite_utils.Database, run_id: int, batch_id: int, chosen: Mapping[str, Instrument],
-             on: dt.date, actor: str) -> None:
+def link_run(
+    db: sqlite_utils.Database, run_id: int, batch_id: int, chosen: Mapping[str, Instrument], on: dt.date, actor: str
+) -> None:
     """Store which instruments a run used (role -> Instrument), with the calibration in force on `on`."""
     if not chosen:
         return
@@ -408,8 +486,13 @@ def link_run(db: sqlite_utils.Database, run_id: int, batch_id: int, chosen: Mapp
             if inst.kind != role:
                 raise InvalidInput([FieldError(f"{role}_id", f"{inst.code} is a {inst.kind}, not a {role}")])
             cal = inst.calibration_on(on)
-            db["run_instruments"].insert({"run_id": run_id, "instrument_id": inst.id, "role": role,  # type: ignore[union-attr]
-                                          "calibration_id": cal.id if cal else None})
+            db["run_instruments"].insert(
+                {
+                    "run_id": run_id,
+                    "instrument_id": inst.id,
+                    "role": role,  # type: ignore[union-attr]
+                    "calibration_id": cal.id if cal else None,
+                }
+            )
             detail[role] = inst.code
-        records.append_event(db, actor, "run.instruments", entity="runs", entity_id=run_id, batch_id=batch_id,
-                             detail=detail)
+        records.append_event(db, actor, "run.instruments", entity="runs", entity_id=run_id, batch_id=batch_id, detail=detail)

@@ -152,13 +152,18 @@ def check_bench_temperature(value: float | None) -> float | None:
     if value is None:
         return None
     if not (isinstance(value, int | float) and math.isfinite(value) and BENCH_MIN_C <= value <= BENCH_MAX_C):
-        raise InvalidInput([FieldError("bench_temperature_c",
-                                       f"must be between {BENCH_MIN_C:g} and {BENCH_MAX_C:g} °C")])
+        raise InvalidInput([FieldError("bench_temperature_c", f"must be between {BENCH_MIN_C:g} and {BENCH_MAX_C:g} °C")])
     return float(value)
 
 
-def _hindsight(entry_release: ReleaseFact, status: StatusReport, fit: drift.Fit | None,
-               prediction: drift.Prediction | None, on: dt.date, known_on: dt.date) -> Flag | None:
+def _hindsight(
+    entry_release: ReleaseFact,
+    status: StatusReport,
+    fit: drift.Fit | None,
+    prediction: drift.Prediction | None,
+    on: dt.date,
+    known_on: dt.date,
+) -> Flag | None:
     """A flag when later standardizations put the day's molarity outside tolerance and that day did not say so."""
     if known_on <= on or fit is None or prediction is None or not fit.significant or fit.last_on <= on:
         return None
@@ -166,14 +171,22 @@ def _hindsight(entry_release: ReleaseFact, status: StatusReport, fit: drift.Fit 
     if band.contains(prediction.molarity) or status.status is Status.DRIFTING:
         return None
     dev = band.deviation(prediction.molarity) * 100
-    return Flag(FlagKind.HINDSIGHT_OUTSIDE,
-                f"by the standardizations recorded up to {fit.last_on.isoformat()}, it was probably outside "
-                f"tolerance that day: {prediction.molarity:.5f} mol/L ({dev:+.2f} %, tolerance "
-                f"±{band.tolerance_rel * 100:.2f} %)", on)
+    return Flag(
+        FlagKind.HINDSIGHT_OUTSIDE,
+        f"by the standardizations recorded up to {fit.last_on.isoformat()}, it was probably outside "
+        f"tolerance that day: {prediction.molarity:.5f} mol/L ({dev:+.2f} %, tolerance "
+        f"±{band.tolerance_rel * 100:.2f} %)",
+        on,
+    )
 
 
-def entry_for(batch: BatchRecord, on: dt.date, known_on: dt.date, bench_temperature_c: float | None = None,
-              alpha_per_k: float = corrections.ALPHA_WATER_PER_K) -> LabDayEntry | None:
+def entry_for(
+    batch: BatchRecord,
+    on: dt.date,
+    known_on: dt.date,
+    bench_temperature_c: float | None = None,
+    alpha_per_k: float = corrections.ALPHA_WATER_PER_K,
+) -> LabDayEntry | None:
     """The lab-day entry of one batch, or None when no release of it was in force on `on`.
 
     on: the lab day; known_on: standardizations recorded up to this date inform the prediction (a
@@ -191,15 +204,27 @@ def entry_for(batch: BatchRecord, on: dt.date, known_on: dt.date, bench_temperat
     if bench is not None:
         at_bench = corrections.molarity_at_temperature(release.molarity, REFERENCE_TEMPERATURE_C, bench, alpha_per_k)
         if prediction is not None:
-            predicted_bench = corrections.molarity_at_temperature(prediction.molarity, REFERENCE_TEMPERATURE_C, bench,
-                                                                  alpha_per_k)
+            predicted_bench = corrections.molarity_at_temperature(
+                prediction.molarity, REFERENCE_TEMPERATURE_C, bench, alpha_per_k
+            )
     flags = list(status.flags)
     late = _hindsight(release, status, fit, prediction, on, until)
     if late is not None:
         flags.append(late)
-    return LabDayEntry(batch=batch, on=on, release=release, status=status, known_on=until, fit=fit, fit_note=note,
-                       prediction=prediction, bench_temperature_c=bench, molarity_at_bench=at_bench,
-                       predicted_at_bench=predicted_bench, flags=tuple(flags))
+    return LabDayEntry(
+        batch=batch,
+        on=on,
+        release=release,
+        status=status,
+        known_on=until,
+        fit=fit,
+        fit_note=note,
+        prediction=prediction,
+        bench_temperature_c=bench,
+        molarity_at_bench=at_bench,
+        predicted_at_bench=predicted_bench,
+        flags=tuple(flags),
+    )
 
 
 def _why_not(batch: BatchRecord, on: dt.date) -> str:
@@ -219,9 +244,14 @@ def _why_not(batch: BatchRecord, on: dt.date) -> str:
     return f"{batch.code} was not in force"
 
 
-def lab_day(batches: Iterable[BatchRecord], on: dt.date, known_on: dt.date, titrant: str | None = None,
-            bench_temperature_c: float | None = None,
-            alpha_per_k: float = corrections.ALPHA_WATER_PER_K) -> LabDay:
+def lab_day(
+    batches: Iterable[BatchRecord],
+    on: dt.date,
+    known_on: dt.date,
+    titrant: str | None = None,
+    bench_temperature_c: float | None = None,
+    alpha_per_k: float = corrections.ALPHA_WATER_PER_K,
+) -> LabDay:
     """Every batch of a titrant (all titrants when None) in force on `on`, most urgent flags first.
 
     batches: BatchRecords (any titrants; those of other titrants are ignored); on: the lab day;
@@ -233,8 +263,7 @@ def lab_day(batches: Iterable[BatchRecord], on: dt.date, known_on: dt.date, titr
     mine = [b for b in batches if key is None or b.reagent == key]
     entries = [e for e in (entry_for(b, on, known_on, bench, alpha_per_k) for b in mine) if e is not None]
     order = {s: i for i, s in enumerate((Status.DRIFTING, Status.RECHECK_DUE, Status.IN_SERVICE))}
-    entries.sort(key=lambda e: (e.batch.reagent, e.batch.nominal_molarity, order.get(e.status.status, 9),
-                                e.batch.code))
+    entries.sort(key=lambda e: (e.batch.reagent, e.batch.nominal_molarity, order.get(e.status.status, 9), e.batch.code))
     headline = detail = None
     if not entries:
         what = f"{key} batch" if key else "titrant batch"
@@ -245,8 +274,15 @@ def lab_day(batches: Iterable[BatchRecord], on: dt.date, known_on: dt.date, titr
             why = [_why_not(b, on) for b in sorted(mine, key=lambda b: b.code)]
             detail = "; ".join(why[:6]) + ("; …" if len(why) > 6 else "")
             detail = detail[:1].upper() + detail[1:] + "."
-    return LabDay(on=on, titrant=key, bench_temperature_c=bench, entries=tuple(entries), headline=headline,
-                  detail=detail, future=on > known_on)
+    return LabDay(
+        on=on,
+        titrant=key,
+        bench_temperature_c=bench,
+        entries=tuple(entries),
+        headline=headline,
+        detail=detail,
+        future=on > known_on,
+    )
 
 
 # ---------------------------------------------------------------------------------------------------------
@@ -255,16 +291,29 @@ def lab_day(batches: Iterable[BatchRecord], on: dt.date, known_on: dt.date, titr
 
 def cautions(entries: Sequence[LabDayEntry]) -> tuple[str, ...]:
     """The usual cautions for handling the titrants listed (common practice), deferring to the local rules."""
-    lines = ["Wear eye protection, gloves and a lab coat when filling burettes; rinse any splash from skin or "
-             "eyes at once with plenty of water and tell the instructor (common practice)."]
-    strong = sorted({f"{e.batch.reagent} {e.batch.nominal_molarity:g} mol/L" for e in entries
-                     if chemistry.titrant(e.batch.reagent).role == chemistry.BASE and e.batch.nominal_molarity >= 0.5
-                     or chemistry.titrant(e.batch.reagent).role == chemistry.ACID and e.batch.nominal_molarity >= 1.0})
+    lines = [
+        "Wear eye protection, gloves and a lab coat when filling burettes; rinse any splash from skin or "
+        "eyes at once with plenty of water and tell the instructor (common practice)."
+    ]
+    strong = sorted(
+        {
+            f"{e.batch.reagent} {e.batch.nominal_molarity:g} mol/L"
+            for e in entries
+            if chemistry.titrant(e.batch.reagent).role == chemistry.BASE
+            and e.batch.nominal_molarity >= 0.5
+            or chemistry.titrant(e.batch.reagent).role == chemistry.ACID
+            and e.batch.nominal_molarity >= 1.0
+        }
+    )
     if strong:
-        lines.append(", ".join(strong) + ": at this strength the solution can burn skin and damage eyes; fill "
-                     "burettes below eye level with a funnel (common practice; check the bottle's label).")
-    lines.append("These are the usual cautions only: the label, the safety data sheet, local regulations and the "
-                 "institution's chemical hygiene plan take precedence.")
+        lines.append(
+            ", ".join(strong) + ": at this strength the solution can burn skin and damage eyes; fill "
+            "burettes below eye level with a funnel (common practice; check the bottle's label)."
+        )
+    lines.append(
+        "These are the usual cautions only: the label, the safety data sheet, local regulations and the "
+        "institution's chemical hygiene plan take precedence."
+    )
     return tuple(lines)
 
 
@@ -323,8 +372,10 @@ def _positive(text: str, column: str, upper: float, unit: str) -> tuple[float | 
 def _ratio(text: str) -> tuple[float | None, str | None]:
     parts = text.strip().split(":")
     if len(parts) != 2:
-        return None, (f"ratio: write it titrant:analyte in moles, e.g. 2:1 (got {text.strip()!r}); a spreadsheet "
-                      "may have turned it into a time — use analyte_per_titrant instead")
+        return None, (
+            f"ratio: write it titrant:analyte in moles, e.g. 2:1 (got {text.strip()!r}); a spreadsheet "
+            "may have turned it into a time — use analyte_per_titrant instead"
+        )
     (t, p1), (a, p2) = (_positive(parts[0], "ratio", 1000, ""), _positive(parts[1], "ratio", 1000, ""))
     if p1 or p2:
         return None, p1 or p2
@@ -343,8 +394,7 @@ def read_class_sheet(text: str, max_rows: int) -> ClassSheet:
     """
     if text.startswith("\ufeff"):
         text = text[1:]
-    lines = [(i, line) for i, line in enumerate(text.splitlines(), start=1)
-             if line.strip() and not line.lstrip().startswith("#")]
+    lines = [(i, line) for i, line in enumerate(text.splitlines(), start=1) if line.strip() and not line.lstrip().startswith("#")]
     if not lines:
         return ClassSheet(problems=((0, "the file has no header row and no data"),))
     reader = csv.reader([line for _, line in lines])
@@ -356,8 +406,12 @@ def read_class_sheet(text: str, max_rows: int) -> ClassSheet:
     problems: list[tuple[int, str]] = []
     unknown = [h for h in header if h not in CLASS_COLUMNS]
     if unknown:
-        problems.append((header_line, "unknown column(s) " + ", ".join(repr(h) for h in unknown) + "; the columns are "
-                         + ", ".join(CLASS_COLUMNS)))
+        problems.append(
+            (
+                header_line,
+                "unknown column(s) " + ", ".join(repr(h) for h in unknown) + "; the columns are " + ", ".join(CLASS_COLUMNS),
+            )
+        )
     if len(set(header)) != len(header):
         problems.append((header_line, "a column name appears twice in the header"))
     missing = [c for c in _REQUIRED if c not in header]
@@ -418,9 +472,18 @@ def read_class_sheet(text: str, max_rows: int) -> ClassSheet:
             problems.extend((line_no, e) for e in errs)
             continue
         assert nums["aliquot_ml"] is not None and nums["titrant_ml"] is not None and apt is not None
-        rows.append(ClassRow(line=line_no, group=group, aliquot_ml=nums["aliquot_ml"], titrant_ml=nums["titrant_ml"],
-                             analyte_per_titrant=apt, ratio_text=ratio_text, reported_molarity=reported,
-                             notes=v.get("notes", "")))
+        rows.append(
+            ClassRow(
+                line=line_no,
+                group=group,
+                aliquot_ml=nums["aliquot_ml"],
+                titrant_ml=nums["titrant_ml"],
+                analyte_per_titrant=apt,
+                ratio_text=ratio_text,
+                reported_molarity=reported,
+                notes=v.get("notes", ""),
+            )
+        )
     if not rows and not problems:
         problems.append((0, "the file has a header but no data rows"))
     return ClassSheet(rows=tuple(rows), problems=tuple(problems))
@@ -457,8 +520,15 @@ def correct_class(rows: Sequence[ClassRow], molarity_used: float, nominal_molari
         nominal = analyte_molarity(nominal_molarity, r.titrant_ml, r.analyte_per_titrant, r.aliquot_ml)
         corrected = analyte_molarity(molarity_used, r.titrant_ml, r.analyte_per_titrant, r.aliquot_ml)
         reported = (r.reported_molarity - corrected) / corrected if r.reported_molarity is not None else None
-        out.append(ClassResult(row=r, with_nominal=nominal, corrected=corrected,
-                               relative_error=(nominal - corrected) / corrected, reported_error=reported))
+        out.append(
+            ClassResult(
+                row=r,
+                with_nominal=nominal,
+                corrected=corrected,
+                relative_error=(nominal - corrected) / corrected,
+                reported_error=reported,
+            )
+        )
     return tuple(out)
 
 
@@ -475,8 +545,18 @@ def rows_to_csv(rows: Sequence[ClassRow]) -> str:
     w = csv.writer(out, lineterminator="\n")
     w.writerow(_STORED)
     for r in rows:
-        w.writerow([r.line, r.group, _g(r.aliquot_ml), _g(r.titrant_ml), repr(r.analyte_per_titrant), r.ratio_text,
-                    _g(r.reported_molarity), r.notes])
+        w.writerow(
+            [
+                r.line,
+                r.group,
+                _g(r.aliquot_ml),
+                _g(r.titrant_ml),
+                repr(r.analyte_per_titrant),
+                r.ratio_text,
+                _g(r.reported_molarity),
+                r.notes,
+            ]
+        )
     return out.getvalue()
 
 
@@ -484,17 +564,34 @@ def rows_from_csv(text: str) -> tuple[ClassRow, ...]:
     """Rows back from rows_to_csv's text (stockroom's own stored copy)."""
     rows = []
     for d in csv.DictReader(io.StringIO(text)):
-        rows.append(ClassRow(line=int(d["line"]), group=d["group"], aliquot_ml=float(d["aliquot_ml"]),
-                             titrant_ml=float(d["titrant_ml"]), analyte_per_titrant=float(d["analyte_per_titrant"]),
-                             ratio_text=d["ratio"],
-                             reported_molarity=float(d["reported_molarity"]) if d["reported_molarity"] else None,
-                             notes=d["notes"]))
+        rows.append(
+            ClassRow(
+                line=int(d["line"]),
+                group=d["group"],
+                aliquot_ml=float(d["aliquot_ml"]),
+                titrant_ml=float(d["titrant_ml"]),
+                analyte_per_titrant=float(d["analyte_per_titrant"]),
+                ratio_text=d["ratio"],
+                reported_molarity=float(d["reported_molarity"]) if d["reported_molarity"] else None,
+                notes=d["notes"],
+            )
+        )
     return tuple(rows)
 
 
-RESULT_COLUMNS = ("line", "group", "aliquot_ml", "titrant_ml", "analyte_per_titrant", "result_nominal_mol_l",
-                  "result_corrected_mol_l", "relative_error_percent", "reported_mol_l", "reported_error_percent",
-                  "notes")
+RESULT_COLUMNS = (
+    "line",
+    "group",
+    "aliquot_ml",
+    "titrant_ml",
+    "analyte_per_titrant",
+    "result_nominal_mol_l",
+    "result_corrected_mol_l",
+    "relative_error_percent",
+    "reported_mol_l",
+    "reported_error_percent",
+    "notes",
+)
 
 
 def results_to_csv(results: Sequence[ClassResult], about: Mapping[str, str]) -> str:
@@ -506,8 +603,19 @@ def results_to_csv(results: Sequence[ClassResult], about: Mapping[str, str]) -> 
     w.writerow(RESULT_COLUMNS)
     for res in results:
         r = res.row
-        w.writerow([r.line, r.group, _g(r.aliquot_ml), _g(r.titrant_ml), f"{r.analyte_per_titrant:.6g}",
-                    f"{res.with_nominal:.6f}", f"{res.corrected:.6f}", f"{res.relative_error * 100:.3f}",
-                    _g(r.reported_molarity),
-                    "" if res.reported_error is None else f"{res.reported_error * 100:.3f}", r.notes])
+        w.writerow(
+            [
+                r.line,
+                r.group,
+                _g(r.aliquot_ml),
+                _g(r.titrant_ml),
+                f"{r.analyte_per_titrant:.6g}",
+                f"{res.with_nominal:.6f}",
+                f"{res.corrected:.6f}",
+                f"{res.relative_error * 100:.3f}",
+                _g(r.reported_molarity),
+                "" if res.reported_error is None else f"{res.reported_error * 100:.3f}",
+                r.notes,
+            ]
+        )
     return out.getvalue()

@@ -226,8 +226,11 @@ def release_points(facts: BatchFacts, release: ReleaseFact, until: dt.date) -> t
     later = [r.released_on for r in facts.releases if (r.released_on, r.id) > (release.released_on, release.id)]
     end = min(later) if later else None
     points = [drift.Point(release.released_on, release.molarity, release.u, "release", release.k)]
-    points += [drift.Point(c.performed_on, c.molarity, c.u, "recheck", c.k) for c in facts.rechecks
-               if release.released_on <= c.performed_on <= until and (end is None or c.performed_on < end)]
+    points += [
+        drift.Point(c.performed_on, c.molarity, c.u, "recheck", c.k)
+        for c in facts.rechecks
+        if release.released_on <= c.performed_on <= until and (end is None or c.performed_on < end)
+    ]
     return tuple(points)
 
 
@@ -240,16 +243,23 @@ def drift_on(facts: BatchFacts, on: dt.date, release: ReleaseFact | None = None)
     if release is None:
         return None
     band = drift.Band(release.molarity, release.tolerance_rel)
-    return drift.assess(release_points(facts, release, on), band, release.released_on, release.expires_on,
-                        release.recheck_interval_days, on)
+    return drift.assess(
+        release_points(facts, release, on), band, release.released_on, release.expires_on, release.recheck_interval_days, on
+    )
 
 
 def review_flags(facts: BatchFacts, release: ReleaseFact, on: dt.date) -> tuple[Flag, ...]:
     """The "under review" flags of the recalls open on `on` that reach `release` (dates as dates)."""
     return tuple(
-        Flag(_UNDER_REVIEW, f"under review since {rv.opened_on.isoformat()}: its certified value rests on "
-             f"{rv.subject}, suspect from {rv.suspect_from.isoformat()} (recall {rv.recall_id})", rv.opened_on)
-        for rv in facts.reviews if rv.release_id == release.id and rv.open_on(on))
+        Flag(
+            _UNDER_REVIEW,
+            f"under review since {rv.opened_on.isoformat()}: its certified value rests on "
+            f"{rv.subject}, suspect from {rv.suspect_from.isoformat()} (recall {rv.recall_id})",
+            rv.opened_on,
+        )
+        for rv in facts.reviews
+        if rv.release_id == release.id and rv.open_on(on)
+    )
 
 
 _DRIFTING_KINDS = (FlagKind.RECHECK_OUTSIDE, FlagKind.PREDICTED_OUTSIDE)
@@ -266,9 +276,14 @@ def status_on(facts: BatchFacts, on: dt.date) -> StatusReport:
     report = drift_on(facts, on, release)
     assert report is not None
     if on > release.expires_on:
-        return StatusReport(Status.EXPIRED, on, release=release,
-                            reasons=(f"expired on {release.expires_on.isoformat()}",), flags=report.flags,
-                            drift=report)
+        return StatusReport(
+            Status.EXPIRED,
+            on,
+            release=release,
+            reasons=(f"expired on {release.expires_on.isoformat()}",),
+            flags=report.flags,
+            drift=report,
+        )
     checks = sorted(
         (c for c in facts.rechecks if release.released_on <= c.performed_on <= on),
         key=lambda c: c.performed_on,
@@ -276,7 +291,14 @@ def status_on(facts: BatchFacts, on: dt.date) -> StatusReport:
     last = checks[-1] if checks else None
     drifting = tuple(f.message for f in report.flags if f.kind in _DRIFTING_KINDS)
     due = tuple(f.message for f in report.flags if f.kind in _DUE_KINDS)
-    status, reasons = ((Status.DRIFTING, drifting) if drifting else (Status.RECHECK_DUE, due) if due
-                       else (Status.IN_SERVICE, ()))
-    return StatusReport(status, on, release=release, next_check_due=report.next_check_due, last_check=last,
-                        reasons=reasons, flags=report.flags + review_flags(facts, release, on), drift=report)
+    status, reasons = (Status.DRIFTING, drifting) if drifting else (Status.RECHECK_DUE, due) if due else (Status.IN_SERVICE, ())
+    return StatusReport(
+        status,
+        on,
+        release=release,
+        next_check_due=report.next_check_due,
+        last_check=last,
+        reasons=reasons,
+        flags=report.flags + review_flags(facts, release, on),
+        drift=report,
+    )

@@ -95,8 +95,7 @@ def concentrates_for(reagent: str | Titrant) -> tuple[Concentrate, ...]:
 # Shown with every plan, whatever the reagent: a calculator that tells someone to handle concentrates shows
 # the usual cautions and defers to the documents that govern the lab (project rule; common practice).
 CAUTIONS: tuple[str, ...] = (
-    "Add acid to water, never the reverse: water poured onto a concentrated acid can boil and spatter "
-    "(common practice).",
+    "Add acid to water, never the reverse: water poured onto a concentrated acid can boil and spatter (common practice).",
     "Work in a fume hood when opening, measuring or diluting concentrates (common practice).",
     "Wear goggles and a face shield, acid-resistant gloves and a lab coat when handling concentrates; "
     "know where the eyewash and safety shower are (common practice).",
@@ -181,8 +180,7 @@ def _density(errors: list[FieldError], field: str, value: object) -> float | Non
     if not lo <= x <= hi:
         hint = f"; that looks like kg/m³: give {x / 1000:g}" if 800 <= x <= 2500 else ""
         errors.append(
-            FieldError(field, f"must be in g/mL at 20 °C, between {lo:g} and {hi:g} for an aqueous concentrate "
-                       f"(got {x:g}{hint})")
+            FieldError(field, f"must be in g/mL at 20 °C, between {lo:g} and {hi:g} for an aqueous concentrate (got {x:g}{hint})")
         )
         return None
     return x
@@ -299,8 +297,9 @@ def _acid_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float
         f"thoroughly (stir, or close and invert many times) so the batch is uniform.",
     ]
     if t.key == "H2SO4":
-        steps.insert(2, "Sulfuric acid heats the water strongly: add it in small portions and let the "
-                        "solution cool between them.")
+        steps.insert(
+            2, "Sulfuric acid heats the water strongly: add it in small portions and let the solution cool between them."
+        )
     return steps
 
 
@@ -332,8 +331,7 @@ def _base_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float
         f"In the fume hood, measure {_sig(v_ml)} mL of the concentrate (density {rho:g} g/mL) in a plastic "
         f"measuring cylinder, or weigh {_sig(m_g)} g of it, and add it slowly to the water with stirring.",
         "Rinse the cylinder with a little CO2-free water into the container.",
-        f"Let the solution cool to room temperature, make up to {_sig(vol_l, 3)} L with CO2-free water and mix "
-        f"thoroughly.",
+        f"Let the solution cool to room temperature, make up to {_sig(vol_l, 3)} L with CO2-free water and mix thoroughly.",
         "Store in polyethylene with a soda-lime guard tube on the air inlet, so CO2 from the air cannot get "
         "in (AOAC Official Methods, Appendix A).",
     ]
@@ -358,8 +356,7 @@ def _solid_steps(t: Titrant, m_g: float, w: float, vol_l: float) -> list[str]:
         f"dissolution is strongly exothermic. Let it cool.",
         f"Pour it into a polyethylene container holding about {_sig(0.6 * vol_l, 3)} L of the CO2-free water, "
         f"rinse the beaker into it, make up to {_sig(vol_l, 3)} L with CO2-free water and mix thoroughly.",
-        "Store in polyethylene with a soda-lime guard tube on the air inlet (AOAC Official Methods, "
-        "Appendix A).",
+        "Store in polyethylene with a soda-lime guard tube on the air inlet (AOAC Official Methods, Appendix A).",
     ]
     return steps
 
@@ -391,8 +388,13 @@ def preparation_plan(
     w = _fraction(errors, "assay_w_w", assay_w_w)
     over = _number(errors, "overshoot_rel", overshoot_rel)
     if over is not None and not 0.0 <= over < 0.1:
-        errors.append(FieldError("overshoot_rel", "must be from 0 up to (not including) 0.1: a batch 10 % or "
-                                 "more above nominal fails acceptance (Ph. Eur. volumetric solutions)"))
+        errors.append(
+            FieldError(
+                "overshoot_rel",
+                "must be from 0 up to (not including) 0.1: a batch 10 % or "
+                "more above nominal fails acceptance (Ph. Eur. volumetric solutions)",
+            )
+        )
         over = None
     cap = None
     if container_capacity_l is not None:
@@ -426,11 +428,15 @@ def preparation_plan(
         assert rho is not None
         c_conc = 1000.0 * rho * w / m_r
         if planned >= c_conc:
-            raise InvalidInput([FieldError(
-                "target_molarity_mol_l",
-                f"{_sig(planned)} mol/L is not below the concentrate's own strength ({_sig(c_conc)} mol/L from "
-                f"{_pct(w)} and {rho:g} g/mL): a dilution cannot reach it",
-            )])
+            raise InvalidInput(
+                [
+                    FieldError(
+                        "target_molarity_mol_l",
+                        f"{_sig(planned)} mol/L is not below the concentrate's own strength ({_sig(c_conc)} mol/L from "
+                        f"{_pct(w)} and {rho:g} g/mL): a dilution cannot reach it",
+                    )
+                ]
+            )
         v_ml = 1000.0 * planned * vol / c_conc
         m_g = v_ml * rho
         water_l = vol - v_ml / 1000.0
@@ -533,8 +539,9 @@ def adjustment_plan(
     vol = _positive(errors, "current_volume_l", current_volume_l, "L")
     tol = _number(errors, "tolerance_rel", tolerance_rel)
     if tol is not None and not 0.0 <= tol < 0.1:
-        errors.append(FieldError("tolerance_rel", "must be from 0 up to (not including) 0.1, a fraction of "
-                                 "nominal (0.005 is 0.5 %)"))
+        errors.append(
+            FieldError("tolerance_rel", "must be from 0 up to (not including) 0.1, a fraction of nominal (0.005 is 0.5 %)")
+        )
         tol = None
     cap = None
     if container_capacity_l is not None:
@@ -557,15 +564,25 @@ def adjustment_plan(
 
     if abs(deviation) <= tol:
         return AdjustmentPlan(
-            reagent=t.key, action=NO_ADJUSTMENT, measured_molarity_mol_l=c, target_molarity_mol_l=ct,
-            deviation_rel=deviation, tolerance_rel=tol, current_volume_l=vol, water_to_add_l=0.0,
-            concentrate_to_add_ml=0.0, concentrate_molarity_mol_l=None, final_volume_l=vol,
-            expected_molarity_mol_l=c, restandardize=False,
+            reagent=t.key,
+            action=NO_ADJUSTMENT,
+            measured_molarity_mol_l=c,
+            target_molarity_mol_l=ct,
+            deviation_rel=deviation,
+            tolerance_rel=tol,
+            current_volume_l=vol,
+            water_to_add_l=0.0,
+            concentrate_to_add_ml=0.0,
+            concentrate_molarity_mol_l=None,
+            final_volume_l=vol,
+            expected_molarity_mol_l=c,
+            restandardize=False,
             instructions=(
                 f"No adjustment is needed: {_sig(c)} mol/L is within {_sig(tol * 100, 2)} % of the nominal "
                 f"{_sig(ct)} mol/L (off by {_sig(deviation * 100, 2)} %).",
             ),
-            cautions=cautions, notes=tuple(notes),
+            cautions=cautions,
+            notes=tuple(notes),
         )
 
     notes += [
@@ -575,8 +592,14 @@ def adjustment_plan(
         "The figure aims at nominal from the measured value, so that value's uncertainty carries over.",
     ]
     after = [
-        *(["Open the container as briefly as possible and keep the soda-lime guard tube in place: the batch "
-           "takes up CO2 each time it is opened (common practice)."] if t.role == BASE else []),
+        *(
+            [
+                "Open the container as briefly as possible and keep the soda-lime guard tube in place: the batch "
+                "takes up CO2 each time it is opened (common practice)."
+            ]
+            if t.role == BASE
+            else []
+        ),
         "Close the container and mix thoroughly (stir, or invert many times) until uniform.",
         "Record the addition on the batch, then re-standardize it before any use.",
     ]
@@ -585,31 +608,50 @@ def adjustment_plan(
         w_l = vol * (c / ct - 1.0)
         final = vol + w_l
         if cap is not None and final > cap:
-            raise InvalidInput([FieldError(
-                "current_volume_l",
-                f"adding {_sig(w_l)} L of water brings the batch to {_sig(final)} L, more than the {cap:g} L "
-                f"container holds: move it to a larger container or split it",
-            )])
+            raise InvalidInput(
+                [
+                    FieldError(
+                        "current_volume_l",
+                        f"adding {_sig(w_l)} L of water brings the batch to {_sig(final)} L, more than the {cap:g} L "
+                        f"container holds: move it to a larger container or split it",
+                    )
+                ]
+            )
         steps = [
             f"The batch is {_sig(deviation * 100, 2)} % strong. Add {_sig(w_l)} L ({_sig(w_l * 1000)} mL) of "
             f"{water} to the {_sig(vol)} L in the container.",
             *after,
         ]
         return AdjustmentPlan(
-            reagent=t.key, action=ADD_WATER, measured_molarity_mol_l=c, target_molarity_mol_l=ct,
-            deviation_rel=deviation, tolerance_rel=tol, current_volume_l=vol, water_to_add_l=w_l,
-            concentrate_to_add_ml=0.0, concentrate_molarity_mol_l=None, final_volume_l=final,
-            expected_molarity_mol_l=c * vol / final, restandardize=True, instructions=tuple(steps),
-            cautions=cautions, notes=tuple(notes),
+            reagent=t.key,
+            action=ADD_WATER,
+            measured_molarity_mol_l=c,
+            target_molarity_mol_l=ct,
+            deviation_rel=deviation,
+            tolerance_rel=tol,
+            current_volume_l=vol,
+            water_to_add_l=w_l,
+            concentrate_to_add_ml=0.0,
+            concentrate_molarity_mol_l=None,
+            final_volume_l=final,
+            expected_molarity_mol_l=c * vol / final,
+            restandardize=True,
+            instructions=tuple(steps),
+            cautions=cautions,
+            notes=tuple(notes),
         )
 
     # Weak batch: concentrate needed.
     by_composition = concentrate_assay_w_w is not None or concentrate_density_g_ml is not None
     if concentrate_molarity_mol_l is not None and by_composition:
-        raise InvalidInput([FieldError(
-            "concentrate_molarity_mol_l",
-            "give either the concentrate's molarity or its assay and density, not both",
-        )])
+        raise InvalidInput(
+            [
+                FieldError(
+                    "concentrate_molarity_mol_l",
+                    "give either the concentrate's molarity or its assay and density, not both",
+                )
+            ]
+        )
     if concentrate_molarity_mol_l is not None:
         c_conc = _positive(errors, "concentrate_molarity_mol_l", concentrate_molarity_mol_l, "mol/L")
         _raise(errors)
@@ -627,33 +669,48 @@ def adjustment_plan(
         assert w is not None and rho is not None
         c_conc = 1000.0 * rho * w / t.molar_mass.value
     else:
-        raise InvalidInput([FieldError(
-            "concentrate_molarity_mol_l",
-            f"the batch is {_sig(-deviation * 100, 2)} % weak: raising it needs a concentrate; give its "
-            f"molarity, or its assay and density",
-        )])
+        raise InvalidInput(
+            [
+                FieldError(
+                    "concentrate_molarity_mol_l",
+                    f"the batch is {_sig(-deviation * 100, 2)} % weak: raising it needs a concentrate; give its "
+                    f"molarity, or its assay and density",
+                )
+            ]
+        )
     assert c_conc is not None
     if c_conc <= ct:
-        raise InvalidInput([FieldError(
-            "concentrate_molarity_mol_l",
-            f"the concentrate ({_sig(c_conc)} mol/L) is not stronger than the target ({_sig(ct)} mol/L): "
-            f"adding it cannot raise the batch to the target",
-        )])
+        raise InvalidInput(
+            [
+                FieldError(
+                    "concentrate_molarity_mol_l",
+                    f"the concentrate ({_sig(c_conc)} mol/L) is not stronger than the target ({_sig(ct)} mol/L): "
+                    f"adding it cannot raise the batch to the target",
+                )
+            ]
+        )
     v_ml = 1000.0 * vol * (ct - c) / (c_conc - ct)
     final = vol + v_ml / 1000.0
     if cap is not None and final > cap:
-        raise InvalidInput([FieldError(
-            "current_volume_l",
-            f"adding {_sig(v_ml)} mL of concentrate brings the batch to {_sig(final)} L, more than the "
-            f"{cap:g} L container holds",
-        )])
+        raise InvalidInput(
+            [
+                FieldError(
+                    "current_volume_l",
+                    f"adding {_sig(v_ml)} mL of concentrate brings the batch to {_sig(final)} L, more than the "
+                    f"{cap:g} L container holds",
+                )
+            ]
+        )
     if v_ml < 1.0:
         notes.append(
             f"{_sig(v_ml)} mL is hard to measure well; a graduated pipette is needed, or a weaker intermediate "
             f"solution (common practice)."
         )
-    clear = (" For NaOH use the clear liquid of 50 % NaOH, from which carbonate has settled (AOAC Official "
-             "Methods, Appendix A).") if t.key == "NaOH" else ""
+    clear = (
+        (" For NaOH use the clear liquid of 50 % NaOH, from which carbonate has settled (AOAC Official Methods, Appendix A).")
+        if t.key == "NaOH"
+        else ""
+    )
     steps = [
         f"The batch is {_sig(-deviation * 100, 2)} % weak. In the fume hood, measure {_sig(v_ml)} mL of the "
         f"concentrate ({_sig(c_conc)} mol/L) with a pipette and a pipette filler (never by mouth).{clear}",
@@ -661,9 +718,20 @@ def adjustment_plan(
         *after,
     ]
     return AdjustmentPlan(
-        reagent=t.key, action=ADD_CONCENTRATE, measured_molarity_mol_l=c, target_molarity_mol_l=ct,
-        deviation_rel=deviation, tolerance_rel=tol, current_volume_l=vol, water_to_add_l=0.0,
-        concentrate_to_add_ml=v_ml, concentrate_molarity_mol_l=c_conc, final_volume_l=final,
-        expected_molarity_mol_l=(c * vol + c_conc * v_ml / 1000.0) / final, restandardize=True,
-        instructions=tuple(steps), cautions=cautions, notes=tuple(notes),
+        reagent=t.key,
+        action=ADD_CONCENTRATE,
+        measured_molarity_mol_l=c,
+        target_molarity_mol_l=ct,
+        deviation_rel=deviation,
+        tolerance_rel=tol,
+        current_volume_l=vol,
+        water_to_add_l=0.0,
+        concentrate_to_add_ml=v_ml,
+        concentrate_molarity_mol_l=c_conc,
+        final_volume_l=final,
+        expected_molarity_mol_l=(c * vol + c_conc * v_ml / 1000.0) / final,
+        restandardize=True,
+        instructions=tuple(steps),
+        cautions=cautions,
+        notes=tuple(notes),
     )

@@ -52,9 +52,11 @@ def molarity_text(value: float, U: float, k: float) -> str:
 # The graph
 
 
-_RELEASES_SQL = ("SELECT rl.id, rl.batch_id, rl.molarity, rl.u, rl.expanded_u, rl.k, rl.released_on, rl.expires_on, "
-                 "rl.run_id, b.code, b.reagent, r.method, r.standard_lot_id, r.reference_release_id, r.performed_on "
-                 "FROM releases rl JOIN runs r ON r.id = rl.run_id JOIN batches b ON b.id = rl.batch_id")
+_RELEASES_SQL = (
+    "SELECT rl.id, rl.batch_id, rl.molarity, rl.u, rl.expanded_u, rl.k, rl.released_on, rl.expires_on, "
+    "rl.run_id, b.code, b.reagent, r.method, r.standard_lot_id, r.reference_release_id, r.performed_on "
+    "FROM releases rl JOIN runs r ON r.id = rl.run_id JOIN batches b ON b.id = rl.batch_id"
+)
 
 
 def _in(column: str, ids: Sequence[int]) -> str:
@@ -74,13 +76,22 @@ def _graph_of(db: sqlite_utils.Database, rows: list[dict[str, Any]], whole: bool
     # Each release's last day in force: its expiry, the day before the next release of its batch, or the
     # day before a withdrawal (policy.release_in_force's rules, as dates).
     siblings: dict[int, list[tuple[str, int]]] = defaultdict(list)
-    for r in dbmod.query(db, "SELECT id, batch_id, released_on FROM releases"
-                         + ("" if whole else " WHERE " + _in("batch_id", batch_ids)), [] if whole else batch_ids):
+    for r in dbmod.query(
+        db,
+        "SELECT id, batch_id, released_on FROM releases" + ("" if whole else " WHERE " + _in("batch_id", batch_ids)),
+        [] if whole else batch_ids,
+    ):
         siblings[r["batch_id"]].append((r["released_on"], r["id"]))
-    withdrawn = {r["batch_id"]: _d(r["withdrawn_on"]) for r in dbmod.query(
-        db, "SELECT batch_id, min(withdrawn_on) AS withdrawn_on FROM withdrawals"
-        + ("" if whole else " WHERE " + _in("batch_id", batch_ids)) + " GROUP BY batch_id",
-        [] if whole else batch_ids)}
+    withdrawn = {
+        r["batch_id"]: _d(r["withdrawn_on"])
+        for r in dbmod.query(
+            db,
+            "SELECT batch_id, min(withdrawn_on) AS withdrawn_on FROM withdrawals"
+            + ("" if whole else " WHERE " + _in("batch_id", batch_ids))
+            + " GROUP BY batch_id",
+            [] if whole else batch_ids,
+        )
+    }
     nodes: list[traceability.Node] = []
     edges: list[traceability.Edge] = []
     for r in rows:
@@ -90,16 +101,33 @@ def _graph_of(db: sqlite_utils.Database, rows: list[dict[str, Any]], whole: bool
             ends = min(ends, _d(min(later)) - ONE_DAY)
         if r["batch_id"] in withdrawn:
             ends = min(ends, withdrawn[r["batch_id"]] - ONE_DAY)
-        nodes.append(traceability.Node(
-            RELEASE, r["id"], r["code"], detail=f"{molarity_text(r['molarity'], r['expanded_u'], r['k'])}, "
-            f"released {r['released_on']}", value=r["molarity"], u=r["u"],
-            batch_id=r["batch_id"], released_on=_d(r["released_on"]), ends_on=ends))
+        nodes.append(
+            traceability.Node(
+                RELEASE,
+                r["id"],
+                r["code"],
+                detail=f"{molarity_text(r['molarity'], r['expanded_u'], r['k'])}, released {r['released_on']}",
+                value=r["molarity"],
+                u=r["u"],
+                batch_id=r["batch_id"],
+                released_on=_d(r["released_on"]),
+                ends_on=ends,
+            )
+        )
     if lot_ids:
         for lot in dbmod.query(db, "SELECT * FROM standard_lots WHERE " + _in("id", lot_ids), lot_ids):
-            nodes.append(traceability.Node(
-                LOT, lot["id"], lot["code"], detail=f"{lot['substance']}, supplier's lot {lot['supplier_lot'] or '—'}\n"
-                f"certificate: assay {lot['assay'] * 100:.3f} ± {lot['assay_expanded_u'] * 100:.3f} % "
-                f"(k = {lot['assay_k']:g})", value=lot["assay"], u=lot["assay_expanded_u"] / lot["assay_k"]))
+            nodes.append(
+                traceability.Node(
+                    LOT,
+                    lot["id"],
+                    lot["code"],
+                    detail=f"{lot['substance']}, supplier's lot {lot['supplier_lot'] or '—'}\n"
+                    f"certificate: assay {lot['assay'] * 100:.3f} ± {lot['assay_expanded_u'] * 100:.3f} % "
+                    f"(k = {lot['assay_k']:g})",
+                    value=lot["assay"],
+                    u=lot["assay_expanded_u"] / lot["assay_k"],
+                )
+            )
     known = {r["id"] for r in rows}
     for r in rows:
         key = node_key(RELEASE, r["id"])
@@ -107,21 +135,32 @@ def _graph_of(db: sqlite_utils.Database, rows: list[dict[str, Any]], whole: bool
         if r["method"] == "primary" and r["standard_lot_id"] is not None:
             edges.append(traceability.Edge(key, node_key(LOT, r["standard_lot_id"]), PRIMARY, used, r["run_id"]))
         elif r["reference_release_id"] is not None and r["reference_release_id"] in known:
-            edges.append(traceability.Edge(key, node_key(RELEASE, r["reference_release_id"]), REFERENCE, used,
-                                           r["run_id"]))
+            edges.append(traceability.Edge(key, node_key(RELEASE, r["reference_release_id"]), REFERENCE, used, r["run_id"]))
     release_of_run = {r["run_id"]: r for r in rows}
-    kit = dbmod.query(db, "SELECT ri.run_id, ri.role, ri.instrument_id, c.certificate_ref, c.next_due_on FROM "
-                          "run_instruments ri LEFT JOIN calibrations c ON c.id = ri.calibration_id WHERE "
-                          + ("ri.run_id IN (SELECT run_id FROM releases)" if whole else _in("ri.run_id", run_ids)),
-                      [] if whole else run_ids)
+    kit = dbmod.query(
+        db,
+        "SELECT ri.run_id, ri.role, ri.instrument_id, c.certificate_ref, c.next_due_on FROM "
+        "run_instruments ri LEFT JOIN calibrations c ON c.id = ri.calibration_id WHERE "
+        + ("ri.run_id IN (SELECT run_id FROM releases)" if whole else _in("ri.run_id", run_ids)),
+        [] if whole else run_ids,
+    )
     for iid, inst in inst_mod.instruments_by_id(db, [k["instrument_id"] for k in kit]).items():
         nodes.append(traceability.Node(INSTRUMENT, iid, inst.code, detail=inst.summary()))
     for k in kit:
         r = release_of_run[k["run_id"]]
-        note = (f"calibration {k['certificate_ref']}\ndue {k['next_due_on']}" if k["certificate_ref"]
-                else "no calibration on record")
-        edges.append(traceability.Edge(node_key(RELEASE, r["id"]), node_key(INSTRUMENT, k["instrument_id"]),
-                                       k["role"], _d(r["performed_on"]), r["run_id"], note))
+        note = (
+            f"calibration {k['certificate_ref']}\ndue {k['next_due_on']}" if k["certificate_ref"] else "no calibration on record"
+        )
+        edges.append(
+            traceability.Edge(
+                node_key(RELEASE, r["id"]),
+                node_key(INSTRUMENT, k["instrument_id"]),
+                k["role"],
+                _d(r["performed_on"]),
+                r["run_id"],
+                note,
+            )
+        )
     return Graph(tuple(nodes), tuple(edges))
 
 
@@ -140,8 +179,13 @@ def read_chain_graph(db: sqlite_utils.Database, release_id: int) -> Graph:
         found = dbmod.query(db, _RELEASES_SQL + " WHERE " + _in("rl.id", wanted), wanted)
         seen.update(wanted)
         rows += found
-        wanted = sorted({r["reference_release_id"] for r in found
-                         if r["reference_release_id"] is not None and r["reference_release_id"] not in seen})
+        wanted = sorted(
+            {
+                r["reference_release_id"]
+                for r in found
+                if r["reference_release_id"] is not None and r["reference_release_id"] not in seen
+            }
+        )
     return _graph_of(db, rows, whole=False)
 
 
@@ -210,17 +254,22 @@ def _subjects(db: sqlite_utils.Database, wanted: Iterable[tuple[str, int]]) -> d
     if by_kind.get(LOT):
         ids = sorted(by_kind[LOT])
         for r in dbmod.query(db, f"SELECT * FROM standard_lots WHERE id IN ({','.join('?' * len(ids))})", ids):
-            out[(LOT, r["id"])] = (r["code"], f"{r['substance']}, supplier's lot {r['supplier_lot'] or '—'}, assay "
-                                             f"{r['assay'] * 100:.3f} ± {r['assay_expanded_u'] * 100:.3f} % "
-                                             f"(k = {r['assay_k']:g}), expires {r['expires_on']}")
+            out[(LOT, r["id"])] = (
+                r["code"],
+                f"{r['substance']}, supplier's lot {r['supplier_lot'] or '—'}, assay "
+                f"{r['assay'] * 100:.3f} ± {r['assay_expanded_u'] * 100:.3f} % "
+                f"(k = {r['assay_k']:g}), expires {r['expires_on']}",
+            )
     if by_kind.get(INSTRUMENT):
         for iid, inst in inst_mod.instruments_by_id(db, by_kind[INSTRUMENT]).items():
             out[(INSTRUMENT, iid)] = (inst.code, f"{inst.kind}, {inst.summary()}")
     if by_kind.get(BATCH):
         ids = sorted(by_kind[BATCH])
         for r in dbmod.query(db, f"SELECT * FROM batches WHERE id IN ({','.join('?' * len(ids))})", ids):
-            out[(BATCH, r["id"])] = (r["code"], f"{r['reagent']} {r['nominal_molarity']:g} mol/L nominal, "
-                                               f"prepared {r['prepared_on']}")
+            out[(BATCH, r["id"])] = (
+                r["code"],
+                f"{r['reagent']} {r['nominal_molarity']:g} mol/L nominal, prepared {r['prepared_on']}",
+            )
     return out
 
 
@@ -244,19 +293,44 @@ def list_recalls(db: sqlite_utils.Database, ids: Sequence[int] | None = None) ->
         return []
     rids = [r["id"] for r in rows]
     clears: dict[int, list[Clearance]] = defaultdict(list)
-    for c in dbmod.query(db, "SELECT c.*, b.code AS batch_code FROM recall_clearances c LEFT JOIN batches b ON "
-                             f"b.id = c.batch_id WHERE c.recall_id IN ({','.join('?' * len(rids))}) ORDER BY c.id", rids):
-        clears[c["recall_id"]].append(Clearance(c["id"], c["recall_id"], c["batch_id"], c["batch_code"],
-                                                _d(c["cleared_on"]), c["reason"], c["recorded_at"], c["recorded_by"]))
+    for c in dbmod.query(
+        db,
+        "SELECT c.*, b.code AS batch_code FROM recall_clearances c LEFT JOIN batches b ON "
+        f"b.id = c.batch_id WHERE c.recall_id IN ({','.join('?' * len(rids))}) ORDER BY c.id",
+        rids,
+    ):
+        clears[c["recall_id"]].append(
+            Clearance(
+                c["id"],
+                c["recall_id"],
+                c["batch_id"],
+                c["batch_code"],
+                _d(c["cleared_on"]),
+                c["reason"],
+                c["recorded_at"],
+                c["recorded_by"],
+            )
+        )
     subjects = _subjects(db, [(r["subject_kind"], r["subject_id"]) for r in rows])
     out = []
     for r in rows:
         code, detail = subjects.get((r["subject_kind"], r["subject_id"]), (f"#{r['subject_id']}", "not on record"))
-        out.append(Recall(id=r["id"], subject_kind=r["subject_kind"], subject_id=r["subject_id"], subject_code=code,
-                          subject_label=subject_label(r["subject_kind"], code, detail), subject_detail=detail,
-                          suspect_from=_d(r["suspect_from"]), opened_on=_d(r["opened_on"]), reason=r["reason"],
-                          recorded_at=r["recorded_at"], recorded_by=r["recorded_by"],
-                          clearances=tuple(clears.get(r["id"], ()))))
+        out.append(
+            Recall(
+                id=r["id"],
+                subject_kind=r["subject_kind"],
+                subject_id=r["subject_id"],
+                subject_code=code,
+                subject_label=subject_label(r["subject_kind"], code, detail),
+                subject_detail=detail,
+                suspect_from=_d(r["suspect_from"]),
+                opened_on=_d(r["opened_on"]),
+                reason=r["reason"],
+                recorded_at=r["recorded_at"],
+                recorded_by=r["recorded_by"],
+                clearances=tuple(clears.get(r["id"], ())),
+            )
+        )
     return out
 
 
@@ -280,8 +354,9 @@ def subject_exists(db: sqlite_utils.Database, kind: str, subject_id: int) -> boo
     return bool(dbmod.query(db, f"SELECT 1 AS found FROM {table} WHERE id = ?", [subject_id]))
 
 
-def open_recall(db: sqlite_utils.Database, kind: str, subject_id: int, suspect_from: dt.date, reason: str,
-                opened_on: dt.date, actor: str) -> int:
+def open_recall(
+    db: sqlite_utils.Database, kind: str, subject_id: int, suspect_from: dt.date, reason: str, opened_on: dt.date, actor: str
+) -> int:
     """Mark a lot, instrument or batch suspect from a date, with the reason; one write and its audit entry.
 
     kind: lot, instrument or batch; suspect_from and opened_on (the lab's date today) as dates. Returns the
@@ -291,30 +366,56 @@ def open_recall(db: sqlite_utils.Database, kind: str, subject_id: int, suspect_f
     if kind not in SUBJECT_LABELS or not subject_exists(db, kind, subject_id):
         errors.append(FieldError("subject", "choose a primary-standard lot, an instrument or a batch on record"))
     if suspect_from > opened_on:
-        errors.append(FieldError("suspect_from", f"cannot be later than today ({opened_on.isoformat()}): a recall "
-                                                 "is about what has already been used"))
+        errors.append(
+            FieldError(
+                "suspect_from",
+                f"cannot be later than today ({opened_on.isoformat()}): a recall is about what has already been used",
+            )
+        )
     if not reason.strip():
         errors.append(FieldError("reason", "say why it is suspect"))
     if errors:
         raise InvalidInput(errors)
     with dbmod.write(db):
-        pk = db["recalls"].insert({  # type: ignore[union-attr]
-            "subject_kind": kind, "subject_id": subject_id, "suspect_from": suspect_from.isoformat(),
-            "opened_on": opened_on.isoformat(), "reason": reason.strip(), "recorded_at": records.utc_now(),
-            "recorded_by": actor}).last_pk
+        pk = (
+            db["recalls"]
+            .insert(
+                {  # type: ignore[union-attr]
+                    "subject_kind": kind,
+                    "subject_id": subject_id,
+                    "suspect_from": suspect_from.isoformat(),
+                    "opened_on": opened_on.isoformat(),
+                    "reason": reason.strip(),
+                    "recorded_at": records.utc_now(),
+                    "recorded_by": actor,
+                }
+            )
+            .last_pk
+        )
         assert pk is not None
         rid = int(pk)
         recall = recall_by_id(db, rid)
         reached = traceability.downstream(read_graph(db), recall.suspect)
-        records.append_event(db, actor, "recall.open", entity="recalls", entity_id=rid,
-                             batch_id=subject_id if kind == BATCH else None, reason=reason.strip(),
-                             detail={"subject": recall.subject_label, "suspect_from": suspect_from.isoformat(),
-                                     "releases_reached": sorted(int(k.split(":")[1]) for k in reached)})
+        records.append_event(
+            db,
+            actor,
+            "recall.open",
+            entity="recalls",
+            entity_id=rid,
+            batch_id=subject_id if kind == BATCH else None,
+            reason=reason.strip(),
+            detail={
+                "subject": recall.subject_label,
+                "suspect_from": suspect_from.isoformat(),
+                "releases_reached": sorted(int(k.split(":")[1]) for k in reached),
+            },
+        )
     return rid
 
 
-def clear_recall(db: sqlite_utils.Database, recall_id: int, batch_id: int | None, cleared_on: dt.date, reason: str,
-                 actor: str) -> int:
+def clear_recall(
+    db: sqlite_utils.Database, recall_id: int, batch_id: int | None, cleared_on: dt.date, reason: str, actor: str
+) -> int:
     """Clear a recall, with the reason: for one batch it reaches, or as a whole (batch_id None); return its id.
 
     Raises InvalidInput (reason, batch), NotFound, or Conflict when it is already cleared.
@@ -334,14 +435,32 @@ def clear_recall(db: sqlite_utils.Database, recall_id: int, batch_id: int | None
                 raise InvalidInput([FieldError("batch", "this recall does not reach that batch")])
             if any(c.batch_id == batch_id for c in recall.clearances):
                 raise Conflict(f"recall {recall_id} is already cleared for that batch")
-        pk = db["recall_clearances"].insert({  # type: ignore[union-attr]
-            "recall_id": recall_id, "batch_id": batch_id, "cleared_on": cleared_on.isoformat(),
-            "reason": reason.strip(), "recorded_at": records.utc_now(), "recorded_by": actor}).last_pk
+        pk = (
+            db["recall_clearances"]
+            .insert(
+                {  # type: ignore[union-attr]
+                    "recall_id": recall_id,
+                    "batch_id": batch_id,
+                    "cleared_on": cleared_on.isoformat(),
+                    "reason": reason.strip(),
+                    "recorded_at": records.utc_now(),
+                    "recorded_by": actor,
+                }
+            )
+            .last_pk
+        )
         assert pk is not None
         cid = int(pk)
-        records.append_event(db, actor, "recall.clear", entity="recall_clearances", entity_id=cid, batch_id=batch_id,
-                             reason=reason.strip(), detail={"recall": recall_id, "subject": recall.subject_label,
-                                                            "scope": "batch" if batch_id else "whole recall"})
+        records.append_event(
+            db,
+            actor,
+            "recall.clear",
+            entity="recall_clearances",
+            entity_id=cid,
+            batch_id=batch_id,
+            reason=reason.strip(),
+            detail={"recall": recall_id, "subject": recall.subject_label, "scope": "batch" if batch_id else "whole recall"},
+        )
     return cid
 
 
@@ -349,7 +468,8 @@ def clear_recall(db: sqlite_utils.Database, recall_id: int, batch_id: int | None
 # Reviews: what status_on needs
 
 _REVIEW_CACHE: weakref.WeakKeyDictionary[sqlite_utils.Database, tuple[int, dict[int, tuple[ReviewFact, ...]]]] = (
-    weakref.WeakKeyDictionary())
+    weakref.WeakKeyDictionary()
+)
 
 
 def review_facts(db: sqlite_utils.Database) -> dict[int, tuple[ReviewFact, ...]]:
@@ -374,8 +494,16 @@ def review_facts(db: sqlite_utils.Database) -> dict[int, tuple[ReviewFact, ...]]
             node = graph.node(key)
             assert node.batch_id is not None
             cleared = recall.cleared_for(node.batch_id)
-            out[node.batch_id].append(ReviewFact(recall.id, node.id, recall.subject_label, recall.suspect_from,
-                                                 recall.opened_on, cleared.cleared_on if cleared else None))
+            out[node.batch_id].append(
+                ReviewFact(
+                    recall.id,
+                    node.id,
+                    recall.subject_label,
+                    recall.suspect_from,
+                    recall.opened_on,
+                    cleared.cleared_on if cleared else None,
+                )
+            )
     facts = {k: tuple(v) for k, v in out.items()}
     _REVIEW_CACHE[db] = (mark, facts)
     return facts
@@ -522,17 +650,30 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
     nodes = {k: graph.node(k) for k in reached}
     batch_ids = sorted({n.batch_id for n in nodes.values() if n.batch_id is not None})
     facts = records.facts_of(db, batch_ids)
-    batches = {b["id"]: b for b in dbmod.query(
-        db, f"SELECT id, code, reagent, nominal_molarity FROM batches WHERE id IN ({','.join('?' * len(batch_ids))})",
-        batch_ids)} if batch_ids else {}
+    batches = (
+        {
+            b["id"]: b
+            for b in dbmod.query(
+                db,
+                f"SELECT id, code, reagent, nominal_molarity FROM batches WHERE id IN ({','.join('?' * len(batch_ids))})",
+                batch_ids,
+            )
+        }
+        if batch_ids
+        else {}
+    )
     release_ids = [n.id for n in nodes.values()]
     corrections: dict[int, list[dict[str, Any]]] = defaultdict(list)
     if release_ids:
-        for c in dbmod.query(db, "SELECT c.id, c.lab_day, c.titrant, c.batch_id, c.release_id, c.molarity_used, "
-                                 "c.certified_molarity, c.bench_temperature_c, c.row_count, c.recorded_at, "
-                                 "c.recorded_by, b.code AS batch_code FROM class_corrections c JOIN batches b ON "
-                                 f"b.id = c.batch_id WHERE c.release_id IN ({','.join('?' * len(release_ids))}) "
-                                 "ORDER BY c.lab_day, c.id", release_ids):
+        for c in dbmod.query(
+            db,
+            "SELECT c.id, c.lab_day, c.titrant, c.batch_id, c.release_id, c.molarity_used, "
+            "c.certified_molarity, c.bench_temperature_c, c.row_count, c.recorded_at, "
+            "c.recorded_by, b.code AS batch_code FROM class_corrections c JOIN batches b ON "
+            f"b.id = c.batch_id WHERE c.release_id IN ({','.join('?' * len(release_ids))}) "
+            "ORDER BY c.lab_day, c.id",
+            release_ids,
+        ):
             corrections[c["release_id"]].append(c)
     out: list[ReachedRelease] = []
     for key, r in reached.items():
@@ -542,13 +683,24 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
         rel = next(x for x in facts[n.batch_id].releases if x.id == n.id)
         start = max(n.released_on, r.suspect_from) if r.suspect_from else n.released_on
         end = min(n.ends_on or on, on)
-        made_with = tuple(c for c in corrections.get(n.id, ())
-                          if r.suspect_from is None or _d(c["lab_day"]) >= r.suspect_from)
-        out.append(ReachedRelease(
-            release_id=n.id, batch_id=n.batch_id, batch_code=b["code"], reagent=b["reagent"], released_on=n.released_on,
-            molarity=rel.molarity, U=rel.U, k=rel.k, depth=r.depth, via=_via(graph, r.via),
-            suspect_from=r.suspect_from, periods=_periods(facts[n.batch_id], n.id, start, end) if start <= end else (),
-            corrections=made_with))
+        made_with = tuple(c for c in corrections.get(n.id, ()) if r.suspect_from is None or _d(c["lab_day"]) >= r.suspect_from)
+        out.append(
+            ReachedRelease(
+                release_id=n.id,
+                batch_id=n.batch_id,
+                batch_code=b["code"],
+                reagent=b["reagent"],
+                released_on=n.released_on,
+                molarity=rel.molarity,
+                U=rel.U,
+                k=rel.k,
+                depth=r.depth,
+                via=_via(graph, r.via),
+                suspect_from=r.suspect_from,
+                periods=_periods(facts[n.batch_id], n.id, start, end) if start <= end else (),
+                corrections=made_with,
+            )
+        )
     out.sort(key=lambda x: (x.depth, x.batch_code, x.released_on, x.release_id))
     reached_by_batch: dict[int, set[int]] = defaultdict(set)
     for x in out:
@@ -569,16 +721,25 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
             elif report.status is Status.EXPIRED:
                 state, note = "expired", f"expired on {current.expires_on.isoformat()}; its value rested on the suspect item"
             else:
-                state, note = "under review", (f"the value in use, {molarity_text(current.molarity, current.U, current.k)}"
-                                               f" released {current.released_on.isoformat()}, rests on "
-                                               f"{recall.subject_label}")
+                state, note = (
+                    "under review",
+                    (
+                        f"the value in use, {molarity_text(current.molarity, current.U, current.k)}"
+                        f" released {current.released_on.isoformat()}, rests on "
+                        f"{recall.subject_label}"
+                    ),
+                )
         elif current is not None:
-            state, note = "re-standardized", (f"a new value, released {current.released_on.isoformat()} (release {current.id}), "
-                                              "does not rest on the suspect item")
+            state, note = (
+                "re-standardized",
+                (
+                    f"a new value, released {current.released_on.isoformat()} (release {current.id}), "
+                    "does not rest on the suspect item"
+                ),
+            )
         else:
             state, note = "withdrawn", "no value in force"
-        states.append(ReachedBatch(bid, b["code"], b["reagent"], float(b["nominal_molarity"]), state,
-                                   report.status.label, note))
+        states.append(ReachedBatch(bid, b["code"], b["reagent"], float(b["nominal_molarity"]), state, report.status.label, note))
     order = {"under review": 0, "cleared": 1, "re-standardized": 2, "expired": 3, "withdrawn": 4}
     states.sort(key=lambda s: (order.get(s.state, 9), s.code))
     return Impact(recall=recall, on=on, releases=tuple(out), batches=tuple(states))
@@ -587,9 +748,28 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
 # ---------------------------------------------------------------------------------------------------------
 # The report as CSV
 
-CSV_COLUMNS = ("section", "batch", "titrant", "release_id", "released_on", "molarity_mol_per_l", "U_mol_per_l", "k",
-               "links_from_suspect", "rests_on", "suspect_from", "from", "to", "days", "lab_day", "correction_id",
-               "molarity_used_mol_per_l", "rows", "state", "note")
+CSV_COLUMNS = (
+    "section",
+    "batch",
+    "titrant",
+    "release_id",
+    "released_on",
+    "molarity_mol_per_l",
+    "U_mol_per_l",
+    "k",
+    "links_from_suspect",
+    "rests_on",
+    "suspect_from",
+    "from",
+    "to",
+    "days",
+    "lab_day",
+    "correction_id",
+    "molarity_used_mol_per_l",
+    "rows",
+    "state",
+    "note",
+)
 
 
 def _cell(value: Any) -> str:
@@ -633,19 +813,43 @@ def impact_csv(report: Impact) -> str:
         w.writerow([_cell(line[c]) for c in CSV_COLUMNS])
 
     for r in report.releases:
-        row(section="release", batch=r.batch_code, titrant=r.reagent, release_id=r.release_id,
-            released_on=r.released_on.isoformat(), molarity_mol_per_l=f"{r.molarity:.6f}", U_mol_per_l=f"{r.U:.6f}",
-            k=f"{r.k:g}", links_from_suspect=r.depth, rests_on=r.via,
-            suspect_from=r.suspect_from.isoformat() if r.suspect_from else "whole life", days=r.days_in_force)
+        row(
+            section="release",
+            batch=r.batch_code,
+            titrant=r.reagent,
+            release_id=r.release_id,
+            released_on=r.released_on.isoformat(),
+            molarity_mol_per_l=f"{r.molarity:.6f}",
+            U_mol_per_l=f"{r.U:.6f}",
+            k=f"{r.k:g}",
+            links_from_suspect=r.depth,
+            rests_on=r.via,
+            suspect_from=r.suspect_from.isoformat() if r.suspect_from else "whole life",
+            days=r.days_in_force,
+        )
         for p in r.periods:
-            row(section="in_force", batch=r.batch_code, titrant=r.reagent, release_id=r.release_id,
-                **{"from": p.start.isoformat(), "to": p.end.isoformat()}, days=p.days)
+            row(
+                section="in_force",
+                batch=r.batch_code,
+                titrant=r.reagent,
+                release_id=r.release_id,
+                **{"from": p.start.isoformat(), "to": p.end.isoformat()},
+                days=p.days,
+            )
     for b in report.batches:
         row(section="batch", batch=b.code, titrant=b.reagent, state=b.state, note=b.note)
     for c in report.corrections:
-        row(section="correction", batch=c["batch_code"], titrant=c["titrant"], release_id=c["release_id"],
-            lab_day=c["lab_day"], correction_id=c["id"], molarity_used_mol_per_l=f"{c['molarity_used']:.6f}",
-            rows=c["row_count"], note=f"recorded {c['recorded_at']} by {c['recorded_by']}")
+        row(
+            section="correction",
+            batch=c["batch_code"],
+            titrant=c["titrant"],
+            release_id=c["release_id"],
+            lab_day=c["lab_day"],
+            correction_id=c["id"],
+            molarity_used_mol_per_l=f"{c['molarity_used']:.6f}",
+            rows=c["row_count"],
+            note=f"recorded {c['recorded_at']} by {c['recorded_by']}",
+        )
     return out.getvalue()
 
 
@@ -711,11 +915,15 @@ def reached_batch_ids(graph: Graph, recalls: Iterable[Recall]) -> dict[int, set[
 
 def subject_options(db: sqlite_utils.Database) -> dict[str, list[tuple[str, str]]]:
     """What can be recalled, for a form: kind -> [(value "kind:id", text)]."""
-    lots = [(f"{LOT}:{r['id']}", f"{r['code']} · {r['substance']} · {r['supplier_lot'] or '—'}")
-            for r in dbmod.query(db, "SELECT id, code, substance, supplier_lot FROM standard_lots ORDER BY code")]
+    lots = [
+        (f"{LOT}:{r['id']}", f"{r['code']} · {r['substance']} · {r['supplier_lot'] or '—'}")
+        for r in dbmod.query(db, "SELECT id, code, substance, supplier_lot FROM standard_lots ORDER BY code")
+    ]
     insts = [(f"{INSTRUMENT}:{i.id}", f"{i.code} · {i.kind} · {i.summary()}") for i in inst_mod.list_instruments(db)]
-    batches = [(f"{BATCH}:{r['id']}", f"{r['code']} · {r['reagent']} {r['nominal_molarity']:g} mol/L")
-               for r in dbmod.query(db, "SELECT id, code, reagent, nominal_molarity FROM batches ORDER BY code")]
+    batches = [
+        (f"{BATCH}:{r['id']}", f"{r['code']} · {r['reagent']} {r['nominal_molarity']:g} mol/L")
+        for r in dbmod.query(db, "SELECT id, code, reagent, nominal_molarity FROM batches ORDER BY code")
+    ]
     return {LOT: lots, INSTRUMENT: insts, BATCH: batches}
 
 

@@ -39,25 +39,38 @@ def _d(value: str | None) -> dt.date | None:
 
 # ---------------------------------------------------------------- audit trail
 
+
 def _event_hash(prev_hash: str, row: dict[str, Any]) -> str:
     body = json.dumps(
-        {k: row[k] for k in ("occurred_at", "actor", "action", "entity", "entity_id", "batch_id",
-                             "reason", "detail")},
-        sort_keys=True, separators=(",", ":"),
+        {k: row[k] for k in ("occurred_at", "actor", "action", "entity", "entity_id", "batch_id", "reason", "detail")},
+        sort_keys=True,
+        separators=(",", ":"),
     )
     return hashlib.sha256((prev_hash + body).encode("utf-8")).hexdigest()
 
 
 def append_event(
-    db: sqlite_utils.Database, actor: str, action: str, *, entity: str = "", entity_id: int | None = None,
-    batch_id: int | None = None, reason: str = "", detail: dict[str, Any] | None = None,
+    db: sqlite_utils.Database,
+    actor: str,
+    action: str,
+    *,
+    entity: str = "",
+    entity_id: int | None = None,
+    batch_id: int | None = None,
+    reason: str = "",
+    detail: dict[str, Any] | None = None,
 ) -> int:
     """Append one audit entry chained to the previous one by SHA-256; call inside a write."""
     last = db.execute("SELECT hash FROM events ORDER BY id DESC LIMIT 1").fetchone()
     prev_hash = last[0] if last else GENESIS_HASH
     row: dict[str, Any] = {
-        "occurred_at": utc_now(), "actor": actor, "action": action, "entity": entity,
-        "entity_id": entity_id, "batch_id": batch_id, "reason": reason,
+        "occurred_at": utc_now(),
+        "actor": actor,
+        "action": action,
+        "entity": entity,
+        "entity_id": entity_id,
+        "batch_id": batch_id,
+        "reason": reason,
         "detail": json.dumps(detail or {}, sort_keys=True, separators=(",", ":"), default=str),
     }
     row["prev_hash"] = prev_hash
@@ -68,10 +81,17 @@ def append_event(
 # Each record table and the audit action its rows are written with: a record without its entry means
 # the entry (perhaps the newest, which the chain alone cannot miss) was removed behind our back.
 RECORD_EVENTS = {
-    "batches": "batch.register", "standard_lots": "lot.register", "releases": "batch.release",
-    "withdrawals": "batch.withdraw", "amendments": "batch.amend", "label_prints": "label.print",
-    "class_corrections": "classdata.correct", "instruments": "instrument.register",
-    "calibrations": "instrument.calibrate", "recalls": "recall.open", "recall_clearances": "recall.clear",
+    "batches": "batch.register",
+    "standard_lots": "lot.register",
+    "releases": "batch.release",
+    "withdrawals": "batch.withdraw",
+    "amendments": "batch.amend",
+    "label_prints": "label.print",
+    "class_corrections": "classdata.correct",
+    "instruments": "instrument.register",
+    "calibrations": "instrument.calibrate",
+    "recalls": "recall.open",
+    "recall_clearances": "recall.clear",
     "api_tokens": "token.create",
 }
 
@@ -82,10 +102,14 @@ def unaudited_records(db: sqlite_utils.Database) -> list[tuple[str, int]]:
     for table, action in RECORD_EVENTS.items():
         for row in db.execute(
             f"SELECT t.id FROM {table} t WHERE NOT EXISTS (SELECT 1 FROM events e WHERE e.entity = ? "
-            f"AND e.entity_id = t.id AND e.action = ?) ORDER BY t.id", [table, action]):
+            f"AND e.entity_id = t.id AND e.action = ?) ORDER BY t.id",
+            [table, action],
+        ):
             out.append((table, int(row[0])))
-    for row in db.execute("SELECT r.id FROM runs r WHERE NOT EXISTS (SELECT 1 FROM events e WHERE "
-                          "e.entity = 'runs' AND e.entity_id = r.id AND e.action LIKE 'run.record.%') ORDER BY r.id"):
+    for row in db.execute(
+        "SELECT r.id FROM runs r WHERE NOT EXISTS (SELECT 1 FROM events e WHERE "
+        "e.entity = 'runs' AND e.entity_id = r.id AND e.action LIKE 'run.record.%') ORDER BY r.id"
+    ):
         out.append(("runs", int(row[0])))
     return out
 
@@ -107,37 +131,69 @@ def verify_chain(db: sqlite_utils.Database) -> int | None:
 
 # ---------------------------------------------------------------- policy
 
+
 def seed_default_policies(db: sqlite_utils.Database) -> None:
     """Write the starting reagent policies (used by a migration on a new database)."""
     now = utc_now()
     for p in DEFAULT_POLICIES:
-        dbmod.insert_row(db, "reagent_policies", {
-            "reagent": p.reagent, "nominal_molarities": json.dumps(list(p.nominal_molarities)),
-            "shelf_life_days": p.shelf_life_days, "recheck_interval_days": p.recheck_interval_days,
-            "tolerance_rel": p.tolerance_rel, "max_rsd": p.max_rsd, "min_replicates": p.min_replicates,
-            "effective_from": "2000-01-01", "recorded_at": now, "recorded_by": "system",
-            "reason": "starting policy",
-        })
+        dbmod.insert_row(
+            db,
+            "reagent_policies",
+            {
+                "reagent": p.reagent,
+                "nominal_molarities": json.dumps(list(p.nominal_molarities)),
+                "shelf_life_days": p.shelf_life_days,
+                "recheck_interval_days": p.recheck_interval_days,
+                "tolerance_rel": p.tolerance_rel,
+                "max_rsd": p.max_rsd,
+                "min_replicates": p.min_replicates,
+                "effective_from": "2000-01-01",
+                "recorded_at": now,
+                "recorded_by": "system",
+                "reason": "starting policy",
+            },
+        )
 
 
-def add_policy(db: sqlite_utils.Database, policy: ReagentPolicy, effective_from: dt.date, reason: str,
-               actor: str) -> int:
+def add_policy(db: sqlite_utils.Database, policy: ReagentPolicy, effective_from: dt.date, reason: str, actor: str) -> int:
     """Record a new policy for a reagent from a date; earlier policy rows stay as they were written."""
     if not reason.strip():
         raise InvalidInput([FieldError("reason", "give the reason for the change of policy")])
     with dbmod.write(db):
-        pid = dbmod.insert_row(db, "reagent_policies", {
-            "reagent": policy.reagent, "nominal_molarities": json.dumps(list(policy.nominal_molarities)),
-            "shelf_life_days": policy.shelf_life_days, "recheck_interval_days": policy.recheck_interval_days,
-            "tolerance_rel": policy.tolerance_rel, "max_rsd": policy.max_rsd,
-            "min_replicates": policy.min_replicates, "effective_from": effective_from.isoformat(),
-            "recorded_at": utc_now(), "recorded_by": actor, "reason": reason.strip()})
-        append_event(db, actor, "policy.change", entity="reagent_policies", entity_id=pid, reason=reason.strip(),
-                     detail={"reagent": policy.reagent, "effective_from": effective_from.isoformat(),
-                             "shelf_life_days": policy.shelf_life_days,
-                             "recheck_interval_days": policy.recheck_interval_days,
-                             "tolerance_rel": policy.tolerance_rel, "max_rsd": policy.max_rsd,
-                             "min_replicates": policy.min_replicates})
+        pid = dbmod.insert_row(
+            db,
+            "reagent_policies",
+            {
+                "reagent": policy.reagent,
+                "nominal_molarities": json.dumps(list(policy.nominal_molarities)),
+                "shelf_life_days": policy.shelf_life_days,
+                "recheck_interval_days": policy.recheck_interval_days,
+                "tolerance_rel": policy.tolerance_rel,
+                "max_rsd": policy.max_rsd,
+                "min_replicates": policy.min_replicates,
+                "effective_from": effective_from.isoformat(),
+                "recorded_at": utc_now(),
+                "recorded_by": actor,
+                "reason": reason.strip(),
+            },
+        )
+        append_event(
+            db,
+            actor,
+            "policy.change",
+            entity="reagent_policies",
+            entity_id=pid,
+            reason=reason.strip(),
+            detail={
+                "reagent": policy.reagent,
+                "effective_from": effective_from.isoformat(),
+                "shelf_life_days": policy.shelf_life_days,
+                "recheck_interval_days": policy.recheck_interval_days,
+                "tolerance_rel": policy.tolerance_rel,
+                "max_rsd": policy.max_rsd,
+                "min_replicates": policy.min_replicates,
+            },
+        )
     return pid
 
 
@@ -148,17 +204,20 @@ def policy_history(db: sqlite_utils.Database) -> list[dict[str, Any]]:
 
 def _policy_from_row(r: dict[str, Any]) -> ReagentPolicy:
     return ReagentPolicy(
-        reagent=r["reagent"], nominal_molarities=tuple(json.loads(r["nominal_molarities"])),
-        shelf_life_days=r["shelf_life_days"], recheck_interval_days=r["recheck_interval_days"],
-        tolerance_rel=r["tolerance_rel"], max_rsd=r["max_rsd"], min_replicates=r["min_replicates"],
+        reagent=r["reagent"],
+        nominal_molarities=tuple(json.loads(r["nominal_molarities"])),
+        shelf_life_days=r["shelf_life_days"],
+        recheck_interval_days=r["recheck_interval_days"],
+        tolerance_rel=r["tolerance_rel"],
+        max_rsd=r["max_rsd"],
+        min_replicates=r["min_replicates"],
     )
 
 
 def policies(db: sqlite_utils.Database, on: dt.date | None = None) -> dict[str, ReagentPolicy]:
     """The policy in force for every reagent on a date (today when None)."""
     day = (on or dt.date.today()).isoformat()
-    rows = dbmod.query(db, "SELECT * FROM reagent_policies WHERE effective_from <= ? ORDER BY reagent, "
-                           "effective_from, id", [day])
+    rows = dbmod.query(db, "SELECT * FROM reagent_policies WHERE effective_from <= ? ORDER BY reagent, effective_from, id", [day])
     out: dict[str, ReagentPolicy] = {}
     for r in rows:
         out[r["reagent"]] = _policy_from_row(r)  # later rows overwrite earlier: newest wins
@@ -185,8 +244,19 @@ def next_batch_code(db: sqlite_utils.Database, reagent: str, prepared_on: dt.dat
     return f"{stem}{row[0] + 1:02d}"
 
 
-BATCH_FIELDS = ("reagent", "nominal_molarity", "volume_l", "prepared_on", "prepared_by", "concentrate_lot",
-                "concentrate_assay_w_w", "concentrate_density_g_ml", "water_grade", "container", "notes")
+BATCH_FIELDS = (
+    "reagent",
+    "nominal_molarity",
+    "volume_l",
+    "prepared_on",
+    "prepared_by",
+    "concentrate_lot",
+    "concentrate_assay_w_w",
+    "concentrate_density_g_ml",
+    "water_grade",
+    "container",
+    "notes",
+)
 
 
 def create_batch(db: sqlite_utils.Database, values: dict[str, Any], actor: str) -> dict[str, Any]:
@@ -201,17 +271,31 @@ def create_batch(db: sqlite_utils.Database, values: dict[str, Any], actor: str) 
         row["recorded_at"] = utc_now()
         row["recorded_by"] = actor
         batch_id = dbmod.insert_row(db, "batches", row)
-        append_event(db, actor, "batch.register", entity="batches", entity_id=batch_id, batch_id=batch_id,
-                     detail={"code": row["code"], "reagent": row["reagent"],
-                             "nominal_molarity": row["nominal_molarity"]})
+        append_event(
+            db,
+            actor,
+            "batch.register",
+            entity="batches",
+            entity_id=batch_id,
+            batch_id=batch_id,
+            detail={"code": row["code"], "reagent": row["reagent"], "nominal_molarity": row["nominal_molarity"]},
+        )
         row["id"] = batch_id
     return row
 
 
 # Fields of a batch that a correction may change; the reagent, nominal and dates are what the batch is,
 # so a mistake there is a new batch, not a correction.
-AMENDABLE_BATCH_FIELDS = ("volume_l", "prepared_by", "concentrate_lot", "concentrate_assay_w_w",
-                          "concentrate_density_g_ml", "water_grade", "container", "notes")
+AMENDABLE_BATCH_FIELDS = (
+    "volume_l",
+    "prepared_by",
+    "concentrate_lot",
+    "concentrate_assay_w_w",
+    "concentrate_density_g_ml",
+    "water_grade",
+    "container",
+    "notes",
+)
 
 
 def _overlay(rows: list[dict[str, Any]], db: sqlite_utils.Database) -> list[dict[str, Any]]:
@@ -221,9 +305,12 @@ def _overlay(rows: list[dict[str, Any]], db: sqlite_utils.Database) -> list[dict
     ids = [r["id"] for r in rows]
     found: dict[int, dict[str, Any]] = defaultdict(dict)
     for i in range(0, len(ids), 500):
-        chunk = ids[i:i + 500]
-        for a in db.execute(f"SELECT entity_id, field, new_value FROM amendments WHERE entity = 'batches' AND "
-                            f"entity_id IN ({','.join('?' * len(chunk))}) ORDER BY id", chunk):
+        chunk = ids[i : i + 500]
+        for a in db.execute(
+            f"SELECT entity_id, field, new_value FROM amendments WHERE entity = 'batches' AND "
+            f"entity_id IN ({','.join('?' * len(chunk))}) ORDER BY id",
+            chunk,
+        ):
             found[a["entity_id"]][a["field"]] = json.loads(a["new_value"])
     for r in rows:
         changes = found.get(r["id"])
@@ -249,8 +336,7 @@ def batch_by_id(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:
     return _overlay(rows, db)[0]
 
 
-def amend_batch(db: sqlite_utils.Database, batch_id: int, field: str, new_value: Any, reason: str,
-                actor: str) -> int:
+def amend_batch(db: sqlite_utils.Database, batch_id: int, field: str, new_value: Any, reason: str, actor: str) -> int:
     """Correct one descriptive field of a batch: a new attributed entry with the reason, before and after."""
     if field not in AMENDABLE_BATCH_FIELDS:
         raise InvalidInput([FieldError("field", "this detail cannot be corrected; register a new batch instead")])
@@ -261,19 +347,48 @@ def amend_batch(db: sqlite_utils.Database, batch_id: int, field: str, new_value:
         old_value = batch.get(field)
         if old_value == new_value:
             raise InvalidInput([FieldError("new_value", "is the same as the current value")])
-        aid = dbmod.insert_row(db, "amendments", {
-            "entity": "batches", "entity_id": batch_id, "field": field, "old_value": json.dumps(old_value),
-            "new_value": json.dumps(new_value), "reason": reason.strip(), "recorded_at": utc_now(),
-            "recorded_by": actor})
-        append_event(db, actor, "batch.amend", entity="amendments", entity_id=aid, batch_id=batch_id,
-                     reason=reason.strip(), detail={"field": field, "before": old_value, "after": new_value})
+        aid = dbmod.insert_row(
+            db,
+            "amendments",
+            {
+                "entity": "batches",
+                "entity_id": batch_id,
+                "field": field,
+                "old_value": json.dumps(old_value),
+                "new_value": json.dumps(new_value),
+                "reason": reason.strip(),
+                "recorded_at": utc_now(),
+                "recorded_by": actor,
+            },
+        )
+        append_event(
+            db,
+            actor,
+            "batch.amend",
+            entity="amendments",
+            entity_id=aid,
+            batch_id=batch_id,
+            reason=reason.strip(),
+            detail={"field": field, "before": old_value, "after": new_value},
+        )
     return aid
 
 
 # ---------------------------------------------------------------- standard lots
 
-LOT_FIELDS = ("substance", "supplier", "supplier_lot", "assay", "assay_expanded_u", "assay_k", "expires_on",
-              "dried_on", "dried_at_c", "storage_note", "received_on")
+LOT_FIELDS = (
+    "substance",
+    "supplier",
+    "supplier_lot",
+    "assay",
+    "assay_expanded_u",
+    "assay_k",
+    "expires_on",
+    "dried_on",
+    "dried_at_c",
+    "storage_note",
+    "received_on",
+)
 
 
 def create_lot(db: sqlite_utils.Database, values: dict[str, Any], actor: str) -> dict[str, Any]:
@@ -290,8 +405,14 @@ def create_lot(db: sqlite_utils.Database, values: dict[str, Any], actor: str) ->
         row["recorded_at"] = utc_now()
         row["recorded_by"] = actor
         lot_id = dbmod.insert_row(db, "standard_lots", row)
-        append_event(db, actor, "lot.register", entity="standard_lots", entity_id=lot_id,
-                     detail={"code": row["code"], "substance": row["substance"], "assay": row["assay"]})
+        append_event(
+            db,
+            actor,
+            "lot.register",
+            entity="standard_lots",
+            entity_id=lot_id,
+            detail={"code": row["code"], "substance": row["substance"], "assay": row["assay"]},
+        )
         row["id"] = lot_id
     return row
 
@@ -309,24 +430,60 @@ def list_lots(db: sqlite_utils.Database) -> list[dict[str, Any]]:
 
 # ---------------------------------------------------------------- runs, decisions, releases
 
-RUN_FIELDS = ("batch_id", "purpose", "method", "standard_lot_id", "reference_batch_id", "reference_release_id",
-              "performed_on", "analyst", "temperature_c", "burette_capacity_ml", "endpoint", "notes")
-REPLICATE_FIELDS = ("position", "mass_gross_g", "mass_tare_g", "mass_g", "aliquot_ml", "initial_ml", "final_ml",
-                    "volume_ml", "blank_ml", "temperature_c", "molarity")
+RUN_FIELDS = (
+    "batch_id",
+    "purpose",
+    "method",
+    "standard_lot_id",
+    "reference_batch_id",
+    "reference_release_id",
+    "performed_on",
+    "analyst",
+    "temperature_c",
+    "burette_capacity_ml",
+    "endpoint",
+    "notes",
+)
+REPLICATE_FIELDS = (
+    "position",
+    "mass_gross_g",
+    "mass_tare_g",
+    "mass_g",
+    "aliquot_ml",
+    "initial_ml",
+    "final_ml",
+    "volume_ml",
+    "blank_ml",
+    "temperature_c",
+    "molarity",
+)
 
 
 def _result_row(run_id: int, result: dict[str, Any], cause: str, actor: str) -> dict[str, Any]:
     return {
-        "run_id": run_id, "cause": cause, "molarity": result["molarity"], "u": result["u"],
-        "expanded_u": result["U"], "k": result["k"], "n": result["n"], "sd": result.get("sd"),
-        "rsd": result.get("rsd"), "accepted_by_rule": 1 if result.get("accepted") else 0,
-        "result_json": json.dumps(result, default=str), "recorded_at": utc_now(), "recorded_by": actor,
+        "run_id": run_id,
+        "cause": cause,
+        "molarity": result["molarity"],
+        "u": result["u"],
+        "expanded_u": result["U"],
+        "k": result["k"],
+        "n": result["n"],
+        "sd": result.get("sd"),
+        "rsd": result.get("rsd"),
+        "accepted_by_rule": 1 if result.get("accepted") else 0,
+        "result_json": json.dumps(result, default=str),
+        "recorded_at": utc_now(),
+        "recorded_by": actor,
     }
 
 
 def record_run(
-    db: sqlite_utils.Database, run: dict[str, Any], replicates: list[dict[str, Any]], result: dict[str, Any],
-    actor: str, exclusions: Iterable[tuple[int, str]] = (),
+    db: sqlite_utils.Database,
+    run: dict[str, Any],
+    replicates: list[dict[str, Any]],
+    result: dict[str, Any],
+    actor: str,
+    exclusions: Iterable[tuple[int, str]] = (),
 ) -> int:
     """Store a run, its replicates, exclusions and computed result in one write; return the run id.
 
@@ -346,13 +503,32 @@ def record_run(
             rep_row["run_id"] = run_id
             dbmod.insert_row(db, "replicates", rep_row)
         for position, reason in exclusions:
-            dbmod.insert_row(db, "exclusions", {"run_id": run_id, "position": position, "reason": reason.strip(),
-                                     "recorded_at": row["recorded_at"], "recorded_by": actor})
+            dbmod.insert_row(
+                db,
+                "exclusions",
+                {
+                    "run_id": run_id,
+                    "position": position,
+                    "reason": reason.strip(),
+                    "recorded_at": row["recorded_at"],
+                    "recorded_by": actor,
+                },
+            )
         dbmod.insert_row(db, "run_results", _result_row(run_id, result, "recorded", actor))
-        append_event(db, actor, f"run.record.{row['purpose']}", entity="runs", entity_id=run_id,
-                     batch_id=row["batch_id"],
-                     detail={"n": result.get("n"), "molarity": result.get("molarity"), "U": result.get("U"),
-                             "excluded": [p for p, _ in exclusions]})
+        append_event(
+            db,
+            actor,
+            f"run.record.{row['purpose']}",
+            entity="runs",
+            entity_id=run_id,
+            batch_id=row["batch_id"],
+            detail={
+                "n": result.get("n"),
+                "molarity": result.get("molarity"),
+                "U": result.get("U"),
+                "excluded": [p for p, _ in exclusions],
+            },
+        )
     return run_id
 
 
@@ -360,8 +536,11 @@ def _latest_results(db: sqlite_utils.Database, run_ids: list[int]) -> dict[int, 
     if not run_ids:
         return {}
     marks = ",".join("?" * len(run_ids))
-    rows = dbmod.query(db, f"SELECT * FROM run_results WHERE id IN (SELECT max(id) FROM run_results "
-                           f"WHERE run_id IN ({marks}) GROUP BY run_id)", run_ids)
+    rows = dbmod.query(
+        db,
+        f"SELECT * FROM run_results WHERE id IN (SELECT max(id) FROM run_results WHERE run_id IN ({marks}) GROUP BY run_id)",
+        run_ids,
+    )
     out = {}
     for r in rows:
         r["result"] = json.loads(r.pop("result_json"))
@@ -382,8 +561,9 @@ def run_by_id(db: sqlite_utils.Database, run_id: int) -> dict[str, Any]:
     return run
 
 
-def exclude_replicate(db: sqlite_utils.Database, run_id: int, position: int, reason: str,
-                      result: dict[str, Any], actor: str) -> None:
+def exclude_replicate(
+    db: sqlite_utils.Database, run_id: int, position: int, reason: str, result: dict[str, Any], actor: str
+) -> None:
     """Record that one replicate is left out of an undecided run, with the reason and the new result."""
     if not reason.strip():
         raise InvalidInput([FieldError("reason", "give the reason for excluding this replicate")])
@@ -395,15 +575,30 @@ def exclude_replicate(db: sqlite_utils.Database, run_id: int, position: int, rea
             raise Conflict(f"replicate {position} is already excluded")
         if run["decisions"]:
             raise Conflict("this run has already been decided; record a new run instead")
-        dbmod.insert_row(db, "exclusions", {"run_id": run_id, "position": position, "reason": reason.strip(),
-                                 "recorded_at": utc_now(), "recorded_by": actor})
+        dbmod.insert_row(
+            db,
+            "exclusions",
+            {"run_id": run_id, "position": position, "reason": reason.strip(), "recorded_at": utc_now(), "recorded_by": actor},
+        )
         dbmod.insert_row(db, "run_results", _result_row(run_id, result, f"exclusion of replicate {position}", actor))
-        append_event(db, actor, "replicate.exclude", entity="runs", entity_id=run_id, batch_id=run["batch_id"],
-                     reason=reason.strip(), detail={"position": position, "molarity": result["molarity"]})
+        append_event(
+            db,
+            actor,
+            "replicate.exclude",
+            entity="runs",
+            entity_id=run_id,
+            batch_id=run["batch_id"],
+            reason=reason.strip(),
+            detail={"position": position, "molarity": result["molarity"]},
+        )
 
 
 def decide_run(
-    db: sqlite_utils.Database, run_id: int, decision: str, reason: str, actor: str,
+    db: sqlite_utils.Database,
+    run_id: int,
+    decision: str,
+    reason: str,
+    actor: str,
     release: dict[str, Any] | None = None,
 ) -> int | None:
     """Accept or reject a run; accepting a certifying run writes a release (given); return its id."""
@@ -413,10 +608,14 @@ def decide_run(
             raise Conflict("this run has already been decided")
         if decision == "reject" and not reason.strip():
             raise InvalidInput([FieldError("reason", "give the reason for rejecting this run")])
-        dbmod.insert_row(db, "decisions", {"run_id": run_id, "decision": decision, "reason": reason.strip(),
-                                "recorded_at": utc_now(), "recorded_by": actor})
-        append_event(db, actor, f"run.{decision}", entity="runs", entity_id=run_id, batch_id=run["batch_id"],
-                     reason=reason.strip())
+        dbmod.insert_row(
+            db,
+            "decisions",
+            {"run_id": run_id, "decision": decision, "reason": reason.strip(), "recorded_at": utc_now(), "recorded_by": actor},
+        )
+        append_event(
+            db, actor, f"run.{decision}", entity="runs", entity_id=run_id, batch_id=run["batch_id"], reason=reason.strip()
+        )
         release_id = None
         if decision == "accept" and run["purpose"] == "certify":
             if release is None:
@@ -429,22 +628,42 @@ def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict
     batch_id = run["batch_id"]
     if withdrawal_of(db, batch_id) is not None:
         raise Conflict("this batch has been withdrawn; it cannot be released again")
-    previous = db.execute("SELECT id FROM releases WHERE batch_id = ? ORDER BY released_on DESC, id DESC LIMIT 1",
-                          [batch_id]).fetchone()
+    previous = db.execute(
+        "SELECT id FROM releases WHERE batch_id = ? ORDER BY released_on DESC, id DESC LIMIT 1", [batch_id]
+    ).fetchone()
     row = {
-        "batch_id": batch_id, "run_id": run["id"], "molarity": release["molarity"], "u": release["u"],
-        "expanded_u": release["U"], "k": release["k"],
+        "batch_id": batch_id,
+        "run_id": run["id"],
+        "molarity": release["molarity"],
+        "u": release["u"],
+        "expanded_u": release["U"],
+        "k": release["k"],
         "reference_temperature_c": release.get("reference_temperature_c", 20.0),
-        "released_on": release["released_on"], "expires_on": release["expires_on"],
-        "recheck_interval_days": release["recheck_interval_days"], "tolerance_rel": release["tolerance_rel"],
+        "released_on": release["released_on"],
+        "expires_on": release["expires_on"],
+        "recheck_interval_days": release["recheck_interval_days"],
+        "tolerance_rel": release["tolerance_rel"],
         "supersedes_id": previous[0] if previous else None,
-        "recorded_at": utc_now(), "recorded_by": actor,
+        "recorded_at": utc_now(),
+        "recorded_by": actor,
     }
     release_id = dbmod.insert_row(db, "releases", row)
-    append_event(db, actor, "batch.release", entity="releases", entity_id=release_id, batch_id=batch_id,
-                 detail={"molarity": row["molarity"], "U": row["expanded_u"], "k": row["k"],
-                         "released_on": row["released_on"], "expires_on": row["expires_on"],
-                         "supersedes": row["supersedes_id"]})
+    append_event(
+        db,
+        actor,
+        "batch.release",
+        entity="releases",
+        entity_id=release_id,
+        batch_id=batch_id,
+        detail={
+            "molarity": row["molarity"],
+            "U": row["expanded_u"],
+            "k": row["k"],
+            "released_on": row["released_on"],
+            "expires_on": row["expires_on"],
+            "supersedes": row["supersedes_id"],
+        },
+    )
     return release_id
 
 
@@ -453,23 +672,39 @@ def withdrawal_of(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any] | 
     return rows[0] if rows else None
 
 
-def withdraw_batch(db: sqlite_utils.Database, batch_id: int, withdrawn_on: dt.date, reason: str,
-                   actor: str) -> int:
+def withdraw_batch(db: sqlite_utils.Database, batch_id: int, withdrawn_on: dt.date, reason: str, actor: str) -> int:
     """Withdraw a batch from use from a date, with the reason; a batch is withdrawn once."""
     if not reason.strip():
         raise InvalidInput([FieldError("reason", "give the reason for withdrawing this batch")])
     with dbmod.write(db):
         if withdrawal_of(db, batch_id) is not None:
             raise Conflict("this batch is already withdrawn")
-        wid = dbmod.insert_row(db, "withdrawals", {
-            "batch_id": batch_id, "withdrawn_on": withdrawn_on.isoformat(), "reason": reason.strip(),
-            "recorded_at": utc_now(), "recorded_by": actor})
-        append_event(db, actor, "batch.withdraw", entity="withdrawals", entity_id=wid, batch_id=batch_id,
-                     reason=reason.strip(), detail={"withdrawn_on": withdrawn_on.isoformat()})
+        wid = dbmod.insert_row(
+            db,
+            "withdrawals",
+            {
+                "batch_id": batch_id,
+                "withdrawn_on": withdrawn_on.isoformat(),
+                "reason": reason.strip(),
+                "recorded_at": utc_now(),
+                "recorded_by": actor,
+            },
+        )
+        append_event(
+            db,
+            actor,
+            "batch.withdraw",
+            entity="withdrawals",
+            entity_id=wid,
+            batch_id=batch_id,
+            reason=reason.strip(),
+            detail={"withdrawn_on": withdrawn_on.isoformat()},
+        )
     return wid
 
 
 # ---------------------------------------------------------------- derived views
+
 
 @dataclass(frozen=True)
 class BatchView:
@@ -489,12 +724,24 @@ def facts_of(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = None) 
         where = f" WHERE batch_id IN ({','.join('?' * len(ids))})"
         params = ids
     releases: dict[int, list[ReleaseFact]] = defaultdict(list)
-    for r in db.execute("SELECT id, batch_id, released_on, expires_on, molarity, u, expanded_u, k, recheck_interval_days, "
-                        "tolerance_rel FROM releases" + where, params):
-        releases[r["batch_id"]].append(ReleaseFact(
-            id=r["id"], released_on=dt.date.fromisoformat(r["released_on"]),
-            expires_on=dt.date.fromisoformat(r["expires_on"]), molarity=r["molarity"], u=r["u"], U=r["expanded_u"],
-            k=r["k"], recheck_interval_days=r["recheck_interval_days"], tolerance_rel=r["tolerance_rel"]))
+    for r in db.execute(
+        "SELECT id, batch_id, released_on, expires_on, molarity, u, expanded_u, k, recheck_interval_days, "
+        "tolerance_rel FROM releases" + where,
+        params,
+    ):
+        releases[r["batch_id"]].append(
+            ReleaseFact(
+                id=r["id"],
+                released_on=dt.date.fromisoformat(r["released_on"]),
+                expires_on=dt.date.fromisoformat(r["expires_on"]),
+                molarity=r["molarity"],
+                u=r["u"],
+                U=r["expanded_u"],
+                k=r["k"],
+                recheck_interval_days=r["recheck_interval_days"],
+                tolerance_rel=r["tolerance_rel"],
+            )
+        )
     checks: dict[int, list[CheckFact]] = defaultdict(list)
     check_where = where.replace("batch_id", "r.batch_id")
     for r in db.execute(
@@ -506,17 +753,27 @@ def facts_of(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = None) 
         params,
     ):
         checks[r["batch_id"]].append(CheckFact(dt.date.fromisoformat(r["performed_on"]), r["molarity"], r["u"]))
-    withdrawn = {r["batch_id"]: dt.date.fromisoformat(r["withdrawn_on"])
-                 for r in db.execute("SELECT batch_id, min(withdrawn_on) AS withdrawn_on FROM withdrawals"
-                                     + where + " GROUP BY batch_id", params)}
-    prepared = {r["id"]: dt.date.fromisoformat(r["prepared_on"]) for r in db.execute(
-        "SELECT id, prepared_on FROM batches" + (where.replace("batch_id", "id") if where else ""), params)}
+    withdrawn = {
+        r["batch_id"]: dt.date.fromisoformat(r["withdrawn_on"])
+        for r in db.execute(
+            "SELECT batch_id, min(withdrawn_on) AS withdrawn_on FROM withdrawals" + where + " GROUP BY batch_id", params
+        )
+    }
+    prepared = {
+        r["id"]: dt.date.fromisoformat(r["prepared_on"])
+        for r in db.execute("SELECT id, prepared_on FROM batches" + (where.replace("batch_id", "id") if where else ""), params)
+    }
     from stockroom.recall import review_facts  # recall reads these records: imported here to avoid a cycle
 
     reviews = review_facts(db)  # one query while no recall is on record
     return {
-        bid: BatchFacts(prepared_on=p, releases=tuple(releases.get(bid, ())), rechecks=tuple(checks.get(bid, ())),
-                        withdrawn_on=withdrawn.get(bid), reviews=reviews.get(bid, ()))
+        bid: BatchFacts(
+            prepared_on=p,
+            releases=tuple(releases.get(bid, ())),
+            rechecks=tuple(checks.get(bid, ())),
+            withdrawn_on=withdrawn.get(bid),
+            reviews=reviews.get(bid, ()),
+        )
         for bid, p in prepared.items()
     }
 
@@ -532,7 +789,11 @@ COARSE_FINAL = ("expired", "withdrawn")
 
 
 def coarse_statuses(
-    db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None, search: str | None = None,
+    db: sqlite_utils.Database,
+    on: dt.date,
+    *,
+    reagent: str | None = None,
+    search: str | None = None,
 ) -> list[tuple[int, str, str | None]]:
     """(batch id, coarse status, since) of every batch that existed on `on`, newest first, from SQL alone.
 
@@ -579,7 +840,7 @@ def views_of(db: sqlite_utils.Database, ids: list[int], on: dt.date) -> list[Bat
         return []
     rows: dict[int, dict[str, Any]] = {}
     for i in range(0, len(ids), 500):
-        chunk = ids[i:i + 500]
+        chunk = ids[i : i + 500]
         for r in dbmod.query(db, f"SELECT * FROM batches WHERE id IN ({','.join('?' * len(chunk))})", chunk):
             rows[r["id"]] = r
     _overlay(list(rows.values()), db)
@@ -588,8 +849,14 @@ def views_of(db: sqlite_utils.Database, ids: list[int], on: dt.date) -> list[Bat
 
 
 def batch_page(
-    db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None, status: str | None = None,
-    search: str | None = None, limit: int | None = None, offset: int = 0,
+    db: sqlite_utils.Database,
+    on: dt.date,
+    *,
+    reagent: str | None = None,
+    status: str | None = None,
+    search: str | None = None,
+    limit: int | None = None,
+    offset: int = 0,
 ) -> tuple[list[BatchView], int]:
     """One page of the batches that existed on `on` (optionally filtered), newest first, and how many match.
 
@@ -607,7 +874,11 @@ def batch_page(
 
 
 def batch_views(
-    db: sqlite_utils.Database, on: dt.date, *, reagent: str | None = None, status: str | None = None,
+    db: sqlite_utils.Database,
+    on: dt.date,
+    *,
+    reagent: str | None = None,
+    status: str | None = None,
     search: str | None = None,
 ) -> list[BatchView]:
     """Every batch that existed on `on` (optionally filtered) with its status then, newest first."""
@@ -632,13 +903,17 @@ def batch_history(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:
     lot_ids = {r["standard_lot_id"] for r in runs if r["standard_lot_id"]}
     lots = {}
     if lot_ids:
-        lots = {r["id"]: r for r in dbmod.query(
-            db, f"SELECT * FROM standard_lots WHERE id IN ({','.join('?' * len(lot_ids))})", list(lot_ids))}
+        lots = {
+            r["id"]: r
+            for r in dbmod.query(db, f"SELECT * FROM standard_lots WHERE id IN ({','.join('?' * len(lot_ids))})", list(lot_ids))
+        }
     ref_ids = {r["reference_batch_id"] for r in runs if r["reference_batch_id"]}
     refs = {}
     if ref_ids:
-        refs = {r["id"]: r for r in dbmod.query(
-            db, f"SELECT id, code FROM batches WHERE id IN ({','.join('?' * len(ref_ids))})", list(ref_ids))}
+        refs = {
+            r["id"]: r
+            for r in dbmod.query(db, f"SELECT id, code FROM batches WHERE id IN ({','.join('?' * len(ref_ids))})", list(ref_ids))
+        }
     current = _latest_results(db, run_ids)
     for r in runs:
         r["current"] = current.get(r["id"])
@@ -658,6 +933,7 @@ def batch_history(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:
         "withdrawals": dbmod.query(db, "SELECT * FROM withdrawals WHERE batch_id = ? ORDER BY id", [batch_id]),
         "prints": dbmod.query(db, "SELECT * FROM label_prints WHERE batch_id = ? ORDER BY id", [batch_id]),
         "events": dbmod.query(db, "SELECT * FROM events WHERE batch_id = ? ORDER BY id", [batch_id]),
-        "amendments": dbmod.query(db, "SELECT * FROM amendments WHERE entity = 'batches' AND entity_id = ? "
-                                      "ORDER BY id", [batch_id]),
+        "amendments": dbmod.query(
+            db, "SELECT * FROM amendments WHERE entity = 'batches' AND entity_id = ? ORDER BY id", [batch_id]
+        ),
     }

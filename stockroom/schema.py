@@ -254,13 +254,11 @@ def _initial(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
-
 @MIGRATIONS(name="0002_starting_policies")
 def _starting_policies(db: sqlite_utils.Database) -> None:
     from stockroom.records import seed_default_policies
 
     seed_default_policies(db)
-
 
 
 # Accounts: a session generation per user (bumped when the user is disabled or the password changes,
@@ -339,15 +337,22 @@ def _hazards(db: sqlite_utils.Database) -> None:
     for statement in _append_only_triggers(("hazard_classifications",)):
         db.execute(statement)
     for c in DEFAULT_CLASSIFICATIONS:
-        db.table("hazard_classifications").insert({
-            "reagent": c.reagent, "min_molarity": c.min_molarity, "max_molarity": c.max_molarity,
-            "signal_word": c.signal_word, "pictograms": json.dumps(list(c.pictograms)),
-            "hazard_statements": json.dumps(list(c.hazard_statements)),
-            "precautionary_statements": json.dumps(list(c.precautionary_statements)),
-            "source_note": c.source_note, "reason": "starting classification",
-            "effective_from": c.effective_from.isoformat(), "recorded_at": now,
-            "recorded_by": "system",
-        })
+        db.table("hazard_classifications").insert(
+            {
+                "reagent": c.reagent,
+                "min_molarity": c.min_molarity,
+                "max_molarity": c.max_molarity,
+                "signal_word": c.signal_word,
+                "pictograms": json.dumps(list(c.pictograms)),
+                "hazard_statements": json.dumps(list(c.hazard_statements)),
+                "precautionary_statements": json.dumps(list(c.precautionary_statements)),
+                "source_note": c.source_note,
+                "reason": "starting classification",
+                "effective_from": c.effective_from.isoformat(),
+                "recorded_at": now,
+                "recorded_by": "system",
+            }
+        )
 
 
 # Class-data corrections: each time an instructor recomputes a class's titration results with the
@@ -382,7 +387,6 @@ def _class_corrections(db: sqlite_utils.Database) -> None:
         db.execute(statement)
     for statement in _append_only_triggers(("class_corrections",)):
         db.execute(statement)
-
 
 
 # Per-user API tokens for programs that write through the JSON API. Only a SHA-256 of the token is
@@ -490,8 +494,7 @@ _INSTRUMENTS_RECALLS = [
 def _instruments_recalls(db: sqlite_utils.Database) -> None:
     for statement in _INSTRUMENTS_RECALLS:
         db.execute(statement)
-    for statement in _append_only_triggers(("instruments", "calibrations", "run_instruments", "recalls",
-                                            "recall_clearances")):
+    for statement in _append_only_triggers(("instruments", "calibrations", "run_instruments", "recalls", "recall_clearances")):
         db.execute(statement)
 
 

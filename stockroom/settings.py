@@ -24,37 +24,48 @@ class Setting:
 
 SETTINGS: tuple[Setting, ...] = (
     Setting("DATABASE", "instance/stockroom.db", "Path of the SQLite database file."),
-    Setting("SECRET_KEY", None, "Key that signs session cookies and CSRF tokens. Read from the "
-            "environment or the instance file; if absent a random key is made and kept in "
-            "instance/secret_key beside the database (never a fixed string)."),
+    Setting(
+        "SECRET_KEY",
+        None,
+        "Key that signs session cookies and CSRF tokens. Read from the "
+        "environment or the instance file; if absent a random key is made and kept in "
+        "instance/secret_key beside the database (never a fixed string).",
+    ),
     Setting("LAB_TIMEZONE", "Europe/London", "IANA time zone of the lab; dates and times are shown in it."),
     Setting("BASE_URL", "http://127.0.0.1:8000", "Public address of this server, used in label QR codes."),
     Setting("OPEN_READS", True, "Allow reading pages without signing in (lab network kiosks).", bool),
-    Setting("SESSION_COOKIE_SECURE", False, "Send the session cookie only over HTTPS; turn on behind TLS.",
-            bool),
-    Setting("TRUSTED_HOSTS", "", "Comma-separated host names the server answers for; empty allows any.",
-            str),
+    Setting("SESSION_COOKIE_SECURE", False, "Send the session cookie only over HTTPS; turn on behind TLS.", bool),
+    Setting("TRUSTED_HOSTS", "", "Comma-separated host names the server answers for; empty allows any.", str),
     Setting("MAX_CONTENT_LENGTH", 2 * 1024 * 1024, "Largest request body accepted, in bytes.", int),
     Setting("CSV_MAX_ROWS", 2000, "Most rows accepted from one uploaded CSV file.", int),
-    Setting("REUSE_CONNECTIONS", True, "Keep each server thread's database connection open between requests "
-            "(faster; turn off to open one per request).", bool),
+    Setting(
+        "REUSE_CONNECTIONS",
+        True,
+        "Keep each server thread's database connection open between requests (faster; turn off to open one per request).",
+        bool,
+    ),
     # Defaults below feed the science core; a reagent's own policy overrides the tolerances.
-    Setting("DEFAULT_TOLERANCE_REL", 0.005, "Drift tolerance, relative to the certified value (0.005 = 0.5 %).",
-            float),
-    Setting("DEFAULT_MAX_RSD", 0.002, "Largest repeatability RSD a run may have to be accepted (0.2 %, the "
-            "pharmacopoeial limit for volumetric solutions).", float),
+    Setting("DEFAULT_TOLERANCE_REL", 0.005, "Drift tolerance, relative to the certified value (0.005 = 0.5 %).", float),
+    Setting(
+        "DEFAULT_MAX_RSD",
+        0.002,
+        "Largest repeatability RSD a run may have to be accepted (0.2 %, the pharmacopoeial limit for volumetric solutions).",
+        float,
+    ),
     Setting("DEFAULT_MIN_REPLICATES", 3, "Fewest replicates a run needs to be accepted.", int),
     Setting("COVERAGE_FACTOR", 2.0, "Coverage factor k for expanded uncertainty U = k u.", float),
     Setting("BALANCE_READABILITY_G", 0.0001, "Analytical balance readability (last digit), g.", float),
     Setting("BALANCE_LINEARITY_G", 0.00015, "Balance linearity half-width (rectangular), g.", float),
     Setting("BURETTE_CAPACITY_ML", 50.0, "Default burette capacity, mL.", float),
     Setting("BURETTE_TOLERANCE_ML", 0.05, "Default burette tolerance half-width (Class A 50 mL), mL.", float),
-    Setting("PIPETTE_TOLERANCE_ML", 0.03, "Default aliquot pipette tolerance half-width (Class A 25 mL), mL.",
-            float),
-    Setting("LAB_TEMPERATURE_HALF_RANGE_K", 3.0, "Half-width of the lab temperature range (rectangular), K.",
-            float),
-    Setting("EXPANSION_COEFFICIENT_PER_K", 2.1e-4, "Volume expansion coefficient of dilute aqueous titrants, "
-            "1/K (the value EURACHEM/CITAC QUAM:2012 uses for water).", float),
+    Setting("PIPETTE_TOLERANCE_ML", 0.03, "Default aliquot pipette tolerance half-width (Class A 25 mL), mL.", float),
+    Setting("LAB_TEMPERATURE_HALF_RANGE_K", 3.0, "Half-width of the lab temperature range (rectangular), K.", float),
+    Setting(
+        "EXPANSION_COEFFICIENT_PER_K",
+        2.1e-4,
+        "Volume expansion coefficient of dilute aqueous titrants, 1/K (the value EURACHEM/CITAC QUAM:2012 uses for water).",
+        float,
+    ),
     Setting("MONTE_CARLO_DRAWS", 100_000, "Monte Carlo draws for the uncertainty cross-check.", int),
 )
 

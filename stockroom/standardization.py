@@ -158,8 +158,9 @@ def standard_spec(titrant_key: str, standard_key: str) -> StandardSpec:
     s = chemistry.standard(standard_key)
     nu = chemistry.stoichiometric_factor(t, s)
     mm = s.molar_mass
-    return StandardSpec(key=s.key, name=s.name, molar_mass_g_mol=mm.value, u_molar_mass_g_mol=mm.u, nu=nu,
-                        density_g_cm3=s.density_g_cm3)
+    return StandardSpec(
+        key=s.key, name=s.name, molar_mass_g_mol=mm.value, u_molar_mass_g_mol=mm.u, nu=nu, density_g_cm3=s.density_g_cm3
+    )
 
 
 # --------------------------------------------------------------------------- run inputs
@@ -366,14 +367,12 @@ def _check_exclusions(errors: list[FieldError], exclusions: Sequence[Exclusion],
     seen: set[int] = set()
     for j, ex in enumerate(exclusions):
         if not isinstance(ex.index, int) or isinstance(ex.index, bool) or not 0 <= ex.index < n:
-            errors.append(FieldError(f"exclusions[{j}].index",
-                                     f"must be the position of a replicate, 0 to {n - 1}"))
+            errors.append(FieldError(f"exclusions[{j}].index", f"must be the position of a replicate, 0 to {n - 1}"))
             continue
         if ex.index in seen:
             errors.append(FieldError(f"exclusions[{j}].index", f"replicates[{ex.index}] is already excluded"))
         if not isinstance(ex.reason, str) or not ex.reason.strip():
-            errors.append(FieldError(f"exclusions[{j}].reason",
-                                     "give the reason for leaving this replicate out"))
+            errors.append(FieldError(f"exclusions[{j}].reason", "give the reason for leaving this replicate out"))
         seen.add(ex.index)
     if n and len(seen) >= n:
         errors.append(FieldError("exclusions", "at least one replicate must stay in the run"))
@@ -421,40 +420,70 @@ def _temperature_source(volume_ml: float, instruments: Instruments, what: str) -
     half = volume_ml * alpha * a
     if instruments.lab_temperature_distribution == "normal":
         return InputQuantity.normal(
-            f"{what} temperature", 0.0, half / Z95, "mL",
-            f"lab within ±{a:g} K at 95 %: {volume_ml:.4g} mL × {alpha:g}/K × {a:g} K / 1.96")
+            f"{what} temperature",
+            0.0,
+            half / Z95,
+            "mL",
+            f"lab within ±{a:g} K at 95 %: {volume_ml:.4g} mL × {alpha:g}/K × {a:g} K / 1.96",
+        )
     return InputQuantity.rectangular(
-        f"{what} temperature", 0.0, half, "mL",
-        f"lab within ±{a:g} K, rectangular: {volume_ml:.4g} mL × {alpha:g}/K × {a:g} K / √3")
+        f"{what} temperature",
+        0.0,
+        half,
+        "mL",
+        f"lab within ±{a:g} K, rectangular: {volume_ml:.4g} mL × {alpha:g}/K × {a:g} K / √3",
+    )
 
 
-def _titre_terms(titre: float, blanks: Sequence[float], instruments: Instruments,
-                 u_volume_ml: float | None) -> list[InputQuantity | Term]:
+def _titre_terms(
+    titre: float, blanks: Sequence[float], instruments: Instruments, u_volume_ml: float | None
+) -> list[InputQuantity | Term]:
     """The titre volume and its error sources (burette, temperature, end point, blank)."""
-    terms: list[InputQuantity | Term] = [InputQuantity.normal("titre volume", titre, 0.0, "mL",
-                                                              "mean effective titre of the run")]
+    terms: list[InputQuantity | Term] = [
+        InputQuantity.normal("titre volume", titre, 0.0, "mL", "mean effective titre of the run")
+    ]
     if u_volume_ml is not None:
-        terms.append(InputQuantity.normal("titre volume (stated u)", 0.0, u_volume_ml, "mL",
-                                          "stated standard uncertainty of one titre"))
+        terms.append(
+            InputQuantity.normal("titre volume (stated u)", 0.0, u_volume_ml, "mL", "stated standard uncertainty of one titre")
+        )
     else:
-        terms.append(InputQuantity.triangular(
-            "burette calibration", 0.0, instruments.burette_tolerance_ml, "mL",
-            f"burette tolerance ±{instruments.burette_tolerance_ml:g} mL, triangular, u = a/√6"))
+        terms.append(
+            InputQuantity.triangular(
+                "burette calibration",
+                0.0,
+                instruments.burette_tolerance_ml,
+                "mL",
+                f"burette tolerance ±{instruments.burette_tolerance_ml:g} mL, triangular, u = a/√6",
+            )
+        )
         terms.append(_temperature_source(titre, instruments, "titre"))
     if instruments.endpoint_u_ml > 0:
-        terms.append(InputQuantity.normal("end point", 0.0, instruments.endpoint_u_ml, "mL",
-                                          "stated standard uncertainty of locating the end point"))
+        terms.append(
+            InputQuantity.normal(
+                "end point", 0.0, instruments.endpoint_u_ml, "mL", "stated standard uncertainty of locating the end point"
+            )
+        )
     mean_blank = math.fsum(blanks) / len(blanks) if blanks else 0.0
     if mean_blank > 0:
         # The blank correction b is known to lie between 0 and 2b: rectangular of half-width b.
-        terms.append(Term(InputQuantity.rectangular(
-            "blank", 0.0, mean_blank, "mL",
-            f"blank correction {mean_blank:.3g} mL known within ±{mean_blank:.3g} mL, rectangular"), -1.0))
+        terms.append(
+            Term(
+                InputQuantity.rectangular(
+                    "blank",
+                    0.0,
+                    mean_blank,
+                    "mL",
+                    f"blank correction {mean_blank:.3g} mL known within ±{mean_blank:.3g} mL, rectangular",
+                ),
+                -1.0,
+            )
+        )
     return terms
 
 
-def _repeatability(summary: stats.Summary, stated: float | None, rule: stats.AcceptanceRule,
-                   warnings: list[str], floor_rel: float = 0.0) -> InputQuantity:
+def _repeatability(
+    summary: stats.Summary, stated: float | None, rule: stats.AcceptanceRule, warnings: list[str], floor_rel: float = 0.0
+) -> InputQuantity:
     """Repeatability factor R = 1 with u = s/(c̄·√n), or a stated relative u.
 
     floor_rel: the relative u below which an observed s/√n is not believed (readings quantized to the
@@ -463,25 +492,38 @@ def _repeatability(summary: stats.Summary, stated: float | None, rule: stats.Acc
     n = summary.n
     observed = (summary.sd / math.sqrt(n) / abs(summary.mean)) if summary.sd is not None and n >= 2 else None
     if stated is None and observed is not None and n >= 3 and observed < floor_rel:
-        return InputQuantity.normal("repeatability", 1.0, floor_rel, "",
-                                    f"s/√n of the {n} replicates ({observed:.2g}) is below what two burette "
-                                    f"readings can resolve; the floor (d·√2/√12)/V̄/√n for a burette division d is used")
+        return InputQuantity.normal(
+            "repeatability",
+            1.0,
+            floor_rel,
+            "",
+            f"s/√n of the {n} replicates ({observed:.2g}) is below what two burette "
+            f"readings can resolve; the floor (d·√2/√12)/V̄/√n for a burette division d is used",
+        )
     if stated is not None:
         if observed is not None and n >= 3 and observed > stated:
-            warnings.append(f"the stated repeatability ({stated:.2g} relative) is below this run's own "
-                            f"s/√n ({observed:.2g}); the stated figure is used as asked")
-        return InputQuantity.normal("repeatability", 1.0, stated, "",
-                                    "stated relative standard uncertainty of repeatability")
+            warnings.append(
+                f"the stated repeatability ({stated:.2g} relative) is below this run's own "
+                f"s/√n ({observed:.2g}); the stated figure is used as asked"
+            )
+        return InputQuantity.normal("repeatability", 1.0, stated, "", "stated relative standard uncertainty of repeatability")
     if observed is not None and n >= 3:
-        return InputQuantity.normal("repeatability", 1.0, observed, "",
-                                    f"s/√n of the {n} included replicates, relative to their mean")
+        return InputQuantity.normal(
+            "repeatability", 1.0, observed, "", f"s/√n of the {n} included replicates, relative to their mean"
+        )
     fallback = rule.max_rsd / math.sqrt(n)
-    warnings.append(f"with {n} replicate{'s' if n != 1 else ''} the repeatability cannot be estimated; "
-                    f"the acceptance limit RSD {rule.max_rsd * 100:g} % /√{n} stands in for it — "
-                    f"give u_repeatability_rel for a stated figure")
-    return InputQuantity.normal("repeatability", 1.0, fallback, "",
-                                f"acceptance limit RSD {rule.max_rsd:g} divided by √{n} (no estimate "
-                                f"from {n} replicate{'s' if n != 1 else ''})")
+    warnings.append(
+        f"with {n} replicate{'s' if n != 1 else ''} the repeatability cannot be estimated; "
+        f"the acceptance limit RSD {rule.max_rsd * 100:g} % /√{n} stands in for it — "
+        f"give u_repeatability_rel for a stated figure"
+    )
+    return InputQuantity.normal(
+        "repeatability",
+        1.0,
+        fallback,
+        "",
+        f"acceptance limit RSD {rule.max_rsd:g} divided by √{n} (no estimate from {n} replicate{'s' if n != 1 else ''})",
+    )
 
 
 def _screen(values: Sequence[float]) -> tuple[list[stats.OutlierResult], dict[int, list[str]]]:
@@ -493,8 +535,9 @@ def _screen(values: Sequence[float]) -> tuple[list[stats.OutlierResult], dict[in
     return results, flags
 
 
-def _nominal_check(molarity: float, nominal: float | None, reasons: list[str], warnings: list[str],
-                   alt_hint: str | None) -> float | None:
+def _nominal_check(
+    molarity: float, nominal: float | None, reasons: list[str], warnings: list[str], alt_hint: str | None
+) -> float | None:
     """Compare with the nominal strength: warn beyond ±10 %, refuse a factor of 3 or more."""
     if nominal is None:
         return None
@@ -506,26 +549,33 @@ def _nominal_check(molarity: float, nominal: float | None, reasons: list[str], w
         near_decade = k != 0 and abs(decade - k) <= math.log10(_DECADE_TOLERANCE)
         said = f"{molarity:.5g} mol/L is {ratio:.3g} times the nominal {nominal:g} mol/L"
         if near_decade and abs(k) == 3:
-            cause = ("a factor of 1000 is a unit slip: a mass entered in mg as g, a volume in L as mL, "
-                     "or a nominal in mmol/L as mol/L")
+            cause = (
+                "a factor of 1000 is a unit slip: a mass entered in mg as g, a volume in L as mL, or a nominal in mmol/L as mol/L"
+            )
         elif near_decade:
-            cause = (f"a factor of {10 ** abs(k):g} is a dilution or decimal-point slip: check the "
-                     f"nominal strength, the dilution made and the decimal point of each entry")
+            cause = (
+                f"a factor of {10 ** abs(k):g} is a dilution or decimal-point slip: check the "
+                f"nominal strength, the dilution made and the decimal point of each entry"
+            )
         else:
             cause = "not a power of ten, so the likely cause is a wrong standard (or titrant) for the entries"
             if alt_hint:
                 cause += f"; {alt_hint}"
         reasons.append(f"{said}: {cause}")
     elif abs(ratio - 1.0) > NOMINAL_WARN_REL:
-        warnings.append(f"{molarity:.5g} mol/L is {(ratio - 1) * 100:+.1f} % from the nominal {nominal:g} "
-                        f"mol/L, beyond ±{NOMINAL_WARN_REL * 100:g} %")
+        warnings.append(
+            f"{molarity:.5g} mol/L is {(ratio - 1) * 100:+.1f} % from the nominal {nominal:g} "
+            f"mol/L, beyond ±{NOMINAL_WARN_REL * 100:g} %"
+        )
     return ratio
 
 
 def _low_titre_warning(titre: float, capacity: float) -> str | None:
     if titre < LOW_TITRE_FRACTION * capacity:
-        return (f"titre {titre:.2f} mL is under {LOW_TITRE_FRACTION * 100:g} % of the {capacity:g} mL "
-                f"burette (USP <31>): take more standard or a smaller burette")
+        return (
+            f"titre {titre:.2f} mL is under {LOW_TITRE_FRACTION * 100:g} % of the {capacity:g} mL "
+            f"burette (USP <31>): take more standard or a smaller burette"
+        )
     return None
 
 
@@ -534,22 +584,34 @@ def _matching_constant(c_bar: float, factors: Sequence[Factor]) -> float:
     effective-quantity ratios) lumped so that the product model returns the mean exactly."""
     prod = 1.0
     for f in factors:
-        prod *= f.value ** f.exponent
+        prod *= f.value**f.exponent
     return c_bar / prod
 
 
-def _finish(kind: str, molarities: list[float], included: list[int], excluded: dict[int, str],
-            per_rep: list[dict[str, Any]], model_factors: list[Factor], nominal: float | None,
-            instruments: Instruments, rule: stats.AcceptanceRule, stated_rep: float | None,
-            warnings: list[str], alt_hint_for: Any) -> StandardizationResult:
+def _finish(
+    kind: str,
+    molarities: list[float],
+    included: list[int],
+    excluded: dict[int, str],
+    per_rep: list[dict[str, Any]],
+    model_factors: list[Factor],
+    nominal: float | None,
+    instruments: Instruments,
+    rule: stats.AcceptanceRule,
+    stated_rep: float | None,
+    warnings: list[str],
+    alt_hint_for: Any,
+) -> StandardizationResult:
     """Statistics, model, GUM, Monte Carlo and verdict shared by both kinds of run."""
     inc_values = [molarities[i] for i in included]
     summary = stats.summarize(inc_values)
     screening, flags = _screen(molarities)
     for i, tests in sorted(flags.items()):
         if i not in excluded:
-            warnings.append(f"replicate {i + 1} is flagged as an outlier ({', '.join(tests)}); it stays in "
-                            f"the run unless you exclude it with a reason")
+            warnings.append(
+                f"replicate {i + 1} is flagged as an outlier ({', '.join(tests)}); it stays in "
+                f"the run unless you exclude it with a reason"
+            )
     reasons: list[str] = []
     titres = [per_rep[i]["titre_ml"] for i in included]
     floor_rel = 0.0
@@ -564,28 +626,51 @@ def _finish(kind: str, molarities: list[float], included: list[int], excluded: d
     mc = monte_carlo(model, instruments.monte_carlo_draws, instruments.monte_carlo_seed)
     verdict = stats.judge(summary, rule)
     reasons.extend(verdict.reasons)
-    ratio = _nominal_check(summary.mean, nominal, reasons, warnings,
-                           alt_hint_for(summary.mean, nominal) if nominal else None)
+    ratio = _nominal_check(summary.mean, nominal, reasons, warnings, alt_hint_for(summary.mean, nominal) if nominal else None)
     replicates = tuple(
-        ReplicateResult(index=i, molarity=molarities[i], mass_g=per_rep[i].get("mass_g"),
-                        titre_ml=per_rep[i]["titre_ml"], aliquot_ml=per_rep[i].get("aliquot_ml"),
-                        outlier=i in flags, outlier_tests=tuple(flags.get(i, ())), excluded=i in excluded,
-                        exclusion_reason=excluded.get(i), warnings=tuple(per_rep[i]["warnings"]))
-        for i in range(len(molarities)))
+        ReplicateResult(
+            index=i,
+            molarity=molarities[i],
+            mass_g=per_rep[i].get("mass_g"),
+            titre_ml=per_rep[i]["titre_ml"],
+            aliquot_ml=per_rep[i].get("aliquot_ml"),
+            outlier=i in flags,
+            outlier_tests=tuple(flags.get(i, ())),
+            excluded=i in excluded,
+            exclusion_reason=excluded.get(i),
+            warnings=tuple(per_rep[i]["warnings"]),
+        )
+        for i in range(len(molarities))
+    )
     for r in replicates:
         warnings.extend(f"replicate {r.index + 1}: {w}" for w in r.warnings)
     return StandardizationResult(
-        kind=kind, molarity=summary.mean, u=gum.u, U=gum.U, k=gum.k, n=summary.n, n_total=len(molarities),
-        summary=summary, replicates=replicates, screening=tuple(screening), gum=gum, monte_carlo=mc,
-        accepted=not reasons, reasons=tuple(reasons), warnings=tuple(warnings), nominal_ratio=ratio,
-        model=model)
+        kind=kind,
+        molarity=summary.mean,
+        u=gum.u,
+        U=gum.U,
+        k=gum.k,
+        n=summary.n,
+        n_total=len(molarities),
+        summary=summary,
+        replicates=replicates,
+        screening=tuple(screening),
+        gum=gum,
+        monte_carlo=mc,
+        accepted=not reasons,
+        reasons=tuple(reasons),
+        warnings=tuple(warnings),
+        nominal_ratio=ratio,
+        model=model,
+    )
 
 
 # --------------------------------------------------------------------------- primary
 
 
-def primary_replicate_molarity(rep: Replicate, spec: StandardSpec, purity: float, buoyancy: bool,
-                               alpha_per_k: float) -> tuple[float, float, float]:
+def primary_replicate_molarity(
+    rep: Replicate, spec: StandardSpec, purity: float, buoyancy: bool, alpha_per_k: float
+) -> tuple[float, float, float]:
     """c = 1000·m·P·ν/(M·(V − V_blank)) for one replicate, referred to 20 °C.
 
     rep: the replicate (g, mL, °C); spec: the standard; purity: mass fraction; buoyancy: correct
@@ -605,8 +690,9 @@ def _purity_quantity(run: PrimaryRun, instruments: Instruments, warnings: list[s
         return InputQuantity(f"purity of {run.standard.key}", q.value, q.u, "", q.distribution, q.derivation)
     a = instruments.purity_tolerance_default
     warnings.append(f"no purity uncertainty was given; ±{a:g} (rectangular) is assumed")
-    return InputQuantity.rectangular(f"purity of {run.standard.key}", run.purity_value, a, "",
-                                     f"assumed tolerance ±{a:g}, rectangular (none given)")
+    return InputQuantity.rectangular(
+        f"purity of {run.standard.key}", run.purity_value, a, "", f"assumed tolerance ±{a:g}, rectangular (none given)"
+    )
 
 
 def _validate_primary(run: PrimaryRun) -> None:
@@ -629,8 +715,7 @@ def _validate_primary(run: PrimaryRun) -> None:
             if not tare_ok:
                 errors.append(FieldError(_path(i, "tare_g"), "must be at least 0 g"))
             if gross_ok and tare_ok and rep.gross_g <= rep.tare_g:
-                errors.append(FieldError(_path(i, "gross_g"),
-                                         "must be greater than tare_g (mass by difference)"))
+                errors.append(FieldError(_path(i, "gross_g"), "must be greater than tare_g (mass by difference)"))
         if _check_positive(errors, _path(i, "volume_ml"), rep.volume_ml, "mL"):
             if not _finite(rep.blank_ml) or rep.blank_ml < 0:
                 errors.append(FieldError(_path(i, "blank_ml"), "must be at least 0 mL"))
@@ -658,17 +743,23 @@ def _alternative_hint(run: PrimaryRun) -> Any:
     def hint(molarity: float, nominal: float) -> str | None:
         # Same masses and titres read as another standard: c scales with ν/M.
         own = run.standard.nu / run.standard.molar_mass_g_mol
-        fits = [alt for alt in run.alternatives if alt.key != run.standard.key
-                and abs(molarity * (alt.nu / alt.molar_mass_g_mol) / own / nominal - 1) <= NOMINAL_WARN_REL]
+        fits = [
+            alt
+            for alt in run.alternatives
+            if alt.key != run.standard.key
+            and abs(molarity * (alt.nu / alt.molar_mass_g_mol) / own / nominal - 1) <= NOMINAL_WARN_REL
+        ]
         if not fits:
             return None
         names = " or ".join(f"{a.name} ({a.key})" for a in fits)
         return f"the entries fit {names} rather than {run.standard.name} ({run.standard.key})"
+
     return hint
 
 
-def standardize_primary(run: PrimaryRun, instruments: Instruments,
-                        rule: stats.AcceptanceRule | None = None) -> StandardizationResult:
+def standardize_primary(
+    run: PrimaryRun, instruments: Instruments, rule: stats.AcceptanceRule | None = None
+) -> StandardizationResult:
     """Compute a primary standardization run: replicates, statistics, checks, GUM and Monte Carlo.
 
     run: the PrimaryRun (g, mL, °C, mass fractions); instruments: Instruments; rule: acceptance
@@ -691,8 +782,7 @@ def standardize_primary(run: PrimaryRun, instruments: Instruments,
         c, m, titre = primary_replicate_molarity(rep, spec, purity_q.value, run.buoyancy, alpha)
         molarities.append(c)
         low = _low_titre_warning(titre, capacity)
-        per_rep.append({"mass_g": m, "air_mass_g": rep.air_mass_g, "titre_ml": titre,
-                        "warnings": [low] if low else []})
+        per_rep.append({"mass_g": m, "air_mass_g": rep.air_mass_g, "titre_ml": titre, "warnings": [low] if low else []})
     included = [i for i in range(len(molarities)) if i not in excluded]
     inc_c = [molarities[i] for i in included]
     # The balance errors act on the readings, so m* is an effective balance reading; the buoyancy
@@ -702,43 +792,81 @@ def standardize_primary(run: PrimaryRun, instruments: Instruments,
     blanks = [run.replicates[i].blank_ml for i in included]
 
     # Mass: one shared error per reading, so the balance terms enter once for the run (see docs).
-    mass_terms: list[InputQuantity | Term] = [InputQuantity.normal("mass", m_star, 0.0, "g",
-                                                                   "effective balance reading of the run")]
+    mass_terms: list[InputQuantity | Term] = [
+        InputQuantity.normal("mass", m_star, 0.0, "g", "effective balance reading of the run")
+    ]
     if run.u_mass_g is not None:
-        mass_terms.append(InputQuantity.normal("mass (stated u)", 0.0, run.u_mass_g, "g",
-                                               "stated standard uncertainty of one mass"))
+        mass_terms.append(
+            InputQuantity.normal("mass (stated u)", 0.0, run.u_mass_g, "g", "stated standard uncertainty of one mass")
+        )
     else:
         weighings = ("gross", "tare") if any(run.replicates[i].by_difference for i in included) else ("single",)
         lin, d = instruments.balance_linearity_g, instruments.balance_readability_g
         for w in weighings:
             if lin > 0:
-                mass_terms.append(Term(InputQuantity.rectangular(
-                    f"balance linearity ({w} weighing)", 0.0, lin, "g",
-                    f"linearity ±{lin * 1000:g} mg, rectangular, u = a/√3"), 1.0 if w != "tare" else -1.0))
+                mass_terms.append(
+                    Term(
+                        InputQuantity.rectangular(
+                            f"balance linearity ({w} weighing)",
+                            0.0,
+                            lin,
+                            "g",
+                            f"linearity ±{lin * 1000:g} mg, rectangular, u = a/√3",
+                        ),
+                        1.0 if w != "tare" else -1.0,
+                    )
+                )
             if d > 0:
-                mass_terms.append(Term(InputQuantity.rectangular(
-                    f"balance readability ({w} weighing)", 0.0, d / 2, "g",
-                    f"readability {d * 1000:g} mg, u = d/√12 ({u_resolution(d) * 1000:.3g} mg)"),
-                    1.0 if w != "tare" else -1.0))
+                mass_terms.append(
+                    Term(
+                        InputQuantity.rectangular(
+                            f"balance readability ({w} weighing)",
+                            0.0,
+                            d / 2,
+                            "g",
+                            f"readability {d * 1000:g} mg, u = d/√12 ({u_resolution(d) * 1000:.3g} mg)",
+                        ),
+                        1.0 if w != "tare" else -1.0,
+                    )
+                )
     model_factors = [
         factor("mass", 1, *mass_terms, unit="g"),
         factor("purity", 1, purity_q),
-        factor("molar mass", -1, InputQuantity.normal(
-            f"molar mass of {spec.key}", spec.molar_mass_g_mol, spec.u_molar_mass_g_mol, "g/mol",
-            "from the atomic weights' uncertainties"), unit="g/mol"),
+        factor(
+            "molar mass",
+            -1,
+            InputQuantity.normal(
+                f"molar mass of {spec.key}",
+                spec.molar_mass_g_mol,
+                spec.u_molar_mass_g_mol,
+                "g/mol",
+                "from the atomic weights' uncertainties",
+            ),
+            unit="g/mol",
+        ),
         factor("titre volume", -1, *_titre_terms(v_star, blanks, instruments, run.u_volume_ml), unit="mL"),
     ]
 
-    return _finish("primary", molarities, included, excluded, per_rep, model_factors,
-                   run.nominal_molarity, instruments, rule, run.u_repeatability_rel, warnings,
-                   _alternative_hint(run))
+    return _finish(
+        "primary",
+        molarities,
+        included,
+        excluded,
+        per_rep,
+        model_factors,
+        run.nominal_molarity,
+        instruments,
+        rule,
+        run.u_repeatability_rel,
+        warnings,
+        _alternative_hint(run),
+    )
 
 
 # --------------------------------------------------------------------------- secondary
 
 
-def secondary_replicate_molarity(rep: AliquotReplicate, reference: Reference, nu: float,
-                                 aliquot_of: str) -> tuple[float, float]:
+def secondary_replicate_molarity(rep: AliquotReplicate, reference: Reference, nu: float, aliquot_of: str) -> tuple[float, float]:
     """c_x = c_ref·ν·V_titre/V_aliquot (aliquot of the new batch) or c_ref·ν·V_aliquot/V_titre.
 
     rep: the replicate (mL); reference: mol/L at 20 °C; nu: dimensionless; aliquot_of: "new" or
@@ -783,8 +911,9 @@ def _validate_secondary(run: SecondaryRun) -> None:
         raise InvalidInput(errors)
 
 
-def standardize_secondary(run: SecondaryRun, instruments: Instruments,
-                          rule: stats.AcceptanceRule | None = None) -> StandardizationResult:
+def standardize_secondary(
+    run: SecondaryRun, instruments: Instruments, rule: stats.AcceptanceRule | None = None
+) -> StandardizationResult:
     """Compute a secondary standardization against a certified titrant, carrying u(c_ref).
 
     run: the SecondaryRun (mL, mol/L); instruments: Instruments; rule: acceptance rule. Returns a
@@ -808,29 +937,53 @@ def standardize_secondary(run: SecondaryRun, instruments: Instruments,
     t_star = _effective(inc_c, [per_rep[i]["titre_ml"] for i in included])
     a_star = _effective(inc_c, [per_rep[i]["aliquot_ml"] for i in included])
     blanks = [run.replicates[i].blank_ml for i in included]
-    aliquot_terms: list[InputQuantity | Term] = [InputQuantity.normal("aliquot volume", a_star, 0.0, "mL",
-                                                                      "effective aliquot of the run")]
+    aliquot_terms: list[InputQuantity | Term] = [
+        InputQuantity.normal("aliquot volume", a_star, 0.0, "mL", "effective aliquot of the run")
+    ]
     if run.u_aliquot_ml is not None:
-        aliquot_terms.append(InputQuantity.normal("aliquot (stated u)", 0.0, run.u_aliquot_ml, "mL",
-                                                  "stated standard uncertainty of one aliquot"))
+        aliquot_terms.append(
+            InputQuantity.normal("aliquot (stated u)", 0.0, run.u_aliquot_ml, "mL", "stated standard uncertainty of one aliquot")
+        )
     else:
         tol = instruments.pipette_tolerance_ml
-        aliquot_terms.append(InputQuantity.triangular(
-            "pipette calibration", 0.0, tol, "mL", f"pipette tolerance ±{tol:g} mL, triangular, u = a/√6"))
+        aliquot_terms.append(
+            InputQuantity.triangular(
+                "pipette calibration", 0.0, tol, "mL", f"pipette tolerance ±{tol:g} mL, triangular, u = a/√6"
+            )
+        )
         aliquot_terms.append(_temperature_source(a_star, instruments, "aliquot"))
     e_titre = 1 if run.aliquot_of == "new" else -1
     ref = run.reference
     model_factors = [
-        factor("reference molarity", 1, InputQuantity.normal(
-            ref.name, ref.molarity, ref.u, UNIT, "certified value of the reference and its standard "
-            "uncertainty (its own repeatability included)")),
+        factor(
+            "reference molarity",
+            1,
+            InputQuantity.normal(
+                ref.name,
+                ref.molarity,
+                ref.u,
+                UNIT,
+                "certified value of the reference and its standard uncertainty (its own repeatability included)",
+            ),
+        ),
         factor("titre volume", e_titre, *_titre_terms(t_star, blanks, instruments, run.u_volume_ml), unit="mL"),
         factor("aliquot volume", -e_titre, *aliquot_terms, unit="mL"),
     ]
 
-    return _finish("secondary", molarities, included, excluded, per_rep, model_factors,
-                   run.nominal_molarity, instruments, rule, run.u_repeatability_rel, warnings,
-                   lambda c, nominal: None)
+    return _finish(
+        "secondary",
+        molarities,
+        included,
+        excluded,
+        per_rep,
+        model_factors,
+        run.nominal_molarity,
+        instruments,
+        rule,
+        run.u_repeatability_rel,
+        warnings,
+        lambda c, nominal: None,
+    )
 
 
 # --------------------------------------------------------------------------- serialization
@@ -855,12 +1008,26 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
         lines_by_factor.setdefault(line.factor, []).append(line)
     budget = [
         {
-            "source": f.name, "value": _f(f.value), "u": _f(f.u), "unit": f.unit, "u_rel": _f(f.u_rel),
-            "contribution": _f(f.contribution), "contribution_rel": _f(f.contribution_rel), "share": _f(f.share),
+            "source": f.name,
+            "value": _f(f.value),
+            "u": _f(f.u),
+            "unit": f.unit,
+            "u_rel": _f(f.u_rel),
+            "contribution": _f(f.contribution),
+            "contribution_rel": _f(f.contribution_rel),
+            "share": _f(f.share),
             "components": [
-                {"source": ln.source, "u": _f(ln.u), "unit": ln.unit, "u_rel": _f(ln.u_rel),
-                 "distribution": ln.distribution, "derivation": ln.derivation, "share": _f(ln.share)}
-                for ln in lines_by_factor.get(f.name, []) if ln.u > 0
+                {
+                    "source": ln.source,
+                    "u": _f(ln.u),
+                    "unit": ln.unit,
+                    "u_rel": _f(ln.u_rel),
+                    "distribution": ln.distribution,
+                    "derivation": ln.derivation,
+                    "share": _f(ln.share),
+                }
+                for ln in lines_by_factor.get(f.name, [])
+                if ln.u > 0
             ],
         }
         for f in gum.factors
@@ -882,20 +1049,40 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
         "rsd": _f(s.rsd),
         "ci95": [_f(s.ci_low), _f(s.ci_high)] if s.ci_low is not None else [None, None],
         "replicates": [
-            {"index": r.index, "molarity": _f(r.molarity), "outlier": r.outlier,
-             "outlier_tests": list(r.outlier_tests), "excluded": r.excluded,
-             "exclusion_reason": r.exclusion_reason, "mass_g": _f(r.mass_g), "titre_ml": _f(r.titre_ml),
-             "aliquot_ml": _f(r.aliquot_ml), "warnings": list(r.warnings)}
+            {
+                "index": r.index,
+                "molarity": _f(r.molarity),
+                "outlier": r.outlier,
+                "outlier_tests": list(r.outlier_tests),
+                "excluded": r.excluded,
+                "exclusion_reason": r.exclusion_reason,
+                "mass_g": _f(r.mass_g),
+                "titre_ml": _f(r.titre_ml),
+                "aliquot_ml": _f(r.aliquot_ml),
+                "warnings": list(r.warnings),
+            }
             for r in result.replicates
         ],
         "screening": [
-            {"test": o.test, "applicable": o.applicable, "index": o.index, "statistic": _f(o.statistic),
-             "critical": _f(o.critical), "outlier": o.outlier, "note": o.note}
+            {
+                "test": o.test,
+                "applicable": o.applicable,
+                "index": o.index,
+                "statistic": _f(o.statistic),
+                "critical": _f(o.critical),
+                "outlier": o.outlier,
+                "note": o.note,
+            }
             for o in result.screening
         ],
         "budget": budget,
-        "monte_carlo": {"u": _f(mc.u), "mean": _f(mc.mean), "interval95": [_f(mc.low), _f(mc.high)],
-                        "draws": mc.draws, "seed": mc.seed},
+        "monte_carlo": {
+            "u": _f(mc.u),
+            "mean": _f(mc.mean),
+            "interval95": [_f(mc.low), _f(mc.high)],
+            "draws": mc.draws,
+            "seed": mc.seed,
+        },
         "nominal_ratio": _f(result.nominal_ratio),
         "accepted": result.accepted,
         "reasons": list(result.reasons),

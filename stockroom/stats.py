@@ -131,15 +131,13 @@ def summarize(values: Sequence[float], confidence: float = 0.95) -> Summary:
         raise InvalidInput("at least one replicate is needed", field="values")
     mean, dev = _mean_and_deviations(x)
     if n < 2:
-        return Summary(n=n, mean=mean, sd=None, rsd=None, sem=None, ci_low=None, ci_high=None,
-                       confidence=confidence, t=None)
+        return Summary(n=n, mean=mean, sd=None, rsd=None, sem=None, ci_low=None, ci_high=None, confidence=confidence, t=None)
     sd = _sample_sd(dev)
     rsd = sd / abs(mean) if mean != 0.0 else None
     sem = sd / math.sqrt(n)
     t = t_quantile(1.0 - (1.0 - confidence) / 2.0, n - 1)
     half = t * sem
-    return Summary(n=n, mean=mean, sd=sd, rsd=rsd, sem=sem, ci_low=mean - half, ci_high=mean + half,
-                   confidence=confidence, t=t)
+    return Summary(n=n, mean=mean, sd=sd, rsd=rsd, sem=sem, ci_low=mean - half, ci_high=mean + half, confidence=confidence, t=t)
 
 
 # --------------------------------------------------------------------------- outlier screens
@@ -164,8 +162,7 @@ class OutlierResult:
 
 
 def _not_applicable(test: str, note: str) -> OutlierResult:
-    return OutlierResult(test=test, applicable=False, index=None, statistic=None, critical=None,
-                         outlier=False, note=note)
+    return OutlierResult(test=test, applicable=False, index=None, statistic=None, critical=None, outlier=False, note=note)
 
 
 def grubbs_critical(n: int, alpha: float = 0.05) -> float:
@@ -192,8 +189,9 @@ def grubbs(values: Sequence[float], alpha: float = 0.05) -> OutlierResult:
     x = _finite_values(values)
     n = len(x)
     if n < GRUBBS_MIN_N:
-        return _not_applicable("grubbs", f"the Grubbs test needs at least {GRUBBS_MIN_N} replicates; "
-                                         f"there {'is' if n == 1 else 'are'} {n}")
+        return _not_applicable(
+            "grubbs", f"the Grubbs test needs at least {GRUBBS_MIN_N} replicates; there {'is' if n == 1 else 'are'} {n}"
+        )
     _, dev = _mean_and_deviations(x)
     sd = _sample_sd(dev)
     if sd == 0.0:
@@ -205,13 +203,16 @@ def grubbs(values: Sequence[float], alpha: float = 0.05) -> OutlierResult:
     flagged = g > crit
     where = f"{_fmt(x[index])} (replicate {index + 1})"
     if flagged:
-        note = (f"G = {g:.4f} exceeds G_crit = {crit:.4f} (n = {n}, α = {alpha:g}): {where} is a "
-                f"suspected outlier; whether to exclude it is the analyst's decision")
+        note = (
+            f"G = {g:.4f} exceeds G_crit = {crit:.4f} (n = {n}, α = {alpha:g}): {where} is a "
+            f"suspected outlier; whether to exclude it is the analyst's decision"
+        )
     else:
-        note = (f"G = {g:.4f} does not exceed G_crit = {crit:.4f} (n = {n}, α = {alpha:g}): "
-                f"the most distant value, {where}, is not flagged")
-    return OutlierResult(test="grubbs", applicable=True, index=index, statistic=g, critical=crit,
-                         outlier=flagged, note=note)
+        note = (
+            f"G = {g:.4f} does not exceed G_crit = {crit:.4f} (n = {n}, α = {alpha:g}): "
+            f"the most distant value, {where}, is not flagged"
+        )
+    return OutlierResult(test="grubbs", applicable=True, index=index, statistic=g, critical=crit, outlier=flagged, note=note)
 
 
 @cache
@@ -245,12 +246,10 @@ def dixon_critical(n: int, confidence: float = 0.95) -> float:
     """
     errors: list[FieldError] = []
     if isinstance(n, bool) or int(n) != n or not (DIXON_MIN_N <= n <= DIXON_MAX_N):
-        errors.append(FieldError("n", f"the Dixon table covers n = {DIXON_MIN_N} to {DIXON_MAX_N}, "
-                                      f"got {n!r}"))
+        errors.append(FieldError("n", f"the Dixon table covers n = {DIXON_MIN_N} to {DIXON_MAX_N}, got {n!r}"))
     column = _dixon_column(float(confidence))
     if column is None:
-        errors.append(FieldError("confidence", f"the Dixon table has confidence {_dixon_levels_text()} "
-                                               f"only, got {confidence!r}"))
+        errors.append(FieldError("confidence", f"the Dixon table has confidence {_dixon_levels_text()} only, got {confidence!r}"))
     if errors:
         raise InvalidInput(errors)
     assert column is not None
@@ -265,13 +264,14 @@ def dixon(values: Sequence[float], confidence: float = 0.95) -> OutlierResult:
     """
     column = _dixon_column(_probability(confidence, "confidence"))
     if column is None:
-        raise InvalidInput(f"the Dixon table has confidence {_dixon_levels_text()} only, "
-                           f"got {confidence!r}", field="confidence")
+        raise InvalidInput(f"the Dixon table has confidence {_dixon_levels_text()} only, got {confidence!r}", field="confidence")
     x = _finite_values(values)
     n = len(x)
     if not (DIXON_MIN_N <= n <= DIXON_MAX_N):
-        return _not_applicable("dixon", f"the Dixon r10 table covers {DIXON_MIN_N} to {DIXON_MAX_N} "
-                                        f"replicates; there {'is' if n == 1 else 'are'} {n}")
+        return _not_applicable(
+            "dixon",
+            f"the Dixon r10 table covers {DIXON_MIN_N} to {DIXON_MAX_N} replicates; there {'is' if n == 1 else 'are'} {n}",
+        )
     order = sorted(range(n), key=lambda i: (x[i], i))
     lo, lo2, hi2, hi = x[order[0]], x[order[1]], x[order[-2]], x[order[-1]]
     spread = hi - lo
@@ -293,13 +293,16 @@ def dixon(values: Sequence[float], confidence: float = 0.95) -> OutlierResult:
     where = f"{_fmt(value)} (replicate {index + 1})"
     level = f"{confidence * 100:g} %"
     if flagged:
-        note = (f"Q = {q:.3f} exceeds Q_crit = {crit:.3f} (n = {n}, {level}): {where} is a suspected "
-                f"outlier; whether to exclude it is the analyst's decision")
+        note = (
+            f"Q = {q:.3f} exceeds Q_crit = {crit:.3f} (n = {n}, {level}): {where} is a suspected "
+            f"outlier; whether to exclude it is the analyst's decision"
+        )
     else:
-        note = (f"Q = {q:.3f} does not exceed Q_crit = {crit:.3f} (n = {n}, {level}): "
-                f"the more extreme end value, {where}, is not flagged")
-    return OutlierResult(test="dixon", applicable=True, index=index, statistic=q, critical=crit,
-                         outlier=flagged, note=note)
+        note = (
+            f"Q = {q:.3f} does not exceed Q_crit = {crit:.3f} (n = {n}, {level}): "
+            f"the more extreme end value, {where}, is not flagged"
+        )
+    return OutlierResult(test="dixon", applicable=True, index=index, statistic=q, critical=crit, outlier=flagged, note=note)
 
 
 def screen(values: Sequence[float], alpha: float = 0.05) -> list[OutlierResult]:
@@ -315,9 +318,12 @@ def screen(values: Sequence[float], alpha: float = 0.05) -> list[OutlierResult]:
     if DIXON_MIN_N <= len(x) <= DIXON_MAX_N:
         confidence = 1.0 - alpha
         if _dixon_column(confidence) is None:
-            results.append(_not_applicable(
-                "dixon", f"the Dixon table has confidence {_dixon_levels_text()} only; "
-                         f"α = {alpha:g} has no tabulated critical value"))
+            results.append(
+                _not_applicable(
+                    "dixon",
+                    f"the Dixon table has confidence {_dixon_levels_text()} only; α = {alpha:g} has no tabulated critical value",
+                )
+            )
         else:
             results.append(dixon(x, confidence))
     return results

@@ -60,14 +60,23 @@ def _primary_reps(rng: random.Random, recipe: Recipe, c_true: float, n: int, sca
         final = round(initial + volume, 2)
         if final > 50:
             initial, final = 0.02, round(0.02 + volume, 2)
-        reps.append({"mass_gross_g": gross, "mass_tare_g": tare, "initial_ml": initial, "final_ml": final,
-                     "volume_ml": round(final - initial, 2), "blank_ml": 0.0,
-                     "temperature_c": round(rng.uniform(19.5, 23.5), 1)})
+        reps.append(
+            {
+                "mass_gross_g": gross,
+                "mass_tare_g": tare,
+                "initial_ml": initial,
+                "final_ml": final,
+                "volume_ml": round(final - initial, 2),
+                "blank_ml": 0.0,
+                "temperature_c": round(rng.uniform(19.5, 23.5), 1),
+            }
+        )
     return reps
 
 
-def build(path: str, years: int = 10, seed: int = 1, end: dt.date | None = None,
-          progress: Callable[[str], None] | None = None) -> dict[str, int]:
+def build(
+    path: str, years: int = 10, seed: int = 1, end: dt.date | None = None, progress: Callable[[str], None] | None = None
+) -> dict[str, int]:
     """Write a synthetic history of `years` years ending on `end` into a new database at `path`.
 
     About 200 batches a year, each standardized with 3-5 replicates and re-checked on its policy's
@@ -86,14 +95,22 @@ def build(path: str, years: int = 10, seed: int = 1, end: dt.date | None = None,
         for year in range(years + 1):
             for key in {r.standard for r in RECIPES}:
                 received = start + dt.timedelta(days=365 * year - 30)
-                lots[(key, year)] = records.create_lot(conn, {
-                    "substance": key, "supplier": "Synthetic Supplies (synthetic)",
-                    "supplier_lot": f"SYN-{key[:3].upper()}-{year:02d}", "assay": round(rng.uniform(0.9990, 1.0), 5),
-                    "assay_expanded_u": 0.0004, "assay_k": 2.0,
-                    "expires_on": (received + dt.timedelta(days=800)).isoformat(),
-                    "dried_on": received.isoformat(),
-                    "dried_at_c": {"Na2CO3": 280, "KHP": 120, "TRIS": 100}.get(key), "received_on": received.isoformat(),
-                }, "synth")
+                lots[(key, year)] = records.create_lot(
+                    conn,
+                    {
+                        "substance": key,
+                        "supplier": "Synthetic Supplies (synthetic)",
+                        "supplier_lot": f"SYN-{key[:3].upper()}-{year:02d}",
+                        "assay": round(rng.uniform(0.9990, 1.0), 5),
+                        "assay_expanded_u": 0.0004,
+                        "assay_k": 2.0,
+                        "expires_on": (received + dt.timedelta(days=800)).isoformat(),
+                        "dried_on": received.isoformat(),
+                        "dried_at_c": {"Na2CO3": 280, "KHP": 120, "TRIS": 100}.get(key),
+                        "received_on": received.isoformat(),
+                    },
+                    "synth",
+                )
         day = start
         n_batches = 0
         while day <= end:
@@ -104,21 +121,33 @@ def build(path: str, years: int = 10, seed: int = 1, end: dt.date | None = None,
             day += dt.timedelta(days=rng.choice((1, 2, 2, 3)))
             if progress and day.day == 1:
                 progress(f"{day.isoformat()}: {n_batches} batches")
-    counts = {t: conn.execute(f"SELECT count(*) FROM {t}").fetchone()[0]
-              for t in ("batches", "runs", "replicates", "releases", "withdrawals", "events")}
+    counts = {
+        t: conn.execute(f"SELECT count(*) FROM {t}").fetchone()[0]
+        for t in ("batches", "runs", "replicates", "releases", "withdrawals", "events")
+    }
     conn.close()
     return counts
 
 
-def _one_batch(conn: Any, config: Any, rng: random.Random, recipe: Recipe, prepared: dt.date, end: dt.date,
-               lot: dict[str, Any]) -> None:
+def _one_batch(
+    conn: Any, config: Any, rng: random.Random, recipe: Recipe, prepared: dt.date, end: dt.date, lot: dict[str, Any]
+) -> None:
     actor = rng.choice(SYNTH_USERS)
-    batch = records.create_batch(conn, {
-        "reagent": recipe.reagent, "nominal_molarity": recipe.nominal, "volume_l": rng.choice((10.0, 20.0)),
-        "prepared_on": prepared.isoformat(), "prepared_by": actor, "concentrate_lot": "synthetic",
-        "water_grade": "CO2-free" if recipe.reagent in ("NaOH", "KOH") else "Type II",
-        "container": "synthetic carboy", "notes": "synthetic history",
-    }, actor)
+    batch = records.create_batch(
+        conn,
+        {
+            "reagent": recipe.reagent,
+            "nominal_molarity": recipe.nominal,
+            "volume_l": rng.choice((10.0, 20.0)),
+            "prepared_on": prepared.isoformat(),
+            "prepared_by": actor,
+            "concentrate_lot": "synthetic",
+            "water_grade": "CO2-free" if recipe.reagent in ("NaOH", "KOH") else "Type II",
+            "container": "synthetic carboy",
+            "notes": "synthetic history",
+        },
+        actor,
+    )
     c0 = recipe.nominal * rng.uniform(0.985, 1.015)
     base = recipe.reagent in ("NaOH", "KOH")
     loss_per_day = rng.uniform(0.00002, 0.0002) if base else rng.uniform(-0.00001, 0.00002)
@@ -130,8 +159,13 @@ def _one_batch(conn: Any, config: Any, rng: random.Random, recipe: Recipe, prepa
         c_true = c0 * (1 - loss_per_day * (day - prepared).days)
         scatter = 0.0035 if rng.random() < 0.04 else rng.uniform(0.0001, 0.0004)
         reps = _primary_reps(rng, recipe, c_true, rng.choice((3, 4, 4, 5)) if not released else 3, scatter)
-        meta = {"purpose": "recheck" if released else "certify", "performed_on": day.isoformat(), "analyst": actor,
-                "burette_capacity_ml": 50.0, "endpoint": "synthetic"}
+        meta = {
+            "purpose": "recheck" if released else "certify",
+            "performed_on": day.isoformat(),
+            "analyst": actor,
+            "burette_capacity_ml": 50.0,
+            "endpoint": "synthetic",
+        }
         run_id, result = workflow.record_primary_run(conn, config, batch, lot, meta, reps, actor)
         if result.accepted:
             workflow.accept(conn, run_id, actor)

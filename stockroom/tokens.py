@@ -36,38 +36,50 @@ def create(db: sqlite_utils.Database, user_id: int, username: str, label: str) -
     """Make a token for a user; return it and its secret (shown once, never stored in clear)."""
     label = (label or "").strip()
     if not label or len(label) > 80:
-        raise InvalidInput([FieldError("label", "give the token a name of 1 to 80 characters, e.g. the program "
-                                                "that will use it")])
+        raise InvalidInput(
+            [FieldError("label", "give the token a name of 1 to 80 characters, e.g. the program that will use it")]
+        )
     secret = PREFIX + secrets.token_urlsafe(32)
     with dbmod.write(db):
         now = records.utc_now()
-        token_id = dbmod.insert_row(db, "api_tokens", {
-            "user_id": user_id, "label": label, "token_sha256": _digest(secret), "shown_prefix": secret[:10],
-            "created_at": now})
-        records.append_event(db, username, "token.create", entity="api_tokens", entity_id=token_id,
-                             detail={"label": label, "prefix": secret[:10]})
+        token_id = dbmod.insert_row(
+            db,
+            "api_tokens",
+            {"user_id": user_id, "label": label, "token_sha256": _digest(secret), "shown_prefix": secret[:10], "created_at": now},
+        )
+        records.append_event(
+            db, username, "token.create", entity="api_tokens", entity_id=token_id, detail={"label": label, "prefix": secret[:10]}
+        )
     return Token(token_id, user_id, label, secret[:10], now, None), secret
 
 
 def list_for(db: sqlite_utils.Database, user_id: int) -> list[Token]:
     """A user's tokens, newest first, revoked ones included."""
-    rows = dbmod.query(db, "SELECT t.*, r.revoked_at FROM api_tokens t LEFT JOIN api_token_revocations r "
-                           "ON r.token_id = t.id WHERE t.user_id = ? ORDER BY t.id DESC", [user_id])
-    return [Token(r["id"], r["user_id"], r["label"], r["shown_prefix"], r["created_at"], r["revoked_at"])
-            for r in rows]
+    rows = dbmod.query(
+        db,
+        "SELECT t.*, r.revoked_at FROM api_tokens t LEFT JOIN api_token_revocations r "
+        "ON r.token_id = t.id WHERE t.user_id = ? ORDER BY t.id DESC",
+        [user_id],
+    )
+    return [Token(r["id"], r["user_id"], r["label"], r["shown_prefix"], r["created_at"], r["revoked_at"]) for r in rows]
 
 
 def revoke(db: sqlite_utils.Database, token_id: int, user_id: int, username: str) -> None:
     """Revoke one of the user's own tokens; it stops working at once."""
     with dbmod.write(db):
-        rows = dbmod.query(db, "SELECT t.id, r.id AS rid FROM api_tokens t LEFT JOIN api_token_revocations r "
-                               "ON r.token_id = t.id WHERE t.id = ? AND t.user_id = ?", [token_id, user_id])
+        rows = dbmod.query(
+            db,
+            "SELECT t.id, r.id AS rid FROM api_tokens t LEFT JOIN api_token_revocations r "
+            "ON r.token_id = t.id WHERE t.id = ? AND t.user_id = ?",
+            [token_id, user_id],
+        )
         if not rows:
             raise NotFound("you have no token with that number")
         if rows[0]["rid"] is not None:
             raise Conflict("that token is already revoked")
-        dbmod.insert_row(db, "api_token_revocations", {"token_id": token_id, "revoked_at": records.utc_now(),
-                                            "revoked_by": username})
+        dbmod.insert_row(
+            db, "api_token_revocations", {"token_id": token_id, "revoked_at": records.utc_now(), "revoked_by": username}
+        )
         records.append_event(db, username, "token.revoke", entity="api_tokens", entity_id=token_id)
 
 
@@ -75,8 +87,12 @@ def user_id_for(db: sqlite_utils.Database, secret: str) -> int | None:
     """The owner of a live (unrevoked) token, or None."""
     if not secret.startswith(PREFIX) or len(secret) > 200:
         return None
-    rows = dbmod.query(db, "SELECT t.user_id FROM api_tokens t LEFT JOIN api_token_revocations r ON r.token_id = "
-                           "t.id WHERE t.token_sha256 = ? AND r.id IS NULL", [_digest(secret)])
+    rows = dbmod.query(
+        db,
+        "SELECT t.user_id FROM api_tokens t LEFT JOIN api_token_revocations r ON r.token_id = "
+        "t.id WHERE t.token_sha256 = ? AND r.id IS NULL",
+        [_digest(secret)],
+    )
     return int(rows[0]["user_id"]) if rows else None
 
 

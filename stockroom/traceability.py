@@ -126,8 +126,11 @@ class Graph:
         object.__setattr__(self, "_by_key", by_key)
         object.__setattr__(self, "_up", {k: tuple(v) for k, v in up.items()})
         object.__setattr__(self, "_down", {k: tuple(v) for k, v in down.items()})
-        object.__setattr__(self, "_releases", {
-            k: tuple(sorted(v, key=lambda n: (n.released_on or dt.date.min, n.id))) for k, v in releases.items()})
+        object.__setattr__(
+            self,
+            "_releases",
+            {k: tuple(sorted(v, key=lambda n: (n.released_on or dt.date.min, n.id))) for k, v in releases.items()},
+        )
 
     def get(self, key: str) -> Node | None:
         """The node with this key, or None."""
@@ -217,12 +220,25 @@ def chain_of(graph: Graph, release_key: str) -> Chain:
         edges = graph.rests_on(key)
         standard_edge = next((e for e in edges if e.role in STANDARD_ROLES), None)
         standard = graph.get(standard_edge.on) if standard_edge else None
-        kit = tuple(sorted(((e, graph.node(e.on)) for e in edges if e.role not in STANDARD_ROLES),
-                           key=lambda pair: (order.get(pair[0].role, 9), pair[1].label)))
+        kit = tuple(
+            sorted(
+                ((e, graph.node(e.on)) for e in edges if e.role not in STANDARD_ROLES),
+                key=lambda pair: (order.get(pair[0].role, 9), pair[1].label),
+            )
+        )
         u_in = standard.u_rel if standard else None
-        steps.append(Step(release=node, standard=standard, role=standard_edge.role if standard_edge else "",
-                          used_on=standard_edge.used_on if standard_edge else None, instruments=kit,
-                          u_rel=node.u_rel, u_rel_in=u_in, u_rel_added=added_u_rel(node.u_rel, u_in)))
+        steps.append(
+            Step(
+                release=node,
+                standard=standard,
+                role=standard_edge.role if standard_edge else "",
+                used_on=standard_edge.used_on if standard_edge else None,
+                instruments=kit,
+                u_rel=node.u_rel,
+                u_rel_in=u_in,
+                u_rel_added=added_u_rel(node.u_rel, u_in),
+            )
+        )
         key = None
         if standard is not None and standard.kind == LOT:
             origin = standard
@@ -312,10 +328,10 @@ def downstream(graph: Graph, suspect: Suspect) -> dict[str, Reached]:
 # ---------------------------------------------------------------------------------------------------------
 # The drawn chain (SVG)
 
-_W, _H, _GAP = 400, 84, 48          # px: a release or lot box, and the space between rows
-_MIN_WIDTH = 580                    # px: room for the label beside each connector
-_IW, _IH, _IGAP = 210, 72, 14       # px: an instrument box and the space between them
-_MARGIN, _REACH = 10, 40            # px: around the drawing; from a release box to its first instrument
+_W, _H, _GAP = 400, 84, 48  # px: a release or lot box, and the space between rows
+_MIN_WIDTH = 580  # px: room for the label beside each connector
+_IW, _IH, _IGAP = 210, 72, 14  # px: an instrument box and the space between them
+_MARGIN, _REACH = 10, 40  # px: around the drawing; from a release box to its first instrument
 _INK, _MUTED, _LINE = "#1d2327", "#5b6770", "#8a949b"
 _BAD, _BAD_BG = "#9b2226", "#fbe9e9"
 _FILL = {RELEASE: "#ffffff", LOT: "#eef5ee", INSTRUMENT: "#f5f5f0"}
@@ -332,19 +348,32 @@ def _pct(x: float | None) -> str:
     return "—" if x is None else f"{x * 100:.3f} %"
 
 
-def _text(x: float, y: float, body: str, size: float, *, weight: str = "normal", fill: str = _INK,
-          anchor: str = "start") -> str:
-    return (f'<text x="{x:.1f}" y="{y:.1f}" font-size="{size:g}" font-weight="{weight}" fill="{fill}" '
-            f'text-anchor="{anchor}">{escape(body)}</text>')
+def _text(x: float, y: float, body: str, size: float, *, weight: str = "normal", fill: str = _INK, anchor: str = "start") -> str:
+    return (
+        f'<text x="{x:.1f}" y="{y:.1f}" font-size="{size:g}" font-weight="{weight}" fill="{fill}" '
+        f'text-anchor="{anchor}">{escape(body)}</text>'
+    )
 
 
-def _box(node: Node, x: float, y: float, w: float, h: float, lines: list[tuple[str, float, str, str]],
-         *, suspect: bool, root: bool, href: str | None) -> str:
+def _box(
+    node: Node,
+    x: float,
+    y: float,
+    w: float,
+    h: float,
+    lines: list[tuple[str, float, str, str]],
+    *,
+    suspect: bool,
+    root: bool,
+    href: str | None,
+) -> str:
     stroke = _BAD if suspect else _STROKE[node.kind]
     width = 2.5 if suspect or root else 1.2
     fill = _BAD_BG if suspect else _FILL[node.kind]
-    parts = [f'<rect x="{x:.1f}" y="{y:.1f}" width="{w:.1f}" height="{h:.1f}" rx="6" fill="{fill}" '
-             f'stroke="{stroke}" stroke-width="{width:g}"/>']
+    parts = [
+        f'<rect x="{x:.1f}" y="{y:.1f}" width="{w:.1f}" height="{h:.1f}" rx="6" fill="{fill}" '
+        f'stroke="{stroke}" stroke-width="{width:g}"/>'
+    ]
     ty = y + 18
     for body, size, weight, colour in lines:
         parts.append(_text(x + 9, ty, _fit(body, w - 18, size), size, weight=weight, fill=colour))
@@ -357,8 +386,9 @@ def _box(node: Node, x: float, y: float, w: float, h: float, lines: list[tuple[s
     return f"<g><title>{escape(node.label)}</title>{inner}</g>"
 
 
-def chain_svg(chain: Chain, *, hrefs: Mapping[str, str] | None = None, suspect: frozenset[str] = frozenset(),
-              title: str = "") -> str:
+def chain_svg(
+    chain: Chain, *, hrefs: Mapping[str, str] | None = None, suspect: frozenset[str] = frozenset(), title: str = ""
+) -> str:
     """The chain drawn as a small tree (SVG text): the release at the top, down to its primary lot.
 
     chain: from chain_of; hrefs: node key -> link for its box; suspect: node keys under an open recall
@@ -372,9 +402,11 @@ def chain_svg(chain: Chain, *, hrefs: Mapping[str, str] | None = None, suspect: 
     kit_max = max((len(s.instruments) for s in chain.steps), default=0)
     width = max(_MIN_WIDTH, _MARGIN * 2 + _W + (_REACH + kit_max * (_IW + _IGAP) - _IGAP if kit_max else 0))
     height = _MARGIN * 2 + len(rows) * _H + max(0, len(rows) - 1) * _GAP
-    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="chain-tree" role="img" width="{width}" '
-           f'height="{height}" viewBox="0 0 {width} {height}" font-family="system-ui, -apple-system, '
-           f'Segoe UI, Roboto, Helvetica, Arial, sans-serif"><title>{escape(title or "Traceability chain")}</title>']
+    out = [
+        f'<svg xmlns="http://www.w3.org/2000/svg" class="chain-tree" role="img" width="{width}" '
+        f'height="{height}" viewBox="0 0 {width} {height}" font-family="system-ui, -apple-system, '
+        f'Segoe UI, Roboto, Helvetica, Arial, sans-serif"><title>{escape(title or "Traceability chain")}</title>'
+    ]
     lines_layer: list[str] = []
     boxes: list[str] = []
     cx = _MARGIN + _W / 2
@@ -387,31 +419,38 @@ def chain_svg(chain: Chain, *, hrefs: Mapping[str, str] | None = None, suspect: 
                 u_line += f" · this step adds {_pct(step.u_rel_added)}"
             lines = [(f"{node.label} · certified value", 13, "bold", _INK), *detail, (u_line, 11.5, "normal", _MUTED)]
         else:
-            lines = [(f"{node.label} · primary-standard lot", 13, "bold", _INK), *detail,
-                     (f"assay u_rel {_pct(node.u_rel)} (the certificate's U/k)", 11.5, "normal", _MUTED)]
-        boxes.append(_box(node, _MARGIN, y, _W, _H, lines, suspect=node.key in suspect, root=i == 0,
-                          href=hrefs.get(node.key)))
+            lines = [
+                (f"{node.label} · primary-standard lot", 13, "bold", _INK),
+                *detail,
+                (f"assay u_rel {_pct(node.u_rel)} (the certificate's U/k)", 11.5, "normal", _MUTED),
+            ]
+        boxes.append(_box(node, _MARGIN, y, _W, _H, lines, suspect=node.key in suspect, root=i == 0, href=hrefs.get(node.key)))
         if i + 1 < len(rows) and step is not None:
             y0, y1 = y + _H, y + _H + _GAP
-            lines_layer.append(f'<line x1="{cx:.1f}" y1="{y0:.1f}" x2="{cx:.1f}" y2="{y1 - 6:.1f}" stroke="{_LINE}" '
-                               f'stroke-width="1.5"/>')
-            lines_layer.append(f'<path d="M{cx - 5:.1f},{y1 - 8:.1f} L{cx:.1f},{y1:.1f} L{cx + 5:.1f},{y1 - 8:.1f} Z" '
-                               f'fill="{_LINE}"/>')
+            lines_layer.append(
+                f'<line x1="{cx:.1f}" y1="{y0:.1f}" x2="{cx:.1f}" y2="{y1 - 6:.1f}" stroke="{_LINE}" stroke-width="1.5"/>'
+            )
+            lines_layer.append(
+                f'<path d="M{cx - 5:.1f},{y1 - 8:.1f} L{cx:.1f},{y1:.1f} L{cx + 5:.1f},{y1 - 8:.1f} Z" fill="{_LINE}"/>'
+            )
             used = f" on {step.used_on.isoformat()}" if step.used_on else ""
             label = "rests on: weighed from this lot" if step.role == PRIMARY else "rests on: titrated against this"
             lines_layer.append(_text(cx + 10, y0 + _GAP / 2 + 4, f"{label}{used}", 11, fill=_MUTED))
         if step is not None and step.instruments:
             ym = y + _H / 2
             x_last = _MARGIN + _W + _REACH + (len(step.instruments) - 1) * (_IW + _IGAP)
-            lines_layer.append(f'<line x1="{_MARGIN + _W:.1f}" y1="{ym:.1f}" x2="{x_last:.1f}" y2="{ym:.1f}" '
-                               f'stroke="{_LINE}" stroke-width="1.2" stroke-dasharray="4 3"/>')
+            lines_layer.append(
+                f'<line x1="{_MARGIN + _W:.1f}" y1="{ym:.1f}" x2="{x_last:.1f}" y2="{ym:.1f}" '
+                f'stroke="{_LINE}" stroke-width="1.2" stroke-dasharray="4 3"/>'
+            )
             for j, (edge, inst) in enumerate(step.instruments):
                 ix = _MARGIN + _W + _REACH + j * (_IW + _IGAP)
                 iy = y + (_H - _IH) / 2
                 ilines = [(f"{inst.label} · {edge.role}", 12, "bold", _INK), (inst.detail, 10.5, "normal", _INK)]
                 ilines += [(line, 10.5, "normal", _MUTED) for line in edge.note.split("\n")[:2]]
-                boxes.append(_box(inst, ix, iy, _IW, _IH, ilines, suspect=inst.key in suspect, root=False,
-                                  href=hrefs.get(inst.key)))
+                boxes.append(
+                    _box(inst, ix, iy, _IW, _IH, ilines, suspect=inst.key in suspect, root=False, href=hrefs.get(inst.key))
+                )
     out += lines_layer + boxes
     out.append("</svg>")
     return "".join(out)

@@ -103,8 +103,7 @@ class InputQuantity:
 
     def __post_init__(self) -> None:
         if not (math.isfinite(self.value) and math.isfinite(self.u)) or self.u < 0:
-            raise ValueError(f"{self.name}: value and u must be finite and u >= 0, "
-                             f"got {self.value!r} ± {self.u!r}")
+            raise ValueError(f"{self.name}: value and u must be finite and u >= 0, got {self.value!r} ± {self.u!r}")
 
     @property
     def half_width(self) -> float:
@@ -121,25 +120,40 @@ class InputQuantity:
         return cls(name, value, abs(u), unit, Distribution.NORMAL, derivation)
 
     @classmethod
-    def expanded(cls, name: str, value: float, expanded: float, k: float, unit: str = "",
-                 derivation: str = "") -> InputQuantity:
+    def expanded(cls, name: str, value: float, expanded: float, k: float, unit: str = "", derivation: str = "") -> InputQuantity:
         """A normal input from a certificate's U and k: u = U/k (U in unit, k dimensionless)."""
-        return cls(name, value, u_from_expanded(expanded, k), unit, Distribution.NORMAL,
-                   derivation or f"certificate U = {_amount(expanded, unit)} (k = {k:g}), u = U/k")
+        return cls(
+            name,
+            value,
+            u_from_expanded(expanded, k),
+            unit,
+            Distribution.NORMAL,
+            derivation or f"certificate U = {_amount(expanded, unit)} (k = {k:g}), u = U/k",
+        )
 
     @classmethod
-    def rectangular(cls, name: str, value: float, half_width: float, unit: str = "",
-                    derivation: str = "") -> InputQuantity:
+    def rectangular(cls, name: str, value: float, half_width: float, unit: str = "", derivation: str = "") -> InputQuantity:
         """A rectangular input value ± half_width (unit): u = a/√3."""
-        return cls(name, value, u_rectangular(half_width), unit, Distribution.RECTANGULAR,
-                   derivation or f"±{_amount(abs(half_width), unit)}, rectangular, u = a/√3")
+        return cls(
+            name,
+            value,
+            u_rectangular(half_width),
+            unit,
+            Distribution.RECTANGULAR,
+            derivation or f"±{_amount(abs(half_width), unit)}, rectangular, u = a/√3",
+        )
 
     @classmethod
-    def triangular(cls, name: str, value: float, half_width: float, unit: str = "",
-                   derivation: str = "") -> InputQuantity:
+    def triangular(cls, name: str, value: float, half_width: float, unit: str = "", derivation: str = "") -> InputQuantity:
         """A triangular input value ± half_width (unit): u = a/√6."""
-        return cls(name, value, u_triangular(half_width), unit, Distribution.TRIANGULAR,
-                   derivation or f"±{_amount(abs(half_width), unit)}, triangular, u = a/√6")
+        return cls(
+            name,
+            value,
+            u_triangular(half_width),
+            unit,
+            Distribution.TRIANGULAR,
+            derivation or f"±{_amount(abs(half_width), unit)}, triangular, u = a/√6",
+        )
 
 
 @dataclass(frozen=True)
@@ -194,7 +208,7 @@ class ProductModel:
             x = f.value
             if x == 0.0 and f.exponent < 0:
                 raise ZeroDivisionError(f"factor {f.name} is zero and has a negative exponent")
-            y *= x ** f.exponent
+            y *= x**f.exponent
         return y
 
 
@@ -290,26 +304,49 @@ def combine(model: ProductModel, k: float = 2.0) -> GumResult:
     for f, t, c in raw:
         q = t.quantity
         contribution = abs(c) * q.u
-        lines.append(BudgetLine(
-            source=q.name, factor=f.name, value=q.value, u=q.u, unit=q.unit,
-            distribution=str(q.distribution), derivation=q.derivation, sensitivity=c,
-            u_rel=q.u * abs(t.coefficient) / abs(f.value) if f.value else math.nan,
-            contribution=contribution, contribution_rel=contribution / abs(y) if y else math.nan,
-            share=_share(contribution, u_c)))
+        lines.append(
+            BudgetLine(
+                source=q.name,
+                factor=f.name,
+                value=q.value,
+                u=q.u,
+                unit=q.unit,
+                distribution=str(q.distribution),
+                derivation=q.derivation,
+                sensitivity=c,
+                u_rel=q.u * abs(t.coefficient) / abs(f.value) if f.value else math.nan,
+                contribution=contribution,
+                contribution_rel=contribution / abs(y) if y else math.nan,
+                share=_share(contribution, u_c),
+            )
+        )
     factors: list[FactorLine] = []
     for f in model.factors:
         x, ux = f.value, f.u
         contribution = abs(y * f.exponent / x) * ux if x else math.nan
-        factors.append(FactorLine(
-            name=f.name, value=x, u=ux, unit=f.unit, u_rel=ux / abs(x) if x else math.nan,
-            contribution=contribution, contribution_rel=contribution / abs(y) if y else math.nan,
-            share=_share(contribution, u_c), sources=tuple(t.quantity.name for t in f.terms)))
-    return GumResult(value=y, u=u_c, k=float(k), U=k * u_c, unit=model.unit, lines=tuple(lines),
-                     factors=tuple(factors))
+        factors.append(
+            FactorLine(
+                name=f.name,
+                value=x,
+                u=ux,
+                unit=f.unit,
+                u_rel=ux / abs(x) if x else math.nan,
+                contribution=contribution,
+                contribution_rel=contribution / abs(y) if y else math.nan,
+                share=_share(contribution, u_c),
+                sources=tuple(t.quantity.name for t in f.terms),
+            )
+        )
+    return GumResult(value=y, u=u_c, k=float(k), U=k * u_c, unit=model.unit, lines=tuple(lines), factors=tuple(factors))
 
 
-def combine_numeric(func: Callable[[Sequence[float]], float], quantities: Sequence[InputQuantity],
-                    k: float = 2.0, unit: str = "", step: float = 1e-3) -> GumResult:
+def combine_numeric(
+    func: Callable[[Sequence[float]], float],
+    quantities: Sequence[InputQuantity],
+    k: float = 2.0,
+    unit: str = "",
+    step: float = 1e-3,
+) -> GumResult:
     """GUM propagation for any model y = func(x), sensitivities by central differences.
 
     func: takes the input values in the order given and returns y (in unit); quantities: the
@@ -336,11 +373,11 @@ def combine_numeric(func: Callable[[Sequence[float]], float], quantities: Sequen
         rel = q.u / abs(q.value) if q.value else math.nan
         crel = contribution / abs(y) if y else math.nan
         share = _share(contribution, u_c)
-        lines.append(BudgetLine(q.name, q.name, q.value, q.u, q.unit, str(q.distribution), q.derivation,
-                                c, rel, contribution, crel, share))
+        lines.append(
+            BudgetLine(q.name, q.name, q.value, q.u, q.unit, str(q.distribution), q.derivation, c, rel, contribution, crel, share)
+        )
         factors.append(FactorLine(q.name, q.value, q.u, q.unit, rel, contribution, crel, share, (q.name,)))
-    return GumResult(value=y, u=u_c, k=float(k), U=k * u_c, unit=unit, lines=tuple(lines),
-                     factors=tuple(factors))
+    return GumResult(value=y, u=u_c, k=float(k), U=k * u_c, unit=unit, lines=tuple(lines), factors=tuple(factors))
 
 
 # --------------------------------------------------------------------------- Monte Carlo
@@ -399,8 +436,7 @@ def _summarize_draws(y: np.ndarray, coverage: float, seed: int, unit: str) -> Mo
     r = max(1, int(round((m - q) / 2.0)))
     lo_i, hi_i = r - 1, min(m - 1, r - 1 + q)
     low, high = _order_statistic(y, lo_i, mean, sd), _order_statistic(y, hi_i, mean, sd)
-    return MonteCarloResult(mean=mean, u=sd, low=low, high=high, coverage=coverage, draws=m, seed=seed,
-                            unit=unit)
+    return MonteCarloResult(mean=mean, u=sd, low=low, high=high, coverage=coverage, draws=m, seed=seed, unit=unit)
 
 
 def _order_statistic(y: np.ndarray, i: int, mean: float, sd: float) -> float:
@@ -431,8 +467,9 @@ def _check_mc_args(draws: int, coverage: float) -> None:
         raise ValueError(f"coverage must lie between 0 and 1, got {coverage!r}")
 
 
-def monte_carlo(model: ProductModel, draws: int = DEFAULT_DRAWS, seed: int = DEFAULT_SEED,
-                coverage: float = 0.95) -> MonteCarloResult:
+def monte_carlo(
+    model: ProductModel, draws: int = DEFAULT_DRAWS, seed: int = DEFAULT_SEED, coverage: float = 0.95
+) -> MonteCarloResult:
     """Monte Carlo propagation (JCGM 101) of a product model, each input from its own distribution.
 
     model: a ProductModel; draws: number of trials (count, >= 100); seed: generator seed
@@ -488,7 +525,7 @@ def _monte_carlo(model: ProductModel, n: int, seed: int, coverage: float) -> Mon
             x += w
             drawn = True
         if not drawn:
-            y *= constant ** f.exponent
+            y *= constant**f.exponent
             continue
         x += constant
         if f.exponent == 1.0:
@@ -500,9 +537,14 @@ def _monte_carlo(model: ProductModel, n: int, seed: int, coverage: float) -> Mon
     return _summarize_draws(y, coverage, seed, model.unit)
 
 
-def monte_carlo_function(func: Callable[..., np.ndarray], quantities: Sequence[InputQuantity],
-                         draws: int = DEFAULT_DRAWS, seed: int = DEFAULT_SEED, coverage: float = 0.95,
-                         unit: str = "") -> MonteCarloResult:
+def monte_carlo_function(
+    func: Callable[..., np.ndarray],
+    quantities: Sequence[InputQuantity],
+    draws: int = DEFAULT_DRAWS,
+    seed: int = DEFAULT_SEED,
+    coverage: float = 0.95,
+    unit: str = "",
+) -> MonteCarloResult:
     """Monte Carlo propagation through any vectorized model y = func(x_1, ..., x_n).
 
     func: takes one numpy array (or float, for an exact input) per quantity, in order, and returns

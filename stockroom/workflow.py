@@ -37,14 +37,23 @@ def rule_for(policy: ReagentPolicy) -> stats.AcceptanceRule:
 
 
 def _purity(lot: Mapping[str, Any]) -> InputQuantity:
-    return InputQuantity.expanded("purity", float(lot["assay"]), float(lot["assay_expanded_u"]),
-                                  float(lot["assay_k"]), derivation=f"lot {lot['code']} certificate: "
-                                  f"U = {lot['assay_expanded_u']} (k = {lot['assay_k']:g})")
+    return InputQuantity.expanded(
+        "purity",
+        float(lot["assay"]),
+        float(lot["assay_expanded_u"]),
+        float(lot["assay_k"]),
+        derivation=f"lot {lot['code']} certificate: U = {lot['assay_expanded_u']} (k = {lot['assay_k']:g})",
+    )
 
 
 def compute_primary(
-    config: Mapping[str, Any], batch: Mapping[str, Any], lot: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]],
-    excluded: Mapping[int, str], policy: ReagentPolicy, burette_capacity_ml: float | None = None,
+    config: Mapping[str, Any],
+    batch: Mapping[str, Any],
+    lot: Mapping[str, Any],
+    replicates: Sequence[Mapping[str, Any]],
+    excluded: Mapping[int, str],
+    policy: ReagentPolicy,
+    burette_capacity_ml: float | None = None,
     figures: standardization.Instruments | None = None,
 ) -> StandardizationResult:
     """Compute a primary run from stored-form replicate dicts (1-based positions in `excluded`).
@@ -54,52 +63,71 @@ def compute_primary(
     spec = standardization.standard_spec(batch["reagent"], lot["substance"])
     titrant = chemistry.titrant(batch["reagent"])
     alternatives = tuple(
-        standardization.standard_spec(titrant.key, s.key)
-        for s in chemistry.list_standards(titrant) if s.key != spec.key
+        standardization.standard_spec(titrant.key, s.key) for s in chemistry.list_standards(titrant) if s.key != spec.key
     )
     reps = tuple(
         standardization.Replicate(
-            volume_ml=float(r["volume_ml"]), mass_g=r.get("mass_g") if r.get("mass_gross_g") is None else None,
-            gross_g=r.get("mass_gross_g"), tare_g=r.get("mass_tare_g"), blank_ml=float(r.get("blank_ml") or 0.0),
-            temperature_c=r.get("temperature_c"))
+            volume_ml=float(r["volume_ml"]),
+            mass_g=r.get("mass_g") if r.get("mass_gross_g") is None else None,
+            gross_g=r.get("mass_gross_g"),
+            tare_g=r.get("mass_tare_g"),
+            blank_ml=float(r.get("blank_ml") or 0.0),
+            temperature_c=r.get("temperature_c"),
+        )
         for r in replicates
     )
     run = standardization.PrimaryRun(
-        standard=spec, replicates=reps, purity=_purity(lot), purity_value=float(lot["assay"]),
+        standard=spec,
+        replicates=reps,
+        purity=_purity(lot),
+        purity_value=float(lot["assay"]),
         nominal_molarity=float(batch["nominal_molarity"]),
         exclusions=tuple(standardization.Exclusion(p - 1, why) for p, why in sorted(excluded.items())),
-        burette_capacity_ml=burette_capacity_ml, alternatives=alternatives,
+        burette_capacity_ml=burette_capacity_ml,
+        alternatives=alternatives,
     )
-    return standardization.standardize_primary(run, figures or standardization.Instruments.from_settings(config),
-                                               rule_for(policy))
+    return standardization.standardize_primary(
+        run, figures or standardization.Instruments.from_settings(config), rule_for(policy)
+    )
 
 
 def compute_secondary(
-    config: Mapping[str, Any], batch: Mapping[str, Any], reference_batch: Mapping[str, Any],
-    reference_molarity: float, reference_u: float, replicates: Sequence[Mapping[str, Any]],
-    excluded: Mapping[int, str], policy: ReagentPolicy, burette_capacity_ml: float | None = None,
+    config: Mapping[str, Any],
+    batch: Mapping[str, Any],
+    reference_batch: Mapping[str, Any],
+    reference_molarity: float,
+    reference_u: float,
+    replicates: Sequence[Mapping[str, Any]],
+    excluded: Mapping[int, str],
+    policy: ReagentPolicy,
+    burette_capacity_ml: float | None = None,
     figures: standardization.Instruments | None = None,
 ) -> StandardizationResult:
     """Compute a secondary run: aliquots of this batch titrated with a certified reference batch.
 
     figures: the instrument figures of the run (instruments.figures); None takes the settings' defaults.
     """
-    nu = chemistry.stoichiometric_factor(chemistry.titrant(batch["reagent"]),
-                                         chemistry.titrant(reference_batch["reagent"]))
+    nu = chemistry.stoichiometric_factor(chemistry.titrant(batch["reagent"]), chemistry.titrant(reference_batch["reagent"]))
     reps = tuple(
-        standardization.AliquotReplicate(aliquot_ml=float(r["aliquot_ml"]), volume_ml=float(r["volume_ml"]),
-                                         blank_ml=float(r.get("blank_ml") or 0.0),
-                                         temperature_c=r.get("temperature_c"))
+        standardization.AliquotReplicate(
+            aliquot_ml=float(r["aliquot_ml"]),
+            volume_ml=float(r["volume_ml"]),
+            blank_ml=float(r.get("blank_ml") or 0.0),
+            temperature_c=r.get("temperature_c"),
+        )
         for r in replicates
     )
     run = standardization.SecondaryRun(
         reference=standardization.Reference(reference_molarity, reference_u, name=reference_batch["code"]),
-        nu=nu, replicates=reps, nominal_molarity=float(batch["nominal_molarity"]),
+        nu=nu,
+        replicates=reps,
+        nominal_molarity=float(batch["nominal_molarity"]),
         exclusions=tuple(standardization.Exclusion(p - 1, why) for p, why in sorted(excluded.items())),
         burette_capacity_ml=burette_capacity_ml,
     )
-    return standardization.standardize_secondary(run, figures or standardization.Instruments.from_settings(config),
-                                                 rule_for(policy))
+    return standardization.standardize_secondary(
+        run, figures or standardization.Instruments.from_settings(config), rule_for(policy)
+    )
 
 
 def _replicate_rows(replicates: Sequence[Mapping[str, Any]], result: StandardizationResult) -> list[dict[str, Any]]:
@@ -117,8 +145,9 @@ def _replicate_rows(replicates: Sequence[Mapping[str, Any]], result: Standardiza
 def check_lot_usable(lot: Mapping[str, Any], on: dt.date) -> list[str]:
     """Refuse an expired lot; return warnings (e.g. a drying record missing) for a usable one."""
     if dt.date.fromisoformat(lot["expires_on"]) < on:
-        raise InvalidInput([FieldError("standard_lot_id",
-                                       f"lot {lot['code']} expired on {lot['expires_on']}; use a lot in date")])
+        raise InvalidInput(
+            [FieldError("standard_lot_id", f"lot {lot['code']} expired on {lot['expires_on']}; use a lot in date")]
+        )
     warnings = []
     broken = chemistry.check_drying(lot["substance"], lot.get("dried_at_c"))
     if broken:
@@ -130,14 +159,16 @@ def check_lot_usable(lot: Mapping[str, Any], on: dt.date) -> list[str]:
     return warnings
 
 
-def run_figures(config: Mapping[str, Any], chosen: Mapping[str, inst_mod.Instrument],
-                on: dt.date) -> standardization.Instruments | None:
+def run_figures(
+    config: Mapping[str, Any], chosen: Mapping[str, inst_mod.Instrument], on: dt.date
+) -> standardization.Instruments | None:
     """The budget's figures for a run that named instruments (role -> Instrument), or None for the defaults."""
     return inst_mod.figures(config, chosen, on) if chosen else None
 
 
-def _stored_result(result: StandardizationResult, chosen: Mapping[str, inst_mod.Instrument], on: dt.date,
-                   purpose: str) -> dict[str, Any]:
+def _stored_result(
+    result: StandardizationResult, chosen: Mapping[str, inst_mod.Instrument], on: dt.date, purpose: str
+) -> dict[str, Any]:
     """The snapshot stored with a run, with the warnings about its instruments added."""
     body = snapshot(result)
     extra = inst_mod.warnings_for(chosen, on, purpose)
@@ -146,22 +177,40 @@ def _stored_result(result: StandardizationResult, chosen: Mapping[str, inst_mod.
     return body
 
 
-def _record(db: sqlite_utils.Database, run: dict[str, Any], replicates: Sequence[Mapping[str, Any]],
-            result: StandardizationResult, actor: str, excluded: Mapping[int, str],
-            chosen: Mapping[str, inst_mod.Instrument], on: dt.date) -> int:
+def _record(
+    db: sqlite_utils.Database,
+    run: dict[str, Any],
+    replicates: Sequence[Mapping[str, Any]],
+    result: StandardizationResult,
+    actor: str,
+    excluded: Mapping[int, str],
+    chosen: Mapping[str, inst_mod.Instrument],
+    on: dt.date,
+) -> int:
     """Store a run and the instruments it named in one write."""
     with dbmod.write(db):
-        run_id = records.record_run(db, run, _replicate_rows(replicates, result),
-                                    _stored_result(result, chosen, on, str(run["purpose"])), actor,
-                                    exclusions=sorted(excluded.items()))
+        run_id = records.record_run(
+            db,
+            run,
+            _replicate_rows(replicates, result),
+            _stored_result(result, chosen, on, str(run["purpose"])),
+            actor,
+            exclusions=sorted(excluded.items()),
+        )
         inst_mod.link_run(db, run_id, run["batch_id"], chosen, on, actor)
     return run_id
 
 
 def record_primary_run(
-    db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], lot: Mapping[str, Any],
-    meta: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]], actor: str,
-    excluded: Mapping[int, str] | None = None, instruments: Mapping[str, inst_mod.Instrument] | None = None,
+    db: sqlite_utils.Database,
+    config: Mapping[str, Any],
+    batch: Mapping[str, Any],
+    lot: Mapping[str, Any],
+    meta: Mapping[str, Any],
+    replicates: Sequence[Mapping[str, Any]],
+    actor: str,
+    excluded: Mapping[int, str] | None = None,
+    instruments: Mapping[str, inst_mod.Instrument] | None = None,
 ) -> tuple[int, StandardizationResult]:
     """Compute and store a primary run (meta: purpose, performed_on, analyst, endpoint...); return its id.
 
@@ -172,8 +221,16 @@ def record_primary_run(
     performed_on = dt.date.fromisoformat(str(meta["performed_on"]))
     check_lot_usable(lot, performed_on)
     policy = records.policy_for(db, batch["reagent"], performed_on)
-    result = compute_primary(config, batch, lot, replicates, excluded, policy, meta.get("burette_capacity_ml"),
-                             run_figures(config, chosen, performed_on))
+    result = compute_primary(
+        config,
+        batch,
+        lot,
+        replicates,
+        excluded,
+        policy,
+        meta.get("burette_capacity_ml"),
+        run_figures(config, chosen, performed_on),
+    )
     run = {k: v for k, v in meta.items() if k != "instruments"}
     run.update({"batch_id": batch["id"], "method": "primary", "standard_lot_id": lot["id"]})
     return _record(db, run, replicates, result, actor, excluded, chosen, performed_on), result
@@ -183,15 +240,27 @@ def reference_in_force(db: sqlite_utils.Database, reference_batch: Mapping[str, 
     """The reference batch's release in force on `on`; Conflict-free InvalidInput when it has none."""
     release = release_in_force(records.batch_facts(db, reference_batch["id"]), on)
     if release is None:
-        raise InvalidInput([FieldError("reference_batch", f"batch {reference_batch['code']} has no certified "
-                                       f"value in force on {on.isoformat()}; it cannot serve as a reference")])
+        raise InvalidInput(
+            [
+                FieldError(
+                    "reference_batch",
+                    f"batch {reference_batch['code']} has no certified "
+                    f"value in force on {on.isoformat()}; it cannot serve as a reference",
+                )
+            ]
+        )
     return release
 
 
 def record_secondary_run(
-    db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any],
-    reference_batch: Mapping[str, Any], meta: Mapping[str, Any], replicates: Sequence[Mapping[str, Any]],
-    actor: str, excluded: Mapping[int, str] | None = None,
+    db: sqlite_utils.Database,
+    config: Mapping[str, Any],
+    batch: Mapping[str, Any],
+    reference_batch: Mapping[str, Any],
+    meta: Mapping[str, Any],
+    replicates: Sequence[Mapping[str, Any]],
+    actor: str,
+    excluded: Mapping[int, str] | None = None,
     instruments: Mapping[str, inst_mod.Instrument] | None = None,
 ) -> tuple[int, StandardizationResult]:
     """Compute and store a secondary run against the reference's release in force that day.
@@ -205,16 +274,33 @@ def record_secondary_run(
         raise InvalidInput([FieldError("reference_batch", "a batch cannot be its own reference")])
     ref = reference_in_force(db, reference_batch, performed_on)
     policy = records.policy_for(db, batch["reagent"], performed_on)
-    result = compute_secondary(config, batch, reference_batch, ref.molarity, ref.u, replicates, excluded, policy,
-                               meta.get("burette_capacity_ml"), run_figures(config, chosen, performed_on))
+    result = compute_secondary(
+        config,
+        batch,
+        reference_batch,
+        ref.molarity,
+        ref.u,
+        replicates,
+        excluded,
+        policy,
+        meta.get("burette_capacity_ml"),
+        run_figures(config, chosen, performed_on),
+    )
     run = {k: v for k, v in meta.items() if k != "instruments"}
-    run.update({"batch_id": batch["id"], "method": "secondary", "reference_batch_id": reference_batch["id"],
-                "reference_release_id": ref.id})
+    run.update(
+        {
+            "batch_id": batch["id"],
+            "method": "secondary",
+            "reference_batch_id": reference_batch["id"],
+            "reference_release_id": ref.id,
+        }
+    )
     return _record(db, run, replicates, result, actor, excluded, chosen, performed_on), result
 
 
-def recompute(db: sqlite_utils.Database, config: Mapping[str, Any], run: Mapping[str, Any],
-              excluded: Mapping[int, str]) -> StandardizationResult:
+def recompute(
+    db: sqlite_utils.Database, config: Mapping[str, Any], run: Mapping[str, Any], excluded: Mapping[int, str]
+) -> StandardizationResult:
     """Compute a stored run again with a given set of exclusions (1-based positions)."""
     batch = records.batch_by_id(db, run["batch_id"])
     performed_on = dt.date.fromisoformat(run["performed_on"])
@@ -222,29 +308,32 @@ def recompute(db: sqlite_utils.Database, config: Mapping[str, Any], run: Mapping
     figures = run_figures(config, inst_mod.instruments_of_run(db, run["id"]), performed_on)
     if run["method"] == "primary":
         lot = records.lot_by_id(db, run["standard_lot_id"])
-        return compute_primary(config, batch, lot, run["replicates"], excluded, policy, run["burette_capacity_ml"],
-                               figures)
+        return compute_primary(config, batch, lot, run["replicates"], excluded, policy, run["burette_capacity_ml"], figures)
     ref_batch = records.batch_by_id(db, run["reference_batch_id"])
     ref = next(r for r in records.batch_facts(db, ref_batch["id"]).releases if r.id == run["reference_release_id"])
-    return compute_secondary(config, batch, ref_batch, ref.molarity, ref.u, run["replicates"], excluded, policy,
-                             run["burette_capacity_ml"], figures)
+    return compute_secondary(
+        config, batch, ref_batch, ref.molarity, ref.u, run["replicates"], excluded, policy, run["burette_capacity_ml"], figures
+    )
 
 
-def exclude(db: sqlite_utils.Database, config: Mapping[str, Any], run_id: int, position: int, reason: str,
-            actor: str) -> StandardizationResult:
+def exclude(
+    db: sqlite_utils.Database, config: Mapping[str, Any], run_id: int, position: int, reason: str, actor: str
+) -> StandardizationResult:
     """Leave one replicate of an undecided run out, with a reason; store the recomputed result."""
     run = records.run_by_id(db, run_id)
     excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
     excluded[position] = reason
     result = recompute(db, config, run, excluded)
-    body = _stored_result(result, inst_mod.instruments_of_run(db, run_id),
-                          dt.date.fromisoformat(run["performed_on"]), run["purpose"])
+    body = _stored_result(
+        result, inst_mod.instruments_of_run(db, run_id), dt.date.fromisoformat(run["performed_on"]), run["purpose"]
+    )
     records.exclude_replicate(db, run_id, position, reason, body, actor)
     return result
 
 
-def accept(db: sqlite_utils.Database, run_id: int, actor: str, released_on: dt.date | None = None,
-           reason: str = "") -> int | None:
+def accept(
+    db: sqlite_utils.Database, run_id: int, actor: str, released_on: dt.date | None = None, reason: str = ""
+) -> int | None:
     """Accept a run. A certifying run releases the batch with its current result; return the release id."""
     run = records.run_by_id(db, run_id)
     current = run["current"]
@@ -253,11 +342,16 @@ def accept(db: sqlite_utils.Database, run_id: int, actor: str, released_on: dt.d
         raise Conflict(f"this run cannot be accepted: {why}. Exclude a replicate with a reason, or reject the run")
     if run["purpose"] == "certify":
         used_on = dt.date.fromisoformat(run["performed_on"])
-        problems = [p for inst in inst_mod.instruments_of_run(db, run_id).values()
-                    if (p := inst_mod.problem_for_release(inst, used_on)) is not None]
+        problems = [
+            p
+            for inst in inst_mod.instruments_of_run(db, run_id).values()
+            if (p := inst_mod.problem_for_release(inst, used_on)) is not None
+        ]
         if problems:
-            raise Conflict("this run cannot release the batch: " + "; ".join(problems) + ". Recalibrate the "
-                           "instrument and repeat the standardization; a re-check may still be recorded with it")
+            raise Conflict(
+                "this run cannot release the batch: " + "; ".join(problems) + ". Recalibrate the "
+                "instrument and repeat the standardization; a re-check may still be recorded with it"
+            )
     if run["purpose"] != "certify":
         return records.decide_run(db, run_id, "accept", reason, actor)
     batch = records.batch_by_id(db, run["batch_id"])
@@ -268,10 +362,15 @@ def accept(db: sqlite_utils.Database, run_id: int, actor: str, released_on: dt.d
     if expires_on < released_on:
         raise Conflict(f"this batch passed its shelf life on {expires_on.isoformat()}; it cannot be released")
     release = {
-        "molarity": current["molarity"], "u": current["u"], "U": current["expanded_u"], "k": current["k"],
+        "molarity": current["molarity"],
+        "u": current["u"],
+        "U": current["expanded_u"],
+        "k": current["k"],
         "reference_temperature_c": standardization.REFERENCE_TEMPERATURE_C,
-        "released_on": released_on.isoformat(), "expires_on": expires_on.isoformat(),
-        "recheck_interval_days": policy.recheck_interval_days, "tolerance_rel": policy.tolerance_rel,
+        "released_on": released_on.isoformat(),
+        "expires_on": expires_on.isoformat(),
+        "recheck_interval_days": policy.recheck_interval_days,
+        "tolerance_rel": policy.tolerance_rel,
     }
     return records.decide_run(db, run_id, "accept", reason, actor, release=release)
 

@@ -10,8 +10,9 @@ from stockroom import db as dbmod
 
 @pytest.fixture
 def app(tmp_path):
-    app = create_app({"DATABASE": str(tmp_path / "stockroom.db"), "TESTING": True, "SECRET_KEY": "test-only",
-                      "LAB_TIMEZONE": "UTC"})
+    app = create_app(
+        {"DATABASE": str(tmp_path / "stockroom.db"), "TESTING": True, "SECRET_KEY": "test-only", "LAB_TIMEZONE": "UTC"}
+    )
     yield app
 
 
@@ -73,8 +74,7 @@ def make_user(app, quick_password_hashing):
     def _make(username, role="staff", password=TEST_PASSWORD, display_name=None):
         conn = dbmod.connect(app.config["DATABASE"])
         try:
-            return accounts.create_user(conn, username, display_name or username.title(), role, password,
-                                        actor="test-setup")
+            return accounts.create_user(conn, username, display_name or username.title(), role, password, actor="test-setup")
         finally:
             conn.close()
 

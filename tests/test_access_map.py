@@ -19,8 +19,7 @@ PUBLIC_COMPUTE_PREFIXES = ("/api/v1/preparation/",)
 
 
 def _app(tmp_path):
-    return create_app({"DATABASE": str(tmp_path / "map.db"), "TESTING": True, "SECRET_KEY": "t",
-                       "WTF_CSRF_ENABLED": False})
+    return create_app({"DATABASE": str(tmp_path / "map.db"), "TESTING": True, "SECRET_KEY": "t", "WTF_CSRF_ENABLED": False})
 
 
 def _write_rules(app):
@@ -29,8 +28,7 @@ def _write_rules(app):
         methods = (rule.methods or set()) & WRITE_METHODS
         if not methods or rule.endpoint == "static":
             continue
-        values = {arg: (1 if "int" in str(rule._converters.get(arg, "")).lower() else "X-0000-00")
-                  for arg in rule.arguments}
+        values = {arg: (1 if "int" in str(rule._converters.get(arg, "")).lower() else "X-0000-00") for arg in rule.arguments}
         out.append((rule, sorted(methods)[0], values))
     return out
 
@@ -43,8 +41,7 @@ def test_every_write_route_has_an_access_rule(tmp_path):
         access = getattr(view, "access_rule", None)
         if access is None:
             missing.append(rule.rule)
-        elif access == "public" and rule.endpoint not in PUBLIC_WRITES and not rule.rule.startswith(
-                PUBLIC_COMPUTE_PREFIXES):
+        elif access == "public" and rule.endpoint not in PUBLIC_WRITES and not rule.rule.startswith(PUBLIC_COMPUTE_PREFIXES):
             missing.append(f"{rule.rule} (public without a stated reason)")
     assert not missing, f"write routes without an access rule: {missing}"
     assert len(_write_rules(app)) >= 5  # the walk itself found the app's forms
@@ -101,8 +98,7 @@ def test_wrong_role_writes_are_refused_everywhere(tmp_path, make_user, quick_pas
 
             url = url_for(rule.endpoint, **values)
         if url.startswith("/api/"):  # JSON writes take API tokens, never the session cookie
-            resp = clients[role].open(url, method=method, json={},
-                                      headers={"Authorization": f"Bearer {bearer[role]}"})
+            resp = clients[role].open(url, method=method, json={}, headers={"Authorization": f"Bearer {bearer[role]}"})
         else:
             resp = clients[role].open(url, method=method, data={})
         assert resp.status_code == 403, f"{method} {url} let a {role} through ({resp.status_code})"
@@ -125,8 +121,9 @@ def test_no_get_changes_anything(tmp_path, quick_password_hashing):
 
     path = tmp_path / "get.db"
     build_demo(str(path), password="visiting-Test-4d2a")
-    app = create_app({"DATABASE": str(path), "TESTING": True, "SECRET_KEY": "t", "LAB_TIMEZONE": "UTC",
-                      "WTF_CSRF_ENABLED": False})
+    app = create_app(
+        {"DATABASE": str(path), "TESTING": True, "SECRET_KEY": "t", "LAB_TIMEZONE": "UTC", "WTF_CSRF_ENABLED": False}
+    )
     client = app.test_client()
     assert client.post("/sign-in", data={"username": "okafor", "password": "visiting-Test-4d2a"}).status_code == 303
     from stockroom import db as dbmod
@@ -141,8 +138,9 @@ def test_no_get_changes_anything(tmp_path, quick_password_hashing):
             tables = [r[0] for r in c.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
             # Session bookkeeping of the visitor is not a record; refused authorisations are logged on
             # purpose (the audit trail keeps them), so they are the one entry a GET may add.
-            counts = {t: c.execute(f"SELECT count(*) FROM {t}").fetchone()[0] for t in tables
-                      if t not in ("web_sessions", "events")}
+            counts = {
+                t: c.execute(f"SELECT count(*) FROM {t}").fetchone()[0] for t in tables if t not in ("web_sessions", "events")
+            }
             counts["events"] = c.execute("SELECT count(*) FROM events WHERE action != 'access.refused'").fetchone()[0]
             return counts
         finally:
@@ -164,7 +162,9 @@ def test_no_get_changes_anything(tmp_path, quick_password_hashing):
     after = snapshot()
     if after != before:
         c = sqlite3.connect(path)
-        new = c.execute("SELECT action, detail FROM events WHERE action != 'access.refused' ORDER BY id DESC "
-                        "LIMIT ?", [max(1, after["events"] - before["events"])]).fetchall()
+        new = c.execute(
+            "SELECT action, detail FROM events WHERE action != 'access.refused' ORDER BY id DESC LIMIT ?",
+            [max(1, after["events"] - before["events"])],
+        ).fetchall()
         c.close()
         raise AssertionError(f"GET requests wrote: {new}")

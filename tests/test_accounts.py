@@ -41,6 +41,7 @@ def _sign_in(client, form_token, username, password):
 # Rules follow NIST SP 800-63B section 5.1.1.2: a minimum length, a check against a list of
 # commonly used passwords, and no composition rules. The 12-character minimum is this project's.
 
+
 def test_length_rule_counts_characters():
     assert accounts.password_problems("x7#kite-lamp") == []  # exactly 12
     assert len(accounts.password_problems("x7#kite-lam")) == 1  # 11
@@ -55,8 +56,18 @@ def test_no_composition_rules():
     assert accounts.password_problems("onlylowercaseletters") == []
 
 
-@pytest.mark.parametrize("weak", ["password1234", "Password1234", "qwertyuiop12", "123456789012",
-                                  "1qaz2wsx3edc", "iloveyou1234", "correct horse battery staple"])
+@pytest.mark.parametrize(
+    "weak",
+    [
+        "password1234",
+        "Password1234",
+        "qwertyuiop12",
+        "123456789012",
+        "1qaz2wsx3edc",
+        "iloveyou1234",
+        "correct horse battery staple",
+    ],
+)
 def test_common_passwords_refused_whatever_the_case(weak):
     problems = accounts.password_problems(weak)
     assert len(problems) == 1 and "commonly used" in problems[0]
@@ -89,6 +100,7 @@ def test_hash_is_salted_scrypt_and_checks(database):
 
 # ---------------------------------------------------------------- users
 
+
 def test_create_user_validates_and_refuses_taken_name_any_case(database, make_user):
     make_user("Ada.Lovelace", "staff")
     with pytest.raises(InvalidInput) as taken:
@@ -119,6 +131,7 @@ def test_roles_permission_map():
 
 
 # ---------------------------------------------------------------- authenticate
+
 
 def test_authenticate_right_wrong_unknown_and_case(database, make_user, _no_failure_delay, monkeypatch):
     user = make_user("grace", "instructor")
@@ -160,6 +173,7 @@ def test_last_admin_cannot_be_disabled(database, make_user):
 
 # ---------------------------------------------------------------- lock-out
 
+
 def test_five_failures_pause_the_username_for_fifteen_minutes(database, make_user):
     make_user("rosalind", "staff")
     t0 = dt.datetime(2026, 3, 2, 9, 0, tzinfo=dt.UTC)
@@ -173,8 +187,7 @@ def test_five_failures_pause_the_username_for_fifteen_minutes(database, make_use
     assert locked.value.until == last + dt.timedelta(minutes=15)
     assert "14 minutes" in locked.value.message and locked.value.status == 429
     with pytest.raises(accounts.SignInLocked):
-        accounts.authenticate(database, "Rosalind", TEST_PASSWORD,
-                              now=last + dt.timedelta(minutes=14, seconds=59))
+        accounts.authenticate(database, "Rosalind", TEST_PASSWORD, now=last + dt.timedelta(minutes=14, seconds=59))
     resumed = last + dt.timedelta(minutes=15)
     assert accounts.authenticate(database, "rosalind", TEST_PASSWORD, now=resumed) is not None
     assert len(_events(database, "account.signin_paused")) == 2
@@ -221,13 +234,13 @@ def test_sign_in_page_shows_the_pause(client, form_token, make_user):
 
 # ---------------------------------------------------------------- the sign-in page and sessions
 
+
 def test_sign_in_sets_a_fresh_session_and_redirects_to_next(client, form_token, make_user):
     make_user("ada", "staff", display_name="Ada <b>L</b>")
     client.get("/sign-in")
     before = client.get_cookie("session").value
     token = form_token(client, "/sign-in")
-    resp = client.post("/sign-in", data={"username": "ada", "password": TEST_PASSWORD, "csrf_token": token,
-                                         "next": "/batches/"})
+    resp = client.post("/sign-in", data={"username": "ada", "password": TEST_PASSWORD, "csrf_token": token, "next": "/batches/"})
     assert resp.status_code == 303 and resp.headers["Location"] == "/batches/"
     assert client.get_cookie("session").value != before
     assert client.get_cookie("session").same_site == "Lax" and client.get_cookie("session").http_only
@@ -241,8 +254,9 @@ def test_sign_in_sets_a_fresh_session_and_redirects_to_next(client, form_token, 
 def test_next_never_leaves_the_site(client, form_token, make_user):
     make_user("ada", "staff")
     token = form_token(client, "/sign-in")
-    resp = client.post("/sign-in", data={"username": "ada", "password": TEST_PASSWORD, "csrf_token": token,
-                                         "next": "//evil.example/x"})
+    resp = client.post(
+        "/sign-in", data={"username": "ada", "password": TEST_PASSWORD, "csrf_token": token, "next": "//evil.example/x"}
+    )
     assert resp.headers["Location"] == "/"
     for bad in ("https://evil.example/", "//evil.example", "/\\evil.example", "relative", ""):
         assert safe_next(bad) is None
@@ -257,8 +271,7 @@ def test_bad_sign_in_keeps_username_never_password(client, form_token, make_user
     assert resp.status_code == 422
     assert re.search(r'id="f-password".*?<span class="field-error"[^>]*>Enter your password', page, re.S)
     assert 'value="ada"' in page
-    resp = client.post("/sign-in", data={"username": "ada", "password": "typed-secret-123",
-                                         "csrf_token": token})
+    resp = client.post("/sign-in", data={"username": "ada", "password": "typed-secret-123", "csrf_token": token})
     assert resp.status_code == 401 and "typed-secret-123" not in resp.get_data(as_text=True)
 
 
@@ -297,26 +310,36 @@ def test_session_older_than_the_limit_is_over(database, make_user):
 
 # ---------------------------------------------------------------- password change
 
+
 def test_password_change(app, signed_in_client, form_token, database):
     c = signed_in_client("staff")
     other = signed_in_client("staff")  # the same account in another browser
     token = form_token(c, "/account/password")
     new = "seven lanterns on a quiet pier"
     # Wrong current password: 422 beside the field, nothing changed, counted as a failure.
-    resp = c.post("/account/password", data={"csrf_token": token, "current_password": "not my password",
-                                             "new_password": new, "confirm_password": new})
+    resp = c.post(
+        "/account/password",
+        data={"csrf_token": token, "current_password": "not my password", "new_password": new, "confirm_password": new},
+    )
     assert resp.status_code == 422
-    assert re.search(r'id="f-current_password-error">That is not your current password',
-                     resp.get_data(as_text=True))
+    assert re.search(r'id="f-current_password-error">That is not your current password', resp.get_data(as_text=True))
     assert accounts.authenticate(database, "staff-user", TEST_PASSWORD) is not None
     # Mismatch and a common password: both fields get their message.
-    resp = c.post("/account/password", data={"csrf_token": token, "current_password": TEST_PASSWORD,
-                                             "new_password": "password1234",
-                                             "confirm_password": "password12345"})
+    resp = c.post(
+        "/account/password",
+        data={
+            "csrf_token": token,
+            "current_password": TEST_PASSWORD,
+            "new_password": "password1234",
+            "confirm_password": "password12345",
+        },
+    )
     page = resp.get_data(as_text=True)
     assert resp.status_code == 422 and 'id="f-confirm_password-error"' in page and "commonly used" in page
-    resp = c.post("/account/password", data={"csrf_token": token, "current_password": TEST_PASSWORD,
-                                             "new_password": new, "confirm_password": new})
+    resp = c.post(
+        "/account/password",
+        data={"csrf_token": token, "current_password": TEST_PASSWORD, "new_password": new, "confirm_password": new},
+    )
     assert resp.status_code == 303
     assert c.get("/account/password").status_code == 200  # this browser has a fresh session
     assert other.get("/account/password").status_code == 303  # the other one is signed out
@@ -334,23 +357,46 @@ def test_password_change_refuses_same_password(database, make_user):
 
 # ---------------------------------------------------------------- first run
 
+
 def test_first_run_only_while_no_user_exists(client, form_token, database):
     token = form_token(client, "/first-run")
-    bad = client.post("/first-run", data={"csrf_token": token, "username": "lead", "display_name": "Lab Lead",
-                                          "password": "qwertyuiop12", "confirm_password": "qwertyuiop12"})
+    bad = client.post(
+        "/first-run",
+        data={
+            "csrf_token": token,
+            "username": "lead",
+            "display_name": "Lab Lead",
+            "password": "qwertyuiop12",
+            "confirm_password": "qwertyuiop12",
+        },
+    )
     assert bad.status_code == 422 and 'value="Lab Lead"' in bad.get_data(as_text=True)
     assert not accounts.has_users(database)
-    resp = client.post("/first-run", data={"csrf_token": token, "username": "lead",
-                                           "display_name": "Lab Lead",
-                                           "password": TEST_PASSWORD, "confirm_password": TEST_PASSWORD})
+    resp = client.post(
+        "/first-run",
+        data={
+            "csrf_token": token,
+            "username": "lead",
+            "display_name": "Lab Lead",
+            "password": TEST_PASSWORD,
+            "confirm_password": TEST_PASSWORD,
+        },
+    )
     assert resp.status_code == 303
     lead = accounts.user_by_username(database, "lead")
     assert lead.role == "admin"
     assert client.get("/account/password").status_code == 200  # signed in straight away
     assert client.get("/first-run").status_code == 404
-    again = client.post("/first-run", data={"csrf_token": form_token(client, "/"), "username": "intruder",
-                                            "display_name": "X", "password": TEST_PASSWORD,
-                                            "confirm_password": TEST_PASSWORD})
+    again = client.post(
+        "/first-run",
+        data={
+            "csrf_token": form_token(client, "/"),
+            "username": "intruder",
+            "display_name": "X",
+            "password": TEST_PASSWORD,
+            "confirm_password": TEST_PASSWORD,
+        },
+    )
     assert again.status_code == 404
     assert [u.username for u in accounts.list_users(database)] == ["lead"]
     with pytest.raises(Conflict):
@@ -358,6 +404,7 @@ def test_first_run_only_while_no_user_exists(client, form_token, database):
 
 
 # ---------------------------------------------------------------- access rules
+
 
 @pytest.fixture
 def probe_app(app):
@@ -389,8 +436,7 @@ def test_require_anonymous_wrong_role_and_right_role(probe_app, signed_in_client
     assert api.status_code == 401 and api.get_json()["errors"][0]["message"].startswith("Sign in")
     instructor = signed_in_client("instructor")
     resp = instructor.post("/probe/record", data={"csrf_token": form_token(instructor, "/")})
-    assert resp.status_code == 403 and "does not allow you to record a standardization run" in resp.get_data(
-        as_text=True)
+    assert resp.status_code == 403 and "does not allow you to record a standardization run" in resp.get_data(as_text=True)
     refused = _events(database, "access.refused")
     assert len(refused) == 1 and refused[0]["actor"] == "instructor-user"
     for role in ("staff", "admin"):
@@ -408,8 +454,15 @@ def test_require_rejects_an_unknown_permission():
 def test_closed_reads_need_a_user_except_sign_in_health_and_static(tmp_path, make_user):
     from stockroom import create_app
 
-    app = create_app({"DATABASE": str(tmp_path / "closed.db"), "TESTING": True, "SECRET_KEY": "test-only",
-                      "LAB_TIMEZONE": "UTC", "OPEN_READS": False})
+    app = create_app(
+        {
+            "DATABASE": str(tmp_path / "closed.db"),
+            "TESTING": True,
+            "SECRET_KEY": "test-only",
+            "LAB_TIMEZONE": "UTC",
+            "OPEN_READS": False,
+        }
+    )
     c = app.test_client()
     assert c.get("/").status_code == 303
     assert c.get("/api/v1/batches").status_code == 401
@@ -425,6 +478,7 @@ def test_open_reads_still_refuse_anonymous_writes(client):
 
 # ---------------------------------------------------------------- CSRF
 
+
 def test_post_without_csrf_token_is_refused(client, make_user, database):
     make_user("ada", "staff")
     client.get("/sign-in")
@@ -435,11 +489,11 @@ def test_post_without_csrf_token_is_refused(client, make_user, database):
 
 # ---------------------------------------------------------------- command line
 
+
 def test_cli_add_user_with_password_from_environment(app, database):
     db_path = app.config["DATABASE"]
     runner = CliRunner(env={"STOCKROOM_PASSWORD": TEST_PASSWORD})
-    result = runner.invoke(cli_main, ["add-user", "kim", "--role", "staff", "--display-name", "Kim Park",
-                                      "--db", db_path])
+    result = runner.invoke(cli_main, ["add-user", "kim", "--role", "staff", "--display-name", "Kim Park", "--db", db_path])
     assert result.exit_code == 0, result.output
     kim = accounts.user_by_username(database, "kim")
     assert (kim.display_name, kim.role) == ("Kim Park", "staff")
@@ -448,7 +502,8 @@ def test_cli_add_user_with_password_from_environment(app, database):
     again = runner.invoke(cli_main, ["add-user", "KIM", "--role", "admin", "--db", db_path])
     assert again.exit_code == 1 and "taken" in again.output
     weak = CliRunner(env={"STOCKROOM_PASSWORD": "letmein"}).invoke(
-        cli_main, ["add-user", "lee", "--role", "staff", "--db", db_path])
+        cli_main, ["add-user", "lee", "--role", "staff", "--db", db_path]
+    )
     assert weak.exit_code == 1 and "at least 12" in weak.output
     assert accounts.user_by_username(database, "lee") is None
 
@@ -456,13 +511,13 @@ def test_cli_add_user_with_password_from_environment(app, database):
 def test_cli_add_user_prompts_twice_and_disable_user(app, database):
     db_path = app.config["DATABASE"]
     runner = CliRunner(env={"STOCKROOM_PASSWORD": None})
-    result = runner.invoke(cli_main, ["add-user", "boss", "--role", "admin", "--db", db_path],
-                           input=f"{TEST_PASSWORD}\n{TEST_PASSWORD}\n")
+    result = runner.invoke(
+        cli_main, ["add-user", "boss", "--role", "admin", "--db", db_path], input=f"{TEST_PASSWORD}\n{TEST_PASSWORD}\n"
+    )
     assert result.exit_code == 0, result.output
     assert TEST_PASSWORD not in result.output  # hidden input
     assert accounts.user_by_username(database, "boss").role == "admin"
-    runner.invoke(cli_main, ["add-user", "sam", "--role", "staff", "--db", db_path],
-                  input=f"{TEST_PASSWORD}\n{TEST_PASSWORD}\n")
+    runner.invoke(cli_main, ["add-user", "sam", "--role", "staff", "--db", db_path], input=f"{TEST_PASSWORD}\n{TEST_PASSWORD}\n")
     result = runner.invoke(cli_main, ["disable-user", "sam", "--reason", "moved away", "--db", db_path])
     assert result.exit_code == 0, result.output
     assert accounts.user_by_username(database, "sam").active is False
@@ -472,8 +527,7 @@ def test_cli_add_user_prompts_twice_and_disable_user(app, database):
 def test_cli_set_password(app, database, make_user):
     make_user("ada", "staff")
     new = "seven lanterns on a quiet pier"
-    result = CliRunner(env={"STOCKROOM_PASSWORD": new}).invoke(
-        cli_main, ["set-password", "ada", "--db", app.config["DATABASE"]])
+    result = CliRunner(env={"STOCKROOM_PASSWORD": new}).invoke(cli_main, ["set-password", "ada", "--db", app.config["DATABASE"]])
     assert result.exit_code == 0, result.output
     assert accounts.authenticate(database, "ada", new) is not None
 

@@ -14,12 +14,20 @@ def test_admin_creates_and_disables_accounts(app, signed_in_client, form_token):
     admin = signed_in_client("admin")
     page = admin.get("/admin/users")
     assert page.status_code == 200 and "admin-user" in page.get_data(as_text=True)
-    resp = post(admin, form_token, "/admin/users", {"username": "newstaff", "display_name": "New Staff",
-                                                    "role": "staff", "password": "short"})
+    resp = post(
+        admin,
+        form_token,
+        "/admin/users",
+        {"username": "newstaff", "display_name": "New Staff", "role": "staff", "password": "short"},
+    )
     assert resp.status_code == 422 and "12" in resp.get_data(as_text=True)
     assert 'value="short"' not in resp.get_data(as_text=True)  # a password is never sent back
-    resp = post(admin, form_token, "/admin/users", {"username": "newstaff", "display_name": "New Staff",
-                                                    "role": "staff", "password": "bench-Test-long-9f"})
+    resp = post(
+        admin,
+        form_token,
+        "/admin/users",
+        {"username": "newstaff", "display_name": "New Staff", "role": "staff", "password": "bench-Test-long-9f"},
+    )
     assert resp.status_code == 303
     assert post(admin, form_token, "/admin/users/newstaff/disable", {"reason": ""}).status_code == 422
     assert post(admin, form_token, "/admin/users/newstaff/disable", {"reason": "left the lab"}).status_code == 303
@@ -30,9 +38,17 @@ def test_admin_creates_and_disables_accounts(app, signed_in_client, form_token):
 def test_policy_change_is_a_new_row_in_force_from_its_date(app, signed_in_client, form_token):
     admin = signed_in_client("admin")
     tomorrow = dt.date.today() + dt.timedelta(days=1)
-    form = {"reagent": "NaOH", "nominal_molarities": "0.1, 0.5", "shelf_life_days": "60",
-            "recheck_interval_days": "7", "tolerance_pct": "0.3", "max_rsd_pct": "0.15", "min_replicates": "4",
-            "effective_from": tomorrow.isoformat(), "reason": ""}
+    form = {
+        "reagent": "NaOH",
+        "nominal_molarities": "0.1, 0.5",
+        "shelf_life_days": "60",
+        "recheck_interval_days": "7",
+        "tolerance_pct": "0.3",
+        "max_rsd_pct": "0.15",
+        "min_replicates": "4",
+        "effective_from": tomorrow.isoformat(),
+        "reason": "",
+    }
     resp = post(admin, form_token, "/admin/policy", form)
     assert resp.status_code == 422 and "reason" in resp.get_data(as_text=True)
     bad = dict(form, reason="tighter", recheck_interval_days="90")

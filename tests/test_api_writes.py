@@ -11,8 +11,12 @@ from stockroom import db as dbmod
 from stockroom import records, tokens
 
 TODAY = dt.date.today()
-ROWS = [("12.4581", "11.6402", "0.12", "40.21"), ("12.0117", "11.1891", "0.40", "40.73"),
-        ("11.9012", "11.0759", "0.05", "40.50"), ("12.2230", "11.4170", "0.30", "39.82")]
+ROWS = [
+    ("12.4581", "11.6402", "0.12", "40.21"),
+    ("12.0117", "11.1891", "0.40", "40.73"),
+    ("11.9012", "11.0759", "0.05", "40.50"),
+    ("12.2230", "11.4170", "0.30", "39.82"),
+]
 
 
 @pytest.fixture
@@ -27,18 +31,24 @@ def token_for(conn, make_user):
     def _make(role):
         user = make_user(f"api-{role}", role)
         return tokens.create(conn, user.id, user.username, f"{role} script")[1]
+
     return _make
 
 
 def call(client, method, url, token=None, body=None):
     headers = {"Authorization": f"Bearer {token}"} if token else {}
-    return client.open(url, method=method, headers=headers, data=json.dumps(body or {}),
-                       content_type="application/json")
+    return client.open(url, method=method, headers=headers, data=json.dumps(body or {}), content_type="application/json")
 
 
 def batch_body(**extra):
-    body = {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 20, "prepared_on": TODAY.isoformat(),
-            "prepared_by": "API Person", "water_grade": "boiled, CO2-free"}
+    body = {
+        "reagent": "NaOH",
+        "nominal_molarity": 0.1,
+        "volume_l": 20,
+        "prepared_on": TODAY.isoformat(),
+        "prepared_by": "API Person",
+        "water_grade": "boiled, CO2-free",
+    }
     body.update(extra)
     return body
 
@@ -82,13 +92,29 @@ def test_bad_batch_json_is_422_naming_the_field(client, conn, token_for):
 def test_record_and_release_a_run_through_the_api(client, conn, token_for):
     staff = token_for("staff")
     code = call(client, "POST", "/api/v1/batches", staff, batch_body()).get_json()["id"]
-    lot = records.create_lot(conn, {"substance": "KHP", "assay": 1.0, "assay_expanded_u": 0.0002, "assay_k": 2,
-                                    "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
-                                    "dried_on": TODAY.isoformat(), "dried_at_c": 120}, "setup")
-    run = {"purpose": "certify", "standard_lot_id": lot["id"], "performed_on": TODAY.isoformat(),
-           "analyst": "API Person", "burette_capacity_ml": 50,
-           "replicates": [{"gross_g": float(g), "tare_g": float(t), "initial_ml": float(i), "final_ml": float(f)}
-                          for g, t, i, f in ROWS]}
+    lot = records.create_lot(
+        conn,
+        {
+            "substance": "KHP",
+            "assay": 1.0,
+            "assay_expanded_u": 0.0002,
+            "assay_k": 2,
+            "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
+            "dried_on": TODAY.isoformat(),
+            "dried_at_c": 120,
+        },
+        "setup",
+    )
+    run = {
+        "purpose": "certify",
+        "standard_lot_id": lot["id"],
+        "performed_on": TODAY.isoformat(),
+        "analyst": "API Person",
+        "burette_capacity_ml": 50,
+        "replicates": [
+            {"gross_g": float(g), "tare_g": float(t), "initial_ml": float(i), "final_ml": float(f)} for g, t, i, f in ROWS
+        ],
+    }
     bad = json.loads(json.dumps(run))
     bad["replicates"][1]["final_ml"] = 0.2
     resp = call(client, "POST", f"/api/v1/batches/{code}/runs", staff, bad)

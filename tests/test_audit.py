@@ -75,8 +75,11 @@ def test_audit_page_needs_a_user_and_filters(app, client, signed_in_client):
     assert client.get("/audit").status_code == 303
     staff = signed_in_client("staff")
     conn = dbmod.connect(app.config["DATABASE"])
-    b = records.create_batch(conn, {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 20,
-                                    "prepared_on": "2026-11-30", "prepared_by": "x"}, "someone-else")
+    b = records.create_batch(
+        conn,
+        {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 20, "prepared_on": "2026-11-30", "prepared_by": "x"},
+        "someone-else",
+    )
     conn.close()
     html = staff.get("/audit?actor=someone-else").get_data(as_text=True)
     assert "registered a batch" in html and b["code"] in html and "chain was checked just now and is whole" in html
@@ -89,19 +92,33 @@ def test_audit_page_needs_a_user_and_filters(app, client, signed_in_client):
 def test_a_correction_keeps_the_original_and_shows_before_and_after(app, signed_in_client, form_token):
     staff = signed_in_client("staff")
     conn = dbmod.connect(app.config["DATABASE"])
-    b = records.create_batch(conn, {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 20,
-                                    "prepared_on": "2026-11-30", "prepared_by": "x", "container": "20 L carboy"},
-                             "setup")
+    b = records.create_batch(
+        conn,
+        {
+            "reagent": "HCl",
+            "nominal_molarity": 0.1,
+            "volume_l": 20,
+            "prepared_on": "2026-11-30",
+            "prepared_by": "x",
+            "container": "20 L carboy",
+        },
+        "setup",
+    )
     url = f"/batches/{b['code']}/amend"
     token = form_token(staff, "/")
-    assert staff.post(url, data={"field": "container", "new_value": "10 L carboy", "reason": "",
-                                 "csrf_token": token}).status_code == 422
-    assert staff.post(url, data={"field": "reagent", "new_value": "NaOH", "reason": "typo",
-                                 "csrf_token": token}).status_code == 422
-    assert staff.post(url, data={"field": "volume_l", "new_value": "ten", "reason": "typo",
-                                 "csrf_token": token}).status_code == 422
-    resp = staff.post(url, data={"field": "container", "new_value": "10 L carboy", "reason": "wrong size typed",
-                                 "csrf_token": token})
+    assert (
+        staff.post(url, data={"field": "container", "new_value": "10 L carboy", "reason": "", "csrf_token": token}).status_code
+        == 422
+    )
+    assert (
+        staff.post(url, data={"field": "reagent", "new_value": "NaOH", "reason": "typo", "csrf_token": token}).status_code == 422
+    )
+    assert (
+        staff.post(url, data={"field": "volume_l", "new_value": "ten", "reason": "typo", "csrf_token": token}).status_code == 422
+    )
+    resp = staff.post(
+        url, data={"field": "container", "new_value": "10 L carboy", "reason": "wrong size typed", "csrf_token": token}
+    )
     assert resp.status_code == 303
     page = staff.get(f"/batches/{b['code']}").get_data(as_text=True)
     assert "<del>20 L carboy</del> → <ins>10 L carboy</ins> — wrong size typed" in page

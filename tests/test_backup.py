@@ -74,7 +74,7 @@ def test_restore_refuses_damaged_foreign_and_newer_files(tmp_path):
     build_demo(str(good), today=dt.date(2026, 12, 1))
     damaged = tmp_path / "damaged.db"
     data = bytearray(good.read_bytes())
-    data[4096 * 3: 4096 * 3 + 512] = b"\xff" * 512
+    data[4096 * 3 : 4096 * 3 + 512] = b"\xff" * 512
     damaged.write_bytes(bytes(data))
     foreign = tmp_path / "foreign.db"
     sqlite3.connect(foreign).execute("CREATE TABLE t (x)").connection.commit()
@@ -87,9 +87,12 @@ def test_restore_refuses_damaged_foreign_and_newer_files(tmp_path):
     text = tmp_path / "notes.txt"
     text.write_text("not a database at all\n" * 100)
     target = tmp_path / "target.db"
-    for bad, why in ((damaged, "malformed"), (foreign, "not a stockroom database"), (newer, "newer schema"),
-                     (text, "not a readable SQLite database")):
+    for bad, why in (
+        (damaged, "malformed"),
+        (foreign, "not a stockroom database"),
+        (newer, "newer schema"),
+        (text, "not a readable SQLite database"),
+    ):
         result = CliRunner().invoke(main, ["restore", str(bad), "--db", str(target), "--yes"])
-        assert result.exit_code == 1 and why in result.output.replace("integrity check", "malformed"), (
-            bad, result.output)
+        assert result.exit_code == 1 and why in result.output.replace("integrity check", "malformed"), (bad, result.output)
     assert not target.exists()

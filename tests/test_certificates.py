@@ -15,8 +15,12 @@ from stockroom.pdf import certificates
 from stockroom.web.formatting import molarity as format_molarity
 
 # Invented replicates: about 0.1 mol/L NaOH against KHP (gross, tare in g; initial, final in mL).
-GOOD = [("12.4581", "11.6402", "0.12", "40.21"), ("12.0117", "11.1891", "0.40", "40.73"),
-        ("11.9012", "11.0759", "0.05", "40.50"), ("12.2230", "11.4170", "0.30", "39.82")]
+GOOD = [
+    ("12.4581", "11.6402", "0.12", "40.21"),
+    ("12.0117", "11.1891", "0.40", "40.73"),
+    ("11.9012", "11.0759", "0.05", "40.50"),
+    ("12.2230", "11.4170", "0.30", "39.82"),
+]
 
 
 def lab_today() -> dt.date:
@@ -36,21 +40,54 @@ def flat(text: str) -> str:
 def world(app, database):
     db, config = database, app.config
     today = lab_today()
-    lot = records.create_lot(db, {"substance": "KHP", "assay": 0.9998, "assay_expanded_u": 0.0004, "assay_k": 2,
-                                  "supplier": "Invented Chemicals", "supplier_lot": "K-7781",
-                                  "expires_on": (today + dt.timedelta(days=300)).isoformat(),
-                                  "dried_on": today.isoformat(), "dried_at_c": 120}, "setup")
-    naoh = records.create_batch(db, {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 20,
-                                     "prepared_on": (today - dt.timedelta(days=5)).isoformat(),
-                                     "prepared_by": "R. Okafor (invented)", "water_grade": "CO2-free"}, "setup")
-    reps = [{"mass_gross_g": float(g), "mass_tare_g": float(t), "initial_ml": float(i), "final_ml": float(f),
-             "volume_ml": round(float(f) - float(i), 2)} for g, t, i, f in GOOD]
-    reps.append({"mass_gross_g": 12.1000, "mass_tare_g": 11.2800, "initial_ml": 0.10, "final_ml": 41.90,
-                 "volume_ml": 41.80})  # a fifth, spoiled titration, left out with its reason
-    meta = {"purpose": "certify", "performed_on": (today - dt.timedelta(days=2)).isoformat(), "analyst": "R. Okafor",
-            "burette_capacity_ml": 50.0, "endpoint": "phenolphthalein, faint pink for 30 s"}
-    run_id, _ = workflow.record_primary_run(db, config, naoh, lot, meta, reps, "setup",
-                                            excluded={5: "overshot the end point"})
+    lot = records.create_lot(
+        db,
+        {
+            "substance": "KHP",
+            "assay": 0.9998,
+            "assay_expanded_u": 0.0004,
+            "assay_k": 2,
+            "supplier": "Invented Chemicals",
+            "supplier_lot": "K-7781",
+            "expires_on": (today + dt.timedelta(days=300)).isoformat(),
+            "dried_on": today.isoformat(),
+            "dried_at_c": 120,
+        },
+        "setup",
+    )
+    naoh = records.create_batch(
+        db,
+        {
+            "reagent": "NaOH",
+            "nominal_molarity": 0.1,
+            "volume_l": 20,
+            "prepared_on": (today - dt.timedelta(days=5)).isoformat(),
+            "prepared_by": "R. Okafor (invented)",
+            "water_grade": "CO2-free",
+        },
+        "setup",
+    )
+    reps = [
+        {
+            "mass_gross_g": float(g),
+            "mass_tare_g": float(t),
+            "initial_ml": float(i),
+            "final_ml": float(f),
+            "volume_ml": round(float(f) - float(i), 2),
+        }
+        for g, t, i, f in GOOD
+    ]
+    reps.append(
+        {"mass_gross_g": 12.1000, "mass_tare_g": 11.2800, "initial_ml": 0.10, "final_ml": 41.90, "volume_ml": 41.80}
+    )  # a fifth, spoiled titration, left out with its reason
+    meta = {
+        "purpose": "certify",
+        "performed_on": (today - dt.timedelta(days=2)).isoformat(),
+        "analyst": "R. Okafor",
+        "burette_capacity_ml": 50.0,
+        "endpoint": "phenolphthalein, faint pink for 30 s",
+    }
+    run_id, _ = workflow.record_primary_run(db, config, naoh, lot, meta, reps, "setup", excluded={5: "overshot the end point"})
     release_id = workflow.accept(db, run_id, "setup")
     return {"db": db, "config": config, "lot": lot, "naoh": naoh, "run_id": run_id, "release_id": release_id}
 
@@ -100,10 +137,17 @@ def test_the_drift_chart_is_embedded(world):
 def test_a_superseded_release_says_so_at_the_top(world):
     db = world["db"]
     first = world["release_id"]
-    reps = [{"mass_gross_g": float(g), "mass_tare_g": float(t), "initial_ml": float(i), "final_ml": float(f),
-             "volume_ml": round(float(f) - float(i), 2)} for g, t, i, f in GOOD]
-    meta = {"purpose": "certify", "performed_on": lab_today().isoformat(), "analyst": "M. Lindqvist",
-            "burette_capacity_ml": 50.0}
+    reps = [
+        {
+            "mass_gross_g": float(g),
+            "mass_tare_g": float(t),
+            "initial_ml": float(i),
+            "final_ml": float(f),
+            "volume_ml": round(float(f) - float(i), 2),
+        }
+        for g, t, i, f in GOOD
+    ]
+    meta = {"purpose": "certify", "performed_on": lab_today().isoformat(), "analyst": "M. Lindqvist", "burette_capacity_ml": 50.0}
     run_id, _ = workflow.record_primary_run(db, world["config"], world["naoh"], world["lot"], meta, reps, "setup")
     second = workflow.accept(db, run_id, "setup")
     old = flat(text_of(certificates.build_certificate(certificates.certificate_data(db, first, lab_today()))))
@@ -111,27 +155,38 @@ def test_a_superseded_release_says_so_at_the_top(world):
     assert f"SUPERSEDED: release {second} of {new_release['released_on']}" in old
     assert format_molarity(new_release["molarity"], new_release["expanded_u"], new_release["k"]) in old
     current = certificates.certificate_data_for_batch(db, world["naoh"]["code"], lab_today())
-    assert current["release"]["id"] == second and f"release {first}" in flat(text_of(
-        certificates.build_certificate(current)))  # "Supersedes release <first>"
+    assert current["release"]["id"] == second and f"release {first}" in flat(
+        text_of(certificates.build_certificate(current))
+    )  # "Supersedes release <first>"
 
 
 def test_a_withdrawn_batch_certificate_says_withdrawn(world):
     records.withdraw_batch(world["db"], world["naoh"]["id"], lab_today(), "carbonate found", "setup")
     data = certificates.certificate_data(world["db"], world["release_id"], lab_today())
     assert f"WITHDRAWN: the batch was withdrawn from use on {lab_today().isoformat()} (carbonate found)." in flat(
-        text_of(certificates.build_certificate(data)))
+        text_of(certificates.build_certificate(data))
+    )
 
 
 def test_a_secondary_standardization_shows_the_traceability_chain(world):
     db, config = world["db"], world["config"]
-    hcl = records.create_batch(db, {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 10,
-                                    "prepared_on": (lab_today() - dt.timedelta(days=1)).isoformat(),
-                                    "prepared_by": "J. Abara (invented)"}, "setup")
+    hcl = records.create_batch(
+        db,
+        {
+            "reagent": "HCl",
+            "nominal_molarity": 0.1,
+            "volume_l": 10,
+            "prepared_on": (lab_today() - dt.timedelta(days=1)).isoformat(),
+            "prepared_by": "J. Abara (invented)",
+        },
+        "setup",
+    )
     # 25.00 mL aliquots of the HCl titrated with the certified NaOH (invented readings).
-    reps = [{"aliquot_ml": 25.00, "initial_ml": 0.10, "final_ml": v, "volume_ml": round(v - 0.10, 2)}
-            for v in (25.12, 25.15, 25.10, 25.13)]
-    meta = {"purpose": "certify", "performed_on": lab_today().isoformat(), "analyst": "J. Abara",
-            "burette_capacity_ml": 50.0}
+    reps = [
+        {"aliquot_ml": 25.00, "initial_ml": 0.10, "final_ml": v, "volume_ml": round(v - 0.10, 2)}
+        for v in (25.12, 25.15, 25.10, 25.13)
+    ]
+    meta = {"purpose": "certify", "performed_on": lab_today().isoformat(), "analyst": "J. Abara", "burette_capacity_ml": 50.0}
     run_id, _ = workflow.record_secondary_run(db, config, hcl, world["naoh"], meta, reps, "setup")
     release_id = workflow.accept(db, run_id, "setup")
     data = certificates.certificate_data(db, release_id, lab_today())
@@ -149,13 +204,15 @@ def test_certificates_over_the_web(app, client, world):
     code = world["naoh"]["code"]
     resp = client.get(f"/releases/{world['release_id']}/certificate.pdf")  # a read: open to the lab network
     assert resp.status_code == 200 and resp.mimetype == "application/pdf"
-    assert resp.headers["Content-Disposition"] == (
-        f'attachment; filename="certificate-{code}-release-{world["release_id"]}.pdf"')
+    assert resp.headers["Content-Disposition"] == (f'attachment; filename="certificate-{code}-release-{world["release_id"]}.pdf"')
     assert code in text_of(resp.data)
     assert client.get(f"/batches/{code}/certificate.pdf").status_code == 200
     assert client.get("/releases/9999/certificate.pdf").status_code == 404
-    fresh = records.create_batch(world["db"], {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 10,
-                                               "prepared_on": lab_today().isoformat(), "prepared_by": "x"}, "setup")
+    fresh = records.create_batch(
+        world["db"],
+        {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 10, "prepared_on": lab_today().isoformat(), "prepared_by": "x"},
+        "setup",
+    )
     missing = client.get(f"/batches/{fresh['code']}/certificate.pdf")
     assert missing.status_code == 404 and "not been released" in missing.get_data(as_text=True)
     page = client.get(f"/batches/{code}").get_data(as_text=True)
@@ -166,10 +223,8 @@ def test_cli_writes_the_certificate(app, world, tmp_path):
     from stockroom.cli import main
 
     out = tmp_path / "cert.pdf"
-    result = CliRunner().invoke(main, ["certificate", world["naoh"]["code"], "--db", app.config["DATABASE"],
-                                       "--out", str(out)])
+    result = CliRunner().invoke(main, ["certificate", world["naoh"]["code"], "--db", app.config["DATABASE"], "--out", str(out)])
     assert result.exit_code == 0, result.output
     assert "Certificate of standardization" in text_of(out.read_bytes())
-    missing = CliRunner().invoke(main, ["certificate", "NOPE-0000-00", "--db", app.config["DATABASE"],
-                                        "--out", str(out)])
+    missing = CliRunner().invoke(main, ["certificate", "NOPE-0000-00", "--db", app.config["DATABASE"], "--out", str(out)])
     assert missing.exit_code == 1 and "no batch with ID" in missing.output

@@ -20,11 +20,14 @@ D0 = dt.date(2026, 10, 3)
 SVG = "{http://www.w3.org/2000/svg}"
 
 
-def report(days=(0, 14, 28, 42, 56), rel=(0.0, -0.0012, -0.0028, -0.0046, -0.0068), on_day=59, c0=0.10035,
-           u=8e-5) -> drift.DriftReport:
+def report(
+    days=(0, 14, 28, 42, 56), rel=(0.0, -0.0012, -0.0028, -0.0046, -0.0068), on_day=59, c0=0.10035, u=8e-5
+) -> drift.DriftReport:
     """Invented: a 0.1 mol/L NaOH release and re-checks falling as it takes up CO2 (like the demo's batch)."""
-    pts = [Point(D0 + dt.timedelta(days=d), c0 * (1 + r), u, "release" if d == 0 else "recheck", 2.0)
-           for d, r in zip(days, rel, strict=True)]
+    pts = [
+        Point(D0 + dt.timedelta(days=d), c0 * (1 + r), u, "release" if d == 0 else "recheck", 2.0)
+        for d, r in zip(days, rel, strict=True)
+    ]
     return drift.assess(pts, Band(c0, 0.005), D0, D0 + dt.timedelta(days=88), 14, D0 + dt.timedelta(days=on_day))
 
 
@@ -36,8 +39,13 @@ def shapes(node):
 
 def _y_of(drawing, value, rep):
     """Map a molarity to the chart's y through two known lines: the band edges (drawn as dashed polylines)."""
-    edges = sorted({s.points[1] for s in shapes(drawing) if isinstance(s, PolyLine)
-                    and s.strokeColor == charts.BAND_EDGE and s.points[1] == s.points[3]})
+    edges = sorted(
+        {
+            s.points[1]
+            for s in shapes(drawing)
+            if isinstance(s, PolyLine) and s.strokeColor == charts.BAND_EDGE and s.points[1] == s.points[3]
+        }
+    )
     assert len(edges) == 2
     y_low, y_high = edges
     return y_low + (y_high - y_low) * (value - rep.band.low) / (rep.band.high - rep.band.low)
@@ -61,15 +69,22 @@ def test_trend_line_is_drawn_where_the_fit_puts_it():
 def test_certified_value_band_and_error_bars_are_to_scale():
     rep = report()
     d = charts.drift_drawing(rep, 640, 300)
-    certified = [s for s in shapes(d) if isinstance(s, Line) and s.strokeColor == charts.CERTIFIED
-                 and s.y1 == s.y2 and s.x2 - s.x1 > 100]
+    certified = [
+        s for s in shapes(d) if isinstance(s, Line) and s.strokeColor == charts.CERTIFIED and s.y1 == s.y2 and s.x2 - s.x1 > 100
+    ]
     assert len(certified) == 1 and certified[0].y1 == pytest.approx(_y_of(d, rep.band.certified, rep))
     dots = [s for s in shapes(d) if isinstance(s, Circle) and s.r == 3.0]
     assert len(dots) == 4  # the four re-checks; the release is the square
     for dot, p in zip(sorted(dots, key=lambda c: c.cx), rep.points[1:], strict=True):
         assert dot.cy == pytest.approx(_y_of(d, p.molarity, rep))
-        bar = next(s for s in shapes(d) if isinstance(s, Line) and s.x1 == s.x2 == dot.cx and s.y2 - s.y1 > 5
-                   and s.strokeColor in (charts.POINT, charts.OUTSIDE))
+        bar = next(
+            s
+            for s in shapes(d)
+            if isinstance(s, Line)
+            and s.x1 == s.x2 == dot.cx
+            and s.y2 - s.y1 > 5
+            and s.strokeColor in (charts.POINT, charts.OUTSIDE)
+        )
         # ± U = ± k·u = ± 1.6e-4 mol/L about the re-check
         assert bar.y1 == pytest.approx(_y_of(d, p.molarity - 1.6e-4, rep))
         assert bar.y2 == pytest.approx(_y_of(d, p.molarity + 1.6e-4, rep))
@@ -95,8 +110,9 @@ def test_svg_is_well_formed_with_title_description_and_a_dashed_forecast():
     assert root.find(SVG + "title").text == "Drift of NAOH-2610-01 as of 2026-12-01"
     desc = root.find(SVG + "desc").text
     assert "Certified 0.10035 mol/L" in desc and "per 30 days" in desc
-    dashed = [el for el in root.iter(SVG + "polyline")
-              if re.search(r"stroke-dasharray: 5(\.0)?, 3(\.0)?;", el.get("style") or "")]
+    dashed = [
+        el for el in root.iter(SVG + "polyline") if re.search(r"stroke-dasharray: 5(\.0)?, 3(\.0)?;", el.get("style") or "")
+    ]
     assert len(dashed) == 1  # the trend ahead of the data; a closed path would fill its dashes in
     assert "<script" not in svg
 

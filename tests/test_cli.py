@@ -69,7 +69,8 @@ def test_demo_command_serves_on_loopback(tmp_path):
     port = _free_port()
     proc = subprocess.Popen(
         [sys.executable, "-m", "stockroom.cli", "demo", "--db", str(tmp_path / "d.db"), "--port", str(port)],
-        stdout=subprocess.PIPE, stderr=subprocess.STDOUT,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.STDOUT,
     )
     try:
         deadline = time.monotonic() + 30
@@ -99,8 +100,10 @@ def test_synth_is_deterministic_for_a_seed(tmp_path):
     def content(path):
         conn = sqlite3.connect(path)
         try:
-            return (conn.execute("SELECT code, reagent, nominal_molarity, prepared_on FROM batches ORDER BY id").fetchall(),
-                    conn.execute("SELECT mass_g, volume_ml FROM replicates ORDER BY id").fetchall())
+            return (
+                conn.execute("SELECT code, reagent, nominal_molarity, prepared_on FROM batches ORDER BY id").fetchall(),
+                conn.execute("SELECT mass_g, volume_ml FROM replicates ORDER BY id").fetchall(),
+            )
         finally:
             conn.close()
 

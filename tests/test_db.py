@@ -36,24 +36,26 @@ def test_newer_schema_refused(tmp_path):
     conn = dbmod.connect(tmp_path / "a.db")
     dbmod.migrate(conn)
     with dbmod.write(conn):
-        conn["_sqlite_migrations"].insert({"migration_set": "stockroom", "name": "9999_future",
-                                           "applied_at": "2099-01-01"})
+        conn["_sqlite_migrations"].insert({"migration_set": "stockroom", "name": "9999_future", "applied_at": "2099-01-01"})
     with pytest.raises(RuntimeError, match="newer"):
         dbmod.migrate(conn)
 
 
 @pytest.mark.parametrize("table", APPEND_ONLY)
 def test_every_record_table_has_append_only_triggers(database, table):
-    names = {r[0] for r in database.execute(
-        "SELECT name FROM sqlite_master WHERE type = 'trigger' AND tbl_name = ?", [table])}
+    names = {r[0] for r in database.execute("SELECT name FROM sqlite_master WHERE type = 'trigger' AND tbl_name = ?", [table])}
     assert {f"{table}_no_update", f"{table}_no_delete"} <= names
 
 
 def test_append_only_triggers_refuse_changes(database):
     with dbmod.write(database):
         records.append_event(database, "tester", "test.write")
-    for sql in ("UPDATE events SET actor = 'x'", "DELETE FROM events",
-                "UPDATE reagent_policies SET shelf_life_days = 1", "DELETE FROM reagent_policies"):
+    for sql in (
+        "UPDATE events SET actor = 'x'",
+        "DELETE FROM events",
+        "UPDATE reagent_policies SET shelf_life_days = 1",
+        "DELETE FROM reagent_policies",
+    ):
         with pytest.raises(sqlite3.IntegrityError, match="append-only"):
             with dbmod.write(database):
                 database.execute(sql)

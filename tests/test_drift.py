@@ -22,8 +22,10 @@ U = [0.000080, 0.000095, 0.000070, 0.000110, 0.000085, 0.000090]
 
 
 def points(days=DAYS, molarity=MOLARITY, u=U) -> list[Point]:
-    return [Point(D0 + dt.timedelta(days=d), y, s, "release" if i == 0 else "recheck")
-            for i, (d, y, s) in enumerate(zip(days, molarity, u, strict=True))]
+    return [
+        Point(D0 + dt.timedelta(days=d), y, s, "release" if i == 0 else "recheck")
+        for i, (d, y, s) in enumerate(zip(days, molarity, u, strict=True))
+    ]
 
 
 def fitted(days=DAYS, molarity=MOLARITY, u=U) -> drift.Fit:
@@ -44,8 +46,9 @@ def _jac(t, a, b):
 def test_fit_matches_scipy_curve_fit_with_absolute_sigma():
     # Reference: scipy.optimize.curve_fit, sigma = u, absolute_sigma=True -> covariance (JᵀWJ)⁻¹ unscaled.
     fit = fitted()
-    popt, pcov = optimize.curve_fit(_line, np.array(DAYS, float), np.array(MOLARITY), p0=(0.1, 0.0),
-                                    sigma=np.array(U), absolute_sigma=True, jac=_jac)
+    popt, pcov = optimize.curve_fit(
+        _line, np.array(DAYS, float), np.array(MOLARITY), p0=(0.1, 0.0), sigma=np.array(U), absolute_sigma=True, jac=_jac
+    )
     assert fit.intercept == pytest.approx(popt[0], rel=1e-9)
     assert fit.slope == pytest.approx(popt[1], rel=1e-7)
     assert np.allclose(np.array(fit.cov_absolute), pcov, rtol=1e-6, atol=0)
@@ -54,8 +57,9 @@ def test_fit_matches_scipy_curve_fit_with_absolute_sigma():
 def test_fit_matches_scipy_curve_fit_scaled_by_residual_scatter():
     # Reference: curve_fit with absolute_sigma=False scales the covariance by χ²/(n − 2), as the fit's `cov`.
     fit = fitted()
-    _, pcov = optimize.curve_fit(_line, np.array(DAYS, float), np.array(MOLARITY), p0=(0.1, 0.0),
-                                 sigma=np.array(U), absolute_sigma=False, jac=_jac)
+    _, pcov = optimize.curve_fit(
+        _line, np.array(DAYS, float), np.array(MOLARITY), p0=(0.1, 0.0), sigma=np.array(U), absolute_sigma=False, jac=_jac
+    )
     assert np.allclose(np.array(fit.cov), pcov, rtol=1e-6, atol=0)
 
 
@@ -167,10 +171,10 @@ def test_a_point_without_uncertainty_is_left_out_with_a_note():
 
 # ---------------------------------------------------------------- forecast and flags
 
+
 def exact_line(rel_per_day: float, days=(0, 10, 20), c0=0.1000, u=0.00008) -> list[Point]:
     """Invented points lying exactly on c0·(1 + rel_per_day·t)."""
-    return [Point(D0 + dt.timedelta(days=d), c0 * (1 + rel_per_day * d), u, "release" if d == 0 else "recheck")
-            for d in days]
+    return [Point(D0 + dt.timedelta(days=d), c0 * (1 + rel_per_day * d), u, "release" if d == 0 else "recheck") for d in days]
 
 
 def test_crossing_date_of_an_exact_line():
@@ -185,8 +189,7 @@ def test_crossing_date_of_an_exact_line():
 
 
 def assess(pts, on_day, expires_day=90, interval=14, tol=0.005, c0=0.1000):
-    return drift.assess(pts, Band(c0, tol), D0, D0 + dt.timedelta(days=expires_day), interval,
-                        D0 + dt.timedelta(days=on_day))
+    return drift.assess(pts, Band(c0, tol), D0, D0 + dt.timedelta(days=expires_day), interval, D0 + dt.timedelta(days=on_day))
 
 
 def kinds(report) -> set[FlagKind]:
@@ -209,8 +212,10 @@ def test_forecast_flag_names_the_date_and_later_becomes_predicted_outside():
 def test_no_forecast_when_the_crossing_is_after_expiry_or_the_slope_is_not_significant():
     assert FlagKind.EXPECTED_TO_LEAVE not in kinds(assess(exact_line(-1.2e-4), 25, expires_day=40))
     # Scatter of ±0.1 % about no real trend (invented): a slope the data cannot tell from zero.
-    noisy = [Point(D0 + dt.timedelta(days=d), 0.1 * (1 + e), 0.00008, "release" if d == 0 else "recheck")
-             for d, e in ((0, 0.0), (10, -0.001), (20, 0.0008), (30, -0.0012))]
+    noisy = [
+        Point(D0 + dt.timedelta(days=d), 0.1 * (1 + e), 0.00008, "release" if d == 0 else "recheck")
+        for d, e in ((0, 0.0), (10, -0.001), (20, 0.0008), (30, -0.0012))
+    ]
     report = assess(noisy, 31, expires_day=365, interval=60)
     assert report.fit is not None and not report.fit.significant
     assert not kinds(report) & {FlagKind.EXPECTED_TO_LEAVE, FlagKind.PREDICTED_OUTSIDE}
@@ -219,8 +224,12 @@ def test_no_forecast_when_the_crossing_is_after_expiry_or_the_slope_is_not_signi
 def test_on_the_day_of_a_recheck_its_measured_value_decides():
     # The line through these invented points is outside the band at day 30 (it overshoots the last point),
     # but the re-check of day 30 itself is inside: no DRIFTING reason that day; the forecast is tomorrow.
-    pts = [Point(D0, 0.1000, 0.0001, "release"), Point(D0 + dt.timedelta(days=10), 0.09990, 0.00002),
-           Point(D0 + dt.timedelta(days=20), 0.09960, 0.00002), Point(D0 + dt.timedelta(days=30), 0.09951, 0.0003)]
+    pts = [
+        Point(D0, 0.1000, 0.0001, "release"),
+        Point(D0 + dt.timedelta(days=10), 0.09990, 0.00002),
+        Point(D0 + dt.timedelta(days=20), 0.09960, 0.00002),
+        Point(D0 + dt.timedelta(days=30), 0.09951, 0.0003),
+    ]
     report = assess(pts, 30)
     assert report.fit.value_at(30) < Band(0.1, 0.005).low
     assert FlagKind.PREDICTED_OUTSIDE not in kinds(report)

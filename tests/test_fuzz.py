@@ -16,19 +16,44 @@ from stockroom import db as dbmod
 TODAY = dt.date.today()
 
 nasty_text = st.one_of(
-    st.sampled_from(["", " ", "NaN", "nan", "inf", "-Infinity", "1e309", "1e-320", "0,25", "1.2.3", "--1",
-                     "0x10", "１２", "٣", "12 g", "<script>alert(1)</script>", "'; DROP TABLE runs;--", "\x00",
-                     "9" * 400, "0", "-0", "+5", ".5", "5."]),
+    st.sampled_from(
+        [
+            "",
+            " ",
+            "NaN",
+            "nan",
+            "inf",
+            "-Infinity",
+            "1e309",
+            "1e-320",
+            "0,25",
+            "1.2.3",
+            "--1",
+            "0x10",
+            "１２",
+            "٣",
+            "12 g",
+            "<script>alert(1)</script>",
+            "'; DROP TABLE runs;--",
+            "\x00",
+            "9" * 400,
+            "0",
+            "-0",
+            "+5",
+            ".5",
+            "5.",
+        ]
+    ),
     st.text(max_size=30),
 )
 nasty_number = st.one_of(
-    st.floats(allow_nan=True, allow_infinity=True), st.integers(min_value=-10**30, max_value=10**30),
+    st.floats(allow_nan=True, allow_infinity=True),
+    st.integers(min_value=-(10**30), max_value=10**30),
     st.sampled_from([0, -1, 1e-300, 1e300, True, False, None]),
 )
 json_value = st.recursive(
     st.one_of(nasty_number, nasty_text),
-    lambda children: st.one_of(st.lists(children, max_size=3), st.dictionaries(st.text(max_size=8), children,
-                                                                                 max_size=3)),
+    lambda children: st.one_of(st.lists(children, max_size=3), st.dictionaries(st.text(max_size=8), children, max_size=3)),
     max_leaves=6,
 )
 
@@ -36,16 +61,30 @@ json_value = st.recursive(
 @pytest.fixture(scope="module")
 def world(tmp_path_factory):
     path = tmp_path_factory.mktemp("fuzz") / "f.db"
-    app = create_app({"DATABASE": str(path), "TESTING": True, "SECRET_KEY": "t", "WTF_CSRF_ENABLED": False,
-                      "MONTE_CARLO_DRAWS": 2000})
+    app = create_app(
+        {"DATABASE": str(path), "TESTING": True, "SECRET_KEY": "t", "WTF_CSRF_ENABLED": False, "MONTE_CARLO_DRAWS": 2000}
+    )
     conn = dbmod.connect(path)
     accounts.HASH_METHOD = "pbkdf2:sha256:1000"
     accounts.create_user(conn, "fuzzer", "Fuzzer", "staff", "fuzzing-Test-91ab", "test")
-    batch = records.create_batch(conn, {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 20,
-                                        "prepared_on": TODAY.isoformat(), "prepared_by": "t"}, "test")
-    lot = records.create_lot(conn, {"substance": "Na2CO3", "assay": 0.9998, "assay_expanded_u": 0.0004,
-                                    "assay_k": 2, "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
-                                    "dried_on": TODAY.isoformat(), "dried_at_c": 280}, "test")
+    batch = records.create_batch(
+        conn,
+        {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 20, "prepared_on": TODAY.isoformat(), "prepared_by": "t"},
+        "test",
+    )
+    lot = records.create_lot(
+        conn,
+        {
+            "substance": "Na2CO3",
+            "assay": 0.9998,
+            "assay_expanded_u": 0.0004,
+            "assay_k": 2,
+            "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
+            "dried_on": TODAY.isoformat(),
+            "dried_at_c": 280,
+        },
+        "test",
+    )
     conn.close()
     client = app.test_client()
     assert client.post("/sign-in", data={"username": "fuzzer", "password": "fuzzing-Test-91ab"}).status_code == 303
@@ -68,12 +107,36 @@ FUZZ = settings(max_examples=150, deadline=None, suppress_health_check=[HealthCh
 
 
 @FUZZ
-@given(fields=st.dictionaries(st.sampled_from(["titrant", "standard", "purity", "u_purity", "nominal_molarity",
-                                               "buoyancy", "u_mass_g", "u_volume_ml", "reference", "exclusions",
-                                               "monte_carlo_draws", "extra"]), json_value, max_size=6),
-       reps=st.lists(st.dictionaries(st.sampled_from(["mass_g", "volume_ml", "temperature_c", "blank_ml",
-                                                      "gross_g", "tare_g", "aliquot_ml", "bogus"]),
-                                     st.one_of(nasty_number, nasty_text), max_size=4), max_size=4))
+@given(
+    fields=st.dictionaries(
+        st.sampled_from(
+            [
+                "titrant",
+                "standard",
+                "purity",
+                "u_purity",
+                "nominal_molarity",
+                "buoyancy",
+                "u_mass_g",
+                "u_volume_ml",
+                "reference",
+                "exclusions",
+                "monte_carlo_draws",
+                "extra",
+            ]
+        ),
+        json_value,
+        max_size=6,
+    ),
+    reps=st.lists(
+        st.dictionaries(
+            st.sampled_from(["mass_g", "volume_ml", "temperature_c", "blank_ml", "gross_g", "tare_g", "aliquot_ml", "bogus"]),
+            st.one_of(nasty_number, nasty_text),
+            max_size=4,
+        ),
+        max_size=4,
+    ),
+)
 def test_preview_api_never_fails_with_5xx(world, fields, reps):
     body = {"titrant": "HCl", "standard": "Na2CO3", "purity": 0.9998, **fields, "replicates": reps}
     try:
@@ -95,12 +158,36 @@ def test_preview_api_survives_any_body(world, raw):
 
 
 @FUZZ
-@given(values=st.dictionaries(
-    st.sampled_from(["purpose", "standard_lot_id", "performed_on", "analyst", "burette_capacity_ml",
-                     "temperature_c", "endpoint", "r1_gross_g", "r1_tare_g", "r1_mass_g", "r1_initial_ml",
-                     "r1_final_ml", "r1_blank_ml", "r1_temperature_c", "r1_exclude", "r1_exclude_reason",
-                     "r2_mass_g", "r2_initial_ml", "r2_final_ml", "r60_final_ml"]),
-    nasty_text, max_size=12))
+@given(
+    values=st.dictionaries(
+        st.sampled_from(
+            [
+                "purpose",
+                "standard_lot_id",
+                "performed_on",
+                "analyst",
+                "burette_capacity_ml",
+                "temperature_c",
+                "endpoint",
+                "r1_gross_g",
+                "r1_tare_g",
+                "r1_mass_g",
+                "r1_initial_ml",
+                "r1_final_ml",
+                "r1_blank_ml",
+                "r1_temperature_c",
+                "r1_exclude",
+                "r1_exclude_reason",
+                "r2_mass_g",
+                "r2_initial_ml",
+                "r2_final_ml",
+                "r60_final_ml",
+            ]
+        ),
+        nasty_text,
+        max_size=12,
+    )
+)
 def test_run_form_never_fails_with_5xx_and_stores_nothing_when_refused(world, values):
     before = _counts(world)
     values = dict(values, action="record")
@@ -112,17 +199,29 @@ def test_run_form_never_fails_with_5xx_and_stores_nothing_when_refused(world, va
 
 
 @FUZZ
-@given(text=st.one_of(st.text(max_size=300), st.builds(
-    lambda header, rows: header + "\n" + "\n".join(rows),
-    st.sampled_from(["replicate,mass_g,initial_ml,final_ml", "gross_g,tare_g,initial_ml,final_ml,exclude_reason",
-                     "initial_ml,final_ml", "a,b,c"]),
-    st.lists(st.lists(nasty_text, min_size=1, max_size=5).map(lambda cells: ",".join(c.replace("\n", " ")
-                                                                                       for c in cells)),
-             max_size=5))))
+@given(
+    text=st.one_of(
+        st.text(max_size=300),
+        st.builds(
+            lambda header, rows: header + "\n" + "\n".join(rows),
+            st.sampled_from(
+                [
+                    "replicate,mass_g,initial_ml,final_ml",
+                    "gross_g,tare_g,initial_ml,final_ml,exclude_reason",
+                    "initial_ml,final_ml",
+                    "a,b,c",
+                ]
+            ),
+            st.lists(
+                st.lists(nasty_text, min_size=1, max_size=5).map(lambda cells: ",".join(c.replace("\n", " ") for c in cells)),
+                max_size=5,
+            ),
+        ),
+    )
+)
 def test_csv_import_never_fails_with_5xx_and_stores_nothing(world, text):
     before = _counts(world)
     data = {"sheet": (io.BytesIO(text.encode("utf-8", "surrogatepass")), "f.csv")}
-    resp = world["client"].post(f"/batches/{world['batch']['code']}/runs/import", data=data,
-                                content_type="multipart/form-data")
+    resp = world["client"].post(f"/batches/{world['batch']['code']}/runs/import", data=data, content_type="multipart/form-data")
     _check_answer(resp)
     assert _counts(world) == before

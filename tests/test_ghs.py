@@ -36,8 +36,12 @@ def _render(code: str) -> Image.Image:
     with tempfile.TemporaryDirectory() as tmp:
         pdf = Path(tmp) / "p.pdf"
         pdf.write_bytes(buf.getvalue())
-        subprocess.run(["pdftoppm", "-r", str(DPI), "-png", "-singlefile", str(pdf), str(Path(tmp) / "p")],
-                       capture_output=True, check=True, timeout=60)
+        subprocess.run(
+            ["pdftoppm", "-r", str(DPI), "-png", "-singlefile", str(pdf), str(Path(tmp) / "p")],
+            capture_output=True,
+            check=True,
+            timeout=60,
+        )
         return Image.open(Path(tmp) / "p.png").convert("RGB")
 
 
@@ -85,7 +89,7 @@ def test_the_symbols_differ_from_each_other():
     pictures = {code: _render(code).convert("1") for code in ghs.available()}
     codes = list(pictures)
     for i, a in enumerate(codes):
-        for b in codes[i + 1:]:
+        for b in codes[i + 1 :]:
             pa, pb = pictures[a].load(), pictures[b].load()
             w, h = pictures[a].size
             differ = sum(1 for y in range(h) for x in range(w) if pa[x, y] != pb[x, y])

@@ -49,10 +49,14 @@ def test_bands_are_half_open_and_the_limit_gets_the_stronger_band():
 # Limits: CLP Annex VI entries for NaOH, KOH, HCl, H2SO4, HNO3 (from memory — verify); densities of the
 # aqueous solutions at 20 °C from the CRC Handbook's concentrative-properties tables (from memory).
 LIMITS = [
-    ("NaOH", "NaOH", 0.005, 1.004), ("NaOH", "NaOH", 0.02, 1.021),
-    ("KOH", "KOH", 0.005, 1.003), ("KOH", "KOH", 0.02, 1.016),
-    ("HCl", "HCl", 0.10, 1.048), ("HCl", "HCl", 0.25, 1.125),
-    ("H2SO4", "H2SO4", 0.05, 1.032), ("H2SO4", "H2SO4", 0.15, 1.102),
+    ("NaOH", "NaOH", 0.005, 1.004),
+    ("NaOH", "NaOH", 0.02, 1.021),
+    ("KOH", "KOH", 0.005, 1.003),
+    ("KOH", "KOH", 0.02, 1.016),
+    ("HCl", "HCl", 0.10, 1.048),
+    ("HCl", "HCl", 0.25, 1.125),
+    ("H2SO4", "H2SO4", 0.05, 1.032),
+    ("H2SO4", "H2SO4", 0.15, 1.102),
     ("HNO3", "HNO3", 0.05, 1.026),
 ]
 
@@ -89,14 +93,27 @@ def test_concentrated_hydrochloric_acid_matches_the_primer():
     # DOMAIN primer (memory): concentrated (~37 %, ~12 mol/L) HCl H290 H314 H335, Danger, corrosion and
     # exclamation-mark pictograms.
     el = elements("HCl", 12.0)
-    assert (el.signal_word, el.pictograms, codes(el.hazard_statements)) == ("Danger", ("GHS05", "GHS07"),
-                                                                            ["H290", "H314", "H335"])
+    assert (el.signal_word, el.pictograms, codes(el.hazard_statements)) == (
+        "Danger",
+        ("GHS05", "GHS07"),
+        ["H290", "H314", "H335"],
+    )
 
 
 def test_every_starting_row_passes_the_admin_checks_and_has_texts():
     for c in DEFAULT_CLASSIFICATIONS:
-        assert hazards.check(c.reagent, c.min_molarity, c.max_molarity, c.signal_word, c.pictograms,
-                             c.hazard_statements, c.precautionary_statements) == [], c
+        assert (
+            hazards.check(
+                c.reagent,
+                c.min_molarity,
+                c.max_molarity,
+                c.signal_word,
+                c.pictograms,
+                c.hazard_statements,
+                c.precautionary_statements,
+            )
+            == []
+        ), c
         assert "from memory" in c.source_note  # the rule: values recalled are marked as such
         for code, text in hazards.label_elements(c).hazard_statements + hazards.label_elements(c).precautionary_statements:
             assert text, code
@@ -110,22 +127,32 @@ def test_the_bands_of_each_reagent_do_not_overlap_and_leave_no_gap():
             assert a.max_molarity == b.min_molarity, reagent
 
 
-@pytest.mark.parametrize(("kwargs", "field", "words"), [
-    ({"hazard_statements": ["H29O"]}, "hazard_statements", "H followed by three digits"),
-    ({"hazard_statements": ["H999"]}, "hazard_statements", "no text"),
-    ({"precautionary_statements": ["P305+351"]}, "precautionary_statements", "combinations joined by +"),
-    ({"hazard_statements": ["H290", "H314", "H318"], "signal_word": "Danger"}, "hazard_statements", "H318"),
-    ({"signal_word": "Danger"}, "signal_word", "Warning"),
-    ({"pictograms": []}, "pictograms", "GHS05"),
-    ({"pictograms": ["GHS05", "GHS07"]}, "pictograms", "not called for"),
-    ({"pictograms": ["GHS06"]}, "pictograms", "can print only"),
-    ({"max_molarity": 0.05}, "max_molarity", "above the lower limit"),
-    ({"max_molarity": 500.0}, "max_molarity", "check the unit"),
-    ({"precautionary_statements": []}, "precautionary_statements", "safety data sheet"),
-])
+@pytest.mark.parametrize(
+    ("kwargs", "field", "words"),
+    [
+        ({"hazard_statements": ["H29O"]}, "hazard_statements", "H followed by three digits"),
+        ({"hazard_statements": ["H999"]}, "hazard_statements", "no text"),
+        ({"precautionary_statements": ["P305+351"]}, "precautionary_statements", "combinations joined by +"),
+        ({"hazard_statements": ["H290", "H314", "H318"], "signal_word": "Danger"}, "hazard_statements", "H318"),
+        ({"signal_word": "Danger"}, "signal_word", "Warning"),
+        ({"pictograms": []}, "pictograms", "GHS05"),
+        ({"pictograms": ["GHS05", "GHS07"]}, "pictograms", "not called for"),
+        ({"pictograms": ["GHS06"]}, "pictograms", "can print only"),
+        ({"max_molarity": 0.05}, "max_molarity", "above the lower limit"),
+        ({"max_molarity": 500.0}, "max_molarity", "check the unit"),
+        ({"precautionary_statements": []}, "precautionary_statements", "safety data sheet"),
+    ],
+)
 def test_check_names_the_field_and_the_rule(kwargs, field, words):
-    entry = {"reagent": "NaOH", "min_molarity": 0.1, "max_molarity": None, "signal_word": "Warning",
-             "pictograms": ["GHS05"], "hazard_statements": ["H290"], "precautionary_statements": ["P234", "P390"]}
+    entry = {
+        "reagent": "NaOH",
+        "min_molarity": 0.1,
+        "max_molarity": None,
+        "signal_word": "Warning",
+        "pictograms": ["GHS05"],
+        "hazard_statements": ["H290"],
+        "precautionary_statements": ["P234", "P390"],
+    }
     entry.update(kwargs)
     errors = hazards.check(**entry)
     assert any(e.field == field and words in e.message for e in errors), errors
@@ -136,10 +163,12 @@ def test_a_not_classified_band_is_allowed():
 
 
 def test_newest_row_wins_inside_its_band_and_the_older_still_applies_outside():
-    old = Classification("NaOH", 0.5, None, "Danger", ("GHS05",), ("H290", "H314"), ("P280",),
-                         effective_from=dt.date(2020, 1, 1), id=1)
-    narrower = Classification("NaOH", 0.5, 2.0, "Danger", ("GHS05",), ("H290", "H314"), ("P280", "P310"),
-                              effective_from=dt.date(2026, 1, 1), id=2)
+    old = Classification(
+        "NaOH", 0.5, None, "Danger", ("GHS05",), ("H290", "H314"), ("P280",), effective_from=dt.date(2020, 1, 1), id=1
+    )
+    narrower = Classification(
+        "NaOH", 0.5, 2.0, "Danger", ("GHS05",), ("H290", "H314"), ("P280", "P310"), effective_from=dt.date(2026, 1, 1), id=2
+    )
     future = Classification("NaOH", 0.0, None, "", (), (), (), effective_from=dt.date(2030, 1, 1), id=3)
     rows = [old, narrower, future]
     assert hazards.pick(rows, "NaOH", 1.0, DAY) is narrower
@@ -147,19 +176,20 @@ def test_newest_row_wins_inside_its_band_and_the_older_still_applies_outside():
     assert hazards.pick(rows, "NaOH", 1.0, dt.date(2025, 6, 1)) is old  # before the narrower row took effect
     assert hazards.pick(rows, "NaOH", 1.0, dt.date(2030, 1, 1)) is future
     assert hazards.in_force(rows, DAY) == [narrower, old]  # sorted by band; old still decides above 2 mol/L
-    replacing = Classification("NaOH", 0.5, None, "Danger", ("GHS05",), ("H290", "H314"), ("P280",),
-                               effective_from=dt.date(2026, 1, 2), id=4)
+    replacing = Classification(
+        "NaOH", 0.5, None, "Danger", ("GHS05",), ("H290", "H314"), ("P280",), effective_from=dt.date(2026, 1, 2), id=4
+    )
     assert hazards.in_force(rows + [replacing], DAY) == [replacing]  # both older rows wholly covered
 
 
 def test_statements_are_listed_in_number_order_and_codes_split_as_typed():
-    assert hazards.statement_order(["P310", "P280", "P303+P361+P353", "P234"]) == (
-        "P234", "P280", "P303+P361+P353", "P310")
+    assert hazards.statement_order(["P310", "P280", "P303+P361+P353", "P234"]) == ("P234", "P280", "P303+P361+P353", "P310")
     assert hazards.statement_order(["EUH071", "H314", "H290"]) == ("H290", "H314", "EUH071")
     assert hazards.split_codes(" h290, H314;p305 + p351 + p338 ") == ["H290", "H314", "P305+P351+P338"]
 
 
 # ---------------------------------------------------------------- the admin page
+
 
 def _rows(app, sql, params=()):
     from stockroom import db as dbmod
@@ -171,10 +201,17 @@ def _rows(app, sql, params=()):
         conn.close()
 
 
-GOOD_ENTRY = {"reagent": "NaOH", "min_molarity": "0.5", "max_molarity": "", "signal_word": "Danger",
-              "pictograms": ["GHS05"], "hazard_statements": "H290 H314",
-              "precautionary_statements": "P280, P260, P303+P361+P353, P305+P351+P338, P310, P234",
-              "source_note": "Invented Chemicals SDS rev. 7 (invented)", "reason": "supplier changed the P statements"}
+GOOD_ENTRY = {
+    "reagent": "NaOH",
+    "min_molarity": "0.5",
+    "max_molarity": "",
+    "signal_word": "Danger",
+    "pictograms": ["GHS05"],
+    "hazard_statements": "H290 H314",
+    "precautionary_statements": "P280, P260, P303+P361+P353, P305+P351+P338, P310, P234",
+    "source_note": "Invented Chemicals SDS rev. 7 (invented)",
+    "reason": "supplier changed the P statements",
+}
 
 
 def test_hazard_data_needs_hazard_edit(client, signed_in_client, form_token):
@@ -219,21 +256,23 @@ def test_an_admin_adds_a_classification_and_the_next_label_uses_it(app, signed_i
             conn.close()
 
 
-@pytest.mark.parametrize(("change", "field", "words"), [
-    ({"hazard_statements": "H290 H314 H318"}, "hazard_statements", "leave out H318"),
-    ({"hazard_statements": "H2900"}, "hazard_statements", "H followed by three digits"),
-    ({"signal_word": "Warning"}, "signal_word", "call for Danger"),
-    ({"pictograms": []}, "pictograms", "need GHS05"),
-    ({"min_molarity": "0,5"}, "min_molarity", "use a point"),
-    ({"max_molarity": "0.2"}, "max_molarity", "above the lower limit"),
-    ({"reason": ""}, "reason", "is required"),
-    ({"effective_from": "2001-01-01"}, "effective_from", "cannot be earlier than"),
-])
+@pytest.mark.parametrize(
+    ("change", "field", "words"),
+    [
+        ({"hazard_statements": "H290 H314 H318"}, "hazard_statements", "leave out H318"),
+        ({"hazard_statements": "H2900"}, "hazard_statements", "H followed by three digits"),
+        ({"signal_word": "Warning"}, "signal_word", "call for Danger"),
+        ({"pictograms": []}, "pictograms", "need GHS05"),
+        ({"min_molarity": "0,5"}, "min_molarity", "use a point"),
+        ({"max_molarity": "0.2"}, "max_molarity", "above the lower limit"),
+        ({"reason": ""}, "reason", "is required"),
+        ({"effective_from": "2001-01-01"}, "effective_from", "cannot be earlier than"),
+    ],
+)
 def test_a_bad_entry_is_422_beside_the_field(app, signed_in_client, form_token, change, field, words):
     admin = signed_in_client("admin")
     before = len(_rows(app, "SELECT id FROM hazard_classifications"))
-    resp = admin.post("/admin/hazards", data=dict(GOOD_ENTRY, **change,
-                                                  csrf_token=form_token(admin, "/admin/hazards")))
+    resp = admin.post("/admin/hazards", data=dict(GOOD_ENTRY, **change, csrf_token=form_token(admin, "/admin/hazards")))
     assert resp.status_code == 422
     html = resp.get_data(as_text=True)
     assert re.search(rf'id="e-{field}">[^<]*{re.escape(words)}', html), html[:2000]

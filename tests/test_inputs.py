@@ -13,9 +13,17 @@ from stockroom.web.inputs import MISSING, Parser, field_path, number_problem, ra
 
 @pytest.mark.parametrize(
     ("raw", "value"),
-    [(1, 1.0), (0.25, 0.25), ("0.25", 0.25), (" 40.02 ", 40.02), ("-3", -3.0), (".5", 0.5), ("5.", 5.0),
-     # JSON's own grammar allows exponents (RFC 8259 §6), so a JSON number 1e-4 is a number.
-     (json.loads("1e-4"), 1e-4)],
+    [
+        (1, 1.0),
+        (0.25, 0.25),
+        ("0.25", 0.25),
+        (" 40.02 ", 40.02),
+        ("-3", -3.0),
+        (".5", 0.5),
+        ("5.", 5.0),
+        # JSON's own grammar allows exponents (RFC 8259 §6), so a JSON number 1e-4 is a number.
+        (json.loads("1e-4"), 1e-4),
+    ],
 )
 def test_numbers_accepted(raw, value):
     assert number_problem(raw) == (value, None)

@@ -17,8 +17,12 @@ from stockroom import records
 
 TODAY = dt.date.today()
 # Four invented replicates of about 0.1 mol/L NaOH against KHP (gross g, tare g, initial mL, final mL).
-GOOD = [("12.4581", "11.6402", "0.12", "40.21"), ("12.0117", "11.1891", "0.40", "40.73"),
-        ("11.9012", "11.0759", "0.05", "40.50"), ("12.2230", "11.4170", "0.30", "39.82")]
+GOOD = [
+    ("12.4581", "11.6402", "0.12", "40.21"),
+    ("12.0117", "11.1891", "0.40", "40.73"),
+    ("11.9012", "11.0759", "0.05", "40.50"),
+    ("12.2230", "11.4170", "0.30", "39.82"),
+]
 
 
 def iso(days: int) -> str:
@@ -34,31 +38,57 @@ def conn(app):
 
 @pytest.fixture
 def setup(conn):
-    batch = records.create_batch(conn, {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 20,
-                                        "prepared_on": iso(-2), "prepared_by": "Test Person"}, "setup")
-    lot = records.create_lot(conn, {"substance": "KHP", "assay": 1.0, "assay_expanded_u": 0.0002, "assay_k": 2,
-                                    "expires_on": iso(300), "dried_on": iso(0), "dried_at_c": 120}, "setup")
+    batch = records.create_batch(
+        conn,
+        {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 20, "prepared_on": iso(-2), "prepared_by": "Test Person"},
+        "setup",
+    )
+    lot = records.create_lot(
+        conn,
+        {
+            "substance": "KHP",
+            "assay": 1.0,
+            "assay_expanded_u": 0.0002,
+            "assay_k": 2,
+            "expires_on": iso(300),
+            "dried_on": iso(0),
+            "dried_at_c": 120,
+        },
+        "setup",
+    )
     return {"batch": batch, "lot": lot}
 
 
 def burette(conn, code, cls="A", tolerance=None, due=365, outcome="pass", calibrated=-30):
-    values = {"code": code, "kind": "burette", "capacity": 50.0, "accuracy_class": cls,
-              "tolerance": tolerance if tolerance is not None else inst_mod.class_tolerance("burette", cls, 50.0)}
-    cal = {"calibrated_on": iso(calibrated), "next_due_on": iso(due), "outcome": outcome,
-           "certificate_ref": f"CAL-{code}"}
+    values = {
+        "code": code,
+        "kind": "burette",
+        "capacity": 50.0,
+        "accuracy_class": cls,
+        "tolerance": tolerance if tolerance is not None else inst_mod.class_tolerance("burette", cls, 50.0),
+    }
+    cal = {"calibrated_on": iso(calibrated), "next_due_on": iso(due), "outcome": outcome, "certificate_ref": f"CAL-{code}"}
     return inst_mod.register(conn, values, "setup", cal)
 
 
 def balance(conn, code, readability_g=0.0001, linearity_g=0.0003):
-    return inst_mod.register(conn, {"code": code, "kind": "balance", "capacity": 220.0, "readability": readability_g,
-                                    "linearity_g": linearity_g},
-                             "setup", {"calibrated_on": iso(-10), "next_due_on": iso(300), "outcome": "pass",
-                                       "certificate_ref": f"CAL-{code}"})
+    return inst_mod.register(
+        conn,
+        {"code": code, "kind": "balance", "capacity": 220.0, "readability": readability_g, "linearity_g": linearity_g},
+        "setup",
+        {"calibrated_on": iso(-10), "next_due_on": iso(300), "outcome": "pass", "certificate_ref": f"CAL-{code}"},
+    )
 
 
 def run_form(setup, **extra):
-    form = {"purpose": "certify", "standard_lot_id": str(setup["lot"]["id"]), "performed_on": TODAY.isoformat(),
-            "analyst": "Test Person", "burette_capacity_ml": "50.0", "action": "record"}
+    form = {
+        "purpose": "certify",
+        "standard_lot_id": str(setup["lot"]["id"]),
+        "performed_on": TODAY.isoformat(),
+        "analyst": "Test Person",
+        "burette_capacity_ml": "50.0",
+        "action": "record",
+    }
     for i, (gross, tare, initial, final) in enumerate(GOOD, start=1):
         form.update({f"r{i}_gross_g": gross, f"r{i}_tare_g": tare, f"r{i}_initial_ml": initial, f"r{i}_final_ml": final})
     form.update(extra)
@@ -110,11 +140,20 @@ def test_class_b_burette_widens_u_by_exactly_its_triangular_term(app, conn, setu
     assert rows[1][2] == b.calibrations[-1].id
     # The run form's live preview, sent the chosen burette's figure, computes the same u as recording.
     page = staff.get(f"/batches/{setup['batch']['code']}/runs/new").get_data(as_text=True)
-    assert f'&#34;{b.id}&#34;: {{&#34;burette_tolerance_ml&#34;: 0.1}}' in page
-    body = {"titrant": "NaOH", "standard": "KHP", "purity": 1.0, "purity_U": 0.0002, "purity_k": 2,
-            "nominal_molarity": 0.1, "burette_capacity_ml": 50, "burette_tolerance_ml": 0.1,
-            "replicates": [{"gross_g": float(g), "tare_g": float(t), "initial_ml": float(i), "final_ml": float(f)}
-                           for g, t, i, f in GOOD]}
+    assert f"&#34;{b.id}&#34;: {{&#34;burette_tolerance_ml&#34;: 0.1}}" in page
+    body = {
+        "titrant": "NaOH",
+        "standard": "KHP",
+        "purity": 1.0,
+        "purity_U": 0.0002,
+        "purity_k": 2,
+        "nominal_molarity": 0.1,
+        "burette_capacity_ml": 50,
+        "burette_tolerance_ml": 0.1,
+        "replicates": [
+            {"gross_g": float(g), "tare_g": float(t), "initial_ml": float(i), "final_ml": float(f)} for g, t, i, f in GOOD
+        ],
+    }
     preview = staff.post("/api/v1/standardizations/preview", json=body).get_json()
     assert preview["u"] == pytest.approx(res_b["u"], rel=1e-9)
 
@@ -144,8 +183,12 @@ def test_balance_figures_feed_the_mass_terms(conn, setup, signed_in_client, form
 
 def test_a_recalibration_stating_new_figures_holds_from_then_on(conn):
     b = burette(conn, "BUR-R", "A", calibrated=-100, due=-20)
-    inst_mod.record_calibration(conn, b.id, {"calibrated_on": iso(-5), "next_due_on": iso(360), "outcome": "pass",
-                                             "certificate_ref": "CAL-2", "tolerance": 0.04}, "setup")
+    inst_mod.record_calibration(
+        conn,
+        b.id,
+        {"calibrated_on": iso(-5), "next_due_on": iso(360), "outcome": "pass", "certificate_ref": "CAL-2", "tolerance": 0.04},
+        "setup",
+    )
     b = inst_mod.instrument_by_id(conn, b.id)
     assert [c.certificate_ref for c in b.calibrations] == ["CAL-BUR-R", "CAL-2"]  # history kept, in order
     assert b.tolerance_on(dt.date.fromisoformat(iso(-50))) == 0.05
@@ -158,13 +201,17 @@ def test_a_recalibration_stating_new_figures_holds_from_then_on(conn):
 
 def test_instrument_records_are_append_only(conn):
     b = burette(conn, "BUR-X")
-    for sql in ("UPDATE instruments SET tolerance = 1", "DELETE FROM calibrations",
-                f"UPDATE calibrations SET next_due_on = '2999-01-01' WHERE instrument_id = {b.id}"):
+    for sql in (
+        "UPDATE instruments SET tolerance = 1",
+        "DELETE FROM calibrations",
+        f"UPDATE calibrations SET next_due_on = '2999-01-01' WHERE instrument_id = {b.id}",
+    ):
         with pytest.raises(sqlite3.IntegrityError, match="append-only"):
             with dbmod.write(conn):
                 conn.execute(sql)
-    actions = [r[0] for r in conn.execute("SELECT action FROM events WHERE entity IN ('instruments', 'calibrations') "
-                                          "ORDER BY id")]
+    actions = [
+        r[0] for r in conn.execute("SELECT action FROM events WHERE entity IN ('instruments', 'calibrations') ORDER BY id")
+    ]
     assert actions == ["instrument.register", "instrument.calibrate"]
 
 
@@ -192,8 +239,9 @@ def test_a_burette_past_due_blocks_the_release_and_names_itself(conn, setup, sig
 
 def test_failed_or_never_calibrated_instruments_block_a_release_too(conn, setup, signed_in_client, form_token):
     failed = burette(conn, "BUR-FAIL", outcome="fail")
-    never = inst_mod.register(conn, {"code": "BAL-NEW", "kind": "balance", "capacity": 220.0, "readability": 0.0001,
-                                     "linearity_g": 0.0002}, "setup")
+    never = inst_mod.register(
+        conn, {"code": "BAL-NEW", "kind": "balance", "capacity": 220.0, "readability": 0.0001, "linearity_g": 0.0002}, "setup"
+    )
     staff = signed_in_client("staff")
     r1 = record_run(staff, form_token, setup, burette_id=str(failed.id))
     text = post(staff, form_token, f"/runs/{r1}/decide", {"decision": "accept"}).get_data(as_text=True)
@@ -236,9 +284,19 @@ def test_standing_reads_plainly_on_the_list(conn, signed_in_client):
 
 
 def register_form(**extra):
-    form = {"code": "BUR-07", "kind": "burette", "capacity": "50", "accuracy_class": "A", "tolerance_ml": "",
-            "division_ml": "0.1", "calibrated_on": iso(-3), "next_due_on": iso(362), "outcome": "pass",
-            "certificate_ref": "CERT-0071", "calibrated_by": "Invented Metrology Ltd"}
+    form = {
+        "code": "BUR-07",
+        "kind": "burette",
+        "capacity": "50",
+        "accuracy_class": "A",
+        "tolerance_ml": "",
+        "division_ml": "0.1",
+        "calibrated_on": iso(-3),
+        "next_due_on": iso(362),
+        "outcome": "pass",
+        "certificate_ref": "CERT-0071",
+        "calibrated_by": "Invented Metrology Ltd",
+    }
     form.update(extra)
     return form
 
@@ -250,44 +308,82 @@ def test_register_through_the_form_takes_the_class_tolerance(conn, signed_in_cli
     page = staff.get(resp.headers["Location"]).get_data(as_text=True)
     assert "±0.05 mL taken from the Class A table" in page and "CERT-0071" in page
     inst = inst_mod.list_instruments(conn)[0]
-    assert (inst.code, inst.tolerance, inst.readability, inst.calibrations[0].next_due_on.isoformat()) == \
-        ("BUR-07", 0.05, 0.1, iso(362))
-    resp = post(staff, form_token, "/instruments/new", register_form(code="bal-1", kind="balance", capacity="220",
-                                                                     accuracy_class="", division_ml="",
-                                                                     readability_mg="0.1", linearity_mg="0.2"))
+    assert (inst.code, inst.tolerance, inst.readability, inst.calibrations[0].next_due_on.isoformat()) == (
+        "BUR-07",
+        0.05,
+        0.1,
+        iso(362),
+    )
+    resp = post(
+        staff,
+        form_token,
+        "/instruments/new",
+        register_form(
+            code="bal-1",
+            kind="balance",
+            capacity="220",
+            accuracy_class="",
+            division_ml="",
+            readability_mg="0.1",
+            linearity_mg="0.2",
+        ),
+    )
     assert resp.status_code == 303
     bal = next(i for i in inst_mod.list_instruments(conn) if i.kind == "balance")
     assert (bal.readability, bal.linearity_g) == (0.0001, 0.0002)  # mg on the form, g on record
     # A recalibration from the instrument's page adds to the history.
-    resp = post(staff, form_token, f"/instruments/{bal.id}/calibrations",
-                {"calibrated_on": iso(0), "next_due_on": iso(180), "outcome": "pass", "certificate_ref": "CERT-2",
-                 "stated_linearity_mg": "0.25"})
+    resp = post(
+        staff,
+        form_token,
+        f"/instruments/{bal.id}/calibrations",
+        {
+            "calibrated_on": iso(0),
+            "next_due_on": iso(180),
+            "outcome": "pass",
+            "certificate_ref": "CERT-2",
+            "stated_linearity_mg": "0.25",
+        },
+    )
     assert resp.status_code == 303
     bal = inst_mod.instrument_by_id(conn, bal.id)
     assert [c.certificate_ref for c in bal.calibrations] == ["CERT-0071", "CERT-2"]
     assert bal.linearity_on(TODAY) == 0.00025
 
 
-@pytest.mark.parametrize("change,field,message", [
-    ({"code": ""}, "code", "required"),
-    ({"code": "BUR 07!"}, "code", "letters, digits"),
-    ({"kind": "flask"}, "kind", "must be one of"),
-    ({"capacity": "-5"}, "capacity", "greater than 0"),
-    ({"capacity": "30"}, "capacity", "runs offer burettes of 10, 25, 50, 100 mL"),
-    ({"capacity": "50,0"}, "capacity", "not a comma"),
-    ({"accuracy_class": "", "tolerance_ml": ""}, "tolerance_ml", "is required"),
-    ({"tolerance_ml": "5"}, "tolerance_ml", "at most 1 mL"),
-    ({"tolerance_ml": "0.9", "capacity": "25"}, "tolerance_ml", "more than 2 % of 25 mL"),
-    ({"linearity_mg": "0.2"}, "linearity_mg", "leave it blank"),
-    ({"next_due_on": iso(-10)}, "next_due_on", "after the calibration date"),
-    ({"calibrated_on": iso(4)}, "calibrated_on", "cannot be later"),
-    ({"next_due_on": iso(4000)}, "next_due_on", "more than five years"),
-    ({"certificate_ref": ""}, "certificate_ref", "required"),
-    ({"kind": "balance", "capacity": "220", "readability_mg": "", "linearity_mg": "0.2", "tolerance_ml": "",
-      "division_ml": ""}, "readability_mg", "required"),
-])
-def test_bad_register_input_is_caught_at_the_field_and_nothing_is_stored(conn, signed_in_client, form_token, change,
-                                                                        field, message):
+@pytest.mark.parametrize(
+    "change,field,message",
+    [
+        ({"code": ""}, "code", "required"),
+        ({"code": "BUR 07!"}, "code", "letters, digits"),
+        ({"kind": "flask"}, "kind", "must be one of"),
+        ({"capacity": "-5"}, "capacity", "greater than 0"),
+        ({"capacity": "30"}, "capacity", "runs offer burettes of 10, 25, 50, 100 mL"),
+        ({"capacity": "50,0"}, "capacity", "not a comma"),
+        ({"accuracy_class": "", "tolerance_ml": ""}, "tolerance_ml", "is required"),
+        ({"tolerance_ml": "5"}, "tolerance_ml", "at most 1 mL"),
+        ({"tolerance_ml": "0.9", "capacity": "25"}, "tolerance_ml", "more than 2 % of 25 mL"),
+        ({"linearity_mg": "0.2"}, "linearity_mg", "leave it blank"),
+        ({"next_due_on": iso(-10)}, "next_due_on", "after the calibration date"),
+        ({"calibrated_on": iso(4)}, "calibrated_on", "cannot be later"),
+        ({"next_due_on": iso(4000)}, "next_due_on", "more than five years"),
+        ({"certificate_ref": ""}, "certificate_ref", "required"),
+        (
+            {
+                "kind": "balance",
+                "capacity": "220",
+                "readability_mg": "",
+                "linearity_mg": "0.2",
+                "tolerance_ml": "",
+                "division_ml": "",
+            },
+            "readability_mg",
+            "required",
+        ),
+    ],
+)
+def test_bad_register_input_is_caught_at_the_field_and_nothing_is_stored(
+    conn, signed_in_client, form_token, change, field, message
+):
     staff = signed_in_client("staff")
     before = count(conn, "instruments"), count(conn, "calibrations"), count(conn, "events")
     resp = post(staff, form_token, "/instruments/new", register_form(**change))
@@ -307,19 +403,28 @@ def test_duplicate_id_and_bad_calibration_are_422_and_store_nothing(conn, signed
     assert resp.status_code == 422 and "already registered" in resp.get_data(as_text=True)
     assert (count(conn, "instruments"), count(conn, "events")) == before
     cals = count(conn, "calibrations")
-    resp = post(staff, form_token, f"/instruments/{b.id}/calibrations",
-                {"calibrated_on": iso(-60), "next_due_on": iso(100), "certificate_ref": "CAL-OLD"})
+    resp = post(
+        staff,
+        form_token,
+        f"/instruments/{b.id}/calibrations",
+        {"calibrated_on": iso(-60), "next_due_on": iso(100), "certificate_ref": "CAL-OLD"},
+    )
     assert resp.status_code == 422 and "before the last calibration on record" in resp.get_data(as_text=True)
-    resp = post(staff, form_token, f"/instruments/{b.id}/calibrations",
-                {"calibrated_on": iso(0), "next_due_on": iso(100), "certificate_ref": "", "outcome": "maybe"})
+    resp = post(
+        staff,
+        form_token,
+        f"/instruments/{b.id}/calibrations",
+        {"calibrated_on": iso(0), "next_due_on": iso(100), "certificate_ref": "", "outcome": "maybe"},
+    )
     html = resp.get_data(as_text=True)
     assert resp.status_code == 422 and "must be one of" in html and "certificate_ref" in html
     assert count(conn, "calibrations") == cals
 
 
 def test_run_form_offers_instruments_and_checks_them(conn, setup, signed_in_client, form_token):
-    b25 = inst_mod.register(conn, {"code": "BUR-25", "kind": "burette", "capacity": 25.0, "accuracy_class": "A",
-                                   "tolerance": 0.03}, "setup")
+    b25 = inst_mod.register(
+        conn, {"code": "BUR-25", "kind": "burette", "capacity": 25.0, "accuracy_class": "A", "tolerance": 0.03}, "setup"
+    )
     bal = balance(conn, "BAL-1")
     staff = signed_in_client("staff")
     url = f"/batches/{setup['batch']['code']}/runs/new"
@@ -327,10 +432,12 @@ def test_run_form_offers_instruments_and_checks_them(conn, setup, signed_in_clie
     assert 'name="burette_id"' in page and 'name="balance_id"' in page and 'name="pipette_id"' not in page
     assert "BUR-25 · 25 mL, Class A ±0.03 mL · no calibration on record" in page
     before = count(conn, "runs"), count(conn, "run_instruments"), count(conn, "events")
-    for extra, field, message in [({"burette_id": str(b25.id)}, "burette_id", "25 mL burette but the run says 50 mL"),
-                                  ({"burette_id": str(bal.id)}, "burette_id", "is a balance, not a burette"),
-                                  ({"balance_id": "999"}, "balance_id", "no such instrument"),
-                                  ({"balance_id": "x"}, "balance_id", "whole number")]:
+    for extra, field, message in [
+        ({"burette_id": str(b25.id)}, "burette_id", "25 mL burette but the run says 50 mL"),
+        ({"burette_id": str(bal.id)}, "burette_id", "is a balance, not a burette"),
+        ({"balance_id": "999"}, "balance_id", "no such instrument"),
+        ({"balance_id": "x"}, "balance_id", "whole number"),
+    ]:
         resp = post(staff, form_token, url, run_form(setup, **extra))
         assert resp.status_code == 422
         html = resp.get_data(as_text=True)
@@ -346,8 +453,12 @@ def test_permissions(app, conn, client, signed_in_client, form_token):
     assert client.get("/instruments/new").status_code == 303
     instructor = signed_in_client("instructor")
     assert instructor.get("/instruments/new").status_code == 403
-    resp = post(instructor, form_token, f"/instruments/{b.id}/calibrations",
-                {"calibrated_on": iso(0), "next_due_on": iso(100), "certificate_ref": "X"})
+    resp = post(
+        instructor,
+        form_token,
+        f"/instruments/{b.id}/calibrations",
+        {"calibrated_on": iso(0), "next_due_on": iso(100), "certificate_ref": "X"},
+    )
     assert resp.status_code == 403
     refused = conn.execute("SELECT detail FROM events WHERE action = 'access.refused' ORDER BY id DESC").fetchone()
     assert json.loads(refused[0])["permission"] == "instrument.register"
@@ -364,8 +475,12 @@ def test_a_suspect_burette_reaches_the_values_it_helped_certify(conn, setup, sig
     used = record_run(staff, form_token, setup, burette_id=str(bur.id))
     assert post(staff, form_token, f"/runs/{used}/decide", {"decision": "accept"}).status_code == 303
     release_id = conn.execute("SELECT id FROM releases WHERE run_id = ?", [used]).fetchone()[0]
-    resp = post(staff, form_token, "/recalls/new", {"subject": f"instrument:{bur.id}", "suspect_from": iso(-1),
-                                                     "reason": "failed its check: reads 0.2 mL high (invented)"})
+    resp = post(
+        staff,
+        form_token,
+        "/recalls/new",
+        {"subject": f"instrument:{bur.id}", "suspect_from": iso(-1), "reason": "failed its check: reads 0.2 mL high (invented)"},
+    )
     assert resp.status_code == 303
     rid = int(resp.headers["Location"].rsplit("/", 1)[1])
     report = recall_mod.impact(conn, rid, TODAY)

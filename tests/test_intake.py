@@ -27,10 +27,21 @@ def today() -> dt.date:
 
 
 def good_form(**changes):
-    form = {"reagent": "HCl", "nominal_molarity": "0.1", "volume_l": "20", "source_form": "liquid",
-            "concentrate_lot": "INV-HCL-0042 (invented)", "concentrate_assay_pct": "37",
-            "concentrate_density_g_ml": "1.19", "prepared_on": today().isoformat(), "prepared_by": "A. Tester",
-            "water_grade": "deionized, Type II", "container": "20 L HDPE carboy", "notes": "", "action": "register"}
+    form = {
+        "reagent": "HCl",
+        "nominal_molarity": "0.1",
+        "volume_l": "20",
+        "source_form": "liquid",
+        "concentrate_lot": "INV-HCL-0042 (invented)",
+        "concentrate_assay_pct": "37",
+        "concentrate_density_g_ml": "1.19",
+        "prepared_on": today().isoformat(),
+        "prepared_by": "A. Tester",
+        "water_grade": "deionized, Type II",
+        "container": "20 L HDPE carboy",
+        "notes": "",
+        "action": "register",
+    }
     form.update(changes)
     return form
 
@@ -90,19 +101,22 @@ def test_register_batch_gives_readable_id_awaiting_and_an_audit_event(app, staff
     assert again.headers["Location"].endswith(f"HCL-{today():%y%m}-02")
 
 
-@pytest.mark.parametrize(("field", "typed", "message"), [
-    ("volume_l", "twenty", "must be a plain decimal number such as 0.25"),
-    ("nominal_molarity", "0,1", "use a point, not a comma, for the decimal sign: write 0.1"),
-    ("volume_l", "-5", "must be between 0.1 and 50 L"),
-    ("volume_l", "80", "must be between 0.1 and 50 L"),
-    ("nominal_molarity", "-0.1", "must be greater than 0 mol/L and at most 2 mol/L"),
-    ("reagent", "NaCl", "'NaCl' is not a titrant stockroom knows"),
-    ("concentrate_assay_pct", "137", "must be greater than 1 % and at most 100 %"),
-    ("concentrate_assay_pct", "0.37", "is in percent: 0.37 looks like a mass fraction; for 37 % type 37"),
-    ("concentrate_density_g_ml", "1190", "must be between 0.8 and 2.5 g/mL"),
-    ("prepared_by", "", "is required"),
-    ("prepared_on", "12/01/2026", "is not a date; write it as YYYY-MM-DD"),
-])
+@pytest.mark.parametrize(
+    ("field", "typed", "message"),
+    [
+        ("volume_l", "twenty", "must be a plain decimal number such as 0.25"),
+        ("nominal_molarity", "0,1", "use a point, not a comma, for the decimal sign: write 0.1"),
+        ("volume_l", "-5", "must be between 0.1 and 50 L"),
+        ("volume_l", "80", "must be between 0.1 and 50 L"),
+        ("nominal_molarity", "-0.1", "must be greater than 0 mol/L and at most 2 mol/L"),
+        ("reagent", "NaCl", "'NaCl' is not a titrant stockroom knows"),
+        ("concentrate_assay_pct", "137", "must be greater than 1 % and at most 100 %"),
+        ("concentrate_assay_pct", "0.37", "is in percent: 0.37 looks like a mass fraction; for 37 % type 37"),
+        ("concentrate_density_g_ml", "1190", "must be between 0.8 and 2.5 g/mL"),
+        ("prepared_by", "", "is required"),
+        ("prepared_on", "12/01/2026", "is not a date; write it as YYYY-MM-DD"),
+    ],
+)
 def test_bad_input_is_shown_beside_the_field_and_nothing_is_stored(app, staff, form_token, field, typed, message):
     before = (count(app, "batches"), count(app, "events"))
     resp = post(staff, form_token, "/batches/new", good_form(**{field: typed}))
@@ -125,8 +139,7 @@ def test_prepared_in_the_future_is_refused(app, staff, form_token):
 
 
 def test_every_bad_field_is_reported_at_once(app, staff, form_token):
-    resp = post(staff, form_token, "/batches/new", good_form(volume_l="0,5", concentrate_assay_pct="x",
-                                                             prepared_by=""))
+    resp = post(staff, form_token, "/batches/new", good_form(volume_l="0,5", concentrate_assay_pct="x", prepared_by=""))
     html = resp.get_data(as_text=True)
     assert resp.status_code == 422 and "3 fields need attention" in html
     for field in ("volume_l", "concentrate_assay_pct", "prepared_by"):
@@ -139,20 +152,28 @@ def test_density_without_assay_and_pellets_for_an_acid_are_refused(app, staff, f
     assert "is needed with the density" in error_beside(html, "concentrate_assay_pct")
     resp = post(staff, form_token, "/batches/new", good_form(source_form="solid"))
     assert resp.status_code == 422
-    assert "hydrochloric acid is made from a liquid concentrate" in error_beside(resp.get_data(as_text=True),
-                                                                                  "source_form")
+    assert "hydrochloric acid is made from a liquid concentrate" in error_beside(resp.get_data(as_text=True), "source_form")
     assert count(app, "batches") == 0
 
 
 def test_base_without_co2_free_water_is_registered_with_a_warning(app, staff, form_token):
-    resp = post(staff, form_token, "/batches/new", good_form(reagent="NaOH", concentrate_assay_pct="50",
-                                                             concentrate_density_g_ml="1.52", water_grade="tap"))
+    resp = post(
+        staff,
+        form_token,
+        "/batches/new",
+        good_form(reagent="NaOH", concentrate_assay_pct="50", concentrate_density_g_ml="1.52", water_grade="tap"),
+    )
     assert resp.status_code == 303
     page = unescape(staff.get(resp.headers["Location"]).get_data(as_text=True))
     assert "notice-warning" in page and "boiled, CO2-free water" in page and "“tap”" in page
-    ok = post(staff, form_token, "/batches/new", good_form(reagent="NaOH", concentrate_assay_pct="50",
-                                                           concentrate_density_g_ml="1.52",
-                                                           water_grade="boiled, CO2-free deionized"))
+    ok = post(
+        staff,
+        form_token,
+        "/batches/new",
+        good_form(
+            reagent="NaOH", concentrate_assay_pct="50", concentrate_density_g_ml="1.52", water_grade="boiled, CO2-free deionized"
+        ),
+    )
     assert "notice-warning" not in staff.get(ok.headers["Location"]).get_data(as_text=True)
     assert count(app, "batches") == 2
 
@@ -210,9 +231,17 @@ def test_work_out_amounts_with_missing_assay_says_so_beside_the_field(app, staff
 
 
 def test_plan_api_pellets_for_naoh(client):
-    resp = client.post("/api/v1/preparation/plan", json={
-        "reagent": "NaOH", "nominal_molarity": "0.1", "volume_l": 20, "source_form": "solid",
-        "concentrate_assay_pct": "98", "water_grade": "deionized"})
+    resp = client.post(
+        "/api/v1/preparation/plan",
+        json={
+            "reagent": "NaOH",
+            "nominal_molarity": "0.1",
+            "volume_l": 20,
+            "source_form": "solid",
+            "concentrate_assay_pct": "98",
+            "water_grade": "deionized",
+        },
+    )
     assert resp.status_code == 200
     body = resp.get_json()
     # Arithmetic check: 20 L · 0.1 mol/L · M(NaOH) / 0.98 assay (periodictable molar mass).
@@ -224,30 +253,53 @@ def test_plan_api_pellets_for_naoh(client):
 
 
 def test_plan_api_liquid_matches_the_form(client):
-    body = client.post("/api/v1/preparation/plan", json={
-        "reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 20, "concentrate_assay_pct": 37,
-        "concentrate_density_g_ml": 1.19}).get_json()
+    body = client.post(
+        "/api/v1/preparation/plan",
+        json={
+            "reagent": "HCl",
+            "nominal_molarity": 0.1,
+            "volume_l": 20,
+            "concentrate_assay_pct": 37,
+            "concentrate_density_g_ml": 1.19,
+        },
+    ).get_json()
     assert body["plan"]["concentrate_volume_ml"] == pytest.approx(20 * 0.1 * M_HCL / (0.37 * 1.19), rel=1e-4)
     assert body["plan"]["concentrate_molarity_mol_l"] == pytest.approx(1000 * 1.19 * 0.37 / M_HCL, rel=1e-4)
     assert body["warnings"] == []
 
 
 def test_plan_api_errors_name_the_form_fields(client):
-    resp = client.post("/api/v1/preparation/plan", json={
-        "reagent": "HCl", "nominal_molarity": "0,1", "volume_l": 20, "concentrate_assay_pct": 37,
-        "concentrate_density_g_ml": 1.19, "colour": "red"})
+    resp = client.post(
+        "/api/v1/preparation/plan",
+        json={
+            "reagent": "HCl",
+            "nominal_molarity": "0,1",
+            "volume_l": 20,
+            "concentrate_assay_pct": 37,
+            "concentrate_density_g_ml": 1.19,
+            "colour": "red",
+        },
+    )
     assert resp.status_code == 422
     fields = {e["field"]: e["message"] for e in resp.get_json()["errors"]}
-    assert fields == {"nominal_molarity": "use a point, not a comma, for the decimal sign: write 0.1",
-                      "colour": "is not a field of this request"}
+    assert fields == {
+        "nominal_molarity": "use a point, not a comma, for the decimal sign: write 0.1",
+        "colour": "is not a field of this request",
+    }
     # A target the concentrate cannot reach is reported on the nominal (12.08 mol/L is 37 % HCl's own strength).
-    resp = client.post("/api/v1/preparation/plan", json={
-        "reagent": "HCl", "nominal_molarity": 1.5, "volume_l": 1, "concentrate_assay_pct": 5,
-        "concentrate_density_g_ml": 1.02})
+    resp = client.post(
+        "/api/v1/preparation/plan",
+        json={
+            "reagent": "HCl",
+            "nominal_molarity": 1.5,
+            "volume_l": 1,
+            "concentrate_assay_pct": 5,
+            "concentrate_density_g_ml": 1.02,
+        },
+    )
     assert resp.status_code == 422
     assert resp.get_json()["errors"][0]["field"] == "nominal_molarity"
-    assert client.post("/api/v1/preparation/plan", data="not json",
-                       content_type="application/json").status_code == 400
+    assert client.post("/api/v1/preparation/plan", data="not json", content_type="application/json").status_code == 400
 
 
 def test_page_loads_its_script_from_the_app(staff):
@@ -267,21 +319,63 @@ def released_batch(app, molarity, volume_l=20.0, prepared_days_ago=10):
     conn = dbmod.connect(app.config["DATABASE"])
     try:
         prepared = today() - dt.timedelta(days=prepared_days_ago)
-        batch = records.create_batch(conn, {
-            "reagent": "HCl", "nominal_molarity": 0.1, "volume_l": volume_l, "prepared_on": prepared.isoformat(),
-            "prepared_by": "Setup", "concentrate_assay_w_w": 0.37, "concentrate_density_g_ml": 1.19}, "setup")
-        lot = records.create_lot(conn, {"substance": "Na2CO3", "assay": 0.9998, "assay_expanded_u": 0.0004,
-                                        "assay_k": 2, "expires_on": (today() + dt.timedelta(days=300)).isoformat(),
-                                        "dried_on": prepared.isoformat(), "dried_at_c": 280}, "setup")
-        run_id = records.record_run(conn, {"batch_id": batch["id"], "purpose": "certify", "method": "primary",
-                                           "standard_lot_id": lot["id"], "performed_on": prepared.isoformat(),
-                                           "analyst": "Setup"}, [],
-                                    {"molarity": molarity, "u": 0.0001, "U": 0.0002, "k": 2, "n": 4,
-                                     "accepted": True}, "setup")
-        records.decide_run(conn, run_id, "accept", "", "setup", release={
-            "molarity": molarity, "u": 0.0001, "U": 0.0002, "k": 2, "released_on": prepared.isoformat(),
-            "expires_on": (prepared + dt.timedelta(days=365)).isoformat(), "recheck_interval_days": 90,
-            "tolerance_rel": 0.005})
+        batch = records.create_batch(
+            conn,
+            {
+                "reagent": "HCl",
+                "nominal_molarity": 0.1,
+                "volume_l": volume_l,
+                "prepared_on": prepared.isoformat(),
+                "prepared_by": "Setup",
+                "concentrate_assay_w_w": 0.37,
+                "concentrate_density_g_ml": 1.19,
+            },
+            "setup",
+        )
+        lot = records.create_lot(
+            conn,
+            {
+                "substance": "Na2CO3",
+                "assay": 0.9998,
+                "assay_expanded_u": 0.0004,
+                "assay_k": 2,
+                "expires_on": (today() + dt.timedelta(days=300)).isoformat(),
+                "dried_on": prepared.isoformat(),
+                "dried_at_c": 280,
+            },
+            "setup",
+        )
+        run_id = records.record_run(
+            conn,
+            {
+                "batch_id": batch["id"],
+                "purpose": "certify",
+                "method": "primary",
+                "standard_lot_id": lot["id"],
+                "performed_on": prepared.isoformat(),
+                "analyst": "Setup",
+            },
+            [],
+            {"molarity": molarity, "u": 0.0001, "U": 0.0002, "k": 2, "n": 4, "accepted": True},
+            "setup",
+        )
+        records.decide_run(
+            conn,
+            run_id,
+            "accept",
+            "",
+            "setup",
+            release={
+                "molarity": molarity,
+                "u": 0.0001,
+                "U": 0.0002,
+                "k": 2,
+                "released_on": prepared.isoformat(),
+                "expires_on": (prepared + dt.timedelta(days=365)).isoformat(),
+                "recheck_interval_days": 90,
+                "tolerance_rel": 0.005,
+            },
+        )
     finally:
         conn.close()
     return batch
@@ -307,8 +401,9 @@ def test_strong_batch_gets_water(app, staff):
 
 def test_weak_batch_gets_concentrate_by_the_mass_balance(app, staff):
     batch = released_batch(app, 0.0975)
-    resp = staff.get(f"/batches/{batch['code']}/adjust?basis=certified&volume_l=15&concentrate_assay_pct=37"
-                     "&concentrate_density_g_ml=1.19")
+    resp = staff.get(
+        f"/batches/{batch['code']}/adjust?basis=certified&volume_l=15&concentrate_assay_pct=37&concentrate_density_g_ml=1.19"
+    )
     html = unescape(resp.get_data(as_text=True))
     c_conc = 1000 * 1.19 * 0.37 / M_HCL  # mol/L of 37 % HCl at 1.19 g/mL
     # Mass balance c·V + c_conc·v = c_target·(V + v)  =>  v = V·(c_target − c)/(c_conc − c_target).
@@ -320,14 +415,17 @@ def test_weak_batch_gets_concentrate_by_the_mass_balance(app, staff):
 
 def test_weak_batch_without_a_concentrate_is_asked_for_one(app, staff):
     batch = released_batch(app, 0.0975)
-    resp = staff.get(f"/batches/{batch['code']}/adjust?basis=certified&volume_l=15&concentrate_assay_pct="
-                     "&concentrate_density_g_ml=")
+    resp = staff.get(
+        f"/batches/{batch['code']}/adjust?basis=certified&volume_l=15&concentrate_assay_pct=&concentrate_density_g_ml="
+    )
     assert resp.status_code == 422
     assert "raising it needs a concentrate" in error_beside(resp.get_data(as_text=True), "concentrate_assay_pct")
 
 
-@pytest.mark.parametrize(("typed", "message"), [
-    ("", "is required"), ("0,5", "use a point, not a comma"), ("-2", "must be greater than 0 L and at most 60 L")])
+@pytest.mark.parametrize(
+    ("typed", "message"),
+    [("", "is required"), ("0,5", "use a point, not a comma"), ("-2", "must be greater than 0 L and at most 60 L")],
+)
 def test_adjustment_volume_is_checked(app, staff, typed, message):
     batch = released_batch(app, 0.1032)
     resp = staff.get(f"/batches/{batch['code']}/adjust?basis=certified&volume_l={typed}")
@@ -349,12 +447,15 @@ def test_adjustment_needs_a_standardization_and_a_permitted_role(app, staff, sig
 
 def test_withdraw_with_a_reason(app, staff, form_token):
     batch = released_batch(app, 0.1002)
-    assert f'href="/batches/{batch["code"]}/withdraw"' in staff.get(f"/batches/{batch['code']}").get_data(
-        as_text=True)
+    assert f'href="/batches/{batch["code"]}/withdraw"' in staff.get(f"/batches/{batch['code']}").get_data(as_text=True)
     form = staff.get(f"/batches/{batch['code']}/withdraw").get_data(as_text=True)
     assert kept(form, "withdrawn_on", today().isoformat())
-    resp = post(staff, form_token, f"/batches/{batch['code']}/withdraw",
-                {"withdrawn_on": today().isoformat(), "reason": "carboy cracked (invented)"})
+    resp = post(
+        staff,
+        form_token,
+        f"/batches/{batch['code']}/withdraw",
+        {"withdrawn_on": today().isoformat(), "reason": "carboy cracked (invented)"},
+    )
     assert resp.status_code == 303 and resp.headers["Location"] == f"/batches/{batch['code']}"
     page = staff.get(resp.headers["Location"]).get_data(as_text=True)
     assert "Withdrawn" in page and "carboy cracked (invented)" in page

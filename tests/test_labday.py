@@ -28,8 +28,17 @@ def day(n: int) -> dt.date:
 
 
 def rel(n: int, molarity: float = 0.1002, rid: int = 1, expires: int = 90, interval: int = 14) -> ReleaseFact:
-    return ReleaseFact(id=rid, released_on=day(n), expires_on=day(expires), molarity=molarity, u=5e-5, U=1e-4,
-                       k=2.0, recheck_interval_days=interval, tolerance_rel=0.005)
+    return ReleaseFact(
+        id=rid,
+        released_on=day(n),
+        expires_on=day(expires),
+        molarity=molarity,
+        u=5e-5,
+        U=1e-4,
+        k=2.0,
+        recheck_interval_days=interval,
+        tolerance_rel=0.005,
+    )
 
 
 def record(code="NAOH-2603-01", reagent="NaOH", nominal=0.1, **facts) -> labday.BatchRecord:
@@ -42,8 +51,13 @@ def record(code="NAOH-2603-01", reagent="NaOH", nominal=0.1, **facts) -> labday.
 days = st.integers(-30, 200)
 
 
-@given(first=st.integers(0, 60), second=st.one_of(st.none(), st.integers(1, 80)), life=st.integers(10, 150),
-       withdraw=st.one_of(st.none(), days), on=days)
+@given(
+    first=st.integers(0, 60),
+    second=st.one_of(st.none(), st.integers(1, 80)),
+    life=st.integers(10, 150),
+    withdraw=st.one_of(st.none(), days),
+    on=days,
+)
 def test_a_batch_is_never_in_force_before_release_after_expiry_or_after_withdrawal(first, second, life, withdraw, on):
     releases = [rel(first, 0.1002, rid=1, expires=first + life)]
     if second is not None:  # a re-standardization later supersedes the first release
@@ -57,21 +71,26 @@ def test_a_batch_is_never_in_force_before_release_after_expiry_or_after_withdraw
         assert withdraw is None or day(on) < day(withdraw)
         assert entry.release == max(made, key=lambda r: r.released_on)  # never a superseded release
     else:
-        assert (not made or day(on) > max(made, key=lambda r: r.released_on).expires_on
-                or (withdraw is not None and day(withdraw) <= day(on)))
+        assert (
+            not made
+            or day(on) > max(made, key=lambda r: r.released_on).expires_on
+            or (withdraw is not None and day(withdraw) <= day(on))
+        )
         assert answer.reason.startswith(f"No NaOH batch was in force on {day(on).isoformat()}.")
 
 
 def test_empty_day_says_why_in_plain_words():
     b = record(releases=(rel(2, expires=30),), withdrawn_on=None)
     assert labday.lab_day([b], day(1), day(1), "NaOH").reason == (
-        "No NaOH batch was in force on 2026-03-02. NAOH-2603-01 was not yet standardized (first released 2026-03-03).")
+        "No NaOH batch was in force on 2026-03-02. NAOH-2603-01 was not yet standardized (first released 2026-03-03)."
+    )
     assert labday.lab_day([b], day(31), day(31), "NaOH").detail == "NAOH-2603-01 had expired on 2026-03-31."
     gone = record(releases=(rel(2),), withdrawn_on=day(5))
     assert labday.lab_day([gone], day(6), day(6), "NaOH").detail == "NAOH-2603-01 had been withdrawn on 2026-03-06."
     assert labday.lab_day([gone], day(-5), day(6), "NaOH").detail == "NAOH-2603-01 was prepared later, on 2026-02-28."
     assert labday.lab_day([], day(6), day(6), "HCl").reason == (
-        "No HCl batch was in force on 2026-03-07. None is recorded for HCl.")
+        "No HCl batch was in force on 2026-03-07. None is recorded for HCl."
+    )
 
 
 def test_bench_temperature_value_follows_the_linear_expansion_model():
@@ -92,8 +111,7 @@ def test_prediction_uses_later_rechecks_and_flags_a_day_found_outside_in_hindsig
     # Invented: flat for three weeks, then two re-checks far below. On day 30 nothing showed a trend;
     # read on day 46, the line through all five puts day 30 at about -0.64 %, outside ±0.5 %.
     c0 = 0.1002
-    checks = tuple(CheckFact(day(d), c0 * (1 + e), 5e-5)
-                   for d, e in ((10, -0.0003), (20, -0.0001), (40, -0.0100), (45, -0.0115)))
+    checks = tuple(CheckFact(day(d), c0 * (1 + e), 5e-5) for d, e in ((10, -0.0003), (20, -0.0001), (40, -0.0100), (45, -0.0115)))
     b = record(releases=(rel(0, c0, interval=60),), rechecks=checks)
     then = labday.lab_day([b], day(30), day(30), "NaOH").entries[0]
     later = labday.lab_day([b], day(30), day(46), "NaOH").entries[0]
@@ -196,8 +214,16 @@ def demo_app(tmp_path_factory):
         build_demo(str(path), today=TODAY, password=PASSWORD)
     finally:
         accounts.HASH_METHOD = saved
-    return create_app({"DATABASE": str(path), "SECRET_KEY": "t", "TESTING": True, "LAB_TIMEZONE": "UTC",
-                       "WTF_CSRF_ENABLED": False, "CSV_MAX_ROWS": 50})
+    return create_app(
+        {
+            "DATABASE": str(path),
+            "SECRET_KEY": "t",
+            "TESTING": True,
+            "LAB_TIMEZONE": "UTC",
+            "WTF_CSRF_ENABLED": False,
+            "CSV_MAX_ROWS": 50,
+        }
+    )
 
 
 @pytest.fixture(scope="module")
@@ -218,8 +244,17 @@ def test_api_lists_batches_in_force_with_the_fields_asked_for(client):
     assert body["date"] == "2026-12-01" and body["titrant"] == "NaOH" and body["reason"] is None
     assert [b["batch_id"] for b in body["batches"]] == ["NAOH-2610-01", "NAOH-2611-01"]
     drifting = body["batches"][0]
-    for key in ("batch_id", "molarity", "U", "k", "released_on", "predicted_molarity", "prediction_interval", "flags",
-                "molarity_at_bench"):
+    for key in (
+        "batch_id",
+        "molarity",
+        "U",
+        "k",
+        "released_on",
+        "predicted_molarity",
+        "prediction_interval",
+        "flags",
+        "molarity_at_bench",
+    ):
         assert key in drifting
     assert drifting["U"] == pytest.approx(drifting["k"] * drifting["u"])  # GUM: U = k·u
     assert drifting["molarity_at_bench"] == pytest.approx(drifting["molarity"] * (1 - 2.1e-4 * 3))  # QUAM:2012
@@ -247,17 +282,20 @@ def test_api_empty_day_is_200_with_a_reason(client):
     assert "prepared later" in body["reason"]
 
 
-@pytest.mark.parametrize("query,field", [
-    ("date=2026-02-30&titrant=HCl", "date"),
-    ("date=01/12/2026&titrant=HCl", "date"),
-    ("titrant=HCl", "date"),
-    ("date=2026-12-01&titrant=KCl", "titrant"),
-    ("date=2026-12-01", "titrant"),
-    ("date=2026-12-01&titrant=HCl&bench_temperature_c=41", "bench_temperature_c"),
-    ("date=2026-12-01&titrant=HCl&bench_temperature_c=4.9", "bench_temperature_c"),
-    ("date=2026-12-01&titrant=HCl&bench_temperature_c=23,5", "bench_temperature_c"),
-    ("date=2026-12-01&titrant=HCl&bench_temp=23", "bench_temp"),
-])
+@pytest.mark.parametrize(
+    "query,field",
+    [
+        ("date=2026-02-30&titrant=HCl", "date"),
+        ("date=01/12/2026&titrant=HCl", "date"),
+        ("titrant=HCl", "date"),
+        ("date=2026-12-01&titrant=KCl", "titrant"),
+        ("date=2026-12-01", "titrant"),
+        ("date=2026-12-01&titrant=HCl&bench_temperature_c=41", "bench_temperature_c"),
+        ("date=2026-12-01&titrant=HCl&bench_temperature_c=4.9", "bench_temperature_c"),
+        ("date=2026-12-01&titrant=HCl&bench_temperature_c=23,5", "bench_temperature_c"),
+        ("date=2026-12-01&titrant=HCl&bench_temp=23", "bench_temp"),
+    ],
+)
 def test_api_bad_question_is_422_naming_the_field(client, query, field):
     r = client.get(f"/api/v1/lab-day?{query}")
     assert r.status_code == 422
@@ -320,8 +358,11 @@ def test_class_data_correction_is_recorded_and_downloadable(demo_app):
     conn = dbmod.connect(demo_app.config["DATABASE"])
     try:
         row = dict(conn.execute("SELECT * FROM class_corrections ORDER BY id DESC LIMIT 1").fetchone())
-        release = dict(conn.execute("SELECT r.* FROM releases r JOIN batches b ON b.id = r.batch_id "
-                                    "WHERE b.code = 'H2SO4-2608-01'").fetchone())
+        release = dict(
+            conn.execute(
+                "SELECT r.* FROM releases r JOIN batches b ON b.id = r.batch_id WHERE b.code = 'H2SO4-2608-01'"
+            ).fetchone()
+        )
         event = dict(conn.execute("SELECT * FROM events WHERE action = 'classdata.correct' ORDER BY id DESC").fetchone())
         assert row["release_id"] == release["id"] and row["row_count"] == 2 and row["recorded_by"] == "demo-instructor"
         assert row["molarity_used"] == release["molarity"] and row["lab_day"] == "2026-12-01"
@@ -361,8 +402,7 @@ def test_correction_refuses_a_bad_file_by_line_and_records_nothing(demo_app):
     before = conn.execute("SELECT count(*) FROM class_corrections").fetchone()[0]
     bad = "group,aliquot_ml,titrant_ml,ratio\nbench 1,25,24.6,1:1\nbench 2,25,abc,1:1\n"
     r = _upload(c, sheet=(io.BytesIO(bad.encode()), "bad.csv"))
-    assert r.status_code == 422 and "line 3: titrant_ml: &#39;abc&#39; is not a plain decimal number" in r.get_data(
-        as_text=True)
+    assert r.status_code == 422 and "line 3: titrant_ml: &#39;abc&#39; is not a plain decimal number" in r.get_data(as_text=True)
     too_many = "group,aliquot_ml,titrant_ml,ratio\n" + "g,25,20,1:1\n" * 51
     r = _upload(c, sheet=(io.BytesIO(too_many.encode()), "big.csv"))
     assert r.status_code == 422 and "at most 50 are accepted" in r.get_data(as_text=True)

@@ -32,8 +32,12 @@ from stockroom.web.formatting import molarity as format_molarity
 
 SHIPPED = ("bottle", "carboy-a5", "carboy-half-letter", "sheet-a4-21", "sheet-letter-30")
 # Four invented replicates of about 0.1 mol/L NaOH against KHP: gross, tare (g), initial, final (mL).
-GOOD = [("12.4581", "11.6402", "0.12", "40.21"), ("12.0117", "11.1891", "0.40", "40.73"),
-        ("11.9012", "11.0759", "0.05", "40.50"), ("12.2230", "11.4170", "0.30", "39.82")]
+GOOD = [
+    ("12.4581", "11.6402", "0.12", "40.21"),
+    ("12.0117", "11.1891", "0.40", "40.73"),
+    ("11.9012", "11.0759", "0.05", "40.50"),
+    ("12.2230", "11.4170", "0.30", "39.82"),
+]
 LONG_NAME = "Dr. Maria-Magdalena Lindqvist-Okonkwo van der Berg-Abernathy, senior technician (b)"[:80]
 
 
@@ -42,30 +46,76 @@ def lab_today() -> dt.date:
 
 
 def make_batch(db, reagent, nominal, prepared_by="R. Okafor (invented)", days_ago=3):
-    return records.create_batch(db, {"reagent": reagent, "nominal_molarity": nominal, "volume_l": 20,
-                                     "prepared_on": (lab_today() - dt.timedelta(days=days_ago)).isoformat(),
-                                     "prepared_by": prepared_by}, "setup")
+    return records.create_batch(
+        db,
+        {
+            "reagent": reagent,
+            "nominal_molarity": nominal,
+            "volume_l": 20,
+            "prepared_on": (lab_today() - dt.timedelta(days=days_ago)).isoformat(),
+            "prepared_by": prepared_by,
+        },
+        "setup",
+    )
 
 
 def make_lot(db):
-    return records.create_lot(db, {"substance": "KHP", "assay": 1.0, "assay_expanded_u": 0.0002, "assay_k": 2,
-                                   "supplier": "Invented Chemicals", "supplier_lot": "K-0001",
-                                   "expires_on": (lab_today() + dt.timedelta(days=300)).isoformat(),
-                                   "dried_on": lab_today().isoformat(), "dried_at_c": 120}, "setup")
+    return records.create_lot(
+        db,
+        {
+            "substance": "KHP",
+            "assay": 1.0,
+            "assay_expanded_u": 0.0002,
+            "assay_k": 2,
+            "supplier": "Invented Chemicals",
+            "supplier_lot": "K-0001",
+            "expires_on": (lab_today() + dt.timedelta(days=300)).isoformat(),
+            "dried_on": lab_today().isoformat(),
+            "dried_at_c": 120,
+        },
+        "setup",
+    )
 
 
 def release(db, config, batch, lot, molarity, U, *, days_ago=1, u=None):
     """Record a run on the batch and release it at exactly the given value (mol/L) — a stand-in for any value."""
     on = lab_today() - dt.timedelta(days=days_ago)
-    reps = [{"mass_gross_g": float(g), "mass_tare_g": float(t), "initial_ml": float(i), "final_ml": float(f),
-             "volume_ml": round(float(f) - float(i), 2)} for g, t, i, f in GOOD]
-    meta = {"purpose": "certify", "performed_on": on.isoformat(), "analyst": "R. Okafor", "burette_capacity_ml": 50.0,
-            "endpoint": "phenolphthalein"}
+    reps = [
+        {
+            "mass_gross_g": float(g),
+            "mass_tare_g": float(t),
+            "initial_ml": float(i),
+            "final_ml": float(f),
+            "volume_ml": round(float(f) - float(i), 2),
+        }
+        for g, t, i, f in GOOD
+    ]
+    meta = {
+        "purpose": "certify",
+        "performed_on": on.isoformat(),
+        "analyst": "R. Okafor",
+        "burette_capacity_ml": 50.0,
+        "endpoint": "phenolphthalein",
+    }
     run_id, _ = workflow.record_primary_run(db, config, batch, lot, meta, reps, "setup")
-    return records.decide_run(db, run_id, "accept", "", "setup", release={
-        "molarity": molarity, "u": u if u is not None else U / 2, "U": U, "k": 2.0, "reference_temperature_c": 20.0,
-        "released_on": on.isoformat(), "expires_on": (on + dt.timedelta(days=60)).isoformat(),
-        "recheck_interval_days": 14, "tolerance_rel": 0.005})
+    return records.decide_run(
+        db,
+        run_id,
+        "accept",
+        "",
+        "setup",
+        release={
+            "molarity": molarity,
+            "u": u if u is not None else U / 2,
+            "U": U,
+            "k": 2.0,
+            "reference_temperature_c": 20.0,
+            "released_on": on.isoformat(),
+            "expires_on": (on + dt.timedelta(days=60)).isoformat(),
+            "recheck_interval_days": 14,
+            "tolerance_rel": 0.005,
+        },
+    )
 
 
 @pytest.fixture
@@ -74,8 +124,7 @@ def world(app, database):
     naoh = make_batch(database, "NaOH", 0.1)
     release_id = release(database, app.config, naoh, lot, 0.10214, 0.00020)
     strong = make_batch(database, "NaOH", 1.0)
-    return {"config": app.config, "db": database, "lot": lot, "naoh": naoh, "release_id": release_id,
-            "strong": strong}
+    return {"config": app.config, "db": database, "lot": lot, "naoh": naoh, "release_id": release_id, "strong": strong}
 
 
 def pdf_text(pdf: bytes, page: int = 0) -> str:
@@ -92,8 +141,24 @@ def render_png(pdf: bytes, dpi: int = 300, page: int = 1):
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "l.pdf"
         path.write_bytes(pdf)
-        subprocess.run(["pdftoppm", "-r", str(dpi), "-png", "-f", str(page), "-l", str(page), "-singlefile", str(path),
-                        str(Path(tmp) / "l")], check=True, capture_output=True, timeout=60)
+        subprocess.run(
+            [
+                "pdftoppm",
+                "-r",
+                str(dpi),
+                "-png",
+                "-f",
+                str(page),
+                "-l",
+                str(page),
+                "-singlefile",
+                str(path),
+                str(Path(tmp) / "l"),
+            ],
+            check=True,
+            capture_output=True,
+            timeout=60,
+        )
         return Image.open(Path(tmp) / "l.png").convert("L")
 
 
@@ -108,6 +173,7 @@ def qr_decode(image):
 
 
 # ---------------------------------------------------------------- layouts as data
+
 
 def test_every_shipped_layout_loads_and_fits_its_page():
     found, broken = layouts.load_all()
@@ -136,22 +202,25 @@ def test_a_new_layout_is_a_new_file_only(tmp_path, world):
     assert len(pypdf.PdfReader(io.BytesIO(pdf)).pages) == 2
 
 
-BOTTLE = (Path(__file__).resolve().parents[1] / "labels" / "bottle.toml")
+BOTTLE = Path(__file__).resolve().parents[1] / "labels" / "bottle.toml"
 
 
-@pytest.mark.parametrize(("change", "named"), [
-    (("[grid]\nrows = 1", "[grid]\nrows = 1\ncolums = 2"), "[grid] colums"),
-    (("columns = 1", "columns = 3"), "[grid] columns"),
-    (("box_mm = [77, 2.5, 20, 20]", "box_mm = [85, 2.5, 20, 20]"), "qr: box_mm"),
-    (("box_mm = [77, 2.5, 20, 20]", "box_mm = [77, 2.5, 9, 9]"), "at least 12"),
-    (('text = "{certified}"', 'text = "{certified_value}"'), "unknown placeholder {certified_value}"),
-    (('text = "{certified}"', 'text = "{batch_id}"'), "{certified}"),
-    (("box_mm = [3, 10.5, 72, 5.5]", "box_mm = [3, 2.5, 72, 5.5]"), "overlaps"),
-    (('size = "A4"', 'size = "A3"'), "[page] size"),
-    (("width_mm = 100\nheight_mm = 70\n\n[grid]", "width_mm = 100\nheight_mm = seventy\n\n[grid]"), "not valid TOML"),
-    (('kind = "qr"', 'kind = "barcode"'), "kind: must be one of"),
-    (("size_pt = 17", "size_pt = 2"), "size_pt: must be at least 4"),
-])
+@pytest.mark.parametrize(
+    ("change", "named"),
+    [
+        (("[grid]\nrows = 1", "[grid]\nrows = 1\ncolums = 2"), "[grid] colums"),
+        (("columns = 1", "columns = 3"), "[grid] columns"),
+        (("box_mm = [77, 2.5, 20, 20]", "box_mm = [85, 2.5, 20, 20]"), "qr: box_mm"),
+        (("box_mm = [77, 2.5, 20, 20]", "box_mm = [77, 2.5, 9, 9]"), "at least 12"),
+        (('text = "{certified}"', 'text = "{certified_value}"'), "unknown placeholder {certified_value}"),
+        (('text = "{certified}"', 'text = "{batch_id}"'), "{certified}"),
+        (("box_mm = [3, 10.5, 72, 5.5]", "box_mm = [3, 2.5, 72, 5.5]"), "overlaps"),
+        (('size = "A4"', 'size = "A3"'), "[page] size"),
+        (("width_mm = 100\nheight_mm = 70\n\n[grid]", "width_mm = 100\nheight_mm = seventy\n\n[grid]"), "not valid TOML"),
+        (('kind = "qr"', 'kind = "barcode"'), "kind: must be one of"),
+        (("size_pt = 17", "size_pt = 2"), "size_pt: must be at least 4"),
+    ],
+)
 def test_layout_problems_name_the_key(change, named):
     text = BOTTLE.read_text()
     old, new = change
@@ -171,6 +240,7 @@ def test_an_unknown_layout_name_lists_the_layouts():
 
 
 # ---------------------------------------------------------------- what a label says
+
 
 def test_a_released_batch_label_carries_the_certified_value_dates_and_hazard(world):
     content = label_content(world["db"], world["config"], world["naoh"], lab_today())
@@ -228,6 +298,7 @@ def test_no_classification_means_no_label(world):
 
 # ---------------------------------------------------------------- QR codes
 
+
 def test_the_qr_code_opens_the_batch_page_at_the_configured_address(world):
     config = dict(world["config"], BASE_URL="https://prep.example.org/stockroom/")
     content = label_content(world["db"], config, world["naoh"], lab_today())
@@ -243,8 +314,7 @@ def test_the_qr_code_opens_the_batch_page_at_the_configured_address(world):
     px = dpi / 25.4
     for position in range(1, 31):
         x, y = sheet.origin_mm(position)
-        crop = image.crop((int(x * px), int(y * px), int((x + sheet.label_width) * px),
-                           int((y + sheet.label_height) * px)))
+        crop = image.crop((int(x * px), int(y * px), int((x + sheet.label_width) * px), int((y + sheet.label_height) * px)))
         assert qr_decode(crop) == [url], position
 
 
@@ -256,6 +326,7 @@ def test_the_qr_code_uses_error_correction_m():
 
 
 # ---------------------------------------------------------------- text that fits
+
 
 def _words(text: str) -> list[str]:
     return text.replace(labels.NBSP, " ").split()
@@ -285,8 +356,12 @@ def test_no_field_text_exceeds_its_box_for_long_inputs(world, layout_name):
     db = world["db"]
     # Concentrated HCl carries the most label elements stockroom seeds (three H statements, two pictograms,
     # six P statements); the 30-label sheet is for dilute solutions, so it gets 1 mol/L NaOH (H290, H314).
-    heavy = make_batch(db, "HCl" if layout_name != "sheet-letter-30" else "NaOH",
-                       12.0 if layout_name != "sheet-letter-30" else 1.0, prepared_by=LONG_NAME)
+    heavy = make_batch(
+        db,
+        "HCl" if layout_name != "sheet-letter-30" else "NaOH",
+        12.0 if layout_name != "sheet-letter-30" else 1.0,
+        prepared_by=LONG_NAME,
+    )
     content = with_content(label_content(db, world["config"], heavy, lab_today()), batch_id="BAOH2-2612-01-B2")
     layout = layouts.get(layout_name)
     fits = _assert_fits(content, layout)
@@ -332,6 +407,7 @@ def test_letters_the_standard_fonts_lack_lose_their_accents_not_their_place():
 
 
 # ---------------------------------------------------------------- sheets
+
 
 def _serial_positions(pdf: bytes, page: int = 0) -> dict[str, tuple[float, float]]:
     found: dict[str, tuple[float, float]] = {}
@@ -380,6 +456,7 @@ def test_a_30_label_sheet_builds_in_under_0_3_s(world):
 
 # ---------------------------------------------------------------- printing from the batch page
 
+
 def _count(app, sql, params=()):
     conn = dbmod.connect(app.config["DATABASE"])
     try:
@@ -393,8 +470,12 @@ def test_printing_needs_label_print(app, client, world, signed_in_client, form_t
     assert client.get(url).status_code == 303
     token = form_token(client, "/sign-in")
     assert client.post(url, data={"layout": "bottle", "copies": "1", "csrf_token": token}).status_code == 303
-    assert client.post(url, data={"layout": "bottle", "copies": "1", "csrf_token": token},
-                       headers={"Accept": "application/json"}).status_code == 401
+    assert (
+        client.post(
+            url, data={"layout": "bottle", "copies": "1", "csrf_token": token}, headers={"Accept": "application/json"}
+        ).status_code
+        == 401
+    )
     instructor = signed_in_client("instructor")
     assert instructor.get(url).status_code == 403
     token = form_token(instructor, "/")
@@ -410,8 +491,7 @@ def test_a_print_is_recorded_with_its_serials_and_the_pdf_comes_back(app, world,
     staff = signed_in_client("staff")
     code = world["naoh"]["code"]
     url = f"/batches/{code}/labels"
-    resp = staff.post(url, data={"layout": "sheet-letter-30", "copies": "3", "start": "2",
-                                 "csrf_token": form_token(staff, url)})
+    resp = staff.post(url, data={"layout": "sheet-letter-30", "copies": "3", "start": "2", "csrf_token": form_token(staff, url)})
     assert resp.status_code == 200 and resp.mimetype == "application/pdf"
     assert resp.headers["Content-Disposition"] == f'attachment; filename="labels-{code}-000001.pdf"'
     text = pdf_text(resp.data)
@@ -425,7 +505,9 @@ def test_a_print_is_recorded_with_its_serials_and_the_pdf_comes_back(app, world,
     finally:
         conn.close()
     assert [(r["layout"], r["copies"], r["serial_first"], r["serial_last"]) for r in rows] == [
-        ("sheet-letter-30", 3, 1, 3), ("bottle", 2, 4, 5)]
+        ("sheet-letter-30", 3, 1, 3),
+        ("bottle", 2, 4, 5),
+    ]
     assert {r["value_printed"] for r in rows} == {"0.10214 ± 0.00020 mol/L (k = 2) at 20 °C"}
     assert {r["recorded_by"] for r in rows} == {"staff-user"} and {r["release_id"] for r in rows} == {world["release_id"]}
     assert [e["batch_id"] for e in events] == [world["naoh"]["id"]] * 2
@@ -439,22 +521,30 @@ def test_print_serials_are_unique_across_the_database(world):
     other = make_batch(db, "HCl", 0.1)
     second = labels.record_print(db, other["id"], None, "bottle", 2, "y", "setup")
     assert (second["serial_first"], second["serial_last"]) == (6, 7)
-    base = {"batch_id": other["id"], "release_id": None, "layout": "bottle", "value_printed": "z",
-            "recorded_at": "2026-01-01T00:00:00+00:00", "recorded_by": "someone"}
+    base = {
+        "batch_id": other["id"],
+        "release_id": None,
+        "layout": "bottle",
+        "value_printed": "z",
+        "recorded_at": "2026-01-01T00:00:00+00:00",
+        "recorded_by": "someone",
+    }
     for first, last, copies in ((7, 8, 2), (3, 3, 1), (8, 9, 3)):  # overlapping, inside, or copies not matching
         with pytest.raises(sqlite3.IntegrityError):
             db["label_prints"].insert(dict(base, serial_first=first, serial_last=last, copies=copies))
 
 
-@pytest.mark.parametrize(("form", "field", "words"), [
-    ({"layout": "carboy-a4", "copies": "1"}, "layout", "must be one of"),
-    ({"layout": "bottle", "copies": "0"}, "copies", "between 1 and 200"),
-    ({"layout": "bottle", "copies": "201"}, "copies", "between 1 and 200"),
-    ({"layout": "bottle", "copies": "two"}, "copies", "whole number"),
-    ({"layout": "sheet-letter-30", "copies": "1", "start": "31"}, "start", "between 1 and 30"),
-])
-def test_a_bad_print_form_is_answered_422_beside_the_field(app, world, signed_in_client, form_token, form, field,
-                                                            words):
+@pytest.mark.parametrize(
+    ("form", "field", "words"),
+    [
+        ({"layout": "carboy-a4", "copies": "1"}, "layout", "must be one of"),
+        ({"layout": "bottle", "copies": "0"}, "copies", "between 1 and 200"),
+        ({"layout": "bottle", "copies": "201"}, "copies", "between 1 and 200"),
+        ({"layout": "bottle", "copies": "two"}, "copies", "whole number"),
+        ({"layout": "sheet-letter-30", "copies": "1", "start": "31"}, "start", "between 1 and 30"),
+    ],
+)
+def test_a_bad_print_form_is_answered_422_beside_the_field(app, world, signed_in_client, form_token, form, field, words):
     staff = signed_in_client("staff")
     url = f"/batches/{world['naoh']['code']}/labels"
     resp = staff.post(url, data=dict(form, csrf_token=form_token(staff, url)))
@@ -464,8 +554,7 @@ def test_a_bad_print_form_is_answered_422_beside_the_field(app, world, signed_in
     assert _count(app, "SELECT count(*) FROM label_prints") == 0
 
 
-def test_a_layout_too_small_for_the_hazard_text_is_422_and_nothing_is_recorded(app, world, signed_in_client,
-                                                                               form_token):
+def test_a_layout_too_small_for_the_hazard_text_is_422_and_nothing_is_recorded(app, world, signed_in_client, form_token):
     batch = make_batch(world["db"], "HCl", 5.0)
     staff = signed_in_client("staff")
     url = f"/batches/{batch['code']}/labels"
@@ -485,8 +574,7 @@ def test_no_classification_no_print(app, world, signed_in_client, form_token):
     assert _count(app, "SELECT count(*) FROM label_prints") == 0
 
 
-def test_after_a_superseding_release_the_batch_page_warns_and_offers_the_reprint(app, world, signed_in_client,
-                                                                                 form_token):
+def test_after_a_superseding_release_the_batch_page_warns_and_offers_the_reprint(app, world, signed_in_client, form_token):
     staff = signed_in_client("staff")
     code = world["naoh"]["code"]
     url = f"/batches/{code}/labels"
@@ -507,17 +595,34 @@ def test_after_a_superseding_release_the_batch_page_warns_and_offers_the_reprint
 
 # ---------------------------------------------------------------- command line
 
+
 def test_cli_prints_labels_and_records_the_print(app, world, tmp_path):
     from stockroom.cli import main
 
     out = tmp_path / "labels.pdf"
-    result = CliRunner().invoke(main, ["labels", world["naoh"]["code"], "--layout", "sheet-a4-21", "--copies", "2",
-                                       "--start", "21", "--db", app.config["DATABASE"], "--out", str(out)])
+    result = CliRunner().invoke(
+        main,
+        [
+            "labels",
+            world["naoh"]["code"],
+            "--layout",
+            "sheet-a4-21",
+            "--copies",
+            "2",
+            "--start",
+            "21",
+            "--db",
+            app.config["DATABASE"],
+            "--out",
+            str(out),
+        ],
+    )
     assert result.exit_code == 0, result.output
     assert "serials 000001-000002" in result.output
     assert "No. 000001" in pdf_text(out.read_bytes()) and "No. 000002" in pdf_text(out.read_bytes(), 1)
     actor = _count(app, "SELECT recorded_by FROM label_prints")
     assert actor.startswith("cli")
-    bad = CliRunner().invoke(main, ["labels", world["naoh"]["code"], "--layout", "nope", "--db",
-                                    app.config["DATABASE"], "--out", str(out)])
+    bad = CliRunner().invoke(
+        main, ["labels", world["naoh"]["code"], "--layout", "nope", "--db", app.config["DATABASE"], "--out", str(out)]
+    )
     assert bad.exit_code == 1 and "there is no such layout" in bad.output

@@ -27,9 +27,19 @@ def days(n: int) -> str:
 
 
 def good_lot(**changes):
-    form = {"substance": "KHP", "supplier": "Invented Reagents Ltd", "supplier_lot": "IR-KHP-7781 (invented)",
-            "assay_pct": "99.98", "assay_u_pct": "0.02", "assay_k": "2", "expires_on": days(400),
-            "received_on": days(-20), "dried_on": days(-2), "dried_at_c": "120", "storage_note": ""}
+    form = {
+        "substance": "KHP",
+        "supplier": "Invented Reagents Ltd",
+        "supplier_lot": "IR-KHP-7781 (invented)",
+        "assay_pct": "99.98",
+        "assay_u_pct": "0.02",
+        "assay_k": "2",
+        "expires_on": days(400),
+        "received_on": days(-20),
+        "dried_on": days(-2),
+        "dried_at_c": "120",
+        "storage_note": "",
+    }
     form.update(changes)
     return form
 
@@ -88,8 +98,13 @@ def test_borax_dried_at_105_is_refused_with_the_reason(app, staff, form_token):
 
 
 def test_borax_kept_at_constant_humidity_is_registered_without_a_warning(app, staff, form_token):
-    resp = post(staff, form_token, good_lot(substance="borax", dried_on="", dried_at_c="",
-                                            storage_note="constant-humidity jar over saturated NaCl and sucrose"))
+    resp = post(
+        staff,
+        form_token,
+        good_lot(
+            substance="borax", dried_on="", dried_at_c="", storage_note="constant-humidity jar over saturated NaCl and sucrose"
+        ),
+    )
     assert resp.status_code == 303
     page = staff.get(resp.headers["Location"]).get_data(as_text=True)
     assert "notice-warning" not in page and "not oven-dried" in page
@@ -112,25 +127,27 @@ def test_khp_without_a_drying_record_is_registered_with_a_warning(app, staff, fo
     assert count(app, "standard_lots") == 1
 
 
-@pytest.mark.parametrize(("changes", "field", "message"), [
-    ({"assay_pct": "0.9998"}, "assay_pct", "is in percent: 0.9998 looks like a mass fraction; for 99.98 % type 99.98"),
-    ({"assay_pct": "85"}, "assay_pct", "must be greater than 90 % and at most 100.01 %"),
-    ({"assay_pct": "100.5"}, "assay_pct", "must be greater than 90 % and at most 100.01 %"),
-    ({"assay_pct": "99,98"}, "assay_pct", "use a point, not a comma, for the decimal sign: write 99.98"),
-    ({"assay_u_pct": "abc"}, "assay_u_pct", "must be a plain decimal number"),
-    ({"assay_u_pct": "-0.1"}, "assay_u_pct", "must be between 0 and 2 % w/w"),
-    ({"assay_k": "0"}, "assay_k", "must be between 1 and 5"),
-    ({"expires_on": "31/12/2027"}, "expires_on", "is not a date; write it as YYYY-MM-DD"),
-    ({"substance": "table salt"}, "substance", "is not a primary standard stockroom knows"),
-    ({"supplier_lot": ""}, "supplier_lot", "is required"),
-    ({"dried_on": ""}, "dried_on", "give the date it was dried with the temperature"),
-    ({"dried_at_c": ""}, "dried_at_c", "give the oven temperature with the date it was dried"),
-    ({"dried_on": "", "dried_at_c": ""}, "storage_note", "record either the drying (date and temperature) or how"),
-    ({"dried_on": days(1)}, "dried_on", f"cannot be later than {today().isoformat()}"),
-    ({"received_on": days(-1), "dried_on": days(-3)}, "dried_on", f"cannot be earlier than {days(-1)}"),
-])
-def test_bad_lot_input_is_shown_beside_the_field_and_nothing_is_stored(app, staff, form_token, changes, field,
-                                                                       message):
+@pytest.mark.parametrize(
+    ("changes", "field", "message"),
+    [
+        ({"assay_pct": "0.9998"}, "assay_pct", "is in percent: 0.9998 looks like a mass fraction; for 99.98 % type 99.98"),
+        ({"assay_pct": "85"}, "assay_pct", "must be greater than 90 % and at most 100.01 %"),
+        ({"assay_pct": "100.5"}, "assay_pct", "must be greater than 90 % and at most 100.01 %"),
+        ({"assay_pct": "99,98"}, "assay_pct", "use a point, not a comma, for the decimal sign: write 99.98"),
+        ({"assay_u_pct": "abc"}, "assay_u_pct", "must be a plain decimal number"),
+        ({"assay_u_pct": "-0.1"}, "assay_u_pct", "must be between 0 and 2 % w/w"),
+        ({"assay_k": "0"}, "assay_k", "must be between 1 and 5"),
+        ({"expires_on": "31/12/2027"}, "expires_on", "is not a date; write it as YYYY-MM-DD"),
+        ({"substance": "table salt"}, "substance", "is not a primary standard stockroom knows"),
+        ({"supplier_lot": ""}, "supplier_lot", "is required"),
+        ({"dried_on": ""}, "dried_on", "give the date it was dried with the temperature"),
+        ({"dried_at_c": ""}, "dried_at_c", "give the oven temperature with the date it was dried"),
+        ({"dried_on": "", "dried_at_c": ""}, "storage_note", "record either the drying (date and temperature) or how"),
+        ({"dried_on": days(1)}, "dried_on", f"cannot be later than {today().isoformat()}"),
+        ({"received_on": days(-1), "dried_on": days(-3)}, "dried_on", f"cannot be earlier than {days(-1)}"),
+    ],
+)
+def test_bad_lot_input_is_shown_beside_the_field_and_nothing_is_stored(app, staff, form_token, changes, field, message):
     before = count(app, "events")
     resp = post(staff, form_token, good_lot(**changes))
     assert resp.status_code == 422
@@ -151,8 +168,15 @@ def test_anonymous_post_goes_to_sign_in_and_instructor_is_refused(app, client, s
 
 
 def _lot(conn, substance, expires_on, **extra):
-    values = {"substance": substance, "supplier": "Invented Supplies", "supplier_lot": "X-1 (invented)",
-              "assay": 0.9995, "assay_expanded_u": 0.0005, "assay_k": 2, "expires_on": expires_on}
+    values = {
+        "substance": substance,
+        "supplier": "Invented Supplies",
+        "supplier_lot": "X-1 (invented)",
+        "assay": 0.9995,
+        "assay_expanded_u": 0.0005,
+        "assay_k": 2,
+        "expires_on": expires_on,
+    }
     values.update(extra)
     return records.create_lot(conn, values, "setup")
 
@@ -167,8 +191,10 @@ def test_list_shows_in_date_and_expired_lots_with_their_drying(app, client):
     finally:
         conn.close()
     html = unescape(client.get("/lots/").get_data(as_text=True))  # a read: open to anyone on the lab network
-    rows = {m.group(1): m.group(2) for m in re.finditer(r'<tr class="lot-\w+">\s*<td[^>]*><a[^>]*>([^<]+)</a></td>(.*?)</tr>',
-                                                          html, re.S)}
+    rows = {
+        m.group(1): m.group(2)
+        for m in re.finditer(r'<tr class="lot-\w+">\s*<td[^>]*><a[^>]*>([^<]+)</a></td>(.*?)</tr>', html, re.S)
+    }
     assert set(rows) == {old["code"], last_day["code"], fresh["code"], bare["code"]}
     assert "expired 1 day ago" in rows[old["code"]]
     # A lot is usable through its expiry date (workflow.check_lot_usable refuses it from the day after).

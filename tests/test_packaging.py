@@ -16,8 +16,12 @@ ROOT = Path(__file__).resolve().parents[1]
 def test_wheel_contains_templates_labels_demo_data_and_static(tmp_path):
     if not (ROOT / "pyproject.toml").is_file():
         pytest.skip("not running from a source checkout")
-    subprocess.run([sys.executable, "-m", "pip", "wheel", "--no-deps", "-q", "-w", str(tmp_path), str(ROOT)],
-                   check=True, capture_output=True, timeout=300)
+    subprocess.run(
+        [sys.executable, "-m", "pip", "wheel", "--no-deps", "-q", "-w", str(tmp_path), str(ROOT)],
+        check=True,
+        capture_output=True,
+        timeout=300,
+    )
     wheel = next(tmp_path.glob("stockroom-*.whl"))
     names = set(zipfile.ZipFile(wheel).namelist())
     for template in (ROOT / "templates").rglob("*.html"):

@@ -25,10 +25,20 @@ def day(n: int) -> dt.date:
     return D0 + dt.timedelta(days=n)
 
 
-def release(n: int, molarity: float = 0.1002, rid: int = 1, expires: int = 90, interval: int = 14,
-            tol: float = 0.005) -> ReleaseFact:
-    return ReleaseFact(id=rid, released_on=day(n), expires_on=day(expires), molarity=molarity, u=0.00005,
-                       U=0.0001, k=2.0, recheck_interval_days=interval, tolerance_rel=tol)
+def release(
+    n: int, molarity: float = 0.1002, rid: int = 1, expires: int = 90, interval: int = 14, tol: float = 0.005
+) -> ReleaseFact:
+    return ReleaseFact(
+        id=rid,
+        released_on=day(n),
+        expires_on=day(expires),
+        molarity=molarity,
+        u=0.00005,
+        U=0.0001,
+        k=2.0,
+        recheck_interval_days=interval,
+        tolerance_rel=tol,
+    )
 
 
 def test_awaiting_until_first_release():
@@ -39,8 +49,7 @@ def test_awaiting_until_first_release():
 
 
 def test_recheck_due_after_interval_counted_from_last_check():
-    facts = BatchFacts(prepared_on=day(0), releases=(release(1, interval=14),),
-                       rechecks=(CheckFact(day(10), 0.1001, 0.00005),))
+    facts = BatchFacts(prepared_on=day(0), releases=(release(1, interval=14),), rechecks=(CheckFact(day(10), 0.1001, 0.00005),))
     assert status_on(facts, day(14)).status is Status.IN_SERVICE  # last check day 10, due day 24
     report = status_on(facts, day(24))
     assert report.status is Status.RECHECK_DUE and report.next_check_due == day(24)
@@ -89,8 +98,11 @@ days = st.integers(min_value=-50, max_value=200)
 
 @given(rel=days, exp_after=st.integers(1, 150), withdraw=st.one_of(st.none(), days), on=days)
 def test_never_in_force_before_release_after_expiry_or_after_withdrawal(rel, exp_after, withdraw, on):
-    facts = BatchFacts(prepared_on=day(-60), releases=(release(rel, expires=rel + exp_after),),
-                       withdrawn_on=day(withdraw) if withdraw is not None else None)
+    facts = BatchFacts(
+        prepared_on=day(-60),
+        releases=(release(rel, expires=rel + exp_after),),
+        withdrawn_on=day(withdraw) if withdraw is not None else None,
+    )
     in_force = release_in_force(facts, day(on))
     if on < rel or on > rel + exp_after or (withdraw is not None and withdraw <= on):
         assert in_force is None
@@ -100,8 +112,9 @@ def test_never_in_force_before_release_after_expiry_or_after_withdrawal(rel, exp
 
 @given(offset=st.floats(-0.0049, 0.0049), check_day=st.integers(2, 13))
 def test_a_recheck_inside_the_band_never_flags(offset, check_day):
-    facts = BatchFacts(prepared_on=day(0), releases=(release(1),),
-                       rechecks=(CheckFact(day(check_day), 0.1002 * (1 + offset), 5e-5),))
+    facts = BatchFacts(
+        prepared_on=day(0), releases=(release(1),), rechecks=(CheckFact(day(check_day), 0.1002 * (1 + offset), 5e-5),)
+    )
     assert status_on(facts, day(check_day)).status is Status.IN_SERVICE
 
 
@@ -113,8 +126,11 @@ from stockroom.drift import FlagKind  # noqa: E402
 def drifting_facts(rel_per_day: float = -1.2e-4, days=(7, 14), expires: int = 90, interval: int = 14) -> BatchFacts:
     """A release on day 0 and re-checks lying exactly on 0.1002·(1 + rel_per_day·t) (invented)."""
     c0 = 0.1002
-    return BatchFacts(prepared_on=day(-1), releases=(release(0, c0, expires=expires, interval=interval),),
-                      rechecks=tuple(CheckFact(day(d), c0 * (1 + rel_per_day * d), 5e-5) for d in days))
+    return BatchFacts(
+        prepared_on=day(-1),
+        releases=(release(0, c0, expires=expires, interval=interval),),
+        rechecks=tuple(CheckFact(day(d), c0 * (1 + rel_per_day * d), 5e-5) for d in days),
+    )
 
 
 def test_forecast_is_shown_but_does_not_change_the_status_before_its_date():
@@ -137,9 +153,11 @@ def test_predicted_value_outside_the_band_makes_it_drifting_once_that_day_comes(
 
 
 def test_a_recheck_outside_keeps_its_own_reason_first():
-    facts = BatchFacts(prepared_on=day(0), releases=(release(1),),
-                       rechecks=(CheckFact(day(5), 0.1001, 5e-5), CheckFact(day(9), 0.1000, 5e-5),
-                                 CheckFact(day(13), 0.09960, 5e-5)))
+    facts = BatchFacts(
+        prepared_on=day(0),
+        releases=(release(1),),
+        rechecks=(CheckFact(day(5), 0.1001, 5e-5), CheckFact(day(9), 0.1000, 5e-5), CheckFact(day(13), 0.09960, 5e-5)),
+    )
     report = status_on(facts, day(13))
     assert report.status is Status.DRIFTING
     assert report.reasons[0].startswith("re-check on 2026-03-14 differs")
@@ -165,8 +183,9 @@ def test_adding_a_recheck_inside_the_band_never_raises_a_flag_that_day(history, 
     c0 = 0.1002
     before = tuple(CheckFact(day(d), c0 * (1 + e), 5e-5) for d, e in history if d < new_day)
     base = BatchFacts(prepared_on=day(0), releases=(release(0, c0, expires=90),), rechecks=before)
-    added = BatchFacts(prepared_on=day(0), releases=base.releases,
-                       rechecks=before + (CheckFact(day(new_day), c0 * (1 + new_offset), 5e-5),))
+    added = BatchFacts(
+        prepared_on=day(0), releases=base.releases, rechecks=before + (CheckFact(day(new_day), c0 * (1 + new_offset), 5e-5),)
+    )
     old, new = status_on(base, day(new_day)), status_on(added, day(new_day))
     raised = {f.kind for f in new.flags} - {f.kind for f in old.flags}
     assert raised <= {FlagKind.EXPECTED_TO_LEAVE}

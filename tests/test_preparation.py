@@ -289,8 +289,7 @@ def test_weak_batch_gets_concentrate_worked_example():
     assert plan.concentrate_to_add_ml == pytest.approx(1000 * 20 * 0.0015 / 18.9, rel=1e-9)
     assert plan.water_to_add_l == 0.0
     # The same concentrate given by assay and density (19.0015 mol/L) gives nearly the same volume.
-    by_comp = prep.adjustment_plan("NaOH", 0.0985, 0.1000, 20.0, concentrate_assay_w_w=0.50,
-                                   concentrate_density_g_ml=1.52)
+    by_comp = prep.adjustment_plan("NaOH", 0.0985, 0.1000, 20.0, concentrate_assay_w_w=0.50, concentrate_density_g_ml=1.52)
     assert by_comp.concentrate_molarity_mol_l == pytest.approx(1000 * 1.52 * 0.50 / M_NAOH, rel=1e-12)
     assert by_comp.concentrate_to_add_ml == pytest.approx(plan.concentrate_to_add_ml, rel=1e-3)
     assert "clear liquid" in " ".join(by_comp.instructions)  # AOAC Official Methods, Appendix A
@@ -381,8 +380,7 @@ def test_far_off_batch_gets_a_check_the_standardization_note():
         # Composition half given.
         (dict(concentrate_molarity_mol_l=None, concentrate_assay_w_w=0.37), "concentrate_density_g_ml"),
         (dict(concentrate_molarity_mol_l=None, concentrate_density_g_ml=1.19), "concentrate_assay_w_w"),
-        (dict(concentrate_molarity_mol_l=None, concentrate_assay_w_w=37, concentrate_density_g_ml=1.19),
-         "concentrate_assay_w_w"),
+        (dict(concentrate_molarity_mol_l=None, concentrate_assay_w_w=37, concentrate_density_g_ml=1.19), "concentrate_assay_w_w"),
         # Already fuller than the container, or would overflow it.
         (dict(container_capacity_l=19.0), "current_volume_l"),
         (dict(container_capacity_l=20.0001), "current_volume_l"),
@@ -390,8 +388,13 @@ def test_far_off_batch_gets_a_check_the_standardization_note():
 )
 def test_adjustment_refuses_impossible_cases(kwargs, field):
     # Base case: 20 L at 0.095 mol/L HCl, target 0.1, with 12.08 mol/L concentrate (needs 8.7 mL).
-    args = dict(reagent="HCl", measured_molarity_mol_l=0.095, target_molarity_mol_l=0.1, current_volume_l=20.0,
-                concentrate_molarity_mol_l=12.08)
+    args = dict(
+        reagent="HCl",
+        measured_molarity_mol_l=0.095,
+        target_molarity_mol_l=0.1,
+        current_volume_l=20.0,
+        concentrate_molarity_mol_l=12.08,
+    )
     args.update(kwargs)
     with pytest.raises(InvalidInput) as exc:
         prep.adjustment_plan(**args)
@@ -411,8 +414,17 @@ def test_water_addition_refused_when_it_would_overflow():
 # ---------------------------------------------------------------------------------------------------------
 # Cautions, in every plan
 
-REQUIRED_CAUTIONS = ("acid to water", "chemical hygiene plan", "fume hood", "face shield", "gloves", "lab coat",
-                     "exothermic", "safety data sheet", "local regulations")
+REQUIRED_CAUTIONS = (
+    "acid to water",
+    "chemical hygiene plan",
+    "fume hood",
+    "face shield",
+    "gloves",
+    "lab coat",
+    "exothermic",
+    "safety data sheet",
+    "local regulations",
+)
 
 
 def _every_plan():

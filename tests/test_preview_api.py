@@ -54,10 +54,19 @@ def test_quam_a2_through_the_api(client):
     # u(m) 0.00013 g, u(V) 0.013 mL, repeatability 0.0005, P 1.0 ± 0.0005 rectangular and
     # M = 204.2212 ± 0.0038 g/mol (older atomic weights) → c = 0.10214, u = 0.00010 mol/L,
     # relative 0.00097.
-    body = {"titrant": "NaOH", "standard": "KHP", "purity": 1.0, "purity_tolerance": 0.0005,
-            "molar_mass_g_mol": 204.2212, "u_molar_mass_g_mol": 0.0038, "buoyancy": False,
-            "u_mass_g": 0.00013, "u_volume_ml": 0.013, "u_repeatability_rel": 0.0005,
-            "replicates": [{"mass_g": 0.3888, "volume_ml": 18.64}]}
+    body = {
+        "titrant": "NaOH",
+        "standard": "KHP",
+        "purity": 1.0,
+        "purity_tolerance": 0.0005,
+        "molar_mass_g_mol": 204.2212,
+        "u_molar_mass_g_mol": 0.0038,
+        "buoyancy": False,
+        "u_mass_g": 0.00013,
+        "u_volume_ml": 0.013,
+        "u_repeatability_rel": 0.0005,
+        "replicates": [{"mass_g": 0.3888, "volume_ml": 18.64}],
+    }
     r = post(client, body)
     assert r.status_code == 200, r.get_json()
     j = r.get_json()
@@ -81,20 +90,30 @@ def test_quam_a3_through_the_api(client):
     # QUAM:2012 A3: 15 mL HCl aliquots titrated with 14.89 mL of the A2 NaOH → 0.10139 mol/L.
     # u ≈ 0.00018 mol/L with the reference's u (A3's ±4 °C treatment gives 0.000107 mol/L) and
     # this run's own repeatability √(0.001² − 0.0005²); pipette ±0.02 mL, burette ±0.03 mL, ±4 °C.
-    app = create_app({"DATABASE": client.application.config["DATABASE"], "TESTING": True,
-                      "PIPETTE_TOLERANCE_ML": 0.02, "BURETTE_TOLERANCE_ML": 0.03,
-                      "LAB_TEMPERATURE_HALF_RANGE_K": 4.0, "MONTE_CARLO_DRAWS": 20_000})
-    body = {"titrant": "HCl", "reference": {"molarity": 0.1021362, "u": 0.0001071, "titrant": "NaOH"},
-            "u_repeatability_rel": math.sqrt(0.001**2 - 0.0005**2), "burette_capacity_ml": 25,
-            "replicates": [{"aliquot_ml": 15, "volume_ml": 14.89}]}
+    app = create_app(
+        {
+            "DATABASE": client.application.config["DATABASE"],
+            "TESTING": True,
+            "PIPETTE_TOLERANCE_ML": 0.02,
+            "BURETTE_TOLERANCE_ML": 0.03,
+            "LAB_TEMPERATURE_HALF_RANGE_K": 4.0,
+            "MONTE_CARLO_DRAWS": 20_000,
+        }
+    )
+    body = {
+        "titrant": "HCl",
+        "reference": {"molarity": 0.1021362, "u": 0.0001071, "titrant": "NaOH"},
+        "u_repeatability_rel": math.sqrt(0.001**2 - 0.0005**2),
+        "burette_capacity_ml": 25,
+        "replicates": [{"aliquot_ml": 15, "volume_ml": 14.89}],
+    }
     r = post(app.test_client(), body)
     assert r.status_code == 200, r.get_json()
     j = r.get_json()
     assert round(j["molarity"], 5) == 0.10139
     assert round(j["u"], 5) == 0.00018
     assert j["reference"]["nu"] == 1.0
-    assert {b["source"] for b in j["budget"]} == {"reference molarity", "titre volume", "aliquot volume",
-                                                  "repeatability"}
+    assert {b["source"] for b in j["budget"]} == {"reference molarity", "titre volume", "aliquot volume", "repeatability"}
 
 
 def test_good_request_numbers(client):
@@ -198,8 +217,7 @@ BAD_CASES = [
 ]
 
 
-@pytest.mark.parametrize(("path", "value", "field", "words"), BAD_CASES,
-                         ids=[f"{c[2]}={c[1]!r}"[:60] for c in BAD_CASES])
+@pytest.mark.parametrize(("path", "value", "field", "words"), BAD_CASES, ids=[f"{c[2]}={c[1]!r}"[:60] for c in BAD_CASES])
 def test_bad_input_is_422_naming_the_field(client, path, value, field, words):
     r = post(client, _mutate(path, value))
     assert r.status_code == 422, r.get_json()
@@ -238,13 +256,20 @@ def test_at_most_50_replicates(client):
 
 
 def test_secondary_errors(client):
-    base = {"titrant": "HCl", "reference": {"molarity": 0.1, "u": 0.0001, "titrant": "NaOH"},
-            "replicates": [{"aliquot_ml": 25, "volume_ml": 24.9}]}
+    base = {
+        "titrant": "HCl",
+        "reference": {"molarity": 0.1, "u": 0.0001, "titrant": "NaOH"},
+        "replicates": [{"aliquot_ml": 25, "volume_ml": 24.9}],
+    }
     assert post(client, base).status_code == 200
     # The reference titrant may be named by the top-level `standard` instead (H2SO4 against NaOH:
     # ν = 1/2 from the equivalents, chemistry.stoichiometric_factor).
-    other = {"titrant": "H2SO4", "standard": "NaOH", "reference": {"molarity": 0.1, "u": 0.0001},
-             "replicates": [{"aliquot_ml": 25, "volume_ml": 24.9}]}
+    other = {
+        "titrant": "H2SO4",
+        "standard": "NaOH",
+        "reference": {"molarity": 0.1, "u": 0.0001},
+        "replicates": [{"aliquot_ml": 25, "volume_ml": 24.9}],
+    }
     j = post(client, other).get_json()
     assert j["reference"]["nu"] == 0.5
     assert j["molarity"] == pytest.approx(0.1 * 0.5 * 24.9 / 25, rel=1e-12)
@@ -268,9 +293,16 @@ def test_secondary_errors(client):
 
 @pytest.mark.parametrize(
     ("data", "content_type", "status"),
-    [("not json", "application/json", 400), ("not json", "text/plain", 400), ("", "application/json", 400),
-     ("[1, 2]", "application/json", 422), ('"text"', "application/json", 422), ("3", "application/json", 422),
-     ("[" * 50_000 + "]" * 50_000, "application/json", 400), (b"\xff\xfe", "application/json", 400)],
+    [
+        ("not json", "application/json", 400),
+        ("not json", "text/plain", 400),
+        ("", "application/json", 400),
+        ("[1, 2]", "application/json", 422),
+        ('"text"', "application/json", 422),
+        ("3", "application/json", 422),
+        ("[" * 50_000 + "]" * 50_000, "application/json", 400),
+        (b"\xff\xfe", "application/json", 400),
+    ],
 )
 def test_body_that_is_not_an_object(client, data, content_type, status):
     r = client.post(URL, data=data, content_type=content_type)
@@ -284,19 +316,54 @@ def fuzz_client(tmp_path_factory):
     return create_app({"DATABASE": str(path), "TESTING": True, "MONTE_CARLO_DRAWS": 1_000}).test_client()
 
 
-_scalar = st.one_of(st.none(), st.booleans(), st.integers(-10**6, 10**6), st.floats(allow_nan=True),
-                    st.text(max_size=8), st.sampled_from(["0,5", "1e3", "NaN", "KHP", "NaOH", "-0", ""]))
-_values = st.recursive(_scalar, lambda inner: st.lists(inner, max_size=3)
-                       | st.dictionaries(st.text(max_size=6), inner, max_size=3), max_leaves=6)
-_keys = st.sampled_from(["titrant", "standard", "purity", "u_purity", "replicates", "buoyancy", "reference",
-                         "exclusions", "nominal_molarity", "u_volume_ml", "purity_U", "purity_k"])
+_scalar = st.one_of(
+    st.none(),
+    st.booleans(),
+    st.integers(-(10**6), 10**6),
+    st.floats(allow_nan=True),
+    st.text(max_size=8),
+    st.sampled_from(["0,5", "1e3", "NaN", "KHP", "NaOH", "-0", ""]),
+)
+_values = st.recursive(
+    _scalar, lambda inner: st.lists(inner, max_size=3) | st.dictionaries(st.text(max_size=6), inner, max_size=3), max_leaves=6
+)
+_keys = st.sampled_from(
+    [
+        "titrant",
+        "standard",
+        "purity",
+        "u_purity",
+        "replicates",
+        "buoyancy",
+        "reference",
+        "exclusions",
+        "nominal_molarity",
+        "u_volume_ml",
+        "purity_U",
+        "purity_k",
+    ]
+)
 
 
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.dictionaries(_keys, _values, max_size=6), st.lists(
-    st.fixed_dictionaries({}, optional={"mass_g": _scalar, "volume_ml": _scalar, "blank_ml": _scalar,
-                                        "aliquot_ml": _scalar, "gross_g": _scalar, "tare_g": _scalar,
-                                        "temperature_c": _scalar}), max_size=4))
+@given(
+    st.dictionaries(_keys, _values, max_size=6),
+    st.lists(
+        st.fixed_dictionaries(
+            {},
+            optional={
+                "mass_g": _scalar,
+                "volume_ml": _scalar,
+                "blank_ml": _scalar,
+                "aliquot_ml": _scalar,
+                "gross_g": _scalar,
+                "tare_g": _scalar,
+                "temperature_c": _scalar,
+            },
+        ),
+        max_size=4,
+    ),
+)
 def test_never_a_500(fuzz_client, body, replicates):
     body = copy.deepcopy(body)
     if replicates and "replicates" not in body:

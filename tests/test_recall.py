@@ -18,9 +18,11 @@ from stockroom.policy import status_on
 
 TODAY = dt.date.today()
 # Invented replicates: about 0.1 mol/L NaOH against KHP (gross g, tare g, initial mL, final mL) ...
-PRIMARY = [{"mass_gross_g": 12.4581, "mass_tare_g": 11.6402, "initial_ml": 0.12, "final_ml": 40.21, "volume_ml": 40.09},
-           {"mass_gross_g": 12.0117, "mass_tare_g": 11.1891, "initial_ml": 0.40, "final_ml": 40.73, "volume_ml": 40.33},
-           {"mass_gross_g": 11.9012, "mass_tare_g": 11.0759, "initial_ml": 0.05, "final_ml": 40.50, "volume_ml": 40.45}]
+PRIMARY = [
+    {"mass_gross_g": 12.4581, "mass_tare_g": 11.6402, "initial_ml": 0.12, "final_ml": 40.21, "volume_ml": 40.09},
+    {"mass_gross_g": 12.0117, "mass_tare_g": 11.1891, "initial_ml": 0.40, "final_ml": 40.73, "volume_ml": 40.33},
+    {"mass_gross_g": 11.9012, "mass_tare_g": 11.0759, "initial_ml": 0.05, "final_ml": 40.50, "volume_ml": 40.45},
+]
 # ... and 25 mL aliquots of the new batch titrated with the reference (secondary), titres in mL.
 SECONDARY = [{"aliquot_ml": 25.0, "volume_ml": v} for v in (24.95, 24.97, 24.96)]
 
@@ -42,12 +44,33 @@ class World:
 
     def __init__(self, app, conn):
         self.app, self.conn = app, conn
-        self.lot = records.create_lot(conn, {"substance": "KHP", "assay": 1.0, "assay_expanded_u": 0.0002, "assay_k": 2,
-                                             "expires_on": iso(300), "dried_on": iso(-70), "dried_at_c": 120,
-                                             "supplier_lot": "INV-1 (invented)"}, "setup")
-        self.lot2 = records.create_lot(conn, {"substance": "KHP", "assay": 1.0, "assay_expanded_u": 0.0002,
-                                              "assay_k": 2, "expires_on": iso(300), "dried_on": iso(-70),
-                                              "dried_at_c": 120}, "setup")
+        self.lot = records.create_lot(
+            conn,
+            {
+                "substance": "KHP",
+                "assay": 1.0,
+                "assay_expanded_u": 0.0002,
+                "assay_k": 2,
+                "expires_on": iso(300),
+                "dried_on": iso(-70),
+                "dried_at_c": 120,
+                "supplier_lot": "INV-1 (invented)",
+            },
+            "setup",
+        )
+        self.lot2 = records.create_lot(
+            conn,
+            {
+                "substance": "KHP",
+                "assay": 1.0,
+                "assay_expanded_u": 0.0002,
+                "assay_k": 2,
+                "expires_on": iso(300),
+                "dried_on": iso(-70),
+                "dried_at_c": 120,
+            },
+            "setup",
+        )
         self.batches = {}
         self.releases = {}
         self.primary("A", "NaOH", prepared=-60, on=-50, lot=self.lot)
@@ -59,9 +82,18 @@ class World:
 
     def batch(self, key, reagent, prepared):
         nominal = 0.1
-        b = records.create_batch(self.conn, {"reagent": reagent, "nominal_molarity": nominal, "volume_l": 10,
-                                             "prepared_on": iso(prepared), "prepared_by": "Test Person",
-                                             "notes": f"batch {key} (invented)"}, "setup")
+        b = records.create_batch(
+            self.conn,
+            {
+                "reagent": reagent,
+                "nominal_molarity": nominal,
+                "volume_l": 10,
+                "prepared_on": iso(prepared),
+                "prepared_by": "Test Person",
+                "notes": f"batch {key} (invented)",
+            },
+            "setup",
+        )
         self.batches[key] = b
         return b
 
@@ -75,8 +107,9 @@ class World:
 
     def secondary(self, key, reagent, prepared, on, ref):
         b = self.batches.get(key) or self.batch(key, reagent, prepared)
-        run_id, _ = workflow.record_secondary_run(self.conn, self.app.config, b, self.batches[ref], self.meta(on),
-                                                  SECONDARY, "setup")
+        run_id, _ = workflow.record_secondary_run(
+            self.conn, self.app.config, b, self.batches[ref], self.meta(on), SECONDARY, "setup"
+        )
         self.releases.setdefault(key, []).append(workflow.accept(self.conn, run_id, "setup"))
 
     def code(self, key):
@@ -142,8 +175,7 @@ def test_a_date_limited_recall_leaves_earlier_releases_alone(world, conn):
 def test_days_in_force_follow_supersession_and_withdrawal(world, conn):
     # A is standardized again on day -5 on the clean lot: its first value stops being in force that day.
     world.primary("A", "NaOH", prepared=-60, on=-5, lot=world.lot2)
-    records.withdraw_batch(conn, world.batches["D"]["id"], dt.date.fromisoformat(iso(-8)), "invented: spilled",
-                           "setup")
+    records.withdraw_batch(conn, world.batches["D"]["id"], dt.date.fromisoformat(iso(-8)), "invented: spilled", "setup")
     got, report = world.reached(world.recall("lot", world.lot["id"], since=-100))
     first_a = world.releases["A"][0]
     assert got == {first_a} | world.rel("B", "C", "D", "E")  # the new value of A rests on lot 2
@@ -200,38 +232,43 @@ def test_clearing_for_one_batch_then_all_is_audited(world, conn, signed_in_clien
     staff = signed_in_client("staff")
     token = form_token(staff, "/")
     url = f"/recalls/{rid}/clear"
-    before = conn.execute("SELECT count(*) FROM recall_clearances").fetchone()[0], \
-        conn.execute("SELECT count(*) FROM events").fetchone()[0]
-    for data, field, message in [({"scope": world.code("D"), "clear_reason": " "}, "clear_reason", "required"),
-                                 ({"scope": "", "clear_reason": "ok"}, "scope", "choose the batch"),
-                                 ({"scope": world.code("F"), "clear_reason": "ok"}, "scope", "not a batch this recall")]:
+    before = (
+        conn.execute("SELECT count(*) FROM recall_clearances").fetchone()[0],
+        conn.execute("SELECT count(*) FROM events").fetchone()[0],
+    )
+    for data, field, message in [
+        ({"scope": world.code("D"), "clear_reason": " "}, "clear_reason", "required"),
+        ({"scope": "", "clear_reason": "ok"}, "scope", "choose the batch"),
+        ({"scope": world.code("F"), "clear_reason": "ok"}, "scope", "not a batch this recall"),
+    ]:
         resp = staff.post(url, data={**data, "csrf_token": token})
         assert resp.status_code == 422
-        cell = re.search(rf'id="f-{field}".*?<span class="field-error"[^>]*>([^<]+)</span>',
-                         resp.get_data(as_text=True), re.S)
+        cell = re.search(rf'id="f-{field}".*?<span class="field-error"[^>]*>([^<]+)</span>', resp.get_data(as_text=True), re.S)
         assert cell and message in cell.group(1)
-    assert (conn.execute("SELECT count(*) FROM recall_clearances").fetchone()[0],
-            conn.execute("SELECT count(*) FROM events").fetchone()[0]) == before
-    resp = staff.post(url, data={"scope": world.code("D"), "clear_reason": "D re-checked against lot 2 (invented)",
-                                 "csrf_token": token})
+    assert (
+        conn.execute("SELECT count(*) FROM recall_clearances").fetchone()[0],
+        conn.execute("SELECT count(*) FROM events").fetchone()[0],
+    ) == before
+    resp = staff.post(
+        url, data={"scope": world.code("D"), "clear_reason": "D re-checked against lot 2 (invented)", "csrf_token": token}
+    )
     assert resp.status_code == 303
     assert flags_of(conn, world.batches["D"]["id"]) == [] and len(flags_of(conn, world.batches["B"]["id"])) == 1
     states = {b.code: b for b in recall_mod.impact(conn, rid, TODAY).batches}
     assert states[world.code("D")].state == "cleared" and "re-checked against lot 2" in states[world.code("D")].note
     assert staff.post(url, data={"scope": world.code("D"), "clear_reason": "again", "csrf_token": token}).status_code == 409
-    resp = staff.post(url, data={"scope": "all", "clear_reason": "lot re-assayed: 99.98 % (invented)",
-                                 "csrf_token": token})
+    resp = staff.post(url, data={"scope": "all", "clear_reason": "lot re-assayed: 99.98 % (invented)", "csrf_token": token})
     assert resp.status_code == 303
     for key in "ABCDE":
         assert flags_of(conn, world.batches[key]["id"]) == []
     assert staff.post(url, data={"scope": "all", "clear_reason": "x", "csrf_token": token}).status_code == 409
-    events = [dict(r) for r in conn.execute("SELECT action, actor, reason, detail FROM events WHERE action LIKE "
-                                            "'recall.%' ORDER BY id")]
+    events = [
+        dict(r) for r in conn.execute("SELECT action, actor, reason, detail FROM events WHERE action LIKE 'recall.%' ORDER BY id")
+    ]
     assert [e["action"] for e in events] == ["recall.open", "recall.clear", "recall.clear"]
     assert events[0]["reason"] == "invented: found wet"
     assert json.loads(events[0]["detail"])["releases_reached"] == sorted(world.rel("A", "B", "C", "D", "E"))
-    assert [e["reason"] for e in events[1:]] == ["D re-checked against lot 2 (invented)",
-                                                 "lot re-assayed: 99.98 % (invented)"]
+    assert [e["reason"] for e in events[1:]] == ["D re-checked against lot 2 (invented)", "lot re-assayed: 99.98 % (invented)"]
     assert records.verify_chain(conn) is None
     with pytest.raises(Exception, match="append-only"):
         with dbmod.write(conn):
@@ -247,9 +284,18 @@ CLASS = "group,aliquot_ml,titrant_ml,ratio\nbench 1,25.00,24.90,1:1\nbench 2,25.
 def test_report_lists_class_data_corrections_and_downloads(world, conn, signed_in_client):
     instructor = signed_in_client("instructor")
     token = re.search(r'name="csrf_token" value="([^"]+)"', instructor.get("/").get_data(as_text=True)).group(1)
-    resp = instructor.post("/lab-day/correct", content_type="multipart/form-data", data={
-        "lab_day": iso(-5), "titrant": "HCl", "batch": world.code("B"), "bench_temperature_c": "",
-        "sheet": (io.BytesIO(CLASS.encode()), "class.csv"), "csrf_token": token})
+    resp = instructor.post(
+        "/lab-day/correct",
+        content_type="multipart/form-data",
+        data={
+            "lab_day": iso(-5),
+            "titrant": "HCl",
+            "batch": world.code("B"),
+            "bench_temperature_c": "",
+            "sheet": (io.BytesIO(CLASS.encode()), "class.csv"),
+            "csrf_token": token,
+        },
+    )
     assert resp.status_code == 303, resp.get_data(as_text=True)[:2000]
     cid = conn.execute("SELECT id FROM class_corrections").fetchone()[0]
     # A batch suspect from day -3 leaves the correction of day -5 alone; from day -6 it is reached.
@@ -280,7 +326,7 @@ def test_report_lists_class_data_corrections_and_downloads(world, conn, signed_i
 
 
 def test_a_spreadsheet_formula_in_a_reason_is_defused_in_the_csv(world, client):
-    rid = world.recall("lot", world.lot["id"], since=-100, reason="=HYPERLINK(\"http://example.invalid\")")
+    rid = world.recall("lot", world.lot["id"], since=-100, reason='=HYPERLINK("http://example.invalid")')
     text = client.get(f"/recalls/{rid}.csv").get_data(as_text=True)
     assert "# reason: =HYPERLINK" in text  # the comment line is not a cell
     rows = list(csv.reader(line for line in text.splitlines() if not line.startswith("#")))
@@ -290,8 +336,8 @@ def test_a_spreadsheet_formula_in_a_reason_is_defused_in_the_csv(world, client):
 def test_the_batch_page_shows_the_chain_with_what_each_step_adds(world, client):
     world.recall("batch", "B", since=-100)
     html = client.get(f"/batches/{world.code('C')}").get_data(as_text=True)
-    panel = html[html.index('id="traceability"'):]
-    panel = panel[:panel.index("</section>")]
+    panel = html[html.index('id="traceability"') :]
+    panel = panel[: panel.index("</section>")]
     assert "<svg" in panel and "style=" not in panel and "<script" not in panel
     order = [panel.index(world.code(k) + " · certified value") for k in "CBA"]
     assert order == sorted(order)
@@ -310,47 +356,75 @@ def test_the_batch_page_shows_the_chain_with_what_each_step_adds(world, client):
 # ---------------------------------------------------------------------------------------------- the forms
 
 
-@pytest.mark.parametrize("change,field,message", [
-    ({"subject": ""}, "subject", "is required"),
-    ({"subject": "lot:999"}, "subject", "choose a primary-standard lot"),
-    ({"subject": "release:1"}, "subject", "choose the suspect item from the list"),
-    ({"suspect_from": iso(2)}, "suspect_from", "cannot be later"),
-    ({"suspect_from": "2026-13-01"}, "suspect_from", "not a date"),
-    ({"reason": "  "}, "reason", "required"),
-])
-def test_bad_recall_input_is_caught_at_the_field_and_nothing_is_stored(world, conn, signed_in_client, form_token,
-                                                                      change, field, message):
+@pytest.mark.parametrize(
+    "change,field,message",
+    [
+        ({"subject": ""}, "subject", "is required"),
+        ({"subject": "lot:999"}, "subject", "choose a primary-standard lot"),
+        ({"subject": "release:1"}, "subject", "choose the suspect item from the list"),
+        ({"suspect_from": iso(2)}, "suspect_from", "cannot be later"),
+        ({"suspect_from": "2026-13-01"}, "suspect_from", "not a date"),
+        ({"reason": "  "}, "reason", "required"),
+    ],
+)
+def test_bad_recall_input_is_caught_at_the_field_and_nothing_is_stored(
+    world, conn, signed_in_client, form_token, change, field, message
+):
     staff = signed_in_client("staff")
     before = conn.execute("SELECT count(*) FROM recalls").fetchone()[0], conn.execute("SELECT count(*) FROM events").fetchone()[0]
-    data = {"subject": f"lot:{world.lot['id']}", "suspect_from": iso(-10), "reason": "invented", **change,
-            "csrf_token": form_token(staff, "/")}
+    data = {
+        "subject": f"lot:{world.lot['id']}",
+        "suspect_from": iso(-10),
+        "reason": "invented",
+        **change,
+        "csrf_token": form_token(staff, "/"),
+    }
     resp = staff.post("/recalls/new", data=data)
     assert resp.status_code == 422
-    cell = re.search(rf'id="f-{field}".*?<span class="field-error"[^>]*>([^<]+)</span>', resp.get_data(as_text=True),
-                     re.S)
+    cell = re.search(rf'id="f-{field}".*?<span class="field-error"[^>]*>([^<]+)</span>', resp.get_data(as_text=True), re.S)
     assert cell and message in cell.group(1)
-    assert (conn.execute("SELECT count(*) FROM recalls").fetchone()[0],
-            conn.execute("SELECT count(*) FROM events").fetchone()[0]) == before
+    assert (
+        conn.execute("SELECT count(*) FROM recalls").fetchone()[0],
+        conn.execute("SELECT count(*) FROM events").fetchone()[0],
+    ) == before
 
 
 def test_recall_through_the_form_and_permissions(world, conn, client, signed_in_client, form_token):
     assert client.get("/recalls/new").status_code == 303
     instructor = signed_in_client("instructor")
     assert instructor.get("/recalls/new").status_code == 403
-    resp = instructor.post("/recalls/new", data={"subject": f"lot:{world.lot['id']}", "suspect_from": iso(-1),
-                                                 "reason": "x", "csrf_token": form_token(instructor, "/")})
+    resp = instructor.post(
+        "/recalls/new",
+        data={
+            "subject": f"lot:{world.lot['id']}",
+            "suspect_from": iso(-1),
+            "reason": "x",
+            "csrf_token": form_token(instructor, "/"),
+        },
+    )
     assert resp.status_code == 403 and conn.execute("SELECT count(*) FROM recalls").fetchone()[0] == 0
     admin = signed_in_client("admin")
     page = admin.get(f"/recalls/new?subject=lot:{world.lot['id']}").get_data(as_text=True)
     assert f'value="lot:{world.lot["id"]}" selected' in page
-    resp = admin.post("/recalls/new", data={"subject": f"batch:{world.batches['A']['id']}", "suspect_from": iso(-100),
-                                            "reason": "invented: cap left off", "csrf_token": form_token(admin, "/")})
+    resp = admin.post(
+        "/recalls/new",
+        data={
+            "subject": f"batch:{world.batches['A']['id']}",
+            "suspect_from": iso(-100),
+            "reason": "invented: cap left off",
+            "csrf_token": form_token(admin, "/"),
+        },
+    )
     assert resp.status_code == 303
     rid = int(resp.headers["Location"].rsplit("/", 1)[1])
     listing = client.get("/recalls/").get_data(as_text=True)
     assert f"Recall {rid}" in listing and "4 certified values, 4 batches" in listing
     page = client.get(f"/recalls/{rid}").get_data(as_text=True)
     assert "Clear the recall" not in page  # anonymous readers see the report, not the form
-    assert instructor.post(f"/recalls/{rid}/clear", data={"scope": "all", "clear_reason": "x",
-                                                          "csrf_token": form_token(instructor, "/")}).status_code == 403
+    assert (
+        instructor.post(
+            f"/recalls/{rid}/clear", data={"scope": "all", "clear_reason": "x", "csrf_token": form_token(instructor, "/")}
+        ).status_code
+        == 403
+    )
     assert client.get("/recalls/999").status_code == 404

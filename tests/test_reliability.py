@@ -43,13 +43,26 @@ def _prepare(path, writers: int):
     accounts.HASH_METHOD = "pbkdf2:sha256:1000"
     for i in range(writers):
         accounts.create_user(conn, f"writer{i}", f"Writer {i}", "staff", PASSWORD, "test")
-    lot = records.create_lot(conn, {"substance": "KHP", "assay": 1.0, "assay_expanded_u": 0.0002, "assay_k": 2,
-                                    "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
-                                    "dried_on": TODAY.isoformat(), "dried_at_c": 120}, "test")
+    lot = records.create_lot(
+        conn,
+        {
+            "substance": "KHP",
+            "assay": 1.0,
+            "assay_expanded_u": 0.0002,
+            "assay_k": 2,
+            "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
+            "dried_on": TODAY.isoformat(),
+            "dried_at_c": 120,
+        },
+        "test",
+    )
     codes = []
     for _ in range(4):
-        b = records.create_batch(conn, {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 20,
-                                        "prepared_on": TODAY.isoformat(), "prepared_by": "t"}, "test")
+        b = records.create_batch(
+            conn,
+            {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 20, "prepared_on": TODAY.isoformat(), "prepared_by": "t"},
+            "test",
+        )
         codes.append(b["code"])
     conn.close()
     return lot["id"], codes
@@ -59,9 +72,12 @@ class Server:
     def __init__(self, path):
         self.port = _free_port()
         env = dict(os.environ, STOCKROOM_SECRET_KEY="reliability", STOCKROOM_LAB_TIMEZONE="UTC")
-        self.proc = subprocess.Popen([sys.executable, "-m", "stockroom.cli", "serve", "--db", str(path),
-                                      "--port", str(self.port)], env=env,
-                                     stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        self.proc = subprocess.Popen(
+            [sys.executable, "-m", "stockroom.cli", "serve", "--db", str(path), "--port", str(self.port)],
+            env=env,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+        )
         self.base = f"http://127.0.0.1:{self.port}"
         deadline = time.monotonic() + 30
         while time.monotonic() < deadline:
@@ -115,19 +131,32 @@ class Session:
 
 
 def run_form(lot_id, k):
-    form = {"purpose": "certify", "standard_lot_id": str(lot_id), "performed_on": TODAY.isoformat(),
-            "analyst": "writer", "burette_capacity_ml": "50.0", "action": "record"}
+    form = {
+        "purpose": "certify",
+        "standard_lot_id": str(lot_id),
+        "performed_on": TODAY.isoformat(),
+        "analyst": "writer",
+        "burette_capacity_ml": "50.0",
+        "action": "record",
+    }
     for i in range(1, 4):
-        form.update({f"r{i}_mass_g": f"{0.80 + 0.01 * i + 0.0001 * (k % 50):.4f}", f"r{i}_initial_ml": "0.10",
-                     f"r{i}_final_ml": f"{39.3 + 0.49 * i + 0.0049 * (k % 50):.2f}"})
+        form.update(
+            {
+                f"r{i}_mass_g": f"{0.80 + 0.01 * i + 0.0001 * (k % 50):.4f}",
+                f"r{i}_initial_ml": "0.10",
+                f"r{i}_final_ml": f"{39.3 + 0.49 * i + 0.0049 * (k % 50):.2f}",
+            }
+        )
     return form
 
 
 def _stored_runs(path):
     conn = sqlite3.connect(path)
     try:
-        return {row[0]: row[1] for row in conn.execute(
-            "SELECT r.id, count(p.id) FROM runs r JOIN replicates p ON p.run_id = r.id GROUP BY r.id")}
+        return {
+            row[0]: row[1]
+            for row in conn.execute("SELECT r.id, count(p.id) FROM runs r JOIN replicates p ON p.run_id = r.id GROUP BY r.id")
+        }
     finally:
         conn.close()
 
@@ -145,8 +174,9 @@ def test_eight_concurrent_writers_lose_nothing(tmp_path):
         s = Session(server.base, f"writer{i}")
         k = 0
         while time.monotonic() < stop_at and k < 400:
-            status, headers, body = s.post(f"/batches/{codes[k % len(codes)]}/runs/new", run_form(lot_id, k),
-                                           path_for_token=f"/batches/{codes[0]}")
+            status, headers, body = s.post(
+                f"/batches/{codes[k % len(codes)]}/runs/new", run_form(lot_id, k), path_for_token=f"/batches/{codes[0]}"
+            )
             k += 1
             if status == 303:
                 with lock:
@@ -187,8 +217,9 @@ def test_killed_mid_write_twenty_times_keeps_every_acknowledged_write(tmp_path):
             k = start
             while not done.is_set():
                 try:
-                    status, headers, _ = session.post(f"/batches/{codes[k % 4]}/runs/new", run_form(lot_id, k),
-                                                      path_for_token=f"/batches/{codes[0]}")
+                    status, headers, _ = session.post(
+                        f"/batches/{codes[k % 4]}/runs/new", run_form(lot_id, k), path_for_token=f"/batches/{codes[0]}"
+                    )
                 except (OSError, http.client.HTTPException):
                     return
                 if status == 303:
@@ -212,4 +243,3 @@ def test_killed_mid_write_twenty_times_keeps_every_acknowledged_write(tmp_path):
     assert not missing, f"acknowledged runs lost or partial: {missing[:5]}"
     conn = dbmod.connect(path)
     assert records.verify_chain(conn) is None
-

@@ -20,30 +20,68 @@ TODAY = dt.date.today()
 @pytest.fixture
 def setup(app):
     conn = dbmod.connect(app.config["DATABASE"])
-    batch = records.create_batch(conn, {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 20,
-                                        "prepared_on": (TODAY - dt.timedelta(days=2)).isoformat(),
-                                        "prepared_by": "Test Person", "water_grade": "CO2-free"}, "setup")
-    lot = records.create_lot(conn, {"substance": "KHP", "assay": 1.0, "assay_expanded_u": 0.0002, "assay_k": 2,
-                                    "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
-                                    "dried_on": TODAY.isoformat(), "dried_at_c": 120}, "setup")
-    old = records.create_lot(conn, {"substance": "KHP", "assay": 1.0, "assay_expanded_u": 0.0002, "assay_k": 2,
-                                    "expires_on": (TODAY - dt.timedelta(days=1)).isoformat(),
-                                    "dried_on": TODAY.isoformat(), "dried_at_c": 120}, "setup")
+    batch = records.create_batch(
+        conn,
+        {
+            "reagent": "NaOH",
+            "nominal_molarity": 0.1,
+            "volume_l": 20,
+            "prepared_on": (TODAY - dt.timedelta(days=2)).isoformat(),
+            "prepared_by": "Test Person",
+            "water_grade": "CO2-free",
+        },
+        "setup",
+    )
+    lot = records.create_lot(
+        conn,
+        {
+            "substance": "KHP",
+            "assay": 1.0,
+            "assay_expanded_u": 0.0002,
+            "assay_k": 2,
+            "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
+            "dried_on": TODAY.isoformat(),
+            "dried_at_c": 120,
+        },
+        "setup",
+    )
+    old = records.create_lot(
+        conn,
+        {
+            "substance": "KHP",
+            "assay": 1.0,
+            "assay_expanded_u": 0.0002,
+            "assay_k": 2,
+            "expires_on": (TODAY - dt.timedelta(days=1)).isoformat(),
+            "dried_on": TODAY.isoformat(),
+            "dried_at_c": 120,
+        },
+        "setup",
+    )
     conn.close()
     return {"batch": batch, "lot": lot, "expired_lot": old}
 
 
 # Four replicates of about 0.1 mol/L NaOH against KHP: masses in g, burette readings in mL.
-GOOD = [("12.4581", "11.6402", "0.12", "40.21"), ("12.0117", "11.1891", "0.40", "40.73"),
-        ("11.9012", "11.0759", "0.05", "40.50"), ("12.2230", "11.4170", "0.30", "39.82")]
+GOOD = [
+    ("12.4581", "11.6402", "0.12", "40.21"),
+    ("12.0117", "11.1891", "0.40", "40.73"),
+    ("11.9012", "11.0759", "0.05", "40.50"),
+    ("12.2230", "11.4170", "0.30", "39.82"),
+]
 
 
 def run_form(setup, rows=GOOD, **extra):
-    form = {"purpose": "certify", "standard_lot_id": str(setup["lot"]["id"]), "performed_on": TODAY.isoformat(),
-            "analyst": "Test Person", "burette_capacity_ml": "50.0", "endpoint": "phenolphthalein"}
+    form = {
+        "purpose": "certify",
+        "standard_lot_id": str(setup["lot"]["id"]),
+        "performed_on": TODAY.isoformat(),
+        "analyst": "Test Person",
+        "burette_capacity_ml": "50.0",
+        "endpoint": "phenolphthalein",
+    }
     for i, (gross, tare, initial, final) in enumerate(rows, start=1):
-        form.update({f"r{i}_gross_g": gross, f"r{i}_tare_g": tare, f"r{i}_initial_ml": initial,
-                     f"r{i}_final_ml": final})
+        form.update({f"r{i}_gross_g": gross, f"r{i}_tare_g": tare, f"r{i}_initial_ml": initial, f"r{i}_final_ml": final})
     form.update(extra)
     return form
 
@@ -104,22 +142,26 @@ def test_record_then_accept_releases_the_batch(app, setup, signed_in_client, for
     assert post(staff, form_token, f"/runs/{run_id}/decide", {"decision": "accept"}).status_code == 409
 
 
-@pytest.mark.parametrize("change,field,message", [
-    ({"r2_final_ml": "0.30"}, "r2_final_ml", "final reading must be greater than the initial"),
-    ({"r1_gross_g": "-12.4581"}, "r1_gross_g", "must be greater than 0"),
-    ({"r3_initial_ml": "0,05"}, "r3_initial_ml", "not a comma"),
-    ({"r4_final_ml": "52.10"}, "r4_final_ml", "beyond the scale of the 50 mL burette"),
-    ({"r1_temperature_c": "45"}, "r1_temperature_c", "between 5 and 40"),
-    ({"temperature_c": "4"}, "temperature_c", "between 5 and 40"),
-    ({"r2_tare_g": "abc"}, "r2_tare_g", "number"),
-    ({"r1_gross_g": "11.6402"}, "r1_gross_g", "heavier than the tare"),
-    ({"r1_gross_g": "71.6402"}, "r1_gross_g", "outside 0.001–50 g: check the unit"),
-    ({"r2_exclude": "on"}, "r2_exclude_reason", "say why"),
-    ({"performed_on": (TODAY + dt.timedelta(days=3)).isoformat()}, "performed_on", "cannot be later"),
-    ({"standard_lot_id": ""}, "standard_lot_id", "required"),
-])
-def test_bad_entries_are_caught_at_the_field_and_nothing_is_stored(app, setup, signed_in_client, form_token,
-                                                                   change, field, message):
+@pytest.mark.parametrize(
+    "change,field,message",
+    [
+        ({"r2_final_ml": "0.30"}, "r2_final_ml", "final reading must be greater than the initial"),
+        ({"r1_gross_g": "-12.4581"}, "r1_gross_g", "must be greater than 0"),
+        ({"r3_initial_ml": "0,05"}, "r3_initial_ml", "not a comma"),
+        ({"r4_final_ml": "52.10"}, "r4_final_ml", "beyond the scale of the 50 mL burette"),
+        ({"r1_temperature_c": "45"}, "r1_temperature_c", "between 5 and 40"),
+        ({"temperature_c": "4"}, "temperature_c", "between 5 and 40"),
+        ({"r2_tare_g": "abc"}, "r2_tare_g", "number"),
+        ({"r1_gross_g": "11.6402"}, "r1_gross_g", "heavier than the tare"),
+        ({"r1_gross_g": "71.6402"}, "r1_gross_g", "outside 0.001–50 g: check the unit"),
+        ({"r2_exclude": "on"}, "r2_exclude_reason", "say why"),
+        ({"performed_on": (TODAY + dt.timedelta(days=3)).isoformat()}, "performed_on", "cannot be later"),
+        ({"standard_lot_id": ""}, "standard_lot_id", "required"),
+    ],
+)
+def test_bad_entries_are_caught_at_the_field_and_nothing_is_stored(
+    app, setup, signed_in_client, form_token, change, field, message
+):
     staff = signed_in_client("staff")
     before = count(app, "runs"), count(app, "replicates"), count(app, "events")
     form = run_form(setup, action="record", **change)
@@ -155,12 +197,10 @@ def test_compute_without_javascript_stores_nothing(app, setup, signed_in_client,
     assert count(app, "runs") == 0
 
 
-def test_scattered_run_cannot_be_accepted_but_can_be_rejected_with_reason(app, setup, signed_in_client,
-                                                                          form_token):
+def test_scattered_run_cannot_be_accepted_but_can_be_rejected_with_reason(app, setup, signed_in_client, form_token):
     staff = signed_in_client("staff")
     rows = [GOOD[0], GOOD[1], ("11.9012", "11.0759", "0.05", "40.95"), GOOD[3]]  # +0.45 mL on row 3
-    resp = post(staff, form_token, f"/batches/{setup['batch']['code']}/runs/new",
-                run_form(setup, rows, action="record"))
+    resp = post(staff, form_token, f"/batches/{setup['batch']['code']}/runs/new", run_form(setup, rows, action="record"))
     run_id = int(re.search(r"/runs/(\d+)", resp.headers["Location"]).group(1))
     page = staff.get(f"/runs/{run_id}").get_data(as_text=True)
     assert "Does not meet the acceptance rule" in page and "exceeds the limit of 0.20 %" in page
@@ -168,8 +208,9 @@ def test_scattered_run_cannot_be_accepted_but_can_be_rejected_with_reason(app, s
     assert post(staff, form_token, f"/runs/{run_id}/decide", {"decision": "reject"}).status_code == 422
     # Leaving out the wild replicate, with a reason, recomputes the run; it can then be accepted.
     assert post(staff, form_token, f"/runs/{run_id}/exclude", {"position": "3", "reason": ""}).status_code == 422
-    assert post(staff, form_token, f"/runs/{run_id}/exclude",
-                {"position": "3", "reason": "end point overshot"}).status_code == 303
+    assert (
+        post(staff, form_token, f"/runs/{run_id}/exclude", {"position": "3", "reason": "end point overshot"}).status_code == 303
+    )
     conn = dbmod.connect(app.config["DATABASE"])
     run = records.run_by_id(conn, run_id)
     assert run["current"]["n"] == 3 and run["current"]["accepted_by_rule"] == 1
@@ -188,8 +229,7 @@ def test_recheck_does_not_change_the_certified_value(app, setup, signed_in_clien
     post(staff, form_token, f"/runs/{run_id}/decide", {"decision": "accept"})
     certified = staff.get(f"/api/v1/batches/{code}").get_json()["releases"][0]["molarity"]
     rows = [(g, t, i, f"{float(f) + 0.05:.2f}") for g, t, i, f in GOOD]
-    second = post(staff, form_token, f"/batches/{code}/runs/new", run_form(setup, rows, purpose="recheck",
-                                                                           action="record"))
+    second = post(staff, form_token, f"/batches/{code}/runs/new", run_form(setup, rows, purpose="recheck", action="record"))
     recheck_id = int(re.search(r"/runs/(\d+)", second.headers["Location"]).group(1))
     post(staff, form_token, f"/runs/{recheck_id}/decide", {"decision": "accept"})
     body = staff.get(f"/api/v1/batches/{code}").get_json()
@@ -199,8 +239,11 @@ def test_recheck_does_not_change_the_certified_value(app, setup, signed_in_clien
 
 def test_csv_sheet_fills_the_grid_and_stores_nothing(app, setup, signed_in_client, form_token):
     staff = signed_in_client("staff")
-    sheet = "# from the bench\nreplicate,gross_g,tare_g,initial_ml,final_ml,exclude_reason\n" + "\n".join(
-        f"{i},{g},{t},{a},{b}," for i, (g, t, a, b) in enumerate(GOOD, start=1)) + "\n"
+    sheet = (
+        "# from the bench\nreplicate,gross_g,tare_g,initial_ml,final_ml,exclude_reason\n"
+        + "\n".join(f"{i},{g},{t},{a},{b}," for i, (g, t, a, b) in enumerate(GOOD, start=1))
+        + "\n"
+    )
     url = f"/batches/{setup['batch']['code']}/runs/import"
     data = {"csrf_token": form_token(staff, "/"), "sheet": (io.BytesIO(sheet.encode()), "bench.csv")}
     resp = staff.post(url, data=data, content_type="multipart/form-data")
@@ -211,12 +254,15 @@ def test_csv_sheet_fills_the_grid_and_stores_nothing(app, setup, signed_in_clien
     assert count(app, "runs") == 0
 
 
-@pytest.mark.parametrize("sheet,problem", [
-    ("replicate,grams,final_ml\n1,0.8,40\n", "unknown column"),
-    ("replicate,initial_ml,final_ml\n1,0.1\n", "line 2: has 2 cells"),
-    ("", "no header row"),
-    ("replicate,initial_ml,final_ml\n", "no replicate rows"),
-])
+@pytest.mark.parametrize(
+    "sheet,problem",
+    [
+        ("replicate,grams,final_ml\n1,0.8,40\n", "unknown column"),
+        ("replicate,initial_ml,final_ml\n1,0.1\n", "line 2: has 2 cells"),
+        ("", "no header row"),
+        ("replicate,initial_ml,final_ml\n", "no replicate rows"),
+    ],
+)
 def test_csv_sheet_problems_are_reported_by_line(app, setup, signed_in_client, form_token, sheet, problem):
     staff = signed_in_client("staff")
     url = f"/batches/{setup['batch']['code']}/runs/import"
@@ -229,10 +275,9 @@ def test_csv_sheet_problems_are_reported_by_line(app, setup, signed_in_client, f
 
 def test_csv_sheet_row_errors_show_at_the_cell(app, setup, signed_in_client, form_token):
     staff = signed_in_client("staff")
-    sheet = "replicate,mass_g,initial_ml,final_ml\n1,\"0,8123\",0.1,40.2\n2,0.8201,0.2,0.1\n"
+    sheet = 'replicate,mass_g,initial_ml,final_ml\n1,"0,8123",0.1,40.2\n2,0.8201,0.2,0.1\n'
     data = {"csrf_token": form_token(staff, "/"), "sheet": (io.BytesIO(sheet.encode()), "rows.csv")}
-    resp = staff.post(f"/batches/{setup['batch']['code']}/runs/import", data=data,
-                      content_type="multipart/form-data")
+    resp = staff.post(f"/batches/{setup['batch']['code']}/runs/import", data=data, content_type="multipart/form-data")
     assert resp.status_code == 422
     html = resp.get_data(as_text=True)
     assert "not a comma" in html and "final reading must be greater" in html
@@ -247,8 +292,7 @@ def test_exports(app, setup, signed_in_client, form_token):
     run_csv = staff.get(f"/runs/{run_id}.csv")
     assert run_csv.mimetype == "text/csv"
     assert run_csv.headers["Content-Disposition"] == f'attachment; filename="{code}-run-{run_id}.csv"'
-    rows = list(csv.DictReader(line for line in run_csv.get_data(as_text=True).splitlines()
-                               if not line.startswith("#")))
+    rows = list(csv.DictReader(line for line in run_csv.get_data(as_text=True).splitlines() if not line.startswith("#")))
     assert [float(r["final_ml"]) for r in rows] == [float(f) for *_, f in GOOD]
     history = staff.get(f"/batches/{code}/history.csv").get_data(as_text=True)
     hist = list(csv.DictReader(io.StringIO(history)))

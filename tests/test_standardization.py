@@ -38,10 +38,17 @@ def quam_instruments(**changes) -> Instruments:
     balance linearity ±0.15 mg (readability left in the repeatability term, as QUAM does), piston
     burette ±0.03 mL, lab ±3 °C at 95 % with α = 2.1e-4 /K (GTC shows the resulting 0.006 mL)."""
     base = Instruments(
-        balance_readability_g=0.0, balance_linearity_g=0.00015, burette_capacity_ml=20.0,
-        burette_tolerance_ml=0.03, pipette_tolerance_ml=0.02, lab_temperature_half_range_k=3.0,
-        expansion_coefficient_per_k=2.1e-4, coverage_factor=2.0, monte_carlo_draws=100_000,
-        lab_temperature_distribution="normal")
+        balance_readability_g=0.0,
+        balance_linearity_g=0.00015,
+        burette_capacity_ml=20.0,
+        burette_tolerance_ml=0.03,
+        pipette_tolerance_ml=0.02,
+        lab_temperature_half_range_k=3.0,
+        expansion_coefficient_per_k=2.1e-4,
+        coverage_factor=2.0,
+        monte_carlo_draws=100_000,
+        lab_temperature_distribution="normal",
+    )
     return dataclasses.replace(base, **changes)
 
 
@@ -49,8 +56,12 @@ def quam_a2_run() -> PrimaryRun:
     # QUAM:2012 A2: 0.3888 g KHP by difference, P = 1.0 ± 0.0005 (rectangular), 18.64 mL NaOH,
     # repeatability 0.05 % relative; QUAM applies no buoyancy correction.
     return PrimaryRun(
-        standard=KHP_QUAM, replicates=(Replicate(18.64, gross_g=10.3888, tare_g=10.0),),
-        purity=InputQuantity.rectangular("purity", 1.0, 0.0005), buoyancy=False, u_repeatability_rel=0.0005)
+        standard=KHP_QUAM,
+        replicates=(Replicate(18.64, gross_g=10.3888, tare_g=10.0),),
+        purity=InputQuantity.rectangular("purity", 1.0, 0.0005),
+        buoyancy=False,
+        u_repeatability_rel=0.0005,
+    )
 
 
 def fast(inst: Instruments) -> Instruments:
@@ -103,9 +114,12 @@ def test_quam_a3_hcl_against_that_naoh():
     # carries the reference's full u (with its own 0.0005 repeatability) plus this run's own, so the
     # same total is reached with a run repeatability of √(0.001² − 0.0005²) (docs/measurement-model.md).
     run_rep = math.sqrt(0.001**2 - 0.0005**2)
-    run = SecondaryRun(reference=Reference(naoh.molarity, naoh.u, "NaOH"), nu=1.0,
-                       replicates=(AliquotReplicate(aliquot_ml=15.0, volume_ml=14.89),),
-                       u_repeatability_rel=run_rep)
+    run = SecondaryRun(
+        reference=Reference(naoh.molarity, naoh.u, "NaOH"),
+        nu=1.0,
+        replicates=(AliquotReplicate(aliquot_ml=15.0, volume_ml=14.89),),
+        u_repeatability_rel=run_rep,
+    )
     r = standardize_secondary(run, inst)
     # QUAM:2012 A3: c(HCl) = 0.10139 mol/L, u ≈ 0.00018 mol/L.
     assert round(r.molarity, 5) == 0.10139
@@ -121,8 +135,7 @@ def test_quam_a3_hcl_against_that_naoh():
     # gives a larger, conservative u.
     double = standardize_secondary(dataclasses.replace(run, u_repeatability_rel=0.001), inst)
     assert double.u > r.u
-    assert double.u == pytest.approx(
-        r.molarity * math.sqrt(r.u_rel**2 - run_rep**2 + 0.001**2), rel=1e-9)
+    assert double.u == pytest.approx(r.molarity * math.sqrt(r.u_rel**2 - run_rep**2 + 0.001**2), rel=1e-9)
 
 
 # --------------------------------------------------------------------------- model agreement
@@ -132,10 +145,15 @@ def _khp_run(n: int = 5, **changes) -> PrimaryRun:
     """An invented 0.1 mol/L NaOH run against KHP, masses by difference, with blanks (demo data)."""
     masses = [0.8123, 0.8241, 0.8090, 0.8302, 0.8177, 0.8212, 0.8150, 0.8266, 0.8105, 0.8230][:n]
     titres = [39.80, 40.39, 39.62, 40.70, 40.04, 40.22, 39.93, 40.49, 39.71, 40.33][:n]
-    reps = tuple(Replicate(volume_ml=v, gross_g=15.0 + m, tare_g=15.0, blank_ml=0.03)
-                 for m, v in zip(masses, titres, strict=True))
-    run = PrimaryRun(standard=standard_spec("NaOH", "KHP"), replicates=reps,
-                     purity=InputQuantity.expanded("purity", 0.99995, 0.0002, 2.0), nominal_molarity=0.1)
+    reps = tuple(
+        Replicate(volume_ml=v, gross_g=15.0 + m, tare_g=15.0, blank_ml=0.03) for m, v in zip(masses, titres, strict=True)
+    )
+    run = PrimaryRun(
+        standard=standard_spec("NaOH", "KHP"),
+        replicates=reps,
+        purity=InputQuantity.expanded("purity", 0.99995, 0.0002, 2.0),
+        nominal_molarity=0.1,
+    )
     return dataclasses.replace(run, **changes)
 
 
@@ -196,8 +214,7 @@ def test_monte_carlo_of_the_full_replicate_model_agrees():
     n = 100_000
     rng = np.random.default_rng(99)
     lin, d = inst.balance_linearity_g, inst.balance_readability_g
-    d_mass = (rng.uniform(-lin, lin, n) - rng.uniform(-lin, lin, n)
-              + rng.uniform(-d / 2, d / 2, n) - rng.uniform(-d / 2, d / 2, n))
+    d_mass = rng.uniform(-lin, lin, n) - rng.uniform(-lin, lin, n) + rng.uniform(-d / 2, d / 2, n) - rng.uniform(-d / 2, d / 2, n)
     p = run.purity.value + run.purity.u * rng.standard_normal(n)
     big_m = run.standard.molar_mass_g_mol + run.standard.u_molar_mass_g_mol * rng.standard_normal(n)
     tol = inst.burette_tolerance_ml
@@ -234,8 +251,7 @@ def test_buoyancy_of_tris_matches_textbook_factor():
 def test_temperature_referral_to_20c():
     # c(20 °C) = c(T)·[1 + α(T − 20)], α = 2.1e-4 /K (QUAM:2012; linear expansion model).
     base = _khp_run(3)
-    warm = dataclasses.replace(base, replicates=tuple(dataclasses.replace(r, temperature_c=25.0)
-                                                      for r in base.replicates))
+    warm = dataclasses.replace(base, replicates=tuple(dataclasses.replace(r, temperature_c=25.0) for r in base.replicates))
     c20 = standardize_primary(base, fast(DEFAULTS))
     c25 = standardize_primary(warm, fast(DEFAULTS))
     assert c25.molarity / c20.molarity == pytest.approx(1 + 2.1e-4 * 5, rel=1e-12)
@@ -243,8 +259,9 @@ def test_temperature_referral_to_20c():
 
 def test_mass_by_difference_counts_two_weighings():
     by_diff = standardize_primary(_khp_run(3), fast(DEFAULTS))
-    direct_reps = tuple(Replicate(volume_ml=r.volume_ml, mass_g=r.air_mass_g, blank_ml=r.blank_ml)
-                        for r in _khp_run(3).replicates)
+    direct_reps = tuple(
+        Replicate(volume_ml=r.volume_ml, mass_g=r.air_mass_g, blank_ml=r.blank_ml) for r in _khp_run(3).replicates
+    )
     direct = standardize_primary(_khp_run(3, replicates=direct_reps), fast(DEFAULTS))
     assert by_diff.molarity == pytest.approx(direct.molarity, rel=1e-12)
     u_diff = {f.name: f.u for f in by_diff.gum.factors}["mass"]
@@ -286,8 +303,7 @@ def test_outlier_is_flagged_not_dropped():
 
 def test_exclusion_is_explicit_and_kept_in_the_result():
     base = _khp_run(5)
-    r = standardize_primary(dataclasses.replace(base, exclusions=(Exclusion(2, "spilled at the end point"),)),
-                            fast(DEFAULTS))
+    r = standardize_primary(dataclasses.replace(base, exclusions=(Exclusion(2, "spilled at the end point"),)), fast(DEFAULTS))
     assert r.n == 4 and r.n_total == 5
     assert r.replicates[2].excluded and r.replicates[2].exclusion_reason == "spilled at the end point"
     kept = [x.molarity for i, x in enumerate(r.replicates) if i != 2]
@@ -326,9 +342,15 @@ def test_nominal_checks_warn_and_refuse_with_a_cause():
     assert not unit.accepted and any("unit slip" in x for x in unit.reasons)
     # KHP masses entered against sodium carbonate: c comes out ×3.85 (ν 2, M 105.99 against ν 1,
     # M 204.22), and the alternatives name KHP.
-    wrong = _khp_run(3, standard=standard_spec("HCl", "Na2CO3"),
-                     alternatives=(standard_spec("HCl", "Na2CO3"), standard_spec("HCl", "TRIS"),
-                                   StandardSpec("KHP", "potassium hydrogen phthalate", 204.22, 0.01, 1.0)))
+    wrong = _khp_run(
+        3,
+        standard=standard_spec("HCl", "Na2CO3"),
+        alternatives=(
+            standard_spec("HCl", "Na2CO3"),
+            standard_spec("HCl", "TRIS"),
+            StandardSpec("KHP", "potassium hydrogen phthalate", 204.22, 0.01, 1.0),
+        ),
+    )
     res = standardize_primary(wrong, fast(DEFAULTS))
     assert not res.accepted
     assert res.nominal_ratio == pytest.approx(2 * 204.22 / 105.99, rel=0.01)
@@ -341,8 +363,9 @@ def test_low_titre_warning():
     r = standardize_primary(PrimaryRun(standard_spec("NaOH", "KHP"), reps, purity_value=1.0), fast(DEFAULTS))
     assert r.replicates[0].warnings and "30 %" in r.replicates[0].warnings[0]
     assert not r.replicates[1].warnings  # 16 mL is above 15 mL, 30 % of 50 mL
-    small = standardize_primary(PrimaryRun(standard_spec("NaOH", "KHP"), reps, purity_value=1.0,
-                                           burette_capacity_ml=25.0), fast(DEFAULTS))
+    small = standardize_primary(
+        PrimaryRun(standard_spec("NaOH", "KHP"), reps, purity_value=1.0, burette_capacity_ml=25.0), fast(DEFAULTS)
+    )
     assert not any(x.warnings for x in small.replicates)
 
 
@@ -383,13 +406,17 @@ def test_instruments_come_from_settings():
 
 
 def test_invalid_runs_name_the_field():
-    bad = PrimaryRun(standard_spec("NaOH", "KHP"), (
-        Replicate(volume_ml=40.0, mass_g=-0.8),
-        Replicate(volume_ml=0.0, mass_g=0.8),
-        Replicate(volume_ml=40.0, gross_g=10.0, tare_g=10.5),
-        Replicate(volume_ml=0.5, mass_g=0.8, blank_ml=0.6),
-        Replicate(volume_ml=40.0, mass_g=0.8, temperature_c=60.0),
-    ), purity_value=1.2)
+    bad = PrimaryRun(
+        standard_spec("NaOH", "KHP"),
+        (
+            Replicate(volume_ml=40.0, mass_g=-0.8),
+            Replicate(volume_ml=0.0, mass_g=0.8),
+            Replicate(volume_ml=40.0, gross_g=10.0, tare_g=10.5),
+            Replicate(volume_ml=0.5, mass_g=0.8, blank_ml=0.6),
+            Replicate(volume_ml=40.0, mass_g=0.8, temperature_c=60.0),
+        ),
+        purity_value=1.2,
+    )
     with pytest.raises(InvalidInput) as exc:
         standardize_primary(bad, fast(DEFAULTS))
     fields = exc.value.fields
@@ -405,8 +432,7 @@ def test_invalid_runs_name_the_field():
 
 _masses = st.floats(min_value=0.05, max_value=5.0)
 _volumes = st.floats(min_value=5.0, max_value=50.0)
-_replicates = st.lists(st.tuples(_masses, _volumes, st.floats(min_value=0.0, max_value=0.2)),
-                       min_size=1, max_size=8)
+_replicates = st.lists(st.tuples(_masses, _volumes, st.floats(min_value=0.0, max_value=0.2)), min_size=1, max_size=8)
 
 
 def _run_of(rows, buoyancy=True) -> PrimaryRun:
@@ -457,12 +483,19 @@ def test_repeatability_never_below_what_two_burette_readings_resolve():
     """
     from stockroom.standardization import AliquotReplicate, Instruments, Reference, SecondaryRun, standardize_secondary
 
-    inst = Instruments(balance_readability_g=0.0001, balance_linearity_g=0.00015, burette_capacity_ml=50,
-                       burette_tolerance_ml=0.05, pipette_tolerance_ml=0.03, lab_temperature_half_range_k=3,
-                       expansion_coefficient_per_k=2.1e-4, coverage_factor=2, monte_carlo_draws=2000)
+    inst = Instruments(
+        balance_readability_g=0.0001,
+        balance_linearity_g=0.00015,
+        burette_capacity_ml=50,
+        burette_tolerance_ml=0.05,
+        pipette_tolerance_ml=0.03,
+        lab_temperature_half_range_k=3,
+        expansion_coefficient_per_k=2.1e-4,
+        coverage_factor=2,
+        monte_carlo_draws=2000,
+    )
     reps = tuple(AliquotReplicate(aliquot_ml=25.0, volume_ml=24.85) for _ in range(4))
-    result = standardize_secondary(SecondaryRun(reference=Reference(1.0032, 0.00085), nu=1.0, replicates=reps),
-                                   inst)
+    result = standardize_secondary(SecondaryRun(reference=Reference(1.0032, 0.00085), nu=1.0, replicates=reps), inst)
     line = next(b for b in result.gum.lines if b.source == "repeatability")
     expected = 0.01 / math.sqrt(12) * math.sqrt(2) / 24.85 / math.sqrt(4)
     assert line.u == pytest.approx(expected, rel=1e-12)

@@ -21,22 +21,41 @@ def _tool(name: str) -> str:
 
 
 def test_ruff_is_clean():
-    result = subprocess.run([_tool("ruff"), "check", "--output-format", "concise", "."], cwd=ROOT,
-                            capture_output=True, text=True, timeout=300)
+    result = subprocess.run(
+        [_tool("ruff"), "check", "--output-format", "concise", "."], cwd=ROOT, capture_output=True, text=True, timeout=300
+    )
     assert result.returncode == 0, result.stdout[-4000:]
 
 
 def test_mypy_is_clean():
-    result = subprocess.run([_tool("mypy"), "--no-error-summary"], cwd=ROOT, capture_output=True, text=True,
-                            timeout=600)
+    result = subprocess.run([_tool("mypy"), "--no-error-summary"], cwd=ROOT, capture_output=True, text=True, timeout=600)
     assert result.returncode == 0, result.stdout[-4000:]
 
 
 def test_pure_modules_import_neither_flask_nor_the_database():
-    pure = ("chemistry", "corrections", "stats", "uncertainty", "drift", "standardization", "policy",
-            "preparation", "traceability", "hazards", "labday")
+    pure = (
+        "chemistry",
+        "corrections",
+        "stats",
+        "uncertainty",
+        "drift",
+        "standardization",
+        "policy",
+        "preparation",
+        "traceability",
+        "hazards",
+        "labday",
+    )
     for name in pure:
         text = (ROOT / "stockroom" / f"{name}.py").read_text()
-        for forbidden in ("import flask", "from flask", "sqlite_utils", "sqlite3", "stockroom.db", "stockroom import db",
-                          "stockroom.records", "stockroom import records"):
+        for forbidden in (
+            "import flask",
+            "from flask",
+            "sqlite_utils",
+            "sqlite3",
+            "stockroom.db",
+            "stockroom import db",
+            "stockroom.records",
+            "stockroom import records",
+        ):
             assert forbidden not in text, f"stockroom/{name}.py mentions {forbidden!r}"

@@ -32,8 +32,20 @@ PACKAGE_CSV = Path(stats.__file__).parent / "data" / "dixon_q_r10.csv"
 
 # Two-sided 95 % (upper-tail 0.025) Student t values; NIST/SEMATECH e-Handbook of Statistical
 # Methods, 1.3.6.7.2 "Critical values of the Student's t distribution" (standard t table).
-T_TABLE_975 = {1: 12.706, 2: 4.303, 3: 3.182, 4: 2.776, 5: 2.571, 6: 2.447, 7: 2.365, 8: 2.306,
-               9: 2.262, 10: 2.228, 20: 2.086, 30: 2.042}
+T_TABLE_975 = {
+    1: 12.706,
+    2: 4.303,
+    3: 3.182,
+    4: 2.776,
+    5: 2.571,
+    6: 2.447,
+    7: 2.365,
+    8: 2.306,
+    9: 2.262,
+    10: 2.228,
+    20: 2.086,
+    30: 2.042,
+}
 
 
 @pytest.mark.parametrize(("dof", "expected"), sorted(T_TABLE_975.items()))
@@ -118,9 +130,10 @@ def test_summarize_zero_mean_has_no_rsd() -> None:
     assert s.sd == pytest.approx(math.sqrt(2.0), rel=1e-15)  # by hand: deviations ±1, s² = 2/1
 
 
-@pytest.mark.parametrize(("values", "confidence"), [([], 0.95), ([0.1, float("nan")], 0.95),
-                                                    ([0.1, float("inf")], 0.95), ([0.1, 0.2], 1.0),
-                                                    (["abc"], 0.95)])
+@pytest.mark.parametrize(
+    ("values", "confidence"),
+    [([], 0.95), ([0.1, float("nan")], 0.95), ([0.1, float("inf")], 0.95), ([0.1, 0.2], 1.0), (["abc"], 0.95)],
+)
 def test_summarize_rejects_bad_input(values: list, confidence: float) -> None:
     with pytest.raises(InvalidInput):
         stats.summarize(values, confidence)
@@ -311,8 +324,7 @@ def test_screen_leaves_out_dixon_outside_its_table() -> None:
 
 def _summary(n: int, rsd: float | None) -> Summary:
     sd = None if rsd is None else rsd * 0.1
-    return Summary(n=n, mean=0.1, sd=sd, rsd=rsd, sem=None, ci_low=None, ci_high=None,
-                   confidence=0.95, t=None)
+    return Summary(n=n, mean=0.1, sd=sd, rsd=rsd, sem=None, ci_low=None, ci_high=None, confidence=0.95, t=None)
 
 
 def test_judge_rsd_boundary() -> None:
@@ -381,8 +393,7 @@ def test_permutation_changes_nothing(values: list[float], data: st.DataObject) -
 
 
 @settings(max_examples=60, deadline=None)
-@given(values=st.lists(_positive, min_size=3, max_size=10),
-       factor=st.floats(min_value=1e-3, max_value=1e3, allow_nan=False))
+@given(values=st.lists(_positive, min_size=3, max_size=10), factor=st.floats(min_value=1e-3, max_value=1e3, allow_nan=False))
 def test_positive_scaling_keeps_rsd_and_test_statistics(values: list[float], factor: float) -> None:
     assume(_spread_ok(values))
     scaled = [v * factor for v in values]
@@ -392,8 +403,7 @@ def test_positive_scaling_keeps_rsd_and_test_statistics(values: list[float], fac
 
 
 @settings(max_examples=60, deadline=None)
-@given(values=st.lists(_signed, min_size=2, max_size=12),
-       shift=st.floats(min_value=-1e3, max_value=1e3, allow_nan=False))
+@given(values=st.lists(_signed, min_size=2, max_size=12), shift=st.floats(min_value=-1e3, max_value=1e3, allow_nan=False))
 def test_shift_leaves_sd_unchanged(values: list[float], shift: float) -> None:
     sd = stats.summarize(values).sd
     shifted = stats.summarize([v + shift for v in values]).sd

@@ -22,8 +22,17 @@ def day(n: int) -> dt.date:
 
 
 def release(rid: int, batch: int, released: int, ends: int = 400, molarity: float = 0.1, u: float = 0.0001) -> Node:
-    return Node(tr.RELEASE, rid, f"B{batch}", detail=f"release {rid}", value=molarity, u=u, batch_id=batch,
-                released_on=day(released), ends_on=day(ends))
+    return Node(
+        tr.RELEASE,
+        rid,
+        f"B{batch}",
+        detail=f"release {rid}",
+        value=molarity,
+        u=u,
+        batch_id=batch,
+        released_on=day(released),
+        ends_on=day(ends),
+    )
 
 
 def lot(lid: int, assay: float = 0.9999, u: float = 0.0002) -> Node:
@@ -56,11 +65,26 @@ def reached(graph: Graph, kind: str, sid: int, since: int = -1000) -> set[str]:
 @pytest.fixture
 def three_links() -> Graph:
     """Lot 1 -> release 1 (batch 1) -> release 2 (batch 2) -> release 3 (batch 3), plus an unrelated release 4."""
-    nodes = (lot(1), lot(2), instrument(1), instrument(2),
-             release(1, 1, 0, u=0.00010), release(2, 2, 5, u=0.00013), release(3, 3, 9, u=0.00016),
-             release(4, 4, 3))
-    edges = (on_lot(1, 1, 0), on_kit(1, 1, 0), on_ref(2, 1, 5), on_kit(2, 2, 5), on_ref(3, 2, 9), on_kit(3, 2, 9),
-             on_lot(4, 2, 3), on_kit(4, 1, 3))
+    nodes = (
+        lot(1),
+        lot(2),
+        instrument(1),
+        instrument(2),
+        release(1, 1, 0, u=0.00010),
+        release(2, 2, 5, u=0.00013),
+        release(3, 3, 9, u=0.00016),
+        release(4, 4, 3),
+    )
+    edges = (
+        on_lot(1, 1, 0),
+        on_kit(1, 1, 0),
+        on_ref(2, 1, 5),
+        on_kit(2, 2, 5),
+        on_ref(3, 2, 9),
+        on_kit(3, 2, 9),
+        on_lot(4, 2, 3),
+        on_kit(4, 1, 3),
+    )
     return Graph(nodes, edges)
 
 
@@ -101,8 +125,7 @@ def test_a_step_stated_more_certain_than_its_reference_adds_nothing_not_a_negati
 
 def test_diamond_two_batches_against_one_reference():
     """Release 1 is the reference of releases 2 (batch 2) and 3 (batch 3); 4 rests on 2, 5 on 3."""
-    nodes = (lot(1), instrument(7), release(1, 1, 0), release(2, 2, 4), release(3, 3, 4), release(4, 4, 8),
-             release(5, 5, 8))
+    nodes = (lot(1), instrument(7), release(1, 1, 0), release(2, 2, 4), release(3, 3, 4), release(4, 4, 8), release(5, 5, 8))
     edges = (on_lot(1, 1, 0), on_ref(2, 1, 4), on_ref(3, 1, 4), on_ref(4, 2, 8), on_ref(5, 3, 8), on_kit(3, 7, 4))
     g = Graph(nodes, edges)
     assert reached(g, "lot", 1) == {f"release:{i}" for i in range(1, 6)}
@@ -129,8 +152,14 @@ def test_a_date_limited_recall_leaves_earlier_releases_alone():
 def test_a_suspect_batch_reaches_its_value_in_force_from_that_day_only():
     """Batch 1: release 1 from day 0 to day 49, release 2 from day 50. Batch 2 used release 1 on day 10,
     batch 3 on day 30, batch 4 used release 2 on day 60. Batch 1 is suspect from day 20."""
-    nodes = (lot(1), release(1, 1, 0, ends=49), release(2, 1, 50, ends=300), release(3, 2, 10), release(4, 3, 30),
-             release(5, 4, 60))
+    nodes = (
+        lot(1),
+        release(1, 1, 0, ends=49),
+        release(2, 1, 50, ends=300),
+        release(3, 2, 10),
+        release(4, 3, 30),
+        release(5, 4, 60),
+    )
     edges = (on_lot(1, 1, 0), on_lot(2, 1, 50), on_ref(3, 1, 10), on_ref(4, 1, 30), on_ref(5, 2, 60))
     g = Graph(nodes, edges)
     found = tr.downstream(g, Suspect("batch", 1, day(20)))
@@ -157,12 +186,14 @@ def test_graph_refuses_edges_to_nowhere_and_duplicates():
 
 
 def test_chain_svg_is_well_formed_escaped_and_styles_nothing_inline(three_links):
-    nodes = tuple(n if n.key != "release:3" else Node(tr.RELEASE, 3, "B3 <&>", detail="x < y", value=0.1, u=0.0002,
-                                                       batch_id=3, released_on=day(9), ends_on=day(99))
-                  for n in three_links.nodes)
+    nodes = tuple(
+        n
+        if n.key != "release:3"
+        else Node(tr.RELEASE, 3, "B3 <&>", detail="x < y", value=0.1, u=0.0002, batch_id=3, released_on=day(9), ends_on=day(99))
+        for n in three_links.nodes
+    )
     g = Graph(nodes, three_links.edges)
-    svg = tr.chain_svg(tr.chain_of(g, "release:3"), hrefs={"lot:1": "/lots/1"}, suspect=frozenset({"lot:1"}),
-                       title="Chain of B3")
+    svg = tr.chain_svg(tr.chain_of(g, "release:3"), hrefs={"lot:1": "/lots/1"}, suspect=frozenset({"lot:1"}), title="Chain of B3")
     root = ET.fromstring(svg)  # raises on malformed XML or an unescaped "<"
     ns = "{http://www.w3.org/2000/svg}"
     texts = ["".join(t.itertext()) for t in root.iter(f"{ns}text")]
@@ -189,11 +220,22 @@ def random_graphs(draw):
     rel = []
     for i in range(n):
         released = draw(st.integers(0, 60))
-        parent = draw(st.one_of(st.tuples(st.just("lot"), st.integers(0, n_lots - 1)),
-                                st.tuples(st.just("ref"), st.integers(0, i - 1)) if i else st.nothing()))
+        parent = draw(
+            st.one_of(
+                st.tuples(st.just("lot"), st.integers(0, n_lots - 1)),
+                st.tuples(st.just("ref"), st.integers(0, i - 1)) if i else st.nothing(),
+            )
+        )
         kit = draw(st.sets(st.integers(0, n_kit - 1), max_size=2)) if n_kit else set()
-        rel.append({"batch": draw(st.integers(0, n_batches - 1)), "released": released,
-                    "ends": released + draw(st.integers(0, 90)), "parent": parent, "kit": kit})
+        rel.append(
+            {
+                "batch": draw(st.integers(0, n_batches - 1)),
+                "released": released,
+                "ends": released + draw(st.integers(0, 90)),
+                "parent": parent,
+                "kit": kit,
+            }
+        )
     nodes = [lot(j) for j in range(n_lots)] + [instrument(j) for j in range(n_kit)]
     nodes += [release(i, r["batch"], r["released"], r["ends"]) for i, r in enumerate(rel)]
     edges = []

@@ -49,25 +49,31 @@ def _quam_a2_model() -> ProductModel:
     repeatability 0.0005 relative.
     """
     mass = factor(
-        "m", 1,
+        "m",
+        1,
         InputQuantity.normal("net reading", 0.3888, 0.0, "g"),
         InputQuantity.rectangular("linearity gross", 0.0, 0.15e-3, "g"),
         Term(InputQuantity.rectangular("linearity tare", 0.0, 0.15e-3, "g"), -1.0),
-        unit="g")
+        unit="g",
+    )
     purity = factor("P", 1, InputQuantity.rectangular("P", 1.0, 0.0005))
     molar = factor(
-        "M", -1,
+        "M",
+        -1,
         Term(InputQuantity.rectangular("M_C", 12.0107, 0.0008, "g/mol"), 8.0),
         Term(InputQuantity.rectangular("M_H", 1.00794, 0.00007, "g/mol"), 5.0),
         Term(InputQuantity.rectangular("M_O", 15.9994, 0.0003, "g/mol"), 4.0),
         Term(InputQuantity.rectangular("M_K", 39.0983, 0.0001, "g/mol"), 1.0),
-        unit="g/mol")
+        unit="g/mol",
+    )
     volume = factor(
-        "V", -1,
+        "V",
+        -1,
         InputQuantity.normal("V reading", 18.64, 0.0, "mL"),
         InputQuantity.triangular("V cal", 0.0, 0.03, "mL"),
         InputQuantity.normal("V temp", 0.0, 0.006, "mL"),
-        unit="mL")
+        unit="mL",
+    )
     rep = factor("R", 1, InputQuantity.normal("R", 1.0, 0.0005))
     return ProductModel(1000.0, (mass, purity, molar, volume, rep), "mol/L")
 
@@ -132,7 +138,7 @@ def test_numeric_path_matches_exact_sensitivities():
             sums[i] += a * xi
         y = model.constant
         for f, s in zip(model.factors, sums, strict=True):
-            y *= s ** f.exponent
+            y *= s**f.exponent
         return y
 
     numeric = combine_numeric(func, quantities, unit="mol/L")

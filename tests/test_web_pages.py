@@ -40,8 +40,9 @@ def test_api_lists_every_batch_with_required_fields(demo_client):
     for b in listed:
         assert {"id", "titrant", "nominal_molarity", "status"} <= set(b)
     statuses = sorted(b["status"] for b in listed)
-    assert statuses == sorted(["awaiting", "recheck_due", "drifting", "in_service", "in_service", "in_service",
-                               "expired", "withdrawn"])
+    assert statuses == sorted(
+        ["awaiting", "recheck_due", "drifting", "in_service", "in_service", "in_service", "expired", "withdrawn"]
+    )
 
 
 def test_api_batch_detail_has_releases_rechecks_and_expiry(demo_client):
@@ -97,10 +98,13 @@ def test_batch_page_shows_excluded_replicate_with_reason(demo_client):
     assert "Withdrawn from" in html
 
 
-@pytest.mark.parametrize("url,field", [
-    ("/api/v1/batches?on=2026-02-30", "on"),
-    ("/api/v1/batches/HCL-2606-01?on=yesterday", "on"),
-])
+@pytest.mark.parametrize(
+    "url,field",
+    [
+        ("/api/v1/batches?on=2026-02-30", "on"),
+        ("/api/v1/batches/HCL-2606-01?on=yesterday", "on"),
+    ],
+)
 def test_bad_date_is_422_naming_field(demo_client, url, field):
     r = demo_client.get(url)
     assert r.status_code == 422
@@ -140,8 +144,14 @@ def test_an_id_beyond_sqlite_range_is_not_found(demo_client):
 
 
 def test_hardening_settings(tmp_path):
-    app = create_app({"DATABASE": str(tmp_path / "h.db"), "SECRET_KEY": "t", "TRUSTED_HOSTS": "lab.example, localhost",
-                      "SESSION_COOKIE_SECURE": True})
+    app = create_app(
+        {
+            "DATABASE": str(tmp_path / "h.db"),
+            "SECRET_KEY": "t",
+            "TRUSTED_HOSTS": "lab.example, localhost",
+            "SESSION_COOKIE_SECURE": True,
+        }
+    )
     client = app.test_client()
     assert client.get("/healthz", headers={"Host": "evil.example"}).status_code == 400
     assert client.get("/healthz", headers={"Host": "localhost"}).status_code == 200
@@ -151,6 +161,10 @@ def test_hardening_settings(tmp_path):
     assert resp.headers["X-Frame-Options"] == "DENY"
     assert "frame-ancestors 'none'" in resp.headers["Content-Security-Policy"]
     # Bodies past MAX_CONTENT_LENGTH are refused before any view reads them.
-    big = client.post("/api/v1/standardizations/preview", data=b"x" * (app.config["MAX_CONTENT_LENGTH"] + 1),
-                      headers={"Host": "localhost"}, content_type="application/json")
+    big = client.post(
+        "/api/v1/standardizations/preview",
+        data=b"x" * (app.config["MAX_CONTENT_LENGTH"] + 1),
+        headers={"Host": "localhost"},
+        content_type="application/json",
+    )
     assert big.status_code == 413

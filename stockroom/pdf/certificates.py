@@ -52,11 +52,9 @@ _SMALL = ParagraphStyle("small", parent=_BODY, fontSize=7.5, leading=9.5)
 _CELL = ParagraphStyle("cell", parent=_BODY, fontSize=8, leading=10)
 _CELL_BOLD = ParagraphStyle("cellb", parent=_CELL, fontName="Helvetica-Bold")
 _H1 = ParagraphStyle("h1", parent=_BODY, fontName="Helvetica-Bold", fontSize=17, leading=21, spaceAfter=2)
-_H2 = ParagraphStyle("h2", parent=_BODY, fontName="Helvetica-Bold", fontSize=11, leading=14, spaceBefore=9,
-                     spaceAfter=4)
+_H2 = ParagraphStyle("h2", parent=_BODY, fontName="Helvetica-Bold", fontSize=11, leading=14, spaceBefore=9, spaceAfter=4)
 _VALUE = ParagraphStyle("value", parent=_BODY, fontName="Helvetica-Bold", fontSize=15, leading=19)
-_BANNER = ParagraphStyle("banner", parent=_BODY, fontName="Helvetica-Bold", fontSize=10.5, leading=13.5,
-                         textColor=colors.white)
+_BANNER = ParagraphStyle("banner", parent=_BODY, fontName="Helvetica-Bold", fontSize=10.5, leading=13.5, textColor=colors.white)
 
 
 def _p(text: Any, style: ParagraphStyle = _CELL) -> Paragraph:
@@ -78,6 +76,7 @@ def _sig(value: float | None, unit: str = "") -> str:
 
 
 # ---------------------------------------------------------------- gathering
+
 
 def _user_name(db: sqlite_utils.Database, username: str) -> str:
     rows = dbmod.query(db, "SELECT display_name FROM users WHERE username = ?", [username])
@@ -120,7 +119,10 @@ def certificate_data(db: sqlite_utils.Database, release_id: int, on: dt.date) ->
     facts = records.batch_facts(db, batch["id"])
     fact = next((r for r in facts.releases if r.id == release_id), None)
     return {
-        "release": release, "batch": batch, "run": run, "lot": lot,
+        "release": release,
+        "batch": batch,
+        "run": run,
+        "lot": lot,
         "titrant": chemistry.titrant(batch["reagent"]),
         "result": (run["current"] or {}).get("result") or {},
         "chain": _chain(db, run) if run["method"] == "secondary" else [],
@@ -170,14 +172,20 @@ def _drift_flowable(report: Any, width: float) -> Any:
 
 # ---------------------------------------------------------------- the document
 
+
 def _kv_table(rows: list[tuple[str, Any]], widths: tuple[float, float]) -> Table:
     body = [[_p(k, _CELL_BOLD), v if isinstance(v, Paragraph) else _p(v)] for k, v in rows]
     t = Table(body, colWidths=list(widths), hAlign="LEFT")
-    t.setStyle(TableStyle([
-        ("VALIGN", (0, 0), (-1, -1), "TOP"),
-        ("LINEBELOW", (0, 0), (-1, -1), 0.25, _RULE),
-        ("TOPPADDING", (0, 0), (-1, -1), 2), ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
-    ]))
+    t.setStyle(
+        TableStyle(
+            [
+                ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                ("LINEBELOW", (0, 0), (-1, -1), 0.25, _RULE),
+                ("TOPPADDING", (0, 0), (-1, -1), 2),
+                ("BOTTOMPADDING", (0, 0), (-1, -1), 2),
+            ]
+        )
+    )
     return t
 
 
@@ -189,7 +197,8 @@ def _grid(header: list[str], rows: list[list[Any]], widths: list[float], shade_r
         ("VALIGN", (0, 0), (-1, -1), "TOP"),
         ("LINEBELOW", (0, 0), (-1, 0), 0.8, _INK),
         ("LINEBELOW", (0, 1), (-1, -1), 0.25, _RULE),
-        ("TOPPADDING", (0, 0), (-1, -1), 1.5), ("BOTTOMPADDING", (0, 0), (-1, -1), 1.5),
+        ("TOPPADDING", (0, 0), (-1, -1), 1.5),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 1.5),
     ]
     for r in shade_rows:
         style.append(("BACKGROUND", (0, r + 1), (-1, r + 1), _SHADE))
@@ -199,8 +208,16 @@ def _grid(header: list[str], rows: list[list[Any]], widths: list[float], shade_r
 
 def _banner(text: str) -> Table:
     t = Table([[Paragraph(escape(printable(text)), _BANNER)]], colWidths=[180 * mm], hAlign="LEFT")
-    t.setStyle(TableStyle([("BACKGROUND", (0, 0), (-1, -1), GHS_RED), ("TOPPADDING", (0, 0), (-1, -1), 5),
-                           ("BOTTOMPADDING", (0, 0), (-1, -1), 5), ("LEFTPADDING", (0, 0), (-1, -1), 6)]))
+    t.setStyle(
+        TableStyle(
+            [
+                ("BACKGROUND", (0, 0), (-1, -1), GHS_RED),
+                ("TOPPADDING", (0, 0), (-1, -1), 5),
+                ("BOTTOMPADDING", (0, 0), (-1, -1), 5),
+                ("LEFTPADDING", (0, 0), (-1, -1), 6),
+            ]
+        )
+    )
     return t
 
 
@@ -210,9 +227,11 @@ def status_lines(data: Mapping[str, Any]) -> list[str]:
     out = []
     later = data["superseded_by"]
     if later is not None:
-        out.append(f"SUPERSEDED: release {later['id']} of {later['released_on']} replaced this value with "
-                   f"{value_text(later['molarity'], later['expanded_u'], later['k'], later['reference_temperature_c'])}. "
-                   "This certificate records a value no longer in force.")
+        out.append(
+            f"SUPERSEDED: release {later['id']} of {later['released_on']} replaced this value with "
+            f"{value_text(later['molarity'], later['expanded_u'], later['k'], later['reference_temperature_c'])}. "
+            "This certificate records a value no longer in force."
+        )
     if data["withdrawal"] is not None:
         w = data["withdrawal"]
         out.append(f"WITHDRAWN: the batch was withdrawn from use on {w['withdrawn_on']} ({w['reason']}).")
@@ -226,8 +245,17 @@ def _replicate_rows(data: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]
     secondary = run["method"] == "secondary"
     excluded = {e["position"]: e for e in run["exclusions"]}
     screened = {r["index"] + 1: r for r in result.get("replicates", [])}
-    header = ["#", "Aliquot (mL)" if secondary else "Mass (g)", "Initial (mL)", "Final (mL)", "Titre (mL)",
-              "Blank (mL)", "Temp. (°C)", "Molarity (mol/L)", "Used"]
+    header = [
+        "#",
+        "Aliquot (mL)" if secondary else "Mass (g)",
+        "Initial (mL)",
+        "Final (mL)",
+        "Titre (mL)",
+        "Blank (mL)",
+        "Temp. (°C)",
+        "Molarity (mol/L)",
+        "Used",
+    ]
     rows, shaded = [], []
     for i, rep in enumerate(run["replicates"]):
         pos = rep["position"]
@@ -238,11 +266,19 @@ def _replicate_rows(data: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]
             used = "yes (flagged by " + ", ".join(screened[pos].get("outlier_tests", [])) + "; kept)"
         else:
             used = "yes"
-        rows.append([
-            pos, _fmt(rep["aliquot_ml"], 2) if secondary else _fmt(rep["mass_g"], 4), _fmt(rep["initial_ml"], 2),
-            _fmt(rep["final_ml"], 2), _fmt(rep["volume_ml"], 2), _fmt(rep["blank_ml"], 2),
-            _fmt(rep["temperature_c"], 1), _fmt(rep["molarity"], 5), used,
-        ])
+        rows.append(
+            [
+                pos,
+                _fmt(rep["aliquot_ml"], 2) if secondary else _fmt(rep["mass_g"], 4),
+                _fmt(rep["initial_ml"], 2),
+                _fmt(rep["final_ml"], 2),
+                _fmt(rep["volume_ml"], 2),
+                _fmt(rep["blank_ml"], 2),
+                _fmt(rep["temperature_c"], 1),
+                _fmt(rep["molarity"], 5),
+                used,
+            ]
+        )
     widths = [7 * mm, 17 * mm, 17 * mm, 16 * mm, 16 * mm, 15 * mm, 15 * mm, 22 * mm, 55 * mm]
     return header, rows, widths, tuple(shaded)
 
@@ -256,12 +292,13 @@ def _statistics(data: Mapping[str, Any]) -> list[tuple[str, Any]]:
         ("Mean molarity", _fmt(r.get("molarity"), 6, "mol/L")),
         ("Standard deviation s", _fmt(r.get("sd"), 6, "mol/L")),
         ("Relative standard deviation", _pct(r.get("rsd"))),
-        ("95 % confidence interval of the mean", f"{_fmt(ci[0], 6)} to {_fmt(ci[1], 6, 'mol/L')}"
-         if ci[0] is not None else "—"),
+        ("95 % confidence interval of the mean", f"{_fmt(ci[0], 6)} to {_fmt(ci[1], 6, 'mol/L')}" if ci[0] is not None else "—"),
         ("Combined standard uncertainty u", f"{_fmt(r.get('u'), 6, 'mol/L')} ({_pct(r.get('u_rel'))})"),
         ("Expanded uncertainty U", f"{_fmt(r.get('U'), 6, 'mol/L')} (k = {r.get('k', 2):g})"),
-        ("Monte Carlo cross-check (JCGM 101)", f"u = {_fmt(mc.get('u'), 6, 'mol/L')} from "
-         f"{mc.get('draws', 0):,} draws" if mc else "—"),
+        (
+            "Monte Carlo cross-check (JCGM 101)",
+            f"u = {_fmt(mc.get('u'), 6, 'mol/L')} from {mc.get('draws', 0):,} draws" if mc else "—",
+        ),
         ("Ratio to nominal", _fmt(r.get("nominal_ratio"), 4)),
         ("Acceptance rule", "met" if r.get("accepted") else "not met: " + "; ".join(r.get("reasons", []))),
     ]
@@ -275,22 +312,31 @@ def _budget_rows(result: Mapping[str, Any]) -> list[list[Any]]:
         parts = [escape(printable(f"{c['source']}: {c.get('derivation', '')}")) for c in b.get("components", [])]
         if parts:
             source += "<br/><font size=6.5>" + "<br/>".join(parts) + "</font>"
-        rows.append([Paragraph(source, _CELL), _sig(b.get("value"), b.get("unit", "")),
-                     _sig(b.get("u"), b.get("unit", "")), _pct(b.get("u_rel"), 4), _pct(b.get("share"), 1)])
+        rows.append(
+            [
+                Paragraph(source, _CELL),
+                _sig(b.get("value"), b.get("unit", "")),
+                _sig(b.get("u"), b.get("unit", "")),
+                _pct(b.get("u_rel"), 4),
+                _pct(b.get("share"), 1),
+            ]
+        )
     return rows
 
 
 def _lot_rows(lot: Mapping[str, Any]) -> list[tuple[str, Any]]:
     substance = chemistry.standard(lot["substance"])
-    drying = (f"dried {lot['dried_on'] or '(date not recorded)'} at {lot['dried_at_c']:g} °C"
-              if lot.get("dried_at_c") is not None else "not oven-dried")
+    drying = (
+        f"dried {lot['dried_on'] or '(date not recorded)'} at {lot['dried_at_c']:g} °C"
+        if lot.get("dried_at_c") is not None
+        else "not oven-dried"
+    )
     if lot.get("storage_note"):
         drying += f"; {lot['storage_note']}"
     return [
         ("Primary standard", f"{substance.name} ({substance.formula}), M = {substance.molar_mass.value:.4f} g/mol"),
         ("Lot", f"{lot['code']} · supplier {lot['supplier'] or '—'}, supplier's lot {lot['supplier_lot'] or '—'}"),
-        ("Certificate assay", f"{lot['assay'] * 100:.3f} % ± {lot['assay_expanded_u'] * 100:.3f} % "
-                              f"(k = {lot['assay_k']:g})"),
+        ("Certificate assay", f"{lot['assay'] * 100:.3f} % ± {lot['assay_expanded_u'] * 100:.3f} % (k = {lot['assay_k']:g})"),
         ("Lot expires", lot["expires_on"]),
         ("Drying / storage", drying),
     ]
@@ -301,74 +347,129 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
     result = data["result"]
     story: list[Any] = [
         Paragraph("Certificate of standardization", _H1),
-        _p(f"Batch {batch['code']} · {titrant.name} ({titrant.formula}), {batch['nominal_molarity']:g} mol/L "
-           f"nominal · release {release['id']}", _BODY),
+        _p(
+            f"Batch {batch['code']} · {titrant.name} ({titrant.formula}), {batch['nominal_molarity']:g} mol/L "
+            f"nominal · release {release['id']}",
+            _BODY,
+        ),
         Spacer(1, 4 * mm),
     ]
     for line in status_lines(data):
         story += [_banner(line), Spacer(1, 2 * mm)]
-    story.append(KeepTogether([
-        _p("Certified molarity", _SMALL),
-        _p(value_text(release["molarity"], release["expanded_u"], release["k"], release["reference_temperature_c"]),
-           _VALUE),
-        _p(f"Standard uncertainty u = {_fmt(release['u'], 6, 'mol/L')}. U is the expanded uncertainty, U = k · u "
-           "(JCGM 100:2008). This certificate describes one release; a later release supersedes it, and the batch "
-           "page shows the value in force today. Handle the solution as its label and safety data sheet say, "
-           "following local regulations and your institution's chemical hygiene plan.", _SMALL),
-        Spacer(1, 3 * mm),
-    ]))
-    story.append(_kv_table([
-        ("Released on", f"{release['released_on']} by {data['released_by']}"),
-        ("Expires", release["expires_on"]),
-        ("Re-check", f"every {release['recheck_interval_days']} days; drift tolerance "
-                     f"± {release['tolerance_rel'] * 100:.2f} % of the certified value"),
-        ("Supersedes", f"release {release['supersedes_id']}" if release["supersedes_id"] else "— (first release)"),
-    ], (45 * mm, 135 * mm)))
+    story.append(
+        KeepTogether(
+            [
+                _p("Certified molarity", _SMALL),
+                _p(
+                    value_text(release["molarity"], release["expanded_u"], release["k"], release["reference_temperature_c"]),
+                    _VALUE,
+                ),
+                _p(
+                    f"Standard uncertainty u = {_fmt(release['u'], 6, 'mol/L')}. U is the expanded uncertainty, U = k · u "
+                    "(JCGM 100:2008). This certificate describes one release; a later release supersedes it, and the batch "
+                    "page shows the value in force today. Handle the solution as its label and safety data sheet say, "
+                    "following local regulations and your institution's chemical hygiene plan.",
+                    _SMALL,
+                ),
+                Spacer(1, 3 * mm),
+            ]
+        )
+    )
+    story.append(
+        _kv_table(
+            [
+                ("Released on", f"{release['released_on']} by {data['released_by']}"),
+                ("Expires", release["expires_on"]),
+                (
+                    "Re-check",
+                    f"every {release['recheck_interval_days']} days; drift tolerance "
+                    f"± {release['tolerance_rel'] * 100:.2f} % of the certified value",
+                ),
+                ("Supersedes", f"release {release['supersedes_id']}" if release["supersedes_id"] else "— (first release)"),
+            ],
+            (45 * mm, 135 * mm),
+        )
+    )
 
     story.append(Paragraph("Batch", _H2))
     assay = f", {batch['concentrate_assay_w_w'] * 100:.1f} % w/w" if batch.get("concentrate_assay_w_w") else ""
-    story.append(_kv_table([
-        ("Prepared", f"{batch['prepared_on']} by {batch['prepared_by']}"),
-        ("Volume", f"{batch['volume_l']:g} L"),
-        ("Concentrate lot", f"{batch['concentrate_lot'] or '—'}{assay}"),
-        ("Water", batch["water_grade"] or "—"),
-        ("Container", batch["container"] or "—"),
-    ], (45 * mm, 135 * mm)))
+    story.append(
+        _kv_table(
+            [
+                ("Prepared", f"{batch['prepared_on']} by {batch['prepared_by']}"),
+                ("Volume", f"{batch['volume_l']:g} L"),
+                ("Concentrate lot", f"{batch['concentrate_lot'] or '—'}{assay}"),
+                ("Water", batch["water_grade"] or "—"),
+                ("Container", batch["container"] or "—"),
+            ],
+            (45 * mm, 135 * mm),
+        )
+    )
 
     story.append(Paragraph("Traceability", _H2))
     if run["method"] == "primary" and data["lot"] is not None:
         story.append(_p("Standardized against a weighed primary standard:", _BODY))
         story.append(_kv_table(_lot_rows(data["lot"]), (45 * mm, 135 * mm)))
     else:
-        story.append(_p("Secondary standardization: aliquots titrated against a certified reference batch. "
-                        "The chain, from this batch down to the primary standard:", _BODY))
+        story.append(
+            _p(
+                "Secondary standardization: aliquots titrated against a certified reference batch. "
+                "The chain, from this batch down to the primary standard:",
+                _BODY,
+            )
+        )
         rows = []
         for i, step in enumerate(data["chain"], start=1):
             rel = step["release"]
             ref_run = step["run"]
-            basis = (f"lot {step['lot']['code']} ({step['lot']['substance']}, assay "
-                     f"{step['lot']['assay'] * 100:.3f} % ± {step['lot']['assay_expanded_u'] * 100:.3f} %, "
-                     f"k = {step['lot']['assay_k']:g})" if step["lot"] else "a further reference batch (next row)")
-            rows.append([i, step["batch"]["code"],
-                         f"release {rel['id']} of {rel['released_on']}: "
-                         f"{format_molarity(rel['molarity'], rel['expanded_u'], rel['k'])}",
-                         f"{ref_run['performed_on']}, against {basis}"])
+            basis = (
+                f"lot {step['lot']['code']} ({step['lot']['substance']}, assay "
+                f"{step['lot']['assay'] * 100:.3f} % ± {step['lot']['assay_expanded_u'] * 100:.3f} %, "
+                f"k = {step['lot']['assay_k']:g})"
+                if step["lot"]
+                else "a further reference batch (next row)"
+            )
+            rows.append(
+                [
+                    i,
+                    step["batch"]["code"],
+                    f"release {rel['id']} of {rel['released_on']}: "
+                    f"{format_molarity(rel['molarity'], rel['expanded_u'], rel['k'])}",
+                    f"{ref_run['performed_on']}, against {basis}",
+                ]
+            )
         if not rows:
             rows.append(["—", "—", "the reference release could not be traced in the records", "—"])
-        story.append(_grid(["Step", "Reference batch", "Its release used", "That release rests on"], rows,
-                           [11 * mm, 30 * mm, 64 * mm, 75 * mm]))
+        story.append(
+            _grid(
+                ["Step", "Reference batch", "Its release used", "That release rests on"],
+                rows,
+                [11 * mm, 30 * mm, 64 * mm, 75 * mm],
+            )
+        )
 
     story.append(Paragraph("Standardization", _H2))
-    story.append(_kv_table([
-        ("Performed", f"{run['performed_on']} by {run['analyst']} (recorded by {data['recorded_by']} at "
-                      f"{run['recorded_at']})"),
-        ("Method", "primary standard, weighed" if run["method"] == "primary" else "secondary, against a "
-                                                                                   "certified reference batch"),
-        ("End point", run["endpoint"] or "—"),
-        ("Burette", f"{run['burette_capacity_ml']:g} mL" if run["burette_capacity_ml"] else "—"),
-        ("Temperature", f"{run['temperature_c']:g} °C" if run["temperature_c"] is not None else "not recorded"),
-        ("Notes", run["notes"] or "—"),
-    ], (45 * mm, 135 * mm)))
+    story.append(
+        _kv_table(
+            [
+                (
+                    "Performed",
+                    f"{run['performed_on']} by {run['analyst']} (recorded by {data['recorded_by']} at {run['recorded_at']})",
+                ),
+                (
+                    "Method",
+                    "primary standard, weighed"
+                    if run["method"] == "primary"
+                    else "secondary, against a certified reference batch",
+                ),
+                ("End point", run["endpoint"] or "—"),
+                ("Burette", f"{run['burette_capacity_ml']:g} mL" if run["burette_capacity_ml"] else "—"),
+                ("Temperature", f"{run['temperature_c']:g} °C" if run["temperature_c"] is not None else "not recorded"),
+                ("Notes", run["notes"] or "—"),
+            ],
+            (45 * mm, 135 * mm),
+        )
+    )
     header, rows, widths, shaded = _replicate_rows(data)
     story += [Spacer(1, 3 * mm), _grid(header, rows, widths, shaded)]
 
@@ -377,48 +478,91 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
     screening = result.get("screening", [])
     if screening:
         story.append(Paragraph("Outlier screening", _H2))
-        story.append(_grid(["Test", "Result"], [[s.get("test", "").capitalize(), s.get("note", "")] for s in screening],
-                           [22 * mm, 158 * mm]))
+        story.append(
+            _grid(
+                ["Test", "Result"], [[s.get("test", "").capitalize(), s.get("note", "")] for s in screening], [22 * mm, 158 * mm]
+            )
+        )
     story.append(Paragraph("Exclusions", _H2))
     if run["exclusions"]:
-        story.append(_grid(["Replicate", "Reason", "Recorded"],
-                           [[e["position"], e["reason"], f"{e['recorded_at']} by {e['recorded_by']}"]
-                            for e in run["exclusions"]], [20 * mm, 100 * mm, 60 * mm]))
+        story.append(
+            _grid(
+                ["Replicate", "Reason", "Recorded"],
+                [[e["position"], e["reason"], f"{e['recorded_at']} by {e['recorded_by']}"] for e in run["exclusions"]],
+                [20 * mm, 100 * mm, 60 * mm],
+            )
+        )
     else:
         story.append(_p("None: every replicate was used.", _BODY))
 
     story.append(Paragraph("Uncertainty budget", _H2))
-    story.append(_p("Each input's standard uncertainty, relative uncertainty and share of u² (GUM, JCGM 100:2008), "
-                    "as computed when the run was recorded.", _SMALL))
-    story += [Spacer(1, 2 * mm), _grid(["Input", "Value", "u", "u relative", "Share of u²"], _budget_rows(result),
-                                       [78 * mm, 28 * mm, 28 * mm, 24 * mm, 22 * mm])]
+    story.append(
+        _p(
+            "Each input's standard uncertainty, relative uncertainty and share of u² (GUM, JCGM 100:2008), "
+            "as computed when the run was recorded.",
+            _SMALL,
+        )
+    )
+    story += [
+        Spacer(1, 2 * mm),
+        _grid(
+            ["Input", "Value", "u", "u relative", "Share of u²"],
+            _budget_rows(result),
+            [78 * mm, 28 * mm, 28 * mm, 24 * mm, 22 * mm],
+        ),
+    ]
 
     story.append(Paragraph("Drift", _H2))
     chart = _drift_flowable(data["drift"], 180 * mm)
     if chart is not None:
         story.append(chart)
-        story.append(_p(f"The certified value, its tolerance band and the re-checks of this release as of "
-                        f"{data['on'].isoformat()}.", _SMALL))
+        story.append(
+            _p(
+                f"The certified value, its tolerance band and the re-checks of this release as of {data['on'].isoformat()}.",
+                _SMALL,
+            )
+        )
     else:
         story.append(_p("No drift chart: this release has no drift record yet.", _BODY))
 
     decision = data["decision"]
-    sig = Table([["Standardized by (signature)", "", "Date", ""], ["Released by (signature)", "", "Date", ""]],
-                colWidths=[48 * mm, 72 * mm, 14 * mm, 46 * mm], rowHeights=[12 * mm, 12 * mm], hAlign="LEFT")
-    sig.setStyle(TableStyle([
-        ("FONT", (0, 0), (-1, -1), "Helvetica", 8.5), ("VALIGN", (0, 0), (-1, -1), "BOTTOM"),
-        ("LINEBELOW", (1, 0), (1, -1), 0.6, _INK), ("LINEBELOW", (3, 0), (3, -1), 0.6, _INK),
-    ]))
+    sig = Table(
+        [["Standardized by (signature)", "", "Date", ""], ["Released by (signature)", "", "Date", ""]],
+        colWidths=[48 * mm, 72 * mm, 14 * mm, 46 * mm],
+        rowHeights=[12 * mm, 12 * mm],
+        hAlign="LEFT",
+    )
+    sig.setStyle(
+        TableStyle(
+            [
+                ("FONT", (0, 0), (-1, -1), "Helvetica", 8.5),
+                ("VALIGN", (0, 0), (-1, -1), "BOTTOM"),
+                ("LINEBELOW", (1, 0), (1, -1), 0.6, _INK),
+                ("LINEBELOW", (3, 0), (3, -1), 0.6, _INK),
+            ]
+        )
+    )
     # The people and the lines to sign stay on one page.
-    story.append(KeepTogether([
-        Paragraph("Decision and signatures", _H2),
-        _kv_table([
-            ("Standardized by", f"{run['analyst']} on {run['performed_on']}"),
-            ("Accepted and released by", f"{data['released_by']} at {release['recorded_at']}"
-             + (f" (note: {decision['reason']})" if decision and decision["reason"] else "")),
-        ], (45 * mm, 135 * mm)),
-        Spacer(1, 2 * mm), sig,
-    ]))
+    story.append(
+        KeepTogether(
+            [
+                Paragraph("Decision and signatures", _H2),
+                _kv_table(
+                    [
+                        ("Standardized by", f"{run['analyst']} on {run['performed_on']}"),
+                        (
+                            "Accepted and released by",
+                            f"{data['released_by']} at {release['recorded_at']}"
+                            + (f" (note: {decision['reason']})" if decision and decision["reason"] else ""),
+                        ),
+                    ],
+                    (45 * mm, 135 * mm),
+                ),
+                Spacer(1, 2 * mm),
+                sig,
+            ]
+        )
+    )
     return story
 
 
@@ -450,12 +594,21 @@ def build_certificate(data: Mapping[str, Any]) -> bytes:
     """The certificate of standardization as A4 PDF bytes, from certificate_data(...)."""
     buf = io.BytesIO()
     release, batch = data["release"], data["batch"]
-    footer = printable(f"stockroom · certificate of standardization · batch {batch['code']} · release {release['id']} "
-                       f"· issued {data['on'].isoformat()}")
+    footer = printable(
+        f"stockroom · certificate of standardization · batch {batch['code']} · release {release['id']} "
+        f"· issued {data['on'].isoformat()}"
+    )
     doc = SimpleDocTemplate(
-        buf, pagesize=A4, leftMargin=15 * mm, rightMargin=15 * mm, topMargin=14 * mm, bottomMargin=16 * mm,
+        buf,
+        pagesize=A4,
+        leftMargin=15 * mm,
+        rightMargin=15 * mm,
+        topMargin=14 * mm,
+        bottomMargin=16 * mm,
         title=printable(f"Certificate of standardization, {batch['code']}, release {release['id']}"),
-        author="stockroom", creator="stockroom", subject=printable(f"{batch['reagent']} {batch['nominal_molarity']:g} mol/L"),
+        author="stockroom",
+        creator="stockroom",
+        subject=printable(f"{batch['reagent']} {batch['nominal_molarity']:g} mol/L"),
         invariant=1,
     )
     doc.build(_story(data), canvasmaker=lambda *a, **k: _NumberedCanvas(*a, footer=footer, **k))

@@ -63,7 +63,7 @@ def _y_ticks(lo: float, hi: float) -> tuple[list[float], int]:
         v += step
     # Enough decimals to write every tick exactly (a 2.5 step needs one more than its magnitude).
     decimals = max(0, -math.floor(math.log10(step) + 1e-9))
-    while abs(step * 10 ** decimals - round(step * 10 ** decimals)) > 1e-6 and decimals < 12:
+    while abs(step * 10**decimals - round(step * 10**decimals)) > 1e-6 and decimals < 12:
         decimals += 1
     return ticks, decimals
 
@@ -88,8 +88,9 @@ def _date_ticks(start: dt.date, end: dt.date) -> list[dt.date]:
     return [start + dt.timedelta(days=i) for i in range(0, span + 1, step)]
 
 
-def _clip_segment(x1: float, y1: float, x2: float, y2: float, box: tuple[float, float, float, float]
-                  ) -> tuple[float, float, float, float] | None:
+def _clip_segment(
+    x1: float, y1: float, x2: float, y2: float, box: tuple[float, float, float, float]
+) -> tuple[float, float, float, float] | None:
     """Liang–Barsky clip of a segment to box (x0, y0, x1, y1); None when it lies wholly outside."""
     bx0, by0, bx1, by1 = box
     dx, dy = x2 - x1, y2 - y1
@@ -155,8 +156,14 @@ def _marker(report: DriftReport) -> tuple[dt.date, str] | None:
 BASE_FONT = 8.5  # pt: the size the layout below is drawn at; other sizes scale the whole drawing
 
 
-def drift_drawing(report: DriftReport, width_pt: float = 640, height_pt: float = 300, *,
-                  on_label: str | None = None, font_size: float | None = None) -> Drawing:
+def drift_drawing(
+    report: DriftReport,
+    width_pt: float = 640,
+    height_pt: float = 300,
+    *,
+    on_label: str | None = None,
+    font_size: float | None = None,
+) -> Drawing:
     """The drift chart of one release as a reportlab Drawing (vector; embed in a PDF or render to SVG).
 
     report: the release's drift (stockroom.drift.assess / policy.drift_on); width_pt, height_pt: size in
@@ -203,18 +210,15 @@ def _draw(report: DriftReport, width_pt: float, height_pt: float, on_label: str 
     band = report.band
     # Plot area and tolerance band, grid, then the prediction band, then the lines over them.
     d.add(Rect(x0, y0, x1 - x0, y1 - y0, fillColor=colors.white, strokeColor=None))
-    d.add(Rect(x0, clamp(Y(band.low)), x1 - x0, clamp(Y(band.high)) - clamp(Y(band.low)), fillColor=BAND_FILL,
-               strokeColor=None))
+    d.add(Rect(x0, clamp(Y(band.low)), x1 - x0, clamp(Y(band.high)) - clamp(Y(band.low)), fillColor=BAND_FILL, strokeColor=None))
     ticks, decimals = _y_ticks(ylo, yhi)
     for v in ticks:
         d.add(Line(x0, Y(v), x1, Y(v), strokeColor=GRID, strokeWidth=0.5))
-        d.add(String(x0 - 4, Y(v) - fs / 3, f"{v:.{decimals}f}", fontName=FONT, fontSize=fs, fillColor=MUTED,
-                     textAnchor="end"))
+        d.add(String(x0 - 4, Y(v) - fs / 3, f"{v:.{decimals}f}", fontName=FONT, fontSize=fs, fillColor=MUTED, textAnchor="end"))
     for day in _date_ticks(start, end):
         d.add(Line(X(day), y0, X(day), y1, strokeColor=GRID, strokeWidth=0.5))
         d.add(Line(X(day), y0, X(day), y0 - 3, strokeColor=MUTED, strokeWidth=0.6))
-        d.add(String(X(day), y0 - 5 - fs, day.isoformat(), fontName=FONT, fontSize=fs, fillColor=MUTED,
-                     textAnchor="middle"))
+        d.add(String(X(day), y0 - 5 - fs, day.isoformat(), fontName=FONT, fontSize=fs, fillColor=MUTED, textAnchor="middle"))
     t_end = (end - start).days
     if fit is not None:
         upper, lower = [], []
@@ -233,8 +237,10 @@ def _draw(report: DriftReport, width_pt: float, height_pt: float, on_label: str 
     d.add(Line(x0, Y(band.certified), x1, Y(band.certified), strokeColor=CERTIFIED, strokeWidth=1.2))
     if fit is not None:
         last_t = fit.days(fit.last_on)
-        segments: tuple[tuple[tuple[float, float], list[float] | None], ...] = (((0, last_t), None),
-                                                                                ((last_t, t_end), [5.0, 3.0]))
+        segments: tuple[tuple[tuple[float, float], list[float] | None], ...] = (
+            ((0, last_t), None),
+            ((last_t, t_end), [5.0, 3.0]),
+        )
         for (ta, tb), dash in segments:
             if tb <= ta:
                 continue
@@ -246,8 +252,17 @@ def _draw(report: DriftReport, width_pt: float, height_pt: float, on_label: str 
     if start < report.expires_on <= end:
         xe = X(report.expires_on)
         d.add(Line(xe, y0, xe, y1, strokeColor=MUTED, strokeWidth=0.9))
-        d.add(String(xe - 3, y0 + 4, f"expires {report.expires_on.isoformat()}", fontName=FONT, fontSize=fs,
-                     fillColor=MUTED, textAnchor="end"))
+        d.add(
+            String(
+                xe - 3,
+                y0 + 4,
+                f"expires {report.expires_on.isoformat()}",
+                fontName=FONT,
+                fontSize=fs,
+                fillColor=MUTED,
+                textAnchor="end",
+            )
+        )
     if start <= report.on <= end:
         xo = X(report.on)
         d.add(_dashed(xo, y0, xo, y1, [2, 2], strokeColor=ON_LINE, strokeWidth=0.9))
@@ -256,8 +271,9 @@ def _draw(report: DriftReport, width_pt: float, height_pt: float, on_label: str 
         w = stringWidth(label, FONT, fs)
         tx = xo + (-3 if anchor == "end" else 3)
         # A white ground keeps the date readable where it crosses a band edge or the prediction band.
-        d.add(Rect(tx - w - 1 if anchor == "end" else tx - 1, y1 - fs - 4, w + 2, fs + 2, fillColor=colors.white,
-                   strokeColor=None))
+        d.add(
+            Rect(tx - w - 1 if anchor == "end" else tx - 1, y1 - fs - 4, w + 2, fs + 2, fillColor=colors.white, strokeColor=None)
+        )
         d.add(String(tx, y1 - fs - 2, label, fontName=FONT, fontSize=fs, fillColor=ON_LINE, textAnchor=anchor))
     if fit is not None and marker is not None and start <= marker[0] <= end:
         edge = band.low if fit.slope < 0 else band.high
@@ -285,8 +301,7 @@ def _draw(report: DriftReport, width_pt: float, height_pt: float, on_label: str 
     # Frame, axis titles, legend and the note when there is no trend.
     d.add(Rect(x0, y0, x1 - x0, y1 - y0, fillColor=None, strokeColor=MUTED, strokeWidth=0.8))
     d.add(String((x0 + x1) / 2, 6, "date", fontName=FONT, fontSize=fs, fillColor=INK, textAnchor="middle"))
-    ytitle = Group(String(0, 0, "molarity at 20 °C (mol/L)", fontName=FONT, fontSize=fs, fillColor=INK,
-                          textAnchor="middle"))
+    ytitle = Group(String(0, 0, "molarity at 20 °C (mol/L)", fontName=FONT, fontSize=fs, fillColor=INK, textAnchor="middle"))
     ytitle.translate(11, (y0 + y1) / 2)
     ytitle.rotate(90)
     d.add(ytitle)
@@ -297,30 +312,43 @@ def _draw(report: DriftReport, width_pt: float, height_pt: float, on_label: str 
 def _triangle(x: float, y: float, pointing_up: bool, size: float = 4.5) -> Polygon:
     """A small filled triangle whose tip touches (x, y): under the lower edge pointing up, or the reverse."""
     base = y - 1.6 * size if pointing_up else y + 1.6 * size
-    return Polygon([x - size, base, x + size, base, x, y], fillColor=OUTSIDE, strokeColor=colors.white,
-                   strokeWidth=0.5)
+    return Polygon([x - size, base, x + size, base, x, y], fillColor=OUTSIDE, strokeColor=colors.white, strokeWidth=0.5)
 
 
-def _legend(d: Drawing | None, report: DriftReport, x: float, y: float, x_max: float, fs: float,
-            marker: tuple[dt.date, str] | None) -> int:
+def _legend(
+    d: Drawing | None, report: DriftReport, x: float, y: float, x_max: float, fs: float, marker: tuple[dt.date, str] | None
+) -> int:
     """Draw the legend from (x, y) leftwards-to-right, wrapping at x_max; return the rows used (d None: measure)."""
     band = report.band
     items: list[tuple[Callable[[float, float], Sequence[object]], str]] = [
-        (lambda a, b: [Line(a, b + 3, a + 14, b + 3, strokeColor=CERTIFIED, strokeWidth=1.2)],
-         f"certified {_fmt_mol(band.certified)} mol/L"),
-        (lambda a, b: [Rect(a, b - 1, 14, 8, fillColor=BAND_FILL, strokeColor=BAND_EDGE, strokeWidth=0.6)],
-         f"tolerance ±{band.tolerance_rel * 100:.2f} %"),
-        (lambda a, b: [Rect(a + 4, b, 6, 6, fillColor=colors.white, strokeColor=POINT, strokeWidth=1.2)],
-         "release"),
-        (lambda a, b: [Line(a + 7, b - 2, a + 7, b + 8, strokeColor=POINT, strokeWidth=0.9),
-                       Circle(a + 7, b + 3, 2.6, fillColor=POINT, strokeColor=colors.white, strokeWidth=0.5)],
-         "re-check, bar ± U"),
+        (
+            lambda a, b: [Line(a, b + 3, a + 14, b + 3, strokeColor=CERTIFIED, strokeWidth=1.2)],
+            f"certified {_fmt_mol(band.certified)} mol/L",
+        ),
+        (
+            lambda a, b: [Rect(a, b - 1, 14, 8, fillColor=BAND_FILL, strokeColor=BAND_EDGE, strokeWidth=0.6)],
+            f"tolerance ±{band.tolerance_rel * 100:.2f} %",
+        ),
+        (lambda a, b: [Rect(a + 4, b, 6, 6, fillColor=colors.white, strokeColor=POINT, strokeWidth=1.2)], "release"),
+        (
+            lambda a, b: [
+                Line(a + 7, b - 2, a + 7, b + 8, strokeColor=POINT, strokeWidth=0.9),
+                Circle(a + 7, b + 3, 2.6, fillColor=POINT, strokeColor=colors.white, strokeWidth=0.5),
+            ],
+            "re-check, bar ± U",
+        ),
     ]
     if report.fit is not None:
         f = report.fit
-        items.append((lambda a, b: [Rect(a, b - 1, 14, 8, fillColor=PI_FILL, strokeColor=None),
-                                    Line(a, b + 3, a + 14, b + 3, strokeColor=TREND, strokeWidth=1.4)],
-                      f"trend (dashed ahead) and {round(f.confidence * 100)} % prediction band"))
+        items.append(
+            (
+                lambda a, b: [
+                    Rect(a, b - 1, 14, 8, fillColor=PI_FILL, strokeColor=None),
+                    Line(a, b + 3, a + 14, b + 3, strokeColor=TREND, strokeWidth=1.4),
+                ],
+                f"trend (dashed ahead) and {round(f.confidence * 100)} % prediction band",
+            )
+        )
     if marker is not None:
         items.append((lambda a, b: [_triangle(a + 7, b + 7, pointing_up=True)], marker[1]))
     if report.fit is None and report.fit_note:
@@ -338,8 +366,15 @@ def _legend(d: Drawing | None, report: DriftReport, x: float, y: float, x_max: f
     return rows
 
 
-def drift_svg(report: DriftReport, width_pt: float = 640, height_pt: float = 300, *, title: str = "",
-              on_label: str | None = None, font_size: float | None = None) -> str:
+def drift_svg(
+    report: DriftReport,
+    width_pt: float = 640,
+    height_pt: float = 300,
+    *,
+    title: str = "",
+    on_label: str | None = None,
+    font_size: float | None = None,
+) -> str:
     """The drift chart as SVG text (UTF-8), with `title` as its accessible title; sizes in points = px."""
     svg = renderSVG.drawToString(drift_drawing(report, width_pt, height_pt, on_label=on_label, font_size=font_size))
     summary = title or "Drift chart"
@@ -351,12 +386,13 @@ def drift_svg(report: DriftReport, width_pt: float = 640, height_pt: float = 300
 def _describe(report: DriftReport) -> str:
     """A sentence saying what the chart shows, for screen readers and the SVG's desc."""
     band = report.band
-    text = (f"Certified {band.certified:.5f} mol/L, tolerance ±{band.tolerance_rel * 100:.2f} %, "
-            f"{len(report.points)} standardization(s) from {report.released_on.isoformat()}.")
+    text = (
+        f"Certified {band.certified:.5f} mol/L, tolerance ±{band.tolerance_rel * 100:.2f} %, "
+        f"{len(report.points)} standardization(s) from {report.released_on.isoformat()}."
+    )
     if report.fit is not None:
         f = report.fit
-        text += (f" Trend {f.slope_per_period / band.certified * 100:+.3f} % per 30 days "
-                 f"(p = {f.p_value:.2g}).")
+        text += f" Trend {f.slope_per_period / band.certified * 100:+.3f} % per 30 days (p = {f.p_value:.2g})."
     if report.forecast is not None:
         text += f" The trend line is outside the band from {report.forecast.isoformat()}."
     return text

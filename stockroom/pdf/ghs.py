@@ -22,15 +22,14 @@ from stockroom.hazards import PICTOGRAMS
 GHS_RED = colors.Color(0.86, 0.0, 0.05)
 BLACK = colors.black
 WHITE = colors.white
-BORDER = 6.0           # design units: width of the red border measured across it
-_HALF = 50.0           # half-diagonal of the outer diamond
+BORDER = 6.0  # design units: width of the red border measured across it
+_HALF = 50.0  # half-diagonal of the outer diamond
 _INNER = _HALF - BORDER * math.sqrt(2)
 
 Point = tuple[float, float]
 
 
-def _poly(points: Sequence[Point], fill: colors.Color = BLACK, stroke: colors.Color | None = None,
-          width: float = 0) -> Polygon:
+def _poly(points: Sequence[Point], fill: colors.Color = BLACK, stroke: colors.Color | None = None, width: float = 0) -> Polygon:
     flat: list[float] = []
     for x, y in points:
         flat += [x, y]
@@ -46,9 +45,12 @@ def _spline(points: Sequence[Point], steps: int = 8) -> list[Point]:
         for s in range(steps):
             t = s / steps
             t2, t3 = t * t, t * t * t
-            out.append(tuple(  # type: ignore[arg-type]
-                0.5 * ((2 * b) + (-a + c) * t + (2 * a - 5 * b + 4 * c - d) * t2 + (-a + 3 * b - 3 * c + d) * t3)
-                for a, b, c, d in zip(p0, p1, p2, p3, strict=True)))
+            out.append(
+                tuple(  # type: ignore[arg-type]
+                    0.5 * ((2 * b) + (-a + c) * t + (2 * a - 5 * b + 4 * c - d) * t2 + (-a + 3 * b - 3 * c + d) * t3)
+                    for a, b, c, d in zip(p0, p1, p2, p3, strict=True)
+                )
+            )
     return out
 
 
@@ -72,8 +74,12 @@ def _tube(closed: Point, mouth: Point, width: float = 7.0) -> list:
     liquid_from = 0.45 * length
     lx, ly = cx + dx * liquid_from, cy + dy * liquid_from
     inner = r - 1.6
-    liquid = [(lx + nx * inner, ly + ny * inner), (mx + nx * inner, my + ny * inner),
-              (mx - nx * inner, my - ny * inner), (lx - nx * inner, ly - ny * inner)]
+    liquid = [
+        (lx + nx * inner, ly + ny * inner),
+        (mx + nx * inner, my + ny * inner),
+        (mx - nx * inner, my - ny * inner),
+        (lx - nx * inner, ly - ny * inner),
+    ]
     return [_poly(outline, fill=WHITE, stroke=BLACK, width=2.2), _poly(liquid)]
 
 
@@ -88,12 +94,48 @@ def _corrosion(g: Group) -> None:
     for shape in _drops(31.0, (57.0, 51.0)) + _drops(69.0, (57.0, 51.0)):
         g.add(shape)
     # The bar, with a bite eaten out where the drops land.
-    g.add(_poly([(17, 46.5), (26, 46.5), (27.5, 43.0), (29.5, 45.2), (31.5, 41.8), (33.5, 44.8), (35.5, 43.2),
-                 (37, 46.5), (47, 46.5), (47, 39.0), (17, 39.0)]))
+    g.add(
+        _poly(
+            [
+                (17, 46.5),
+                (26, 46.5),
+                (27.5, 43.0),
+                (29.5, 45.2),
+                (31.5, 41.8),
+                (33.5, 44.8),
+                (35.5, 43.2),
+                (37, 46.5),
+                (47, 46.5),
+                (47, 39.0),
+                (17, 39.0),
+            ]
+        )
+    )
     # The hand, palm down, fingers to the right, a bite eaten out of its back.
-    g.add(_poly([(53, 38.5), (53, 46.0), (56, 47.5), (63.5, 47.8), (65.5, 44.2), (67.5, 46.6), (69.5, 43.6),
-                 (71.5, 46.8), (78.5, 46.2), (81.5, 45.0), (81.5, 43.8), (76.5, 43.4), (80.5, 42.4), (80.5, 41.2),
-                 (75.5, 40.8), (78.5, 39.9), (78.0, 38.7), (66, 38.5)]))
+    g.add(
+        _poly(
+            [
+                (53, 38.5),
+                (53, 46.0),
+                (56, 47.5),
+                (63.5, 47.8),
+                (65.5, 44.2),
+                (67.5, 46.6),
+                (69.5, 43.6),
+                (71.5, 46.8),
+                (78.5, 46.2),
+                (81.5, 45.0),
+                (81.5, 43.8),
+                (76.5, 43.4),
+                (80.5, 42.4),
+                (80.5, 41.2),
+                (75.5, 40.8),
+                (78.5, 39.9),
+                (78.0, 38.7),
+                (66, 38.5),
+            ]
+        )
+    )
     # The surface both rest on.
     g.add(_poly([(31, 35.5), (69, 35.5), (69, 29.0), (31, 29.0)]))
 
@@ -101,16 +143,26 @@ def _corrosion(g: Group) -> None:
 def _exclamation(g: Group) -> None:
     """GHS07: a heavy exclamation mark."""
     top, bottom = 79.0, 38.0
-    g.add(_poly(_spline([(44.0, top - 2), (50.0, top + 1.5), (56.0, top - 2), (53.2, bottom), (46.8, bottom)],
-                        steps=6)))
+    g.add(_poly(_spline([(44.0, top - 2), (50.0, top + 1.5), (56.0, top - 2), (53.2, bottom), (46.8, bottom)], steps=6)))
     g.add(Circle(50, 29.5, 5.6, fillColor=BLACK, strokeColor=None))
 
 
 # A flame in a unit box: x from -0.5 to 0.5, y from 0 (base) to 1 (highest tongue).
-_FLAME = [(0.0, 0.0), (-0.38, 0.12), (-0.47, 0.4), (-0.33, 0.66), (-0.24, 0.86), (-0.12, 0.62), (-0.02, 0.78),
-          (0.06, 1.0), (0.2, 0.74), (0.3, 0.84), (0.45, 0.5), (0.4, 0.16)]
-_FLAME_CORE = [(0.0, 0.08), (-0.18, 0.2), (-0.16, 0.38), (-0.05, 0.5), (0.02, 0.62), (0.12, 0.46), (0.2, 0.28),
-               (0.14, 0.12)]
+_FLAME = [
+    (0.0, 0.0),
+    (-0.38, 0.12),
+    (-0.47, 0.4),
+    (-0.33, 0.66),
+    (-0.24, 0.86),
+    (-0.12, 0.62),
+    (-0.02, 0.78),
+    (0.06, 1.0),
+    (0.2, 0.74),
+    (0.3, 0.84),
+    (0.45, 0.5),
+    (0.4, 0.16),
+]
+_FLAME_CORE = [(0.0, 0.08), (-0.18, 0.2), (-0.16, 0.38), (-0.05, 0.5), (0.02, 0.62), (0.12, 0.46), (0.2, 0.28), (0.14, 0.12)]
 
 
 def _flame_at(g: Group, x: float, y: float, width: float, height: float, core_fill: colors.Color = WHITE) -> None:

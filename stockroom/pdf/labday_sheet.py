@@ -27,18 +27,18 @@ BAD = colors.HexColor("#9b2226")
 WARN = colors.HexColor("#8a5a00")
 WARN_BG = colors.HexColor("#fdf0d5")
 
+
 def _styles() -> dict[str, ParagraphStyle]:
     base = getSampleStyleSheet()
-    body = ParagraphStyle("body", parent=base["BodyText"], fontName="Helvetica", fontSize=9.5, leading=12.5,
-                          textColor=INK, alignment=TA_LEFT)
+    body = ParagraphStyle(
+        "body", parent=base["BodyText"], fontName="Helvetica", fontSize=9.5, leading=12.5, textColor=INK, alignment=TA_LEFT
+    )
     return {
-        "title": ParagraphStyle("title", parent=body, fontName="Helvetica-Bold", fontSize=17, leading=21,
-                                spaceAfter=2),
+        "title": ParagraphStyle("title", parent=body, fontName="Helvetica-Bold", fontSize=17, leading=21, spaceAfter=2),
         "sub": ParagraphStyle("sub", parent=body, textColor=MUTED, fontSize=9.5, leading=12.5),
         "body": body,
         "cell": ParagraphStyle("cell", parent=body, fontSize=9, leading=11.5),
-        "head": ParagraphStyle("head", parent=body, fontName="Helvetica-Bold", fontSize=8.5, leading=10.5,
-                               textColor=MUTED),
+        "head": ParagraphStyle("head", parent=body, fontName="Helvetica-Bold", fontSize=8.5, leading=10.5, textColor=MUTED),
         "value": ParagraphStyle("value", parent=body, fontName="Helvetica-Bold", fontSize=12.5, leading=15),
         "flag": ParagraphStyle("flag", parent=body, fontSize=8.5, leading=11, textColor=BAD),
         "note": ParagraphStyle("note", parent=body, fontSize=8, leading=10.5, textColor=MUTED),
@@ -51,14 +51,14 @@ def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[object]:
     t = chemistry.titrant(e.batch.reagent)
     d = e.decimals
     use = e.molarity_at_bench if e.molarity_at_bench is not None else r.molarity
-    use_note = (f"at the bench, {e.bench_temperature_c:g} °C" if e.molarity_at_bench is not None
-                else "at 20 °C")
-    certified = (f"{r.molarity:.{d}f} ± {r.U:.{d}f} mol/L<br/>k = {r.k:g}, at 20 °C<br/>"
-                 f"released {r.released_on.isoformat()}<br/>expires {r.expires_on.isoformat()}")
+    use_note = f"at the bench, {e.bench_temperature_c:g} °C" if e.molarity_at_bench is not None else "at 20 °C"
+    certified = (
+        f"{r.molarity:.{d}f} ± {r.U:.{d}f} mol/L<br/>k = {r.k:g}, at 20 °C<br/>"
+        f"released {r.released_on.isoformat()}<br/>expires {r.expires_on.isoformat()}"
+    )
     if e.prediction is not None:
         p = e.prediction
-        trend = (f"{p.molarity:.{d}f} mol/L<br/>{round(p.confidence * 100)} % interval {p.pi_low:.{d}f} to "
-                 f"{p.pi_high:.{d}f}")
+        trend = f"{p.molarity:.{d}f} mol/L<br/>{round(p.confidence * 100)} % interval {p.pi_low:.{d}f} to {p.pi_high:.{d}f}"
         if e.fit is not None:
             trend += f"<br/>{e.fit.n} standardizations to {e.fit.last_on.isoformat()}"
     else:
@@ -70,8 +70,7 @@ def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[object]:
     flag_text = "<br/>".join(notes) if notes else "In service; nothing to report."
     style = st["flag"] if e.flags or advice else st["cell"]
     return [
-        Paragraph(f"<b>{escape(e.batch.code)}</b><br/>{escape(t.name)}, {e.batch.nominal_molarity:g} mol/L nominal",
-                  st["cell"]),
+        Paragraph(f"<b>{escape(e.batch.code)}</b><br/>{escape(t.name)}, {e.batch.nominal_molarity:g} mol/L nominal", st["cell"]),
         [Paragraph(f"{use:.{d}f} mol/L", st["value"]), Paragraph(use_note, st["note"])],
         Paragraph(certified, st["cell"]),
         Paragraph(trend, st["cell"]),
@@ -84,8 +83,12 @@ def _footer(printed_on: dt.date):  # type: ignore[no-untyped-def]
         canvas.saveState()
         canvas.setFont("Helvetica", 7.5)
         canvas.setFillColor(MUTED)
-        canvas.drawString(doc.leftMargin, 10 * mm, f"stockroom lab-day sheet, printed {printed_on.isoformat()}. "
-                          "Check the bottle's label against the batch ID before use.")
+        canvas.drawString(
+            doc.leftMargin,
+            10 * mm,
+            f"stockroom lab-day sheet, printed {printed_on.isoformat()}. "
+            "Check the bottle's label against the batch ID before use.",
+        )
         canvas.drawRightString(A4[0] - doc.rightMargin, 10 * mm, f"page {doc.page}")
         canvas.restoreState()
 
@@ -100,16 +103,28 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
     """
     st = _styles()
     buf = io.BytesIO()
-    doc = SimpleDocTemplate(buf, pagesize=A4, leftMargin=14 * mm, rightMargin=14 * mm, topMargin=14 * mm,
-                            bottomMargin=18 * mm, title=f"Lab day {day.on.isoformat()}", author="stockroom",
-                            subject="Titrant molarities in force on a lab day")
+    doc = SimpleDocTemplate(
+        buf,
+        pagesize=A4,
+        leftMargin=14 * mm,
+        rightMargin=14 * mm,
+        topMargin=14 * mm,
+        bottomMargin=18 * mm,
+        title=f"Lab day {day.on.isoformat()}",
+        author="stockroom",
+        subject="Titrant molarities in force on a lab day",
+    )
     what = f"{day.titrant} for" if day.titrant else "Titrants for"
     story: list[object] = [Paragraph(f"{escape(what)} the lab day {day.on.isoformat()}", st["title"])]
-    sub = (f"Certified molarities in force that day, from the stockroom record as of {printed_on.isoformat()}. "
-           "Values at 20 °C with their expanded uncertainty U (coverage factor k)")
+    sub = (
+        f"Certified molarities in force that day, from the stockroom record as of {printed_on.isoformat()}. "
+        "Values at 20 °C with their expanded uncertainty U (coverage factor k)"
+    )
     if day.bench_temperature_c is not None:
-        sub += (f"; the large figure is the value at the bench temperature, {day.bench_temperature_c:g} °C, for use "
-                "with burette readings taken there")
+        sub += (
+            f"; the large figure is the value at the bench temperature, {day.bench_temperature_c:g} °C, for use "
+            "with burette readings taken there"
+        )
     sub += "."
     if day.future:
         sub += " The day is ahead: flags assume no new standardization before then."
@@ -119,33 +134,53 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
         if day.detail:
             story.append(Paragraph(escape(day.detail), st["body"]))
     else:
-        head = [Paragraph(h, st["head"]) for h in ("Batch", "Use this value", "Certified value",
-                                                     "Trend prediction that day", "Flags")]
-        table = Table([head] + [_row(e, st) for e in day.entries], repeatRows=1,
-                      colWidths=[28 * mm, 36 * mm, 41 * mm, 33 * mm, None])
-        table.setStyle(TableStyle([
-            ("VALIGN", (0, 0), (-1, -1), "TOP"),
-            ("LINEBELOW", (0, 0), (-1, 0), 0.8, INK),
-            ("LINEBELOW", (0, 1), (-1, -1), 0.4, LINE),
-            ("TOPPADDING", (0, 0), (-1, -1), 4),
-            ("BOTTOMPADDING", (0, 0), (-1, -1), 5),
-            ("LEFTPADDING", (0, 0), (-1, -1), 3),
-            ("RIGHTPADDING", (0, 0), (-1, -1), 3),
-        ]))
+        head = [
+            Paragraph(h, st["head"]) for h in ("Batch", "Use this value", "Certified value", "Trend prediction that day", "Flags")
+        ]
+        table = Table(
+            [head] + [_row(e, st) for e in day.entries], repeatRows=1, colWidths=[28 * mm, 36 * mm, 41 * mm, 33 * mm, None]
+        )
+        table.setStyle(
+            TableStyle(
+                [
+                    ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                    ("LINEBELOW", (0, 0), (-1, 0), 0.8, INK),
+                    ("LINEBELOW", (0, 1), (-1, -1), 0.4, LINE),
+                    ("TOPPADDING", (0, 0), (-1, -1), 4),
+                    ("BOTTOMPADDING", (0, 0), (-1, -1), 5),
+                    ("LEFTPADDING", (0, 0), (-1, -1), 3),
+                    ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+                ]
+            )
+        )
         story.append(table)
-        story += [Spacer(1, 4 * mm), Paragraph(
-            "Trend prediction: a weighted straight line through the batch's standardizations since its release, "
-            "with the interval a new re-check on that day would be expected to fall in. The certified value is "
-            "the one to use; the trend tells whether it still holds.", st["note"])]
+        story += [
+            Spacer(1, 4 * mm),
+            Paragraph(
+                "Trend prediction: a weighted straight line through the batch's standardizations since its release, "
+                "with the interval a new re-check on that day would be expected to fall in. The certified value is "
+                "the one to use; the trend tells whether it still holds.",
+                st["note"],
+            ),
+        ]
     story.append(Spacer(1, 5 * mm))
     lines = cautions(day.entries)
-    box = Table([[Paragraph("<b>Safety</b>", st["body"])]] + [[Paragraph(escape(c), st["body"])] for c in lines],
-                colWidths=[A4[0] - 28 * mm])
-    box.setStyle(TableStyle([
-        ("BOX", (0, 0), (-1, -1), 1.4, WARN), ("BACKGROUND", (0, 0), (-1, -1), WARN_BG),
-        ("LEFTPADDING", (0, 0), (-1, -1), 7), ("RIGHTPADDING", (0, 0), (-1, -1), 7),
-        ("TOPPADDING", (0, 0), (-1, -1), 2), ("BOTTOMPADDING", (0, 0), (-1, -1), 3),
-    ]))
+    box = Table(
+        [[Paragraph("<b>Safety</b>", st["body"])]] + [[Paragraph(escape(c), st["body"])] for c in lines],
+        colWidths=[A4[0] - 28 * mm],
+    )
+    box.setStyle(
+        TableStyle(
+            [
+                ("BOX", (0, 0), (-1, -1), 1.4, WARN),
+                ("BACKGROUND", (0, 0), (-1, -1), WARN_BG),
+                ("LEFTPADDING", (0, 0), (-1, -1), 7),
+                ("RIGHTPADDING", (0, 0), (-1, -1), 7),
+                ("TOPPADDING", (0, 0), (-1, -1), 2),
+                ("BOTTOMPADDING", (0, 0), (-1, -1), 3),
+            ]
+        )
+    )
     story.append(KeepTogether([box]))
     footer = _footer(printed_on)
     doc.build(story, onFirstPage=footer, onLaterPages=footer)

@@ -48,10 +48,12 @@ from stockroom.web.formatting import molarity as format_molarity
 
 NBSP = "\u00a0"
 DASH = "—"
-QR_LEVEL = "M"          # error correction M (about 15 % of the code may be damaged and still read)
+QR_LEVEL = "M"  # error correction M (about 15 % of the code may be damaged and still read)
 MAX_COPIES = 200
-REGULATIONS = ("Follow the safety data sheet, local regulations and your institution's chemical hygiene plan; "
-               "they take precedence over this label.")
+REGULATIONS = (
+    "Follow the safety data sheet, local regulations and your institution's chemical hygiene plan; "
+    "they take precedence over this label."
+)
 REGULATIONS_SHORT = "Follow the SDS, local regulations and your chemical hygiene plan."
 NOT_FOR_USE = "NOT FOR USE"
 _NOT_FOR_USE_WHY = {
@@ -59,7 +61,7 @@ _NOT_FOR_USE_WHY = {
     Status.EXPIRED: "expired",
     Status.WITHDRAWN: "withdrawn",
 }
-_SIZE_STEP = 0.25       # pt
+_SIZE_STEP = 0.25  # pt
 _SHRINK_BEFORE_WRAP = 0.8  # a line is first set down to 80 % of its size; below that, wrapping reads better
 _FRAME_PAD_MM = 0.9
 _OUTLINE_GREY = colors.Color(0.6, 0.6, 0.6)
@@ -74,11 +76,14 @@ class LabelOverflow(StockroomError):
     def __init__(self, layout: str, field: str, size_pt: float):
         self.layout = layout
         self.field = field
-        super().__init__(f"the {field.replace('_', ' ')} text does not fit its box on layout {layout!r} even at "
-                         f"{size_pt:g} pt; choose a larger layout")
+        super().__init__(
+            f"the {field.replace('_', ' ')} text does not fit its box on layout {layout!r} even at "
+            f"{size_pt:g} pt; choose a larger layout"
+        )
 
 
 # ---------------------------------------------------------------- what a label says
+
 
 @dataclass(frozen=True)
 class LabelContent:
@@ -136,8 +141,11 @@ def placeholder_values(content: LabelContent, serial: int, codes_only: bool = Fa
         "signal_word": el.signal_word.upper(),
         # A no-break space keeps each code on the line of its text's first word.
         "hazard_statements": "\n".join(f"{code}{NBSP}{text}" for code, text in el.hazard_statements),
-        "precautionary_statements": (f"{p_codes} (see SDS)" if codes_only and p_codes else
-                                     "\n".join(f"{code}{NBSP}{text}" for code, text in el.precautionary_statements)),
+        "precautionary_statements": (
+            f"{p_codes} (see SDS)"
+            if codes_only and p_codes
+            else "\n".join(f"{code}{NBSP}{text}" for code, text in el.precautionary_statements)
+        ),
         "regulations": content.regulations,
         "regulations_short": REGULATIONS_SHORT,
         "serial": format_serial(serial),
@@ -226,8 +234,8 @@ def _break_word(word: str, font: str, size: float, width: float) -> list[str]:
         if current and _width(current + ch, font, size) > width:
             cut = max(current.rfind("/"), current.rfind("+"), current.rfind("-"), current.rfind(NBSP))
             if 0 < cut < len(current) - 1:
-                pieces.append(current[:cut + 1])
-                current = current[cut + 1:]
+                pieces.append(current[: cut + 1])
+                current = current[cut + 1 :]
             else:
                 pieces.append(current)
                 current = ""
@@ -268,8 +276,9 @@ def _sizes(top: float, bottom: float) -> list[float]:
     return sizes
 
 
-def fit_text(name: str, text: str, font: str, size: float, min_size: float, width: float, height: float,
-             leading: float) -> FieldFit | None:
+def fit_text(
+    name: str, text: str, font: str, size: float, min_size: float, width: float, height: float, leading: float
+) -> FieldFit | None:
     """The largest setting of `text` in a width x height pt box, or None when nothing fits.
 
     Prefers the text unwrapped, set down to 80 % of `size`; then wrapped, from `size` down to `min_size`
@@ -278,8 +287,16 @@ def fit_text(name: str, text: str, font: str, size: float, min_size: float, widt
     paragraphs = text.split("\n")
 
     def attempt(s: float, lines: list[str]) -> FieldFit:
-        return FieldFit(name, font, s, s * leading, tuple(ln.replace(NBSP, " ") for ln in lines),
-                        tuple(_width(ln, font, s) for ln in lines), width, height)
+        return FieldFit(
+            name,
+            font,
+            s,
+            s * leading,
+            tuple(ln.replace(NBSP, " ") for ln in lines),
+            tuple(_width(ln, font, s) for ln in lines),
+            width,
+            height,
+        )
 
     for s in _sizes(size, max(min_size, size * _SHRINK_BEFORE_WRAP)):
         fit = attempt(s, paragraphs)
@@ -338,6 +355,7 @@ def fit_report(content: LabelContent, layout: Layout, serial: int = 999999) -> l
 
 # ---------------------------------------------------------------- drawing
 
+
 def _qr_drawing(url: str, size: float) -> Drawing:
     widget = QrCodeWidget(url, barLevel=QR_LEVEL, barBorder=4, barWidth=size, barHeight=size)
     d = Drawing(size, size)
@@ -386,8 +404,15 @@ class _Painter:
             c.saveState()
             c.setStrokeColor(_OUTLINE_GREY)
             c.setLineWidth(0.4)
-            c.roundRect(left, top - self.layout.label_height * mm, self.layout.label_width * mm,
-                        self.layout.label_height * mm, self.layout.corner_radius * mm, stroke=1, fill=0)
+            c.roundRect(
+                left,
+                top - self.layout.label_height * mm,
+                self.layout.label_width * mm,
+                self.layout.label_height * mm,
+                self.layout.corner_radius * mm,
+                stroke=1,
+                fill=0,
+            )
             c.restoreState()
         for f in self.layout.fields:
             bx, by_top = left + f.x * mm, top - f.y * mm
@@ -498,13 +523,19 @@ def build_labels(content: LabelContent, layout: Layout, copies: int, start: int 
 
 # ---------------------------------------------------------------- the records behind a label
 
+
 def _classification_from_row(r: Mapping[str, Any]) -> Classification:
     return Classification(
-        reagent=r["reagent"], min_molarity=r["min_molarity"], max_molarity=r["max_molarity"],
-        signal_word=r["signal_word"], pictograms=tuple(json.loads(r["pictograms"])),
+        reagent=r["reagent"],
+        min_molarity=r["min_molarity"],
+        max_molarity=r["max_molarity"],
+        signal_word=r["signal_word"],
+        pictograms=tuple(json.loads(r["pictograms"])),
         hazard_statements=tuple(json.loads(r["hazard_statements"])),
         precautionary_statements=tuple(json.loads(r["precautionary_statements"])),
-        source_note=r["source_note"], effective_from=dt.date.fromisoformat(r["effective_from"]), id=r["id"],
+        source_note=r["source_note"],
+        effective_from=dt.date.fromisoformat(r["effective_from"]),
+        id=r["id"],
     )
 
 
@@ -534,20 +565,41 @@ def record_classification(db: sqlite_utils.Database, c: Classification, reason: 
     if not reason.strip():
         raise InvalidInput([FieldError("reason", "give the reason for this classification")])
     with dbmod.write(db):
-        row_id = _insert(db, "hazard_classifications", {
-            "reagent": c.reagent, "min_molarity": c.min_molarity, "max_molarity": c.max_molarity,
-            "signal_word": c.signal_word, "pictograms": json.dumps(list(c.pictograms)),
-            "hazard_statements": json.dumps(list(c.hazard_statements)),
-            "precautionary_statements": json.dumps(list(c.precautionary_statements)),
-            "source_note": c.source_note, "reason": reason.strip(), "effective_from": c.effective_from.isoformat(),
-            "recorded_at": records.utc_now(), "recorded_by": actor,
-        })
-        records.append_event(db, actor, "hazard.classify", entity="hazard_classifications", entity_id=row_id,
-                             reason=reason.strip(),
-                             detail={"reagent": c.reagent, "band": c.band_text, "signal_word": c.signal_word,
-                                     "pictograms": list(c.pictograms), "H": list(c.hazard_statements),
-                                     "P": list(c.precautionary_statements),
-                                     "effective_from": c.effective_from.isoformat()})
+        row_id = _insert(
+            db,
+            "hazard_classifications",
+            {
+                "reagent": c.reagent,
+                "min_molarity": c.min_molarity,
+                "max_molarity": c.max_molarity,
+                "signal_word": c.signal_word,
+                "pictograms": json.dumps(list(c.pictograms)),
+                "hazard_statements": json.dumps(list(c.hazard_statements)),
+                "precautionary_statements": json.dumps(list(c.precautionary_statements)),
+                "source_note": c.source_note,
+                "reason": reason.strip(),
+                "effective_from": c.effective_from.isoformat(),
+                "recorded_at": records.utc_now(),
+                "recorded_by": actor,
+            },
+        )
+        records.append_event(
+            db,
+            actor,
+            "hazard.classify",
+            entity="hazard_classifications",
+            entity_id=row_id,
+            reason=reason.strip(),
+            detail={
+                "reagent": c.reagent,
+                "band": c.band_text,
+                "signal_word": c.signal_word,
+                "pictograms": list(c.pictograms),
+                "H": list(c.hazard_statements),
+                "P": list(c.precautionary_statements),
+                "effective_from": c.effective_from.isoformat(),
+            },
+        )
     return row_id
 
 
@@ -555,14 +607,15 @@ def hazard_for(db: sqlite_utils.Database, reagent: str, molarity: float, on: dt.
     """The label elements of `reagent` at `molarity` (mol/L) on `on`; Conflict when none is recorded."""
     found = hazards.pick(classifications(db), reagent, molarity, on)
     if found is None:
-        raise Conflict(f"no hazard classification is recorded for {reagent} at {molarity:g} mol/L, so no label "
-                       "prints (a label must not hide a hazard). An administrator adds one under Hazard data "
-                       "(/admin/hazards) from the supplier's safety data sheet.")
+        raise Conflict(
+            f"no hazard classification is recorded for {reagent} at {molarity:g} mol/L, so no label "
+            "prints (a label must not hide a hazard). An administrator adds one under Hazard data "
+            "(/admin/hazards) from the supplier's safety data sheet."
+        )
     return hazards.label_elements(found)
 
 
-def label_content(db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], on: dt.date
-                  ) -> LabelContent:
+def label_content(db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], on: dt.date) -> LabelContent:
     """What the labels of `batch` (a batches row) say when printed on `on` (the lab's date)."""
     facts = records.batch_facts(db, batch["id"])
     report = status_on(facts, on)
@@ -581,14 +634,24 @@ def label_content(db: sqlite_utils.Database, config: Mapping[str, Any], batch: M
     elements = hazard_for(db, titrant.key, strength, on)
     name = titrant.name[:1].upper() + titrant.name[1:]
     return LabelContent(
-        batch_id=batch["code"], reagent=name, formula=titrant.formula, nominal=f"{nominal:g} mol/L",
-        certified=(value_text(release["molarity"], release["expanded_u"], release["k"],
-                              release["reference_temperature_c"]) if release else not_for_use_text(report.status)),
-        released=release is not None, standardized_on=standardized_on,
+        batch_id=batch["code"],
+        reagent=name,
+        formula=titrant.formula,
+        nominal=f"{nominal:g} mol/L",
+        certified=(
+            value_text(release["molarity"], release["expanded_u"], release["k"], release["reference_temperature_c"])
+            if release
+            else not_for_use_text(report.status)
+        ),
+        released=release is not None,
+        standardized_on=standardized_on,
         released_on=release["released_on"] if release else DASH,
         expires_on=release["expires_on"] if release else DASH,
-        prepared_on=batch["prepared_on"], prepared_by=batch["prepared_by"], elements=elements,
-        url=batch_url(str(config["BASE_URL"]), batch["code"]), printed_on=on.isoformat(),
+        prepared_on=batch["prepared_on"],
+        prepared_by=batch["prepared_by"],
+        elements=elements,
+        url=batch_url(str(config["BASE_URL"]), batch["code"]),
+        printed_on=on.isoformat(),
         release_id=release["id"] if release else None,
     )
 
@@ -599,19 +662,40 @@ def next_serial(db: sqlite_utils.Database) -> int:
     return int(row[0]) + 1
 
 
-def record_print(db: sqlite_utils.Database, batch_id: int, release_id: int | None, layout: str, copies: int,
-                 value_printed: str, actor: str) -> dict[str, Any]:
+def record_print(
+    db: sqlite_utils.Database, batch_id: int, release_id: int | None, layout: str, copies: int, value_printed: str, actor: str
+) -> dict[str, Any]:
     """Take the next `copies` serials and record the print with its audit event; return the new row."""
     with dbmod.write(db):
         first = next_serial(db)
-        row = {"batch_id": batch_id, "release_id": release_id, "layout": layout, "copies": copies,
-               "serial_first": first, "serial_last": first + copies - 1, "value_printed": value_printed,
-               "recorded_at": records.utc_now(), "recorded_by": actor}
+        row = {
+            "batch_id": batch_id,
+            "release_id": release_id,
+            "layout": layout,
+            "copies": copies,
+            "serial_first": first,
+            "serial_last": first + copies - 1,
+            "value_printed": value_printed,
+            "recorded_at": records.utc_now(),
+            "recorded_by": actor,
+        }
         print_id = _insert(db, "label_prints", row)
         row["id"] = print_id
-        records.append_event(db, actor, "label.print", entity="label_prints", entity_id=print_id, batch_id=batch_id,
-                             detail={"layout": layout, "copies": copies, "serials": [first, row["serial_last"]],
-                                     "value_printed": value_printed, "release_id": release_id})
+        records.append_event(
+            db,
+            actor,
+            "label.print",
+            entity="label_prints",
+            entity_id=print_id,
+            batch_id=batch_id,
+            detail={
+                "layout": layout,
+                "copies": copies,
+                "serials": [first, row["serial_last"]],
+                "value_printed": value_printed,
+                "release_id": release_id,
+            },
+        )
     return row
 
 
@@ -624,8 +708,16 @@ class PrintJob:
     content: LabelContent
 
 
-def print_labels(db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], layout: Layout,
-                 copies: int, start: int, actor: str, on: dt.date) -> PrintJob:
+def print_labels(
+    db: sqlite_utils.Database,
+    config: Mapping[str, Any],
+    batch: Mapping[str, Any],
+    layout: Layout,
+    copies: int,
+    start: int,
+    actor: str,
+    on: dt.date,
+) -> PrintJob:
     """Record a print of `copies` labels of `batch` on `layout` from position `start` and build its PDF.
 
     The record and the PDF are made in one write: if the PDF cannot be built (LabelOverflow), nothing

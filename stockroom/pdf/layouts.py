@@ -58,16 +58,28 @@ PLACEHOLDERS: dict[str, str] = {
     "serial": "this label's print serial (unique in the database)",
     "printed_on": "the date of printing",
 }
-REQUIRED = ("batch_id", "reagent", "nominal", "certified", "standardized_on", "expires_on", "prepared_by",
-            "signal_word", "hazard_statements", "precautionary_statements", "regulations", "serial")
+REQUIRED = (
+    "batch_id",
+    "reagent",
+    "nominal",
+    "certified",
+    "standardized_on",
+    "expires_on",
+    "prepared_by",
+    "signal_word",
+    "hazard_statements",
+    "precautionary_statements",
+    "regulations",
+    "serial",
+)
 # A required item any one of whose forms will do.
 ALTERNATIVES: dict[str, tuple[str, ...]] = {"regulations": ("regulations", "regulations_short")}
 KINDS = ("text", "qr", "pictograms")
 ALIGNS = ("left", "centre", "center", "right")
 VALIGNS = ("top", "middle", "bottom")
 
-ABSOLUTE_MIN_PT = 4.0   # below this a printed label is not reliably legible (common practice)
-MIN_QR_MM = 12.0        # a QR code smaller than this scans poorly from a phone at arm's length (common practice)
+ABSOLUTE_MIN_PT = 4.0  # below this a printed label is not reliably legible (common practice)
+MIN_QR_MM = 12.0  # a QR code smaller than this scans poorly from a phone at arm's length (common practice)
 MIN_PICTOGRAM_MM = 10.0  # CLP Annex I 1.2.1: each pictogram at least 1 cm2 (from memory)
 _TOLERANCE_MM = 0.01
 _NAME = re.compile(r"[a-z0-9][a-z0-9_-]{0,40}")
@@ -147,8 +159,10 @@ class Layout:
         """Top-left corner (mm from the page's top-left) of the label at 1-based `position`, row by row."""
         index = position - 1
         row, column = divmod(index, self.columns)
-        return (self.margin_left + column * (self.label_width + self.gutter_x),
-                self.margin_top + row * (self.label_height + self.gutter_y))
+        return (
+            self.margin_left + column * (self.label_width + self.gutter_x),
+            self.margin_top + row * (self.label_height + self.gutter_y),
+        )
 
     def field(self, name: str) -> Field:
         """The field called `name`; KeyError if the layout has none."""
@@ -162,11 +176,14 @@ class Layout:
         each = f"{self.label_width:g} x {self.label_height:g} mm"
         if self.per_page == 1:
             return f"one {each} label per {self.page_width:g} x {self.page_height:g} mm page"
-        return f"{self.per_page} labels ({self.columns} x {self.rows}) of {each} on a " \
-               f"{self.page_width:g} x {self.page_height:g} mm sheet"
+        return (
+            f"{self.per_page} labels ({self.columns} x {self.rows}) of {each} on a "
+            f"{self.page_width:g} x {self.page_height:g} mm sheet"
+        )
 
 
 # ---------------------------------------------------------------- reading
+
 
 class _Reader:
     """Reads typed values out of the TOML tables, recording a problem naming the key for each bad one."""
@@ -193,8 +210,16 @@ class _Reader:
             if key not in allowed:
                 self.problem(f"{where}{key}", f"is not a key of this table (known: {', '.join(allowed)})")
 
-    def number(self, data: Mapping[str, Any], key: str, where: str, default: float | None = None, *,
-               minimum: float | None = 0.0, positive: bool = False) -> float:
+    def number(
+        self,
+        data: Mapping[str, Any],
+        key: str,
+        where: str,
+        default: float | None = None,
+        *,
+        minimum: float | None = 0.0,
+        positive: bool = False,
+    ) -> float:
         raw = data.get(key, default)
         name = f"{where}{key}"
         if raw is None:
@@ -224,8 +249,9 @@ class _Reader:
             return low
         return raw
 
-    def text(self, data: Mapping[str, Any], key: str, where: str, default: str | None = None,
-             choices: tuple[str, ...] | None = None) -> str:
+    def text(
+        self, data: Mapping[str, Any], key: str, where: str, default: str | None = None, choices: tuple[str, ...] | None = None
+    ) -> str:
         raw = data.get(key, default)
         name = f"{where}{key}"
         if raw is None:
@@ -252,8 +278,20 @@ _PAGE_KEYS = ("size", "orientation", "width_mm", "height_mm")
 _GRID_KEYS = ("rows", "columns", "margin_top_mm", "margin_left_mm", "gutter_x_mm", "gutter_y_mm")
 _LABEL_KEYS = ("width_mm", "height_mm", "corner_radius_mm", "outline")
 _FONT_KEYS = ("family", "size_pt", "min_size_pt", "leading")
-_FIELD_KEYS = ("name", "kind", "box_mm", "text", "size_pt", "min_size_pt", "bold", "align", "valign", "leading",
-               "frame", "one_per_line")
+_FIELD_KEYS = (
+    "name",
+    "kind",
+    "box_mm",
+    "text",
+    "size_pt",
+    "min_size_pt",
+    "bold",
+    "align",
+    "valign",
+    "leading",
+    "frame",
+    "one_per_line",
+)
 
 
 def parse_layout(name: str, text: str, source: str = "") -> Layout:
@@ -263,8 +301,7 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
     """
     source = source or f"{name}.toml"
     if not _NAME.fullmatch(name):
-        raise LayoutError(source, ["the file name must be lower-case letters, digits, - or _ (it is the layout's "
-                                   "name)"])
+        raise LayoutError(source, ["the file name must be lower-case letters, digits, - or _ (it is the layout's name)"])
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -317,11 +354,15 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
         used_w = margin_left + columns * lw + (columns - 1) * gutter_x
         used_h = margin_top + rows * lh + (rows - 1) * gutter_y
         if used_w > pw + _TOLERANCE_MM:
-            r.problem("[grid] columns", f"{columns} labels of {lw:g} mm with these margins and gutters need "
-                                        f"{used_w:g} mm but the page is {pw:g} mm wide")
+            r.problem(
+                "[grid] columns",
+                f"{columns} labels of {lw:g} mm with these margins and gutters need {used_w:g} mm but the page is {pw:g} mm wide",
+            )
         if used_h > ph + _TOLERANCE_MM:
-            r.problem("[grid] rows", f"{rows} labels of {lh:g} mm with these margins and gutters need "
-                                     f"{used_h:g} mm but the page is {ph:g} mm tall")
+            r.problem(
+                "[grid] rows",
+                f"{rows} labels of {lh:g} mm with these margins and gutters need {used_h:g} mm but the page is {ph:g} mm tall",
+            )
 
     raw_fields = data.get("field")
     fields: list[Field] = []
@@ -344,10 +385,12 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
         seen.add(fname)
         kind = r.text(raw, "kind", where, default="text", choices=KINDS)
         box = raw.get("box_mm")
-        if (not isinstance(box, list) or len(box) != 4
-                or not all(isinstance(v, int | float) and not isinstance(v, bool) for v in box)):
-            r.problem(f"{where}box_mm", "must be four numbers [x, y, width, height] in mm from the label's "
-                                        "top-left corner")
+        if (
+            not isinstance(box, list)
+            or len(box) != 4
+            or not all(isinstance(v, int | float) and not isinstance(v, bool) for v in box)
+        ):
+            r.problem(f"{where}box_mm", "must be four numbers [x, y, width, height] in mm from the label's top-left corner")
             box = [0, 0, 1, 1]
         x, y, w, h = (float(v) for v in box)
         if w <= 0 or h <= 0:
@@ -361,11 +404,21 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
         if min_size > size:
             r.problem(f"{where}min_size_pt", f"must not be larger than size_pt ({size:g})")
         field = Field(
-            name=fname, kind=kind, x=x, y=y, width=w, height=h, text=text, size_pt=size, min_size_pt=min_size,
+            name=fname,
+            kind=kind,
+            x=x,
+            y=y,
+            width=w,
+            height=h,
+            text=text,
+            size_pt=size,
+            min_size_pt=min_size,
             bold=r.flag(raw, "bold", where, False),
             align=r.text(raw, "align", where, default="left", choices=ALIGNS).replace("center", "centre"),
-            valign=r.text(raw, "valign", where, default="top", choices=VALIGNS), leading=leading,
-            frame=r.flag(raw, "frame", where, False), one_per_line=r.flag(raw, "one_per_line", where, False),
+            valign=r.text(raw, "valign", where, default="top", choices=VALIGNS),
+            leading=leading,
+            frame=r.flag(raw, "frame", where, False),
+            one_per_line=r.flag(raw, "one_per_line", where, False),
         )
         if kind == "text":
             if not text.strip():
@@ -376,8 +429,7 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
                 r.problem(f"{where}text", f"braces do not match ({exc}); write {{{{ and }}}} for a literal brace")
                 unknown = []
             if unknown:
-                r.problem(f"{where}text", f"unknown placeholder {{{unknown[0]}}} (known: "
-                                          f"{', '.join(PLACEHOLDERS)})")
+                r.problem(f"{where}text", f"unknown placeholder {{{unknown[0]}}} (known: {', '.join(PLACEHOLDERS)})")
             if h * mm < min_size * leading * 0.95:
                 r.problem(f"{where}box_mm", f"is {h:g} mm tall: too short for one line at {min_size:g} pt")
         elif kind == "qr" and min(w, h) < MIN_QR_MM:
@@ -395,15 +447,30 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
         r.problem("[[field]]", "every label must show " + ", ".join("{" + p + "}" for p in missing))
     for kind in ("qr", "pictograms"):
         if not any(f.kind == kind for f in fields):
-            r.problem("[[field]]", f"the layout needs a field of kind = \"{kind}\"")
+            r.problem("[[field]]", f'the layout needs a field of kind = "{kind}"')
     if r.problems:
         raise LayoutError(source, r.problems)
     regular, bold = FONT_FAMILIES[family]
     return Layout(
-        name=name, title=title, description=description, page_width=pw, page_height=ph, rows=rows,
-        columns=columns, margin_top=margin_top, margin_left=margin_left, gutter_x=gutter_x, gutter_y=gutter_y,
-        label_width=lw, label_height=lh, corner_radius=radius, outline=outline, font_regular=regular,
-        font_bold=bold, fields=tuple(fields), source=source,
+        name=name,
+        title=title,
+        description=description,
+        page_width=pw,
+        page_height=ph,
+        rows=rows,
+        columns=columns,
+        margin_top=margin_top,
+        margin_left=margin_left,
+        gutter_x=gutter_x,
+        gutter_y=gutter_y,
+        label_width=lw,
+        label_height=lh,
+        corner_radius=radius,
+        outline=outline,
+        font_regular=regular,
+        font_bold=bold,
+        fields=tuple(fields),
+        source=source,
     )
 
 
@@ -416,9 +483,13 @@ def _safe_placeholders(f: Field) -> tuple[str, ...]:
 
 def _check_overlaps(r: _Reader, fields: list[Field]) -> None:
     for i, a in enumerate(fields):
-        for b in fields[i + 1:]:
-            if (a.x + a.width - _TOLERANCE_MM > b.x and b.x + b.width - _TOLERANCE_MM > a.x
-                    and a.y + a.height - _TOLERANCE_MM > b.y and b.y + b.height - _TOLERANCE_MM > a.y):
+        for b in fields[i + 1 :]:
+            if (
+                a.x + a.width - _TOLERANCE_MM > b.x
+                and b.x + b.width - _TOLERANCE_MM > a.x
+                and a.y + a.height - _TOLERANCE_MM > b.y
+                and b.y + b.height - _TOLERANCE_MM > a.y
+            ):
                 r.problem(f"[[field]] {a.name}: box_mm", f"overlaps the box of field {b.name}")
 
 

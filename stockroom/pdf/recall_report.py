@@ -33,12 +33,14 @@ WIDTH = A4[0] - 28 * mm
 
 def _styles() -> dict[str, ParagraphStyle]:
     base = getSampleStyleSheet()
-    body = ParagraphStyle("body", parent=base["BodyText"], fontName="Helvetica", fontSize=9.5, leading=12.5,
-                          textColor=INK, alignment=TA_LEFT)
+    body = ParagraphStyle(
+        "body", parent=base["BodyText"], fontName="Helvetica", fontSize=9.5, leading=12.5, textColor=INK, alignment=TA_LEFT
+    )
     return {
         "title": ParagraphStyle("title", parent=body, fontName="Helvetica-Bold", fontSize=16, leading=20, spaceAfter=2),
-        "h2": ParagraphStyle("h2", parent=body, fontName="Helvetica-Bold", fontSize=11.5, leading=14, spaceBefore=8,
-                             spaceAfter=3),
+        "h2": ParagraphStyle(
+            "h2", parent=body, fontName="Helvetica-Bold", fontSize=11.5, leading=14, spaceBefore=8, spaceAfter=3
+        ),
         "sub": ParagraphStyle("sub", parent=body, textColor=MUTED),
         "body": body,
         "cell": ParagraphStyle("cell", parent=body, fontSize=8.5, leading=10.5),
@@ -49,8 +51,9 @@ def _styles() -> dict[str, ParagraphStyle]:
     }
 
 
-def _table(head: list[str], rows: list[list[str]], widths: list[float | None], st: dict[str, ParagraphStyle],
-           *, urgent: bool = False) -> Table:
+def _table(
+    head: list[str], rows: list[list[str]], widths: list[float | None], st: dict[str, ParagraphStyle], *, urgent: bool = False
+) -> Table:
     data = [[Paragraph(escape(h), st["head"]) for h in head]]
     data += [[Paragraph(escape(c), st["cell"]) for c in r] for r in rows]
     t = Table(data, repeatRows=1, colWidths=widths)
@@ -58,8 +61,10 @@ def _table(head: list[str], rows: list[list[str]], widths: list[float | None], s
         ("VALIGN", (0, 0), (-1, -1), "TOP"),
         ("LINEBELOW", (0, 0), (-1, 0), 0.8, INK),
         ("LINEBELOW", (0, 1), (-1, -1), 0.4, LINE),
-        ("TOPPADDING", (0, 0), (-1, -1), 3), ("BOTTOMPADDING", (0, 0), (-1, -1), 4),
-        ("LEFTPADDING", (0, 0), (-1, -1), 3), ("RIGHTPADDING", (0, 0), (-1, -1), 3),
+        ("TOPPADDING", (0, 0), (-1, -1), 3),
+        ("BOTTOMPADDING", (0, 0), (-1, -1), 4),
+        ("LEFTPADDING", (0, 0), (-1, -1), 3),
+        ("RIGHTPADDING", (0, 0), (-1, -1), 3),
     ]
     if urgent:
         style.append(("BACKGROUND", (0, 1), (-1, -1), BAD_BG))
@@ -72,8 +77,12 @@ def _footer(recall_id: int, printed_on: dt.date):  # type: ignore[no-untyped-def
         canvas.saveState()
         canvas.setFont("Helvetica", 7.5)
         canvas.setFillColor(MUTED)
-        canvas.drawString(doc.leftMargin, 10 * mm, f"stockroom recall {recall_id}, impact report printed "
-                          f"{printed_on.isoformat()}. The record may have changed since: check the recall page.")
+        canvas.drawString(
+            doc.leftMargin,
+            10 * mm,
+            f"stockroom recall {recall_id}, impact report printed "
+            f"{printed_on.isoformat()}. The record may have changed since: check the recall page.",
+        )
         canvas.drawRightString(A4[0] - doc.rightMargin, 10 * mm, f"page {doc.page}")
         canvas.restoreState()
 
@@ -95,93 +104,193 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
     st = _styles()
     rc = report.recall
     buf = io.BytesIO()
-    doc = SimpleDocTemplate(buf, pagesize=A4, leftMargin=14 * mm, rightMargin=14 * mm, topMargin=14 * mm,
-                            bottomMargin=18 * mm, title=f"Recall {rc.id}: impact report", author="stockroom",
-                            subject=f"What rests on {rc.subject_label}")
+    doc = SimpleDocTemplate(
+        buf,
+        pagesize=A4,
+        leftMargin=14 * mm,
+        rightMargin=14 * mm,
+        topMargin=14 * mm,
+        bottomMargin=18 * mm,
+        title=f"Recall {rc.id}: impact report",
+        author="stockroom",
+        subject=f"What rests on {rc.subject_label}",
+    )
     story: list[object] = [
         Paragraph(escape(f"Recall {rc.id}: {rc.subject_label}"), st["title"]),
-        Paragraph(escape(f"Impact as of {report.on.isoformat()}, from the stockroom record. Everything listed rests, "
-                         "directly or through secondary standardizations, on the suspect item."), st["sub"]),
+        Paragraph(
+            escape(
+                f"Impact as of {report.on.isoformat()}, from the stockroom record. Everything listed rests, "
+                "directly or through secondary standardizations, on the suspect item."
+            ),
+            st["sub"],
+        ),
         Spacer(1, 3 * mm),
     ]
-    state = (f"Cleared on {rc.cleared.cleared_on.isoformat()} by {rc.cleared.recorded_by}: {rc.cleared.reason}"
-             if rc.cleared else "Open")
-    facts = [("Suspect item", f"{rc.subject_label}: {rc.subject_detail}"),
-             ("Suspect from", rc.suspect_from.isoformat()), ("Reason", rc.reason),
-             ("Recorded", f"{rc.opened_on.isoformat()} by {rc.recorded_by}"), ("State", state)]
-    box = Table([[Paragraph(f"<b>{escape(k)}</b>", st["cell"]), Paragraph(escape(v), st["cell"])] for k, v in facts],
-                colWidths=[32 * mm, WIDTH - 32 * mm])
-    box.setStyle(TableStyle([("BOX", (0, 0), (-1, -1), 1, INK), ("VALIGN", (0, 0), (-1, -1), "TOP"),
-                             ("LINEBELOW", (0, 0), (-1, -2), 0.3, LINE),
-                             ("TOPPADDING", (0, 0), (-1, -1), 3), ("BOTTOMPADDING", (0, 0), (-1, -1), 4)]))
+    state = (
+        f"Cleared on {rc.cleared.cleared_on.isoformat()} by {rc.cleared.recorded_by}: {rc.cleared.reason}"
+        if rc.cleared
+        else "Open"
+    )
+    facts = [
+        ("Suspect item", f"{rc.subject_label}: {rc.subject_detail}"),
+        ("Suspect from", rc.suspect_from.isoformat()),
+        ("Reason", rc.reason),
+        ("Recorded", f"{rc.opened_on.isoformat()} by {rc.recorded_by}"),
+        ("State", state),
+    ]
+    box = Table(
+        [[Paragraph(f"<b>{escape(k)}</b>", st["cell"]), Paragraph(escape(v), st["cell"])] for k, v in facts],
+        colWidths=[32 * mm, WIDTH - 32 * mm],
+    )
+    box.setStyle(
+        TableStyle(
+            [
+                ("BOX", (0, 0), (-1, -1), 1, INK),
+                ("VALIGN", (0, 0), (-1, -1), "TOP"),
+                ("LINEBELOW", (0, 0), (-1, -2), 0.3, LINE),
+                ("TOPPADDING", (0, 0), (-1, -1), 3),
+                ("BOTTOMPADDING", (0, 0), (-1, -1), 4),
+            ]
+        )
+    )
     story += [box, Spacer(1, 3 * mm)]
     n_review = len(report.under_review)
-    summary = (f"{len(report.releases)} certified value{'s' if len(report.releases) != 1 else ''} reached; "
-               f"{len(report.batches)} batch{'es' if len(report.batches) != 1 else ''} resting on them, "
-               f"{n_review} in use under review; {report.lab_days} day{'s' if report.lab_days != 1 else ''} "
-               f"with a suspect value in force; {len(report.corrections)} class-data correction"
-               f"{'s' if len(report.corrections) != 1 else ''} made with one.")
+    summary = (
+        f"{len(report.releases)} certified value{'s' if len(report.releases) != 1 else ''} reached; "
+        f"{len(report.batches)} batch{'es' if len(report.batches) != 1 else ''} resting on them, "
+        f"{n_review} in use under review; {report.lab_days} day{'s' if report.lab_days != 1 else ''} "
+        f"with a suspect value in force; {len(report.corrections)} class-data correction"
+        f"{'s' if len(report.corrections) != 1 else ''} made with one."
+    )
     story.append(Paragraph(escape(summary), st["bad"] if n_review else st["body"]))
 
     story.append(Paragraph("Batches in use, under review", st["h2"]))
     if report.under_review:
-        story.append(_table(["Batch", "Titrant", "Status", "Why"],
-                            [[b.code, f"{b.reagent} {b.nominal_molarity:g} mol/L", b.status, b.note]
-                             for b in report.under_review],
-                            [30 * mm, 30 * mm, 26 * mm, None], st, urgent=True))
-        story.append(Paragraph("Stop using these values until the batch is re-standardized on a chain free of the "
-                               "suspect item, or the recall is cleared for it with a reason.", st["note"]))
+        story.append(
+            _table(
+                ["Batch", "Titrant", "Status", "Why"],
+                [[b.code, f"{b.reagent} {b.nominal_molarity:g} mol/L", b.status, b.note] for b in report.under_review],
+                [30 * mm, 30 * mm, 26 * mm, None],
+                st,
+                urgent=True,
+            )
+        )
+        story.append(
+            Paragraph(
+                "Stop using these values until the batch is re-standardized on a chain free of the "
+                "suspect item, or the recall is cleared for it with a reason.",
+                st["note"],
+            )
+        )
     else:
         story.append(Paragraph("None: no batch in use rests on the suspect item.", st["ok"]))
 
     others = [b for b in report.batches if not b.in_service_under_review]
     if others:
         story.append(Paragraph("Other batches that rested on it", st["h2"]))
-        story.append(_table(["Batch", "Titrant", "State", "Note"],
-                            [[b.code, f"{b.reagent} {b.nominal_molarity:g} mol/L", b.state, b.note] for b in others],
-                            [30 * mm, 30 * mm, 26 * mm, None], st))
+        story.append(
+            _table(
+                ["Batch", "Titrant", "State", "Note"],
+                [[b.code, f"{b.reagent} {b.nominal_molarity:g} mol/L", b.state, b.note] for b in others],
+                [30 * mm, 30 * mm, 26 * mm, None],
+                st,
+            )
+        )
 
     story.append(Paragraph("Certified values reached", st["h2"]))
     if report.releases:
-        story.append(_table(
-            ["Batch", "Release", "Certified value (20 °C)", "Rests on", "Links", "Suspect", "Days in force"],
-            [[r.batch_code, f"{r.release_id} of {r.released_on.isoformat()}", _value(r.molarity, r.U, r.k), r.via,
-              str(r.depth), r.suspect_from.isoformat() if r.suspect_from else "whole life", str(r.days_in_force)]
-             for r in report.releases],
-            [24 * mm, 22 * mm, 44 * mm, None, 11 * mm, 17 * mm, 15 * mm], st))
-        story.append(Paragraph("Links: 0 is the suspect batch's own value, 1 a value resting directly on the suspect "
-                               "item, 2 a value standardized against one of those, and so on.", st["note"]))
+        story.append(
+            _table(
+                ["Batch", "Release", "Certified value (20 °C)", "Rests on", "Links", "Suspect", "Days in force"],
+                [
+                    [
+                        r.batch_code,
+                        f"{r.release_id} of {r.released_on.isoformat()}",
+                        _value(r.molarity, r.U, r.k),
+                        r.via,
+                        str(r.depth),
+                        r.suspect_from.isoformat() if r.suspect_from else "whole life",
+                        str(r.days_in_force),
+                    ]
+                    for r in report.releases
+                ],
+                [24 * mm, 22 * mm, 44 * mm, None, 11 * mm, 17 * mm, 15 * mm],
+                st,
+            )
+        )
+        story.append(
+            Paragraph(
+                "Links: 0 is the suspect batch's own value, 1 a value resting directly on the suspect "
+                "item, 2 a value standardized against one of those, and so on.",
+                st["note"],
+            )
+        )
     else:
         story.append(Paragraph("None: no certified value rests on the suspect item from that date.", st["ok"]))
 
     periods = [(r, p) for r in report.releases for p in r.periods]
     story.append(Paragraph("Days on which a suspect value was in force", st["h2"]))
     if periods:
-        story.append(_table(["Batch", "Release", "From", "To", "Days"],
-                            [[r.batch_code, str(r.release_id), p.start.isoformat(), p.end.isoformat(), str(p.days)]
-                             for r, p in periods], [30 * mm, 22 * mm, 30 * mm, 30 * mm, None], st))
-        story.append(Paragraph("Calendar days, both ends included: stockroom keeps no teaching timetable, so any of "
-                               "them may have been a lab day. The lab-day look-up gives the value in force on each.",
-                               st["note"]))
+        story.append(
+            _table(
+                ["Batch", "Release", "From", "To", "Days"],
+                [[r.batch_code, str(r.release_id), p.start.isoformat(), p.end.isoformat(), str(p.days)] for r, p in periods],
+                [30 * mm, 22 * mm, 30 * mm, 30 * mm, None],
+                st,
+            )
+        )
+        story.append(
+            Paragraph(
+                "Calendar days, both ends included: stockroom keeps no teaching timetable, so any of "
+                "them may have been a lab day. The lab-day look-up gives the value in force on each.",
+                st["note"],
+            )
+        )
     else:
         story.append(Paragraph("None up to the report's date.", st["body"]))
 
     story.append(Paragraph("Class-data corrections made with a suspect value", st["h2"]))
     if report.corrections:
-        story.append(_table(["Lab day", "Batch", "Release", "Molarity used", "Rows", "Recorded"],
-                            [[c["lab_day"], c["batch_code"], str(c["release_id"]), f"{c['molarity_used']:.6f} mol/L",
-                              str(c["row_count"]), f"{c['recorded_at'][:10]} by {c['recorded_by']}"]
-                             for c in report.corrections],
-                            [22 * mm, 28 * mm, 16 * mm, 30 * mm, 12 * mm, None], st))
-        story.append(Paragraph("Each of these was computed with a value now in doubt: tell the instructor who made it.",
-                               st["note"]))
+        story.append(
+            _table(
+                ["Lab day", "Batch", "Release", "Molarity used", "Rows", "Recorded"],
+                [
+                    [
+                        c["lab_day"],
+                        c["batch_code"],
+                        str(c["release_id"]),
+                        f"{c['molarity_used']:.6f} mol/L",
+                        str(c["row_count"]),
+                        f"{c['recorded_at'][:10]} by {c['recorded_by']}",
+                    ]
+                    for c in report.corrections
+                ],
+                [22 * mm, 28 * mm, 16 * mm, 30 * mm, 12 * mm, None],
+                st,
+            )
+        )
+        story.append(
+            Paragraph("Each of these was computed with a value now in doubt: tell the instructor who made it.", st["note"])
+        )
     else:
         story.append(Paragraph("None.", st["body"]))
     if rc.clearances:
         story.append(Paragraph("Clearances", st["h2"]))
-        story.append(KeepTogether([_table(["Cleared", "For", "By", "Reason"],
-                                          [[c.cleared_on.isoformat(), c.batch_code or "the whole recall", c.recorded_by,
-                                            c.reason] for c in rc.clearances], [22 * mm, 32 * mm, 26 * mm, None], st)]))
+        story.append(
+            KeepTogether(
+                [
+                    _table(
+                        ["Cleared", "For", "By", "Reason"],
+                        [
+                            [c.cleared_on.isoformat(), c.batch_code or "the whole recall", c.recorded_by, c.reason]
+                            for c in rc.clearances
+                        ],
+                        [22 * mm, 32 * mm, 26 * mm, None],
+                        st,
+                    )
+                ]
+            )
+        )
     footer = _footer(rc.id, printed_on)
     doc.build(story, onFirstPage=footer, onLaterPages=footer)
     return buf.getvalue()

@@ -184,10 +184,12 @@ def api_require(permission: str) -> Callable[[F], F]:
         def wrapped(*args: Any, **kwargs: Any) -> Any:
             user = current_user()
             if user is None or g.get("stockroom_auth") != "token":
-                message = ("This needs an API token: send 'Authorization: Bearer <token>' (make one on "
-                           "your account page).")
-                return jsonify({"errors": [{"field": "_", "message": message}]}), 401, {
-                    "WWW-Authenticate": 'Bearer realm="stockroom"'}
+                message = "This needs an API token: send 'Authorization: Bearer <token>' (make one on your account page)."
+                return (
+                    jsonify({"errors": [{"field": "_", "message": message}]}),
+                    401,
+                    {"WWW-Authenticate": 'Bearer realm="stockroom"'},
+                )
             if not user.can(permission):
                 refuse(user, permission)
             return view(*args, **kwargs)
@@ -204,11 +206,13 @@ def refuse(user: User, permission: str) -> None:
 
     db = get_db()
     with dbmod.write(db):
-        records.append_event(db, user.username, "access.refused",
-                             detail={"permission": permission, "method": request.method, "path": request.path,
-                                     "role": user.role})
-    raise Forbidden(f"Your role ({user.role_label}) does not allow you to "
-                    f"{accounts.PERMISSIONS[permission]}.")
+        records.append_event(
+            db,
+            user.username,
+            "access.refused",
+            detail={"permission": permission, "method": request.method, "path": request.path, "role": user.role},
+        )
+    raise Forbidden(f"Your role ({user.role_label}) does not allow you to {accounts.PERMISSIONS[permission]}.")
 
 
 def _gate() -> Any:

@@ -52,8 +52,9 @@ def sign_in() -> Any:
     except SignInRefused as exc:
         return _sign_in_page(403, notice=exc.message, form=form, next=nxt)
     if user is None:
-        return _sign_in_page(401, notice="That username and password do not match an account. "
-                                         "Check both and try again.", form=form, next=nxt)
+        return _sign_in_page(
+            401, notice="That username and password do not match an account. Check both and try again.", form=form, next=nxt
+        )
     begin_session(user)
     flash(f"Signed in as {user.display_name} ({user.role_label}).", "info")
     return redirect(nxt or _home(), code=303)
@@ -127,9 +128,12 @@ def first_run() -> Any:
     if errors:
         return render_template("account/first_run.html", errors=errors, form=form), 422
     begin_session(user)
-    flash(f"Welcome, {user.display_name}: you are this stockroom's first administrator. Add the other "
-          "accounts on the server with the command stockroom add-user NAME --role staff (or instructor, "
-          "admin).", "info")
+    flash(
+        f"Welcome, {user.display_name}: you are this stockroom's first administrator. Add the other "
+        "accounts on the server with the command stockroom add-user NAME --role staff (or instructor, "
+        "admin).",
+        "info",
+    )
     return redirect(_home(), code=303)
 
 
@@ -150,8 +154,9 @@ def api_tokens() -> Any:
             _, secret = tokens.create(db, user.id, user.username, request.form.get("label", ""))
         except InvalidInput as exc:
             errors, status = exc.fields, 422
-    return render_template("account/tokens.html", tokens=tokens.list_for(db, user.id), secret=secret,
-                           errors=errors, values=request.form), status
+    return render_template(
+        "account/tokens.html", tokens=tokens.list_for(db, user.id), secret=secret, errors=errors, values=request.form
+    ), status
 
 
 @bp.post("/account/tokens/<int:token_id>/revoke")

@@ -32,17 +32,28 @@ def users() -> Any:
     status = 200
     if request.method == "POST":
         try:
-            user = accounts.create_user(db, request.form.get("username", "").strip(),
-                                        request.form.get("display_name", "").strip(),
-                                        request.form.get("role", ""), request.form.get("password", ""), _actor())
+            user = accounts.create_user(
+                db,
+                request.form.get("username", "").strip(),
+                request.form.get("display_name", "").strip(),
+                request.form.get("role", ""),
+                request.form.get("password", ""),
+                _actor(),
+            )
         except InvalidInput as exc:
             errors, status = exc.fields, 422
         else:
             flash(f"Account {user.username} ({user.role_label}) created.", "ok")
             return redirect(url_for("admin.users"), 303)
     values = {k: v for k, v in request.form.items() if k != "password"}
-    return render_template("admin/users.html", users=accounts.list_users(db), roles=accounts.ROLES,
-                           role_labels=accounts.ROLE_LABELS, errors=errors, values=values), status
+    return render_template(
+        "admin/users.html",
+        users=accounts.list_users(db),
+        roles=accounts.ROLES,
+        role_labels=accounts.ROLE_LABELS,
+        errors=errors,
+        values=values,
+    ), status
 
 
 @bp.post("/users/<username>/disable")
@@ -78,8 +89,7 @@ def _policy_form(p: Parser, form: Any) -> tuple[ReagentPolicy | None, dt.date | 
     if not p.ok or reagent is None:
         return None, None, None
     assert shelf is not None and interval is not None and tol is not None and rsd is not None and min_n is not None
-    return (ReagentPolicy(reagent, tuple(sorted(set(nominals))), shelf, interval, tol / 100, rsd / 100, min_n),
-            since, reason)
+    return (ReagentPolicy(reagent, tuple(sorted(set(nominals))), shelf, interval, tol / 100, rsd / 100, min_n), since, reason)
 
 
 @bp.route("/policy", methods=["GET", "POST"])
@@ -93,16 +103,22 @@ def policy() -> Any:
         new, since, reason = _policy_form(p, request.form)
         if p.ok and new is not None and since is not None and reason is not None:
             records.add_policy(db, new, since, reason, _actor())
-            flash(f"{new.reagent} policy recorded, in force from {since.isoformat()}. Releases made before "
-                  "keep the expiry and re-check interval they were given.", "ok")
+            flash(
+                f"{new.reagent} policy recorded, in force from {since.isoformat()}. Releases made before "
+                "keep the expiry and re-check interval they were given.",
+                "ok",
+            )
             return redirect(url_for("admin.policy"), 303)
         errors, status = InvalidInput(p.errors).fields, 422
     today = lab_today()
-    return render_template("admin/policy.html", in_force=sorted(records.policies(db, today).values(),
-                                                                  key=lambda x: x.reagent),
-                           history=records.policy_history(db), errors=errors,
-                           values=request.form if request.method == "POST" else {"effective_from": today.isoformat()},
-                           reagent_options=[(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()]), status
+    return render_template(
+        "admin/policy.html",
+        in_force=sorted(records.policies(db, today).values(), key=lambda x: x.reagent),
+        history=records.policy_history(db),
+        errors=errors,
+        values=request.form if request.method == "POST" else {"effective_from": today.isoformat()},
+        reagent_options=[(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
+    ), status
 
 
 @bp.get("/settings")
@@ -112,6 +128,13 @@ def settings_page() -> Any:
     for name, default, help_text in settings.describe():
         value = current_app.config.get(name)
         shown = "(set; not shown)" if name == "SECRET_KEY" else value
-        rows.append({"name": name, "value": shown, "default": default, "help": help_text,
-                     "changed": name != "SECRET_KEY" and value != default})
+        rows.append(
+            {
+                "name": name,
+                "value": shown,
+                "default": default,
+                "help": help_text,
+                "changed": name != "SECRET_KEY" and value != default,
+            }
+        )
     return render_template("admin/settings.html", rows=rows)

@@ -49,8 +49,13 @@ def batches() -> Any:
     if not 1 <= limit <= 1000 or offset < 0:
         raise InvalidInput([FieldError("limit", "limit must be between 1 and 1000 and offset at least 0")])
     views, total = records.batch_page(db, on, reagent=titrant, status=status, limit=limit, offset=offset)
-    body: dict[str, Any] = {"on": on.isoformat(), "total": total, "limit": limit, "offset": offset,
-                            "batches": [_summary(v.batch, v.report) for v in views]}
+    body: dict[str, Any] = {
+        "on": on.isoformat(),
+        "total": total,
+        "limit": limit,
+        "offset": offset,
+        "batches": [_summary(v.batch, v.report) for v in views],
+    }
     if offset + limit < total:
         body["next"] = f"{request.path}?{_query(on, titrant, status, limit, offset + limit)}"
     return jsonify(body)
@@ -77,31 +82,49 @@ def batch(code: str) -> Any:
     report = status_on(records.batch_facts(db, b["id"]), on)
     history = records.batch_history(db, b["id"])
     body = _summary(b, report)
-    body.update({
-        "volume_l": b["volume_l"],
-        "prepared_by": b["prepared_by"],
-        "concentrate_lot": b["concentrate_lot"],
-        "water_grade": b["water_grade"],
-        "container": b["container"],
-        "releases": [
-            {"molarity": r["molarity"], "u": r["u"], "U": r["expanded_u"], "k": r["k"],
-             "reference_temperature_c": r["reference_temperature_c"], "released_on": r["released_on"],
-             "expires_on": r["expires_on"], "released_by": r["recorded_by"], "superseded": r["superseded"]}
-            for r in history["releases"]
-        ],
-        "rechecks": [
-            {"performed_on": r["performed_on"], "molarity": r["current"]["molarity"], "u": r["current"]["u"],
-             "U": r["current"]["expanded_u"], "k": r["current"]["k"], "n": r["current"]["n"],
-             "analyst": r["analyst"],
-             "decision": r["decision"]["decision"] if r["decision"] else None}
-            for r in history["runs"] if r["purpose"] == "recheck"
-        ],
-        "withdrawn_on": history["withdrawals"][0]["withdrawn_on"] if history["withdrawals"] else None,
-    })
+    body.update(
+        {
+            "volume_l": b["volume_l"],
+            "prepared_by": b["prepared_by"],
+            "concentrate_lot": b["concentrate_lot"],
+            "water_grade": b["water_grade"],
+            "container": b["container"],
+            "releases": [
+                {
+                    "molarity": r["molarity"],
+                    "u": r["u"],
+                    "U": r["expanded_u"],
+                    "k": r["k"],
+                    "reference_temperature_c": r["reference_temperature_c"],
+                    "released_on": r["released_on"],
+                    "expires_on": r["expires_on"],
+                    "released_by": r["recorded_by"],
+                    "superseded": r["superseded"],
+                }
+                for r in history["releases"]
+            ],
+            "rechecks": [
+                {
+                    "performed_on": r["performed_on"],
+                    "molarity": r["current"]["molarity"],
+                    "u": r["current"]["u"],
+                    "U": r["current"]["expanded_u"],
+                    "k": r["current"]["k"],
+                    "n": r["current"]["n"],
+                    "analyst": r["analyst"],
+                    "decision": r["decision"]["decision"] if r["decision"] else None,
+                }
+                for r in history["runs"]
+                if r["purpose"] == "recheck"
+            ],
+            "withdrawn_on": history["withdrawals"][0]["withdrawn_on"] if history["withdrawals"] else None,
+        }
+    )
     return jsonify(body)
 
 
 # ---------------------------------------------------------------- writes (API token only)
+
 
 def _json_body() -> dict[str, Any]:
     from stockroom.errors import FieldError, InvalidInput
@@ -131,8 +154,7 @@ def create_batch() -> Any:
     db = get_db()
     data = _json_body()
     user = current_user()
-    values, warnings = intake.read_batch({k: _as_text(v) for k, v in data.items()}, records.policies(db),
-                                         lab_today())
+    values, warnings = intake.read_batch({k: _as_text(v) for k, v in data.items()}, records.policies(db), lab_today())
     row = records.create_batch(db, values, user.username if user else "?")
     return jsonify({"id": row["code"], "status": "awaiting", "warnings": warnings}), 201
 
@@ -210,8 +232,14 @@ def decide_run(run_id: int) -> Any:
     decision = p.choice(data.get("decision"), "decision", ("accept", "reject"))
     reason = p.text(data.get("reason"), "reason", required=decision == "reject", max_length=500) or ""
     run = records.run_by_id(db, run_id)
-    released_on = form_date(p, data.get("released_on"), "released_on", required=False, not_after=lab_today(),
-                            not_before=dt.date.fromisoformat(run["performed_on"]))
+    released_on = form_date(
+        p,
+        data.get("released_on"),
+        "released_on",
+        required=False,
+        not_after=lab_today(),
+        not_before=dt.date.fromisoformat(run["performed_on"]),
+    )
     p.raise_if_errors()
     user = current_user()
     actor = user.username if user else "?"

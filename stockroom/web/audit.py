@@ -59,9 +59,12 @@ def trail() -> Any:
         params.append((until + dt.timedelta(days=1)).isoformat())
     sql_where = " AND ".join(where)
     total = db.execute(f"SELECT count(*) FROM events e WHERE {sql_where}", params).fetchone()[0]
-    rows = query(db, f"SELECT e.*, b.code AS batch_code FROM events e LEFT JOIN batches b ON b.id = e.batch_id "
-                     f"WHERE {sql_where} ORDER BY e.id DESC LIMIT ? OFFSET ?",
-                 [*params, PAGE_SIZE, (page - 1) * PAGE_SIZE])
+    rows = query(
+        db,
+        f"SELECT e.*, b.code AS batch_code FROM events e LEFT JOIN batches b ON b.id = e.batch_id "
+        f"WHERE {sql_where} ORDER BY e.id DESC LIMIT ? OFFSET ?",
+        [*params, PAGE_SIZE, (page - 1) * PAGE_SIZE],
+    )
     for r in rows:
         r["local_time"] = _local(r["occurred_at"], zone)
         try:
@@ -70,8 +73,21 @@ def trail() -> Any:
             r["detail_items"] = [("detail", r["detail"])]
     actions = [r[0] for r in db.execute("SELECT DISTINCT action FROM events ORDER BY action")]
     broken = records.verify_chain(db) if page == 1 else None
-    return render_template("audit/trail.html", rows=rows, total=total, page=page,
-                           pages=max(1, -(-total // PAGE_SIZE)), actions=actions, broken=broken,
-                           checked=(page == 1), zone=current_app.config["LAB_TIMEZONE"],
-                           args={"actor": actor, "action": action, "batch": code,
-                                 "from": since.isoformat() if since else "", "to": until.isoformat() if until else ""})
+    return render_template(
+        "audit/trail.html",
+        rows=rows,
+        total=total,
+        page=page,
+        pages=max(1, -(-total // PAGE_SIZE)),
+        actions=actions,
+        broken=broken,
+        checked=(page == 1),
+        zone=current_app.config["LAB_TIMEZONE"],
+        args={
+            "actor": actor,
+            "action": action,
+            "batch": code,
+            "from": since.isoformat() if since else "",
+            "to": until.isoformat() if until else "",
+        },
+    )

@@ -29,16 +29,26 @@ def list_batches() -> str:
         page = max(1, int(request.args.get("page", "1")))
     except ValueError:
         page = 1
-    shown, total = records.batch_page(db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE,
-                                      offset=(page - 1) * PAGE_SIZE)
+    shown, total = records.batch_page(
+        db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE, offset=(page - 1) * PAGE_SIZE
+    )
     pages = max(1, -(-total // PAGE_SIZE))
     if page > pages:  # past the end: show the last page
         page = pages
-        shown, total = records.batch_page(db, on, reagent=reagent, status=status, search=search,
-                                          limit=PAGE_SIZE, offset=(page - 1) * PAGE_SIZE)
+        shown, total = records.batch_page(
+            db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE, offset=(page - 1) * PAGE_SIZE
+        )
     return render_template(
-        "batches/list.html", views=shown, on=on, reagent=reagent, status=status, q=search or "",
-        statuses=URGENCY, reagents=[t.key for t in chemistry.list_titrants()], page=page, pages=pages,
+        "batches/list.html",
+        views=shown,
+        on=on,
+        reagent=reagent,
+        status=status,
+        q=search or "",
+        statuses=URGENCY,
+        reagents=[t.key for t in chemistry.list_titrants()],
+        page=page,
+        pages=pages,
         total=total,
     )
 
@@ -54,16 +64,26 @@ def show(code: str) -> str:
     report = status_on(facts, on)
     history = records.batch_history(db, batch["id"])
     return render_template(
-        "batches/show.html", batch=batch, report=report, history=history, on=on,
+        "batches/show.html",
+        batch=batch,
+        report=report,
+        history=history,
+        on=on,
         in_force=release_in_force(facts, on),
-        titrant=chemistry.titrant(batch["reagent"]), amend_labels=_AMEND_LABELS,
+        titrant=chemistry.titrant(batch["reagent"]),
+        amend_labels=_AMEND_LABELS,
     )
 
 
 _AMEND_LABELS = {
-    "volume_l": "Volume (L)", "prepared_by": "Prepared by", "concentrate_lot": "Concentrate lot",
-    "concentrate_assay_w_w": "Concentrate assay (mass fraction)", "concentrate_density_g_ml": "Concentrate density (g/mL)",
-    "water_grade": "Water", "container": "Container", "notes": "Notes",
+    "volume_l": "Volume (L)",
+    "prepared_by": "Prepared by",
+    "concentrate_lot": "Concentrate lot",
+    "concentrate_assay_w_w": "Concentrate assay (mass fraction)",
+    "concentrate_density_g_ml": "Concentrate density (g/mL)",
+    "water_grade": "Water",
+    "container": "Container",
+    "notes": "Notes",
 }
 _AMEND_NUMERIC = {"volume_l": (0.1, 50.0), "concentrate_assay_w_w": (0.01, 1.0), "concentrate_density_g_ml": (0.8, 2.5)}
 
@@ -83,8 +103,15 @@ def amend(code: str) -> Any:
         low, high = _AMEND_NUMERIC[name]
         value = p.number(raw or None, "new_value", ge=low, le=high)
     elif name is not None:
-        value = p.text(raw, "new_value", required=name not in ("notes", "concentrate_lot", "container", "water_grade"),
-                       max_length=2000 if name == "notes" else 120) or ""
+        value = (
+            p.text(
+                raw,
+                "new_value",
+                required=name not in ("notes", "concentrate_lot", "container", "water_grade"),
+                max_length=2000 if name == "notes" else 120,
+            )
+            or ""
+        )
     p.raise_if_errors()
     user = current_user()
     assert name is not None and reason is not None

@@ -30,16 +30,23 @@ def index() -> str:
 
 def _render_board(db: Any, on: dt.date) -> str:
     groups, counts, total = _board(db, on)
-    return render_template("dashboard/_board.html", on=on, groups=groups, counts=counts, urgency=URGENCY,
-                           Status=Status, total=total, recent_days=RECENT_DAYS)
+    return render_template(
+        "dashboard/_board.html",
+        on=on,
+        groups=groups,
+        counts=counts,
+        urgency=URGENCY,
+        Status=Status,
+        total=total,
+        recent_days=RECENT_DAYS,
+    )
 
 
 def _board(db: Any, on: dt.date) -> tuple[dict[Status, list[records.BatchView]], dict[Status, int], int]:
     """Batches shown on the board by status, the count of each status, and how many batches existed."""
     coarse = records.coarse_statuses(db, on)
     recent_from = (on - dt.timedelta(days=RECENT_DAYS)).isoformat()
-    shown = [i for i, c, since in coarse
-             if c in ("live", "awaiting") or (since is not None and since >= recent_from)]
+    shown = [i for i, c, since in coarse if c in ("live", "awaiting") or (since is not None and since >= recent_from)]
     groups: dict[Status, list[records.BatchView]] = {s: [] for s in URGENCY}
     for v in records.views_of(db, shown, on):
         groups[v.report.status].append(v)

@@ -23,8 +23,15 @@ def field(name: str) -> Any:
     return value
 
 
-def date(parser: Parser, raw: Any, name: str, *, required: bool = True, not_after: dt.date | None = None,
-         not_before: dt.date | None = None) -> dt.date | None:
+def date(
+    parser: Parser,
+    raw: Any,
+    name: str,
+    *,
+    required: bool = True,
+    not_after: dt.date | None = None,
+    not_before: dt.date | None = None,
+) -> dt.date | None:
     """An ISO date (YYYY-MM-DD) from a form field, within optional bounds, or None with an error recorded."""
     if raw is None or (isinstance(raw, str) and raw.strip() == ""):
         if required:

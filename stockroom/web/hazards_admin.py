@@ -40,8 +40,7 @@ HAZARD_LABELS: dict[str, str] = {
 SIGNAL_CHOICES = [("Danger", "Danger"), ("Warning", "Warning"), ("", "none (not classified)")]
 
 
-def read_classification(form: Mapping[str, Any], pictograms: list[str], today: dt.date
-                        ) -> tuple[hazards.Classification, str]:
+def read_classification(form: Mapping[str, Any], pictograms: list[str], today: dt.date) -> tuple[hazards.Classification, str]:
     """The posted form as a Classification and its reason; InvalidInput naming every bad field.
 
     Concentrations in mol/L; codes typed separated by spaces or commas; effective_from today or later.
@@ -67,9 +66,15 @@ def read_classification(form: Mapping[str, Any], pictograms: list[str], today: d
     assert reagent is not None and low is not None and source is not None and effective is not None
     assert reason is not None
     c = hazards.Classification(
-        reagent=reagent, min_molarity=low, max_molarity=high, signal_word=signal_word,
-        pictograms=tuple(sorted(set(chosen))), hazard_statements=hazards.statement_order(h_codes),
-        precautionary_statements=hazards.statement_order(p_codes), source_note=source, effective_from=effective,
+        reagent=reagent,
+        min_molarity=low,
+        max_molarity=high,
+        signal_word=signal_word,
+        pictograms=tuple(sorted(set(chosen))),
+        hazard_statements=hazards.statement_order(h_codes),
+        precautionary_statements=hazards.statement_order(p_codes),
+        source_note=source,
+        effective_from=effective,
     )
     return c, reason
 
@@ -86,7 +91,9 @@ def _context(today: dt.date) -> dict[str, Any]:
         "signal_choices": SIGNAL_CHOICES,
         "drawn": [(code, hazards.PICTOGRAMS[code], pictogram_uri(code, 40)) for code in hazards.DRAWN],
         "uris": {code: pictogram_uri(code, 40) for code in hazards.DRAWN},
-        "h_texts": hazards.HAZARD_TEXT, "p_texts": hazards.PRECAUTION_TEXT, "labels": HAZARD_LABELS,
+        "h_texts": hazards.HAZARD_TEXT,
+        "p_texts": hazards.PRECAUTION_TEXT,
+        "labels": HAZARD_LABELS,
         "today": today,
     }
 
@@ -106,6 +113,9 @@ def hazard_data() -> Any:
     user = current_user()
     assert user is not None
     pdflabels.record_classification(get_db(), c, reason, user.username)
-    flash(f"Recorded: {c.reagent} {c.band_text}, {c.signal_word or 'not classified'}, in force from "
-          f"{c.effective_from.isoformat()}. Labels printed from then on use it.", "info")
+    flash(
+        f"Recorded: {c.reagent} {c.band_text}, {c.signal_word or 'not classified'}, in force from "
+        f"{c.effective_from.isoformat()}. Labels printed from then on use it.",
+        "info",
+    )
     return redirect(url_for("hazards_admin.hazard_data"), code=303)

@@ -54,8 +54,9 @@ def _with_unit(x: float, unit: str) -> str:
     return f"{_num(x)} {unit}" if unit else _num(x)
 
 
-def range_rule(gt: float | None = None, ge: float | None = None, lt: float | None = None,
-               le: float | None = None, unit: str = "") -> str | None:
+def range_rule(
+    gt: float | None = None, ge: float | None = None, lt: float | None = None, le: float | None = None, unit: str = ""
+) -> str | None:
     """The sentence naming a numeric range, e.g. "must be between 5 and 40 °C".
 
     gt/ge: lower bound, exclusive/inclusive; lt/le: upper bound; unit: appended to the numbers
@@ -148,8 +149,7 @@ class Parser:
 
     def has_error(self, prefix: str) -> bool:
         """True when a recorded error names this field or one under it."""
-        return any(e.field == prefix or e.field.startswith(prefix + ".") or e.field.startswith(prefix + "[")
-                   for e in self.errors)
+        return any(e.field == prefix or e.field.startswith(prefix + ".") or e.field.startswith(prefix + "[") for e in self.errors)
 
     def raise_if_errors(self) -> None:
         """Raise InvalidInput with every error recorded so far (status 422)."""
@@ -158,9 +158,18 @@ class Parser:
 
     # ---- scalars
 
-    def number(self, raw: Any, field: str, *, required: bool = True, gt: float | None = None,
-               ge: float | None = None, lt: float | None = None, le: float | None = None,
-               unit: str = "") -> float | None:
+    def number(
+        self,
+        raw: Any,
+        field: str,
+        *,
+        required: bool = True,
+        gt: float | None = None,
+        ge: float | None = None,
+        lt: float | None = None,
+        le: float | None = None,
+        unit: str = "",
+    ) -> float | None:
         """A finite number within the bounds, or None (missing and optional, or an error recorded).
 
         raw: the raw value (MISSING when the key is absent); field: its path; gt/ge/lt/le: bounds in
@@ -175,14 +184,17 @@ class Parser:
             self.error(field, problem)
             return None
         assert value is not None
-        if ((gt is not None and not value > gt) or (ge is not None and not value >= ge)
-                or (lt is not None and not value < lt) or (le is not None and not value <= le)):
+        if (
+            (gt is not None and not value > gt)
+            or (ge is not None and not value >= ge)
+            or (lt is not None and not value < lt)
+            or (le is not None and not value <= le)
+        ):
             self.error(field, range_rule(gt, ge, lt, le, unit) or "is out of range")
             return None
         return value
 
-    def integer(self, raw: Any, field: str, *, required: bool = True, ge: int | None = None,
-                le: int | None = None) -> int | None:
+    def integer(self, raw: Any, field: str, *, required: bool = True, ge: int | None = None, le: int | None = None) -> int | None:
         """A whole number (JSON integer, integral float, or digits) within [ge, le], or None."""
         if _absent(raw):
             if required:
@@ -261,8 +273,9 @@ class Parser:
             return None
         return raw
 
-    def array(self, raw: Any, field: str, *, required: bool = True, min_items: int = 0,
-              max_items: int | None = None) -> list[Any] | None:
+    def array(
+        self, raw: Any, field: str, *, required: bool = True, min_items: int = 0, max_items: int | None = None
+    ) -> list[Any] | None:
         """A JSON list of min_items to max_items entries, or None."""
         if raw is MISSING or raw is None:
             if required:

@@ -29,22 +29,37 @@ from stockroom.web.inputs import Parser
 
 bp = Blueprint("instruments", __name__, url_prefix="/instruments")
 
-BURETTE_SIZES_ML = (10.0, 25.0, 50.0, 100.0)   # the sizes the run form offers
+BURETTE_SIZES_ML = (10.0, 25.0, 50.0, 100.0)  # the sizes the run form offers
 MAX_BALANCE_G, MAX_GLASS_ML = 10_000.0, 1000.0
-MAX_TOLERANCE_FRACTION = 0.02   # a tolerance beyond 2 % of the capacity is a unit slip, not glassware
-MAX_INTERVAL_DAYS = 5 * 366     # a calibration interval longer than five years is a typing slip (common practice)
+MAX_TOLERANCE_FRACTION = 0.02  # a tolerance beyond 2 % of the capacity is a unit slip, not glassware
+MAX_INTERVAL_DAYS = 5 * 366  # a calibration interval longer than five years is a typing slip (common practice)
 _CODE = re.compile(r"[A-Za-z0-9][A-Za-z0-9._/-]{0,39}")
 
 LABELS: dict[str, str] = {
-    "code": "Instrument ID", "kind": "Kind", "description": "Make, model, serial", "capacity": "Capacity",
-    "accuracy_class": "Class", "tolerance_ml": "Tolerance", "division_ml": "Scale division",
-    "balance_class": "Balance class", "readability_mg": "Readability d", "linearity_mg": "Linearity",
-    "notes": "Notes", "calibrated_on": "Calibrated on", "next_due_on": "Next due", "outcome": "Outcome",
-    "certificate_ref": "Certificate reference", "calibrated_by": "Calibrated by",
-    "stated_tolerance_ml": "Tolerance stated on the certificate", "stated_linearity_mg": "Linearity stated on the certificate",
+    "code": "Instrument ID",
+    "kind": "Kind",
+    "description": "Make, model, serial",
+    "capacity": "Capacity",
+    "accuracy_class": "Class",
+    "tolerance_ml": "Tolerance",
+    "division_ml": "Scale division",
+    "balance_class": "Balance class",
+    "readability_mg": "Readability d",
+    "linearity_mg": "Linearity",
+    "notes": "Notes",
+    "calibrated_on": "Calibrated on",
+    "next_due_on": "Next due",
+    "outcome": "Outcome",
+    "certificate_ref": "Certificate reference",
+    "calibrated_by": "Calibrated by",
+    "stated_tolerance_ml": "Tolerance stated on the certificate",
+    "stated_linearity_mg": "Linearity stated on the certificate",
 }
-KIND_OPTIONS = [("balance", "Balance (weighing the primary standard)"), ("burette", "Burette (delivering the titrant)"),
-                ("pipette", "Pipette (the aliquot of a secondary standardization)")]
+KIND_OPTIONS = [
+    ("balance", "Balance (weighing the primary standard)"),
+    ("burette", "Burette (delivering the titrant)"),
+    ("pipette", "Pipette (the aliquot of a secondary standardization)"),
+]
 CLASS_OPTIONS = [("A", "Class A"), ("B", "Class B"), ("", "no class: tolerance as calibrated")]
 OUTCOME_OPTIONS = [("pass", "passed"), ("fail", "failed")]
 
@@ -52,8 +67,7 @@ OUTCOME_OPTIONS = [("pass", "passed"), ("fail", "failed")]
 # --------------------------------------------------------------------------------------------- reading forms
 
 
-def _calibration(p: Parser, form: Mapping[str, Any], today: dt.date, kind: str, *, required: bool
-                 ) -> dict[str, Any] | None:
+def _calibration(p: Parser, form: Mapping[str, Any], today: dt.date, kind: str, *, required: bool) -> dict[str, Any] | None:
     """The calibration fields of a form, checked; None when optional and all blank."""
     names = ("calibrated_on", "next_due_on", "certificate_ref", "calibrated_by")
     if not required and not any((form.get(n) or "").strip() for n in names):
@@ -71,17 +85,21 @@ def _calibration(p: Parser, form: Mapping[str, Any], today: dt.date, kind: str, 
     tolerance = linearity = None
     if required:  # a later calibration may restate the figures
         if kind == "balance":
-            lin = p.number(form.get("stated_linearity_mg"), "stated_linearity_mg", required=False, ge=0, le=100,
-                           unit="mg")
+            lin = p.number(form.get("stated_linearity_mg"), "stated_linearity_mg", required=False, ge=0, le=100, unit="mg")
             linearity = lin / 1000.0 if lin is not None else None
         else:
-            tolerance = p.number(form.get("stated_tolerance_ml"), "stated_tolerance_ml", required=False, gt=0, le=1,
-                                 unit="mL")
+            tolerance = p.number(form.get("stated_tolerance_ml"), "stated_tolerance_ml", required=False, gt=0, le=1, unit="mL")
     notes = p.text(form.get("notes"), "notes", required=False, max_length=1000) or ""
-    return {"calibrated_on": calibrated_on.isoformat() if calibrated_on else None,
-            "next_due_on": next_due.isoformat() if next_due else None, "outcome": outcome,
-            "certificate_ref": ref, "calibrated_by": by, "tolerance": tolerance, "linearity_g": linearity,
-            "notes": notes if required else ""}
+    return {
+        "calibrated_on": calibrated_on.isoformat() if calibrated_on else None,
+        "next_due_on": next_due.isoformat() if next_due else None,
+        "outcome": outcome,
+        "certificate_ref": ref,
+        "calibrated_by": by,
+        "tolerance": tolerance,
+        "linearity_g": linearity,
+        "notes": notes if required else "",
+    }
 
 
 def read_instrument(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, Any], dict[str, Any] | None, list[str]]:
@@ -100,11 +118,19 @@ def read_instrument(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, 
     kind = p.choice(form.get("kind") or None, "kind", inst_mod.KINDS)
     description = p.text(form.get("description"), "description", required=False, max_length=200) or ""
     balance = kind == "balance"
-    capacity = p.number(form.get("capacity"), "capacity", gt=0, le=MAX_BALANCE_G if balance else MAX_GLASS_ML,
-                        unit="g" if balance else "mL")
-    values: dict[str, Any] = {"code": code or raw_code, "kind": kind, "description": description,
-                              "capacity": capacity, "accuracy_class": "", "tolerance": None, "readability": None,
-                              "linearity_g": None}
+    capacity = p.number(
+        form.get("capacity"), "capacity", gt=0, le=MAX_BALANCE_G if balance else MAX_GLASS_ML, unit="g" if balance else "mL"
+    )
+    values: dict[str, Any] = {
+        "code": code or raw_code,
+        "kind": kind,
+        "description": description,
+        "capacity": capacity,
+        "accuracy_class": "",
+        "tolerance": None,
+        "readability": None,
+        "linearity_g": None,
+    }
     glass_fields = ("tolerance_ml", "division_ml")
     balance_fields = ("readability_mg", "linearity_mg", "balance_class")
     if balance:
@@ -127,13 +153,17 @@ def read_instrument(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, 
         if tol is None and not p.has_error("tolerance_ml") and capacity is not None and cls is not None:
             tol = inst_mod.class_tolerance(kind, cls, capacity)
             if tol is None:
-                p.error("tolerance_ml", "is required: give the tolerance (± mL) from the marking or the calibration"
-                        + (f"; Class {cls} has no listed figure for {capacity:g} mL" if cls else ""))
+                p.error(
+                    "tolerance_ml",
+                    "is required: give the tolerance (± mL) from the marking or the calibration"
+                    + (f"; Class {cls} has no listed figure for {capacity:g} mL" if cls else ""),
+                )
             else:
                 notes.append(f"Tolerance ±{tol:g} mL taken from the Class {cls} table for a {capacity:g} mL {kind}.")
         if tol is not None and capacity is not None and tol > MAX_TOLERANCE_FRACTION * capacity:
-            p.error("tolerance_ml", f"±{tol:g} mL is more than {MAX_TOLERANCE_FRACTION * 100:g} % of {capacity:g} mL: "
-                                    "check the unit")
+            p.error(
+                "tolerance_ml", f"±{tol:g} mL is more than {MAX_TOLERANCE_FRACTION * 100:g} % of {capacity:g} mL: check the unit"
+            )
         division = p.number(form.get("division_ml"), "division_ml", required=False, gt=0, le=1, unit="mL")
         values.update(accuracy_class=cls or "", tolerance=tol, readability=division)
     values["notes"] = p.text(form.get("notes"), "notes", required=False, max_length=1000) or ""
@@ -150,8 +180,10 @@ def read_calibration(form: Mapping[str, Any], instrument: Instrument, today: dt.
     if values["calibrated_on"] and instrument.calibrations:
         last = instrument.calibrations[-1].calibrated_on
         if dt.date.fromisoformat(values["calibrated_on"]) < last:
-            p.error("calibrated_on", f"is before the last calibration on record ({last.isoformat()}); a calibration "
-                                     "is recorded in the order made")
+            p.error(
+                "calibrated_on",
+                f"is before the last calibration on record ({last.isoformat()}); a calibration is recorded in the order made",
+            )
     p.raise_if_errors()
     return values
 
@@ -182,8 +214,10 @@ def preview_figures(method: str, on: dt.date) -> dict[str, dict[str, float]]:
         for inst in inst_mod.list_instruments(get_db(), role):
             f = inst_mod.figures({}, {role: inst}, on)
             if role == "balance":
-                out[str(inst.id)] = {"balance_readability_g": f.balance_readability_g,
-                                     "balance_linearity_g": f.balance_linearity_g}
+                out[str(inst.id)] = {
+                    "balance_readability_g": f.balance_readability_g,
+                    "balance_linearity_g": f.balance_linearity_g,
+                }
             elif role == "burette":
                 out[str(inst.id)] = {"burette_tolerance_ml": f.burette_tolerance_ml}
             else:
@@ -191,8 +225,7 @@ def preview_figures(method: str, on: dt.date) -> dict[str, dict[str, float]]:
     return out
 
 
-def read_run_instruments(p: Parser, form: Mapping[str, Any], method: str, capacity_ml: float | None
-                         ) -> dict[str, Instrument]:
+def read_run_instruments(p: Parser, form: Mapping[str, Any], method: str, capacity_ml: float | None) -> dict[str, Instrument]:
     """The instruments a run form names (role -> Instrument); errors go to `p` under <role>_id.
 
     A named burette must match the burette size of the run (capacity_ml, mL).
@@ -212,8 +245,10 @@ def read_run_instruments(p: Parser, form: Mapping[str, Any], method: str, capaci
             p.error(name, f"{inst.code} is a {inst.kind}, not a {role}")
             continue
         if role == "burette" and capacity_ml is not None and inst.capacity != capacity_ml:
-            p.error(name, f"{inst.code} is a {inst.capacity:g} mL burette but the run says {capacity_ml:g} mL: "
-                          "choose the matching size")
+            p.error(
+                name,
+                f"{inst.code} is a {inst.capacity:g} mL burette but the run says {capacity_ml:g} mL: choose the matching size",
+            )
             continue
         chosen[role] = inst
     return chosen
@@ -223,8 +258,13 @@ def read_run_instruments(p: Parser, form: Mapping[str, Any], method: str, capaci
 
 
 def _context() -> dict[str, Any]:
-    return {"labels": LABELS, "kinds": KIND_OPTIONS, "classes": CLASS_OPTIONS, "outcomes": OUTCOME_OPTIONS,
-            "class_table": inst_mod.CLASS_A_TOLERANCE_ML}
+    return {
+        "labels": LABELS,
+        "kinds": KIND_OPTIONS,
+        "classes": CLASS_OPTIONS,
+        "outcomes": OUTCOME_OPTIONS,
+        "class_table": inst_mod.CLASS_A_TOLERANCE_ML,
+    }
 
 
 @bp.get("/")
@@ -232,8 +272,7 @@ def list_instruments() -> str:
     today = lab_today()
     rows = [(i, inst_mod.standing(i, today)) for i in inst_mod.list_instruments(get_db())]
     overdue = [i for i, s in rows if not s.fit_to_certify]
-    return render_template("instruments/list.html", rows=rows, today=today, overdue=overdue,
-                           soon_days=inst_mod.DUE_SOON_DAYS)
+    return render_template("instruments/list.html", rows=rows, today=today, overdue=overdue, soon_days=inst_mod.DUE_SOON_DAYS)
 
 
 @bp.route("/new", methods=["GET", "POST"])
@@ -242,8 +281,9 @@ def new_instrument() -> Any:
     today = lab_today()
     if request.method == "GET":
         kind = request.args.get("kind", "")
-        return render_template("instruments/new.html", values={"kind": kind, "accuracy_class": "A", "outcome": "pass"},
-                               errors={}, **_context())
+        return render_template(
+            "instruments/new.html", values={"kind": kind, "accuracy_class": "A", "outcome": "pass"}, errors={}, **_context()
+        )
     try:
         values, calibration, notes = read_instrument(request.form, today)
         user = current_user()
@@ -265,9 +305,17 @@ def _show(inst: Instrument, values: Mapping[str, Any], errors: Mapping[str, str]
     from stockroom import recall as recall_mod
 
     recalls = [rc for rc in recall_mod.list_recalls(db) if rc.subject_kind == "instrument" and rc.subject_id == inst.id]
-    return render_template("instruments/show.html", inst=inst, standing=inst_mod.standing(inst, today), today=today,
-                           runs=inst_mod.runs_using(db, inst.id), values=values, errors=errors, recalls=recalls,
-                           **_context()), status
+    return render_template(
+        "instruments/show.html",
+        inst=inst,
+        standing=inst_mod.standing(inst, today),
+        today=today,
+        runs=inst_mod.runs_using(db, inst.id),
+        values=values,
+        errors=errors,
+        recalls=recalls,
+        **_context(),
+    ), status
 
 
 @bp.get("/<int:instrument_id>")
@@ -289,6 +337,8 @@ def calibrate(instrument_id: int) -> Any:
     assert user is not None
     inst_mod.record_calibration(db, instrument_id, values, user.username)
     outcome = "passed" if values["outcome"] == "pass" else "FAILED"
-    flash(f"Calibration {values['certificate_ref']} of {values['calibrated_on']} recorded for {inst.code} ({outcome}).",
-          "ok" if values["outcome"] == "pass" else "warning")
+    flash(
+        f"Calibration {values['certificate_ref']} of {values['calibrated_on']} recorded for {inst.code} ({outcome}).",
+        "ok" if values["outcome"] == "pass" else "warning",
+    )
     return redirect(url_for("instruments.show", instrument_id=instrument_id), 303)

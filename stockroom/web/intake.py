@@ -85,8 +85,9 @@ _ADJUST_TO_FORM = {
     "measured_molarity_mol_l": "basis",
     "target_molarity_mol_l": "basis",
 }
-PLAN_KEYS = frozenset({"reagent", "nominal_molarity", "volume_l", "source_form", "concentrate_assay_pct",
-                       "concentrate_density_g_ml", "water_grade"})
+PLAN_KEYS = frozenset(
+    {"reagent", "nominal_molarity", "volume_l", "source_form", "concentrate_assay_pct", "concentrate_density_g_ml", "water_grade"}
+)
 
 
 # --------------------------------------------------------------------------------------------- views
@@ -114,8 +115,11 @@ def new_batch() -> Any:
     except InvalidInput as exc:
         return forms.reshow("intake/new.html", exc, **_batch_context(pols, request.form, plan=_quiet_plan(pols)))
     row = records.create_batch(db, values, user.username)
-    flash(f"Registered batch {row['code']}: it awaits standardization and is not for use until released. "
-          f"Write {row['code']} on the container's label.", "info")
+    flash(
+        f"Registered batch {row['code']}: it awaits standardization and is not for use until released. "
+        f"Write {row['code']} on the container's label.",
+        "info",
+    )
     for warning in warnings:
         flash(warning, "warning")
     return redirect(url_for("batches.show", code=row["code"]), code=303)
@@ -150,20 +154,23 @@ def adjust(code: str) -> Any:
     status = status_on(records.batch_facts(db, batch["id"]), today).status
     # A withdrawn batch is out of use for good: nothing is worked out for it.
     bases = [] if status is Status.WITHDRAWN else adjustment_bases(db, batch, today)
-    context: dict[str, Any] = {"batch": batch, "bases": bases, "titrant": chemistry.titrant(batch["reagent"]),
-                               "status": status,
-                               "basis_options": [(b["key"], b["label"]) for b in bases],
-                               "cautions": preparation.cautions_for(batch["reagent"]), "labels": ADJUST_LABELS}
+    context: dict[str, Any] = {
+        "batch": batch,
+        "bases": bases,
+        "titrant": chemistry.titrant(batch["reagent"]),
+        "status": status,
+        "basis_options": [(b["key"], b["label"]) for b in bases],
+        "cautions": preparation.cautions_for(batch["reagent"]),
+        "labels": ADJUST_LABELS,
+    }
     if "volume_l" not in request.args:
         defaults = _adjust_defaults(batch, bases)
         return render_template("intake/adjust.html", values=defaults, errors={}, adjustment=None, **context)
     try:
         chosen, result = work_out_adjustment(request.args, batch, bases)
     except InvalidInput as exc:
-        return render_template("intake/adjust.html", values=request.args, errors=exc.fields, adjustment=None,
-                               **context), 422
-    return render_template("intake/adjust.html", values=request.args, errors={}, adjustment=result, basis=chosen,
-                           **context)
+        return render_template("intake/adjust.html", values=request.args, errors=exc.fields, adjustment=None, **context), 422
+    return render_template("intake/adjust.html", values=request.args, errors={}, adjustment=result, basis=chosen, **context)
 
 
 @bp.route("/batches/<code>/withdraw", methods=["GET", "POST"])
@@ -175,8 +182,7 @@ def withdraw(code: str) -> Any:
     existing = records.withdrawal_of(db, batch["id"])
     context: dict[str, Any] = {"batch": batch, "existing": existing, "labels": WITHDRAW_LABELS}
     if request.method == "GET":
-        return render_template("intake/withdraw.html", values={"withdrawn_on": today.isoformat()}, errors={},
-                               **context)
+        return render_template("intake/withdraw.html", values={"withdrawn_on": today.isoformat()}, errors={}, **context)
     user = current_user()
     assert user is not None
     try:
@@ -188,10 +194,12 @@ def withdraw(code: str) -> Any:
         return forms.reshow("intake/withdraw.html", exc, **context)
     except Conflict as exc:  # also when another withdrawal landed between the read above and this write
         context["existing"] = records.withdrawal_of(db, batch["id"])
-        return render_template("intake/withdraw.html", values=request.form, errors={}, conflict=exc.message,
-                               **context), 409
-    flash(f"Batch {batch['code']} is withdrawn from {withdrawn_on.isoformat()}: it shows as withdrawn "
-          f"from that day and cannot be released again.", "info")
+        return render_template("intake/withdraw.html", values=request.form, errors={}, conflict=exc.message, **context), 409
+    flash(
+        f"Batch {batch['code']} is withdrawn from {withdrawn_on.isoformat()}: it shows as withdrawn "
+        f"from that day and cannot be released again.",
+        "info",
+    )
     return redirect(url_for("batches.show", code=batch["code"]), code=303)
 
 
@@ -205,7 +213,8 @@ def _catalogue(pols: Mapping[str, ReagentPolicy]) -> dict[str, Any]:
         if t.key not in pols:
             continue
         out[t.key] = {
-            "name": t.name, "role": t.role,
+            "name": t.name,
+            "role": t.role,
             "nominals": [f"{n:g}" for n in pols[t.key].nominal_molarities],
             "typical": _typical_hint(t.key),
             "cautions": list(preparation.cautions_for(t.key)),
@@ -225,8 +234,9 @@ def _typical_hint(reagent: str) -> str:
     return "Typical: " + "; ".join(parts) + f" ({preparation.VERIFY})."
 
 
-def _batch_context(pols: Mapping[str, ReagentPolicy], values: Mapping[str, Any], plan: Any = None,
-                   warnings: list[str] | None = None) -> dict[str, Any]:
+def _batch_context(
+    pols: Mapping[str, ReagentPolicy], values: Mapping[str, Any], plan: Any = None, warnings: list[str] | None = None
+) -> dict[str, Any]:
     catalogue = _catalogue(pols)
     chosen = values.get("reagent") if values.get("reagent") in catalogue else None
     if chosen:
@@ -238,9 +248,15 @@ def _batch_context(pols: Mapping[str, ReagentPolicy], values: Mapping[str, Any],
     return {
         "reagents": [(key, f"{entry['name']} ({key})") for key, entry in catalogue.items()],
         "unregistrable": [t.key for t in chemistry.list_titrants() if t.key not in pols],
-        "catalogue": catalogue, "chosen": chosen, "nominals": nominals, "cautions": cautions,
-        "source_forms": SOURCE_FORMS, "water_grades": WATER_GRADES, "labels": BATCH_LABELS,
-        "plan": plan_display(plan) if plan is not None else None, "plan_warnings": warnings or [],
+        "catalogue": catalogue,
+        "chosen": chosen,
+        "nominals": nominals,
+        "cautions": cautions,
+        "source_forms": SOURCE_FORMS,
+        "water_grades": WATER_GRADES,
+        "labels": BATCH_LABELS,
+        "plan": plan_display(plan) if plan is not None else None,
+        "plan_warnings": warnings or [],
         "limits": {"volume": (MIN_VOLUME_L, MAX_VOLUME_L)},
     }
 
@@ -270,14 +286,15 @@ def _reagent(p: Parser, raw: Any, pols: Mapping[str, ReagentPolicy]) -> chemistr
         p.error("reagent", f"{str(raw)[:30]!r} is not a titrant stockroom knows; choose one from the list")
         return None
     if t.key not in pols:
-        p.error("reagent", f"no reagent policy is recorded for {t.name}, so its batches cannot be released; "
-                           "an administrator must add one first")
+        p.error(
+            "reagent",
+            f"no reagent policy is recorded for {t.name}, so its batches cannot be released; an administrator must add one first",
+        )
         return None
     return t
 
 
-def read_percent(p: Parser, raw: Any, field: str, *, required: bool, gt: float, le: float,
-                 why: str = "") -> float | None:
+def read_percent(p: Parser, raw: Any, field: str, *, required: bool, gt: float, le: float, why: str = "") -> float | None:
     """A percentage typed as such (37 for 37 %), above gt and at most le, or None with an error recorded.
 
     A value of 1 or less is refused as a likely mass fraction, with the percentage to type instead;
@@ -287,8 +304,7 @@ def read_percent(p: Parser, raw: Any, field: str, *, required: bool, gt: float, 
     if value is None:
         return None
     if 0 < value <= 1:
-        p.error(field, f"is in percent: {value:g} looks like a mass fraction; for {value * 100:g} % "
-                       f"type {value * 100:g}")
+        p.error(field, f"is in percent: {value:g} looks like a mass fraction; for {value * 100:g} % type {value * 100:g}")
         return None
     if not gt < value <= le:
         p.error(field, f"must be greater than {gt:g} % and at most {le:g} %" + (f": {why}" if why else ""))
@@ -296,28 +312,38 @@ def read_percent(p: Parser, raw: Any, field: str, *, required: bool, gt: float, 
     return value
 
 
-def _read_plan_fields(p: Parser, data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy],
-                      need_concentrate: bool) -> dict[str, Any]:
+def _read_plan_fields(
+    p: Parser, data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], need_concentrate: bool
+) -> dict[str, Any]:
     """The calculator's fields, checked; keys as the form names them, the assay as a mass fraction."""
     t = _reagent(p, data.get("reagent"), pols)
-    nominal = p.number(data.get("nominal_molarity"), "nominal_molarity", gt=0, le=MAX_NOMINAL_MOL_L,
-                       unit="mol/L")
+    nominal = p.number(data.get("nominal_molarity"), "nominal_molarity", gt=0, le=MAX_NOMINAL_MOL_L, unit="mol/L")
     volume = p.number(data.get("volume_l"), "volume_l", ge=MIN_VOLUME_L, le=MAX_VOLUME_L, unit="L")
     form = p.choice(data.get("source_form"), "source_form", [k for k, _ in SOURCE_FORMS], default=LIQUID)
     if form == SOLID and t is not None and t.role != BASE:
         p.error("source_form", f"{t.name} is made from a liquid concentrate: choose the concentrate")
         form = None
-    pct = read_percent(p, data.get("concentrate_assay_pct"), "concentrate_assay_pct", required=need_concentrate,
-                   gt=1, le=100)
+    pct = read_percent(p, data.get("concentrate_assay_pct"), "concentrate_assay_pct", required=need_concentrate, gt=1, le=100)
     density = None
     if form != SOLID:  # a solid's density is meaningless here; the form disables that field for solids
-        density = p.number(data.get("concentrate_density_g_ml"), "concentrate_density_g_ml",
-                           required=need_concentrate and form == LIQUID, ge=MIN_DENSITY_G_ML, le=MAX_DENSITY_G_ML,
-                           unit="g/mL")
+        density = p.number(
+            data.get("concentrate_density_g_ml"),
+            "concentrate_density_g_ml",
+            required=need_concentrate and form == LIQUID,
+            ge=MIN_DENSITY_G_ML,
+            le=MAX_DENSITY_G_ML,
+            unit="g/mL",
+        )
         if density is not None and pct is None and not p.has_error("concentrate_assay_pct"):
             p.error("concentrate_assay_pct", "is needed with the density: give the assay from the certificate")
-    return {"reagent": t, "nominal_molarity": nominal, "volume_l": volume, "source_form": form,
-            "assay_w_w": None if pct is None else pct / 100.0, "density_g_ml": density}
+    return {
+        "reagent": t,
+        "nominal_molarity": nominal,
+        "volume_l": volume,
+        "source_form": form,
+        "assay_w_w": None if pct is None else pct / 100.0,
+        "density_g_ml": density,
+    }
 
 
 def _remap(exc: InvalidInput, mapping: Mapping[str, str]) -> InvalidInput:
@@ -329,12 +355,15 @@ def water_warning(t: chemistry.Titrant, water_grade: str | None) -> str | None:
     if t.role != BASE or (water_grade and _CO2_FREE.search(water_grade)):
         return None
     said = f"“{water_grade}”" if water_grade else "no water grade"
-    return (f"{t.name} takes up carbon dioxide as carbonate, which shifts its end point: it should be made "
-            f"with boiled, CO2-free water, and {said} was given (common practice). Check the water, or note it.")
+    return (
+        f"{t.name} takes up carbon dioxide as carbonate, which shifts its end point: it should be made "
+        f"with boiled, CO2-free water, and {said} was given (common practice). Check the water, or note it."
+    )
 
 
-def work_out_plan(data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy],
-                  strict_keys: bool = False) -> tuple[preparation.PreparationPlan, list[str]]:
+def work_out_plan(
+    data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], strict_keys: bool = False
+) -> tuple[preparation.PreparationPlan, list[str]]:
     """The preparation plan for the calculator's fields (form or JSON values), with warnings.
 
     data: field name -> raw value (strings or JSON numbers); nominal in mol/L, volume in L, assay in
@@ -347,8 +376,14 @@ def work_out_plan(data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy],
     p.raise_if_errors()
     t = fields["reagent"]
     try:
-        plan = preparation.preparation_plan(t, fields["nominal_molarity"], fields["volume_l"], fields["assay_w_w"],
-                                            fields["density_g_ml"], form=fields["source_form"])
+        plan = preparation.preparation_plan(
+            t,
+            fields["nominal_molarity"],
+            fields["volume_l"],
+            fields["assay_w_w"],
+            fields["density_g_ml"],
+            form=fields["source_form"],
+        )
     except InvalidInput as exc:
         raise _remap(exc, _PLAN_TO_FORM) from None
     warnings = [w for w in (water_warning(t, _text_or_none(data.get("water_grade"))),) if w]
@@ -359,8 +394,7 @@ def _text_or_none(raw: Any) -> str | None:
     return raw.strip() if isinstance(raw, str) and raw.strip() else None
 
 
-def read_batch(form: Mapping[str, Any], pols: Mapping[str, ReagentPolicy],
-               today: dt.date) -> tuple[dict[str, Any], list[str]]:
+def read_batch(form: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], today: dt.date) -> tuple[dict[str, Any], list[str]]:
     """The register form, checked, as records.create_batch takes it, and the warnings to show.
 
     form: the posted fields; today: the lab's date (prepared_on may not be later). Returns
@@ -378,16 +412,25 @@ def read_batch(form: Mapping[str, Any], pols: Mapping[str, ReagentPolicy],
     p.raise_if_errors()
     t = fields["reagent"]
     values = {
-        "reagent": t.key, "nominal_molarity": fields["nominal_molarity"], "volume_l": fields["volume_l"],
-        "prepared_on": prepared_on, "prepared_by": prepared_by, "concentrate_lot": lot,
-        "concentrate_assay_w_w": fields["assay_w_w"], "concentrate_density_g_ml": fields["density_g_ml"],
-        "water_grade": water, "container": container, "notes": notes,
+        "reagent": t.key,
+        "nominal_molarity": fields["nominal_molarity"],
+        "volume_l": fields["volume_l"],
+        "prepared_on": prepared_on,
+        "prepared_by": prepared_by,
+        "concentrate_lot": lot,
+        "concentrate_assay_w_w": fields["assay_w_w"],
+        "concentrate_density_g_ml": fields["density_g_ml"],
+        "water_grade": water,
+        "container": container,
+        "notes": notes,
     }
     warnings = []
     usual = pols[t.key].nominal_molarities
     if not any(math.isclose(fields["nominal_molarity"], n, rel_tol=1e-9) for n in usual):
-        warnings.append(f"{fields['nominal_molarity']:g} mol/L is not one of the usual strengths in the {t.key} "
-                        f"policy ({', '.join(f'{n:g}' for n in usual)} mol/L); it is recorded as typed.")
+        warnings.append(
+            f"{fields['nominal_molarity']:g} mol/L is not one of the usual strengths in the {t.key} "
+            f"policy ({', '.join(f'{n:g}' for n in usual)} mol/L); it is recorded as typed."
+        )
     warning = water_warning(t, water)
     if warning:
         warnings.append(warning)
@@ -410,27 +453,50 @@ def plan_display(plan: preparation.PreparationPlan) -> dict[str, Any]:
     figures = []
     if plan.form == LIQUID:
         assert plan.concentrate_volume_ml is not None and plan.concentrate_molarity_mol_l is not None
-        figures.append({"label": "Concentrate to measure", "value": f"{_sig(plan.concentrate_volume_ml)} mL",
-                        "detail": f"or weigh {_sig(plan.concentrate_mass_g)} g of it"})
-        figures.append({"label": "Water, roughly", "value": f"{_sig(plan.water_approx_l, 3)} L",
-                        "detail": f"make up to the {_sig(plan.final_volume_l, 3)} L mark; do not measure the water"})
-        figures.append({"label": "Concentrate strength", "value": f"{_sig(plan.concentrate_molarity_mol_l)} mol/L",
-                        "detail": f"from {plan.assay_w_w * 100:g} % w/w and {plan.density_g_ml:g} g/mL"})
+        figures.append(
+            {
+                "label": "Concentrate to measure",
+                "value": f"{_sig(plan.concentrate_volume_ml)} mL",
+                "detail": f"or weigh {_sig(plan.concentrate_mass_g)} g of it",
+            }
+        )
+        figures.append(
+            {
+                "label": "Water, roughly",
+                "value": f"{_sig(plan.water_approx_l, 3)} L",
+                "detail": f"make up to the {_sig(plan.final_volume_l, 3)} L mark; do not measure the water",
+            }
+        )
+        figures.append(
+            {
+                "label": "Concentrate strength",
+                "value": f"{_sig(plan.concentrate_molarity_mol_l)} mol/L",
+                "detail": f"from {plan.assay_w_w * 100:g} % w/w and {plan.density_g_ml:g} g/mL",
+            }
+        )
     else:
-        figures.append({"label": "Pellets to weigh", "value": f"{_sig(plan.concentrate_mass_g)} g",
-                        "detail": f"{_sig(plan.reagent_mass_g)} g of {plan.reagent} at {plan.assay_w_w * 100:g} % "
-                                  f"assay"})
-        figures.append({"label": "Water", "value": f"{_sig(plan.final_volume_l, 3)} L",
-                        "detail": "dissolve, cool, then make up to the mark"})
-    return {"figures": figures, "instructions": list(plan.instructions), "notes": list(plan.notes),
-            "cautions": list(plan.cautions),
-            "summary": f"{_sig(plan.final_volume_l, 3)} L of {plan.target_molarity_mol_l:g} mol/L {plan.reagent}"}
+        figures.append(
+            {
+                "label": "Pellets to weigh",
+                "value": f"{_sig(plan.concentrate_mass_g)} g",
+                "detail": f"{_sig(plan.reagent_mass_g)} g of {plan.reagent} at {plan.assay_w_w * 100:g} % assay",
+            }
+        )
+        figures.append(
+            {"label": "Water", "value": f"{_sig(plan.final_volume_l, 3)} L", "detail": "dissolve, cool, then make up to the mark"}
+        )
+    return {
+        "figures": figures,
+        "instructions": list(plan.instructions),
+        "notes": list(plan.notes),
+        "cautions": list(plan.cautions),
+        "summary": f"{_sig(plan.final_volume_l, 3)} L of {plan.target_molarity_mol_l:g} mol/L {plan.reagent}",
+    }
 
 
 def plan_json(plan: preparation.PreparationPlan, warnings: list[str]) -> dict[str, Any]:
     """The JSON answer of the calculator: every figure of the plan (units in the key names) and its display."""
-    return {"plan": dataclasses.asdict(plan), "display": plan_display(plan),
-            "warnings": warnings}
+    return {"plan": dataclasses.asdict(plan), "display": plan_display(plan), "warnings": warnings}
 
 
 # ------------------------------------------------------------------------------------ adjustment
@@ -457,20 +523,33 @@ def adjustment_bases(db: sqlite_utils.Database, batch: Mapping[str, Any], today:
     if release is not None:
         row = next((r for r in history["releases"] if r["id"] == release.id), None)
         release_run_id = row["run_id"] if row else None
-        bases.append({"key": "certified", "molarity": release.molarity, "tolerance_rel": release.tolerance_rel,
-                      "label": f"the certified value in force, {release.molarity:.5f} mol/L (released "
-                               f"{release.released_on.isoformat()})"})
+        bases.append(
+            {
+                "key": "certified",
+                "molarity": release.molarity,
+                "tolerance_rel": release.tolerance_rel,
+                "label": f"the certified value in force, {release.molarity:.5f} mol/L (released "
+                f"{release.released_on.isoformat()})",
+            }
+        )
         tolerance = release.tolerance_rel
-    runs = [r for r in history["runs"]
-            if r["current"] is not None and not (r["decision"] and r["decision"]["decision"] == "reject")]
+    runs = [
+        r for r in history["runs"] if r["current"] is not None and not (r["decision"] and r["decision"]["decision"] == "reject")
+    ]
     if runs:
         last = runs[-1]  # history lists runs by date performed
         if last["id"] != release_run_id:
             state = "accepted" if last["decision"] else "not yet decided"
             kind = "re-check" if last["purpose"] == "recheck" else "standardization"
-            bases.append({"key": "latest", "molarity": last["current"]["molarity"], "tolerance_rel": tolerance,
-                          "label": f"the mean of the latest {kind}, {last['current']['molarity']:.5f} mol/L "
-                                   f"({last['performed_on']}, {state})"})
+            bases.append(
+                {
+                    "key": "latest",
+                    "molarity": last["current"]["molarity"],
+                    "tolerance_rel": tolerance,
+                    "label": f"the mean of the latest {kind}, {last['current']['molarity']:.5f} mol/L "
+                    f"({last['performed_on']}, {state})",
+                }
+            )
     return bases
 
 
@@ -482,21 +561,27 @@ def _adjust_defaults(batch: Mapping[str, Any], bases: list[dict[str, Any]]) -> d
     return values
 
 
-def work_out_adjustment(args: Mapping[str, Any], batch: Mapping[str, Any],
-                        bases: list[dict[str, Any]]) -> tuple[dict[str, Any], preparation.AdjustmentPlan]:
+def work_out_adjustment(
+    args: Mapping[str, Any], batch: Mapping[str, Any], bases: list[dict[str, Any]]
+) -> tuple[dict[str, Any], preparation.AdjustmentPlan]:
     """The adjustment for the typed volume left (L) and optional concentrate (% w/w, g/mL).
 
     Returns (basis used, plan). Raises InvalidInput naming the form's fields.
     """
     p = Parser()
     if not bases:
-        raise InvalidInput([FieldError("basis", "this batch has no standardization yet: there is nothing to "
-                                                "adjust from")])
+        raise InvalidInput([FieldError("basis", "this batch has no standardization yet: there is nothing to adjust from")])
     key = p.choice(args.get("basis"), "basis", [b["key"] for b in bases], default=bases[0]["key"])
     volume = p.number(args.get("volume_l"), "volume_l", gt=0, le=MAX_VOLUME_L * 1.2, unit="L")
     pct = read_percent(p, args.get("concentrate_assay_pct"), "concentrate_assay_pct", required=False, gt=1, le=100)
-    density = p.number(args.get("concentrate_density_g_ml"), "concentrate_density_g_ml", required=False,
-                       ge=MIN_DENSITY_G_ML, le=MAX_DENSITY_G_ML, unit="g/mL")
+    density = p.number(
+        args.get("concentrate_density_g_ml"),
+        "concentrate_density_g_ml",
+        required=False,
+        ge=MIN_DENSITY_G_ML,
+        le=MAX_DENSITY_G_ML,
+        unit="g/mL",
+    )
     if (pct is None) != (density is None) and p.ok:
         missing = "concentrate_density_g_ml" if density is None else "concentrate_assay_pct"
         p.error(missing, "give the concentrate's assay and density together")
@@ -506,11 +591,22 @@ def work_out_adjustment(args: Mapping[str, Any], batch: Mapping[str, Any],
     target = float(batch["nominal_molarity"])
     weak = basis["molarity"] / target - 1.0 < -basis["tolerance_rel"]
     if weak and pct is None:
-        raise InvalidInput([FieldError("concentrate_assay_pct", "the batch is weak: raising it needs a concentrate; "
-                                       "give the assay and density of the concentrate you will add")])
+        raise InvalidInput(
+            [
+                FieldError(
+                    "concentrate_assay_pct",
+                    "the batch is weak: raising it needs a concentrate; "
+                    "give the assay and density of the concentrate you will add",
+                )
+            ]
+        )
     try:
         plan = preparation.adjustment_plan(
-            batch["reagent"], basis["molarity"], target, volume, tolerance_rel=basis["tolerance_rel"],
+            batch["reagent"],
+            basis["molarity"],
+            target,
+            volume,
+            tolerance_rel=basis["tolerance_rel"],
             concentrate_assay_w_w=None if pct is None or not weak else pct / 100.0,
             concentrate_density_g_ml=density if weak else None,
         )

@@ -38,8 +38,8 @@ CHART_WIDTH, CHART_HEIGHT = 1080, 430  # px: the width of a batch page's panel
 
 # ---------------------------------------------------------------- loading
 
-def load_batches(db: sqlite_utils.Database, titrant: str | None, day: dt.date | None = None
-                 ) -> list[ld.BatchRecord]:
+
+def load_batches(db: sqlite_utils.Database, titrant: str | None, day: dt.date | None = None) -> list[ld.BatchRecord]:
     """Batches of a titrant (all when None) with their facts, in a fixed number of queries.
 
     With `day`, only batches that can have a value in force that day (a release made by then whose
@@ -51,16 +51,22 @@ def load_batches(db: sqlite_utils.Database, titrant: str | None, day: dt.date | 
         params.append(titrant)
     if day is not None:
         iso = day.isoformat()
-        sql += (" AND EXISTS (SELECT 1 FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ? "
-                "AND r.expires_on >= ?) AND NOT EXISTS (SELECT 1 FROM withdrawals w WHERE w.batch_id = b.id "
-                "AND w.withdrawn_on <= ?)")
+        sql += (
+            " AND EXISTS (SELECT 1 FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ? "
+            "AND r.expires_on >= ?) AND NOT EXISTS (SELECT 1 FROM withdrawals w WHERE w.batch_id = b.id "
+            "AND w.withdrawn_on <= ?)"
+        )
         params += [iso, iso, iso]
     rows = dbmod.query(db, sql + " ORDER BY code", params)
     if not rows:
         return []
     facts = records.facts_of(db, [r["id"] for r in rows])
-    return [ld.BatchRecord(code=r["code"], reagent=r["reagent"], nominal_molarity=float(r["nominal_molarity"]),
-                           facts=facts[r["id"]], id=r["id"]) for r in rows]
+    return [
+        ld.BatchRecord(
+            code=r["code"], reagent=r["reagent"], nominal_molarity=float(r["nominal_molarity"]), facts=facts[r["id"]], id=r["id"]
+        )
+        for r in rows
+    ]
 
 
 def _alpha() -> float:
@@ -68,6 +74,7 @@ def _alpha() -> float:
 
 
 # ---------------------------------------------------------------- parsing the question
+
 
 def _titrant_key(p: Parser, raw: Any, field: str, required: bool) -> str | None:
     if raw is MISSING or raw is None or (isinstance(raw, str) and not raw.strip()):
@@ -94,8 +101,9 @@ def _date(p: Parser, raw: Any, field: str, default: dt.date | None) -> dt.date |
         return None
 
 
-def parse_question(args: Mapping[str, Any], *, strict: bool, default_day: dt.date | None = None
-                   ) -> tuple[dt.date, str | None, float | None]:
+def parse_question(
+    args: Mapping[str, Any], *, strict: bool, default_day: dt.date | None = None
+) -> tuple[dt.date, str | None, float | None]:
     """(day, titrant key or None, bench temperature °C or None) from a query; InvalidInput naming each field.
 
     strict (the API): date and titrant are required and unknown keys are refused.
@@ -105,8 +113,14 @@ def parse_question(args: Mapping[str, Any], *, strict: bool, default_day: dt.dat
         p.known_keys(args, API_KEYS)
     day = _date(p, args.get("date", MISSING), "date", None if strict else default_day)
     titrant = _titrant_key(p, args.get("titrant", MISSING), "titrant", strict)
-    bench = p.number(args.get("bench_temperature_c", MISSING), "bench_temperature_c", required=False,
-                     ge=ld.BENCH_MIN_C, le=ld.BENCH_MAX_C, unit="°C")
+    bench = p.number(
+        args.get("bench_temperature_c", MISSING),
+        "bench_temperature_c",
+        required=False,
+        ge=ld.BENCH_MIN_C,
+        le=ld.BENCH_MAX_C,
+        unit="°C",
+    )
     p.raise_if_errors()
     assert day is not None
     return day, titrant, bench
@@ -128,25 +142,42 @@ def look_up(day: dt.date, titrant: str | None, bench: float | None) -> ld.LabDay
 
 # ---------------------------------------------------------------- the look-up
 
+
 @bp.get("/lab-day")
 def page() -> Any:
     """The look-up page; a bad question re-shows the form with the message beside the field (422)."""
     today = lab_today()
-    values = {"date": request.args.get("date") or today.isoformat(), "titrant": request.args.get("titrant", ""),
-              "bench_temperature_c": request.args.get("bench_temperature_c", "")}
-    context: dict[str, Any] = {"values": values, "errors": {}, "day": None, "today": today, "alpha": _alpha(),
-                               "titrants": [(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()]}
+    values = {
+        "date": request.args.get("date") or today.isoformat(),
+        "titrant": request.args.get("titrant", ""),
+        "bench_temperature_c": request.args.get("bench_temperature_c", ""),
+    }
+    context: dict[str, Any] = {
+        "values": values,
+        "errors": {},
+        "day": None,
+        "today": today,
+        "alpha": _alpha(),
+        "titrants": [(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
+    }
     try:
         day, titrant, bench = parse_question(request.args, strict=False, default_day=today)
     except InvalidInput as exc:
         context["errors"] = exc.fields
         return render_template("labday/index.html", **context), 422
-    query: dict[str, Any] = {"date": day.isoformat(), **({"titrant": titrant} if titrant else {}),
-             **({"bench_temperature_c": f"{bench:g}"} if bench is not None else {})}
+    query: dict[str, Any] = {
+        "date": day.isoformat(),
+        **({"titrant": titrant} if titrant else {}),
+        **({"bench_temperature_c": f"{bench:g}"} if bench is not None else {}),
+    }
     result = look_up(day, titrant, bench)
-    context.update(day=result, cautions=ld.cautions(result.entries), query=query,
-                   pdf_url=url_for("labday.sheet", **query),
-                   json_url=url_for("labday_api.lab_day_json", **query) if titrant else None)
+    context.update(
+        day=result,
+        cautions=ld.cautions(result.entries),
+        query=query,
+        pdf_url=url_for("labday.sheet", **query),
+        json_url=url_for("labday_api.lab_day_json", **query) if titrant else None,
+    )
     return render_template("labday/index.html", **context)
 
 
@@ -184,8 +215,11 @@ def entry_json(e: ld.LabDayEntry, bench_asked: bool) -> dict[str, Any]:
         "status": e.status.status.value,
         "status_label": e.status.status.label,
         "predicted_molarity": e.prediction.molarity if e.prediction else None,
-        "prediction_interval": ({"low": e.prediction.pi_low, "high": e.prediction.pi_high,
-                                 "confidence": e.prediction.confidence} if e.prediction else None),
+        "prediction_interval": (
+            {"low": e.prediction.pi_low, "high": e.prediction.pi_high, "confidence": e.prediction.confidence}
+            if e.prediction
+            else None
+        ),
         "trend": None,
         "trend_note": e.fit_note,
         "flags": [{"kind": f.kind.value, "message": f.message, "date": _iso(f.date)} for f in e.flags],
@@ -193,9 +227,13 @@ def entry_json(e: ld.LabDayEntry, bench_asked: bool) -> dict[str, Any]:
     if e.fit is not None:
         lo, hi = e.fit.slope_per_period_ci
         body["trend"] = {
-            "points": e.fit.n, "through": e.fit.last_on.isoformat(),
-            "slope_per_30_days": e.fit.slope_per_period, "slope_per_30_days_ci": [lo, hi],
-            "confidence": e.fit.confidence, "p_value": e.fit.p_value, "significant": e.fit.significant,
+            "points": e.fit.n,
+            "through": e.fit.last_on.isoformat(),
+            "slope_per_30_days": e.fit.slope_per_period,
+            "slope_per_30_days_ci": [lo, hi],
+            "confidence": e.fit.confidence,
+            "p_value": e.fit.p_value,
+            "significant": e.fit.significant,
         }
     if bench_asked:
         body["bench_temperature_c"] = e.bench_temperature_c
@@ -213,7 +251,9 @@ def lab_day_json() -> Any:
     def answer() -> bytes:
         result = look_up(day, titrant, bench)
         body: dict[str, Any] = {
-            "date": day.isoformat(), "titrant": titrant, "known_on": today.isoformat(),
+            "date": day.isoformat(),
+            "titrant": titrant,
+            "known_on": today.isoformat(),
             "batches": [entry_json(e, bench is not None) for e in result.entries],
             "reason": result.reason,
         }
@@ -228,6 +268,7 @@ def lab_day_json() -> Any:
 
 
 # ---------------------------------------------------------------- drift chart
+
 
 @bp.get("/batches/<code>/drift.svg")
 def drift_chart(code: str) -> Response:
@@ -251,33 +292,63 @@ def drift_chart(code: str) -> Response:
 
 # ---------------------------------------------------------------- class-data correction
 
-def record_correction(db: sqlite_utils.Database, *, lab_day: dt.date, entry: ld.LabDayEntry, molarity_used: float,
-                      rows: tuple[ld.ClassRow, ...], upload: bytes, upload_name: str, actor: str) -> int:
+
+def record_correction(
+    db: sqlite_utils.Database,
+    *,
+    lab_day: dt.date,
+    entry: ld.LabDayEntry,
+    molarity_used: float,
+    rows: tuple[ld.ClassRow, ...],
+    upload: bytes,
+    upload_name: str,
+    actor: str,
+) -> int:
     """Store one class-data correction and its audit event in one write; return its id."""
     with dbmod.write(db):
         row = {
-            "lab_day": lab_day.isoformat(), "titrant": entry.batch.reagent, "batch_id": entry.batch.id,
-            "release_id": entry.release.id, "certified_molarity": entry.release.molarity,
-            "bench_temperature_c": entry.bench_temperature_c, "molarity_used": molarity_used,
-            "nominal_molarity": entry.batch.nominal_molarity, "row_count": len(rows),
-            "upload_name": upload_name[:200], "upload_sha256": hashlib.sha256(upload).hexdigest(),
-            "rows_csv": ld.rows_to_csv(rows), "recorded_at": records.utc_now(), "recorded_by": actor,
+            "lab_day": lab_day.isoformat(),
+            "titrant": entry.batch.reagent,
+            "batch_id": entry.batch.id,
+            "release_id": entry.release.id,
+            "certified_molarity": entry.release.molarity,
+            "bench_temperature_c": entry.bench_temperature_c,
+            "molarity_used": molarity_used,
+            "nominal_molarity": entry.batch.nominal_molarity,
+            "row_count": len(rows),
+            "upload_name": upload_name[:200],
+            "upload_sha256": hashlib.sha256(upload).hexdigest(),
+            "rows_csv": ld.rows_to_csv(rows),
+            "recorded_at": records.utc_now(),
+            "recorded_by": actor,
         }
         pk = db.table("class_corrections").insert(row).last_pk
         assert pk is not None
         cid = int(pk)
-        records.append_event(db, actor, "classdata.correct", entity="class_corrections", entity_id=cid,
-                             batch_id=entry.batch.id,
-                             detail={"lab_day": row["lab_day"], "titrant": row["titrant"],
-                                     "release_id": row["release_id"], "molarity_used": molarity_used,
-                                     "rows": len(rows), "upload_sha256": row["upload_sha256"]})
+        records.append_event(
+            db,
+            actor,
+            "classdata.correct",
+            entity="class_corrections",
+            entity_id=cid,
+            batch_id=entry.batch.id,
+            detail={
+                "lab_day": row["lab_day"],
+                "titrant": row["titrant"],
+                "release_id": row["release_id"],
+                "molarity_used": molarity_used,
+                "rows": len(rows),
+                "upload_sha256": row["upload_sha256"],
+            },
+        )
     return cid
 
 
 def correction_by_id(db: sqlite_utils.Database, cid: int) -> dict[str, Any]:
     """One stored class-data correction with its batch code; NotFound if none."""
-    rows = dbmod.query(db, "SELECT c.*, b.code AS batch_code FROM class_corrections c JOIN batches b "
-                           "ON b.id = c.batch_id WHERE c.id = ?", [cid])
+    rows = dbmod.query(
+        db, "SELECT c.*, b.code AS batch_code FROM class_corrections c JOIN batches b ON b.id = c.batch_id WHERE c.id = ?", [cid]
+    )
     if not rows:
         raise NotFound(f"no class-data correction with id {cid}")
     return rows[0]
@@ -288,13 +359,24 @@ def corrections_with_release(db: sqlite_utils.Database, release_id: int) -> list
     return dbmod.query(db, "SELECT * FROM class_corrections WHERE release_id = ? ORDER BY id", [release_id])
 
 
-def _correct_form(values: Mapping[str, Any], errors: Mapping[str, str], problems: list[tuple[int, str]],
-                  choices: list[ld.LabDayEntry], status: int = 200) -> tuple[str, int]:
+def _correct_form(
+    values: Mapping[str, Any],
+    errors: Mapping[str, str],
+    problems: list[tuple[int, str]],
+    choices: list[ld.LabDayEntry],
+    status: int = 200,
+) -> tuple[str, int]:
     return render_template(
-        "labday/correct.html", values=values, errors=errors, problems=problems, choices=choices,
+        "labday/correct.html",
+        values=values,
+        errors=errors,
+        problems=problems,
+        choices=choices,
         titrants=[(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
-        columns=ld.CLASS_COLUMNS, max_rows=int(current_app.config["CSV_MAX_ROWS"]),
-        max_bytes=int(current_app.config.get("MAX_CONTENT_LENGTH") or 0)), status
+        columns=ld.CLASS_COLUMNS,
+        max_rows=int(current_app.config["CSV_MAX_ROWS"]),
+        max_bytes=int(current_app.config.get("MAX_CONTENT_LENGTH") or 0),
+    ), status
 
 
 @bp.route("/lab-day/correct", methods=["GET", "POST"])
@@ -302,16 +384,25 @@ def _correct_form(values: Mapping[str, Any], errors: Mapping[str, str], problems
 def correct() -> Any:
     """Upload a class's results for a lab day; each is recomputed with the molarity in force that day."""
     if request.method == "GET":
-        values = {"lab_day": request.args.get("date") or lab_today().isoformat(),
-                  "titrant": request.args.get("titrant", ""),
-                  "bench_temperature_c": request.args.get("bench_temperature_c", ""), "batch": ""}
+        values = {
+            "lab_day": request.args.get("date") or lab_today().isoformat(),
+            "titrant": request.args.get("titrant", ""),
+            "bench_temperature_c": request.args.get("bench_temperature_c", ""),
+            "batch": "",
+        }
         return _correct_form(values, {}, [], [])
     form = request.form
     p = Parser()
     day = _date(p, form.get("lab_day", MISSING), "lab_day", None)
     titrant = _titrant_key(p, form.get("titrant", MISSING), "titrant", True)
-    bench = p.number(form.get("bench_temperature_c", MISSING), "bench_temperature_c", required=False,
-                     ge=ld.BENCH_MIN_C, le=ld.BENCH_MAX_C, unit="°C")
+    bench = p.number(
+        form.get("bench_temperature_c", MISSING),
+        "bench_temperature_c",
+        required=False,
+        ge=ld.BENCH_MIN_C,
+        le=ld.BENCH_MAX_C,
+        unit="°C",
+    )
     chosen = (form.get("batch") or "").strip()
     choices: list[ld.LabDayEntry] = []
     entry = None
@@ -323,11 +414,14 @@ def correct() -> Any:
         elif chosen:
             entry = next((e for e in choices if e.batch.code == chosen), None)
             if entry is None:
-                p.error("batch", f"{chosen} was not in force on {day.isoformat()}; in force then: "
-                        + ", ".join(e.batch.code for e in choices))
+                p.error(
+                    "batch",
+                    f"{chosen} was not in force on {day.isoformat()}; in force then: " + ", ".join(e.batch.code for e in choices),
+                )
         elif len(choices) > 1:
-            p.error("batch", f"{len(choices)} {titrant} batches were in force on {day.isoformat()}: choose the one "
-                    "the class used")
+            p.error(
+                "batch", f"{len(choices)} {titrant} batches were in force on {day.isoformat()}: choose the one the class used"
+            )
         else:
             entry = choices[0]
     upload = request.files.get("sheet")
@@ -354,8 +448,16 @@ def correct() -> Any:
     molarity_used = entry.molarity_at_bench if entry.molarity_at_bench is not None else entry.release.molarity
     user = current_user()
     assert user is not None
-    cid = record_correction(get_db(), lab_day=day, entry=entry, molarity_used=molarity_used, rows=sheet.rows,
-                            upload=raw, upload_name=upload.filename or "", actor=user.username)
+    cid = record_correction(
+        get_db(),
+        lab_day=day,
+        entry=entry,
+        molarity_used=molarity_used,
+        rows=sheet.rows,
+        upload=raw,
+        upload_name=upload.filename or "",
+        actor=user.username,
+    )
     return redirect(url_for("labday.correction", cid=cid), 303)
 
 
@@ -374,8 +476,9 @@ def _stored(cid: int) -> tuple[dict[str, Any], tuple[ld.ClassResult, ...], ld.La
 def correction(cid: int) -> Any:
     row, results, entry = _stored(cid)
     errors = [r.relative_error for r in results]
-    return render_template("labday/correction.html", c=row, results=results, entry=entry,
-                           relative_error=errors[0] if errors else None)
+    return render_template(
+        "labday/correction.html", c=row, results=results, entry=entry, relative_error=errors[0] if errors else None
+    )
 
 
 def _about(row: Mapping[str, Any]) -> dict[str, str]:
@@ -400,5 +503,8 @@ def correction_csv(cid: int) -> Response:
     row, results, _ = _stored(cid)
     name = f"class-data-{row['lab_day']}-{row['batch_code']}-{cid}.csv"
     safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in name)
-    return Response(ld.results_to_csv(results, _about(row)), mimetype="text/csv",
-                    headers={"Content-Disposition": f'attachment; filename="{safe}"'})
+    return Response(
+        ld.results_to_csv(results, _about(row)),
+        mimetype="text/csv",
+        headers={"Content-Disposition": f'attachment; filename="{safe}"'},
+    )

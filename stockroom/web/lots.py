@@ -72,8 +72,7 @@ def new_lot() -> Any:
     today = lab_today()
     context: dict[str, Any] = {"standards": _standard_options(), "rules": _rules(), "labels": LOT_LABELS}
     if request.method == "GET":
-        return render_template("lots/new.html", values={"assay_k": "2", "received_on": today.isoformat()},
-                               errors={}, **context)
+        return render_template("lots/new.html", values={"assay_k": "2", "received_on": today.isoformat()}, errors={}, **context)
     try:
         values, warnings = read_lot(request.form, today)
     except InvalidInput as exc:
@@ -91,8 +90,10 @@ def new_lot() -> Any:
 
 
 def _standard_options() -> list[tuple[str, str]]:
-    return [(s.key, f"{s.name} ({s.key}) — standardizes {'bases' if s.role == 'acid' else 'acids'}")
-            for s in chemistry.list_standards()]
+    return [
+        (s.key, f"{s.name} ({s.key}) — standardizes {'bases' if s.role == 'acid' else 'acids'}")
+        for s in chemistry.list_standards()
+    ]
 
 
 def _rules() -> list[tuple[str, str]]:
@@ -118,8 +119,9 @@ def describe(lot: Mapping[str, Any], today: dt.date) -> dict[str, Any]:
         out["drying_text"] = f"dried {lot.get('dried_on') or '(date not recorded)'} at {lot['dried_at_c']:g} °C"
     else:
         out["drying_text"] = "not oven-dried"
-    out["drying_problem"] = (chemistry.check_drying(std, lot.get("dried_at_c"))
-                             or (chemistry.missing_drying_warning(std) if lot.get("dried_at_c") is None else None))
+    out["drying_problem"] = chemistry.check_drying(std, lot.get("dried_at_c")) or (
+        chemistry.missing_drying_warning(std) if lot.get("dried_at_c") is None else None
+    )
     return out
 
 
@@ -139,20 +141,24 @@ def read_lot(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, Any], l
         try:
             std = chemistry.standard(str(raw))
         except chemistry.UnknownSubstance:
-            p.error("substance", f"{str(raw)[:30]!r} is not a primary standard stockroom knows; choose one from "
-                                 "the list")
+            p.error("substance", f"{str(raw)[:30]!r} is not a primary standard stockroom knows; choose one from the list")
     supplier = p.text(form.get("supplier"), "supplier", max_length=120)
     supplier_lot = p.text(form.get("supplier_lot"), "supplier_lot", max_length=80)
-    assay = read_percent(p, form.get("assay_pct"), "assay_pct", required=True, gt=MIN_ASSAY_PCT, le=MAX_ASSAY_PCT,
-                         why=f"a primary standard assays above {MIN_ASSAY_PCT:g} %")
+    assay = read_percent(
+        p,
+        form.get("assay_pct"),
+        "assay_pct",
+        required=True,
+        gt=MIN_ASSAY_PCT,
+        le=MAX_ASSAY_PCT,
+        why=f"a primary standard assays above {MIN_ASSAY_PCT:g} %",
+    )
     u = p.number(form.get("assay_u_pct"), "assay_u_pct", ge=0, le=MAX_U_PCT, unit="% w/w")
     k = p.number(form.get("assay_k") or "2", "assay_k", ge=MIN_K, le=MAX_K)
     expires_on = forms.date(p, form.get("expires_on"), "expires_on")
     received_on = forms.date(p, form.get("received_on"), "received_on", required=False, not_after=today)
-    dried_on = forms.date(p, form.get("dried_on"), "dried_on", required=False, not_after=today,
-                          not_before=received_on)
-    dried_at = p.number(form.get("dried_at_c"), "dried_at_c", required=False, ge=MIN_DRYING_C, le=MAX_DRYING_C,
-                        unit="°C")
+    dried_on = forms.date(p, form.get("dried_on"), "dried_on", required=False, not_after=today, not_before=received_on)
+    dried_at = p.number(form.get("dried_at_c"), "dried_at_c", required=False, ge=MIN_DRYING_C, le=MAX_DRYING_C, unit="°C")
     storage = p.text(form.get("storage_note"), "storage_note", required=False, max_length=300)
     if dried_at is not None and std is not None:
         broken = chemistry.check_drying(std, dried_at)
@@ -162,16 +168,21 @@ def read_lot(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, Any], l
         p.error("dried_on", "give the date it was dried with the temperature")
     if dried_on is not None and dried_at is None and not p.has_error("dried_at_c"):
         p.error("dried_at_c", "give the oven temperature with the date it was dried")
-    if (not p.has_error("dried_on") and not p.has_error("dried_at_c") and dried_at is None and dried_on is None
-            and not storage):
+    if not p.has_error("dried_on") and not p.has_error("dried_at_c") and dried_at is None and dried_on is None and not storage:
         p.error("storage_note", "record either the drying (date and temperature) or how the lot is kept")
     p.raise_if_errors()
     assert std is not None and assay is not None and u is not None and expires_on is not None
     values = {
-        "substance": std.key, "supplier": supplier, "supplier_lot": supplier_lot,
-        "assay": assay / 100.0, "assay_expanded_u": u / 100.0, "assay_k": k,
-        "expires_on": expires_on.isoformat(), "received_on": received_on.isoformat() if received_on else None,
-        "dried_on": dried_on.isoformat() if dried_on else None, "dried_at_c": dried_at,
+        "substance": std.key,
+        "supplier": supplier,
+        "supplier_lot": supplier_lot,
+        "assay": assay / 100.0,
+        "assay_expanded_u": u / 100.0,
+        "assay_k": k,
+        "expires_on": expires_on.isoformat(),
+        "received_on": received_on.isoformat() if received_on else None,
+        "dried_on": dried_on.isoformat() if dried_on else None,
+        "dried_at_c": dried_at,
         "storage_note": storage,
     }
     warnings = []
@@ -182,4 +193,3 @@ def read_lot(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, Any], l
     if expires_on < today:
         warnings.append(f"This lot expired on {expires_on.isoformat()}: runs refuse an expired lot.")
     return values, warnings
-

@@ -62,16 +62,33 @@ MIN_MOLARITY = 1e-6
 # Figures of the instruments a run names (the register's), replacing the settings' defaults.
 INSTRUMENT_KEYS = ("balance_readability_g", "balance_linearity_g", "burette_tolerance_ml", "pipette_tolerance_ml")
 _COMMON_KEYS = {
-    "titrant", "replicates", "u_volume_ml", "u_repeatability_rel", "nominal_molarity", "exclusions",
-    "burette_capacity_ml", "min_replicates", "max_rsd", "monte_carlo_draws", *INSTRUMENT_KEYS,
+    "titrant",
+    "replicates",
+    "u_volume_ml",
+    "u_repeatability_rel",
+    "nominal_molarity",
+    "exclusions",
+    "burette_capacity_ml",
+    "min_replicates",
+    "max_rsd",
+    "monte_carlo_draws",
+    *INSTRUMENT_KEYS,
 }
 PRIMARY_KEYS = _COMMON_KEYS | {
-    "standard", "purity", "u_purity", "purity_tolerance", "purity_U", "purity_k", "u_mass_g", "buoyancy",
-    "molar_mass_g_mol", "u_molar_mass_g_mol", "dried_at_c",
+    "standard",
+    "purity",
+    "u_purity",
+    "purity_tolerance",
+    "purity_U",
+    "purity_k",
+    "u_mass_g",
+    "buoyancy",
+    "molar_mass_g_mol",
+    "u_molar_mass_g_mol",
+    "dried_at_c",
 }
 SECONDARY_KEYS = _COMMON_KEYS | {"reference", "standard", "aliquot_of", "u_aliquot_ml"}
-PRIMARY_REPLICATE_KEYS = {"mass_g", "gross_g", "tare_g", "volume_ml", "initial_ml", "final_ml", "blank_ml",
-                          "temperature_c"}
+PRIMARY_REPLICATE_KEYS = {"mass_g", "gross_g", "tare_g", "volume_ml", "initial_ml", "final_ml", "blank_ml", "temperature_c"}
 SECONDARY_REPLICATE_KEYS = {"aliquot_ml", "volume_ml", "initial_ml", "final_ml", "blank_ml", "temperature_c"}
 REFERENCE_KEYS = {"molarity", "u", "titrant"}
 
@@ -103,10 +120,8 @@ def preview() -> Any:
         # RecursionError: a deeply nested body; json raises it rather than a ValueError.
         return _error_response([FieldError("_body", "the request body must be a JSON object")], 400)
     if not isinstance(data, dict):
-        kind = {list: "a list", str: "a string", bool: "true or false", type(None): "null"}.get(
-            type(data), "a number")
-        return _error_response([FieldError("_body", f"the request body must be a JSON object, not {kind}")],
-                               422)
+        kind = {list: "a list", str: "a string", bool: "true or false", type(None): "null"}.get(type(data), "a number")
+        return _error_response([FieldError("_body", f"the request body must be a JSON object, not {kind}")], 422)
     config = current_app.config
     try:
         result, extra = compute_preview(data, config)
@@ -134,14 +149,12 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
     secondary = "reference" in data
     p.known_keys(data, SECONDARY_KEYS if secondary else PRIMARY_KEYS)
     instruments = Instruments.from_settings(config)
-    draws = p.integer(data.get("monte_carlo_draws", MISSING), "monte_carlo_draws", required=False,
-                      ge=MIN_DRAWS, le=MAX_DRAWS)
+    draws = p.integer(data.get("monte_carlo_draws", MISSING), "monte_carlo_draws", required=False, ge=MIN_DRAWS, le=MAX_DRAWS)
     if draws is not None:
         instruments = _replace(instruments, monte_carlo_draws=draws)
     figures = {}
     for key in INSTRUMENT_KEYS:
-        value = p.number(data.get(key, MISSING), key, required=False, gt=0, le=10, unit="g" if key.endswith("_g")
-                         else "mL")
+        value = p.number(data.get(key, MISSING), key, required=False, gt=0, le=10, unit="g" if key.endswith("_g") else "mL")
         if value is not None:
             figures[key] = value
     if figures:
@@ -149,15 +162,24 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
     rule = _rule(p, data, config)
     titrant = _titrant(p, data.get("titrant", MISSING), "titrant")
     common = {
-        "nominal_molarity": _measurable(p, p.number(data.get("nominal_molarity", MISSING), "nominal_molarity",
-                                                    required=False, gt=0, le=MAX_MOLARITY, unit="mol/L"),
-                                        "nominal_molarity", MIN_MOLARITY, "mol/L"),
-        "u_volume_ml": p.number(data.get("u_volume_ml", MISSING), "u_volume_ml", required=False, ge=0,
-                                le=MAX_U_VOLUME_ML, unit="mL"),
-        "u_repeatability_rel": p.number(data.get("u_repeatability_rel", MISSING), "u_repeatability_rel",
-                                        required=False, ge=0, lt=1),
-        "burette_capacity_ml": p.number(data.get("burette_capacity_ml", MISSING), "burette_capacity_ml",
-                                        required=False, gt=0, le=1000, unit="mL"),
+        "nominal_molarity": _measurable(
+            p,
+            p.number(
+                data.get("nominal_molarity", MISSING), "nominal_molarity", required=False, gt=0, le=MAX_MOLARITY, unit="mol/L"
+            ),
+            "nominal_molarity",
+            MIN_MOLARITY,
+            "mol/L",
+        ),
+        "u_volume_ml": p.number(
+            data.get("u_volume_ml", MISSING), "u_volume_ml", required=False, ge=0, le=MAX_U_VOLUME_ML, unit="mL"
+        ),
+        "u_repeatability_rel": p.number(
+            data.get("u_repeatability_rel", MISSING), "u_repeatability_rel", required=False, ge=0, lt=1
+        ),
+        "burette_capacity_ml": p.number(
+            data.get("burette_capacity_ml", MISSING), "burette_capacity_ml", required=False, gt=0, le=1000, unit="mL"
+        ),
     }
     reps_raw = p.array(data.get("replicates", MISSING), "replicates", min_items=1, max_items=MAX_REPLICATES)
     exclusions = _exclusions(p, data.get("exclusions", MISSING), len(reps_raw) if reps_raw else 0)
@@ -176,11 +198,11 @@ def _replace(instruments: Instruments, **changes: Any) -> Instruments:
 
 def _rule(p: Parser, data: dict[str, Any], config: Any) -> stats.AcceptanceRule:
     default = acceptance_rule_from_settings(config)
-    min_n = p.integer(data.get("min_replicates", MISSING), "min_replicates", required=False, ge=1,
-                      le=MAX_REPLICATES)
+    min_n = p.integer(data.get("min_replicates", MISSING), "min_replicates", required=False, ge=1, le=MAX_REPLICATES)
     max_rsd = p.number(data.get("max_rsd", MISSING), "max_rsd", required=False, gt=0, le=0.1)
-    return stats.AcceptanceRule(min_n=min_n if min_n is not None else default.min_n,
-                                max_rsd=max_rsd if max_rsd is not None else default.max_rsd)
+    return stats.AcceptanceRule(
+        min_n=min_n if min_n is not None else default.min_n, max_rsd=max_rsd if max_rsd is not None else default.max_rsd
+    )
 
 
 def _titrant(p: Parser, raw: Any, field: str) -> chemistry.Titrant | None:
@@ -203,8 +225,7 @@ def _exclusions(p: Parser, raw: Any, n: int) -> tuple[Exclusion, ...]:
         if obj is None:
             continue
         p.known_keys(obj, {"index", "reason"}, base)
-        index = p.integer(obj.get("index", MISSING), field_path(base, "index"), ge=0,
-                          le=max(n - 1, 0))
+        index = p.integer(obj.get("index", MISSING), field_path(base, "index"), ge=0, le=max(n - 1, 0))
         reason = p.text(obj.get("reason", MISSING), field_path(base, "reason"), max_length=500)
         if index is not None and reason is not None:
             out.append(Exclusion(index, reason))
@@ -218,13 +239,15 @@ def _titre(p: Parser, obj: dict[str, Any], base: str) -> float | None:
         if has_readings:
             p.error(field_path(base, "volume_ml"), "give volume_ml, or initial_ml and final_ml, not both")
             return None
-        return _measurable(p, p.number(obj.get("volume_ml", MISSING), field_path(base, "volume_ml"), gt=0,
-                                       le=MAX_VOLUME_ML, unit="mL"),
-                           field_path(base, "volume_ml"), MIN_VOLUME_ML, "mL")
-    initial = p.number(obj.get("initial_ml", MISSING), field_path(base, "initial_ml"), ge=0,
-                       le=MAX_VOLUME_ML, unit="mL")
-    final = p.number(obj.get("final_ml", MISSING), field_path(base, "final_ml"), gt=0,
-                     le=MAX_VOLUME_ML, unit="mL")
+        return _measurable(
+            p,
+            p.number(obj.get("volume_ml", MISSING), field_path(base, "volume_ml"), gt=0, le=MAX_VOLUME_ML, unit="mL"),
+            field_path(base, "volume_ml"),
+            MIN_VOLUME_ML,
+            "mL",
+        )
+    initial = p.number(obj.get("initial_ml", MISSING), field_path(base, "initial_ml"), ge=0, le=MAX_VOLUME_ML, unit="mL")
+    final = p.number(obj.get("final_ml", MISSING), field_path(base, "final_ml"), gt=0, le=MAX_VOLUME_ML, unit="mL")
     if initial is None or final is None:
         return None
     try:
@@ -239,11 +262,12 @@ def _titre(p: Parser, obj: dict[str, Any], base: str) -> float | None:
 
 
 def _blank_and_temperature(p: Parser, obj: dict[str, Any], base: str) -> tuple[float | None, float | None]:
-    blank = p.number(obj.get("blank_ml", MISSING), field_path(base, "blank_ml"), required=False, ge=0,
-                     le=MAX_VOLUME_ML,
-                     unit="mL")
-    temperature = p.number(obj.get("temperature_c", MISSING), field_path(base, "temperature_c"),
-                           required=False, ge=5, le=40, unit="°C")
+    blank = p.number(
+        obj.get("blank_ml", MISSING), field_path(base, "blank_ml"), required=False, ge=0, le=MAX_VOLUME_ML, unit="mL"
+    )
+    temperature = p.number(
+        obj.get("temperature_c", MISSING), field_path(base, "temperature_c"), required=False, ge=5, le=40, unit="°C"
+    )
     return blank, temperature
 
 
@@ -264,23 +288,28 @@ def _primary_replicates(p: Parser, reps_raw: list[Any] | None) -> list[Replicate
         if "gross_g" in obj or "tare_g" in obj:
             if "mass_g" in obj:
                 p.error(field_path(base, "mass_g"), "give mass_g, or gross_g and tare_g, not both")
-            gross = p.number(obj.get("gross_g", MISSING), field_path(base, "gross_g"), gt=0,
-                             le=MAX_MASS_G, unit="g")
-            tare = p.number(obj.get("tare_g", MISSING), field_path(base, "tare_g"), ge=0,
-                            le=MAX_MASS_G, unit="g")
+            gross = p.number(obj.get("gross_g", MISSING), field_path(base, "gross_g"), gt=0, le=MAX_MASS_G, unit="g")
+            tare = p.number(obj.get("tare_g", MISSING), field_path(base, "tare_g"), ge=0, le=MAX_MASS_G, unit="g")
             if gross is not None and tare is not None and gross - tare < MIN_MASS_G:
                 p.error(field_path(base, "gross_g"), "must be greater than tare_g (mass by difference)")
         else:
-            mass = _measurable(p, p.number(obj.get("mass_g", MISSING), field_path(base, "mass_g"), gt=0,
-                                           le=MAX_MASS_G, unit="g"),
-                               field_path(base, "mass_g"), MIN_MASS_G, "g")
+            mass = _measurable(
+                p,
+                p.number(obj.get("mass_g", MISSING), field_path(base, "mass_g"), gt=0, le=MAX_MASS_G, unit="g"),
+                field_path(base, "mass_g"),
+                MIN_MASS_G,
+                "g",
+            )
         volume = _titre(p, obj, base)
         blank, temperature = _blank_and_temperature(p, obj, base)
         _check_blank(p, base, volume, blank)
         if not p.has_error(base):
             assert volume is not None  # _titre records an error under base whenever it returns None
-            out.append(Replicate(volume_ml=volume, mass_g=mass, gross_g=gross, tare_g=tare,
-                                 blank_ml=blank or 0.0, temperature_c=temperature))
+            out.append(
+                Replicate(
+                    volume_ml=volume, mass_g=mass, gross_g=gross, tare_g=tare, blank_ml=blank or 0.0, temperature_c=temperature
+                )
+            )
     return out
 
 
@@ -291,11 +320,11 @@ def _purity(p: Parser, data: dict[str, Any]) -> tuple[float | None, InputQuantit
     if value is None and p.has_error("purity"):
         given, _ = number_problem(raw)
         if given is not None and 1 < given <= 100:
-            p.errors[-1] = FieldError("purity", "must be greater than 0 and at most 1: a mass fraction, "
-                                                "so write 0.9995 for 99.95 %")
+            p.errors[-1] = FieldError(
+                "purity", "must be greater than 0 and at most 1: a mass fraction, so write 0.9995 for 99.95 %"
+            )
     elif value is not None and value < MIN_PURITY:
-        p.error("purity", f"must be at least {MIN_PURITY:g}: a primary standard is nearly pure "
-                          "(a mass fraction such as 0.9995)")
+        p.error("purity", f"must be at least {MIN_PURITY:g}: a primary standard is nearly pure (a mass fraction such as 0.9995)")
         value = None
     return value, _purity_quantity(p, data, value)
 
@@ -303,8 +332,7 @@ def _purity(p: Parser, data: dict[str, Any]) -> tuple[float | None, InputQuantit
 def _purity_quantity(p: Parser, data: dict[str, Any], value: float | None) -> InputQuantity | None:
     forms = [k for k in ("u_purity", "purity_tolerance", "purity_U") if k in data]
     if len(forms) > 1:
-        p.error(forms[1], f"give one of u_purity, purity_tolerance or purity_U with purity_k, not "
-                          f"{' and '.join(forms)}")
+        p.error(forms[1], f"give one of u_purity, purity_tolerance or purity_U with purity_k, not {' and '.join(forms)}")
         return None
     if "purity_k" in data and "purity_U" not in data:
         p.error("purity_k", "goes with purity_U (the certificate's expanded uncertainty)")
@@ -325,9 +353,16 @@ def _purity_quantity(p: Parser, data: dict[str, Any], value: float | None) -> In
     return None
 
 
-def _primary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | None, reps_raw: list[Any] | None,
-             exclusions: tuple[Exclusion, ...], common: dict[str, Any], instruments: Instruments,
-             rule: stats.AcceptanceRule) -> tuple[StandardizationResult, dict[str, Any]]:
+def _primary(
+    p: Parser,
+    data: dict[str, Any],
+    titrant: chemistry.Titrant | None,
+    reps_raw: list[Any] | None,
+    exclusions: tuple[Exclusion, ...],
+    common: dict[str, Any],
+    instruments: Instruments,
+    rule: stats.AcceptanceRule,
+) -> tuple[StandardizationResult, dict[str, Any]]:
     std_key = p.text(data.get("standard", MISSING), "standard")
     std: chemistry.PrimaryStandard | None = None
     if std_key is not None:
@@ -342,41 +377,62 @@ def _primary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | None,
         except StockroomError as exc:
             p.error("standard", exc.message)
     purity_value, purity = _purity(p, data)
-    u_mass = p.number(data.get("u_mass_g", MISSING), "u_mass_g", required=False, ge=0,
-                      le=MAX_U_MASS_G, unit="g")
+    u_mass = p.number(data.get("u_mass_g", MISSING), "u_mass_g", required=False, ge=0, le=MAX_U_MASS_G, unit="g")
     buoyancy = p.boolean(data.get("buoyancy", MISSING), "buoyancy", default=True)
-    mm_value = p.number(data.get("molar_mass_g_mol", MISSING), "molar_mass_g_mol", required=False, gt=0, le=5000,
-                        unit="g/mol")
-    mm_u = p.number(data.get("u_molar_mass_g_mol", MISSING), "u_molar_mass_g_mol", required=False, ge=0, le=10,
-                    unit="g/mol")
+    mm_value = p.number(data.get("molar_mass_g_mol", MISSING), "molar_mass_g_mol", required=False, gt=0, le=5000, unit="g/mol")
+    mm_u = p.number(data.get("u_molar_mass_g_mol", MISSING), "u_molar_mass_g_mol", required=False, ge=0, le=10, unit="g/mol")
     if mm_u is not None and "molar_mass_g_mol" not in data:
         p.error("u_molar_mass_g_mol", "goes with molar_mass_g_mol")
-    dried_at = p.number(data.get("dried_at_c", MISSING), "dried_at_c", required=False, ge=0, le=400,
-                        unit="°C")
+    dried_at = p.number(data.get("dried_at_c", MISSING), "dried_at_c", required=False, ge=0, le=400, unit="°C")
     replicates = _primary_replicates(p, reps_raw)
     p.raise_if_errors()
     assert titrant is not None and std is not None and nu is not None
     mm = std.molar_mass
-    spec = StandardSpec(key=std.key, name=std.name,
-                        molar_mass_g_mol=mm_value if mm_value is not None else mm.value,
-                        u_molar_mass_g_mol=(mm_u if mm_u is not None else mm.u) if mm_value is not None
-                        else mm.u, nu=nu, density_g_cm3=std.density_g_cm3)
+    spec = StandardSpec(
+        key=std.key,
+        name=std.name,
+        molar_mass_g_mol=mm_value if mm_value is not None else mm.value,
+        u_molar_mass_g_mol=(mm_u if mm_u is not None else mm.u) if mm_value is not None else mm.u,
+        nu=nu,
+        density_g_cm3=std.density_g_cm3,
+    )
     alternatives = tuple(
-        StandardSpec(key=s.key, name=s.name, molar_mass_g_mol=s.molar_mass.value, u_molar_mass_g_mol=s.molar_mass.u,
-                     nu=chemistry.stoichiometric_factor(titrant, s), density_g_cm3=s.density_g_cm3)
-        for s in chemistry.list_standards(titrant))
-    run = PrimaryRun(standard=spec, replicates=tuple(replicates), purity=purity,
-                     purity_value=purity_value if purity_value is not None else 1.0,
-                     buoyancy=bool(buoyancy), exclusions=exclusions, u_mass_g=u_mass,
-                     alternatives=alternatives, **common)
+        StandardSpec(
+            key=s.key,
+            name=s.name,
+            molar_mass_g_mol=s.molar_mass.value,
+            u_molar_mass_g_mol=s.molar_mass.u,
+            nu=chemistry.stoichiometric_factor(titrant, s),
+            density_g_cm3=s.density_g_cm3,
+        )
+        for s in chemistry.list_standards(titrant)
+    )
+    run = PrimaryRun(
+        standard=spec,
+        replicates=tuple(replicates),
+        purity=purity,
+        purity_value=purity_value if purity_value is not None else 1.0,
+        buoyancy=bool(buoyancy),
+        exclusions=exclusions,
+        u_mass_g=u_mass,
+        alternatives=alternatives,
+        **common,
+    )
     result = standardize_primary(run, instruments, rule)
     drying = chemistry.check_drying(std, dried_at) if dried_at is not None else None
     if drying:
         result = _with_warning(result, drying)
-    extra = {"titrant": titrant.key, "standard": {"key": std.key, "name": std.name,
-                                                  "molar_mass_g_mol": spec.molar_mass_g_mol,
-                                                  "u_molar_mass_g_mol": spec.u_molar_mass_g_mol,
-                                                  "nu": nu, "endpoint": std.endpoint}}
+    extra = {
+        "titrant": titrant.key,
+        "standard": {
+            "key": std.key,
+            "name": std.name,
+            "molar_mass_g_mol": spec.molar_mass_g_mol,
+            "u_molar_mass_g_mol": spec.u_molar_mass_g_mol,
+            "nu": nu,
+            "endpoint": std.endpoint,
+        },
+    }
     return result, extra
 
 
@@ -386,17 +442,28 @@ def _with_warning(result: StandardizationResult, warning: str) -> Standardizatio
     return replace(result, warnings=(*result.warnings, warning))
 
 
-def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | None, reps_raw: list[Any] | None,
-               exclusions: tuple[Exclusion, ...], common: dict[str, Any], instruments: Instruments,
-               rule: stats.AcceptanceRule) -> tuple[StandardizationResult, dict[str, Any]]:
+def _secondary(
+    p: Parser,
+    data: dict[str, Any],
+    titrant: chemistry.Titrant | None,
+    reps_raw: list[Any] | None,
+    exclusions: tuple[Exclusion, ...],
+    common: dict[str, Any],
+    instruments: Instruments,
+    rule: stats.AcceptanceRule,
+) -> tuple[StandardizationResult, dict[str, Any]]:
     ref_obj = p.mapping(data.get("reference"), "reference")
     ref_molarity = ref_u = None
     ref_titrant: chemistry.Titrant | None = None
     if ref_obj is not None:
         p.known_keys(ref_obj, REFERENCE_KEYS, "reference")
-        ref_molarity = _measurable(p, p.number(ref_obj.get("molarity", MISSING), "reference.molarity", gt=0,
-                                               le=MAX_MOLARITY, unit="mol/L"),
-                                   "reference.molarity", MIN_MOLARITY, "mol/L")
+        ref_molarity = _measurable(
+            p,
+            p.number(ref_obj.get("molarity", MISSING), "reference.molarity", gt=0, le=MAX_MOLARITY, unit="mol/L"),
+            "reference.molarity",
+            MIN_MOLARITY,
+            "mol/L",
+        )
         ref_u = p.number(ref_obj.get("u", MISSING), "reference.u", ge=0, le=1, unit="mol/L")
         if "titrant" in ref_obj:
             ref_titrant = _titrant(p, ref_obj["titrant"], "reference.titrant")
@@ -411,8 +478,7 @@ def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | Non
         except StockroomError as exc:
             p.error("reference.titrant" if ref_obj and "titrant" in ref_obj else "standard", exc.message)
     aliquot_of = p.choice(data.get("aliquot_of", MISSING), "aliquot_of", ("new", "reference"), default="new")
-    u_aliquot = p.number(data.get("u_aliquot_ml", MISSING), "u_aliquot_ml", required=False, ge=0,
-                         le=MAX_U_VOLUME_ML, unit="mL")
+    u_aliquot = p.number(data.get("u_aliquot_ml", MISSING), "u_aliquot_ml", required=False, ge=0, le=MAX_U_VOLUME_ML, unit="mL")
     replicates: list[AliquotReplicate] = []
     for i, item in enumerate(reps_raw or ()):
         base = field_path("replicates", i)
@@ -420,25 +486,39 @@ def _secondary(p: Parser, data: dict[str, Any], titrant: chemistry.Titrant | Non
         if obj is None:
             continue
         p.known_keys(obj, SECONDARY_REPLICATE_KEYS, base)
-        aliquot = _measurable(p, p.number(obj.get("aliquot_ml", MISSING), field_path(base, "aliquot_ml"),
-                                          gt=0, le=MAX_VOLUME_ML, unit="mL"),
-                              field_path(base, "aliquot_ml"), MIN_VOLUME_ML, "mL")
+        aliquot = _measurable(
+            p,
+            p.number(obj.get("aliquot_ml", MISSING), field_path(base, "aliquot_ml"), gt=0, le=MAX_VOLUME_ML, unit="mL"),
+            field_path(base, "aliquot_ml"),
+            MIN_VOLUME_ML,
+            "mL",
+        )
         volume = _titre(p, obj, base)
         blank, temperature = _blank_and_temperature(p, obj, base)
         _check_blank(p, base, volume, blank)
         if not p.has_error(base):
             assert aliquot is not None and volume is not None
-            replicates.append(AliquotReplicate(aliquot_ml=aliquot, volume_ml=volume, blank_ml=blank or 0.0,
-                                               temperature_c=temperature))
+            replicates.append(
+                AliquotReplicate(aliquot_ml=aliquot, volume_ml=volume, blank_ml=blank or 0.0, temperature_c=temperature)
+            )
     p.raise_if_errors()
     assert titrant is not None and ref_titrant is not None and nu is not None
     assert ref_molarity is not None and ref_u is not None and aliquot_of is not None
-    run = SecondaryRun(reference=Reference(ref_molarity, ref_u, f"reference {ref_titrant.key}"), nu=nu,
-                       replicates=tuple(replicates), aliquot_of=aliquot_of, exclusions=exclusions,
-                       u_aliquot_ml=u_aliquot, **common)
+    run = SecondaryRun(
+        reference=Reference(ref_molarity, ref_u, f"reference {ref_titrant.key}"),
+        nu=nu,
+        replicates=tuple(replicates),
+        aliquot_of=aliquot_of,
+        exclusions=exclusions,
+        u_aliquot_ml=u_aliquot,
+        **common,
+    )
     result = standardize_secondary(run, instruments, rule)
-    extra = {"titrant": titrant.key, "reference": {"titrant": ref_titrant.key, "molarity": ref_molarity,
-                                                   "u": ref_u, "nu": nu}, "aliquot_of": aliquot_of}
+    extra = {
+        "titrant": titrant.key,
+        "reference": {"titrant": ref_titrant.key, "molarity": ref_molarity, "u": ref_u, "nu": nu},
+        "aliquot_of": aliquot_of,
+    }
     return result, extra
 
 

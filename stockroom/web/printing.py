@@ -84,8 +84,9 @@ def _serial_range(p: Mapping[str, Any]) -> str:
     return first if first == last else f"{first}–{last}"
 
 
-def _context(batch: Mapping[str, Any], available: Mapping[str, layouts.Layout],
-             broken: Sequence[layouts.LayoutError]) -> dict[str, Any]:
+def _context(
+    batch: Mapping[str, Any], available: Mapping[str, layouts.Layout], broken: Sequence[layouts.LayoutError]
+) -> dict[str, Any]:
     db = get_db()
     on = lab_today()
     content, problem = None, None
@@ -98,22 +99,27 @@ def _context(batch: Mapping[str, Any], available: Mapping[str, layouts.Layout],
     report = status_on(facts, on)
     in_force = release_in_force(facts, on)
     current = pdflabels.current_value_text(history, in_force, report.status)
-    prints = [dict(p, serials=_serial_range(p), current=p["value_printed"] == current)
-              for p in reversed(history["prints"])]
+    prints = [dict(p, serials=_serial_range(p), current=p["value_printed"] == current) for p in reversed(history["prints"])]
     return {
-        "batch": batch, "content": content, "problem": problem, "layouts": list(available.values()),
-        "broken": broken, "labels": PRINT_LABELS,
+        "batch": batch,
+        "content": content,
+        "problem": problem,
+        "layouts": list(available.values()),
+        "broken": broken,
+        "labels": PRINT_LABELS,
         "layout_options": [(lay.name, f"{lay.title} [{lay.name}]") for lay in available.values()],
-        "prints": prints, "report": report,
-        "pictograms": [(code, ghs.name(code), pictogram_uri(code)) for code in
-                       (content.elements.pictograms if content else ())],
+        "prints": prints,
+        "report": report,
+        "pictograms": [(code, ghs.name(code), pictogram_uri(code)) for code in (content.elements.pictograms if content else ())],
         "circulation": labels_in_circulation(history, in_force, report.status),
-        "has_release": bool(history["releases"]), "max_copies": pdflabels.MAX_COPIES,
+        "has_release": bool(history["releases"]),
+        "max_copies": pdflabels.MAX_COPIES,
     }
 
 
-def _read_print_form(form: Mapping[str, Any], available: Mapping[str, layouts.Layout]
-                     ) -> tuple[layouts.Layout | None, int | None, int | None, Parser]:
+def _read_print_form(
+    form: Mapping[str, Any], available: Mapping[str, layouts.Layout]
+) -> tuple[layouts.Layout | None, int | None, int | None, Parser]:
     p = Parser()
     name = p.choice(field("layout"), "layout", tuple(available))
     copies = p.integer(field("copies"), "copies", ge=1, le=pdflabels.MAX_COPIES)
@@ -131,9 +137,13 @@ def print_labels(code: str) -> Any:
     ctx = _context(batch, available, broken)
     if request.method == "GET":
         wanted = request.args.get("layout")
-        values = {"layout": wanted if wanted in available else (DEFAULT_LAYOUT if DEFAULT_LAYOUT in available else
-                                                                 next(iter(available), "")),
-                  "copies": request.args.get("copies", "1"), "start": "1"}
+        values = {
+            "layout": wanted
+            if wanted in available
+            else (DEFAULT_LAYOUT if DEFAULT_LAYOUT in available else next(iter(available), "")),
+            "copies": request.args.get("copies", "1"),
+            "start": "1",
+        }
         return render_template("printing/labels.html", values=values, errors={}, **ctx)
     layout, copies, start, p = _read_print_form(request.form, available)
     if ctx["problem"]:

@@ -31,8 +31,13 @@ from stockroom.web.inputs import Parser
 bp = Blueprint("recalls", __name__, url_prefix="/recalls")
 trace_bp = Blueprint("traceability", __name__)
 
-LABELS = {"subject": "Suspect item", "suspect_from": "Suspect from", "reason": "Reason", "scope": "Clear for",
-          "clear_reason": "Reason for clearing"}
+LABELS = {
+    "subject": "Suspect item",
+    "suspect_from": "Suspect from",
+    "reason": "Reason",
+    "scope": "Clear for",
+    "clear_reason": "Reason for clearing",
+}
 KIND_TITLES = {"lot": "Primary-standard lots", "instrument": "Instruments", "batch": "Batches"}
 
 
@@ -97,24 +102,29 @@ def _report(recall_id: int) -> recall_mod.Impact:
 @bp.get("/<int:recall_id>")
 def show(recall_id: int) -> Any:
     report = _report(recall_id)
-    return render_template("recalls/show.html", report=report, rc=report.recall, values={}, errors={},
-                           labels=LABELS, today=lab_today())
+    return render_template(
+        "recalls/show.html", report=report, rc=report.recall, values={}, errors={}, labels=LABELS, today=lab_today()
+    )
 
 
 @bp.get("/<int:recall_id>.csv")
 def report_csv(recall_id: int) -> Response:
     report = _report(recall_id)
     name = f"recall-{recall_id}-impact-{report.on.isoformat()}.csv"
-    return Response(recall_mod.impact_csv(report), mimetype="text/csv",
-                    headers={"Content-Disposition": f'attachment; filename="{name}"'})
+    return Response(
+        recall_mod.impact_csv(report), mimetype="text/csv", headers={"Content-Disposition": f'attachment; filename="{name}"'}
+    )
 
 
 @bp.get("/<int:recall_id>.pdf")
 def report_pdf(recall_id: int) -> Response:
     report = _report(recall_id)
     name = f"recall-{recall_id}-impact-{report.on.isoformat()}.pdf"
-    return Response(recall_report_pdf(report, printed_on=lab_today()), mimetype="application/pdf",
-                    headers={"Content-Disposition": f'inline; filename="{name}"'})
+    return Response(
+        recall_report_pdf(report, printed_on=lab_today()),
+        mimetype="application/pdf",
+        headers={"Content-Disposition": f'inline; filename="{name}"'},
+    )
 
 
 @bp.post("/<int:recall_id>/clear")
@@ -142,10 +152,10 @@ def clear(recall_id: int) -> Any:
         assert user is not None
         recall_mod.clear_recall(db, recall_id, batch_id, today, reason, user.username)
     except InvalidInput as exc:
-        fields = {("clear_reason" if k == "reason" else "scope" if k == "batch" else k): v
-                  for k, v in exc.fields.items()}
-        return render_template("recalls/show.html", report=report, rc=report.recall, values=request.form,
-                               errors=fields, labels=LABELS, today=today), 422
+        fields = {("clear_reason" if k == "reason" else "scope" if k == "batch" else k): v for k, v in exc.fields.items()}
+        return render_template(
+            "recalls/show.html", report=report, rc=report.recall, values=request.form, errors=fields, labels=LABELS, today=today
+        ), 422
     flash("Recall cleared" + (f" for {scope}." if batch_id else " as a whole.") + " The reason is on record.", "ok")
     return redirect(url_for("recalls.show", recall_id=recall_id), 303)
 
@@ -165,8 +175,9 @@ def _hrefs(chain: traceability.Chain) -> dict[str, str]:
 
 
 def _svg(trace: recall_mod.BatchTrace, code: str) -> str:
-    return traceability.chain_svg(trace.chain, hrefs=_hrefs(trace.chain), suspect=trace.suspect,
-                                  title=f"What the certified value of {code} rests on")
+    return traceability.chain_svg(
+        trace.chain, hrefs=_hrefs(trace.chain), suspect=trace.suspect, title=f"What the certified value of {code} rests on"
+    )
 
 
 @trace_bp.app_template_global("traceability_of")
@@ -177,8 +188,11 @@ def traceability_of(batch: dict[str, Any], on: dt.date) -> dict[str, Any] | None
     if trace is None:
         return None
     ids = sorted({rv.recall_id for rv in trace.reviews})
-    return {"trace": trace, "svg": Markup(_svg(trace, batch["code"])),  # chain_svg escapes every text it writes
-            "recalls": {rc.id: rc for rc in recall_mod.list_recalls(db, ids)} if ids else {}}
+    return {
+        "trace": trace,
+        "svg": Markup(_svg(trace, batch["code"])),  # chain_svg escapes every text it writes
+        "recalls": {rc.id: rc for rc in recall_mod.list_recalls(db, ids)} if ids else {},
+    }
 
 
 @trace_bp.get("/batches/<code>/chain.svg")

@@ -30,13 +30,14 @@ from stockroom.web.inputs import Parser
 bp = Blueprint("runs", __name__)
 
 BURETTES_ML = (10.0, 25.0, 50.0, 100.0)
-GRID_ROWS = 6          # rows offered without JavaScript; the script adds more on demand
+GRID_ROWS = 6  # rows offered without JavaScript; the script adds more on demand
 MAX_ROWS = 50
 MIN_MASS_G, MAX_MASS_G = 0.001, 50.0
 TEMPERATURE_RANGE_C = (5.0, 40.0)
 
 
 # ---------------------------------------------------------------- reading the form
+
 
 def _rows_in_form(form: Any) -> int:
     n = GRID_ROWS
@@ -48,8 +49,9 @@ def _rows_in_form(form: Any) -> int:
     return min(n, MAX_ROWS + 1)
 
 
-def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: float | None
-               ) -> tuple[list[dict[str, Any]], dict[int, str], Parser]:
+def parse_grid(
+    form: Any, secondary: bool, capacity_ml: float, run_temperature: float | None
+) -> tuple[list[dict[str, Any]], dict[int, str], Parser]:
     """Replicate rows of the run form (blank rows skipped) -> stored-form dicts, exclusions, parser."""
     p = Parser()
     reps: list[dict[str, Any]] = []
@@ -63,8 +65,10 @@ def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: 
         if len(reps) >= MAX_ROWS:
             p.error(f"r{i}_initial_ml", f"at most {MAX_ROWS} replicates make one run")
             break
+
         def num(col: str, _raw: dict[str, str] = raw, _i: int = i, **kw: Any) -> float | None:
             return p.number(_raw[col] or None, f"r{_i}_{col}", **kw)
+
         rep: dict[str, Any] = {}
         if secondary:
             rep["aliquot_ml"] = num("aliquot_ml", gt=0, le=500, unit="mL")
@@ -88,8 +92,10 @@ def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: 
                 missing = "tare_g" if raw["gross_g"] else "gross_g"
                 p.error(f"r{i}_{missing}", "is required (or give the mass directly)")
             if mass is not None and not (MIN_MASS_G <= mass <= MAX_MASS_G):
-                p.error(f"r{i}_mass_g" if raw["mass_g"] else f"r{i}_gross_g",
-                        f"a mass of {mass:.4f} g is outside {MIN_MASS_G:g}–{MAX_MASS_G:g} g: check the unit")
+                p.error(
+                    f"r{i}_mass_g" if raw["mass_g"] else f"r{i}_gross_g",
+                    f"a mass of {mass:.4f} g is outside {MIN_MASS_G:g}–{MAX_MASS_G:g} g: check the unit",
+                )
         initial = num("initial_ml", ge=0, unit="mL")
         final = num("final_ml", gt=0, unit="mL")
         for col, reading in (("initial_ml", initial), ("final_ml", final)):
@@ -101,8 +107,7 @@ def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: 
                     initial = None
         if initial is not None and final is not None:
             if final <= initial:
-                p.error(f"r{i}_final_ml", f"the final reading must be greater than the initial reading "
-                                          f"({initial:g} mL)")
+                p.error(f"r{i}_final_ml", f"the final reading must be greater than the initial reading ({initial:g} mL)")
             else:
                 rep["initial_ml"], rep["final_ml"] = initial, final
                 rep["volume_ml"] = round(final - initial, 6)
@@ -127,8 +132,9 @@ def parse_grid(form: Any, secondary: bool, capacity_ml: float, run_temperature: 
 def _lots_for(batch: dict[str, Any], on: dt.date) -> list[dict[str, Any]]:
     titrant = chemistry.titrant(batch["reagent"])
     keys = {s.key for s in chemistry.list_standards(titrant)}
-    return [lot for lot in records.list_lots(get_db())
-            if lot["substance"] in keys and dt.date.fromisoformat(lot["expires_on"]) >= on]
+    return [
+        lot for lot in records.list_lots(get_db()) if lot["substance"] in keys and dt.date.fromisoformat(lot["expires_on"]) >= on
+    ]
 
 
 def _references_for(batch: dict[str, Any], on: dt.date) -> list[tuple[dict[str, Any], Any]]:
@@ -156,17 +162,25 @@ def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date)
     policy = records.policy_for(db, batch["reagent"], on)
     titrant = chemistry.titrant(batch["reagent"])
     return {
-        "batch": batch, "method": method, "purpose": purpose, "titrant": titrant, "policy": policy,
+        "batch": batch,
+        "method": method,
+        "purpose": purpose,
+        "titrant": titrant,
+        "policy": policy,
         "lots": _lots_for(batch, on) if method == "primary" else [],
         "references": _references_for(batch, on) if method == "secondary" else [],
-        "in_force": release_in_force(facts, on), "burettes": BURETTES_ML,
+        "in_force": release_in_force(facts, on),
+        "burettes": BURETTES_ML,
         "instrument_choices": web_instruments.run_choices(method, on),
         "instrument_figures": web_instruments.preview_figures(method, on),
-        "rows": GRID_ROWS, "today": on,
+        "rows": GRID_ROWS,
+        "today": on,
         "standards": {s.key: s for s in chemistry.list_standards(titrant)},
         # Mass of each standard that gives a 40 mL titre at the nominal strength (a 50 mL burette).
-        "suggested": {s.key: chemistry.suggested_standard_mass(titrant, s, batch["nominal_molarity"], 40.0)
-                      for s in chemistry.list_standards(titrant)},
+        "suggested": {
+            s.key: chemistry.suggested_standard_mass(titrant, s, batch["nominal_molarity"], 40.0)
+            for s in chemistry.list_standards(titrant)
+        },
     }
 
 
@@ -183,15 +197,17 @@ def parse_run(batch: dict[str, Any], method: str, form: Any) -> tuple[dict[str, 
 
     today = lab_today()
     purpose = p.choice(form.get("purpose") or None, "purpose", ("certify", "recheck"))
-    performed_on = form_date(p, field("performed_on"), "performed_on", not_after=today,
-                             not_before=dt.date.fromisoformat(batch["prepared_on"]))
+    performed_on = form_date(
+        p, field("performed_on"), "performed_on", not_after=today, not_before=dt.date.fromisoformat(batch["prepared_on"])
+    )
     analyst = p.text(field("analyst"), "analyst", max_length=120)
     capacity = p.number(field("burette_capacity_ml"), "burette_capacity_ml", gt=0, le=100, unit="mL")
     if capacity is not None and capacity not in BURETTES_ML:
         p.error("burette_capacity_ml", "choose one of the burette sizes offered")
         capacity = None
-    run_t = p.number(field("temperature_c"), "temperature_c", required=False, ge=TEMPERATURE_RANGE_C[0],
-                     le=TEMPERATURE_RANGE_C[1], unit="°C")
+    run_t = p.number(
+        field("temperature_c"), "temperature_c", required=False, ge=TEMPERATURE_RANGE_C[0], le=TEMPERATURE_RANGE_C[1], unit="°C"
+    )
     endpoint = p.text(field("endpoint"), "endpoint", required=False, max_length=200) or ""
     notes = p.text(field("notes"), "notes", required=False, max_length=2000) or ""
     partner: Any = None
@@ -200,8 +216,7 @@ def parse_run(batch: dict[str, Any], method: str, form: Any) -> tuple[dict[str, 
         if lot_id is not None:
             try:
                 partner = records.lot_by_id(get_db(), lot_id)
-                chemistry.stoichiometric_factor(chemistry.titrant(batch["reagent"]),
-                                                chemistry.standard(partner["substance"]))
+                chemistry.stoichiometric_factor(chemistry.titrant(batch["reagent"]), chemistry.standard(partner["substance"]))
             except StockroomError as exc:
                 p.error("standard_lot_id", exc.message)
                 partner = None
@@ -215,31 +230,42 @@ def parse_run(batch: dict[str, Any], method: str, form: Any) -> tuple[dict[str, 
     reps, excluded, grid = parse_grid(form, method == "secondary", capacity or 100.0, run_t)
     p.errors.extend(grid.errors)
     chosen = web_instruments.read_run_instruments(p, form, method, capacity)
-    meta = {"purpose": purpose, "performed_on": performed_on.isoformat() if performed_on else None,
-            "analyst": analyst, "burette_capacity_ml": capacity, "temperature_c": run_t,
-            "endpoint": endpoint, "notes": notes, "instruments": chosen}
+    meta = {
+        "purpose": purpose,
+        "performed_on": performed_on.isoformat() if performed_on else None,
+        "analyst": analyst,
+        "burette_capacity_ml": capacity,
+        "temperature_c": run_t,
+        "endpoint": endpoint,
+        "notes": notes,
+        "instruments": chosen,
+    }
     if purpose == "recheck" and performed_on is not None:
         if release_in_force(records.batch_facts(get_db(), batch["id"]), performed_on) is None:
             p.error("purpose", "a re-check needs a certified value in force that day; record a standardization")
     return meta, partner, reps, excluded, p
 
 
-def _compute(batch: dict[str, Any], method: str, meta: dict[str, Any], partner: Any, reps: list[dict],
-             excluded: dict[int, str]) -> Any:
+def _compute(
+    batch: dict[str, Any], method: str, meta: dict[str, Any], partner: Any, reps: list[dict], excluded: dict[int, str]
+) -> Any:
     db = get_db()
     on = dt.date.fromisoformat(meta["performed_on"])
     policy = records.policy_for(db, batch["reagent"], on)
     figures = workflow.run_figures(current_app.config, meta["instruments"], on)
     if method == "primary":
         workflow.check_lot_usable(partner, on)
-        return workflow.compute_primary(current_app.config, batch, partner, reps, excluded, policy,
-                                        meta["burette_capacity_ml"], figures)
+        return workflow.compute_primary(
+            current_app.config, batch, partner, reps, excluded, policy, meta["burette_capacity_ml"], figures
+        )
     ref = workflow.reference_in_force(db, partner, on)
-    return workflow.compute_secondary(current_app.config, batch, partner, ref.molarity, ref.u, reps, excluded,
-                                      policy, meta["burette_capacity_ml"], figures)
+    return workflow.compute_secondary(
+        current_app.config, batch, partner, ref.molarity, ref.u, reps, excluded, policy, meta["burette_capacity_ml"], figures
+    )
 
 
 # ---------------------------------------------------------------- views
+
 
 def _method_arg() -> str:
     method = request.values.get("method", "primary")
@@ -257,8 +283,10 @@ def new_run(code: str) -> Any:
     today = lab_today()
     user = current_user()
     defaults: dict[str, Any] = {
-        "performed_on": today.isoformat(), "analyst": user.display_name if user else "",
-        "burette_capacity_ml": "50.0", "method": method,
+        "performed_on": today.isoformat(),
+        "analyst": user.display_name if user else "",
+        "burette_capacity_ml": "50.0",
+        "method": method,
     }
     ctx = _form_context(batch, method, "certify", today)
     defaults["purpose"] = request.args.get("purpose") or ("recheck" if ctx["in_force"] else "certify")
@@ -284,11 +312,13 @@ def new_run(code: str) -> Any:
         return render_template("runs/new.html", values=form, errors={}, result=workflow.snapshot(result), **ctx)
     actor = user.username if user else "?"
     if method == "primary":
-        run_id, _ = workflow.record_primary_run(db, current_app.config, batch, partner, meta, reps, actor, excluded,
-                                                instruments=meta["instruments"])
+        run_id, _ = workflow.record_primary_run(
+            db, current_app.config, batch, partner, meta, reps, actor, excluded, instruments=meta["instruments"]
+        )
     else:
-        run_id, _ = workflow.record_secondary_run(db, current_app.config, batch, partner, meta, reps, actor,
-                                                  excluded, instruments=meta["instruments"])
+        run_id, _ = workflow.record_secondary_run(
+            db, current_app.config, batch, partner, meta, reps, actor, excluded, instruments=meta["instruments"]
+        )
     flash(f"Run recorded for {batch['code']}. Review it, then accept or reject it.", "ok")
     return redirect(url_for("runs.show", run_id=run_id), 303)
 
@@ -299,8 +329,8 @@ def _grid_field_names(errors: list[FieldError]) -> list[FieldError]:
     for e in errors:
         name = e.field
         if name.startswith("replicates[") and "]" in name:
-            idx = int(name[len("replicates["):name.index("]")])
-            col = name[name.index("]") + 2:] if "." in name else "initial_ml"
+            idx = int(name[len("replicates[") : name.index("]")])
+            col = name[name.index("]") + 2 :] if "." in name else "initial_ml"
             col = {"volume_ml": "final_ml", "gross_g": "gross_g", "tare_g": "tare_g"}.get(col, col)
             name = f"r{idx + 1}_{col}"
         out.append(FieldError(name, e.message))
@@ -317,9 +347,17 @@ def show(run_id: int) -> Any:
     from stockroom import instruments
 
     used = instruments.instruments_of_run(db, run_id)
-    return render_template("runs/show.html", run=run, batch=batch, lot=lot, reference=reference, used=used,
-                           result=run["current"]["result"], today=lab_today(),
-                           excluded={e["position"]: e for e in run["exclusions"]})
+    return render_template(
+        "runs/show.html",
+        run=run,
+        batch=batch,
+        lot=lot,
+        reference=reference,
+        used=used,
+        result=run["current"]["result"],
+        today=lab_today(),
+        excluded={e["position"]: e for e in run["exclusions"]},
+    )
 
 
 @bp.post("/runs/<int:run_id>/exclude")
@@ -344,8 +382,14 @@ def decide(run_id: int) -> Any:
     decision = p.choice(field("decision"), "decision", ("accept", "reject"))
     reason = p.text(field("reason"), "reason", required=decision == "reject", max_length=500) or ""
     run = records.run_by_id(db, run_id)
-    released_on = form_date(p, field("released_on"), "released_on", required=False, not_after=lab_today(),
-                            not_before=dt.date.fromisoformat(run["performed_on"]))
+    released_on = form_date(
+        p,
+        field("released_on"),
+        "released_on",
+        required=False,
+        not_after=lab_today(),
+        not_before=dt.date.fromisoformat(run["performed_on"]),
+    )
     p.raise_if_errors()
     user = current_user()
     actor = user.username if user else "?"
@@ -387,32 +431,38 @@ def import_sheet(code: str) -> Any:
             problems.extend(sheet.problems)
             unused = csvio.columns_unused(sheet.rows, method == "secondary")
             if unused:
-                problems.append((0, "columns " + ", ".join(unused) + " have values but this kind of run does "
-                                 "not use them"))
+                problems.append((0, "columns " + ", ".join(unused) + " have values but this kind of run does not use them"))
             if not problems:
                 form = csvio.rows_as_form(sheet.rows, method == "secondary")
                 today = lab_today()
                 user = current_user()
-                values = {"performed_on": today.isoformat(), "analyst": user.display_name if user else "",
-                          "burette_capacity_ml": "50.0", "method": method, **form}
+                values = {
+                    "performed_on": today.isoformat(),
+                    "analyst": user.display_name if user else "",
+                    "burette_capacity_ml": "50.0",
+                    "method": method,
+                    **form,
+                }
                 ctx = _form_context(batch, method, "certify", today)
                 values["purpose"] = "recheck" if ctx["in_force"] else "certify"
                 ctx["rows"] = max(GRID_ROWS, len(sheet.rows))
                 # Check every row by the form's own rules now, so row-level problems show before recording.
                 _, _, grid = parse_grid(form, method == "secondary", 100.0, None)
                 errors = InvalidInput(grid.errors).fields if grid.errors else {}
-                flash(f"{len(sheet.rows)} replicate rows read from {upload.filename}. Check them, choose the "
-                      "standard and record the run; nothing is stored yet.", "ok")
-                return render_template("runs/new.html", values=values, errors=errors, result=None,
-                                       imported=len(sheet.rows), **ctx), (422 if errors else 200)
-    return render_template("runs/import.html", batch=batch, method=method, problems=problems,
-                           columns=csvio.SHEET_COLUMNS), 422
+                flash(
+                    f"{len(sheet.rows)} replicate rows read from {upload.filename}. Check them, choose the "
+                    "standard and record the run; nothing is stored yet.",
+                    "ok",
+                )
+                return render_template(
+                    "runs/new.html", values=values, errors=errors, result=None, imported=len(sheet.rows), **ctx
+                ), (422 if errors else 200)
+    return render_template("runs/import.html", batch=batch, method=method, problems=problems, columns=csvio.SHEET_COLUMNS), 422
 
 
 def _csv_response(text: str, filename: str) -> Response:
     safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in filename)
-    return Response(text, mimetype="text/csv",
-                    headers={"Content-Disposition": f'attachment; filename="{safe}"'})
+    return Response(text, mimetype="text/csv", headers={"Content-Disposition": f'attachment; filename="{safe}"'})
 
 
 @bp.get("/runs/<int:run_id>.csv")
@@ -427,5 +477,4 @@ def export_run(run_id: int) -> Response:
 def export_history(code: str) -> Response:
     db = get_db()
     batch = records.batch_by_code(db, code)
-    return _csv_response(csvio.write_history(batch, records.batch_history(db, batch["id"])),
-                         f"{batch['code']}-history.csv")
+    return _csv_response(csvio.write_history(batch, records.batch_history(db, batch["id"])), f"{batch['code']}-history.csv")

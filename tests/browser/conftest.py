@@ -65,9 +65,17 @@ def browser(chromium_path):
 
     with sync_playwright() as pw:
         b = pw.chromium.launch(
-            executable_path=chromium_path, headless=True,
-            args=["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                  "--disable-background-networking", "--disable-component-update", "--disable-sync"],
+            executable_path=chromium_path,
+            headless=True,
+            args=[
+                "--no-sandbox",
+                "--disable-gpu",
+                "--disable-quic",
+                "--no-first-run",
+                "--disable-background-networking",
+                "--disable-component-update",
+                "--disable-sync",
+            ],
         )
         yield b
         b.close()

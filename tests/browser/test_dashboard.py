@@ -15,8 +15,10 @@ def test_dashboard_shows_demo_batches_by_status(page, demo_server, screenshot):
     heading = page.locator("h1").inner_text()
     assert heading == "Prep room today"
     # The tally counts each status of the invented scenario.
-    tally = {li.inner_text().split("\n")[-1].strip(): int(li.locator("strong").inner_text())
-             for li in page.locator("ul.tally li").all()}
+    tally = {
+        li.inner_text().split("\n")[-1].strip(): int(li.locator("strong").inner_text())
+        for li in page.locator("ul.tally li").all()
+    }
     assert tally["Drifting"] == 1
     assert tally["Re-check due"] == 1
     assert tally["Awaiting standardization"] == 1

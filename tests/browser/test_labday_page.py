@@ -94,8 +94,10 @@ def test_instructor_corrects_a_class_with_the_molarity_in_force(page, staff_demo
     page.wait_for_load_state()
     sheet = tmp_path / "class.csv"
     # Invented class data: the 0.1 mol/L H2SO4 titrating NaOH samples, 1 mol acid : 2 mol base.
-    sheet.write_text("group,aliquot_ml,titrant_ml,ratio,reported_molarity\n"
-                     "bench 1,25.00,12.40,1:2,0.0992\nbench 2,25.00,12.46,1:2,\n", encoding="utf-8")
+    sheet.write_text(
+        "group,aliquot_ml,titrant_ml,ratio,reported_molarity\nbench 1,25.00,12.40,1:2,0.0992\nbench 2,25.00,12.46,1:2,\n",
+        encoding="utf-8",
+    )
     page.set_input_files("#f-sheet", str(sheet))
     page.click("form.panel button[type=submit]")
     page.wait_for_url(re.compile(r".*/lab-day/corrections/\d+$"))

@@ -33,8 +33,7 @@ def test_instruments_chain_and_recall_report(staff_page, staff_demo_server, scre
     page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
 
     # Register a burette (Class A 50 mL: tolerance from the class table) and an overdue pipette.
-    for code, kind, capacity, cal, due in (("BUR-DEMO-1", "burette", "50", -20, 345),
-                                           ("PIP-DEMO-1", "pipette", "25", -400, -35)):
+    for code, kind, capacity, cal, due in (("BUR-DEMO-1", "burette", "50", -20, 345), ("PIP-DEMO-1", "pipette", "25", -400, -35)):
         page.goto(base + "/instruments/new")
         page.fill("#f-code", code)
         page.select_option("#f-kind", kind)
@@ -95,8 +94,9 @@ def test_instruments_chain_and_recall_report(staff_page, staff_demo_server, scre
     out.write_bytes(pdf.body())
     if shutil.which("pdftoppm"):
         ARTIFACTS.mkdir(exist_ok=True)
-        subprocess.run(["pdftoppm", "-png", "-r", "80", "-f", "1", "-l", "1", str(out),
-                        str(ARTIFACTS / "recall-report-pdf")], check=True)
+        subprocess.run(
+            ["pdftoppm", "-png", "-r", "80", "-f", "1", "-l", "1", str(out), str(ARTIFACTS / "recall-report-pdf")], check=True
+        )
 
     # Clear it again, so the other tests on this server see the demo as it was.
     page.goto(report_url)

@@ -13,8 +13,12 @@ from playwright.sync_api import expect
 pytestmark = pytest.mark.browser
 
 # Four replicates of ~0.1 mol/L NaOH against KHP: (gross g, tare g, initial mL, final mL).
-ROWS = [("12.4581", "11.6402", "0.12", "40.21"), ("12.0117", "11.1891", "0.40", "40.73"),
-        ("11.9012", "11.0759", "0.05", "40.50"), ("12.2230", "11.4170", "0.30", "39.82")]
+ROWS = [
+    ("12.4581", "11.6402", "0.12", "40.21"),
+    ("12.0117", "11.1891", "0.40", "40.73"),
+    ("11.9012", "11.0759", "0.05", "40.50"),
+    ("12.2230", "11.4170", "0.30", "39.82"),
+]
 
 
 def expected_mean():
@@ -61,8 +65,11 @@ def test_register_standardize_and_release(staff_page, staff_demo_server, screens
     page.goto(f"{base}/batches/{code}")
     page.click("text=Record a standardization")
     page.wait_for_load_state()
-    lot_value = page.locator("#f-standard_lot_id option", has_text="IFC-KP-9001").get_attribute("value") \
-        if page.locator("#f-standard_lot_id option", has_text="IFC-KP-9001").count() else None
+    lot_value = (
+        page.locator("#f-standard_lot_id option", has_text="IFC-KP-9001").get_attribute("value")
+        if page.locator("#f-standard_lot_id option", has_text="IFC-KP-9001").count()
+        else None
+    )
     if lot_value is None:  # the option text shows the lot code, not the supplier's lot
         lot_value = page.locator("#f-standard_lot_id option").last.get_attribute("value")
     page.select_option("#f-standard_lot_id", lot_value)
@@ -83,8 +90,13 @@ def test_register_standardize_and_release(staff_page, staff_demo_server, screens
     mean = expected_mean()
     assert value.startswith(f"{mean:.5f}"[:7]), (value, mean)
     g, t, i, f = ROWS[3]
-    row4 = 1000 * (float(g) - float(t)) * (1 + 0.0012 * (1 / 1.636 - 1 / 8.0)) * 0.99995 / (
-        periodictable.formula("KHC8H4O4").mass * (float(f) - float(i)))
+    row4 = (
+        1000
+        * (float(g) - float(t))
+        * (1 + 0.0012 * (1 / 1.636 - 1 / 8.0))
+        * 0.99995
+        / (periodictable.formula("KHC8H4O4").mass * (float(f) - float(i)))
+    )
     assert page.locator('.live-molarity[data-row="4"]').inner_text().startswith(f"{row4:.5f}"[:6])
     assert page.locator("#preview-body table.budget tbody tr").count() >= 4
     screenshot(page, "run-form-live")
