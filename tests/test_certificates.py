@@ -11,8 +11,8 @@ import pytest
 from click.testing import CliRunner
 
 from stockroom import records, workflow
+from stockroom.formatting import molarity as format_molarity
 from stockroom.pdf import certificates
-from stockroom.web.formatting import molarity as format_molarity
 
 # Invented replicates: about 0.1 mol/L NaOH against KHP (gross, tare in g; initial, final in mL).
 GOOD = [

@@ -26,9 +26,9 @@ from reportlab.pdfbase.pdfmetrics import stringWidth
 
 from stockroom import db as dbmod
 from stockroom import records, workflow
+from stockroom.formatting import molarity as format_molarity
 from stockroom.pdf import labels, layouts
 from stockroom.pdf.labels import LabelOverflow, build_labels, fit_report, label_content, with_content
-from stockroom.web.formatting import molarity as format_molarity
 
 SHIPPED = ("bottle", "carboy-a5", "carboy-half-letter", "sheet-a4-21", "sheet-letter-30")
 # Four invented replicates of about 0.1 mol/L NaOH against KHP: gross, tare (g), initial, final (mL).

@@ -133,7 +133,7 @@ def test_record_then_accept_releases_the_batch(app, setup, signed_in_client, for
     assert release["U"] == pytest.approx(release["k"] * release["u"])
     assert body["U"] == release["U"] and body["molarity"] == release["molarity"]
     page = staff.get(f"/batches/{code}").get_data(as_text=True)
-    from stockroom.web.formatting import molarity as fmt
+    from stockroom.formatting import molarity as fmt
 
     assert page.count(fmt(release["molarity"], release["U"], release["k"])) >= 2  # value panel and releases
     # NaOH starting policy: shelf life 90 days from preparation.

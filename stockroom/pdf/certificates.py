@@ -38,10 +38,10 @@ from reportlab.platypus import (
 from stockroom import chemistry, records
 from stockroom import db as dbmod
 from stockroom.errors import NotFound
+from stockroom.formatting import molarity as format_molarity
 from stockroom.pdf.ghs import GHS_RED
 from stockroom.pdf.labels import printable, value_text
 from stockroom.policy import ReleaseFact
-from stockroom.web.formatting import molarity as format_molarity
 
 MAX_CHAIN = 12  # reference steps followed before giving up (a loop in the records would be a data fault)
 _INK = colors.HexColor("#1d2327")

@@ -40,11 +40,11 @@ from reportlab.pdfgen.canvas import Canvas
 from stockroom import chemistry, hazards, records
 from stockroom import db as dbmod
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
+from stockroom.formatting import molarity as format_molarity
 from stockroom.hazards import Classification, LabelElements
 from stockroom.pdf import ghs
 from stockroom.pdf.layouts import Field, Layout
 from stockroom.policy import Status, release_in_force, status_on
-from stockroom.web.formatting import molarity as format_molarity
 
 NBSP = "\u00a0"
 DASH = "—"
