@@ -411,7 +411,7 @@ def register(
             row[k] = row[k] or ""
         row["recorded_at"] = records.utc_now()
         row["recorded_by"] = actor
-        pk = db["instruments"].insert(row).last_pk  # type: ignore[union-attr]
+        pk = db.table("instruments").insert(row).last_pk
         assert pk is not None
         iid = int(pk)
         records.append_event(
@@ -451,7 +451,7 @@ def record_calibration(db: sqlite_utils.Database, instrument_id: int, values: Ma
         row["instrument_id"] = instrument_id
         row["recorded_at"] = records.utc_now()
         row["recorded_by"] = actor
-        pk = db["calibrations"].insert(row).last_pk  # type: ignore[union-attr]
+        pk = db.table("calibrations").insert(row).last_pk
         assert pk is not None
         cid = int(pk)
         records.append_event(
@@ -486,11 +486,11 @@ def link_run(
             if inst.kind != role:
                 raise InvalidInput([FieldError(f"{role}_id", f"{inst.code} is a {inst.kind}, not a {role}")])
             cal = inst.calibration_on(on)
-            db["run_instruments"].insert(
+            db.table("run_instruments").insert(
                 {
                     "run_id": run_id,
                     "instrument_id": inst.id,
-                    "role": role,  # type: ignore[union-attr]
+                    "role": role,
                     "calibration_id": cal.id if cal else None,
                 }
             )

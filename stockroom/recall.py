@@ -378,9 +378,9 @@ def open_recall(
         raise InvalidInput(errors)
     with dbmod.write(db):
         pk = (
-            db["recalls"]
+            db.table("recalls")
             .insert(
-                {  # type: ignore[union-attr]
+                {
                     "subject_kind": kind,
                     "subject_id": subject_id,
                     "suspect_from": suspect_from.isoformat(),
@@ -436,9 +436,9 @@ def clear_recall(
             if any(c.batch_id == batch_id for c in recall.clearances):
                 raise Conflict(f"recall {recall_id} is already cleared for that batch")
         pk = (
-            db["recall_clearances"]
+            db.table("recall_clearances")
             .insert(
-                {  # type: ignore[union-attr]
+                {
                     "recall_id": recall_id,
                     "batch_id": batch_id,
                     "cleared_on": cleared_on.isoformat(),
