@@ -1,19 +1,225 @@
-"""The `stockroom` command group."""
+"""The `stockroom` command group.
+
+Every command reports stockroom's own errors and the expected OS errors as one line, `Error: ...`,
+with exit status 1 (`reports_errors`); usage mistakes are click's, with exit status 2. Every command
+that opens the working database takes the same `--db` option (`database_option`, environment
+variable STOCKROOM_DATABASE as in settings.py) and opens it through `open_database`.
+"""
 
 from __future__ import annotations
 
+import datetime as dt
+import errno
+import functools
 import os
+import socket
+import sqlite3
 import sys
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
+from typing import TYPE_CHECKING, Any, TypeVar
 
 import click
 
 from stockroom import settings
+from stockroom.errors import StockroomError
+from stockroom.pdf import layouts
+
+if TYPE_CHECKING:
+    import sqlite_utils
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+DATABASE_ENVVAR = "STOCKROOM_DATABASE"  # settings.resolve reads STOCKROOM_<NAME> for every setting
+_DEFAULT_DATABASE = next(default for name, default, _ in settings.describe() if name == "DATABASE")
 
 
-def _db_path(db: str | None) -> str:
-    return db or settings.database_path()
+# ---------------------------------------------------------------- the shared pieces
+
+
+def database_option(
+    help: str = f"SQLite file of the working database (default: {_DEFAULT_DATABASE}).",
+    *,
+    required: bool = False,
+    from_environment: bool = True,
+) -> Callable[[F], F]:
+    """The `--db` option every command that opens a database takes; the value arrives as `db_path`.
+
+    `from_environment=False` is for the commands that write a new file (demo, synth): they must never
+    pick up the working database from the environment.
+    """
+    return click.option(
+        "--db",
+        "db_path",
+        type=click.Path(dir_okay=False),
+        required=required,
+        envvar=DATABASE_ENVVAR if from_environment else None,
+        show_envvar=from_environment,
+        help=help,
+    )
+
+
+def _os_message(exc: OSError) -> str:
+    if exc.strerror and exc.filename:
+        return f"{exc.filename}: {exc.strerror}"
+    return exc.strerror or str(exc)
+
+
+# SQLite's messages for a file it cannot open or write (permission, read-only, locked, full disk).
+_SQLITE_ENVIRONMENT = ("unable to open", "readonly database", "database is locked", "disk I/O error", "disk is full")
+
+
+def reports_errors(fn: F) -> F:
+    """Turn stockroom's errors and expected OS errors into one `Error: ...` line and exit status 1."""
+
+    @functools.wraps(fn)
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
+        try:
+            return fn(*args, **kwargs)
+        except click.ClickException:
+            raise
+        except StockroomError as exc:  # InvalidInput's message already names every field and rule
+            raise click.ClickException(exc.message) from None
+        except OSError as exc:  # missing file, permission, folder given for a file, port taken
+            raise click.ClickException(_os_message(exc)) from None
+        except sqlite3.OperationalError as exc:
+            # The file system's answers through SQLite; any other OperationalError is a bug and shows as one.
+            if not any(words in str(exc) for words in _SQLITE_ENVIRONMENT):
+                raise
+            raise click.ClickException(f"the database could not be used: {exc}") from None
+
+    wrapper.reports_errors = True  # type: ignore[attr-defined]  # the CLI tests check every command has it
+    return wrapper  # type: ignore[return-value]
+
+
+def working_database(db_path: str | None) -> str:
+    """The database file a command works on: --db, else STOCKROOM_DATABASE, else the default."""
+    return db_path or settings.database_path()
+
+
+def _schema_of_existing(path: Path) -> int:
+    """The stockroom schema version of an existing file, read without writing anything; 0 if none."""
+    try:
+        conn = sqlite3.connect(f"file:{path.resolve()}?mode=ro", uri=True)
+        try:
+            found = conn.execute(
+                "SELECT count(*) FROM sqlite_master WHERE type = 'table' AND name = '_sqlite_migrations'"
+            ).fetchone()[0]
+            if not found:
+                return 0
+            return int(conn.execute("SELECT count(*) FROM _sqlite_migrations").fetchone()[0])
+        finally:
+            conn.close()
+    except sqlite3.DatabaseError as exc:
+        raise click.ClickException(f"{path} is not a readable SQLite database ({exc})") from None
+
+
+def open_database(path: str, *, must_exist: bool) -> sqlite_utils.Database:
+    """Open the stockroom database at `path` with its schema brought up to date.
+
+    With `must_exist` (every command that reads, verifies or adds to existing records) a missing
+    file, a folder or a file that is not a stockroom database is refused in one line and nothing is
+    created: no folder, no file. Without it (init-db, serve) the file and its folder are created.
+    """
+    from stockroom import db as dbmod
+
+    target = Path(path)
+    if must_exist:
+        if target.is_dir():
+            raise click.ClickException(f"{target} is a folder; --db names the database file")
+        if not target.is_file():
+            raise click.ClickException(
+                f"no database at {target}; create it with `stockroom init-db --db {target}` or name another with --db"
+            )
+        if _schema_of_existing(target) == 0:
+            raise click.ClickException(f"{target} is not a stockroom database (it has no schema)")
+    try:
+        conn = dbmod.connect(target)
+    except sqlite3.DatabaseError as exc:
+        raise click.ClickException(f"cannot open {target} as a database ({exc})") from None
+    try:
+        dbmod.migrate(conn)
+    except RuntimeError as exc:  # a schema newer than this stockroom
+        conn.close()
+        raise click.ClickException(str(exc)) from None
+    except sqlite3.DatabaseError as exc:
+        conn.close()
+        raise click.ClickException(f"cannot bring {target} up to date ({exc})") from None
+    return conn
+
+
+def _lab_today(timezone_name: str) -> dt.date:
+    """Today's date in the lab's time zone (LAB_TIMEZONE, an IANA name)."""
+    from zoneinfo import ZoneInfo
+
+    return dt.datetime.now(ZoneInfo(timezone_name)).date()
+
+
+def _settings_for(path: str) -> dict[str, Any]:
+    """The settings in force for the database at `path`, read without writing anything.
+
+    The command line signs no cookie, so a throwaway key stands in for SECRET_KEY: resolving it
+    otherwise would create instance/secret_key beside the database.
+    """
+    import secrets
+
+    return settings.resolve({"DATABASE": path, "SECRET_KEY": secrets.token_hex(16)})
+
+
+def _cli_actor() -> str:
+    import getpass
+
+    try:
+        return f"cli:{getpass.getuser()}"
+    except (KeyError, OSError):  # no login name in some containers
+        return "cli"
+
+
+def _ensure_port_free(host: str, port: int) -> None:
+    """Refuse, in one line, an address the server could not listen on (port taken, not allowed, unknown host)."""
+    try:
+        addresses = socket.getaddrinfo(
+            None if host == "*" else host, port, type=socket.SOCK_STREAM, proto=socket.IPPROTO_TCP, flags=socket.AI_PASSIVE
+        )
+    except socket.gaierror as exc:
+        raise click.ClickException(f"cannot listen on {host}: {exc.strerror}") from None
+    for family, kind, proto, _, address in addresses:
+        with socket.socket(family, kind, proto) as probe:
+            # waitress sets SO_REUSEADDR too, so a port left in TIME_WAIT is not mistaken for a busy one.
+            probe.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
+            try:
+                probe.bind(address)
+            except OSError as exc:
+                if exc.errno == errno.EADDRINUSE:
+                    raise click.ClickException(
+                        f"port {port} on {host} is already in use (another stockroom or server?); pick another with --port"
+                    ) from None
+                raise click.ClickException(f"cannot listen on {host} port {port}: {exc.strerror}") from None
+
+
+def _serve(app: object, host: str, port: int) -> None:
+    from waitress import serve as waitress_serve
+
+    _ensure_port_free(host, port)
+    click.echo(f"stockroom serving on http://{host}:{port}/  (Ctrl+C stops it)")
+    waitress_serve(app, host=host, port=port, threads=8, ident="stockroom")
+
+
+def _layout_names() -> list[str]:
+    """Names of the layout files in labels/ (a broken one is listed: using it reports its problems)."""
+    try:
+        folder = layouts.layouts_folder()
+    except FileNotFoundError:  # an installation without labels/: every --layout value is refused
+        return []
+    return sorted(p.stem for p in folder.glob("*.toml"))
+
+
+_HOST_OPTION = click.option("--host", default="127.0.0.1", show_default=True, help="Address to listen on.")
+_PORT_OPTION = click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535), help="Port to listen on.")
+_OUT_OPTION = click.option(
+    "--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True), help="PDF file to write."
+)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -21,49 +227,49 @@ def main() -> None:
     """stockroom: batch register, standardization, uncertainty and labels for titrant solutions."""
 
 
+# ---------------------------------------------------------------- the database and the server
+
+
 @main.command("init-db")
-@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
+@database_option()
+@reports_errors
 def init_db(db_path: str | None) -> None:
     """Create the database, or bring its schema up to date."""
     from stockroom import db as dbmod
 
-    path = _db_path(db_path)
-    conn = dbmod.connect(path)
+    path = working_database(db_path)
+    conn = open_database(path, must_exist=False)
     try:
-        version = dbmod.migrate(conn)
+        version = dbmod.schema_version(conn)
     finally:
         conn.close()
     click.echo(f"database {path} at schema version {version}")
 
 
-def _serve(app: object, host: str, port: int) -> None:
-    from waitress import serve as waitress_serve
-
-    click.echo(f"stockroom serving on http://{host}:{port}/  (Ctrl+C stops it)")
-    waitress_serve(app, host=host, port=port, threads=8, ident="stockroom")
-
-
 @main.command()
-@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
-@click.option("--host", default="127.0.0.1", show_default=True, help="Address to listen on.")
-@click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535), help="Port to listen on.")
+@database_option()
+@_HOST_OPTION
+@_PORT_OPTION
+@reports_errors
 def serve(db_path: str | None, host: str, port: int) -> None:
-    """Serve stockroom with waitress (a production WSGI server)."""
+    """Serve stockroom with waitress (a production WSGI server); creates the database if there is none."""
     from stockroom import create_app
 
-    _serve(create_app({"DATABASE": _db_path(db_path)}), host, port)
+    path = working_database(db_path)
+    _ensure_port_free(host, port)
+    open_database(path, must_exist=False).close()
+    _serve(create_app({"DATABASE": path}), host, port)
 
 
 @main.command()
-@click.option(
-    "--db",
-    "db_path",
-    type=click.Path(dir_okay=False),
-    help="File for the demo database (default: a new file in a temporary folder).",
+@database_option(
+    "File for the demo database (default: a new file in a temporary folder; never the working database).",
+    from_environment=False,
 )
-@click.option("--host", default="127.0.0.1", show_default=True, help="Address to listen on.")
-@click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535), help="Port to listen on.")
+@_HOST_OPTION
+@_PORT_OPTION
 @click.option("--no-serve", is_flag=True, help="Build the demo database and stop.")
+@reports_errors
 def demo(db_path: str | None, host: str, port: int, no_serve: bool) -> None:
     """Build a fresh database from the invented demo scenario and serve it."""
     from stockroom import create_app
@@ -77,6 +283,8 @@ def demo(db_path: str | None, host: str, port: int, no_serve: bool) -> None:
         raise click.UsageError("the demo never writes into the working database; pick another --db file")
     if target.exists():
         raise click.UsageError(f"{target} already exists; the demo builds a fresh file (remove it or pick another)")
+    if not no_serve:
+        _ensure_port_free(host, port)  # before the build, not after it
     summary = build_demo(str(target))
     click.echo(f"demo database (invented scenario): {target}")
     for line in summary:
@@ -90,23 +298,6 @@ def demo(db_path: str | None, host: str, port: int, no_serve: bool) -> None:
 _ROLE_CHOICE = click.Choice(["staff", "instructor", "admin"])  # accounts.ROLES (a test keeps them equal)
 
 
-def _accounts_db(db_path: str | None):  # -> sqlite_utils.Database
-    from stockroom import db as dbmod
-
-    conn = dbmod.connect(_db_path(db_path))
-    dbmod.migrate(conn)
-    return conn
-
-
-def _cli_actor() -> str:
-    import getpass
-
-    try:
-        return f"cli:{getpass.getuser()}"
-    except (KeyError, OSError):  # no login name in some containers
-        return "cli"
-
-
 def _new_password(prompt: str) -> str:
     """The password from STOCKROOM_PASSWORD when set (for scripts), else asked for twice, hidden."""
     from_env = os.environ.get("STOCKROOM_PASSWORD")
@@ -115,30 +306,20 @@ def _new_password(prompt: str) -> str:
     return str(click.prompt(prompt, hide_input=True, confirmation_prompt=True))
 
 
-def _account_call(fn, *args):  # a StockroomError becomes a one-line message and exit status 1
-    from stockroom.errors import InvalidInput, StockroomError
-
-    try:
-        return fn(*args)
-    except InvalidInput as exc:
-        raise click.ClickException("\n".join(f"{e.field}: {e.message}" for e in exc.errors)) from None
-    except StockroomError as exc:
-        raise click.ClickException(exc.message) from None
-
-
 @main.command("add-user")
 @click.argument("name")
 @click.option("--role", required=True, type=_ROLE_CHOICE, help="What the account may do.")
 @click.option("--display-name", default=None, help="The person's name as shown (default: NAME).")
-@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
+@database_option()
+@reports_errors
 def add_user(name: str, role: str, display_name: str | None, db_path: str | None) -> None:
-    """Create an account. The password is read from STOCKROOM_PASSWORD if set, else asked for twice."""
+    """Create the account NAME. The password is read from STOCKROOM_PASSWORD if set, else asked for twice."""
     from stockroom import accounts
 
-    password = _new_password("Password for the new account (at least 12 characters)")
-    conn = _accounts_db(db_path)
+    conn = open_database(working_database(db_path), must_exist=True)
     try:
-        user = _account_call(accounts.create_user, conn, name, display_name or name, role, password, _cli_actor())
+        password = _new_password("Password for the new account (at least 12 characters)")
+        user = accounts.create_user(conn, name, display_name or name, role, password, _cli_actor())
     finally:
         conn.close()
     click.echo(f"created {user.username} ({user.role_label})")
@@ -147,14 +328,15 @@ def add_user(name: str, role: str, display_name: str | None, db_path: str | None
 @main.command("disable-user")
 @click.argument("name")
 @click.option("--reason", default="", help="Why, for the audit trail.")
-@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
+@database_option()
+@reports_errors
 def disable_user(name: str, reason: str, db_path: str | None) -> None:
-    """Disable an account; every session it has ends at once."""
+    """Disable the account NAME; every session it has ends at once."""
     from stockroom import accounts
 
-    conn = _accounts_db(db_path)
+    conn = open_database(working_database(db_path), must_exist=True)
     try:
-        user = _account_call(accounts.disable_user, conn, name, _cli_actor(), reason)
+        user = accounts.disable_user(conn, name, _cli_actor(), reason)
     finally:
         conn.close()
     click.echo(f"disabled {user.username}; its sessions have ended")
@@ -162,15 +344,16 @@ def disable_user(name: str, reason: str, db_path: str | None) -> None:
 
 @main.command("set-password")
 @click.argument("name")
-@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
+@database_option()
+@reports_errors
 def set_password(name: str, db_path: str | None) -> None:
-    """Give an account a new password (forgotten password); from STOCKROOM_PASSWORD or asked for twice."""
+    """Give the account NAME a new password (forgotten password); from STOCKROOM_PASSWORD or asked for twice."""
     from stockroom import accounts
 
-    password = _new_password(f"New password for {name} (at least 12 characters)")
-    conn = _accounts_db(db_path)
+    conn = open_database(working_database(db_path), must_exist=True)
     try:
-        user = _account_call(accounts.set_password, conn, name, password, _cli_actor())
+        password = _new_password(f"New password for {name} (at least 12 characters)")
+        user = accounts.set_password(conn, name, password, _cli_actor())
     finally:
         conn.close()
     click.echo(f"password of {user.username} changed; its sessions have ended")
@@ -179,20 +362,14 @@ def set_password(name: str, db_path: str | None) -> None:
 # ---------------------------------------------------------------- labels and certificates
 
 
-def _lab_today(config: dict):  # -> datetime.date: today in the lab's time zone
-    import datetime as dt
-    from zoneinfo import ZoneInfo
-
-    return dt.datetime.now(ZoneInfo(config["LAB_TIMEZONE"])).date()
-
-
 @main.command("labels")
 @click.argument("batch_id")
 @click.option(
     "--layout",
     "layout_name",
     required=True,
-    help="Label layout: the name of a file in labels/ without .toml (e.g. carboy-a5, bottle, sheet-a4-24).",
+    type=click.Choice(_layout_names()),
+    help="Label layout: a file in labels/ without .toml (a new file there is a new choice).",
 )
 @click.option(
     "--copies",
@@ -208,20 +385,21 @@ def _lab_today(config: dict):  # -> datetime.date: today in the lab's time zone
     type=click.IntRange(1, None),
     help="Position of the first label on a partly used sheet, counted along rows from the top left.",
 )
-@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
-@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True), help="PDF file to write.")
+@database_option()
+@_OUT_OPTION
+@reports_errors
 def labels_command(batch_id: str, layout_name: str, copies: int, start: int, db_path: str | None, out_path: str) -> None:
-    """Print labels of a batch to a PDF; the print is recorded (as cli:<your login>) with its serials."""
+    """Print labels of the batch BATCH_ID to a PDF; the print is recorded (as cli:<your login>) with its serials."""
     from stockroom import records
-    from stockroom.pdf import labels, layouts
+    from stockroom.pdf import labels
 
-    path = _db_path(db_path)
-    config = settings.resolve({"DATABASE": path})
-    conn = _accounts_db(path)
+    path = working_database(db_path)
+    conn = open_database(path, must_exist=True)
     try:
-        layout = _account_call(layouts.get, layout_name)
-        batch = _account_call(records.batch_by_code, conn, batch_id)
-        job = _account_call(labels.print_labels, conn, config, batch, layout, copies, start, _cli_actor(), _lab_today(config))
+        config = _settings_for(path)
+        layout = layouts.get(layout_name)
+        batch = records.batch_by_code(conn, batch_id)
+        job = labels.print_labels(conn, config, batch, layout, copies, start, _cli_actor(), _lab_today(config["LAB_TIMEZONE"]))
     finally:
         conn.close()
     Path(out_path).write_bytes(job.pdf)
@@ -236,17 +414,18 @@ def labels_command(batch_id: str, layout_name: str, copies: int, start: int, db_
 
 @main.command("certificate")
 @click.argument("batch_id")
-@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file (default: the configured one).")
-@click.option("--out", "out_path", required=True, type=click.Path(dir_okay=False, writable=True), help="PDF file to write.")
+@database_option()
+@_OUT_OPTION
+@reports_errors
 def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> None:
-    """Write the certificate of standardization of a batch's release in force (else its latest) to a PDF."""
+    """Write the certificate of standardization of batch BATCH_ID (its release in force, else its latest) to a PDF."""
     from stockroom.pdf import certificates
 
-    path = _db_path(db_path)
-    config = settings.resolve({"DATABASE": path})
-    conn = _accounts_db(path)
+    path = working_database(db_path)
+    conn = open_database(path, must_exist=True)
     try:
-        data = _account_call(certificates.certificate_data_for_batch, conn, batch_id, _lab_today(config))
+        config = _settings_for(path)
+        data = certificates.certificate_data_for_batch(conn, batch_id, _lab_today(config["LAB_TIMEZONE"]))
         pdf = certificates.build_certificate(data)
     finally:
         conn.close()
@@ -254,15 +433,18 @@ def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> No
     click.echo(f"certificate of {batch_id}, release {data['release']['id']}, written to {out_path}")
 
 
+# ---------------------------------------------------------------- integrity, backup and restore
+
+
 @main.command()
-@click.option("--db", "db_path", type=click.Path(dir_okay=False, exists=True), help="SQLite file (default: the configured one).")
+@database_option()
+@reports_errors
 def verify(db_path: str | None) -> None:
     """Check the audit trail's hash chain and that every record has its entry; exit 1 if not."""
-    from stockroom import db as dbmod
     from stockroom import records
 
-    path = _db_path(db_path)
-    conn = dbmod.connect(path)
+    path = working_database(db_path)
+    conn = open_database(path, must_exist=True)
     try:
         total = conn.execute("SELECT count(*) FROM events").fetchone()[0]
         broken = records.verify_chain(conn)
@@ -291,36 +473,39 @@ def verify(db_path: str | None) -> None:
 
 @main.command("backup")
 @click.argument("dest", type=click.Path(dir_okay=False))
-@click.option("--db", "db_path", type=click.Path(dir_okay=False, exists=True), help="SQLite file (default: the configured one).")
+@database_option()
+@reports_errors
 def backup_command(dest: str, db_path: str | None) -> None:
     """Write a consistent copy of the database to DEST, safely while the server is running."""
     from stockroom import backup
 
-    try:
-        pages = backup.backup(_db_path(db_path), dest)
-    except FileExistsError as exc:
-        raise click.UsageError(str(exc)) from None
+    path = working_database(db_path)
+    open_database(path, must_exist=True).close()
+    pages = backup.backup(path, dest)  # FileExistsError (never overwrites) is reported in one line
     click.echo(f"backup written to {dest} ({pages} pages), integrity check ok")
 
 
 @main.command("restore")
 @click.argument("src", type=click.Path(dir_okay=False))
-@click.option("--db", "db_path", type=click.Path(dir_okay=False), help="SQLite file to replace (default: the configured one).")
+@database_option(f"SQLite file to replace (default: {_DEFAULT_DATABASE}).")
 @click.option("--yes", is_flag=True, help="Do not ask for confirmation.")
+@reports_errors
 def restore_command(src: str, db_path: str | None, yes: bool) -> None:
     """Replace the database with the backup SRC (stop the server first); refuses a damaged or newer file."""
     from stockroom import backup
 
-    target = _db_path(db_path)
+    target = working_database(db_path)
     try:
         backup.check_restorable(src)
     except backup.RestoreRefused as exc:
-        click.echo(f"refused: {exc}", err=True)
-        raise SystemExit(1) from None
+        raise click.ClickException(f"refused: {exc}") from None
     if not yes:
         click.confirm(f"Replace {target} with {src}? Everything recorded since that backup is lost", abort=True)
     version = backup.restore(src, target)
     click.echo(f"{target} restored from {src} (schema version {version}, brought up to date)")
+
+
+# ---------------------------------------------------------------- load tests
 
 
 @main.command()
@@ -337,6 +522,7 @@ def restore_command(src: str, db_path: str | None, yes: bool) -> None:
 @click.option(
     "--clients", default=4, show_default=True, type=click.IntRange(1, 32), help="Concurrent client processes per route."
 )
+@reports_errors
 def bench(years: int, seconds: float, clients: int) -> None:
     """Measure the real server on loopback at 1 and N years of synthetic data, with ratios to /healthz."""
     from stockroom import benchmark
@@ -359,19 +545,18 @@ def bench(years: int, seconds: float, clients: int) -> None:
 
 @main.command()
 @click.option("--years", default=10, show_default=True, type=click.IntRange(1, 30), help="Years of history to write.")
-@click.option(
-    "--db",
-    "db_path",
-    required=True,
-    type=click.Path(dir_okay=False),
-    help="New SQLite file to write (must not exist; never the working database).",
-)
+@database_option("New SQLite file to write (must not exist; never the working database).", required=True, from_environment=False)
 @click.option("--seed", default=1, show_default=True, type=int, help="Seed: the same seed gives the same history.")
-@click.option("--end", "end_day", default=None, help="Last day of the history, YYYY-MM-DD (default: today).")
-def synth(years: int, db_path: str, seed: int, end_day: str | None) -> None:
+@click.option(
+    "--end",
+    "end_day",
+    default=None,
+    type=click.DateTime(formats=["%Y-%m-%d"]),
+    help="Last day of the history, YYYY-MM-DD (default: today).",
+)
+@reports_errors
+def synth(years: int, db_path: str, seed: int, end_day: dt.datetime | None) -> None:
     """Write a plausible, clearly synthetic history (about 200 batches a year) for load tests."""
-    import datetime as dt
-
     from stockroom import synth as synthmod
 
     target = Path(db_path)
@@ -379,10 +564,7 @@ def synth(years: int, db_path: str, seed: int, end_day: str | None) -> None:
         raise click.UsageError(f"{target} already exists; synth writes a new file")
     if target.resolve() == Path(settings.database_path()).resolve():
         raise click.UsageError("synth never writes into the working database; pick another --db file")
-    try:
-        end = dt.date.fromisoformat(end_day) if end_day else None
-    except ValueError:
-        raise click.BadParameter("write it as YYYY-MM-DD", param_hint="--end") from None
+    end = end_day.date() if end_day else None
     counts = synthmod.build(str(target), years=years, seed=seed, end=end)
     click.echo(f"synthetic history of {years} years written to {target}: " + ", ".join(f"{v} {k}" for k, v in counts.items()))
 

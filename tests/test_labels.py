@@ -625,4 +625,4 @@ def test_cli_prints_labels_and_records_the_print(app, world, tmp_path):
     bad = CliRunner().invoke(
         main, ["labels", world["naoh"]["code"], "--layout", "nope", "--db", app.config["DATABASE"], "--out", str(out)]
     )
-    assert bad.exit_code == 1 and "there is no such layout" in bad.output
+    assert bad.exit_code == 2 and "'nope' is not one of" in bad.output  # --layout is a choice of the files in labels/
