@@ -26,11 +26,12 @@ def main() -> None:
 def init_db(db_path: str | None) -> None:
     """Create the database, or bring its schema up to date."""
     from stockroom import db as dbmod
+    from stockroom import schema
 
     path = _db_path(db_path)
     conn = dbmod.connect(path)
     try:
-        version = dbmod.migrate(conn)
+        version = schema.migrate(conn)
     finally:
         conn.close()
     click.echo(f"database {path} at schema version {version}")
@@ -92,9 +93,10 @@ _ROLE_CHOICE = click.Choice(["staff", "instructor", "admin"])  # accounts.ROLES 
 
 def _accounts_db(db_path: str | None):  # -> sqlite_utils.Database
     from stockroom import db as dbmod
+    from stockroom import schema
 
     conn = dbmod.connect(_db_path(db_path))
-    dbmod.migrate(conn)
+    schema.migrate(conn)
     return conn
 
 
@@ -180,10 +182,9 @@ def set_password(name: str, db_path: str | None) -> None:
 
 
 def _lab_today(config: dict):  # -> datetime.date: today in the lab's time zone
-    import datetime as dt
-    from zoneinfo import ZoneInfo
+    from stockroom.db import lab_today
 
-    return dt.datetime.now(ZoneInfo(config["LAB_TIMEZONE"])).date()
+    return lab_today(config["LAB_TIMEZONE"])
 
 
 @main.command("labels")

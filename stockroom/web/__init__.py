@@ -4,12 +4,12 @@ from __future__ import annotations
 
 import datetime as dt
 from typing import Any
-from zoneinfo import ZoneInfo
 
 from flask import Flask, current_app, jsonify, render_template, request
 from flask_wtf.csrf import CSRFProtect
 from werkzeug.exceptions import HTTPException, SecurityError
 
+from stockroom import db as dbmod
 from stockroom.errors import InvalidInput, StockroomError
 
 csrf = CSRFProtect()
@@ -17,7 +17,7 @@ csrf = CSRFProtect()
 
 def lab_today() -> dt.date:
     """Today's date in the lab's time zone."""
-    return dt.datetime.now(ZoneInfo(current_app.config["LAB_TIMEZONE"])).date()
+    return dbmod.lab_today(current_app.config["LAB_TIMEZONE"])
 
 
 def wants_json() -> bool:
