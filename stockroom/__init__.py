@@ -11,7 +11,7 @@ def create_app(config: dict[str, Any] | None = None) -> Flask:
     """Build the Flask application; `config` overrides settings (key DATABASE is the SQLite file path)."""
     from stockroom import db, schema, settings
     from stockroom.resources import resource_dir
-    from stockroom.web import register
+    from stockroom.web.app import register
 
     app = Flask(
         __name__,

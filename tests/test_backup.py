@@ -50,7 +50,7 @@ def test_backup_while_writing_is_consistent(tmp_path):
         c = dbmod.connect(live)
         while not stop.is_set():
             with dbmod.write(c):
-                records.append_event(c, "writer", "test.write")
+                records.append_event(c, "writer", "account.signout")
         c.close()
 
     t = threading.Thread(target=write)

@@ -54,7 +54,7 @@ def test_every_record_table_has_append_only_triggers(database, table):
 
 def test_append_only_triggers_refuse_changes(database):
     with dbmod.write(database):
-        records.append_event(database, "tester", "test.write")
+        records.append_event(database, "tester", "account.signout")
     for sql in (
         "UPDATE events SET actor = 'x'",
         "DELETE FROM events",
@@ -70,7 +70,7 @@ def test_write_rolls_back_whole_block_on_error(database):
     before = database.execute("SELECT count(*) FROM events").fetchone()[0]
     with pytest.raises(ZeroDivisionError):
         with dbmod.write(database):
-            records.append_event(database, "tester", "test.action")
+            records.append_event(database, "tester", "account.signout")
             1 / 0  # noqa: B018
     assert database.execute("SELECT count(*) FROM events").fetchone()[0] == before
 
@@ -85,7 +85,7 @@ def test_concurrent_writers_are_serialized(tmp_path):
         try:
             for j in range(25):
                 with dbmod.write(conn):
-                    records.append_event(conn, f"w{i}", "test.write", detail={"j": j})
+                    records.append_event(conn, f"w{i}", "account.signout", detail={"j": j})
         except Exception as exc:  # pragma: no cover - reported below
             errors.append(exc)
         finally:
@@ -109,7 +109,7 @@ def test_audit_chain_detects_edit_behind_the_back(tmp_path):
     schema.migrate(conn)
     with dbmod.write(conn):
         for i in range(5):
-            records.append_event(conn, "tester", "test.write", detail={"i": i})
+            records.append_event(conn, "tester", "account.signout", detail={"i": i})
     assert records.verify_chain(conn) is None
     # Bypass the triggers the way someone with a raw SQLite shell would.
     conn.execute("DROP TRIGGER events_no_update")
