@@ -277,7 +277,7 @@ def create_user(
         cur = db.execute(
             "INSERT INTO users (username, display_name, role, password_hash, created_at, session_generation) "
             "VALUES (?, ?, ?, ?, ?, 0)",
-            [username, display_name, role, password_hash, records.utc_now()],
+            [username, display_name, role, password_hash, dbmod.utc_now()],
         )
         user_id = int(cur.lastrowid or 0)
         records.append_event(
@@ -321,7 +321,7 @@ def disable_user(db: sqlite_utils.Database, username: str, actor: str, reason: s
             admins = db.execute("SELECT count(*) FROM users WHERE role = 'admin' AND disabled_at IS NULL")
             if admins.fetchone()[0] <= 1:
                 raise Conflict("This is the last active administrator; make another admin first.")
-        now = records.utc_now()
+        now = dbmod.utc_now()
         db.execute("UPDATE users SET disabled_at = ?, session_generation = session_generation + 1 WHERE id = ?", [now, row["id"]])
         _end_sessions(db, row["id"], now)
         records.append_event(
@@ -337,7 +337,7 @@ def _store_password(db: sqlite_utils.Database, user_id: int, password_hash: str)
     db.execute(
         "UPDATE users SET password_hash = ?, session_generation = session_generation + 1 WHERE id = ?", [password_hash, user_id]
     )
-    _end_sessions(db, user_id, records.utc_now())
+    _end_sessions(db, user_id, dbmod.utc_now())
 
 
 def change_password(
@@ -567,7 +567,7 @@ def end_session(db: sqlite_utils.Database, token: Any, actor: str) -> None:
     with dbmod.write(db):
         cur = db.execute(
             "UPDATE web_sessions SET ended_at = ? WHERE token_hash = ? AND ended_at IS NULL",
-            [records.utc_now(), _token_hash(token)],
+            [dbmod.utc_now(), _token_hash(token)],
         )
         if cur.rowcount:
             records.append_event(db, actor, "account.signout")

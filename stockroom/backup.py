@@ -5,6 +5,8 @@ from __future__ import annotations
 import sqlite3
 from pathlib import Path
 
+from stockroom import db as dbmod
+from stockroom import schema
 from stockroom.schema import MIGRATIONS, SCHEMA_VERSION
 
 
@@ -83,11 +85,9 @@ def restore(source: str | Path, target: str | Path) -> int:
     finally:
         out.close()
         src.close()
-    from stockroom import db as dbmod
-
     conn = dbmod.connect(target)
     try:
-        dbmod.migrate(conn)  # an older backup is brought up to this version's schema
+        schema.migrate(conn)  # an older backup is brought up to this version's schema
     finally:
         conn.close()
     return version

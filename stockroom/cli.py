@@ -123,6 +123,7 @@ def open_database(path: str, *, must_exist: bool) -> sqlite_utils.Database:
     created: no folder, no file. Without it (init-db, serve) the file and its folder are created.
     """
     from stockroom import db as dbmod
+    from stockroom import schema
 
     target = Path(path)
     if must_exist:
@@ -139,7 +140,7 @@ def open_database(path: str, *, must_exist: bool) -> sqlite_utils.Database:
     except sqlite3.DatabaseError as exc:
         raise click.ClickException(f"cannot open {target} as a database ({exc})") from None
     try:
-        dbmod.migrate(conn)
+        schema.migrate(conn)
     except RuntimeError as exc:  # a schema newer than this stockroom
         conn.close()
         raise click.ClickException(str(exc)) from None
@@ -151,9 +152,9 @@ def open_database(path: str, *, must_exist: bool) -> sqlite_utils.Database:
 
 def _lab_today(timezone_name: str) -> dt.date:
     """Today's date in the lab's time zone (LAB_TIMEZONE, an IANA name)."""
-    from zoneinfo import ZoneInfo
+    from stockroom import db as dbmod
 
-    return dt.datetime.now(ZoneInfo(timezone_name)).date()
+    return dbmod.lab_today(timezone_name)
 
 
 def _settings_for(path: str) -> dict[str, Any]:
@@ -235,12 +236,12 @@ def main() -> None:
 @reports_errors
 def init_db(db_path: str | None) -> None:
     """Create the database, or bring its schema up to date."""
-    from stockroom import db as dbmod
+    from stockroom import schema
 
     path = working_database(db_path)
     conn = open_database(path, must_exist=False)
     try:
-        version = dbmod.schema_version(conn)
+        version = schema.schema_version(conn)
     finally:
         conn.close()
     click.echo(f"database {path} at schema version {version}")

@@ -1,17 +1,21 @@
-"""The SQLite database: one connection per request, pragmas, the write lock, and schema migrations."""
+"""The SQLite database: connections with pragmas, the per-thread pool, the write lock, queries, the clock.
+
+The lowest layer of the persistence stack: it imports nothing of stockroom. Migrations live one layer
+up, in stockroom.schema, and the application hands them to init_app.
+"""
 
 from __future__ import annotations
 
+import datetime as dt
 import sqlite3
 import threading
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
+from zoneinfo import ZoneInfo
 
 import sqlite_utils
-
-from stockroom.schema import MIGRATIONS, SCHEMA_VERSION
 
 # SQLite 3.40.x (Debian 12) has a known WAL-reset corruption bug when two connections write
 # concurrently (fixed upstream in 3.51.3). Every write in this process therefore goes through one
@@ -58,26 +62,22 @@ def write(db: sqlite_utils.Database) -> Iterator[sqlite_utils.Database]:
             db.conn.execute("COMMIT")
 
 
-def schema_version(db: sqlite_utils.Database) -> int:
-    """Number of stockroom migrations applied to this database."""
-    if not db["_sqlite_migrations"].exists():
-        return 0
-    row = db.execute("SELECT count(*) FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATIONS.name]).fetchone()
-    return int(row[0])
+def write_lock() -> threading.RLock:
+    """The process-wide write lock (stockroom.schema holds it while it migrates)."""
+    return _WRITE_LOCK
 
 
-def migrate(db: sqlite_utils.Database) -> int:
-    """Apply pending migrations under the write lock; return the schema version reached."""
-    with _WRITE_LOCK:
-        version = schema_version(db)
-        if version > SCHEMA_VERSION:
-            raise RuntimeError(
-                f"database schema version {version} is newer than this stockroom ({SCHEMA_VERSION}); "
-                "upgrade stockroom before opening it"
-            )
-        if version < SCHEMA_VERSION:
-            MIGRATIONS.apply(db)
-    return schema_version(db)
+def utc_now() -> str:
+    """Current UTC time as ISO 8601 with seconds and offset."""
+    return dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat()
+
+
+def lab_today(timezone_name: str, now: dt.datetime | None = None) -> dt.date:
+    """The lab's date (the calendar day in the IANA zone `timezone_name`) at `now` (an aware time; default: now)."""
+    moment = now if now is not None else dt.datetime.now(dt.UTC)
+    if moment.tzinfo is None:
+        raise ValueError("lab_today needs an aware time (with its UTC offset)")
+    return moment.astimezone(ZoneInfo(timezone_name)).date()
 
 
 def insert_row(db: sqlite_utils.Database, table: str, row: dict[str, Any]) -> int:
@@ -126,13 +126,13 @@ def _pooled(path: str) -> sqlite_utils.Database:
     return conn
 
 
-def init_app(app: Any) -> None:
-    """Attach per-request connection handling to a Flask app and bring its schema up to date."""
+def init_app(app: Any, prepare: Callable[[sqlite_utils.Database], object]) -> None:
+    """Attach per-request connection handling to a Flask app; `prepare` (the migration) runs once first."""
     from flask import g
 
     db = connect(app.config["DATABASE"])
     try:
-        migrate(db)
+        prepare(db)
     finally:
         db.close()
 

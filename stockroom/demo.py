@@ -8,7 +8,7 @@ import secrets
 from typing import Any
 
 from stockroom import db as dbmod
-from stockroom import records, settings, workflow
+from stockroom import records, schema, settings, workflow
 from stockroom.resources import resource_dir
 
 
@@ -31,7 +31,7 @@ def build_demo(path: str, today: dt.date | None = None, password: str | None = N
     config = settings.resolve({"DATABASE": path, "SECRET_KEY": "demo-build"})
     conn = dbmod.connect(path)
     try:
-        dbmod.migrate(conn)
+        schema.migrate(conn)
         lines = [scenario["title"]]
         lines += _demo_users(conn, scenario["users"], password)
         lots = {}

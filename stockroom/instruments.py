@@ -409,17 +409,14 @@ def register(
         row = {k: values.get(k) for k in INSTRUMENT_FIELDS}
         for k in ("description", "accuracy_class", "notes"):
             row[k] = row[k] or ""
-        row["recorded_at"] = records.utc_now()
+        row["recorded_at"] = dbmod.utc_now()
         row["recorded_by"] = actor
-        pk = db.table("instruments").insert(row).last_pk
-        assert pk is not None
-        iid = int(pk)
-        records.append_event(
+        iid = records.record_row(
             db,
-            actor,
-            "instrument.register",
-            entity="instruments",
-            entity_id=iid,
+            "instruments",
+            row,
+            actor=actor,
+            action_code="instrument.register",
             detail={
                 "code": row["code"],
                 "kind": row["kind"],
@@ -449,17 +446,14 @@ def record_calibration(db: sqlite_utils.Database, instrument_id: int, values: Ma
         ):
             raise Conflict(f"{inst.name} already has the calibration {row['certificate_ref']} of {row['calibrated_on']}")
         row["instrument_id"] = instrument_id
-        row["recorded_at"] = records.utc_now()
+        row["recorded_at"] = dbmod.utc_now()
         row["recorded_by"] = actor
-        pk = db.table("calibrations").insert(row).last_pk
-        assert pk is not None
-        cid = int(pk)
-        records.append_event(
+        cid = records.record_row(
             db,
-            actor,
-            "instrument.calibrate",
-            entity="calibrations",
-            entity_id=cid,
+            "calibrations",
+            row,
+            actor=actor,
+            action_code="instrument.calibrate",
             detail={
                 "instrument": inst.code,
                 "calibrated_on": row["calibrated_on"],
@@ -486,13 +480,10 @@ def link_run(
             if inst.kind != role:
                 raise InvalidInput([FieldError(f"{role}_id", f"{inst.code} is a {inst.kind}, not a {role}")])
             cal = inst.calibration_on(on)
-            db.table("run_instruments").insert(
-                {
-                    "run_id": run_id,
-                    "instrument_id": inst.id,
-                    "role": role,
-                    "calibration_id": cal.id if cal else None,
-                }
+            dbmod.insert_row(
+                db,
+                "run_instruments",
+                {"run_id": run_id, "instrument_id": inst.id, "role": role, "calibration_id": cal.id if cal else None},
             )
             detail[role] = inst.code
         records.append_event(db, actor, "run.instruments", entity="runs", entity_id=run_id, batch_id=batch_id, detail=detail)

@@ -22,7 +22,7 @@ import sqlite3
 import weakref
 from collections import defaultdict
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import sqlite_utils
@@ -377,23 +377,19 @@ def open_recall(
     if errors:
         raise InvalidInput(errors)
     with dbmod.write(db):
-        pk = (
-            db.table("recalls")
-            .insert(
-                {
-                    "subject_kind": kind,
-                    "subject_id": subject_id,
-                    "suspect_from": suspect_from.isoformat(),
-                    "opened_on": opened_on.isoformat(),
-                    "reason": reason.strip(),
-                    "recorded_at": records.utc_now(),
-                    "recorded_by": actor,
-                }
-            )
-            .last_pk
+        rid = dbmod.insert_row(
+            db,
+            "recalls",
+            {
+                "subject_kind": kind,
+                "subject_id": subject_id,
+                "suspect_from": suspect_from.isoformat(),
+                "opened_on": opened_on.isoformat(),
+                "reason": reason.strip(),
+                "recorded_at": dbmod.utc_now(),
+                "recorded_by": actor,
+            },
         )
-        assert pk is not None
-        rid = int(pk)
         recall = recall_by_id(db, rid)
         reached = traceability.downstream(read_graph(db), recall.suspect)
         records.append_event(
@@ -435,22 +431,18 @@ def clear_recall(
                 raise InvalidInput([FieldError("batch", "this recall does not reach that batch")])
             if any(c.batch_id == batch_id for c in recall.clearances):
                 raise Conflict(f"recall {recall_id} is already cleared for that batch")
-        pk = (
-            db.table("recall_clearances")
-            .insert(
-                {
-                    "recall_id": recall_id,
-                    "batch_id": batch_id,
-                    "cleared_on": cleared_on.isoformat(),
-                    "reason": reason.strip(),
-                    "recorded_at": records.utc_now(),
-                    "recorded_by": actor,
-                }
-            )
-            .last_pk
+        cid = dbmod.insert_row(
+            db,
+            "recall_clearances",
+            {
+                "recall_id": recall_id,
+                "batch_id": batch_id,
+                "cleared_on": cleared_on.isoformat(),
+                "reason": reason.strip(),
+                "recorded_at": dbmod.utc_now(),
+                "recorded_by": actor,
+            },
         )
-        assert pk is not None
-        cid = int(pk)
         records.append_event(
             db,
             actor,
@@ -473,7 +465,7 @@ _REVIEW_CACHE: weakref.WeakKeyDictionary[sqlite_utils.Database, tuple[int, dict[
 
 
 def review_facts(db: sqlite_utils.Database) -> dict[int, tuple[ReviewFact, ...]]:
-    """batch id -> the recalls reaching any of its releases, as policy.ReviewFact (records.facts_of adds them).
+    """batch id -> the recalls reaching any of its releases, as policy.ReviewFact (readmodel.facts_of adds them).
 
     One query when no recall is on record. Otherwise the answer is kept per connection until the next
     audit entry (every write makes one), so the many status look-ups of a page read the graph once.
@@ -610,6 +602,14 @@ class Impact:
         return tuple(b for b in self.batches if b.in_service_under_review)
 
 
+def _facts(db: sqlite_utils.Database, batch_ids: Sequence[int]) -> dict[int, Any]:
+    """The batches' recorded facts with their review facts (what readmodel.facts_of gives, read here
+    because the read model sits above this module)."""
+    facts = records.recorded_facts(db, batch_ids)
+    reviews = review_facts(db)
+    return {bid: replace(f, reviews=reviews.get(bid, ())) for bid, f in facts.items()}
+
+
 def _periods(facts: Any, release_id: int, start: dt.date, end: dt.date) -> tuple[Period, ...]:
     """Stretches of days in [start, end] on which release_in_force(facts, day) is this release."""
     out: list[Period] = []
@@ -649,7 +649,7 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
     reached = traceability.downstream(graph, recall.suspect)
     nodes = {k: graph.node(k) for k in reached}
     batch_ids = sorted({n.batch_id for n in nodes.values() if n.batch_id is not None})
-    facts = records.facts_of(db, batch_ids)
+    facts = _facts(db, batch_ids)
     batches = (
         {
             b["id"]: b
@@ -871,7 +871,7 @@ class BatchTrace:
 
 def batch_trace(db: sqlite_utils.Database, batch_id: int, on: dt.date) -> BatchTrace | None:
     """The chain of the batch's value as of `on`, or None when nothing was released by then."""
-    facts = records.batch_facts(db, batch_id)
+    facts = _facts(db, [batch_id])[batch_id]
     in_force_now = release_in_force(facts, on)
     in_force = in_force_now is not None
     made = [r for r in facts.releases if r.released_on <= on]

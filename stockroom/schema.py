@@ -1,13 +1,20 @@
 """Versioned schema migrations. A database is only ever created or upgraded by these, in order.
 
+Data migrations insert literal rows and never call application code: changing a default in the
+application later must not change what a new database starts with.
+
 Every record table is append-only: triggers refuse UPDATE and DELETE, so a correction can only be a
 new, attributed row (an amendment, a superseding release, a withdrawal) and the history stays whole.
 """
 
 from __future__ import annotations
 
+from typing import Any
+
 import sqlite_utils
 from sqlite_utils import Migrations
+
+from stockroom import db as dbmod
 
 MIGRATIONS = Migrations("stockroom")
 
@@ -254,11 +261,89 @@ def _initial(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
+# The starting reagent policies, as literal rows: a later change of policy.DEFAULT_POLICIES never
+# changes what a new database starts with (tests/test_db.py compares the two).
+_STARTING_POLICIES: tuple[dict[str, Any], ...] = (
+    {
+        "reagent": "HCl",
+        "nominal_molarities": "[0.1, 0.5, 1.0]",
+        "shelf_life_days": 365,
+        "recheck_interval_days": 90,
+        "tolerance_rel": 0.005,
+        "max_rsd": 0.002,
+        "min_replicates": 3,
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+        "reason": "starting policy",
+    },
+    {
+        "reagent": "H2SO4",
+        "nominal_molarities": "[0.05, 0.1, 0.5, 1.0]",
+        "shelf_life_days": 365,
+        "recheck_interval_days": 90,
+        "tolerance_rel": 0.005,
+        "max_rsd": 0.002,
+        "min_replicates": 3,
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+        "reason": "starting policy",
+    },
+    {
+        "reagent": "HNO3",
+        "nominal_molarities": "[0.1, 1.0]",
+        "shelf_life_days": 180,
+        "recheck_interval_days": 60,
+        "tolerance_rel": 0.005,
+        "max_rsd": 0.002,
+        "min_replicates": 3,
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+        "reason": "starting policy",
+    },
+    {
+        "reagent": "HClO4",
+        "nominal_molarities": "[0.1]",
+        "shelf_life_days": 365,
+        "recheck_interval_days": 90,
+        "tolerance_rel": 0.005,
+        "max_rsd": 0.002,
+        "min_replicates": 3,
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+        "reason": "starting policy",
+    },
+    {
+        "reagent": "NaOH",
+        "nominal_molarities": "[0.1, 0.5, 1.0]",
+        "shelf_life_days": 90,
+        "recheck_interval_days": 14,
+        "tolerance_rel": 0.005,
+        "max_rsd": 0.002,
+        "min_replicates": 3,
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+        "reason": "starting policy",
+    },
+    {
+        "reagent": "KOH",
+        "nominal_molarities": "[0.1, 0.5, 1.0]",
+        "shelf_life_days": 90,
+        "recheck_interval_days": 14,
+        "tolerance_rel": 0.005,
+        "max_rsd": 0.002,
+        "min_replicates": 3,
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+        "reason": "starting policy",
+    },
+)
+
+
 @MIGRATIONS(name="0002_starting_policies")
 def _starting_policies(db: sqlite_utils.Database) -> None:
-    from stockroom.records import seed_default_policies
-
-    seed_default_policies(db)
+    now = dbmod.utc_now()
+    for row in _STARTING_POLICIES:
+        db.table("reagent_policies").insert({**row, "recorded_at": now})
 
 
 # Accounts: a session generation per user (bumped when the user is disabled or the password changes,
@@ -324,35 +409,235 @@ _HAZARDS = [
 ]
 
 
+# The starting hazard classifications (typical values from memory, as each source note says), as
+# literal rows: editing hazards.DEFAULT_CLASSIFICATIONS later never changes a new database.
+_FROM_MEMORY = (
+    "Typical values from memory, not from one supplier: verify against the supplier's safety "
+    "data sheet and CLP Annex VI before use."
+)
+_STARTING_HAZARDS: tuple[dict[str, Any], ...] = (
+    {
+        "reagent": "NaOH",
+        "min_molarity": 0.0,
+        "max_molarity": 0.125,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290"]',
+        "precautionary_statements": '["P234", "P390"]',
+        "source_note": _FROM_MEMORY + " Below 0.5 % w/w (about 0.125 mol/L): many suppliers give H290 only.",
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "NaOH",
+        "min_molarity": 0.125,
+        "max_molarity": 0.5,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290", "H315", "H319"]',
+        "precautionary_statements": '["P234", "P280", "P302+P352", "P305+P351+P338", "P337+P313"]',
+        "source_note": _FROM_MEMORY
+        + (
+            " CLP Annex VI specific limits: Skin Irrit. 2 and Eye Irrit. 2 from 0.5 % to under 2 % w/w "
+            "(about 0.125 to 0.5 mol/L)."
+        ),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "NaOH",
+        "min_molarity": 0.5,
+        "max_molarity": None,
+        "signal_word": "Danger",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290", "H314"]',
+        "precautionary_statements": '["P234", "P280", "P303+P361+P353", "P305+P351+P338", "P310"]',
+        "source_note": _FROM_MEMORY + " CLP Annex VI: Skin Corr. 1B from 2 % w/w (about 0.5 mol/L), 1A from 5 %.",
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "KOH",
+        "min_molarity": 0.0,
+        "max_molarity": 0.085,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290"]',
+        "precautionary_statements": '["P234", "P390"]',
+        "source_note": _FROM_MEMORY + " Below 0.5 % w/w (about 0.09 mol/L): H290 only.",
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "KOH",
+        "min_molarity": 0.085,
+        "max_molarity": 0.36,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290", "H315", "H319"]',
+        "precautionary_statements": '["P234", "P280", "P302+P352", "P305+P351+P338", "P337+P313"]',
+        "source_note": _FROM_MEMORY
+        + (
+            " CLP Annex VI specific limits: Skin Irrit. 2 and Eye Irrit. 2 from 0.5 % to under 2 % w/w "
+            "(about 0.09 to 0.36 mol/L)."
+        ),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "KOH",
+        "min_molarity": 0.36,
+        "max_molarity": 3.0,
+        "signal_word": "Danger",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290", "H314"]',
+        "precautionary_statements": '["P234", "P280", "P303+P361+P353", "P305+P351+P338", "P310"]',
+        "source_note": _FROM_MEMORY
+        + (
+            " CLP Annex VI: Skin Corr. 1B from 2 % w/w (about 0.36 mol/L). Above about 3 mol/L acute "
+            "oral toxicity (H302) may apply: not entered, so no label prints there until an "
+            "administrator adds it."
+        ),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "HCl",
+        "min_molarity": 0.0,
+        "max_molarity": 2.85,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290"]',
+        "precautionary_statements": '["P234", "P390"]',
+        "source_note": _FROM_MEMORY
+        + (
+            " Below 10 % w/w (about 2.9 mol/L) no Annex VI health class; 0.1-1 mol/L solutions usually "
+            "H290 only, though some suppliers add H315/H319/H335 at 1 mol/L."
+        ),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "HCl",
+        "min_molarity": 2.85,
+        "max_molarity": 7.7,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05", "GHS07"]',
+        "hazard_statements": '["H290", "H315", "H319", "H335"]',
+        "precautionary_statements": '["P234", "P280", "P302+P352", "P305+P351+P338", "P337+P313", "P261"]',
+        "source_note": _FROM_MEMORY
+        + (" CLP Annex VI: Skin Irrit. 2, Eye Irrit. 2, STOT SE 3 from 10 % to under 25 % w/w (about 2.9 to 7.7 mol/L)."),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "HCl",
+        "min_molarity": 7.7,
+        "max_molarity": None,
+        "signal_word": "Danger",
+        "pictograms": '["GHS05", "GHS07"]',
+        "hazard_statements": '["H290", "H314", "H335"]',
+        "precautionary_statements": '["P234", "P280", "P303+P361+P353", "P305+P351+P338", "P310", "P261"]',
+        "source_note": _FROM_MEMORY
+        + (
+            " CLP Annex VI: Skin Corr. 1B from 25 % w/w (about 7.7 mol/L); STOT SE 3 from 10 %. "
+            "Concentrated acid about 37 % (12 mol/L)."
+        ),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "H2SO4",
+        "min_molarity": 0.0,
+        "max_molarity": 0.5,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290"]',
+        "precautionary_statements": '["P234", "P390"]',
+        "source_note": _FROM_MEMORY + " Below 5 % w/w (about 0.5 mol/L) no Annex VI health class; H290 only.",
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "H2SO4",
+        "min_molarity": 0.5,
+        "max_molarity": 1.65,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290", "H315", "H319"]',
+        "precautionary_statements": '["P234", "P280", "P302+P352", "P305+P351+P338", "P337+P313"]',
+        "source_note": _FROM_MEMORY
+        + (" CLP Annex VI specific limits: Skin Irrit. 2 and Eye Irrit. 2 from 5 % to under 15 % w/w (about 0.5 to 1.7 mol/L)."),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "H2SO4",
+        "min_molarity": 1.65,
+        "max_molarity": None,
+        "signal_word": "Danger",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290", "H314"]',
+        "precautionary_statements": '["P234", "P280", "P303+P361+P353", "P305+P351+P338", "P310"]',
+        "source_note": _FROM_MEMORY + " CLP Annex VI: Skin Corr. 1A from 15 % w/w (about 1.7 mol/L).",
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "HNO3",
+        "min_molarity": 0.0,
+        "max_molarity": 0.8,
+        "signal_word": "Warning",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290"]',
+        "precautionary_statements": '["P234", "P390"]',
+        "source_note": _FROM_MEMORY + " Below 5 % w/w (about 0.8 mol/L): H290 only.",
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "HNO3",
+        "min_molarity": 0.8,
+        "max_molarity": 10.0,
+        "signal_word": "Danger",
+        "pictograms": '["GHS05"]',
+        "hazard_statements": '["H290", "H314"]',
+        "precautionary_statements": '["P234", "P280", "P303+P361+P353", "P305+P351+P338", "P310"]',
+        "source_note": _FROM_MEMORY
+        + (
+            " CLP Annex VI: Skin Corr. 1B from 5 % w/w (about 0.8 mol/L), 1A from 20 %. Stops at 10 "
+            "mol/L: concentrated nitric acid is also an oxidiser (H272, flame over circle) and toxic by"
+            " inhalation; enter that band from its SDS before labelling it."
+        ),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+)
+
+
 @MIGRATIONS(name="0005_hazards")
 def _hazards(db: sqlite_utils.Database) -> None:
-    import json
-
-    from stockroom.hazards import DEFAULT_CLASSIFICATIONS
-    from stockroom.records import utc_now
-
-    now = utc_now()
+    now = dbmod.utc_now()
     for statement in _HAZARDS:
         db.execute(statement)
     for statement in _append_only_triggers(("hazard_classifications",)):
         db.execute(statement)
-    for c in DEFAULT_CLASSIFICATIONS:
-        db.table("hazard_classifications").insert(
-            {
-                "reagent": c.reagent,
-                "min_molarity": c.min_molarity,
-                "max_molarity": c.max_molarity,
-                "signal_word": c.signal_word,
-                "pictograms": json.dumps(list(c.pictograms)),
-                "hazard_statements": json.dumps(list(c.hazard_statements)),
-                "precautionary_statements": json.dumps(list(c.precautionary_statements)),
-                "source_note": c.source_note,
-                "reason": "starting classification",
-                "effective_from": c.effective_from.isoformat(),
-                "recorded_at": now,
-                "recorded_by": "system",
-            }
-        )
+    for row in _STARTING_HAZARDS:
+        db.table("hazard_classifications").insert({**row, "recorded_at": now})
 
 
 # Class-data corrections: each time an instructor recomputes a class's titration results with the
@@ -499,3 +784,25 @@ def _instruments_recalls(db: sqlite_utils.Database) -> None:
 
 
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
+
+
+def schema_version(db: sqlite_utils.Database) -> int:
+    """Number of stockroom migrations applied to this database."""
+    if not db["_sqlite_migrations"].exists():
+        return 0
+    row = db.execute("SELECT count(*) FROM _sqlite_migrations WHERE migration_set = ?", [MIGRATIONS.name]).fetchone()
+    return int(row[0])
+
+
+def migrate(db: sqlite_utils.Database) -> int:
+    """Apply pending migrations under the write lock; return the schema version reached."""
+    with dbmod.write_lock():
+        version = schema_version(db)
+        if version > SCHEMA_VERSION:
+            raise RuntimeError(
+                f"database schema version {version} is newer than this stockroom ({SCHEMA_VERSION}); "
+                "upgrade stockroom before opening it"
+            )
+        if version < SCHEMA_VERSION:
+            MIGRATIONS.apply(db)
+    return schema_version(db)

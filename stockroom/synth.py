@@ -13,7 +13,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from stockroom import chemistry, records, settings, workflow
+from stockroom import chemistry, records, schema, settings, workflow
 from stockroom import db as dbmod
 
 SYNTH_USERS = ("synth-staff-1", "synth-staff-2", "synth-staff-3")
@@ -88,7 +88,7 @@ def build(
     # Fewer Monte Carlo draws keep the build quick; GUM values, which are what is released, are unaffected.
     config = settings.resolve({"DATABASE": path, "SECRET_KEY": "synth", "MONTE_CARLO_DRAWS": 2000})
     conn = dbmod.connect(path)
-    dbmod.migrate(conn)
+    schema.migrate(conn)
     weights = [r.weight for r in RECIPES]
     with dbmod.write(conn):
         lots: dict[tuple[str, int], dict[str, Any]] = {}

@@ -41,7 +41,7 @@ def create(db: sqlite_utils.Database, user_id: int, username: str, label: str) -
         )
     secret = PREFIX + secrets.token_urlsafe(32)
     with dbmod.write(db):
-        now = records.utc_now()
+        now = dbmod.utc_now()
         token_id = dbmod.insert_row(
             db,
             "api_tokens",
@@ -78,7 +78,7 @@ def revoke(db: sqlite_utils.Database, token_id: int, user_id: int, username: str
         if rows[0]["rid"] is not None:
             raise Conflict("that token is already revoked")
         dbmod.insert_row(
-            db, "api_token_revocations", {"token_id": token_id, "revoked_at": records.utc_now(), "revoked_by": username}
+            db, "api_token_revocations", {"token_id": token_id, "revoked_at": dbmod.utc_now(), "revoked_by": username}
         )
         records.append_event(db, username, "token.revoke", entity="api_tokens", entity_id=token_id)
 

@@ -17,7 +17,7 @@ from typing import Any
 
 import sqlite_utils
 
-from stockroom import chemistry, records, standardization, stats
+from stockroom import chemistry, readmodel, records, standardization, stats
 from stockroom import db as dbmod
 from stockroom import instruments as inst_mod
 from stockroom.errors import Conflict, FieldError, InvalidInput
@@ -238,7 +238,7 @@ def record_primary_run(
 
 def reference_in_force(db: sqlite_utils.Database, reference_batch: Mapping[str, Any], on: dt.date):
     """The reference batch's release in force on `on`; Conflict-free InvalidInput when it has none."""
-    release = release_in_force(records.batch_facts(db, reference_batch["id"]), on)
+    release = release_in_force(readmodel.batch_facts(db, reference_batch["id"]), on)
     if release is None:
         raise InvalidInput(
             [
@@ -310,7 +310,7 @@ def recompute(
         lot = records.lot_by_id(db, run["standard_lot_id"])
         return compute_primary(config, batch, lot, run["replicates"], excluded, policy, run["burette_capacity_ml"], figures)
     ref_batch = records.batch_by_id(db, run["reference_batch_id"])
-    ref = next(r for r in records.batch_facts(db, ref_batch["id"]).releases if r.id == run["reference_release_id"])
+    ref = next(r for r in readmodel.batch_facts(db, ref_batch["id"]).releases if r.id == run["reference_release_id"])
     return compute_secondary(
         config, batch, ref_batch, ref.molarity, ref.u, run["replicates"], excluded, policy, run["burette_capacity_ml"], figures
     )

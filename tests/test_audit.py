@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import ast
 import datetime as dt
+import fnmatch
 import sqlite3
+from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -129,3 +132,75 @@ def test_a_correction_keeps_the_original_and_shows_before_and_after(app, signed_
     assert "<del>20 L carboy</del> → <ins>10 L carboy</ins>" in trail
     conn.close()
     assert signed_in_client("instructor").post(url, data={}).status_code in (400, 403)
+
+
+# ---------------------------------------------------------------- the action registry
+
+PACKAGE = Path(__file__).resolve().parents[1] / "stockroom"
+
+
+def _action_codes_in_source() -> list[tuple[str, str]]:
+    """(file, code or f-string pattern) of every action passed to append_event or record_row in stockroom."""
+    out = []
+    for path in sorted(PACKAGE.rglob("*.py")):
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if not isinstance(node, ast.Call):
+                continue
+            name = node.func.attr if isinstance(node.func, ast.Attribute) else getattr(node.func, "id", "")
+            if name == "append_event":
+                arg = node.args[2] if len(node.args) > 2 else next(k.value for k in node.keywords if k.arg == "action_code")
+            elif name == "record_row":
+                arg = next(k.value for k in node.keywords if k.arg == "action_code")
+            else:
+                continue
+            if isinstance(arg, ast.Name) and path.parent.name == "records" and path.name == "audit.py":
+                continue  # record_row passes its own argument on, checked by the registry before it writes
+            if isinstance(arg, ast.Constant):
+                out.append((path.name, arg.value))
+            elif isinstance(arg, ast.JoinedStr):
+                # f"run.record.{purpose}": the literal parts, with a wildcard for each value
+                out.append((path.name, "".join(v.value if isinstance(v, ast.Constant) else "*" for v in arg.values)))
+            else:
+                out.append((path.name, f"<not a literal: {ast.unparse(arg)}>"))
+    return out
+
+
+def test_every_action_passed_to_append_event_is_registered_with_a_label():
+    found = _action_codes_in_source()
+    assert len(found) >= 25  # the scan really sees the callers (accounts, records, instruments, recall...)
+    for file, code in found:
+        matching = [a for a in records.ACTIONS.values() if fnmatch.fnmatchcase(a.code, code)]
+        assert matching, f"{file}: audit action {code!r} is not registered in stockroom.records.audit"
+        assert all(a.label.strip() and a.label != a.code for a in matching), code
+
+
+def test_append_event_refuses_an_unregistered_action(database):
+    with pytest.raises(records.UnregisteredAction, match="batch.destroy"):
+        records.append_event(database, "tester", "batch.destroy")
+    assert database.execute("SELECT count(*) FROM events").fetchone()[0] == 0
+
+
+def test_record_row_refuses_an_action_registered_for_another_table(database):
+    with pytest.raises(records.UnregisteredAction, match="withdrawals"):
+        records.record_row(
+            database,
+            "withdrawals",
+            {"batch_id": 1, "withdrawn_on": "2026-01-01", "reason": "x", "recorded_at": "t", "recorded_by": "a"},
+            actor="a",
+            action_code="batch.register",
+        )
+    assert database.execute("SELECT count(*) FROM withdrawals").fetchone()[0] == 0
+
+
+def test_the_audit_page_words_come_from_the_registry():
+    from stockroom.web.formatting import action_label
+
+    assert action_label("batch.release") == records.ACTIONS["batch.release"].label == "released a batch"
+    assert action_label("no.such.code") == "no.such.code"  # an old, unknown code reads as it is
+
+
+def test_every_table_checked_for_unaudited_rows_exists(database):
+    tables = set(database.table_names())
+    for a in records.ACTIONS.values():
+        if a.records:
+            assert a.records in tables, a.code

@@ -9,7 +9,7 @@ import threading
 import pytest
 from click.testing import CliRunner
 
-from stockroom import backup, records
+from stockroom import backup, records, schema
 from stockroom import db as dbmod
 from stockroom.cli import main
 from stockroom.demo import build_demo
@@ -43,14 +43,14 @@ def test_round_trip_keeps_every_table(tmp_path):
 def test_backup_while_writing_is_consistent(tmp_path):
     live = tmp_path / "busy.db"
     conn = dbmod.connect(live)
-    dbmod.migrate(conn)
+    schema.migrate(conn)
     stop = threading.Event()
 
     def write():
         c = dbmod.connect(live)
         while not stop.is_set():
             with dbmod.write(c):
-                records.append_event(c, "writer", "test.write")
+                records.append_event(c, "writer", "account.signout")
         c.close()
 
     t = threading.Thread(target=write)

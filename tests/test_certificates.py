@@ -10,7 +10,7 @@ import pypdf
 import pytest
 from click.testing import CliRunner
 
-from stockroom import records, workflow
+from stockroom import readmodel, records, workflow
 from stockroom.formatting import molarity as format_molarity
 from stockroom.pdf import certificates
 
@@ -151,7 +151,7 @@ def test_a_superseded_release_says_so_at_the_top(world):
     run_id, _ = workflow.record_primary_run(db, world["config"], world["naoh"], world["lot"], meta, reps, "setup")
     second = workflow.accept(db, run_id, "setup")
     old = flat(text_of(certificates.build_certificate(certificates.certificate_data(db, first, lab_today()))))
-    new_release = records.batch_history(db, world["naoh"]["id"])["releases"][-1]
+    new_release = readmodel.batch_history(db, world["naoh"]["id"])["releases"][-1]
     assert f"SUPERSEDED: release {second} of {new_release['released_on']}" in old
     assert format_molarity(new_release["molarity"], new_release["expanded_u"], new_release["k"]) in old
     current = certificates.certificate_data_for_batch(db, world["naoh"]["code"], lab_today())
@@ -192,7 +192,7 @@ def test_a_secondary_standardization_shows_the_traceability_chain(world):
     data = certificates.certificate_data(db, release_id, lab_today())
     assert [step["batch"]["code"] for step in data["chain"]] == [world["naoh"]["code"]]
     text = flat(text_of(certificates.build_certificate(data)))
-    ref = records.batch_history(db, world["naoh"]["id"])["releases"][0]
+    ref = readmodel.batch_history(db, world["naoh"]["id"])["releases"][0]
     assert "Secondary standardization" in text
     assert world["naoh"]["code"] in text and f"release {ref['id']} of {ref['released_on']}" in text
     assert format_molarity(ref["molarity"], ref["expanded_u"], ref["k"]) in text

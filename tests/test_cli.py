@@ -13,6 +13,7 @@ import pytest
 from click.testing import CliRunner
 
 from stockroom import db as dbmod
+from stockroom import schema
 from stockroom.cli import main
 from stockroom.schema import SCHEMA_VERSION
 
@@ -194,7 +195,7 @@ def test_init_db_creates_current_schema(tmp_path):
     result = CliRunner().invoke(main, ["init-db", "--db", str(path)])
     assert result.exit_code == 0, result.output
     assert f"schema version {SCHEMA_VERSION}" in result.output
-    assert dbmod.schema_version(dbmod.connect(path)) == SCHEMA_VERSION
+    assert schema.schema_version(dbmod.connect(path)) == SCHEMA_VERSION
 
 
 def test_demo_builds_a_fresh_file_and_refuses_an_existing_one(tmp_path):

@@ -2,13 +2,18 @@
 
 from __future__ import annotations
 
+import datetime as dt
+import json
 import sqlite3
 import threading
+from pathlib import Path
 
 import pytest
 
 from stockroom import db as dbmod
-from stockroom import records
+from stockroom import records, schema
+from stockroom.hazards import DEFAULT_CLASSIFICATIONS
+from stockroom.policy import DEFAULT_POLICIES
 from stockroom.schema import APPEND_ONLY, SCHEMA_VERSION
 
 
@@ -22,9 +27,9 @@ def test_pragmas_on_every_connection(tmp_path):
 
 def test_migrations_create_schema_once_and_are_idempotent(tmp_path):
     conn = dbmod.connect(tmp_path / "a.db")
-    assert dbmod.schema_version(conn) == 0
-    assert dbmod.migrate(conn) == SCHEMA_VERSION
-    assert dbmod.migrate(conn) == SCHEMA_VERSION
+    assert schema.schema_version(conn) == 0
+    assert schema.migrate(conn) == SCHEMA_VERSION
+    assert schema.migrate(conn) == SCHEMA_VERSION
     tables = set(conn.table_names())
     assert {"batches", "runs", "replicates", "releases", "events", "users", "reagent_policies"} <= tables
     # Starting policy written once, by its migration.
@@ -34,11 +39,11 @@ def test_migrations_create_schema_once_and_are_idempotent(tmp_path):
 
 def test_newer_schema_refused(tmp_path):
     conn = dbmod.connect(tmp_path / "a.db")
-    dbmod.migrate(conn)
+    schema.migrate(conn)
     with dbmod.write(conn):
         conn["_sqlite_migrations"].insert({"migration_set": "stockroom", "name": "9999_future", "applied_at": "2099-01-01"})
     with pytest.raises(RuntimeError, match="newer"):
-        dbmod.migrate(conn)
+        schema.migrate(conn)
 
 
 @pytest.mark.parametrize("table", APPEND_ONLY)
@@ -49,7 +54,7 @@ def test_every_record_table_has_append_only_triggers(database, table):
 
 def test_append_only_triggers_refuse_changes(database):
     with dbmod.write(database):
-        records.append_event(database, "tester", "test.write")
+        records.append_event(database, "tester", "account.signout")
     for sql in (
         "UPDATE events SET actor = 'x'",
         "DELETE FROM events",
@@ -65,14 +70,14 @@ def test_write_rolls_back_whole_block_on_error(database):
     before = database.execute("SELECT count(*) FROM events").fetchone()[0]
     with pytest.raises(ZeroDivisionError):
         with dbmod.write(database):
-            records.append_event(database, "tester", "test.action")
+            records.append_event(database, "tester", "account.signout")
             1 / 0  # noqa: B018
     assert database.execute("SELECT count(*) FROM events").fetchone()[0] == before
 
 
 def test_concurrent_writers_are_serialized(tmp_path):
     path = tmp_path / "c.db"
-    dbmod.migrate(dbmod.connect(path))
+    schema.migrate(dbmod.connect(path))
     errors = []
 
     def work(i):
@@ -80,7 +85,7 @@ def test_concurrent_writers_are_serialized(tmp_path):
         try:
             for j in range(25):
                 with dbmod.write(conn):
-                    records.append_event(conn, f"w{i}", "test.write", detail={"j": j})
+                    records.append_event(conn, f"w{i}", "account.signout", detail={"j": j})
         except Exception as exc:  # pragma: no cover - reported below
             errors.append(exc)
         finally:
@@ -101,12 +106,93 @@ def test_concurrent_writers_are_serialized(tmp_path):
 def test_audit_chain_detects_edit_behind_the_back(tmp_path):
     path = tmp_path / "h.db"
     conn = dbmod.connect(path)
-    dbmod.migrate(conn)
+    schema.migrate(conn)
     with dbmod.write(conn):
         for i in range(5):
-            records.append_event(conn, "tester", "test.write", detail={"i": i})
+            records.append_event(conn, "tester", "account.signout", detail={"i": i})
     assert records.verify_chain(conn) is None
     # Bypass the triggers the way someone with a raw SQLite shell would.
     conn.execute("DROP TRIGGER events_no_update")
     conn.execute("UPDATE events SET actor = 'mallory' WHERE id = 3")
     assert records.verify_chain(conn) == 3
+
+
+# ---------------------------------------------------------------- seeded rows are literal data
+
+SEEDED = Path(__file__).parent / "data" / "seeded_rows.json"
+
+
+def _seeded_rows(conn) -> dict[str, list[dict]]:
+    """Every row a fresh database holds, per table, without the time it was written."""
+    out: dict[str, list[dict]] = {}
+    for table in conn.table_names():
+        if table.startswith(("_", "sqlite")):
+            continue
+        rows = dbmod.query(conn, f"SELECT * FROM {table} ORDER BY id")
+        if rows:
+            for r in rows:
+                r.pop("recorded_at", None)
+            out[table] = rows
+    return out
+
+
+def test_a_fresh_database_has_exactly_the_rows_the_migrations_wrote_before_they_became_literal(tmp_path):
+    # tests/data/seeded_rows.json was captured from a database built by the migrations as they were
+    # when they still called the application's defaults (the commit before schema.py held literals).
+    conn = dbmod.connect(tmp_path / "a.db")
+    schema.migrate(conn)
+    assert _seeded_rows(conn) == json.loads(SEEDED.read_text(encoding="utf-8"))
+
+
+def test_the_seeded_rows_still_agree_with_the_applications_defaults(tmp_path):
+    # A cross-check, not a rule: the literal rows and policy/hazards defaults were equal when frozen.
+    # When a default changes on purpose, a new migration adds the row and this comparison is updated.
+    conn = dbmod.connect(tmp_path / "a.db")
+    schema.migrate(conn)
+    policies = dbmod.query(conn, "SELECT * FROM reagent_policies ORDER BY id")
+    assert [
+        (r["reagent"], tuple(json.loads(r["nominal_molarities"])), r["shelf_life_days"], r["recheck_interval_days"])
+        for r in policies
+    ] == [(p.reagent, p.nominal_molarities, p.shelf_life_days, p.recheck_interval_days) for p in DEFAULT_POLICIES]
+    assert [(r["tolerance_rel"], r["max_rsd"], r["min_replicates"]) for r in policies] == [
+        (p.tolerance_rel, p.max_rsd, p.min_replicates) for p in DEFAULT_POLICIES
+    ]
+    rows = dbmod.query(conn, "SELECT * FROM hazard_classifications ORDER BY id")
+    assert [
+        (
+            r["reagent"],
+            r["min_molarity"],
+            r["max_molarity"],
+            r["signal_word"],
+            tuple(json.loads(r["pictograms"])),
+            tuple(json.loads(r["hazard_statements"])),
+            tuple(json.loads(r["precautionary_statements"])),
+            r["source_note"],
+            r["effective_from"],
+        )
+        for r in rows
+    ] == [
+        (
+            c.reagent,
+            c.min_molarity,
+            c.max_molarity,
+            c.signal_word,
+            c.pictograms,
+            c.hazard_statements,
+            c.precautionary_statements,
+            c.source_note,
+            c.effective_from.isoformat(),
+        )
+        for c in DEFAULT_CLASSIFICATIONS
+    ]
+
+
+def test_lab_today_turns_at_the_labs_midnight_not_utcs():
+    # 2026-03-01 23:30 UTC is already 2 March in Auckland (UTC+13 in March, NZDT) and still 1 March
+    # in New York (UTC-5, EST): the IANA rules, from the zoneinfo database.
+    moment = dt.datetime(2026, 3, 1, 23, 30, tzinfo=dt.UTC)
+    assert dbmod.lab_today("Pacific/Auckland", moment) == dt.date(2026, 3, 2)
+    assert dbmod.lab_today("America/New_York", moment) == dt.date(2026, 3, 1)
+    assert dbmod.lab_today("UTC", moment) == dt.date(2026, 3, 1)
+    with pytest.raises(ValueError, match="aware"):
+        dbmod.lab_today("UTC", dt.datetime(2026, 3, 1, 12, 0))

@@ -16,7 +16,7 @@ import pytest
 from formposts import count, error_beside, post
 
 from stockroom import db as dbmod
-from stockroom import policy, records
+from stockroom import policy, readmodel, records
 
 M_HCL = periodictable.formula("HCl").mass  # g/mol, periodictable (CIAAW)
 M_NAOH = periodictable.formula("NaOH").mass
@@ -90,7 +90,7 @@ def test_register_batch_gives_readable_id_awaiting_and_an_audit_event(app, staff
     assert batch["recorded_by"] == "staff-user" and batch["prepared_by"] == "A. Tester"
     conn = dbmod.connect(app.config["DATABASE"])
     try:
-        report = policy.status_on(records.batch_facts(conn, batch["id"]), today())
+        report = policy.status_on(readmodel.batch_facts(conn, batch["id"]), today())
     finally:
         conn.close()
     assert report.status is policy.Status.AWAITING

@@ -370,7 +370,7 @@ def test_class_data_correction_is_recorded_and_downloadable(demo_app):
         assert row["upload_sha256"] == hashlib.sha256(CLASS.encode()).hexdigest()
         with pytest.raises(Exception, match="append-only"):
             conn.execute("UPDATE class_corrections SET row_count = 3 WHERE id = ?", [row["id"]])
-        from stockroom.web.labday import corrections_with_release
+        from stockroom.records import corrections_with_release
 
         assert [x["id"] for x in corrections_with_release(conn, release["id"])] == [row["id"]]
     finally:

@@ -25,7 +25,7 @@ from reportlab.lib.units import mm
 from reportlab.pdfbase.pdfmetrics import stringWidth
 
 from stockroom import db as dbmod
-from stockroom import records, workflow
+from stockroom import readmodel, records, workflow
 from stockroom.formatting import molarity as format_molarity
 from stockroom.pdf import labels, layouts
 from stockroom.pdf.labels import LabelOverflow, build_labels, fit_report, label_content, with_content
@@ -246,7 +246,7 @@ def test_a_released_batch_label_carries_the_certified_value_dates_and_hazard(wor
     content = label_content(world["db"], world["config"], world["naoh"], lab_today())
     pdf = build_labels(content, layouts.get("carboy-a5"), copies=1, first_serial=42)
     text = pdf_text(pdf)
-    rel = records.batch_history(world["db"], world["naoh"]["id"])["releases"][0]
+    rel = readmodel.batch_history(world["db"], world["naoh"]["id"])["releases"][0]
     certified = format_molarity(0.10214, 0.00020, 2.0)
     assert certified == "0.10214 ± 0.00020 mol/L (k = 2)"
     assert f"{certified} at 20 °C" in text
@@ -517,9 +517,9 @@ def test_a_print_is_recorded_with_its_serials_and_the_pdf_comes_back(app, world,
 
 def test_print_serials_are_unique_across_the_database(world):
     db = world["db"]
-    labels.record_print(db, world["naoh"]["id"], world["release_id"], "bottle", 5, "x", "setup")
+    records.record_print(db, world["naoh"]["id"], world["release_id"], "bottle", 5, "x", "setup")
     other = make_batch(db, "HCl", 0.1)
-    second = labels.record_print(db, other["id"], None, "bottle", 2, "y", "setup")
+    second = records.record_print(db, other["id"], None, "bottle", 2, "y", "setup")
     assert (second["serial_first"], second["serial_last"]) == (6, 7)
     base = {
         "batch_id": other["id"],

@@ -12,8 +12,8 @@ import pytest
 from pypdf import PdfReader
 
 from stockroom import db as dbmod
+from stockroom import readmodel, records, workflow
 from stockroom import recall as recall_mod
-from stockroom import records, workflow
 from stockroom.policy import status_on
 
 TODAY = dt.date.today()
@@ -133,7 +133,7 @@ def world(app, conn):
 
 
 def flags_of(conn, batch_id):
-    return [f for f in status_on(records.batch_facts(conn, batch_id), TODAY).flags if f.kind.value == "under_review"]
+    return [f for f in status_on(readmodel.batch_facts(conn, batch_id), TODAY).flags if f.kind.value == "under_review"]
 
 
 # ---------------------------------------------------------------------------------------------- what is reached
@@ -210,7 +210,7 @@ def test_under_review_shows_on_dashboard_batch_page_and_lab_day_json(world, clie
     # A past lab day before the recall was recorded shows no flag: as things stood then.
     body = client.get(f"/api/v1/lab-day?date={iso(-1)}&titrant=NaOH").get_json()
     assert all("under_review" not in [f["kind"] for f in b["flags"]] for b in body["batches"])
-    views = {v.batch["code"]: v for v in records.batch_views(world.conn, TODAY)}
+    views = {v.batch["code"]: v for v in readmodel.batch_views(world.conn, TODAY)}
     assert views[world.code("B")].report.under_review is not None
     assert any("under review since" in r for r in views[world.code("B")].report.remarks)
 

@@ -23,7 +23,7 @@ import urllib.request
 
 import pytest
 
-from stockroom import accounts, records
+from stockroom import accounts, records, schema
 from stockroom import db as dbmod
 
 pytestmark = pytest.mark.slow
@@ -39,7 +39,7 @@ def _free_port() -> int:
 
 def _prepare(path, writers: int):
     conn = dbmod.connect(path)
-    dbmod.migrate(conn)
+    schema.migrate(conn)
     accounts.HASH_METHOD = "pbkdf2:sha256:1000"
     for i in range(writers):
         accounts.create_user(conn, f"writer{i}", f"Writer {i}", "staff", PASSWORD, "test")

@@ -35,7 +35,7 @@ from reportlab.platypus import (
     TableStyle,
 )
 
-from stockroom import chemistry, records
+from stockroom import chemistry, readmodel, records
 from stockroom import db as dbmod
 from stockroom.errors import NotFound
 from stockroom.formatting import molarity as format_molarity
@@ -116,7 +116,7 @@ def certificate_data(db: sqlite_utils.Database, release_id: int, on: dt.date) ->
     run = records.run_by_id(db, release["run_id"])
     lot = records.lot_by_id(db, run["standard_lot_id"]) if run["standard_lot_id"] else None
     later = dbmod.query(db, "SELECT * FROM releases WHERE supersedes_id = ? ORDER BY id LIMIT 1", [release_id])
-    facts = records.batch_facts(db, batch["id"])
+    facts = readmodel.batch_facts(db, batch["id"])
     fact = next((r for r in facts.releases if r.id == release_id), None)
     return {
         "release": release,
@@ -141,7 +141,7 @@ def certificate_data_for_batch(db: sqlite_utils.Database, code: str, on: dt.date
     from stockroom.policy import latest_release, release_in_force
 
     batch = records.batch_by_code(db, code)
-    facts = records.batch_facts(db, batch["id"])
+    facts = readmodel.batch_facts(db, batch["id"])
     release = release_in_force(facts, on) or latest_release(facts, on)
     if release is None:
         raise NotFound(f"batch {code} has not been released, so it has no certificate of standardization yet")

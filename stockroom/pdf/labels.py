@@ -11,8 +11,8 @@ names the field, and nothing prints: a label must not lose a hazard statement to
 precautionary statements alone fall back to their codes (with a pointer to the safety data sheet)
 before that happens.
 
-The second half of the module is the record side: the hazard classifications the label prints from
-and the print register (table label_prints), with serials unique across the database.
+The second half gathers what a label says from the records (the hazard classifications come from
+records.hazard_data) and prints it, taking its serials from the print register (records.label_prints).
 """
 
 from __future__ import annotations
@@ -20,7 +20,6 @@ from __future__ import annotations
 import datetime as dt
 import functools
 import io
-import json
 import math
 import unicodedata
 from collections.abc import Mapping, Sequence
@@ -37,11 +36,11 @@ from reportlab.lib.units import mm
 from reportlab.pdfbase.pdfmetrics import getAscentDescent, stringWidth
 from reportlab.pdfgen.canvas import Canvas
 
-from stockroom import chemistry, hazards, records
+from stockroom import chemistry, hazards, readmodel, records
 from stockroom import db as dbmod
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
 from stockroom.formatting import molarity as format_molarity
-from stockroom.hazards import Classification, LabelElements
+from stockroom.hazards import LabelElements
 from stockroom.pdf import ghs
 from stockroom.pdf.layouts import Field, Layout
 from stockroom.policy import Status, release_in_force, status_on
@@ -524,88 +523,9 @@ def build_labels(content: LabelContent, layout: Layout, copies: int, start: int 
 # ---------------------------------------------------------------- the records behind a label
 
 
-def _classification_from_row(r: Mapping[str, Any]) -> Classification:
-    return Classification(
-        reagent=r["reagent"],
-        min_molarity=r["min_molarity"],
-        max_molarity=r["max_molarity"],
-        signal_word=r["signal_word"],
-        pictograms=tuple(json.loads(r["pictograms"])),
-        hazard_statements=tuple(json.loads(r["hazard_statements"])),
-        precautionary_statements=tuple(json.loads(r["precautionary_statements"])),
-        source_note=r["source_note"],
-        effective_from=dt.date.fromisoformat(r["effective_from"]),
-        id=r["id"],
-    )
-
-
-def _insert(db: sqlite_utils.Database, table: str, row: Mapping[str, Any]) -> int:
-    """Insert one row and return its id."""
-    pk = db.table(table).insert(dict(row)).last_pk
-    assert pk is not None
-    return int(pk)
-
-
-def classifications(db: sqlite_utils.Database) -> list[Classification]:
-    """Every hazard classification row ever recorded, oldest first."""
-    return [_classification_from_row(r) for r in dbmod.query(db, "SELECT * FROM hazard_classifications ORDER BY id")]
-
-
-def classification_rows(db: sqlite_utils.Database) -> list[dict[str, Any]]:
-    """The raw rows (with reason, recorded_at, recorded_by), newest first, for the admin page's history."""
-    rows = dbmod.query(db, "SELECT * FROM hazard_classifications ORDER BY id DESC")
-    for r in rows:
-        for key in ("pictograms", "hazard_statements", "precautionary_statements"):
-            r[key] = json.loads(r[key])
-    return rows
-
-
-def record_classification(db: sqlite_utils.Database, c: Classification, reason: str, actor: str) -> int:
-    """Append a classification row (already checked with hazards.check) and its audit event; return its id."""
-    if not reason.strip():
-        raise InvalidInput([FieldError("reason", "give the reason for this classification")])
-    with dbmod.write(db):
-        row_id = _insert(
-            db,
-            "hazard_classifications",
-            {
-                "reagent": c.reagent,
-                "min_molarity": c.min_molarity,
-                "max_molarity": c.max_molarity,
-                "signal_word": c.signal_word,
-                "pictograms": json.dumps(list(c.pictograms)),
-                "hazard_statements": json.dumps(list(c.hazard_statements)),
-                "precautionary_statements": json.dumps(list(c.precautionary_statements)),
-                "source_note": c.source_note,
-                "reason": reason.strip(),
-                "effective_from": c.effective_from.isoformat(),
-                "recorded_at": records.utc_now(),
-                "recorded_by": actor,
-            },
-        )
-        records.append_event(
-            db,
-            actor,
-            "hazard.classify",
-            entity="hazard_classifications",
-            entity_id=row_id,
-            reason=reason.strip(),
-            detail={
-                "reagent": c.reagent,
-                "band": c.band_text,
-                "signal_word": c.signal_word,
-                "pictograms": list(c.pictograms),
-                "H": list(c.hazard_statements),
-                "P": list(c.precautionary_statements),
-                "effective_from": c.effective_from.isoformat(),
-            },
-        )
-    return row_id
-
-
 def hazard_for(db: sqlite_utils.Database, reagent: str, molarity: float, on: dt.date) -> LabelElements:
     """The label elements of `reagent` at `molarity` (mol/L) on `on`; Conflict when none is recorded."""
-    found = hazards.pick(classifications(db), reagent, molarity, on)
+    found = hazards.pick(records.classifications(db), reagent, molarity, on)
     if found is None:
         raise Conflict(
             f"no hazard classification is recorded for {reagent} at {molarity:g} mol/L, so no label "
@@ -617,7 +537,7 @@ def hazard_for(db: sqlite_utils.Database, reagent: str, molarity: float, on: dt.
 
 def label_content(db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], on: dt.date) -> LabelContent:
     """What the labels of `batch` (a batches row) say when printed on `on` (the lab's date)."""
-    facts = records.batch_facts(db, batch["id"])
+    facts = readmodel.batch_facts(db, batch["id"])
     report = status_on(facts, on)
     fact = release_in_force(facts, on)
     titrant = chemistry.titrant(batch["reagent"])
@@ -656,49 +576,6 @@ def label_content(db: sqlite_utils.Database, config: Mapping[str, Any], batch: M
     )
 
 
-def next_serial(db: sqlite_utils.Database) -> int:
-    """The next free print serial (one more than the highest ever issued)."""
-    row = db.execute("SELECT coalesce(max(serial_last), 0) FROM label_prints").fetchone()
-    return int(row[0]) + 1
-
-
-def record_print(
-    db: sqlite_utils.Database, batch_id: int, release_id: int | None, layout: str, copies: int, value_printed: str, actor: str
-) -> dict[str, Any]:
-    """Take the next `copies` serials and record the print with its audit event; return the new row."""
-    with dbmod.write(db):
-        first = next_serial(db)
-        row = {
-            "batch_id": batch_id,
-            "release_id": release_id,
-            "layout": layout,
-            "copies": copies,
-            "serial_first": first,
-            "serial_last": first + copies - 1,
-            "value_printed": value_printed,
-            "recorded_at": records.utc_now(),
-            "recorded_by": actor,
-        }
-        print_id = _insert(db, "label_prints", row)
-        row["id"] = print_id
-        records.append_event(
-            db,
-            actor,
-            "label.print",
-            entity="label_prints",
-            entity_id=print_id,
-            batch_id=batch_id,
-            detail={
-                "layout": layout,
-                "copies": copies,
-                "serials": [first, row["serial_last"]],
-                "value_printed": value_printed,
-                "release_id": release_id,
-            },
-        )
-    return row
-
-
 @dataclass(frozen=True)
 class PrintJob:
     """A recorded print and its PDF."""
@@ -732,7 +609,7 @@ def print_labels(
         raise InvalidInput(problems)
     content = label_content(db, config, batch, on)
     with dbmod.write(db):
-        row = record_print(db, batch["id"], content.release_id, layout.name, copies, content.certified, actor)
+        row = records.record_print(db, batch["id"], content.release_id, layout.name, copies, content.certified, actor)
         pdf = build_labels(content, layout, copies, start, row["serial_first"])
     return PrintJob(pdf, row, content)
 

@@ -6,7 +6,7 @@ from typing import Any
 
 from flask import Blueprint, current_app, jsonify, request
 
-from stockroom import records
+from stockroom import readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import StatusReport
 from stockroom.web import lab_today, parse_date_arg
@@ -48,7 +48,7 @@ def batches() -> Any:
         raise InvalidInput([FieldError("limit", "limit and offset must be whole numbers")]) from None
     if not 1 <= limit <= 1000 or offset < 0:
         raise InvalidInput([FieldError("limit", "limit must be between 1 and 1000 and offset at least 0")])
-    views, total = records.batch_page(db, on, reagent=titrant, status=status, limit=limit, offset=offset)
+    views, total = readmodel.batch_page(db, on, reagent=titrant, status=status, limit=limit, offset=offset)
     body: dict[str, Any] = {
         "on": on.isoformat(),
         "total": total,
@@ -79,8 +79,8 @@ def batch(code: str) -> Any:
     b = records.batch_by_code(db, code)
     from stockroom.policy import status_on
 
-    report = status_on(records.batch_facts(db, b["id"]), on)
-    history = records.batch_history(db, b["id"])
+    report = status_on(readmodel.batch_facts(db, b["id"]), on)
+    history = readmodel.batch_history(db, b["id"])
     body = _summary(b, report)
     body.update(
         {

@@ -6,7 +6,7 @@ from typing import Any
 
 from flask import Blueprint, flash, redirect, render_template, request, url_for
 
-from stockroom import chemistry, records
+from stockroom import chemistry, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, release_in_force
 from stockroom.web import lab_today, parse_date_arg
@@ -29,13 +29,13 @@ def list_batches() -> str:
         page = max(1, int(request.args.get("page", "1")))
     except ValueError:
         page = 1
-    shown, total = records.batch_page(
+    shown, total = readmodel.batch_page(
         db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE, offset=(page - 1) * PAGE_SIZE
     )
     pages = max(1, -(-total // PAGE_SIZE))
     if page > pages:  # past the end: show the last page
         page = pages
-        shown, total = records.batch_page(
+        shown, total = readmodel.batch_page(
             db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE, offset=(page - 1) * PAGE_SIZE
         )
     return render_template(
@@ -58,11 +58,11 @@ def show(code: str) -> str:
     db = get_db()
     on = parse_date_arg(request.args.get("on"), "on") or lab_today()
     batch = records.batch_by_code(db, code)
-    facts = records.batch_facts(db, batch["id"])
+    facts = readmodel.batch_facts(db, batch["id"])
     from stockroom.policy import status_on
 
     report = status_on(facts, on)
-    history = records.batch_history(db, batch["id"])
+    history = readmodel.batch_history(db, batch["id"])
     return render_template(
         "batches/show.html",
         batch=batch,

@@ -8,7 +8,7 @@ from typing import Any
 from flask import Blueprint, render_template, request
 from markupsafe import Markup
 
-from stockroom import records
+from stockroom import readmodel
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, Status
 from stockroom.web import lab_today, parse_date_arg, viewcache
@@ -42,13 +42,13 @@ def _render_board(db: Any, on: dt.date) -> str:
     )
 
 
-def _board(db: Any, on: dt.date) -> tuple[dict[Status, list[records.BatchView]], dict[Status, int], int]:
+def _board(db: Any, on: dt.date) -> tuple[dict[Status, list[readmodel.BatchView]], dict[Status, int], int]:
     """Batches shown on the board by status, the count of each status, and how many batches existed."""
-    coarse = records.coarse_statuses(db, on)
+    coarse = readmodel.coarse_statuses(db, on)
     recent_from = (on - dt.timedelta(days=RECENT_DAYS)).isoformat()
     shown = [i for i, c, since in coarse if c in ("live", "awaiting") or (since is not None and since >= recent_from)]
-    groups: dict[Status, list[records.BatchView]] = {s: [] for s in URGENCY}
-    for v in records.views_of(db, shown, on):
+    groups: dict[Status, list[readmodel.BatchView]] = {s: [] for s in URGENCY}
+    for v in readmodel.views_of(db, shown, on):
         groups[v.report.status].append(v)
     counts = {s: len(groups[s]) for s in URGENCY}
     for s in (Status.EXPIRED, Status.WITHDRAWN):

@@ -7,40 +7,7 @@ from typing import Any
 from flask import Flask
 
 from stockroom.formatting import date, molarity, percent, quantity
-
-# Plain words for the audit trail's action codes; an unknown code is shown as it is.
-ACTION_LABELS = {
-    "batch.register": "registered a batch",
-    "batch.release": "released a batch",
-    "batch.withdraw": "withdrew a batch",
-    "batch.amend": "corrected a batch detail",
-    "lot.register": "registered a standard lot",
-    "run.record.certify": "recorded a standardization",
-    "run.record.recheck": "recorded a re-check",
-    "run.accept": "accepted a run",
-    "run.reject": "rejected a run",
-    "replicate.exclude": "left out a replicate",
-    "label.print": "printed labels",
-    "hazard.classify": "added a hazard classification",
-    "classdata.correct": "corrected class data",
-    "token.create": "made an API token",
-    "token.revoke": "revoked an API token",
-    "account.create": "created an account",
-    "account.disable": "disabled an account",
-    "account.password_change": "changed their password",
-    "account.password_reset": "reset a password",
-    "account.signin": "signed in",
-    "account.signin_failed": "failed to sign in",
-    "account.signin_paused": "sign-in paused after failures",
-    "account.signout": "signed out",
-    "access.refused": "was refused an action",
-    "instrument.register": "registered an instrument",
-    "instrument.calibrate": "recorded a calibration",
-    "run.instruments": "named the instruments of a run",
-    "recall.open": "opened a recall",
-    "recall.clear": "cleared a recall",
-    "policy.change": "changed a reagent policy",
-}
+from stockroom.records.audit import action_label  # the words come from the action registry
 
 
 def fromjson(text: str | None) -> Any:
@@ -51,10 +18,6 @@ def fromjson(text: str | None) -> Any:
         return "—"
     value = json.loads(text)
     return "—" if value in (None, "") else value
-
-
-def action_label(code: str) -> str:
-    return ACTION_LABELS.get(code, code)
 
 
 def install(app: Flask) -> None:

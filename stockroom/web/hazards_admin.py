@@ -14,10 +14,9 @@ from typing import Any
 
 from flask import Blueprint, flash, redirect, render_template, request, url_for
 
-from stockroom import chemistry, hazards
+from stockroom import chemistry, hazards, records
 from stockroom.db import get_db
 from stockroom.errors import InvalidInput
-from stockroom.pdf import labels as pdflabels
 from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
@@ -81,12 +80,12 @@ def read_classification(form: Mapping[str, Any], pictograms: list[str], today: d
 
 def _context(today: dt.date) -> dict[str, Any]:
     db = get_db()
-    rows = pdflabels.classifications(db)
+    rows = records.classifications(db)
     current = hazards.in_force(rows, today)
     return {
         "current": [(c, hazards.label_elements(c)) for c in current],
         "upcoming": [c for c in rows if c.effective_from > today],
-        "history": pdflabels.classification_rows(db),
+        "history": records.classification_rows(db),
         "reagents": [(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
         "signal_choices": SIGNAL_CHOICES,
         "drawn": [(code, hazards.PICTOGRAMS[code], pictogram_uri(code, 40)) for code in hazards.DRAWN],
@@ -112,7 +111,7 @@ def hazard_data() -> Any:
         return forms.reshow("admin/hazards.html", exc, chosen=chosen, **_context(today))
     user = current_user()
     assert user is not None
-    pdflabels.record_classification(get_db(), c, reason, user.username)
+    records.record_classification(get_db(), c, reason, user.username)
     flash(
         f"Recorded: {c.reagent} {c.band_text}, {c.signal_word or 'not classified'}, in force from "
         f"{c.effective_from.isoformat()}. Labels printed from then on use it.",

@@ -20,7 +20,7 @@ from typing import Any
 import sqlite_utils
 from flask import Blueprint, current_app, flash, jsonify, redirect, render_template, request, url_for
 
-from stockroom import chemistry, preparation, records
+from stockroom import chemistry, preparation, readmodel, records
 from stockroom.chemistry import BASE
 from stockroom.db import get_db
 from stockroom.errors import Conflict, FieldError, InvalidInput
@@ -151,7 +151,7 @@ def adjust(code: str) -> Any:
     db = get_db()
     today = lab_today()
     batch = records.batch_by_code(db, code)
-    status = status_on(records.batch_facts(db, batch["id"]), today).status
+    status = status_on(readmodel.batch_facts(db, batch["id"]), today).status
     # A withdrawn batch is out of use for good: nothing is worked out for it.
     bases = [] if status is Status.WITHDRAWN else adjustment_bases(db, batch, today)
     context: dict[str, Any] = {
@@ -514,12 +514,12 @@ def adjustment_bases(db: sqlite_utils.Database, batch: Mapping[str, Any], today:
 
     Returns dicts with key ("certified" or "latest"), molarity (mol/L), tolerance_rel, and a label.
     """
-    facts = records.batch_facts(db, batch["id"])
+    facts = readmodel.batch_facts(db, batch["id"])
     bases: list[dict[str, Any]] = []
     release = release_in_force(facts, today)
     tolerance = records.policy_for(db, batch["reagent"], today).tolerance_rel
     release_run_id = None
-    history = records.batch_history(db, batch["id"])
+    history = readmodel.batch_history(db, batch["id"])
     if release is not None:
         row = next((r for r in history["releases"] if r["id"] == release.id), None)
         release_run_id = row["run_id"] if row else None

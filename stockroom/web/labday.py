@@ -8,7 +8,6 @@ from stockroom.labday; the correction stores one append-only row per upload plus
 from __future__ import annotations
 
 import datetime as dt
-import hashlib
 import json
 from collections.abc import Mapping
 from typing import Any
@@ -16,7 +15,7 @@ from typing import Any
 import sqlite_utils
 from flask import Blueprint, Response, current_app, redirect, render_template, request, url_for
 
-from stockroom import chemistry, records
+from stockroom import chemistry, readmodel, records
 from stockroom import db as dbmod
 from stockroom import labday as ld
 from stockroom.chemistry import UnknownSubstance
@@ -60,7 +59,7 @@ def load_batches(db: sqlite_utils.Database, titrant: str | None, day: dt.date | 
     rows = dbmod.query(db, sql + " ORDER BY code", params)
     if not rows:
         return []
-    facts = records.facts_of(db, [r["id"] for r in rows])
+    facts = readmodel.facts_of(db, [r["id"] for r in rows])
     return [
         ld.BatchRecord(
             code=r["code"], reagent=r["reagent"], nominal_molarity=float(r["nominal_molarity"]), facts=facts[r["id"]], id=r["id"]
@@ -279,7 +278,7 @@ def drift_chart(code: str) -> Response:
     on = _date(p, request.args.get("on", MISSING), "on", lab_today())
     p.raise_if_errors()
     assert on is not None
-    report = drift_on(records.batch_facts(db, batch["id"]), on)
+    report = drift_on(readmodel.batch_facts(db, batch["id"]), on)
     if report is None:
         raise NotFound(f"batch {code} has no release by {on.isoformat()}, so it has no drift chart")
     svg = drift_svg(report, CHART_WIDTH, CHART_HEIGHT, title=f"Drift of {code} as of {on.isoformat()}", font_size=11.5)
@@ -291,72 +290,6 @@ def drift_chart(code: str) -> Response:
 
 
 # ---------------------------------------------------------------- class-data correction
-
-
-def record_correction(
-    db: sqlite_utils.Database,
-    *,
-    lab_day: dt.date,
-    entry: ld.LabDayEntry,
-    molarity_used: float,
-    rows: tuple[ld.ClassRow, ...],
-    upload: bytes,
-    upload_name: str,
-    actor: str,
-) -> int:
-    """Store one class-data correction and its audit event in one write; return its id."""
-    with dbmod.write(db):
-        row = {
-            "lab_day": lab_day.isoformat(),
-            "titrant": entry.batch.reagent,
-            "batch_id": entry.batch.id,
-            "release_id": entry.release.id,
-            "certified_molarity": entry.release.molarity,
-            "bench_temperature_c": entry.bench_temperature_c,
-            "molarity_used": molarity_used,
-            "nominal_molarity": entry.batch.nominal_molarity,
-            "row_count": len(rows),
-            "upload_name": upload_name[:200],
-            "upload_sha256": hashlib.sha256(upload).hexdigest(),
-            "rows_csv": ld.rows_to_csv(rows),
-            "recorded_at": records.utc_now(),
-            "recorded_by": actor,
-        }
-        pk = db.table("class_corrections").insert(row).last_pk
-        assert pk is not None
-        cid = int(pk)
-        records.append_event(
-            db,
-            actor,
-            "classdata.correct",
-            entity="class_corrections",
-            entity_id=cid,
-            batch_id=entry.batch.id,
-            detail={
-                "lab_day": row["lab_day"],
-                "titrant": row["titrant"],
-                "release_id": row["release_id"],
-                "molarity_used": molarity_used,
-                "rows": len(rows),
-                "upload_sha256": row["upload_sha256"],
-            },
-        )
-    return cid
-
-
-def correction_by_id(db: sqlite_utils.Database, cid: int) -> dict[str, Any]:
-    """One stored class-data correction with its batch code; NotFound if none."""
-    rows = dbmod.query(
-        db, "SELECT c.*, b.code AS batch_code FROM class_corrections c JOIN batches b ON b.id = c.batch_id WHERE c.id = ?", [cid]
-    )
-    if not rows:
-        raise NotFound(f"no class-data correction with id {cid}")
-    return rows[0]
-
-
-def corrections_with_release(db: sqlite_utils.Database, release_id: int) -> list[dict[str, Any]]:
-    """Every class-data correction made with a release (for a recall), oldest first."""
-    return dbmod.query(db, "SELECT * FROM class_corrections WHERE release_id = ? ORDER BY id", [release_id])
 
 
 def _correct_form(
@@ -448,7 +381,7 @@ def correct() -> Any:
     molarity_used = entry.molarity_at_bench if entry.molarity_at_bench is not None else entry.release.molarity
     user = current_user()
     assert user is not None
-    cid = record_correction(
+    cid = records.record_correction(
         get_db(),
         lab_day=day,
         entry=entry,
@@ -463,7 +396,7 @@ def correct() -> Any:
 
 def _stored(cid: int) -> tuple[dict[str, Any], tuple[ld.ClassResult, ...], ld.LabDayEntry | None]:
     db = get_db()
-    row = correction_by_id(db, cid)
+    row = records.correction_by_id(db, cid)
     results = ld.correct_class(ld.rows_from_csv(row["rows_csv"]), row["molarity_used"], row["nominal_molarity"])
     day = dt.date.fromisoformat(row["lab_day"])
     batch = next((b for b in load_batches(db, row["titrant"]) if b.id == row["batch_id"]), None)

@@ -17,7 +17,7 @@ from typing import Any
 
 from flask import Blueprint, Response, current_app, render_template, request
 
-from stockroom import records
+from stockroom import readmodel, records
 from stockroom.db import get_db
 from stockroom.errors import Conflict, FieldError, InvalidInput
 from stockroom.pdf import certificates, ghs, layouts
@@ -55,7 +55,7 @@ def _pdf_response(pdf: bytes, filename: str) -> Response:
 def labels_in_circulation(history: Mapping[str, Any], in_force: Any, status: Status) -> dict[str, Any] | None:
     """What the batch page says about printed labels: None when every print shows what a new one would.
 
-    history: records.batch_history(...); in_force: the ReleaseFact in force (or None); status: the
+    history: readmodel.batch_history(...); in_force: the ReleaseFact in force (or None); status: the
     batch's status. Returns the current text, the stale prints, their copies and serial ranges, and
     whether a print with the current value was made after the last stale one (the reprint).
     """
@@ -94,8 +94,8 @@ def _context(
         content = pdflabels.label_content(db, current_app.config, batch, on)
     except Conflict as exc:
         problem = exc.message
-    history = records.batch_history(db, batch["id"])
-    facts = records.batch_facts(db, batch["id"])
+    history = readmodel.batch_history(db, batch["id"])
+    facts = readmodel.batch_facts(db, batch["id"])
     report = status_on(facts, on)
     in_force = release_in_force(facts, on)
     current = pdflabels.current_value_text(history, in_force, report.status)

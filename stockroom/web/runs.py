@@ -16,7 +16,7 @@ from flask import (
     url_for,
 )
 
-from stockroom import chemistry, csvio, records, workflow
+from stockroom import chemistry, csvio, readmodel, records, workflow
 from stockroom.db import get_db
 from stockroom.errors import FieldError, InvalidInput, StockroomError
 from stockroom.policy import release_in_force
@@ -143,9 +143,9 @@ def _references_for(batch: dict[str, Any], on: dt.date) -> list[tuple[dict[str, 
     role = chemistry.titrant(batch["reagent"]).role
     # Only live batches (released, not expired or withdrawn) can have a value in force; their release
     # in the status report is that value.
-    live = [i for i, c, _ in records.coarse_statuses(db, on) if c == "live" and i != batch["id"]]
+    live = [i for i, c, _ in readmodel.coarse_statuses(db, on) if c == "live" and i != batch["id"]]
     out = []
-    for v in records.views_of(db, live, on):
+    for v in readmodel.views_of(db, live, on):
         try:
             if chemistry.titrant(v.batch["reagent"]).role == role:
                 continue
@@ -158,7 +158,7 @@ def _references_for(batch: dict[str, Any], on: dt.date) -> list[tuple[dict[str, 
 
 def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date) -> dict[str, Any]:
     db = get_db()
-    facts = records.batch_facts(db, batch["id"])
+    facts = readmodel.batch_facts(db, batch["id"])
     policy = records.policy_for(db, batch["reagent"], on)
     titrant = chemistry.titrant(batch["reagent"])
     return {
@@ -241,7 +241,7 @@ def parse_run(batch: dict[str, Any], method: str, form: Any) -> tuple[dict[str, 
         "instruments": chosen,
     }
     if purpose == "recheck" and performed_on is not None:
-        if release_in_force(records.batch_facts(get_db(), batch["id"]), performed_on) is None:
+        if release_in_force(readmodel.batch_facts(get_db(), batch["id"]), performed_on) is None:
             p.error("purpose", "a re-check needs a certified value in force that day; record a standardization")
     return meta, partner, reps, excluded, p
 
@@ -477,4 +477,4 @@ def export_run(run_id: int) -> Response:
 def export_history(code: str) -> Response:
     db = get_db()
     batch = records.batch_by_code(db, code)
-    return _csv_response(csvio.write_history(batch, records.batch_history(db, batch["id"])), f"{batch['code']}-history.csv")
+    return _csv_response(csvio.write_history(batch, readmodel.batch_history(db, batch["id"])), f"{batch['code']}-history.csv")

@@ -1,0 +1,260 @@
+"""Standardization runs: the run, its replicates, exclusions, computed results, decisions and releases."""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Iterable
+from typing import Any
+
+import sqlite_utils
+
+from stockroom import db as dbmod
+from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
+from stockroom.records.audit import record_row
+from stockroom.records.withdrawals import withdrawal_of
+
+RUN_FIELDS = (
+    "batch_id",
+    "purpose",
+    "method",
+    "standard_lot_id",
+    "reference_batch_id",
+    "reference_release_id",
+    "performed_on",
+    "analyst",
+    "temperature_c",
+    "burette_capacity_ml",
+    "endpoint",
+    "notes",
+)
+REPLICATE_FIELDS = (
+    "position",
+    "mass_gross_g",
+    "mass_tare_g",
+    "mass_g",
+    "aliquot_ml",
+    "initial_ml",
+    "final_ml",
+    "volume_ml",
+    "blank_ml",
+    "temperature_c",
+    "molarity",
+)
+
+
+def _result_row(run_id: int, result: dict[str, Any], cause: str, actor: str) -> dict[str, Any]:
+    return {
+        "run_id": run_id,
+        "cause": cause,
+        "molarity": result["molarity"],
+        "u": result["u"],
+        "expanded_u": result["U"],
+        "k": result["k"],
+        "n": result["n"],
+        "sd": result.get("sd"),
+        "rsd": result.get("rsd"),
+        "accepted_by_rule": 1 if result.get("accepted") else 0,
+        "result_json": json.dumps(result, default=str),
+        "recorded_at": dbmod.utc_now(),
+        "recorded_by": actor,
+    }
+
+
+def record_run(
+    db: sqlite_utils.Database,
+    run: dict[str, Any],
+    replicates: list[dict[str, Any]],
+    result: dict[str, Any],
+    actor: str,
+    exclusions: Iterable[tuple[int, str]] = (),
+) -> int:
+    """Store a run, its replicates, exclusions and computed result in one write; return the run id.
+
+    `result` is the science core's answer as a plain dict (molarity, u, U, k, n, sd, rsd, accepted...);
+    `exclusions` are (position, reason) pairs chosen when the run was entered.
+    """
+    exclusions = list(exclusions)
+    with dbmod.write(db):
+        row = {k: run.get(k) for k in RUN_FIELDS}
+        row["endpoint"] = row["endpoint"] or ""
+        row["notes"] = row["notes"] or ""
+        row["recorded_at"] = dbmod.utc_now()
+        row["recorded_by"] = actor
+        run_id = record_row(
+            db,
+            "runs",
+            row,
+            actor=actor,
+            action_code=f"run.record.{row['purpose']}",
+            batch_id=row["batch_id"],
+            detail={
+                "n": result.get("n"),
+                "molarity": result.get("molarity"),
+                "U": result.get("U"),
+                "excluded": [p for p, _ in exclusions],
+            },
+        )
+        # The run's parts belong to its entry: written in the same transaction, after the run row.
+        for rep in replicates:
+            rep_row = {k: rep.get(k) for k in REPLICATE_FIELDS}
+            rep_row["blank_ml"] = rep_row["blank_ml"] or 0.0
+            rep_row["run_id"] = run_id
+            dbmod.insert_row(db, "replicates", rep_row)
+        for position, reason in exclusions:
+            dbmod.insert_row(
+                db,
+                "exclusions",
+                {
+                    "run_id": run_id,
+                    "position": position,
+                    "reason": reason.strip(),
+                    "recorded_at": row["recorded_at"],
+                    "recorded_by": actor,
+                },
+            )
+        dbmod.insert_row(db, "run_results", _result_row(run_id, result, "recorded", actor))
+    return run_id
+
+
+def latest_results(db: sqlite_utils.Database, run_ids: list[int]) -> dict[int, dict[str, Any]]:
+    """run id -> its current (newest) result row, with the stored result decoded under "result"."""
+    if not run_ids:
+        return {}
+    marks = ",".join("?" * len(run_ids))
+    rows = dbmod.query(
+        db,
+        f"SELECT * FROM run_results WHERE id IN (SELECT max(id) FROM run_results WHERE run_id IN ({marks}) GROUP BY run_id)",
+        run_ids,
+    )
+    out = {}
+    for r in rows:
+        r["result"] = json.loads(r.pop("result_json"))
+        out[r["run_id"]] = r
+    return out
+
+
+def run_by_id(db: sqlite_utils.Database, run_id: int) -> dict[str, Any]:
+    """A run with its replicates, exclusions, decisions and current (newest) result."""
+    rows = dbmod.query(db, "SELECT * FROM runs WHERE id = ?", [run_id])
+    if not rows:
+        raise NotFound(f"no run with id {run_id}")
+    run = rows[0]
+    run["current"] = latest_results(db, [run_id]).get(run_id)
+    run["replicates"] = dbmod.query(db, "SELECT * FROM replicates WHERE run_id = ? ORDER BY position", [run_id])
+    run["exclusions"] = dbmod.query(db, "SELECT * FROM exclusions WHERE run_id = ? ORDER BY id", [run_id])
+    run["decisions"] = dbmod.query(db, "SELECT * FROM decisions WHERE run_id = ? ORDER BY id", [run_id])
+    return run
+
+
+def exclude_replicate(
+    db: sqlite_utils.Database, run_id: int, position: int, reason: str, result: dict[str, Any], actor: str
+) -> None:
+    """Record that one replicate is left out of an undecided run, with the reason and the new result."""
+    if not reason.strip():
+        raise InvalidInput([FieldError("reason", "give the reason for excluding this replicate")])
+    with dbmod.write(db):
+        run = run_by_id(db, run_id)
+        if position not in {r["position"] for r in run["replicates"]}:
+            raise NotFound(f"run {run_id} has no replicate {position}")
+        if position in {e["position"] for e in run["exclusions"]}:
+            raise Conflict(f"replicate {position} is already excluded")
+        if run["decisions"]:
+            raise Conflict("this run has already been decided; record a new run instead")
+        record_row(
+            db,
+            "exclusions",
+            {
+                "run_id": run_id,
+                "position": position,
+                "reason": reason.strip(),
+                "recorded_at": dbmod.utc_now(),
+                "recorded_by": actor,
+            },
+            actor=actor,
+            action_code="replicate.exclude",
+            about=("runs", run_id),
+            batch_id=run["batch_id"],
+            reason=reason.strip(),
+            detail={"position": position, "molarity": result["molarity"]},
+        )
+        dbmod.insert_row(db, "run_results", _result_row(run_id, result, f"exclusion of replicate {position}", actor))
+
+
+def decide_run(
+    db: sqlite_utils.Database,
+    run_id: int,
+    decision: str,
+    reason: str,
+    actor: str,
+    release: dict[str, Any] | None = None,
+) -> int | None:
+    """Accept or reject a run; accepting a certifying run writes a release (given); return its id."""
+    with dbmod.write(db):
+        run = run_by_id(db, run_id)
+        if run["decisions"]:
+            raise Conflict("this run has already been decided")
+        if decision == "reject" and not reason.strip():
+            raise InvalidInput([FieldError("reason", "give the reason for rejecting this run")])
+        record_row(
+            db,
+            "decisions",
+            {
+                "run_id": run_id,
+                "decision": decision,
+                "reason": reason.strip(),
+                "recorded_at": dbmod.utc_now(),
+                "recorded_by": actor,
+            },
+            actor=actor,
+            action_code=f"run.{decision}",
+            about=("runs", run_id),
+            batch_id=run["batch_id"],
+            reason=reason.strip(),
+        )
+        release_id = None
+        if decision == "accept" and run["purpose"] == "certify":
+            if release is None:
+                raise InvalidInput("an accepted certifying run needs its release values", field="release")
+            release_id = _write_release(db, run, release, actor)
+    return release_id
+
+
+def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict[str, Any], actor: str) -> int:
+    batch_id = run["batch_id"]
+    if withdrawal_of(db, batch_id) is not None:
+        raise Conflict("this batch has been withdrawn; it cannot be released again")
+    previous = db.execute(
+        "SELECT id FROM releases WHERE batch_id = ? ORDER BY released_on DESC, id DESC LIMIT 1", [batch_id]
+    ).fetchone()
+    row = {
+        "batch_id": batch_id,
+        "run_id": run["id"],
+        "molarity": release["molarity"],
+        "u": release["u"],
+        "expanded_u": release["U"],
+        "k": release["k"],
+        "reference_temperature_c": release.get("reference_temperature_c", 20.0),
+        "released_on": release["released_on"],
+        "expires_on": release["expires_on"],
+        "recheck_interval_days": release["recheck_interval_days"],
+        "tolerance_rel": release["tolerance_rel"],
+        "supersedes_id": previous[0] if previous else None,
+        "recorded_at": dbmod.utc_now(),
+        "recorded_by": actor,
+    }
+    return record_row(
+        db,
+        "releases",
+        row,
+        actor=actor,
+        action_code="batch.release",
+        batch_id=batch_id,
+        detail={
+            "molarity": row["molarity"],
+            "U": row["expanded_u"],
+            "k": row["k"],
+            "released_on": row["released_on"],
+            "expires_on": row["expires_on"],
+            "supersedes": row["supersedes_id"],
+        },
+    )
