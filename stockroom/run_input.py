@@ -257,19 +257,19 @@ def _date(p: Parser, raw: Any, name: str, *, not_after: dt.date, not_before: dt.
     if raw is MISSING or raw is None or (isinstance(raw, str) and not raw.strip()):
         p.error(name, "is required")
         return None
-    if not isinstance(raw, str) or not re.fullmatch(r"\d{4}-\d{2}-\d{2}", raw.strip()):
-        p.error(name, "must be a date written YYYY-MM-DD")
-        return None
+    text = raw.strip() if isinstance(raw, str) else None
     try:
-        value = dt.date.fromisoformat(raw.strip())
+        if text is None or not re.fullmatch(r"\d{4}-\d{2}-\d{2}", text):
+            raise ValueError
+        value = dt.date.fromisoformat(text)
     except ValueError:
-        p.error(name, "is not a real calendar date")
+        p.error(name, f"{raw!r} is not a date; write it as YYYY-MM-DD")
         return None
     if value > not_after:
-        p.error(name, f"cannot be after today ({not_after.isoformat()})")
+        p.error(name, f"cannot be later than {not_after.isoformat()} (today)")
         return None
     if not_before is not None and value < not_before:
-        p.error(name, f"cannot be before {not_before.isoformat()}, when the batch was prepared")
+        p.error(name, f"cannot be earlier than {not_before.isoformat()}, when the batch was prepared")
         return None
     return value
 
@@ -319,7 +319,7 @@ def read_replicates(
         if obj is None:
             continue
         _refuse_unknown(p, obj, keys, method, here)
-        rep = _replicate(p, obj, here, method, capacity_ml or LIMITS.max_reading_ml, capacity_ml, run_temperature)
+        rep = _replicate(p, obj, here, method, capacity_ml, run_temperature, allow_volume)
         if "exclude_reason" in obj:
             reason = p.text(
                 obj["exclude_reason"], field_path(here, "exclude_reason"), required=False, max_length=LIMITS.max_reason
@@ -334,7 +334,13 @@ def read_replicates(
 
 
 def _replicate(
-    p: Parser, obj: Mapping[str, Any], here: str, method: str, scale_ml: float, capacity_ml: float | None, run_t: float | None
+    p: Parser,
+    obj: Mapping[str, Any],
+    here: str,
+    method: str,
+    capacity_ml: float | None,
+    run_t: float | None,
+    allow_volume: bool,
 ) -> ReplicateInput | None:
     def path(key: str) -> str:
         return field_path(here, key)
@@ -368,12 +374,14 @@ def _replicate(
                 )
     else:
         p.error(path("mass_g"), "is required (give the mass, or gross and tare)")
+    scale_ml = capacity_ml or LIMITS.max_reading_ml
     scale = f"the {capacity_ml:g} mL burette" if capacity_ml is not None else f"a {scale_ml:g} mL burette"
     initial = final = None
     volume: float | None = None
-    if "volume_ml" in obj and (given("initial_ml") or given("final_ml")):
+    titre_given = allow_volume and "volume_ml" in obj
+    if titre_given and (given("initial_ml") or given("final_ml")):
         p.error(path("volume_ml"), "give volume_ml, or initial_ml and final_ml, not both")
-    elif "volume_ml" in obj:
+    elif titre_given:
         volume = p.number(obj["volume_ml"], path("volume_ml"), gt=0, le=scale_ml, unit="mL")
         if volume is not None and volume < LIMITS.min_volume_ml:
             p.error(path("volume_ml"), f"is too small to measure: must be at least {LIMITS.min_volume_ml:g} mL")
