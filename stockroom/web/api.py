@@ -175,8 +175,9 @@ def create_run(code: str) -> Any:
     data = _json_body()
     run = run_input.parse_run(data, today=lab_today(), prepared_on=dt.date.fromisoformat(batch["prepared_on"]))
     user = current_user()
-    run_id, result = workflow.record_run(db, current_app.config, batch, run, user.username if user else "?")
-    return jsonify({"run_id": run_id, "result": workflow.snapshot(result)}), 201
+    run_id, _ = workflow.record_run(db, current_app.config, batch, run, user.username if user else "?")
+    # The result as stored, with the warnings about the run's instruments.
+    return jsonify({"run_id": run_id, "result": records.run_by_id(db, run_id)["current"]["result"]}), 201
 
 
 @bp.post("/runs/<int:run_id>/decision")
