@@ -214,15 +214,14 @@
     timer = setTimeout(refresh, 250);
   }
 
-  // Enter in a grid cell moves to the same column of the next row (adding one if needed) instead
+  // Enter in a grid cell moves to the first column of the next row (adding one if needed) instead
   // of submitting the form half-typed.
   tbody.addEventListener("keydown", function (ev) {
     if (ev.key !== "Enter" || ev.target.tagName !== "INPUT") { return; }
     ev.preventDefault();
     var tr = ev.target.closest("tr");
     var next = tr.nextElementSibling || appendRow();
-    var key = ev.target.dataset.key;
-    var target = next.querySelector('input[data-key="' + key + '"]') || next.querySelector("input[data-key]");
+    var target = next.querySelector("input[data-key]");  // the row's first cell
     if (target) { target.focus(); }
   });
 
