@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import datetime as dt
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from typing import Any
 
 import sqlite_utils
@@ -202,12 +203,14 @@ def _record(
     return run_id
 
 
+@dataclass(frozen=True)
 class Partner:
     """What a run is measured against, resolved from the records: a lot of primary standard, or a
     certified batch with its release in force that day."""
 
-    def __init__(self, lot: Mapping[str, Any] | None = None, reference: Mapping[str, Any] | None = None, release: Any = None):
-        self.lot, self.reference, self.release = lot, reference, release
+    lot: Mapping[str, Any] | None = None
+    reference: Mapping[str, Any] | None = None
+    release: Any = None
 
 
 def check_not_withdrawn(db: sqlite_utils.Database, batch: Mapping[str, Any]) -> None:
