@@ -57,8 +57,8 @@ class Sheet:
 def read_sheet(text: str, max_rows: int) -> Sheet:
     """Read a replicate sheet's text; structure problems are reported per line, values stay text.
 
-    The numbers are checked later by the same rules as the run form, so a sheet and a typed run can
-    never be judged differently.
+    The numbers are checked later by stockroom.run_input, the parser every door uses, so a sheet
+    and a typed run can never be judged differently.
     """
     sheet = Sheet()
     if text.startswith("\ufeff"):
@@ -220,22 +220,20 @@ def write_history(batch: Mapping[str, Any], history: Mapping[str, Any]) -> str:
     return out.getvalue()
 
 
-def rows_as_form(rows: Sequence[SheetRow], secondary: bool) -> dict[str, str]:
-    """Sheet rows as run-form fields (r1_gross_g, ...) so an import fills the same grid a person types in."""
-    form: dict[str, str] = {}
-    for i, row in enumerate(rows, start=1):
-        for col in NUMERIC_COLUMNS:
-            if secondary and col in ("gross_g", "tare_g", "mass_g"):
-                continue
-            if not secondary and col == "aliquot_ml":
-                continue
-            if row.values.get(col):
-                form[f"r{i}_{col}"] = row.values[col]
-        reason = row.values.get("exclude_reason", "")
-        if reason:
-            form[f"r{i}_exclude"] = "on"
-            form[f"r{i}_exclude_reason"] = reason
-    return form
+def rows_as_replicates(rows: Sequence[SheetRow], secondary: bool) -> list[dict[str, str]]:
+    """Sheet rows as a run's JSON-shaped replicates (values stay text), read by stockroom.run_input.
+
+    The columns this kind of run does not use are left out (columns_unused reports them); a
+    non-empty exclude_reason leaves the replicate out with that reason.
+    """
+    skip = {"gross_g", "tare_g", "mass_g"} if secondary else {"aliquot_ml"}
+    out: list[dict[str, str]] = []
+    for row in rows:
+        rep = {c: row.values[c] for c in NUMERIC_COLUMNS if c not in skip and row.values.get(c)}
+        if row.values.get("exclude_reason"):
+            rep["exclude_reason"] = row.values["exclude_reason"]
+        out.append(rep)
+    return out
 
 
 def columns_unused(rows: Iterable[SheetRow], secondary: bool) -> list[str]:

@@ -8,7 +8,7 @@ import secrets
 from typing import Any
 
 from stockroom import db as dbmod
-from stockroom import records, schema, settings, workflow
+from stockroom import records, run_input, schema, settings, workflow
 from stockroom.resources import resource_dir
 
 
@@ -51,23 +51,24 @@ def build_demo(path: str, today: dt.date | None = None, password: str | None = N
         runs = sorted(((r["day"], b["key"], r) for b in scenario["batches"] for r in b["runs"]), key=lambda t: t[0])
         for run_day, key, r in runs:
             batch = batches[key]
-            meta = {
+            excluded = {e["position"]: e["reason"] for e in r.get("exclusions", [])}
+            data: dict[str, Any] = {
+                "method": r.get("method", "primary"),
                 "purpose": r["purpose"],
                 "performed_on": day(run_day),
                 "analyst": r["analyst"],
                 "endpoint": r.get("endpoint", ""),
                 "burette_capacity_ml": r.get("burette_capacity_ml", 50.0),
                 "notes": r.get("notes", ""),
+                "replicates": [_replicate(x, excluded.get(i)) for i, x in enumerate(r["replicates"], start=1)],
             }
-            reps = [_replicate(x) for x in r["replicates"]]
-            excluded = {e["position"]: e["reason"] for e in r.get("exclusions", [])}
-            actor = _username(scenario["users"], r["analyst"])
             if r.get("method") == "secondary":
-                run_id, _ = workflow.record_secondary_run(
-                    conn, config, batch, batches[r["reference"]], meta, reps, actor, excluded
-                )
+                data["reference_batch"] = batches[r["reference"]]["code"]
             else:
-                run_id, _ = workflow.record_primary_run(conn, config, batch, lots[r["lot"]], meta, reps, actor, excluded)
+                data["standard_lot_id"] = lots[r["lot"]]["id"]
+            actor = _username(scenario["users"], r["analyst"])
+            run = run_input.parse_run(data, today=today, prepared_on=dt.date.fromisoformat(batch["prepared_on"]))
+            run_id, _ = workflow.record_run(conn, config, batch, run, actor)
             if r.get("decision") == "accept":
                 workflow.accept(conn, run_id, actor)
             elif r.get("decision") == "reject":
@@ -87,9 +88,13 @@ def build_demo(path: str, today: dt.date | None = None, password: str | None = N
     return lines
 
 
-def _replicate(x: dict[str, Any]) -> dict[str, Any]:
-    rep = dict(x)
-    rep["volume_ml"] = round(x["final_ml"] - x["initial_ml"], 2)
+def _replicate(x: dict[str, Any], exclude_reason: str | None) -> dict[str, Any]:
+    """A scenario replicate in stockroom.run_input's shape (the scenario stores mass by difference as
+    mass_gross_g/mass_tare_g, as the records do)."""
+    names = {"mass_gross_g": "gross_g", "mass_tare_g": "tare_g"}
+    rep = {names.get(k, k): v for k, v in x.items()}
+    if exclude_reason:
+        rep["exclude_reason"] = exclude_reason
     return rep
 
 

@@ -13,7 +13,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from stockroom import chemistry, records, schema, settings, workflow
+from stockroom import chemistry, records, run_input, schema, settings, workflow
 from stockroom import db as dbmod
 
 SYNTH_USERS = ("synth-staff-1", "synth-staff-2", "synth-staff-3")
@@ -62,11 +62,10 @@ def _primary_reps(rng: random.Random, recipe: Recipe, c_true: float, n: int, sca
             initial, final = 0.02, round(0.02 + volume, 2)
         reps.append(
             {
-                "mass_gross_g": gross,
-                "mass_tare_g": tare,
+                "gross_g": gross,
+                "tare_g": tare,
                 "initial_ml": initial,
                 "final_ml": final,
-                "volume_ml": round(final - initial, 2),
                 "blank_ml": 0.0,
                 "temperature_c": round(rng.uniform(19.5, 23.5), 1),
             }
@@ -159,14 +158,17 @@ def _one_batch(
         c_true = c0 * (1 - loss_per_day * (day - prepared).days)
         scatter = 0.0035 if rng.random() < 0.04 else rng.uniform(0.0001, 0.0004)
         reps = _primary_reps(rng, recipe, c_true, rng.choice((3, 4, 4, 5)) if not released else 3, scatter)
-        meta = {
+        data = {
             "purpose": "recheck" if released else "certify",
             "performed_on": day.isoformat(),
             "analyst": actor,
             "burette_capacity_ml": 50.0,
             "endpoint": "synthetic",
+            "standard_lot_id": lot["id"],
+            "replicates": reps,
         }
-        run_id, result = workflow.record_primary_run(conn, config, batch, lot, meta, reps, actor)
+        run = run_input.parse_run(data, today=end, prepared_on=prepared)
+        run_id, result = workflow.record_run(conn, config, batch, run, actor)
         if result.accepted:
             workflow.accept(conn, run_id, actor)
             released = True

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import datetime as dt
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from typing import Any
 
 import sqlite_utils
@@ -20,8 +21,9 @@ import sqlite_utils
 from stockroom import chemistry, readmodel, records, standardization, stats
 from stockroom import db as dbmod
 from stockroom import instruments as inst_mod
-from stockroom.errors import Conflict, FieldError, InvalidInput
+from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
 from stockroom.policy import ReagentPolicy, expiry_for, release_in_force
+from stockroom.run_input import RunInput
 from stockroom.standardization import StandardizationResult
 from stockroom.uncertainty import InputQuantity
 
@@ -201,43 +203,139 @@ def _record(
     return run_id
 
 
-def record_primary_run(
+@dataclass(frozen=True)
+class Partner:
+    """What a run is measured against, resolved from the records: a lot of primary standard, or a
+    certified batch with its release in force that day."""
+
+    lot: Mapping[str, Any] | None = None
+    reference: Mapping[str, Any] | None = None
+    release: Any = None
+
+
+def check_not_withdrawn(db: sqlite_utils.Database, batch: Mapping[str, Any]) -> None:
+    """Refuse (Conflict) any run on a withdrawn batch: it is out of use for good."""
+    if records.withdrawal_of(db, batch["id"]) is not None:
+        raise Conflict(f"batch {batch['code']} is withdrawn; no run can be recorded for it")
+
+
+def _resolve(
+    db: sqlite_utils.Database, batch: Mapping[str, Any], run: RunInput
+) -> tuple[Partner, dict[str, inst_mod.Instrument]]:
+    """Check a run against the records (every rule the form has); return its partner and instruments.
+
+    Raises Conflict for a withdrawn batch and InvalidInput naming every other broken rule by its
+    request path (standard_lot_id, reference_batch, purpose, burette_id...).
+    """
+    check_not_withdrawn(db, batch)
+    errors: list[FieldError] = []
+    on = run.performed_on
+    if on < dt.date.fromisoformat(str(batch["prepared_on"])):
+        errors.append(FieldError("performed_on", f"cannot be before {batch['prepared_on']}, when the batch was prepared"))
+    titrant = chemistry.titrant(batch["reagent"])
+    partner = Partner()
+    if run.method == "primary":
+        try:
+            lot = records.lot_by_id(db, int(run.standard_lot_id or 0))
+            chemistry.stoichiometric_factor(titrant, chemistry.standard(lot["substance"]))
+            check_lot_usable(lot, on)
+            partner = Partner(lot=lot)
+        except InvalidInput as exc:
+            errors.extend(exc.errors)
+        except StockroomError as exc:
+            errors.append(FieldError("standard_lot_id", exc.message))
+    else:
+        try:
+            ref_batch = records.batch_by_code(db, str(run.reference_batch))
+            if ref_batch["id"] == batch["id"]:
+                raise InvalidInput([FieldError("reference_batch", "a batch cannot be its own reference")])
+            chemistry.stoichiometric_factor(titrant, chemistry.titrant(ref_batch["reagent"]))
+            partner = Partner(reference=ref_batch, release=reference_in_force(db, ref_batch, on))
+        except InvalidInput as exc:
+            errors.extend(exc.errors)
+        except StockroomError as exc:
+            errors.append(FieldError("reference_batch", exc.message))
+    if run.purpose == "recheck" and release_in_force(readmodel.batch_facts(db, batch["id"]), on) is None:
+        errors.append(FieldError("purpose", "a re-check needs a certified value in force that day; record a standardization"))
+    chosen: dict[str, inst_mod.Instrument] = {}
+    for role, iid in run.instruments.items():
+        name = f"{role}_id"
+        try:
+            inst = inst_mod.instrument_by_id(db, iid)
+        except StockroomError:
+            errors.append(FieldError(name, "no such instrument: choose one from the list"))
+            continue
+        if inst.kind != role:
+            errors.append(FieldError(name, f"{inst.code} is a {inst.kind}, not a {role}"))
+        elif role == "burette" and inst.capacity != run.burette_capacity_ml:
+            errors.append(
+                FieldError(
+                    name,
+                    f"{inst.code} is a {inst.capacity:g} mL burette but the run says {run.burette_capacity_ml:g} mL: "
+                    "choose the matching size",
+                )
+            )
+        else:
+            chosen[role] = inst
+    if errors:
+        raise InvalidInput(errors)
+    return partner, chosen
+
+
+def _compute_resolved(
     db: sqlite_utils.Database,
     config: Mapping[str, Any],
     batch: Mapping[str, Any],
-    lot: Mapping[str, Any],
-    meta: Mapping[str, Any],
-    replicates: Sequence[Mapping[str, Any]],
-    actor: str,
-    excluded: Mapping[int, str] | None = None,
-    instruments: Mapping[str, inst_mod.Instrument] | None = None,
-) -> tuple[int, StandardizationResult]:
-    """Compute and store a primary run (meta: purpose, performed_on, analyst, endpoint...); return its id.
-
-    instruments: role ("balance", "burette") -> Instrument the run used; their figures enter the budget.
-    """
-    excluded = dict(excluded or {})
-    chosen = dict(instruments or {})
-    performed_on = dt.date.fromisoformat(str(meta["performed_on"]))
-    check_lot_usable(lot, performed_on)
-    policy = records.policy_for(db, batch["reagent"], performed_on)
-    result = compute_primary(
-        config,
-        batch,
-        lot,
-        replicates,
-        excluded,
-        policy,
-        meta.get("burette_capacity_ml"),
-        run_figures(config, chosen, performed_on),
+    run: RunInput,
+    partner: Partner,
+    chosen: Mapping[str, inst_mod.Instrument],
+) -> StandardizationResult:
+    on = run.performed_on
+    policy = records.policy_for(db, batch["reagent"], on)
+    reps = [r.stored() for r in run.replicates]
+    figures = run_figures(config, chosen, on)
+    excluded = dict(run.exclusions)
+    if partner.lot is not None:
+        return compute_primary(config, batch, partner.lot, reps, excluded, policy, run.burette_capacity_ml, figures)
+    assert partner.reference is not None and partner.release is not None
+    rel = partner.release
+    return compute_secondary(
+        config, batch, partner.reference, rel.molarity, rel.u, reps, excluded, policy, run.burette_capacity_ml, figures
     )
-    run = {k: v for k, v in meta.items() if k != "instruments"}
-    run.update({"batch_id": batch["id"], "method": "primary", "standard_lot_id": lot["id"]})
-    return _record(db, run, replicates, result, actor, excluded, chosen, performed_on), result
 
 
-def reference_in_force(db: sqlite_utils.Database, reference_batch: Mapping[str, Any], on: dt.date):
-    """The reference batch's release in force on `on`; Conflict-free InvalidInput when it has none."""
+def compute_run(
+    db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], run: RunInput
+) -> StandardizationResult:
+    """Check a run as record_run does and compute it, storing nothing (the form's "Compute")."""
+    partner, chosen = _resolve(db, batch, run)
+    return _compute_resolved(db, config, batch, run, partner, chosen)
+
+
+def record_run(
+    db: sqlite_utils.Database, config: Mapping[str, Any], batch: Mapping[str, Any], run: RunInput, actor: str
+) -> tuple[int, StandardizationResult]:
+    """Check, compute and store a run (and the instruments it names) in one write; return its id and result.
+
+    Every door (form, CSV import, JSON API, demo loader) records through here, so the same run is
+    refused or stored the same way whichever door it came by. The named instruments' figures enter
+    the budget; a certifying run with an instrument out of calibration is stored but cannot release.
+    """
+    partner, chosen = _resolve(db, batch, run)
+    result = _compute_resolved(db, config, batch, run, partner, chosen)
+    row = run.meta()
+    row.update({"batch_id": batch["id"], "method": run.method})
+    if partner.lot is not None:
+        row["standard_lot_id"] = partner.lot["id"]
+    else:
+        assert partner.reference is not None
+        row.update({"reference_batch_id": partner.reference["id"], "reference_release_id": partner.release.id})
+    reps = [r.stored() for r in run.replicates]
+    return _record(db, row, reps, result, actor, dict(run.exclusions), chosen, run.performed_on), result
+
+
+def reference_in_force(db: sqlite_utils.Database, reference_batch: Mapping[str, Any], on: dt.date) -> Any:
+    """The reference batch's release in force on `on`; InvalidInput naming reference_batch when it has none."""
     release = release_in_force(readmodel.batch_facts(db, reference_batch["id"]), on)
     if release is None:
         raise InvalidInput(
@@ -250,52 +348,6 @@ def reference_in_force(db: sqlite_utils.Database, reference_batch: Mapping[str, 
             ]
         )
     return release
-
-
-def record_secondary_run(
-    db: sqlite_utils.Database,
-    config: Mapping[str, Any],
-    batch: Mapping[str, Any],
-    reference_batch: Mapping[str, Any],
-    meta: Mapping[str, Any],
-    replicates: Sequence[Mapping[str, Any]],
-    actor: str,
-    excluded: Mapping[int, str] | None = None,
-    instruments: Mapping[str, inst_mod.Instrument] | None = None,
-) -> tuple[int, StandardizationResult]:
-    """Compute and store a secondary run against the reference's release in force that day.
-
-    instruments: role ("burette", "pipette") -> Instrument the run used; their figures enter the budget.
-    """
-    excluded = dict(excluded or {})
-    chosen = dict(instruments or {})
-    performed_on = dt.date.fromisoformat(str(meta["performed_on"]))
-    if reference_batch["id"] == batch["id"]:
-        raise InvalidInput([FieldError("reference_batch", "a batch cannot be its own reference")])
-    ref = reference_in_force(db, reference_batch, performed_on)
-    policy = records.policy_for(db, batch["reagent"], performed_on)
-    result = compute_secondary(
-        config,
-        batch,
-        reference_batch,
-        ref.molarity,
-        ref.u,
-        replicates,
-        excluded,
-        policy,
-        meta.get("burette_capacity_ml"),
-        run_figures(config, chosen, performed_on),
-    )
-    run = {k: v for k, v in meta.items() if k != "instruments"}
-    run.update(
-        {
-            "batch_id": batch["id"],
-            "method": "secondary",
-            "reference_batch_id": reference_batch["id"],
-            "reference_release_id": ref.id,
-        }
-    )
-    return _record(db, run, replicates, result, actor, excluded, chosen, performed_on), result
 
 
 def recompute(

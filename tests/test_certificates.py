@@ -9,6 +9,7 @@ import re
 import pypdf
 import pytest
 from click.testing import CliRunner
+from recorded_runs import record
 
 from stockroom import readmodel, records, workflow
 from stockroom.formatting import molarity as format_molarity
@@ -87,7 +88,7 @@ def world(app, database):
         "burette_capacity_ml": 50.0,
         "endpoint": "phenolphthalein, faint pink for 30 s",
     }
-    run_id, _ = workflow.record_primary_run(db, config, naoh, lot, meta, reps, "setup", excluded={5: "overshot the end point"})
+    run_id, _ = record(db, config, naoh, meta, reps, "setup", lot=lot, excluded={5: "overshot the end point"})
     release_id = workflow.accept(db, run_id, "setup")
     return {"db": db, "config": config, "lot": lot, "naoh": naoh, "run_id": run_id, "release_id": release_id}
 
@@ -148,7 +149,7 @@ def test_a_superseded_release_says_so_at_the_top(world):
         for g, t, i, f in GOOD
     ]
     meta = {"purpose": "certify", "performed_on": lab_today().isoformat(), "analyst": "M. Lindqvist", "burette_capacity_ml": 50.0}
-    run_id, _ = workflow.record_primary_run(db, world["config"], world["naoh"], world["lot"], meta, reps, "setup")
+    run_id, _ = record(db, world["config"], world["naoh"], meta, reps, "setup", lot=world["lot"])
     second = workflow.accept(db, run_id, "setup")
     old = flat(text_of(certificates.build_certificate(certificates.certificate_data(db, first, lab_today()))))
     new_release = readmodel.batch_history(db, world["naoh"]["id"])["releases"][-1]
@@ -187,7 +188,7 @@ def test_a_secondary_standardization_shows_the_traceability_chain(world):
         for v in (25.12, 25.15, 25.10, 25.13)
     ]
     meta = {"purpose": "certify", "performed_on": lab_today().isoformat(), "analyst": "J. Abara", "burette_capacity_ml": 50.0}
-    run_id, _ = workflow.record_secondary_run(db, config, hcl, world["naoh"], meta, reps, "setup")
+    run_id, _ = record(db, config, hcl, meta, reps, "setup", reference=world["naoh"])
     release_id = workflow.accept(db, run_id, "setup")
     data = certificates.certificate_data(db, release_id, lab_today())
     assert [step["batch"]["code"] for step in data["chain"]] == [world["naoh"]["code"]]

@@ -1,4 +1,5 @@
-"""Hypothesis fuzzing of the preview API, the run form and the CSV import: only 4xx, never 5xx, nothing stored."""
+"""Hypothesis fuzzing of the preview API, the run form, the JSON run API and the CSV import: only 4xx,
+never 5xx, nothing stored."""
 
 from __future__ import annotations
 
@@ -10,7 +11,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from stockroom import accounts, create_app, records
+from stockroom import accounts, create_app, records, tokens
 from stockroom import db as dbmod
 
 TODAY = dt.date.today()
@@ -65,7 +66,8 @@ def world(tmp_path_factory):
     )
     conn = dbmod.connect(path)
     accounts.HASH_METHOD = "pbkdf2:sha256:1000"
-    accounts.create_user(conn, "fuzzer", "Fuzzer", "staff", "fuzzing-Test-91ab", "test")
+    user = accounts.create_user(conn, "fuzzer", "Fuzzer", "staff", "fuzzing-Test-91ab", "test")
+    token = tokens.create(conn, user.id, user.username, "fuzzing")[1]
     batch = records.create_batch(
         conn,
         {"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 20, "prepared_on": TODAY.isoformat(), "prepared_by": "t"},
@@ -87,7 +89,7 @@ def world(tmp_path_factory):
     conn.close()
     client = app.test_client()
     assert client.post("/sign-in", data={"username": "fuzzer", "password": "fuzzing-Test-91ab"}).status_code == 303
-    return {"app": app, "client": client, "batch": batch, "lot": lot, "path": path}
+    return {"app": app, "client": client, "batch": batch, "lot": lot, "path": path, "token": token}
 
 
 def _counts(world):
@@ -224,3 +226,65 @@ def test_csv_import_never_fails_with_5xx_and_stores_nothing(world, text):
     resp = world["client"].post(f"/batches/{world['batch']['code']}/runs/import", data=data, content_type="multipart/form-data")
     _check_answer(resp)
     assert _counts(world) == before
+
+
+@FUZZ
+@given(
+    fields=st.dictionaries(
+        st.sampled_from(
+            [
+                "method",
+                "purpose",
+                "performed_on",
+                "analyst",
+                "burette_capacity_ml",
+                "temperature_c",
+                "standard_lot_id",
+                "reference_batch",
+                "burette_id",
+                "balance_id",
+                "notes",
+                "extra",
+            ]
+        ),
+        json_value,
+        max_size=6,
+    ),
+    reps=st.one_of(
+        json_value,
+        st.lists(
+            st.dictionaries(
+                st.sampled_from(["mass_g", "gross_g", "tare_g", "initial_ml", "final_ml", "blank_ml", "exclude_reason", "bogus"]),
+                st.one_of(nasty_number, nasty_text),
+                max_size=5,
+            ),
+            max_size=4,
+        ),
+    ),
+)
+def test_run_api_never_fails_with_5xx_and_stores_nothing_when_refused(world, fields, reps):
+    body = {
+        "purpose": "certify",
+        "performed_on": TODAY.isoformat(),
+        "analyst": "Fuzzer",
+        "burette_capacity_ml": 50,
+        "standard_lot_id": world["lot"]["id"],
+        **fields,
+        "replicates": reps,
+    }
+    try:
+        data = json.dumps(body)
+    except (ValueError, TypeError):
+        return
+    before = _counts(world)
+    resp = world["client"].post(
+        f"/api/v1/batches/{world['batch']['code']}/runs",
+        data=data,
+        content_type="application/json",
+        headers={"Authorization": f"Bearer {world['token']}"},
+    )
+    _check_answer(resp)
+    if resp.status_code >= 400:
+        assert _counts(world) == before
+        errors = resp.get_json()["errors"]
+        assert errors and all(e["field"] and e["message"] for e in errors)

@@ -8,7 +8,7 @@ import math
 import pytest
 
 from stockroom.errors import InvalidInput
-from stockroom.web.inputs import MISSING, Parser, field_path, number_problem, range_rule
+from stockroom.parsing import MISSING, Parser, field_path, number_problem, range_rule
 
 
 @pytest.mark.parametrize(

@@ -20,12 +20,13 @@ from pathlib import Path
 import pypdf
 import pytest
 from click.testing import CliRunner
+from recorded_runs import record
 from reportlab.graphics.barcode.qrencoder import QRErrorCorrectLevel
 from reportlab.lib.units import mm
 from reportlab.pdfbase.pdfmetrics import stringWidth
 
 from stockroom import db as dbmod
-from stockroom import readmodel, records, workflow
+from stockroom import readmodel, records
 from stockroom.formatting import molarity as format_molarity
 from stockroom.pdf import labels, layouts
 from stockroom.pdf.labels import LabelOverflow, build_labels, fit_report, label_content, with_content
@@ -97,7 +98,7 @@ def release(db, config, batch, lot, molarity, U, *, days_ago=1, u=None):
         "burette_capacity_ml": 50.0,
         "endpoint": "phenolphthalein",
     }
-    run_id, _ = workflow.record_primary_run(db, config, batch, lot, meta, reps, "setup")
+    run_id, _ = record(db, config, batch, meta, reps, "setup", lot=lot)
     return records.decide_run(
         db,
         run_id,

@@ -10,6 +10,7 @@ import re
 
 import pytest
 from pypdf import PdfReader
+from recorded_runs import record
 
 from stockroom import db as dbmod
 from stockroom import readmodel, records, workflow
@@ -102,14 +103,12 @@ class World:
 
     def primary(self, key, reagent, prepared, on, lot):
         b = self.batches.get(key) or self.batch(key, reagent, prepared)
-        run_id, _ = workflow.record_primary_run(self.conn, self.app.config, b, lot, self.meta(on), PRIMARY, "setup")
+        run_id, _ = record(self.conn, self.app.config, b, self.meta(on), PRIMARY, "setup", lot=lot)
         self.releases.setdefault(key, []).append(workflow.accept(self.conn, run_id, "setup"))
 
     def secondary(self, key, reagent, prepared, on, ref):
         b = self.batches.get(key) or self.batch(key, reagent, prepared)
-        run_id, _ = workflow.record_secondary_run(
-            self.conn, self.app.config, b, self.batches[ref], self.meta(on), SECONDARY, "setup"
-        )
+        run_id, _ = record(self.conn, self.app.config, b, self.meta(on), SECONDARY, "setup", reference=self.batches[ref])
         self.releases.setdefault(key, []).append(workflow.accept(self.conn, run_id, "setup"))
 
     def code(self, key):

@@ -297,3 +297,33 @@ def test_exports(app, setup, signed_in_client, form_token):
     history = staff.get(f"/batches/{code}/history.csv").get_data(as_text=True)
     hist = list(csv.DictReader(io.StringIO(history)))
     assert hist[0]["decision"] == "accept" and hist[0]["released_on"] == TODAY.isoformat()
+
+
+def test_errors_are_listed_by_the_form_labels_and_land_on_the_typed_row(app, setup, signed_in_client, form_token):
+    staff = signed_in_client("staff")
+    # Row 2 left blank: the replicate after it is the request's replicates[2] but the grid's row 4.
+    rows = {
+        f"r{i}_{c}": v
+        for i, row in ((1, GOOD[0]), (3, GOOD[2]), (4, GOOD[3]))
+        for c, v in zip(("gross_g", "tare_g", "initial_ml", "final_ml"), row, strict=True)
+    }
+    rows["r4_final_ml"] = "0.10"
+    form = run_form(setup, rows=[], action="record", **rows)
+    resp = post(staff, form_token, f"/batches/{setup['batch']['code']}/runs/new", form)
+    assert resp.status_code == 422
+    html = resp.get_data(as_text=True)
+    assert '<a href="#f-r4_final_ml">Replicate 4, final reading</a>: the final reading must be greater' in html
+    cell = re.search(r'id="f-r4_final_ml"[^>]*>.*?<span class="field-error"[^>]*>([^<]+)</span>', html, re.S)
+    assert cell and "greater than the initial reading (0.3 mL)" in cell.group(1)
+    assert count(app, "runs") == 0
+
+
+def test_withdrawn_batch_takes_no_run(app, setup, signed_in_client, form_token):
+    conn = dbmod.connect(app.config["DATABASE"])
+    records.withdraw_batch(conn, setup["batch"]["id"], TODAY, "spilled", "setup")
+    conn.close()
+    staff = signed_in_client("staff")
+    url = f"/batches/{setup['batch']['code']}/runs/new"
+    assert staff.get(url).status_code == 409
+    assert post(staff, form_token, url, run_form(setup, action="record")).status_code == 409
+    assert count(app, "runs") == 0

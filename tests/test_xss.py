@@ -5,6 +5,8 @@ from __future__ import annotations
 import datetime as dt
 import re
 
+from recorded_runs import record
+
 from stockroom import db as dbmod
 from stockroom import records, tokens, workflow
 
@@ -58,7 +60,7 @@ def test_payload_in_every_free_text_field_is_escaped_everywhere(app, signed_in_c
         "notes": PAYLOAD,
         "burette_capacity_ml": 50.0,
     }
-    run_id, _ = workflow.record_primary_run(conn, app.config, batch, lot, meta, reps, "xss-staff", excluded={2: PAYLOAD})
+    run_id, _ = record(conn, app.config, batch, meta, reps, "xss-staff", lot=lot, excluded={2: PAYLOAD})
     workflow.accept(conn, run_id, "xss-staff", reason=PAYLOAD)
     records.amend_batch(conn, batch["id"], "container", PAYLOAD + " (2)", PAYLOAD, "xss-staff")
     tokens.create(conn, staff_user.id, "xss-staff", PAYLOAD)

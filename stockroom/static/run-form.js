@@ -11,18 +11,14 @@
   var addRow = document.getElementById("add-row");
   var timer = null;
   var seq = 0;
-  var cols = method === "primary"
-    ? ["gross_g", "tare_g", "mass_g", "initial_ml", "final_ml", "blank_ml", "temperature_c"]
-    : ["aliquot_ml", "initial_ml", "final_ml", "blank_ml", "temperature_c"];
+  // Field names come from the server: each grid input carries its replicate key (data-key) and the
+  // page says which paths of the science core land on which column (data-path-aliases); top-level
+  // fields are named as in the request. The script keeps no copy of that mapping.
+  var aliases = JSON.parse(form.dataset.pathAliases || "{}");
 
   function val(name) {
     var el = form.elements[name];
     return el ? el.value.trim() : "";
-  }
-  function num(text) {
-    // Send exactly what was typed when it is not a plain number, so the API names the problem.
-    if (/^[+-]?(\d+\.?\d*|\.\d+)$/.test(text)) { return parseFloat(text); }
-    return text;
   }
   function el(tag, text, cls) {
     var e = document.createElement(tag);
@@ -30,8 +26,6 @@
     if (cls) { e.className = cls; }
     return e;
   }
-  function pct(x, d) { return x === null || x === undefined ? "—" : (x * 100).toFixed(d) + " %"; }
-  function decimalsFor(U) { return U > 0 ? Math.max(0, 1 - Math.floor(Math.log10(U))) : 5; }
 
   function rows() { return Array.prototype.slice.call(tbody.querySelectorAll("tr[data-row]")); }
 
@@ -41,8 +35,7 @@
       nominal_molarity: parseFloat(form.dataset.nominal),
       min_replicates: parseInt(form.dataset.minReplicates, 10),
       max_rsd: parseFloat(form.dataset.maxRsd),
-      replicates: [],
-      exclusions: []
+      replicates: []
     };
     // The figures of the balance, burette or pipette chosen replace the defaults, as when recording.
     var figures = JSON.parse(form.dataset.instrumentFigures || "{}");
@@ -52,9 +45,11 @@
         Object.keys(figures[chosen]).forEach(function (k) { req[k] = figures[chosen][k]; });
       }
     });
+    // Typed text is sent as typed: the server's one parser reads it and names any problem.
     var cap = val("burette_capacity_ml");
-    if (cap) { req.burette_capacity_ml = num(cap); }
+    if (cap) { req.burette_capacity_ml = cap; }
     var runT = val("temperature_c");
+    if (runT) { req.temperature_c = runT; }
     if (method === "primary") {
       var lot = form.elements.standard_lot_id.selectedOptions[0];
       if (!lot || !lot.value) { return { problem: "Choose the primary-standard lot to see the result." }; }
@@ -70,27 +65,20 @@
     }
     var map = [];
     rows().forEach(function (tr) {
-      var i = tr.dataset.row;
-      var raw = {};
-      var any = false;
-      cols.forEach(function (c) { raw[c] = val("r" + i + "_" + c); if (raw[c]) { any = true; } });
-      if (!any) { return; }
       var rep = {};
-      if (method === "primary") {
-        if (raw.mass_g) { rep.mass_g = num(raw.mass_g); }
-        else { if (raw.gross_g) { rep.gross_g = num(raw.gross_g); } if (raw.tare_g) { rep.tare_g = num(raw.tare_g); } }
-      } else if (raw.aliquot_ml) { rep.aliquot_ml = num(raw.aliquot_ml); }
-      if (raw.initial_ml) { rep.initial_ml = num(raw.initial_ml); }
-      if (raw.final_ml) { rep.final_ml = num(raw.final_ml); }
-      if (raw.blank_ml) { rep.blank_ml = num(raw.blank_ml); }
-      var t = raw.temperature_c || runT;
-      if (t) { rep.temperature_c = num(t); }
-      var excl = form.elements["r" + i + "_exclude"];
+      var any = false;
+      tr.querySelectorAll("input[data-key]").forEach(function (input) {
+        var key = input.dataset.key;
+        if (key === "exclude" || key === "exclude_reason") { return; }
+        if (input.value.trim()) { rep[key] = input.value.trim(); any = true; }
+      });
+      if (!any) { return; }  // a blank row is skipped, as the server skips it
+      var excl = tr.querySelector('input[data-key="exclude"]');
       if (excl && excl.checked) {
-        req.exclusions.push({ index: req.replicates.length,
-                              reason: val("r" + i + "_exclude_reason") || "left out" });
+        var why = tr.querySelector('input[data-key="exclude_reason"]');
+        rep.exclude_reason = why ? why.value.trim() : "";
       }
-      map.push(i);
+      map.push(tr.dataset.row);
       req.replicates.push(rep);
     });
     if (!req.replicates.length) { return { problem: "Enter replicates to see the result." }; }
@@ -106,21 +94,26 @@
     });
   }
 
+  function inputFor(path, map) {
+    var m = /^replicates\[(\d+)\]\.?(\w*)$/.exec(path);
+    if (!m) { return form.elements[path] || null; }
+    var tr = tbody.querySelector('tr[data-row="' + map[parseInt(m[1], 10)] + '"]');
+    if (!tr) { return null; }
+    var key = aliases[m[2]] || m[2];
+    return tr.querySelector('input[data-key="' + key + '"]') || tr.querySelector("input[data-key]");
+  }
+
   function showErrors(errors, map) {
     var general = [];
     errors.forEach(function (e) {
-      var m = /^replicates\[(\d+)\]\.?(\w*)/.exec(e.field);
-      if (m) {
-        var row = map[parseInt(m[1], 10)];
-        var col = m[2] === "volume_ml" ? "final_ml" : (m[2] || "initial_ml");
-        var input = form.elements["r" + row + "_" + col] || form.elements["r" + row + "_initial_ml"];
-        if (input) {
-          input.parentNode.classList.add("live-bad");
-          input.parentNode.appendChild(el("span", e.message, "field-error live-error"));
-          return;
-        }
+      var input = inputFor(e.field, map);
+      if (input && input.closest("#replicates")) {
+        input.parentNode.classList.add("live-bad");
+        input.parentNode.appendChild(el("span", e.message, "field-error live-error"));
+        return;
       }
-      general.push(e.field + ": " + e.message);
+      var label = input && input.id ? form.querySelector('label[for="' + input.id + '"]') : null;
+      general.push((label ? label.textContent.trim() : e.field) + ": " + e.message);
     });
     body.replaceChildren();
     var box = el("div", null, "verdict verdict-fail");
@@ -136,26 +129,23 @@
   function fact(dl, term, value) { dl.appendChild(el("dt", term)); dl.appendChild(el("dd", value)); }
 
   function showResult(res, map) {
+    var shown = res.display;  // every figure as text, rounded by the server's formatter
     res.replicates.forEach(function (r, j) {
       var cell = tbody.querySelector('.live-molarity[data-row="' + map[j] + '"]');
       if (!cell) { return; }
-      cell.textContent = r.molarity.toFixed(5);
+      cell.textContent = shown.replicates[j];
       if (r.excluded) { cell.appendChild(el("span", " left out", "quiet")); }
       else if (r.outlier) { cell.appendChild(el("span", " possible outlier", "flag")); }
     });
     body.replaceChildren();
-    var d = decimalsFor(res.U);
-    body.appendChild(el("p", res.molarity.toFixed(d) + " ± " + res.U.toFixed(d) + " mol/L (k = " + res.k + ")",
-                        "big-value"));
+    body.appendChild(el("p", shown.molarity, "big-value"));
     var dl = el("dl", null, "facts");
     fact(dl, "Replicates used", res.n + " of " + res.n_total);
-    fact(dl, "Standard deviation", res.sd === null ? "— (needs 2 or more)" : res.sd.toFixed(6) + " mol/L");
-    fact(dl, "RSD", pct(res.rsd, 3));
-    fact(dl, "95 % confidence interval of the mean",
-         res.ci95[0] === null ? "—" : res.ci95[0].toFixed(6) + " to " + res.ci95[1].toFixed(6) + " mol/L");
-    fact(dl, "Standard uncertainty u", res.u.toFixed(6) + " mol/L (" + pct(res.u_rel, 3) + ")");
-    fact(dl, "Monte Carlo cross-check", "u = " + res.monte_carlo.u.toFixed(6) + " mol/L from " +
-         res.monte_carlo.draws.toLocaleString("en") + " draws");
+    fact(dl, "Standard deviation", shown.sd);
+    fact(dl, "RSD", shown.rsd);
+    fact(dl, "95 % confidence interval of the mean", shown.ci95);
+    fact(dl, "Standard uncertainty u", shown.u);
+    fact(dl, "Monte Carlo cross-check", shown.monte_carlo);
     body.appendChild(dl);
     if (res.accepted) {
       body.appendChild(el("p", "Meets the acceptance rule.", "verdict verdict-pass"));
@@ -181,14 +171,14 @@
     ["Input", "u relative", "Share"].forEach(function (h) { head.appendChild(el("th", h)); });
     var thead = el("thead"); thead.appendChild(head); table.appendChild(thead);
     var tb = el("tbody");
-    res.budget.forEach(function (b) {
+    res.budget.forEach(function (b, j) {
       var tr = el("tr");
       tr.appendChild(el("td", b.source));
-      tr.appendChild(el("td", pct(b.u_rel, 4), "num"));
+      tr.appendChild(el("td", shown.budget[j].u_rel, "num"));
       var share = el("td", null, "num");
       var meter = el("meter"); meter.min = 0; meter.max = 1; meter.value = b.share || 0;
       share.appendChild(meter);
-      share.appendChild(document.createTextNode(" " + pct(b.share, 1)));
+      share.appendChild(document.createTextNode(" " + shown.budget[j].share));
       tr.appendChild(share);
       tb.appendChild(tr);
     });
@@ -224,15 +214,14 @@
     timer = setTimeout(refresh, 250);
   }
 
-  // Enter in a grid cell moves to the same column of the next row (adding one if needed) instead
+  // Enter in a grid cell moves to the first column of the next row (adding one if needed) instead
   // of submitting the form half-typed.
   tbody.addEventListener("keydown", function (ev) {
     if (ev.key !== "Enter" || ev.target.tagName !== "INPUT") { return; }
     ev.preventDefault();
     var tr = ev.target.closest("tr");
     var next = tr.nextElementSibling || appendRow();
-    var firstCol = method === "primary" ? "gross_g" : "aliquot_ml";
-    var target = form.elements["r" + next.dataset.row + "_" + firstCol];
+    var target = next.querySelector("input[data-key]");  // the row's first cell
     if (target) { target.focus(); }
   });
 

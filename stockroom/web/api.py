@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime as dt
 from typing import Any
 
 from flask import Blueprint, current_app, jsonify, request
@@ -159,69 +160,30 @@ def create_batch() -> Any:
     return jsonify({"id": row["code"], "status": "awaiting", "warnings": warnings}), 201
 
 
-_REP_KEYS = ("gross_g", "tare_g", "mass_g", "aliquot_ml", "initial_ml", "final_ml", "blank_ml", "temperature_c")
-
-
 @bp.post("/batches/<code>/runs")
 @api_require("run.record")
 def create_run(code: str) -> Any:
-    """Record a run from JSON (`replicates` as a list); answers the computed result; nothing is decided."""
-    from stockroom import workflow
-    from stockroom.errors import FieldError, InvalidInput
-    from stockroom.web import runs
+    """Record a run from JSON (stockroom.run_input's shape); answers the computed result; nothing is decided.
+
+    The same parser and the same record_run as the run form: unknown keys, a withdrawn batch, an
+    expired lot, an instrument of the wrong kind... are refused here exactly as there.
+    """
+    from stockroom import run_input, workflow
 
     db = get_db()
     batch = records.batch_by_code(db, code)
     data = _json_body()
-    method = data.get("method", "primary")
-    if method not in ("primary", "secondary"):
-        raise InvalidInput([FieldError("method", "must be 'primary' or 'secondary'")])
-    reps = data.get("replicates")
-    if not isinstance(reps, list) or not reps or len(reps) > runs.MAX_ROWS:
-        raise InvalidInput([FieldError("replicates", f"must be a list of 1 to {runs.MAX_ROWS} replicates")])
-    form: dict[str, Any] = {k: _as_text(v) for k, v in data.items() if k not in ("replicates", "method")}
-    for i, rep in enumerate(reps, start=1):
-        if not isinstance(rep, dict):
-            raise InvalidInput([FieldError(f"replicates[{i - 1}]", "must be an object")])
-        for key, value in rep.items():
-            if key == "exclude_reason":
-                form[f"r{i}_exclude"] = "on"
-                form[f"r{i}_exclude_reason"] = value
-            elif key in _REP_KEYS:
-                form[f"r{i}_{key}"] = _as_text(value)
-            else:
-                raise InvalidInput([FieldError(f"replicates[{i - 1}].{key}", "is not a field of a replicate")])
-    meta, partner, rep_rows, excluded, p = runs.parse_run(batch, method, form)
-    if not p.ok:
-        raise InvalidInput([_json_field(e) for e in p.errors])
+    run = run_input.parse_run(data, today=lab_today(), prepared_on=dt.date.fromisoformat(batch["prepared_on"]))
     user = current_user()
-    actor = user.username if user else "?"
-    config = current_app.config
-    if method == "primary":
-        run_id, result = workflow.record_primary_run(db, config, batch, partner, meta, rep_rows, actor, excluded)
-    else:
-        run_id, result = workflow.record_secondary_run(db, config, batch, partner, meta, rep_rows, actor, excluded)
-    return jsonify({"run_id": run_id, "result": workflow.snapshot(result)}), 201
-
-
-def _json_field(error: Any) -> Any:
-    """r3_final_ml -> replicates[2].final_ml, so JSON clients see their own paths."""
-    import re
-
-    from stockroom.errors import FieldError
-
-    m = re.fullmatch(r"r(\d+)_(\w+)", error.field)
-    if m:
-        return FieldError(f"replicates[{int(m.group(1)) - 1}].{m.group(2)}", error.message)
-    return error
+    run_id, _ = workflow.record_run(db, current_app.config, batch, run, user.username if user else "?")
+    # The result as stored, with the warnings about the run's instruments.
+    return jsonify({"run_id": run_id, "result": records.run_by_id(db, run_id)["current"]["result"]}), 201
 
 
 @bp.post("/runs/<int:run_id>/decision")
 @api_require("run.decide")
 def decide_run(run_id: int) -> Any:
     """Accept (releasing a certifying run) or reject a run: {decision, reason, released_on}."""
-    import datetime as dt
-
     from stockroom import workflow
     from stockroom.web.forms import date as form_date
     from stockroom.web.inputs import Parser
@@ -229,6 +191,7 @@ def decide_run(run_id: int) -> Any:
     db = get_db()
     data = _json_body()
     p = Parser()
+    p.known_keys(data, ("decision", "reason", "released_on"))
     decision = p.choice(data.get("decision"), "decision", ("accept", "reject"))
     reason = p.text(data.get("reason"), "reason", required=decision == "reject", max_length=500) or ""
     run = records.run_by_id(db, run_id)

@@ -21,7 +21,7 @@ from flask import Blueprint, flash, redirect, render_template, request, url_for
 
 from stockroom import instruments as inst_mod
 from stockroom.db import get_db
-from stockroom.errors import InvalidInput, NotFound
+from stockroom.errors import InvalidInput
 from stockroom.instruments import Instrument
 from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
@@ -223,35 +223,6 @@ def preview_figures(method: str, on: dt.date) -> dict[str, dict[str, float]]:
             else:
                 out[str(inst.id)] = {"pipette_tolerance_ml": f.pipette_tolerance_ml}
     return out
-
-
-def read_run_instruments(p: Parser, form: Mapping[str, Any], method: str, capacity_ml: float | None) -> dict[str, Instrument]:
-    """The instruments a run form names (role -> Instrument); errors go to `p` under <role>_id.
-
-    A named burette must match the burette size of the run (capacity_ml, mL).
-    """
-    chosen: dict[str, Instrument] = {}
-    for role in inst_mod.ROLES_FOR_METHOD.get(method, ()):
-        name = f"{role}_id"
-        iid = p.integer(form.get(name) or None, name, required=False, ge=1)
-        if iid is None:
-            continue
-        try:
-            inst = inst_mod.instrument_by_id(get_db(), iid)
-        except NotFound:
-            p.error(name, "no such instrument: choose one from the list")
-            continue
-        if inst.kind != role:
-            p.error(name, f"{inst.code} is a {inst.kind}, not a {role}")
-            continue
-        if role == "burette" and capacity_ml is not None and inst.capacity != capacity_ml:
-            p.error(
-                name,
-                f"{inst.code} is a {inst.capacity:g} mL burette but the run says {capacity_ml:g} mL: choose the matching size",
-            )
-            continue
-        chosen[role] = inst
-    return chosen
 
 
 # --------------------------------------------------------------------------------------------- views

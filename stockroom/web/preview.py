@@ -13,8 +13,7 @@ from typing import Any
 
 from flask import Blueprint, current_app, jsonify, request
 
-from stockroom import chemistry, stats
-from stockroom.corrections import ReadingError, delivered_volume
+from stockroom import chemistry, formatting, run_input, stats
 from stockroom.errors import FieldError, InvalidInput, StockroomError
 from stockroom.standardization import (
     AliquotReplicate,
@@ -38,21 +37,16 @@ from stockroom.web.inputs import MISSING, Parser, field_path, number_problem
 bp = Blueprint("preview", __name__)
 
 URL_RULE = "/api/v1/standardizations/preview"
-MAX_REPLICATES = 50
+MAX_REPLICATES = run_input.LIMITS.max_replicates
 # A preview may ask for more draws than the default, up to the 10^6 the benchmark times.
 MAX_DRAWS = 1_000_000
 MIN_DRAWS = 1_000
-# Upper bounds well past any bench titration; they keep nonsense (a mass of 1e300 g) out of the
-# arithmetic so every answer stays finite.
-MAX_MASS_G = 1000.0
-MAX_VOLUME_ML = 1000.0
+# The replicates and the fields a run shares with the form (burette, temperatures, reasons) are
+# read by stockroom.run_input under its one table of limits; these bound the preview's own
+# standalone fields, well past any bench titration, so nonsense (1e300) stays out of the arithmetic.
 MAX_MOLARITY = 20.0
 MAX_U_MASS_G = 1.0
 MAX_U_VOLUME_ML = 10.0
-# Smallest amounts that can be measured at all: a hundredth of a 0.1 mg balance digit, a
-# thousandth of a mL. Below them the arithmetic would reach infinities rather than an answer.
-MIN_MASS_G = 1e-5
-MIN_VOLUME_ML = 1e-3
 # A standard assaying under half its label is not a primary standard (common practice: they are
 # >= 99.9 %); the floor only keeps absurd fractions out.
 MIN_PURITY = 0.5
@@ -69,6 +63,7 @@ _COMMON_KEYS = {
     "nominal_molarity",
     "exclusions",
     "burette_capacity_ml",
+    "temperature_c",
     "min_replicates",
     "max_rsd",
     "monte_carlo_draws",
@@ -88,8 +83,6 @@ PRIMARY_KEYS = _COMMON_KEYS | {
     "dried_at_c",
 }
 SECONDARY_KEYS = _COMMON_KEYS | {"reference", "standard", "aliquot_of", "u_aliquot_ml"}
-PRIMARY_REPLICATE_KEYS = {"mass_g", "gross_g", "tare_g", "volume_ml", "initial_ml", "final_ml", "blank_ml", "temperature_c"}
-SECONDARY_REPLICATE_KEYS = {"aliquot_ml", "volume_ml", "initial_ml", "final_ml", "blank_ml", "temperature_c"}
 REFERENCE_KEYS = {"molarity", "u", "titrant"}
 
 
@@ -133,7 +126,36 @@ def preview() -> Any:
         # Only reachable with valid-looking numbers whose arithmetic still fails (e.g. overflow);
         # the answer stays a 422 naming the request as a whole rather than a 500.
         return _error_response([FieldError("_", f"these values cannot be computed: {exc}")], 422)
-    return jsonify(result_as_dict(result, extra))
+    body = result_as_dict(result, extra)
+    body["display"] = display_strings(body)
+    return jsonify(body)
+
+
+def display_strings(body: dict[str, Any]) -> dict[str, Any]:
+    """The result as the run form shows it, made by stockroom.formatting (the script only places it).
+
+    body: result_as_dict's answer (molarity, sd, ci95, u in mol/L; rsd, u_rel, shares as fractions).
+    The roundings are those of templates/runs/_result.html, so "Compute" and the live preview agree.
+    """
+    unit = "mol/L"
+    sd, ci, u = body.get("sd"), body.get("ci95") or [None, None], body.get("u")
+    mc = body.get("monte_carlo") or {}
+    ci_text = formatting.DASH
+    if ci[0] is not None:
+        ci_text = f"{formatting.quantity(ci[0], '', 6).strip()} to {formatting.quantity(ci[1], unit, 6)}"
+    return {
+        "molarity": formatting.molarity(body.get("molarity"), body.get("U"), body.get("k")),
+        "sd": "— (needs 2 or more)" if sd is None else formatting.quantity(sd, unit, 6),
+        "rsd": formatting.percent(body.get("rsd"), 3),
+        "ci95": ci_text,
+        "u": f"{formatting.quantity(u, unit, 6)} ({formatting.percent(body.get('u_rel'), 3)})",
+        "monte_carlo": f"u = {formatting.quantity(mc.get('u'), unit, 6)} from {int(mc.get('draws') or 0):,} draws",
+        "replicates": [formatting.quantity(r.get("molarity"), unit, 5) for r in body.get("replicates", [])],
+        "budget": [
+            {"u_rel": formatting.percent(b.get("u_rel"), 4), "share": formatting.percent(b.get("share"), 1)}
+            for b in body.get("budget", [])
+        ],
+    }
 
 
 # --------------------------------------------------------------------------- request → run
@@ -177,16 +199,25 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
         "u_repeatability_rel": p.number(
             data.get("u_repeatability_rel", MISSING), "u_repeatability_rel", required=False, ge=0, lt=1
         ),
-        "burette_capacity_ml": p.number(
-            data.get("burette_capacity_ml", MISSING), "burette_capacity_ml", required=False, gt=0, le=1000, unit="mL"
-        ),
+        "burette_capacity_ml": run_input.burette_capacity(p, data.get("burette_capacity_ml", MISSING), required=False),
     }
-    reps_raw = p.array(data.get("replicates", MISSING), "replicates", min_items=1, max_items=MAX_REPLICATES)
-    exclusions = _exclusions(p, data.get("exclusions", MISSING), len(reps_raw) if reps_raw else 0)
+    # The replicates by the run parser every door uses (a titre may also be given as volume_ml here).
+    reps_raw = data.get("replicates", MISSING)
+    reps, excluded = run_input.read_replicates(
+        p,
+        reps_raw,
+        "secondary" if secondary else "primary",
+        capacity_ml=common["burette_capacity_ml"],
+        run_temperature=run_input.temperature(p, data.get("temperature_c", MISSING), "temperature_c"),
+        allow_volume=True,
+    )
+    n = len(reps_raw) if isinstance(reps_raw, list) else 0
+    exclusions = _exclusions(p, data.get("exclusions", MISSING), n)
+    exclusions += tuple(Exclusion(pos - 1, why) for pos, why in sorted(excluded.items()))
     if secondary:
-        result, extra = _secondary(p, data, titrant, reps_raw, exclusions, common, instruments, rule)
+        result, extra = _secondary(p, data, titrant, reps, exclusions, common, instruments, rule)
     else:
-        result, extra = _primary(p, data, titrant, reps_raw, exclusions, common, instruments, rule)
+        result, extra = _primary(p, data, titrant, reps, exclusions, common, instruments, rule)
     return result, extra
 
 
@@ -226,91 +257,24 @@ def _exclusions(p: Parser, raw: Any, n: int) -> tuple[Exclusion, ...]:
             continue
         p.known_keys(obj, {"index", "reason"}, base)
         index = p.integer(obj.get("index", MISSING), field_path(base, "index"), ge=0, le=max(n - 1, 0))
-        reason = p.text(obj.get("reason", MISSING), field_path(base, "reason"), max_length=500)
+        reason = p.text(obj.get("reason", MISSING), field_path(base, "reason"), max_length=run_input.LIMITS.max_reason)
         if index is not None and reason is not None:
             out.append(Exclusion(index, reason))
     return tuple(out)
 
 
-def _titre(p: Parser, obj: dict[str, Any], base: str) -> float | None:
-    """volume_ml, or final_ml − initial_ml; an error names whichever field is wrong."""
-    has_readings = "initial_ml" in obj or "final_ml" in obj
-    if "volume_ml" in obj or not has_readings:
-        if has_readings:
-            p.error(field_path(base, "volume_ml"), "give volume_ml, or initial_ml and final_ml, not both")
-            return None
-        return _measurable(
-            p,
-            p.number(obj.get("volume_ml", MISSING), field_path(base, "volume_ml"), gt=0, le=MAX_VOLUME_ML, unit="mL"),
-            field_path(base, "volume_ml"),
-            MIN_VOLUME_ML,
-            "mL",
+def _primary_replicates(reps: list[run_input.ReplicateInput]) -> list[Replicate]:
+    return [
+        Replicate(
+            volume_ml=r.volume_ml,
+            mass_g=r.mass_g,
+            gross_g=r.gross_g,
+            tare_g=r.tare_g,
+            blank_ml=r.blank_ml,
+            temperature_c=r.temperature_c,
         )
-    initial = p.number(obj.get("initial_ml", MISSING), field_path(base, "initial_ml"), ge=0, le=MAX_VOLUME_ML, unit="mL")
-    final = p.number(obj.get("final_ml", MISSING), field_path(base, "final_ml"), gt=0, le=MAX_VOLUME_ML, unit="mL")
-    if initial is None or final is None:
-        return None
-    try:
-        v = delivered_volume(initial, final)
-    except ReadingError as exc:
-        p.error(field_path(base, "final_ml"), exc.message)
-        return None
-    if v < MIN_VOLUME_ML:
-        p.error(field_path(base, "final_ml"), "must be greater than initial_ml (nothing was delivered)")
-        return None
-    return v
-
-
-def _blank_and_temperature(p: Parser, obj: dict[str, Any], base: str) -> tuple[float | None, float | None]:
-    blank = p.number(
-        obj.get("blank_ml", MISSING), field_path(base, "blank_ml"), required=False, ge=0, le=MAX_VOLUME_ML, unit="mL"
-    )
-    temperature = p.number(
-        obj.get("temperature_c", MISSING), field_path(base, "temperature_c"), required=False, ge=5, le=40, unit="°C"
-    )
-    return blank, temperature
-
-
-def _check_blank(p: Parser, base: str, volume: float | None, blank: float | None) -> None:
-    if volume is not None and blank is not None and volume - blank < MIN_VOLUME_ML:
-        p.error(field_path(base, "blank_ml"), f"must be less than the titre ({volume:g} mL)")
-
-
-def _primary_replicates(p: Parser, reps_raw: list[Any] | None) -> list[Replicate]:
-    out: list[Replicate] = []
-    for i, item in enumerate(reps_raw or ()):
-        base = field_path("replicates", i)
-        obj = p.mapping(item, base)
-        if obj is None:
-            continue
-        p.known_keys(obj, PRIMARY_REPLICATE_KEYS, base)
-        mass = gross = tare = None
-        if "gross_g" in obj or "tare_g" in obj:
-            if "mass_g" in obj:
-                p.error(field_path(base, "mass_g"), "give mass_g, or gross_g and tare_g, not both")
-            gross = p.number(obj.get("gross_g", MISSING), field_path(base, "gross_g"), gt=0, le=MAX_MASS_G, unit="g")
-            tare = p.number(obj.get("tare_g", MISSING), field_path(base, "tare_g"), ge=0, le=MAX_MASS_G, unit="g")
-            if gross is not None and tare is not None and gross - tare < MIN_MASS_G:
-                p.error(field_path(base, "gross_g"), "must be greater than tare_g (mass by difference)")
-        else:
-            mass = _measurable(
-                p,
-                p.number(obj.get("mass_g", MISSING), field_path(base, "mass_g"), gt=0, le=MAX_MASS_G, unit="g"),
-                field_path(base, "mass_g"),
-                MIN_MASS_G,
-                "g",
-            )
-        volume = _titre(p, obj, base)
-        blank, temperature = _blank_and_temperature(p, obj, base)
-        _check_blank(p, base, volume, blank)
-        if not p.has_error(base):
-            assert volume is not None  # _titre records an error under base whenever it returns None
-            out.append(
-                Replicate(
-                    volume_ml=volume, mass_g=mass, gross_g=gross, tare_g=tare, blank_ml=blank or 0.0, temperature_c=temperature
-                )
-            )
-    return out
+        for r in reps
+    ]
 
 
 def _purity(p: Parser, data: dict[str, Any]) -> tuple[float | None, InputQuantity | None]:
@@ -357,7 +321,7 @@ def _primary(
     p: Parser,
     data: dict[str, Any],
     titrant: chemistry.Titrant | None,
-    reps_raw: list[Any] | None,
+    reps: list[run_input.ReplicateInput],
     exclusions: tuple[Exclusion, ...],
     common: dict[str, Any],
     instruments: Instruments,
@@ -384,7 +348,7 @@ def _primary(
     if mm_u is not None and "molar_mass_g_mol" not in data:
         p.error("u_molar_mass_g_mol", "goes with molar_mass_g_mol")
     dried_at = p.number(data.get("dried_at_c", MISSING), "dried_at_c", required=False, ge=0, le=400, unit="°C")
-    replicates = _primary_replicates(p, reps_raw)
+    replicates = _primary_replicates(reps)
     p.raise_if_errors()
     assert titrant is not None and std is not None and nu is not None
     mm = std.molar_mass
@@ -446,7 +410,7 @@ def _secondary(
     p: Parser,
     data: dict[str, Any],
     titrant: chemistry.Titrant | None,
-    reps_raw: list[Any] | None,
+    reps: list[run_input.ReplicateInput],
     exclusions: tuple[Exclusion, ...],
     common: dict[str, Any],
     instruments: Instruments,
@@ -479,28 +443,12 @@ def _secondary(
             p.error("reference.titrant" if ref_obj and "titrant" in ref_obj else "standard", exc.message)
     aliquot_of = p.choice(data.get("aliquot_of", MISSING), "aliquot_of", ("new", "reference"), default="new")
     u_aliquot = p.number(data.get("u_aliquot_ml", MISSING), "u_aliquot_ml", required=False, ge=0, le=MAX_U_VOLUME_ML, unit="mL")
-    replicates: list[AliquotReplicate] = []
-    for i, item in enumerate(reps_raw or ()):
-        base = field_path("replicates", i)
-        obj = p.mapping(item, base)
-        if obj is None:
-            continue
-        p.known_keys(obj, SECONDARY_REPLICATE_KEYS, base)
-        aliquot = _measurable(
-            p,
-            p.number(obj.get("aliquot_ml", MISSING), field_path(base, "aliquot_ml"), gt=0, le=MAX_VOLUME_ML, unit="mL"),
-            field_path(base, "aliquot_ml"),
-            MIN_VOLUME_ML,
-            "mL",
+    replicates = [
+        AliquotReplicate(
+            aliquot_ml=float(r.aliquot_ml or 0.0), volume_ml=r.volume_ml, blank_ml=r.blank_ml, temperature_c=r.temperature_c
         )
-        volume = _titre(p, obj, base)
-        blank, temperature = _blank_and_temperature(p, obj, base)
-        _check_blank(p, base, volume, blank)
-        if not p.has_error(base):
-            assert aliquot is not None and volume is not None
-            replicates.append(
-                AliquotReplicate(aliquot_ml=aliquot, volume_ml=volume, blank_ml=blank or 0.0, temperature_c=temperature)
-            )
+        for r in reps
+    ]
     p.raise_if_errors()
     assert titrant is not None and ref_titrant is not None and nu is not None
     assert ref_molarity is not None and ref_u is not None and aliquot_of is not None

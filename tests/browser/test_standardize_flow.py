@@ -89,6 +89,10 @@ def test_register_standardize_and_release(staff_page, staff_demo_server, screens
     value = page.locator("#preview-body .big-value").inner_text()
     mean = expected_mean()
     assert value.startswith(f"{mean:.5f}"[:7]), (value, mean)
+    # The figures are the server's display strings (stockroom.formatting), placed as they come.
+    assert re.fullmatch(r"0\.\d+ ± 0\.000\d+ mol/L \(k = 2\)", value), value
+    facts = page.locator("#preview-body dl.facts").inner_text()
+    assert re.search(r"0\.\d{6} mol/L \(\d\.\d{3} %\)", facts), facts  # u with its relative value
     g, t, i, f = ROWS[3]
     row4 = (
         1000
