@@ -31,6 +31,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.traceability",
             "stockroom.hazards",
             "stockroom.csvio",
+            "stockroom.parsing",
             "stockroom.run_input",
             "stockroom.glassware",
         ),
