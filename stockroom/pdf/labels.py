@@ -37,10 +37,9 @@ from reportlab.lib.units import mm
 from reportlab.pdfbase.pdfmetrics import getAscentDescent, stringWidth
 from reportlab.pdfgen.canvas import Canvas
 
-from stockroom import chemistry, hazards, records
+from stockroom import chemistry, formatting, hazards, records
 from stockroom import db as dbmod
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
-from stockroom.formatting import molarity as format_molarity
 from stockroom.hazards import Classification, LabelElements
 from stockroom.pdf import ghs
 from stockroom.pdf.layouts import Field, Layout
@@ -109,7 +108,7 @@ class LabelContent:
 
 def value_text(molarity: float, U: float, k: float, reference_temperature_c: float) -> str:
     """The certified value as labels print it: '0.10214 ± 0.00020 mol/L (k = 2) at 20 °C' (mol/L, °C)."""
-    return f"{format_molarity(molarity, U, k)} at {reference_temperature_c:g} °C"
+    return f"{formatting.molarity(molarity, U, k)} at {formatting.reference_temperature(reference_temperature_c)}"
 
 
 def not_for_use_text(status: Status) -> str:
