@@ -75,16 +75,21 @@ def value_u(value: float | None, U: float | None, unit: str, k: float | None = N
     return text
 
 
-def value_at(value: float | None, U: float | None, unit: str, *, default_decimals: int = 5) -> str:
+def value_at(
+    value: float | None, U: float | None, unit: str, *, default_decimals: int = 5, signed: bool = False
+) -> str:
     """A value without its own U, at the decimal place another value's U sets ('0.10205 mol/L').
 
     For figures derived from a certified value (the value at the bench temperature, a trend, an
-    interval's ends): they read to the same place as the value they come from. value and U in `unit`.
+    interval's ends): they read to the same place as the value they come from. value and U in `unit`;
+    signed puts '+' before a positive value (a rate of change).
     """
     if value is None or not math.isfinite(value):
         return DASH
-    d = decimals_for(U, default_decimals)
-    return f"{fixed(value, d)} {unit}" if unit else fixed(value, d)
+    text = fixed(value, decimals_for(U, default_decimals))
+    if signed and not text.startswith("-"):
+        text = "+" + text
+    return f"{text} {unit}" if unit else text
 
 
 def molarity(value: float | None, U: float | None = None, k: float | None = None, unit: str = "mol/L") -> str:
