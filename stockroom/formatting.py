@@ -75,9 +75,7 @@ def value_u(value: float | None, U: float | None, unit: str, k: float | None = N
     return text
 
 
-def value_at(
-    value: float | None, U: float | None, unit: str, *, default_decimals: int = 5, signed: bool = False
-) -> str:
+def value_at(value: float | None, U: float | None, unit: str, *, default_decimals: int = 5, signed: bool = False) -> str:
     """A value without its own U, at the decimal place another value's U sets ('0.10205 mol/L').
 
     For figures derived from a certified value (the value at the bench temperature, a trend, an
@@ -104,6 +102,14 @@ def percent_u(value: float | None, U: float | None, k: float | None = None) -> s
     return value_u(value * 100, None if U is None else U * 100, "%", k, default_decimals=3)
 
 
+def relative_percent(u_rel: float | None) -> str:
+    """A relative uncertainty (dimensionless, 0.00020) in per cent to two significant figures: '0.020 %'."""
+    if u_rel is None or not math.isfinite(u_rel):
+        return DASH
+    rel = abs(u_rel) * 100
+    return "0 %" if rel == 0 else f"{fixed(rel, decimals_for(rel))} %"
+
+
 def relative(U: float | None, value: float | None, k: float | None = None) -> str:
     """U relative to the value, in per cent to two significant figures: '0.20 % (k = 2)'.
 
@@ -111,10 +117,7 @@ def relative(U: float | None, value: float | None, k: float | None = None) -> st
     """
     if U is None or value is None or not math.isfinite(U) or not math.isfinite(value) or value == 0:
         return DASH
-    rel = abs(U / value) * 100
-    if rel == 0:
-        return "0 %"
-    text = f"{fixed(rel, decimals_for(rel))} %"
+    text = relative_percent(U / value)
     return text + (f" ({coverage(k)})" if k is not None else "")
 
 

@@ -15,6 +15,7 @@ from stockroom.formatting import (
     percent_u,
     quantity,
     relative,
+    relative_percent,
     signed_percent,
     temperature,
     uncertainty,
@@ -78,6 +79,7 @@ def install(app: Flask) -> None:
     app.add_template_filter(value_at, "value_at")
     app.add_template_filter(percent_u, "percent_u")
     app.add_template_filter(relative, "relative")
+    app.add_template_filter(relative_percent, "relative_percent")
     app.add_template_filter(uncertainty, "uncertainty")
     app.add_template_filter(interval, "interval")
     app.add_template_filter(signed_percent, "signed_percent")
