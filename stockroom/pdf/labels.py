@@ -22,6 +22,7 @@ import functools
 import io
 import json
 import math
+import re
 import unicodedata
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
@@ -130,7 +131,7 @@ def placeholder_values(content: LabelContent, serial: int, codes_only: bool = Fa
         "reagent": content.reagent,
         "formula": content.formula,
         "nominal": content.nominal,
-        "certified": content.certified,
+        "certified": _unbreakable_figures(content.certified),
         "certified_caption": "Certified molarity" if content.released else "",
         "standardized_on": content.standardized_on,
         "released_on": content.released_on,
@@ -150,6 +151,15 @@ def placeholder_values(content: LabelContent, serial: int, codes_only: bool = Fa
         "serial": format_serial(serial),
         "printed_on": content.printed_on,
     }
+
+
+def _unbreakable_figures(text: str) -> str:
+    """The value text with no-break spaces where a line must not break: inside '20 °C', 'mol/L', '(k = 2)',
+    'at 20 °C' and before '±'; it may break after '±', before '(k' and before 'at'."""
+    text = re.sub(r"(\d) (?=mol/L|°C|%)", "\\1" + NBSP, text)
+    text = re.sub(r"\(k = ", f"(k{NBSP}={NBSP}", text)
+    text = re.sub(r" at (?=\d)", f" at{NBSP}", text)
+    return text.replace(" ± ", f"{NBSP}± ")
 
 
 def format_serial(serial: int) -> str:
