@@ -15,6 +15,8 @@ from dataclasses import dataclass
 from stockroom import chemistry
 from stockroom.chemistry import ACID, BASE, Titrant
 from stockroom.errors import FieldError, InvalidInput
+from stockroom.formatting import percent
+from stockroom.formatting import significant as sig
 
 LIQUID = "liquid"
 SOLID = "solid"
@@ -202,21 +204,6 @@ def _raise(errors: list[FieldError]) -> None:
 
 
 # ---------------------------------------------------------------------------------------------------------
-# Formatting for instructions (4 significant figures, no exponent: people read these at the bench)
-
-
-def _sig(x: float, digits: int = 4) -> str:
-    if x == 0:
-        return "0"
-    decimals = max(0, digits - 1 - math.floor(math.log10(abs(x))))
-    return f"{x:.{decimals}f}"
-
-
-def _pct(w: float) -> str:
-    return f"{w * 100:g} %"
-
-
-# ---------------------------------------------------------------------------------------------------------
 # Concentrate molarity
 
 
@@ -274,7 +261,7 @@ def _typical_mismatch(t: Titrant, form: str, w: float, rho: float | None) -> str
         lo, hi = c.density_range_g_ml
         if lo_w <= w <= hi_w and not (lo - 0.02 <= rho <= hi + 0.02):
             return (
-                f"A {_pct(w)} {t.name} concentrate usually has a density of {lo:g}–{hi:g} g/mL at 20 °C "
+                f"A {percent(w, None)} {t.name} concentrate usually has a density of {lo:g}–{hi:g} g/mL at 20 °C "
                 f"({VERIFY}); {rho:g} g/mL was given: check the lot's certificate and the unit."
             )
     return None
@@ -287,13 +274,13 @@ def _base_water(t: Titrant) -> str:
 def _acid_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float, vol_l: float) -> list[str]:
     first_l = 0.75 * vol_l
     steps = [
-        f"Put about {_sig(first_l, 3)} L of water (about three quarters of the final {_sig(vol_l, 3)} L) into "
+        f"Put about {sig(first_l, 3)} L of water (about three quarters of the final {sig(vol_l, 3)} L) into "
         f"the clean, labelled container first.",
-        f"In the fume hood, measure {_sig(v_ml)} mL of the {_pct(w)} {t.name} (density {rho:g} g/mL) in a "
-        f"dry measuring cylinder, or weigh {_sig(m_g)} g of it.",
+        f"In the fume hood, measure {sig(v_ml)} mL of the {percent(w, None)} {t.name} (density {rho:g} g/mL) in a "
+        f"dry measuring cylinder, or weigh {sig(m_g)} g of it.",
         "Add the acid slowly to the water, stirring or swirling as you go: acid to water, never the reverse.",
         "Rinse the cylinder two or three times with a little water and add the rinsings to the container.",
-        f"Let the solution come to room temperature, make up to {_sig(vol_l, 3)} L with water and mix "
+        f"Let the solution come to room temperature, make up to {sig(vol_l, 3)} L with water and mix "
         f"thoroughly (stir, or close and invert many times) so the batch is uniform.",
     ]
     if t.key == "H2SO4":
@@ -305,13 +292,13 @@ def _acid_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float
 
 def _base_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float, vol_l: float) -> list[str]:
     steps = [
-        f"Boil about {_sig(vol_l * 1.1, 3)} L of purified water for a few minutes and let it cool with the "
+        f"Boil about {sig(vol_l * 1.1, 3)} L of purified water for a few minutes and let it cool with the "
         f"air kept out (a soda-lime guard tube on the vessel): CO2-free water (AOAC Official Methods, "
         f"Appendix A).",
     ]
     if t.key == "NaOH" and w >= 0.45:
         steps.append(
-            f"Use the clear liquid of the {_pct(w)} NaOH: sodium carbonate is nearly insoluble in it and "
+            f"Use the clear liquid of the {percent(w, None)} NaOH: sodium carbonate is nearly insoluble in it and "
             f"settles out, so draw or decant from the top without stirring up the sediment (AOAC Official "
             f"Methods, Appendix A; common practice)."
         )
@@ -327,11 +314,11 @@ def _base_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float
             "carry the concentrate's carbonate; where carbonate matters, prefer NaOH (common practice)."
         )
     steps += [
-        f"Put about {_sig(0.75 * vol_l, 3)} L of the CO2-free water into a polyethylene container.",
-        f"In the fume hood, measure {_sig(v_ml)} mL of the concentrate (density {rho:g} g/mL) in a plastic "
-        f"measuring cylinder, or weigh {_sig(m_g)} g of it, and add it slowly to the water with stirring.",
+        f"Put about {sig(0.75 * vol_l, 3)} L of the CO2-free water into a polyethylene container.",
+        f"In the fume hood, measure {sig(v_ml)} mL of the concentrate (density {rho:g} g/mL) in a plastic "
+        f"measuring cylinder, or weigh {sig(m_g)} g of it, and add it slowly to the water with stirring.",
         "Rinse the cylinder with a little CO2-free water into the container.",
-        f"Let the solution cool to room temperature, make up to {_sig(vol_l, 3)} L with CO2-free water and mix thoroughly.",
+        f"Let the solution cool to room temperature, make up to {sig(vol_l, 3)} L with CO2-free water and mix thoroughly.",
         "Store in polyethylene with a soda-lime guard tube on the air inlet, so CO2 from the air cannot get "
         "in (AOAC Official Methods, Appendix A).",
     ]
@@ -340,10 +327,10 @@ def _base_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float
 
 def _solid_steps(t: Titrant, m_g: float, w: float, vol_l: float) -> list[str]:
     steps = [
-        f"Boil about {_sig(vol_l * 1.1, 3)} L of purified water for a few minutes and let it cool with the "
+        f"Boil about {sig(vol_l * 1.1, 3)} L of purified water for a few minutes and let it cool with the "
         f"air kept out (a soda-lime guard tube on the vessel): CO2-free water (AOAC Official Methods, "
         f"Appendix A).",
-        f"Weigh {_sig(m_g)} g of {t.name} ({_pct(w)} assay) quickly into a plastic beaker on a top-pan "
+        f"Weigh {sig(m_g)} g of {t.name} ({percent(w, None)} assay) quickly into a plastic beaker on a top-pan "
         f"balance: the solid takes up water and CO2 from the air (common practice).",
     ]
     if t.key == "NaOH":
@@ -352,10 +339,10 @@ def _solid_steps(t: Titrant, m_g: float, w: float, vol_l: float) -> list[str]:
             "liquid of 50 % NaOH instead (AOAC Official Methods, Appendix A; common practice)."
         )
     steps += [
-        f"Dissolve it in portions in about {_sig(max(0.1 * vol_l, 0.25), 2)} L of the CO2-free water, stirring: "
+        f"Dissolve it in portions in about {sig(max(0.1 * vol_l, 0.25), 2)} L of the CO2-free water, stirring: "
         f"dissolution is strongly exothermic. Let it cool.",
-        f"Pour it into a polyethylene container holding about {_sig(0.6 * vol_l, 3)} L of the CO2-free water, "
-        f"rinse the beaker into it, make up to {_sig(vol_l, 3)} L with CO2-free water and mix thoroughly.",
+        f"Pour it into a polyethylene container holding about {sig(0.6 * vol_l, 3)} L of the CO2-free water, "
+        f"rinse the beaker into it, make up to {sig(vol_l, 3)} L with CO2-free water and mix thoroughly.",
         "Store in polyethylene with a soda-lime guard tube on the air inlet (AOAC Official Methods, Appendix A).",
     ]
     return steps
@@ -422,7 +409,7 @@ def preparation_plan(
         "The batch's real strength comes from its standardization, not from this plan.",
     ]
     if over > 0:
-        notes.append(f"Aimed {_sig(over * 100, 2)} % above nominal, at {_sig(planned)} mol/L.")
+        notes.append(f"Aimed {sig(over * 100, 2)} % above nominal, at {sig(planned)} mol/L.")
 
     if form == LIQUID:
         assert rho is not None
@@ -432,8 +419,8 @@ def preparation_plan(
                 [
                     FieldError(
                         "target_molarity_mol_l",
-                        f"{_sig(planned)} mol/L is not below the concentrate's own strength ({_sig(c_conc)} mol/L from "
-                        f"{_pct(w)} and {rho:g} g/mL): a dilution cannot reach it",
+                        f"{sig(planned)} mol/L is not below the concentrate's own strength ({sig(c_conc)} mol/L from "
+                        f"{percent(w, None)} and {rho:g} g/mL): a dilution cannot reach it",
                     )
                 ]
             )
@@ -557,7 +544,7 @@ def adjustment_plan(
     notes: list[str] = []
     if abs(deviation) > 0.1:
         notes.append(
-            f"The batch is {_sig(abs(deviation) * 100, 2)} % from nominal: check the standardization (standard, "
+            f"The batch is {sig(abs(deviation) * 100, 2)} % from nominal: check the standardization (standard, "
             f"units, dilution) before adjusting, since so large a miss often means a mistake there (common "
             f"practice)."
         )
@@ -578,8 +565,8 @@ def adjustment_plan(
             expected_molarity_mol_l=c,
             restandardize=False,
             instructions=(
-                f"No adjustment is needed: {_sig(c)} mol/L is within {_sig(tol * 100, 2)} % of the nominal "
-                f"{_sig(ct)} mol/L (off by {_sig(deviation * 100, 2)} %).",
+                f"No adjustment is needed: {sig(c)} mol/L is within {sig(tol * 100, 2)} % of the nominal "
+                f"{sig(ct)} mol/L (off by {sig(deviation * 100, 2)} %).",
             ),
             cautions=cautions,
             notes=tuple(notes),
@@ -612,14 +599,14 @@ def adjustment_plan(
                 [
                     FieldError(
                         "current_volume_l",
-                        f"adding {_sig(w_l)} L of water brings the batch to {_sig(final)} L, more than the {cap:g} L "
+                        f"adding {sig(w_l)} L of water brings the batch to {sig(final)} L, more than the {cap:g} L "
                         f"container holds: move it to a larger container or split it",
                     )
                 ]
             )
         steps = [
-            f"The batch is {_sig(deviation * 100, 2)} % strong. Add {_sig(w_l)} L ({_sig(w_l * 1000)} mL) of "
-            f"{water} to the {_sig(vol)} L in the container.",
+            f"The batch is {sig(deviation * 100, 2)} % strong. Add {sig(w_l)} L ({sig(w_l * 1000)} mL) of "
+            f"{water} to the {sig(vol)} L in the container.",
             *after,
         ]
         return AdjustmentPlan(
@@ -673,7 +660,7 @@ def adjustment_plan(
             [
                 FieldError(
                     "concentrate_molarity_mol_l",
-                    f"the batch is {_sig(-deviation * 100, 2)} % weak: raising it needs a concentrate; give its "
+                    f"the batch is {sig(-deviation * 100, 2)} % weak: raising it needs a concentrate; give its "
                     f"molarity, or its assay and density",
                 )
             ]
@@ -684,7 +671,7 @@ def adjustment_plan(
             [
                 FieldError(
                     "concentrate_molarity_mol_l",
-                    f"the concentrate ({_sig(c_conc)} mol/L) is not stronger than the target ({_sig(ct)} mol/L): "
+                    f"the concentrate ({sig(c_conc)} mol/L) is not stronger than the target ({sig(ct)} mol/L): "
                     f"adding it cannot raise the batch to the target",
                 )
             ]
@@ -696,14 +683,14 @@ def adjustment_plan(
             [
                 FieldError(
                     "current_volume_l",
-                    f"adding {_sig(v_ml)} mL of concentrate brings the batch to {_sig(final)} L, more than the "
+                    f"adding {sig(v_ml)} mL of concentrate brings the batch to {sig(final)} L, more than the "
                     f"{cap:g} L container holds",
                 )
             ]
         )
     if v_ml < 1.0:
         notes.append(
-            f"{_sig(v_ml)} mL is hard to measure well; a graduated pipette is needed, or a weaker intermediate "
+            f"{sig(v_ml)} mL is hard to measure well; a graduated pipette is needed, or a weaker intermediate "
             f"solution (common practice)."
         )
     clear = (
@@ -712,8 +699,8 @@ def adjustment_plan(
         else ""
     )
     steps = [
-        f"The batch is {_sig(-deviation * 100, 2)} % weak. In the fume hood, measure {_sig(v_ml)} mL of the "
-        f"concentrate ({_sig(c_conc)} mol/L) with a pipette and a pipette filler (never by mouth).{clear}",
+        f"The batch is {sig(-deviation * 100, 2)} % weak. In the fume hood, measure {sig(v_ml)} mL of the "
+        f"concentrate ({sig(c_conc)} mol/L) with a pipette and a pipette filler (never by mouth).{clear}",
         "Add it slowly to the batch with stirring: concentrate into the dilute solution, as with acid to water.",
         *after,
     ]

@@ -17,7 +17,6 @@ from __future__ import annotations
 import csv
 import datetime as dt
 import io
-import math
 import sqlite3
 import weakref
 from collections import defaultdict
@@ -28,8 +27,8 @@ from typing import Any
 import sqlite_utils
 
 from stockroom import db as dbmod
+from stockroom import formatting, records, traceability
 from stockroom import instruments as inst_mod
-from stockroom import records, traceability
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
 from stockroom.policy import ReviewFact, Status, release_in_force, status_on
 from stockroom.traceability import BATCH, INSTRUMENT, LOT, PRIMARY, REFERENCE, RELEASE, Graph, node_key
@@ -44,8 +43,7 @@ def _d(text: str) -> dt.date:
 
 def molarity_text(value: float, U: float, k: float) -> str:
     """'0.10214 ± 0.00020 mol/L (k = 2)': the value to U's second significant figure (as every page shows it)."""
-    d = max(0, 1 - math.floor(math.log10(U))) if U > 0 and math.isfinite(U) else 5
-    return f"{value:.{d}f} ± {U:.{d}f} mol/L (k = {k:g})"
+    return formatting.molarity(value, U, k)
 
 
 # ---------------------------------------------------------------------------------------------------------

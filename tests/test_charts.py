@@ -97,7 +97,7 @@ def test_axis_titles_units_and_legend():
     d = charts.drift_drawing(report(), 640, 300)
     texts = [s.text for s in shapes(d) if isinstance(s, String)]
     assert "molarity at 20 °C (mol/L)" in texts and "date" in texts
-    assert "certified 0.10035 mol/L" in texts and "tolerance ±0.50 %" in texts
+    assert "certified 0.10035 ± 0.00016 mol/L (k = 2)" in texts  # U = 2 × 8e-5 mol/L and "tolerance ±0.50 %" in texts
     assert any(t.startswith("trend left the band 2026-") for t in texts)
     assert "2026-10-03" in texts  # the release day is a date tick
 
@@ -109,7 +109,7 @@ def test_svg_is_well_formed_with_title_description_and_a_dashed_forecast():
     assert root.tag == SVG + "svg" and root.get("width") == "720"
     assert root.find(SVG + "title").text == "Drift of NAOH-2610-01 as of 2026-12-01"
     desc = root.find(SVG + "desc").text
-    assert "Certified 0.10035 mol/L" in desc and "per 30 days" in desc
+    assert "Certified 0.10035 ± 0.00016 mol/L (k = 2)" in desc and "per 30 days" in desc
     dashed = [
         el for el in root.iter(SVG + "polyline") if re.search(r"stroke-dasharray: 5(\.0)?, 3(\.0)?;", el.get("style") or "")
     ]
@@ -137,4 +137,4 @@ def test_the_drawing_embeds_in_a_pdf():
     pdf = renderPDF.drawToString(charts.drift_drawing(report(), 500, 260))
     assert pdf[:5] == b"%PDF-"
     text = PdfReader(io.BytesIO(pdf)).pages[0].extract_text()
-    assert "certified 0.10035 mol/L" in text and "date" in text
+    assert "certified 0.10035 ± 0.00016 mol/L (k = 2)" in text and "date" in text

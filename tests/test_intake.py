@@ -386,7 +386,8 @@ def test_strong_batch_gets_water(app, staff):
     page = staff.get(f"/batches/{batch['code']}").get_data(as_text=True)
     assert f'href="/batches/{batch["code"]}/adjust"' in page and 'class="batch-actions"' in page
     form = staff.get(f"/batches/{batch['code']}/adjust").get_data(as_text=True)
-    assert "the certified value in force, 0.10320 mol/L" in form
+    # Value ± U as every page shows it: U = 0.00020 mol/L to two significant figures (JCGM 100:2008, 7.2.6).
+    assert "the certified value in force (released " in form and "), 0.10320 ± 0.00020 mol/L (k = 2)" in form
     assert kept(form, "concentrate_assay_pct", "37")  # the batch's own concentrate, prefilled
     resp = staff.get(f"/batches/{batch['code']}/adjust?basis=certified&volume_l=15")
     assert resp.status_code == 200

@@ -627,3 +627,15 @@ def test_cli_prints_labels_and_records_the_print(app, world, tmp_path):
         main, ["labels", world["naoh"]["code"], "--layout", "nope", "--db", app.config["DATABASE"], "--out", str(out)]
     )
     assert bad.exit_code == 2 and "'nope' is not one of" in bad.output  # --layout is a choice of the files in labels/
+
+
+@pytest.mark.parametrize("width_pt", [70.0, 110.0, 160.0])  # pt; "0.00016 mol/L" alone is 52 pt wide
+def test_the_certified_value_wraps_only_between_its_parts(width_pt):
+    # A narrow box may break the value after "±", before "(k" and before "at", never inside
+    # "20 °C", "0.00016 mol/L" or "(k = 2)": a unit on a line of its own misreads (common practice).
+    text = labels._unbreakable_figures(labels.value_text(0.10035, 0.00016, 2.0, 20.0))
+    lines = [ln.replace("\u00a0", " ") for ln in labels.wrap(text, "Helvetica-Bold", 8, width_pt)]
+    assert " ".join(lines) == "0.10035 ± 0.00016 mol/L (k = 2) at 20 °C"
+    assert len(lines) > 1 or width_pt >= 160
+    for ln in lines:
+        assert ln.startswith(("0.10035", "0.00016", "(k = 2)", "at 20 °C")), lines

@@ -74,7 +74,8 @@ def test_register_a_dried_lot(app, staff, form_token):
     assert lot["recorded_by"] == "staff-user"
     page = unescape(staff.get(resp.headers["Location"]).get_data(as_text=True))
     assert "Registered standard lot STD-KHP-001 (potassium hydrogen phthalate)" in page
-    assert "99.980 ± 0.020 % w/w (k = 2)" in page
+    # U = 0.020 % to two significant figures, the assay to the same place (JCGM 100:2008, 7.2.6).
+    assert "Assay (w/w)</dt><dd>99.980 ± 0.020 % (k = 2)" in page
     assert "notice-warning" not in page
     events = [dict(e) for e in _events(app) if e["action"] == "lot.register"]
     assert len(events) == 1 and events[0]["actor"] == "staff-user"

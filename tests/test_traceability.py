@@ -12,6 +12,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from stockroom import traceability as tr
+from stockroom.pdf import chain_drawing
 from stockroom.traceability import Edge, Graph, Node, Suspect
 
 D0 = dt.date(2026, 1, 1)  # invented dates throughout
@@ -193,7 +194,8 @@ def test_chain_svg_is_well_formed_escaped_and_styles_nothing_inline(three_links)
         for n in three_links.nodes
     )
     g = Graph(nodes, three_links.edges)
-    svg = tr.chain_svg(tr.chain_of(g, "release:3"), hrefs={"lot:1": "/lots/1"}, suspect=frozenset({"lot:1"}), title="Chain of B3")
+    chain = tr.chain_of(g, "release:3")
+    svg = chain_drawing.chain_svg(chain, hrefs={"lot:1": "/lots/1"}, suspect=frozenset({"lot:1"}), title="Chain of B3")
     root = ET.fromstring(svg)  # raises on malformed XML or an unescaped "<"
     ns = "{http://www.w3.org/2000/svg}"
     texts = ["".join(t.itertext()) for t in root.iter(f"{ns}text")]

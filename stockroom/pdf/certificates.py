@@ -37,8 +37,8 @@ from reportlab.platypus import (
 
 from stockroom import chemistry, readmodel, records
 from stockroom import db as dbmod
+from stockroom import formatting as fmt
 from stockroom.errors import NotFound
-from stockroom.formatting import molarity as format_molarity
 from stockroom.pdf.ghs import GHS_RED
 from stockroom.pdf.labels import printable, value_text
 from stockroom.policy import ReleaseFact
@@ -61,18 +61,9 @@ def _p(text: Any, style: ParagraphStyle = _CELL) -> Paragraph:
     return Paragraph(escape(printable(str(text))), style)
 
 
-def _fmt(value: float | None, digits: int = 5, unit: str = "") -> str:
-    if value is None:
-        return "—"
-    return f"{value:.{digits}f}" + (f" {unit}" if unit else "")
-
-
-def _pct(value: float | None, digits: int = 3) -> str:
-    return "—" if value is None else f"{value * 100:.{digits}f} %"
-
-
-def _sig(value: float | None, unit: str = "") -> str:
-    return "—" if value is None else f"{value:.4g}" + (f" {unit}" if unit else "")
+def _reading(value: float | None, digits: int) -> str:
+    """A replicate's reading (g, mL, °C: the unit is in the column head) to the decimals it is read to."""
+    return fmt.quantity(value, "", digits).rstrip()
 
 
 # ---------------------------------------------------------------- gathering
@@ -257,6 +248,7 @@ def _replicate_rows(data: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]
         "Used",
     ]
     rows, shaded = [], []
+    r_U = data["result"].get("U")  # replicate molarities read to the place the run's U sets
     for i, rep in enumerate(run["replicates"]):
         pos = rep["position"]
         if pos in excluded:
@@ -269,13 +261,13 @@ def _replicate_rows(data: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]
         rows.append(
             [
                 pos,
-                _fmt(rep["aliquot_ml"], 2) if secondary else _fmt(rep["mass_g"], 4),
-                _fmt(rep["initial_ml"], 2),
-                _fmt(rep["final_ml"], 2),
-                _fmt(rep["volume_ml"], 2),
-                _fmt(rep["blank_ml"], 2),
-                _fmt(rep["temperature_c"], 1),
-                _fmt(rep["molarity"], 5),
+                _reading(rep["aliquot_ml"], 2) if secondary else _reading(rep["mass_g"], 4),
+                _reading(rep["initial_ml"], 2),
+                _reading(rep["final_ml"], 2),
+                _reading(rep["volume_ml"], 2),
+                _reading(rep["blank_ml"], 2),
+                _reading(rep["temperature_c"], 1),
+                fmt.value_at(rep["molarity"], r_U, ""),
                 used,
             ]
         )
@@ -287,19 +279,20 @@ def _statistics(data: Mapping[str, Any]) -> list[tuple[str, Any]]:
     r = data["result"]
     ci = r.get("ci95") or [None, None]
     mc = r.get("monte_carlo") or {}
+    mean = r.get("molarity")
     rows = [
         ("Replicates used", f"{r.get('n', '—')} of {r.get('n_total', '—')}"),
-        ("Mean molarity", _fmt(r.get("molarity"), 6, "mol/L")),
-        ("Standard deviation s", _fmt(r.get("sd"), 6, "mol/L")),
-        ("Relative standard deviation", _pct(r.get("rsd"))),
-        ("95 % confidence interval of the mean", f"{_fmt(ci[0], 6)} to {_fmt(ci[1], 6, 'mol/L')}" if ci[0] is not None else "—"),
-        ("Combined standard uncertainty u", f"{_fmt(r.get('u'), 6, 'mol/L')} ({_pct(r.get('u_rel'))})"),
-        ("Expanded uncertainty U", f"{_fmt(r.get('U'), 6, 'mol/L')} (k = {r.get('k', 2):g})"),
+        ("Mean molarity", fmt.molarity(r.get("molarity"), r.get("U"), r.get("k"))),
+        ("Standard deviation s", fmt.uncertainty(r.get("sd"), "mol/L")),
+        ("Relative standard deviation", fmt.relative(r.get("sd"), mean)),
+        ("95 % confidence interval of the mean", fmt.interval(ci[0], ci[1], "mol/L")),
+        ("Combined standard uncertainty u", f"{fmt.uncertainty(r.get('u'), 'mol/L')} ({fmt.relative(r.get('u'), mean)})"),
+        ("Expanded uncertainty U", f"{fmt.uncertainty(r.get('U'), 'mol/L')} ({fmt.coverage(r.get('k', 2))})"),
         (
             "Monte Carlo cross-check (JCGM 101)",
-            f"u = {_fmt(mc.get('u'), 6, 'mol/L')} from {mc.get('draws', 0):,} draws" if mc else "—",
+            f"u = {fmt.uncertainty(mc.get('u'), 'mol/L')} from {mc.get('draws', 0):,} draws" if mc else "—",
         ),
-        ("Ratio to nominal", _fmt(r.get("nominal_ratio"), 4)),
+        ("Ratio to nominal", fmt.quantity(r.get("nominal_ratio"), "", 4).rstrip()),
         ("Acceptance rule", "met" if r.get("accepted") else "not met: " + "; ".join(r.get("reasons", []))),
     ]
     return rows
@@ -315,10 +308,10 @@ def _budget_rows(result: Mapping[str, Any]) -> list[list[Any]]:
         rows.append(
             [
                 Paragraph(source, _CELL),
-                _sig(b.get("value"), b.get("unit", "")),
-                _sig(b.get("u"), b.get("unit", "")),
-                _pct(b.get("u_rel"), 4),
-                _pct(b.get("share"), 1),
+                fmt.value_at(b.get("value"), b.get("u"), b.get("unit", "")),
+                fmt.uncertainty(b.get("u"), b.get("unit", "")),
+                fmt.relative(b.get("u"), b.get("value")),
+                fmt.percent(b.get("share"), 1),
             ]
         )
     return rows
@@ -326,6 +319,7 @@ def _budget_rows(result: Mapping[str, Any]) -> list[list[Any]]:
 
 def _lot_rows(lot: Mapping[str, Any]) -> list[tuple[str, Any]]:
     substance = chemistry.standard(lot["substance"])
+    M = substance.molar_mass  # g/mol with its standard uncertainty
     drying = (
         f"dried {lot['dried_on'] or '(date not recorded)'} at {lot['dried_at_c']:g} °C"
         if lot.get("dried_at_c") is not None
@@ -334,9 +328,13 @@ def _lot_rows(lot: Mapping[str, Any]) -> list[tuple[str, Any]]:
     if lot.get("storage_note"):
         drying += f"; {lot['storage_note']}"
     return [
-        ("Primary standard", f"{substance.name} ({substance.formula}), M = {substance.molar_mass.value:.4f} g/mol"),
+        (
+            "Primary standard",
+            f"{substance.name} ({substance.formula}), M = {fmt.value_at(M.value, M.u, 'g/mol')} "
+            f"(standard uncertainty {fmt.uncertainty(M.u, 'g/mol')})",
+        ),
         ("Lot", f"{lot['code']} · supplier {lot['supplier'] or '—'}, supplier's lot {lot['supplier_lot'] or '—'}"),
-        ("Certificate assay", f"{lot['assay'] * 100:.3f} % ± {lot['assay_expanded_u'] * 100:.3f} % (k = {lot['assay_k']:g})"),
+        ("Certificate assay", fmt.percent_u(lot["assay"], lot["assay_expanded_u"], lot["assay_k"])),
         ("Lot expires", lot["expires_on"]),
         ("Drying / storage", drying),
     ]
@@ -365,10 +363,10 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                     _VALUE,
                 ),
                 _p(
-                    f"Standard uncertainty u = {_fmt(release['u'], 6, 'mol/L')}. U is the expanded uncertainty, U = k · u "
-                    "(JCGM 100:2008). This certificate describes one release; a later release supersedes it, and the batch "
-                    "page shows the value in force today. Handle the solution as its label and safety data sheet say, "
-                    "following local regulations and your institution's chemical hygiene plan.",
+                    f"Standard uncertainty u = {fmt.uncertainty(release['u'], 'mol/L')}. U is the expanded uncertainty, "
+                    "U = k · u (JCGM 100:2008). This certificate describes one release; a later release supersedes it, "
+                    "and the batch page shows the value in force today. Handle the solution as its label and safety data "
+                    "sheet say, following local regulations and your institution's chemical hygiene plan.",
                     _SMALL,
                 ),
                 Spacer(1, 3 * mm),
@@ -383,7 +381,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                 (
                     "Re-check",
                     f"every {release['recheck_interval_days']} days; drift tolerance "
-                    f"± {release['tolerance_rel'] * 100:.2f} % of the certified value",
+                    f"± {fmt.percent(release['tolerance_rel'])} of the certified value",
                 ),
                 ("Supersedes", f"release {release['supersedes_id']}" if release["supersedes_id"] else "— (first release)"),
             ],
@@ -392,7 +390,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
     )
 
     story.append(Paragraph("Batch", _H2))
-    assay = f", {batch['concentrate_assay_w_w'] * 100:.1f} % w/w" if batch.get("concentrate_assay_w_w") else ""
+    assay = f", {fmt.percent(batch['concentrate_assay_w_w'], 1)} w/w" if batch.get("concentrate_assay_w_w") else ""
     story.append(
         _kv_table(
             [
@@ -424,8 +422,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
             ref_run = step["run"]
             basis = (
                 f"lot {step['lot']['code']} ({step['lot']['substance']}, assay "
-                f"{step['lot']['assay'] * 100:.3f} % ± {step['lot']['assay_expanded_u'] * 100:.3f} %, "
-                f"k = {step['lot']['assay_k']:g})"
+                f"{fmt.percent_u(step['lot']['assay'], step['lot']['assay_expanded_u'], step['lot']['assay_k'])})"
                 if step["lot"]
                 else "a further reference batch (next row)"
             )
@@ -433,8 +430,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                 [
                     i,
                     step["batch"]["code"],
-                    f"release {rel['id']} of {rel['released_on']}: "
-                    f"{format_molarity(rel['molarity'], rel['expanded_u'], rel['k'])}",
+                    f"release {rel['id']} of {rel['released_on']}: {fmt.molarity(rel['molarity'], rel['expanded_u'], rel['k'])}",
                     f"{ref_run['performed_on']}, against {basis}",
                 ]
             )
@@ -464,7 +460,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                 ),
                 ("End point", run["endpoint"] or "—"),
                 ("Burette", f"{run['burette_capacity_ml']:g} mL" if run["burette_capacity_ml"] else "—"),
-                ("Temperature", f"{run['temperature_c']:g} °C" if run["temperature_c"] is not None else "not recorded"),
+                ("Temperature", fmt.temperature(run["temperature_c"]) if run["temperature_c"] is not None else "not recorded"),
                 ("Notes", run["notes"] or "—"),
             ],
             (45 * mm, 135 * mm),

@@ -17,6 +17,7 @@ from reportlab.graphics.shapes import Circle, Drawing, Group, Line, Polygon, Pol
 from reportlab.lib import colors
 from reportlab.pdfbase.pdfmetrics import stringWidth
 
+from stockroom import formatting as fmt
 from stockroom.drift import DriftReport, Fit, interval_at
 
 FONT = "Helvetica"
@@ -110,8 +111,12 @@ def _clip_segment(
     return (x1 + t0 * dx, y1 + t0 * dy, x1 + t1 * dx, y1 + t1 * dy)
 
 
-def _fmt_mol(value: float, decimals: int = 5) -> str:
-    return f"{value:.{decimals}f}"
+def _certified(report: DriftReport) -> str:
+    """The certified value (mol/L) with the release's U when the release point is among the points."""
+    release = next((p for p in report.points if p.kind == "release"), None)
+    if release is None:
+        return fmt.quantity(report.band.certified, "mol/L", 5)
+    return fmt.molarity(report.band.certified, release.U, release.k)
 
 
 def _domain(report: DriftReport) -> tuple[dt.date, dt.date]:
@@ -323,11 +328,11 @@ def _legend(
     items: list[tuple[Callable[[float, float], Sequence[object]], str]] = [
         (
             lambda a, b: [Line(a, b + 3, a + 14, b + 3, strokeColor=CERTIFIED, strokeWidth=1.2)],
-            f"certified {_fmt_mol(band.certified)} mol/L",
+            f"certified {_certified(report)}",
         ),
         (
             lambda a, b: [Rect(a, b - 1, 14, 8, fillColor=BAND_FILL, strokeColor=BAND_EDGE, strokeWidth=0.6)],
-            f"tolerance ±{band.tolerance_rel * 100:.2f} %",
+            f"tolerance ±{fmt.percent(band.tolerance_rel)}",
         ),
         (lambda a, b: [Rect(a + 4, b, 6, 6, fillColor=colors.white, strokeColor=POINT, strokeWidth=1.2)], "release"),
         (
@@ -387,12 +392,12 @@ def _describe(report: DriftReport) -> str:
     """A sentence saying what the chart shows, for screen readers and the SVG's desc."""
     band = report.band
     text = (
-        f"Certified {band.certified:.5f} mol/L, tolerance ±{band.tolerance_rel * 100:.2f} %, "
+        f"Certified {_certified(report)}, tolerance ±{fmt.percent(band.tolerance_rel)}, "
         f"{len(report.points)} standardization(s) from {report.released_on.isoformat()}."
     )
     if report.fit is not None:
         f = report.fit
-        text += f" Trend {f.slope_per_period / band.certified * 100:+.3f} % per 30 days (p = {f.p_value:.2g})."
+        text += f" Trend {fmt.signed_percent(f.slope_per_period / band.certified, 3)} per 30 days ({fmt.p_value(f.p_value)})."
     if report.forecast is not None:
         text += f" The trend line is outside the band from {report.forecast.isoformat()}."
     return text

@@ -18,6 +18,7 @@ from reportlab.lib.units import mm
 from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
 
 from stockroom import chemistry
+from stockroom import formatting as fmt
 from stockroom.labday import LabDay, LabDayEntry, cautions
 
 INK = colors.HexColor("#1d2327")
@@ -49,16 +50,19 @@ def _styles() -> dict[str, ParagraphStyle]:
 def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[object]:
     r = e.release
     t = chemistry.titrant(e.batch.reagent)
-    d = e.decimals
     use = e.molarity_at_bench if e.molarity_at_bench is not None else r.molarity
-    use_note = f"at the bench, {e.bench_temperature_c:g} °C" if e.molarity_at_bench is not None else "at 20 °C"
+    use_note = f"at the bench, {fmt.temperature(e.bench_temperature_c)}" if e.molarity_at_bench is not None else "at 20 °C"
     certified = (
-        f"{r.molarity:.{d}f} ± {r.U:.{d}f} mol/L<br/>k = {r.k:g}, at 20 °C<br/>"
+        f"{fmt.molarity(r.molarity, r.U)}<br/>{fmt.coverage(r.k)}, at 20 °C<br/>"
         f"released {r.released_on.isoformat()}<br/>expires {r.expires_on.isoformat()}"
     )
     if e.prediction is not None:
         p = e.prediction
-        trend = f"{p.molarity:.{d}f} mol/L<br/>{round(p.confidence * 100)} % interval {p.pi_low:.{d}f} to {p.pi_high:.{d}f}"
+        # Derived figures read to the place the certified value's U sets, like the value itself.
+        trend = (
+            f"{fmt.value_at(p.molarity, r.U, 'mol/L')}<br/>{fmt.percent(p.confidence, 0)} interval "
+            f"{fmt.value_at(p.pi_low, r.U, '')} to {fmt.value_at(p.pi_high, r.U, 'mol/L')}"
+        )
         if e.fit is not None:
             trend += f"<br/>{e.fit.n} standardizations to {e.fit.last_on.isoformat()}"
     else:
@@ -71,7 +75,7 @@ def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[object]:
     style = st["flag"] if e.flags or advice else st["cell"]
     return [
         Paragraph(f"<b>{escape(e.batch.code)}</b><br/>{escape(t.name)}, {e.batch.nominal_molarity:g} mol/L nominal", st["cell"]),
-        [Paragraph(f"{use:.{d}f} mol/L", st["value"]), Paragraph(use_note, st["note"])],
+        [Paragraph(fmt.value_at(use, r.U, "mol/L"), st["value"]), Paragraph(use_note, st["note"])],
         Paragraph(certified, st["cell"]),
         Paragraph(trend, st["cell"]),
         Paragraph(flag_text, style),
@@ -122,7 +126,7 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
     )
     if day.bench_temperature_c is not None:
         sub += (
-            f"; the large figure is the value at the bench temperature, {day.bench_temperature_c:g} °C, for use "
+            f"; the large figure is the value at the bench temperature, {fmt.temperature(day.bench_temperature_c)}, for use "
             "with burette readings taken there"
         )
     sub += "."

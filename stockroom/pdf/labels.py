@@ -21,6 +21,7 @@ import datetime as dt
 import functools
 import io
 import math
+import re
 import unicodedata
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
@@ -36,10 +37,9 @@ from reportlab.lib.units import mm
 from reportlab.pdfbase.pdfmetrics import getAscentDescent, stringWidth
 from reportlab.pdfgen.canvas import Canvas
 
-from stockroom import chemistry, hazards, readmodel, records
+from stockroom import chemistry, formatting, hazards, readmodel, records
 from stockroom import db as dbmod
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
-from stockroom.formatting import molarity as format_molarity
 from stockroom.hazards import LabelElements
 from stockroom.pdf import ghs
 from stockroom.pdf.layouts import Field, Layout
@@ -108,7 +108,7 @@ class LabelContent:
 
 def value_text(molarity: float, U: float, k: float, reference_temperature_c: float) -> str:
     """The certified value as labels print it: '0.10214 ± 0.00020 mol/L (k = 2) at 20 °C' (mol/L, °C)."""
-    return f"{format_molarity(molarity, U, k)} at {reference_temperature_c:g} °C"
+    return f"{formatting.molarity(molarity, U, k)} at {formatting.reference_temperature(reference_temperature_c)}"
 
 
 def not_for_use_text(status: Status) -> str:
@@ -130,7 +130,7 @@ def placeholder_values(content: LabelContent, serial: int, codes_only: bool = Fa
         "reagent": content.reagent,
         "formula": content.formula,
         "nominal": content.nominal,
-        "certified": content.certified,
+        "certified": _unbreakable_figures(content.certified),
         "certified_caption": "Certified molarity" if content.released else "",
         "standardized_on": content.standardized_on,
         "released_on": content.released_on,
@@ -150,6 +150,15 @@ def placeholder_values(content: LabelContent, serial: int, codes_only: bool = Fa
         "serial": format_serial(serial),
         "printed_on": content.printed_on,
     }
+
+
+def _unbreakable_figures(text: str) -> str:
+    """The value text with no-break spaces where a line must not break: inside '20 °C', 'mol/L', '(k = 2)',
+    'at 20 °C' and before '±'; it may break after '±', before '(k' and before 'at'."""
+    text = re.sub(r"(\d) (?=mol/L|°C|%)", "\\1" + NBSP, text)
+    text = re.sub(r"\(k = ", f"(k{NBSP}={NBSP}", text)
+    text = re.sub(r" at (?=\d)", f" at{NBSP}", text)
+    return text.replace(" ± ", f"{NBSP}± ")
 
 
 def format_serial(serial: int) -> str:

@@ -19,6 +19,8 @@ from reportlab.lib.styles import ParagraphStyle, getSampleStyleSheet
 from reportlab.lib.units import mm
 from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
 
+from stockroom import formatting as fmt
+
 if TYPE_CHECKING:
     from stockroom.recall import Impact
 
@@ -90,9 +92,7 @@ def _footer(recall_id: int, printed_on: dt.date):  # type: ignore[no-untyped-def
 
 
 def _value(molarity: float, U: float, k: float) -> str:
-    from stockroom.recall import molarity_text
-
-    return molarity_text(molarity, U, k)
+    return fmt.molarity(molarity, U, k)
 
 
 def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
@@ -259,7 +259,7 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
                         c["lab_day"],
                         c["batch_code"],
                         str(c["release_id"]),
-                        f"{c['molarity_used']:.6f} mol/L",
+                        fmt.quantity(c["molarity_used"], "mol/L", 6),
                         str(c["row_count"]),
                         f"{c['recorded_at'][:10]} by {c['recorded_by']}",
                     ]

@@ -6,7 +6,22 @@ from typing import Any
 
 from flask import Flask
 
-from stockroom.formatting import date, molarity, percent, quantity
+from stockroom.formatting import (
+    date,
+    interval,
+    molarity,
+    p_value,
+    percent,
+    percent_u,
+    quantity,
+    relative,
+    relative_percent,
+    signed_percent,
+    temperature,
+    uncertainty,
+    value_at,
+    value_u,
+)
 from stockroom.records.audit import action_label  # the words come from the action registry
 
 
@@ -23,6 +38,16 @@ def fromjson(text: str | None) -> Any:
 def install(app: Flask) -> None:
     """Register the filters with Jinja."""
     app.add_template_filter(molarity, "molarity")
+    app.add_template_filter(value_u, "value_u")
+    app.add_template_filter(value_at, "value_at")
+    app.add_template_filter(percent_u, "percent_u")
+    app.add_template_filter(relative, "relative")
+    app.add_template_filter(relative_percent, "relative_percent")
+    app.add_template_filter(uncertainty, "uncertainty")
+    app.add_template_filter(interval, "interval")
+    app.add_template_filter(signed_percent, "signed_percent")
+    app.add_template_filter(p_value, "p_value")
+    app.add_template_filter(temperature, "temperature")
     app.add_template_filter(percent, "percent")
     app.add_template_filter(quantity, "quantity")
     app.add_template_filter(date, "date")

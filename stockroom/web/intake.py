@@ -24,6 +24,8 @@ from stockroom import chemistry, preparation, readmodel, records
 from stockroom.chemistry import BASE
 from stockroom.db import get_db
 from stockroom.errors import Conflict, FieldError, InvalidInput
+from stockroom.formatting import molarity, percent
+from stockroom.formatting import significant as sig
 from stockroom.policy import ReagentPolicy, Status, release_in_force, status_on
 from stockroom.web import forms, lab_today
 from stockroom.web.access import anonymous_response, current_user, login_required, public, refuse, require
@@ -440,14 +442,6 @@ def read_batch(form: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], today
 # ------------------------------------------------------------------------------- showing a plan
 
 
-def _sig(x: float, digits: int = 4) -> str:
-    """x to `digits` significant figures, without an exponent (read at the bench)."""
-    if x == 0 or not math.isfinite(x):
-        return f"{x:g}"
-    decimals = max(0, digits - 1 - math.floor(math.log10(abs(x))))
-    return f"{x:.{decimals}f}"
-
-
 def plan_display(plan: preparation.PreparationPlan) -> dict[str, Any]:
     """The plan's figures as the page and the script show them: (label, amount, detail) rows and the steps."""
     figures = []
@@ -456,41 +450,41 @@ def plan_display(plan: preparation.PreparationPlan) -> dict[str, Any]:
         figures.append(
             {
                 "label": "Concentrate to measure",
-                "value": f"{_sig(plan.concentrate_volume_ml)} mL",
-                "detail": f"or weigh {_sig(plan.concentrate_mass_g)} g of it",
+                "value": f"{sig(plan.concentrate_volume_ml)} mL",
+                "detail": f"or weigh {sig(plan.concentrate_mass_g)} g of it",
             }
         )
         figures.append(
             {
                 "label": "Water, roughly",
-                "value": f"{_sig(plan.water_approx_l, 3)} L",
-                "detail": f"make up to the {_sig(plan.final_volume_l, 3)} L mark; do not measure the water",
+                "value": f"{sig(plan.water_approx_l, 3)} L",
+                "detail": f"make up to the {sig(plan.final_volume_l, 3)} L mark; do not measure the water",
             }
         )
         figures.append(
             {
                 "label": "Concentrate strength",
-                "value": f"{_sig(plan.concentrate_molarity_mol_l)} mol/L",
-                "detail": f"from {plan.assay_w_w * 100:g} % w/w and {plan.density_g_ml:g} g/mL",
+                "value": f"{sig(plan.concentrate_molarity_mol_l)} mol/L",
+                "detail": f"from {percent(plan.assay_w_w, None)} w/w and {plan.density_g_ml:g} g/mL",
             }
         )
     else:
         figures.append(
             {
                 "label": "Pellets to weigh",
-                "value": f"{_sig(plan.concentrate_mass_g)} g",
-                "detail": f"{_sig(plan.reagent_mass_g)} g of {plan.reagent} at {plan.assay_w_w * 100:g} % assay",
+                "value": f"{sig(plan.concentrate_mass_g)} g",
+                "detail": f"{sig(plan.reagent_mass_g)} g of {plan.reagent} at {percent(plan.assay_w_w, None)} assay",
             }
         )
         figures.append(
-            {"label": "Water", "value": f"{_sig(plan.final_volume_l, 3)} L", "detail": "dissolve, cool, then make up to the mark"}
+            {"label": "Water", "value": f"{sig(plan.final_volume_l, 3)} L", "detail": "dissolve, cool, then make up to the mark"}
         )
     return {
         "figures": figures,
         "instructions": list(plan.instructions),
         "notes": list(plan.notes),
         "cautions": list(plan.cautions),
-        "summary": f"{_sig(plan.final_volume_l, 3)} L of {plan.target_molarity_mol_l:g} mol/L {plan.reagent}",
+        "summary": f"{sig(plan.final_volume_l, 3)} L of {plan.target_molarity_mol_l:g} mol/L {plan.reagent}",
     }
 
 
@@ -528,8 +522,8 @@ def adjustment_bases(db: sqlite_utils.Database, batch: Mapping[str, Any], today:
                 "key": "certified",
                 "molarity": release.molarity,
                 "tolerance_rel": release.tolerance_rel,
-                "label": f"the certified value in force, {release.molarity:.5f} mol/L (released "
-                f"{release.released_on.isoformat()})",
+                "label": f"the certified value in force (released {release.released_on.isoformat()}), "
+                f"{molarity(release.molarity, release.U, release.k)}",
             }
         )
         tolerance = release.tolerance_rel
@@ -546,8 +540,8 @@ def adjustment_bases(db: sqlite_utils.Database, batch: Mapping[str, Any], today:
                     "key": "latest",
                     "molarity": last["current"]["molarity"],
                     "tolerance_rel": tolerance,
-                    "label": f"the mean of the latest {kind}, {last['current']['molarity']:.5f} mol/L "
-                    f"({last['performed_on']}, {state})",
+                    "label": f"the mean of the latest {kind} ({last['performed_on']}, {state}), "
+                    f"{molarity(last['current']['molarity'], last['current']['expanded_u'], last['current']['k'])}",
                 }
             )
     return bases

@@ -23,6 +23,7 @@ from stockroom import recall as recall_mod
 from stockroom import records, traceability
 from stockroom.db import get_db
 from stockroom.errors import InvalidInput
+from stockroom.pdf import chain_drawing
 from stockroom.pdf.recall_report import recall_report_pdf
 from stockroom.web import forms, lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
@@ -175,7 +176,7 @@ def _hrefs(chain: traceability.Chain) -> dict[str, str]:
 
 
 def _svg(trace: recall_mod.BatchTrace, code: str) -> str:
-    return traceability.chain_svg(
+    return chain_drawing.chain_svg(
         trace.chain, hrefs=_hrefs(trace.chain), suspect=trace.suspect, title=f"What the certified value of {code} rests on"
     )
 
@@ -190,7 +191,7 @@ def traceability_of(batch: dict[str, Any], on: dt.date) -> dict[str, Any] | None
     ids = sorted({rv.recall_id for rv in trace.reviews})
     return {
         "trace": trace,
-        "svg": Markup(_svg(trace, batch["code"])),  # chain_svg escapes every text it writes
+        "svg": Markup(_svg(trace, batch["code"])),  # chain_drawing.chain_svg escapes every text it writes
         "recalls": {rc.id: rc for rc in recall_mod.list_recalls(db, ids)} if ids else {},
     }
 
