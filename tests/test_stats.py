@@ -307,11 +307,13 @@ def test_screen_runs_both_tests_and_never_drops_a_value() -> None:
     assert all(r.outlier for r in results)
     assert values == PENNIES  # reports only; the input is untouched
     assert results[0] == stats.grubbs(PENNIES, 0.05)
-    assert results[1] == stats.dixon(PENNIES, 0.95)
+    # Nine replicates: Dixon's r11 (Dixon 1953; Rorabacher 1991), not r10.
+    assert results[1] == stats.dixon_recommended(PENNIES, 0.95)
+    assert results[1].ratio == "r11" and results[1].index == 1
 
 
 def test_screen_leaves_out_dixon_outside_its_table() -> None:
-    assert [r.test for r in stats.screen([0.1 + i * 1e-4 for i in range(11)])] == ["grubbs"]
+    assert [r.test for r in stats.screen([0.1 + i * 1e-4 for i in range(31)])] == ["grubbs"]
     two = stats.screen([0.1, 0.2])
     assert [r.test for r in two] == ["grubbs"] and not two[0].applicable
     odd_alpha = stats.screen(MOLARITIES, 0.02)
