@@ -412,7 +412,10 @@ def dixon_recommended(values: Sequence[float], confidence: float = 0.95) -> Outl
             f"whether to exclude it is the analyst's decision"
         )
     else:
-        note = f"Dixon {ratio} = {q:.3f} does not exceed {crit:.3f} (n = {n}, {level}): the more extreme end value, {where}, is not flagged"
+        note = (
+            f"Dixon {ratio} = {q:.3f} does not exceed {crit:.3f} (n = {n}, {level}): "
+            f"the more extreme end value, {where}, is not flagged"
+        )
     return OutlierResult("dixon", True, index, q, crit, flagged, note, ratio=ratio)
 
 
