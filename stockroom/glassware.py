@@ -125,3 +125,32 @@ def tolerance(kind: str, capacity_ml: float, accuracy_class: str = "A") -> Toler
 def standard_uncertainty(kind: str, capacity_ml: float, accuracy_class: str = "A") -> float:
     """Standard uncertainty of one delivery from glassware of this size and class, mL (triangular, a/√6)."""
     return tolerance(kind, capacity_ml, accuracy_class).u_ml
+
+
+# A titre may take a second fill of the burette: both deliveries then carry their own calibration and
+# reading terms. Three or more fills is not a titration that deserves a certificate (common practice:
+# take a larger burette or less standard), so it is refused.
+MAX_FILLS = 2
+
+
+def burette_fills(titre_ml: float, capacity_ml: float) -> int:
+    """How many fills of a burette a titre took: 1, or 2 when it exceeds the capacity.
+
+    titre_ml: volume delivered, mL (> 0); capacity_ml: the burette's nominal capacity, mL (> 0).
+    Raises InvalidInput (field "titre_ml") for a titre of more than two full burettes.
+    """
+    for name, v in (("titre_ml", titre_ml), ("capacity_ml", capacity_ml)):
+        if isinstance(v, bool) or not isinstance(v, int | float) or not math.isfinite(v) or v <= 0:
+            raise InvalidInput([FieldError(name, f"must be a volume above 0 mL (got {v!r})")])
+    fills = math.ceil(titre_ml / capacity_ml - 1e-9)
+    if fills > MAX_FILLS:
+        raise InvalidInput(
+            [
+                FieldError(
+                    "titre_ml",
+                    f"{titre_ml:g} mL is more than {MAX_FILLS} fills of the {capacity_ml:g} mL burette: "
+                    f"use a larger burette or take less standard",
+                )
+            ]
+        )
+    return max(1, fills)

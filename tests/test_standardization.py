@@ -48,6 +48,8 @@ def quam_instruments(**changes) -> Instruments:
         coverage_factor=2.0,
         monte_carlo_draws=100_000,
         lab_temperature_distribution="normal",
+        # QUAM:2012 states U with k = 2 fixed, not from ν_eff.
+        k_policy="fixed",
     )
     return dataclasses.replace(base, **changes)
 
@@ -119,6 +121,8 @@ def test_quam_a3_hcl_against_that_naoh():
         nu=1.0,
         replicates=(AliquotReplicate(aliquot_ml=15.0, volume_ml=14.89),),
         u_repeatability_rel=run_rep,
+        # QUAM A3 gives the titre and the aliquot a temperature term each, independent.
+        temperature_terms="independent",
     )
     r = standardize_secondary(run, inst)
     # QUAM:2012 A3: c(HCl) = 0.10139 mol/L, u ≈ 0.00018 mol/L.
