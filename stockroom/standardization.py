@@ -1525,6 +1525,7 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
             "components": [
                 {
                     "source": ln.source,
+                    "dof": _f(ln.dof),
                     "u": _f(ln.u),
                     "unit": ln.unit,
                     "u_rel": _f(ln.u_rel),
@@ -1549,6 +1550,9 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
         "u_rel": _f(result.u_rel),
         "U": _f(result.U),
         "k": _f(result.k),
+        # None when infinite (every source Type B): JSON has no infinity.
+        "nu_eff": _f(result.nu_eff),
+        "coverage": _f(result.coverage),
         "n": result.n,
         "n_total": result.n_total,
         "sd": _f(s.sd),
@@ -1566,6 +1570,7 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
                 "titre_ml": _f(r.titre_ml),
                 "aliquot_ml": _f(r.aliquot_ml),
                 "warnings": list(r.warnings),
+                "fills": r.fills,
             }
             for r in result.replicates
         ],
@@ -1578,6 +1583,8 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
                 "critical": _f(o.critical),
                 "outlier": o.outlier,
                 "note": o.note,
+                "verdict": o.verdict,
+                "ratio": o.ratio,
             }
             for o in result.screening
         ],
@@ -1593,5 +1600,10 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
         "accepted": result.accepted,
         "reasons": list(result.reasons),
         "warnings": list(result.warnings),
+        "checks": [
+            {"code": c.code, "replicate": c.replicate, "message": c.message, "override_reason": c.override_reason}
+            for c in result.checks
+        ],
+        "overrides": {code: reason for code, reason in result.overrides},
     }
     return body

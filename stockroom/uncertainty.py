@@ -321,7 +321,8 @@ def coverage_factor(nu_eff: float, coverage: float = 0.95) -> float:
     q = 0.5 + coverage / 2.0
     if not math.isfinite(nu_eff):
         return float(_sps.norm.ppf(q))
-    return float(_sps.t.ppf(q, max(1, math.floor(nu_eff))))
+    # The 1e-9 keeps a ν_eff that rounding left at 7.999999999 from truncating to 7.
+    return float(_sps.t.ppf(q, max(1, math.floor(nu_eff + 1e-9))))
 
 
 def combine(model: ProductModel, k: float | None = 2.0, coverage: float = 0.95) -> GumResult:
