@@ -5,8 +5,9 @@ and a class's titration results recomputed with it, out. No web or database impo
 
 "In force" on a day D is policy.release_in_force: the newest release made on or before D, unless the
 batch had expired or been withdrawn by D. The certified value is at 20 °C; at the bench temperature
-T it is c(T) = c(20 °C)·[1 − α(T − 20 °C)] (corrections.molarity_at_temperature, EURACHEM/CITAC
-QUAM:2012), the value to use with burette readings taken at T.
+T it is c(T) = c(20 °C)·ρ(T)/ρ(20 °C) by the titrant's density model (corrections.molarity_at; with an
+explicit α, the linear c(20 °C)·[1 − α(T − 20 °C)] of EURACHEM/CITAC QUAM:2012), the value to use with
+burette readings taken at T.
 
 The predicted value on D comes from the drift fit of the release in force (stockroom.drift), using
 every standardization of that release recorded up to `known_on` (normally today): for a past lab day,
