@@ -124,6 +124,8 @@ class Instruments:
     # k from the effective degrees of freedom at this coverage probability, or fixed (K_POLICIES).
     k_policy: str = "effective-dof"
     coverage_probability: float = 0.95
+    # A secondary run's titre and aliquot temperature terms (TEMPERATURE_TERMS) when the run does not say.
+    temperature_terms: str = "shared"
 
     @classmethod
     def from_settings(cls, config: Mapping[str, Any]) -> Instruments:
@@ -152,6 +154,9 @@ class Instruments:
             # a lab that wants k from ν_eff sets COVERAGE_K_POLICY = "effective-dof".
             k_policy=str(config.get("COVERAGE_K_POLICY", "fixed")),
             coverage_probability=float(config.get("COVERAGE_PROBABILITY", 0.95)),
+            # Likewise the app keeps QUAM:2012 A3's two independent temperature terms until a
+            # SECONDARY_TEMPERATURE_TERMS setting is declared ("shared" is the better model, §3 of the docs).
+            temperature_terms=str(config.get("SECONDARY_TEMPERATURE_TERMS", "independent")),
         )
 
 
@@ -309,7 +314,8 @@ class SecondaryRun:
     QUAM:2012 A3) or "reference" (an aliquot of the reference titrated with the new batch).
     u_aliquot_ml replaces the pipette terms, u_volume_ml the burette and temperature terms.
     titrant and overrides as for PrimaryRun (titrant: the new batch's). temperature_terms: "shared"
-    (one lab temperature acting on both volumes, the default) or "independent" (QUAM:2012 A3).
+    (one lab temperature acting on both volumes) or "independent" (QUAM:2012 A3), or None for the
+    instruments' choice (Instruments.temperature_terms).
     """
 
     reference: Reference
@@ -324,7 +330,7 @@ class SecondaryRun:
     burette_capacity_ml: float | None = None
     titrant: chemistry.Titrant | None = None
     overrides: Mapping[str, str] = field(default_factory=dict)
-    temperature_terms: str = "shared"
+    temperature_terms: str | None = None
 
 
 # --------------------------------------------------------------------------- results
@@ -1337,7 +1343,7 @@ def _validate_secondary(run: SecondaryRun) -> None:
         _check_positive(errors, "burette_capacity_ml", run.burette_capacity_ml, "mL")
     _check_exclusions(errors, run.exclusions, len(run.replicates))
     _check_overrides(errors, run.overrides)
-    if run.temperature_terms not in TEMPERATURE_TERMS:
+    if run.temperature_terms is not None and run.temperature_terms not in TEMPERATURE_TERMS:
         errors.append(FieldError("temperature_terms", f"must be one of {', '.join(TEMPERATURE_TERMS)}"))
     _check_fills(errors, [r.volume_ml - r.blank_ml for r in run.replicates], run.burette_capacity_ml)
     if errors:
@@ -1409,7 +1415,8 @@ def standardize_secondary(
     ref_model = run.reference.expansion or expansion
     alpha_ref = _alpha(instruments, ref_model, run.reference.molarity, t_run)
     # With a stated u for either volume, that u already holds its temperature effect: both stay independent.
-    shared = run.temperature_terms == "shared" and run.u_volume_ml is None and run.u_aliquot_ml is None
+    terms = run.temperature_terms or instruments.temperature_terms
+    shared = terms == "shared" and run.u_volume_ml is None and run.u_aliquot_ml is None
     e_titre = 1 if run.aliquot_of == "new" else -1
     # Which solution each volume holds: the burette delivers the reference when the aliquot is of the new batch.
     alpha_titre, alpha_aliquot = (alpha_ref, alpha_new) if e_titre == 1 else (alpha_new, alpha_ref)

@@ -629,8 +629,10 @@ def test_two_replicates_never_claim_less_than_their_scatter():
 def test_secondary_run_carries_one_shared_temperature_input():
     ref = Reference(0.1000, 0.00008, "HCl")
     reps = tuple(AliquotReplicate(aliquot_ml=25.0, volume_ml=v) for v in (24.80, 24.84, 24.78))
-    shared = standardize_secondary(SecondaryRun(ref, 1.0, reps), fast(DEFAULTS))
+    shared = standardize_secondary(SecondaryRun(ref, 1.0, reps, temperature_terms="shared"), fast(DEFAULTS))
     apart = standardize_secondary(SecondaryRun(ref, 1.0, reps, temperature_terms="independent"), fast(DEFAULTS))
+    # The settings keep QUAM A3's independent terms until SECONDARY_TEMPERATURE_TERMS is declared.
+    assert standardize_secondary(SecondaryRun(ref, 1.0, reps), fast(DEFAULTS)).u == apart.u
     sources = {ln.source for ln in shared.gum.lines}
     assert "lab temperature (shared by titre and aliquot)" in sources
     assert "titre temperature" not in sources and "aliquot temperature" not in sources
@@ -638,7 +640,14 @@ def test_secondary_run_carries_one_shared_temperature_input():
     line = next(ln for ln in shared.gum.lines if ln.source.startswith("lab temperature"))
     assert line.contribution == 0.0 and shared.u < apart.u
     # A 1 mol/L NaOH batch against 0.1 mol/L HCl: the sensitivity is c·(α_ref − α_new).
-    strong = SecondaryRun(Reference(0.1, 0.00008, "HCl", corrections.AQUEOUS_HCL), 10.0, reps, nominal_molarity=1.0, titrant=NAOH)
+    strong = SecondaryRun(
+        Reference(0.1, 0.00008, "HCl", corrections.AQUEOUS_HCL),
+        10.0,
+        reps,
+        nominal_molarity=1.0,
+        titrant=NAOH,
+        temperature_terms="shared",
+    )
     r = standardize_secondary(strong, fast(DEFAULTS))
     line = next(ln for ln in r.gum.lines if ln.source.startswith("lab temperature"))
     a_ref = corrections.expansion_coefficient(corrections.AQUEOUS_HCL, 0.1, 20.0)
