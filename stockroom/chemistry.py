@@ -11,6 +11,7 @@ from dataclasses import dataclass
 from functools import lru_cache
 from typing import TypeVar
 
+from stockroom import corrections
 from stockroom.errors import FieldError, InvalidInput, StockroomError
 
 
@@ -367,7 +368,13 @@ BASE = "base"
 
 @dataclass(frozen=True)
 class Titrant:
-    """A titrant solution kind; role is what the dissolved reagent is (acid or base)."""
+    """A titrant solution kind; role is what the dissolved reagent is (acid or base).
+
+    expansion: how its density follows temperature (corrections.ExpansionModel), used to refer
+    molarities to 20 °C and for the budget's temperature term. max_molarity: mol/L, the strongest such
+    solution that can exist (the concentrated or saturated form); a result above it is a slip, not a
+    solution. max_molarity_source names where that figure is from.
+    """
 
     key: str
     name: str
@@ -375,6 +382,9 @@ class Titrant:
     role: str  # "acid" | "base"
     equivalents: int  # protons given (acid) or taken (base) per formula unit
     aliases: tuple[str, ...] = ()
+    expansion: corrections.ExpansionModel = corrections.WATER_LIKE
+    max_molarity: float = math.inf
+    max_molarity_source: str = ""
 
     @property
     def molar_mass(self) -> MolarMass:
@@ -404,15 +414,86 @@ class PrimaryStandard:
 
 
 TITRANTS: tuple[Titrant, ...] = (
-    Titrant("HCl", "hydrochloric acid", "HCl", ACID, 1, ("hydrochloric acid", "muriatic acid")),
-    Titrant("HNO3", "nitric acid", "HNO3", ACID, 1, ("nitric acid",)),
-    Titrant("H2SO4", "sulfuric acid", "H2SO4", ACID, 2, ("sulfuric acid", "sulphuric acid")),
+    Titrant(
+        "HCl",
+        "hydrochloric acid",
+        "HCl",
+        ACID,
+        1,
+        ("hydrochloric acid", "muriatic acid"),
+        corrections.AQUEOUS_HCL,
+        12.4,
+        "38 % HCl, 12.39 mol/L at 20 °C (the concentration table of hydrochloric acid's physical properties)",
+    ),
+    Titrant(
+        "HNO3",
+        "nitric acid",
+        "HNO3",
+        ACID,
+        1,
+        ("nitric acid",),
+        corrections.WATER_LIKE,
+        24.0,
+        "100 % HNO3, about 1.51 g/cm3, 24 mol/L (from memory)",
+    ),
+    Titrant(
+        "H2SO4",
+        "sulfuric acid",
+        "H2SO4",
+        ACID,
+        2,
+        ("sulfuric acid", "sulphuric acid"),
+        corrections.WATER_LIKE,
+        18.7,
+        "98 % H2SO4, about 1.84 g/cm3, 18.4 mol/L (from memory); 100 % is 18.7 mol/L",
+    ),
     # Aqueous perchloric acid only. Perchloric acid in glacial acetic acid (non-aqueous titrimetry) is
-    # standardized against KHP acting as a base in that solvent; that pairing is outside this catalogue.
-    Titrant("HClO4", "perchloric acid", "HClO4", ACID, 1, ("perchloric acid",)),
-    Titrant("NaOH", "sodium hydroxide", "NaOH", BASE, 1, ("sodium hydroxide", "caustic soda")),
-    Titrant("KOH", "potassium hydroxide", "KOH", BASE, 1, ("potassium hydroxide", "caustic potash")),
-    Titrant("Ba(OH)2", "barium hydroxide", "Ba(OH)2", BASE, 2, ("barium hydroxide", "baryta")),
+    # standardized against KHP acting as a base in that solvent; that pairing is outside this catalogue,
+    # and would bring its own ExpansionModel(kind="linear", alpha_per_k=...) for the acetic-acid medium.
+    Titrant(
+        "HClO4",
+        "perchloric acid",
+        "HClO4",
+        ACID,
+        1,
+        ("perchloric acid",),
+        corrections.WATER_LIKE,
+        12.0,
+        "72 % HClO4, about 1.68 g/cm3, 12 mol/L (from memory)",
+    ),
+    Titrant(
+        "NaOH",
+        "sodium hydroxide",
+        "NaOH",
+        BASE,
+        1,
+        ("sodium hydroxide", "caustic soda"),
+        corrections.AQUEOUS_NAOH,
+        19.1,
+        "saturated NaOH(aq) at 25 °C, 19.1 mol/L (Sipos, May, Hefter, Pannell, J. Chem. Eng. Data 45 (2000) 613)",
+    ),
+    Titrant(
+        "KOH",
+        "potassium hydroxide",
+        "KOH",
+        BASE,
+        1,
+        ("potassium hydroxide", "caustic potash"),
+        corrections.WATER_LIKE,
+        14.1,
+        "saturated KOH(aq) at 25 °C, 14.1 mol/L (Sipos et al., J. Chem. Eng. Data 45 (2000) 613)",
+    ),
+    Titrant(
+        "Ba(OH)2",
+        "barium hydroxide",
+        "Ba(OH)2",
+        BASE,
+        2,
+        ("barium hydroxide", "baryta"),
+        corrections.WATER_LIKE,
+        0.3,
+        "saturated at 20 °C, about 0.23 mol/L (solubility about 3.9 g Ba(OH)2 per 100 g water, from memory)",
+    ),
 )
 
 # Drying temperatures and end points are common practice in prep rooms and volumetric-analysis texts;

@@ -6,6 +6,7 @@ Pure module: plain floats in and out; no web or database import.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 from stockroom.errors import FieldError, InvalidInput, StockroomError
 
@@ -253,3 +254,145 @@ def net_titre(volume_ml: float, blank_ml: float = 0.0) -> float:
     if b >= v:
         raise ReadingError(f"the blank ({b:g} mL) is not below the titre ({v:g} mL): check the readings or the blank")
     return v - b
+
+
+# ---------------------------------------------------------------------------------------------------------
+# How a titrant's density (hence its molarity) follows temperature
+
+# Up to this molarity a titrant is taken to expand exactly as pure water does. Why 0.2 mol/L: the solute's
+# own share of the expansion grows about linearly with concentration, and for 1 mol/L HCl and NaOH it adds
+# 0.5e-4 and 1.0e-4 /K to water's 2.07e-4 /K (the tables cited on AQUEOUS_HCL and AQUEOUS_NAOH below). At
+# 0.2 mol/L that is at most 2e-5 /K, so over a ±3 K lab range at most 6e-5 relative: below a tenth of the
+# 0.2 % RSD acceptance limit and below the temperature term the budget already carries.
+DILUTE_LIMIT_MOL_L = 0.2
+
+
+@dataclass(frozen=True)
+class ExpansionModel:
+    """How the density of one kind of titrant solution follows temperature.
+
+    kind "aqueous": density of pure water (Tanaka et al. 2001) plus, above dilute_limit_mol_l, the
+    solute's excess density ρ_solution − ρ_water, taken from tabulated (t °C, kg/m3) points at one
+    reference strength (reference_molality_mol_kg, solute_molar_mass_g_mol) and scaled in proportion
+    to molarity (a quadratic in t through the points). kind "linear": a fixed cubic expansion
+    coefficient alpha_per_k, 1/K, for media other than water (e.g. a titrant in acetic acid).
+    source names the table the numbers come from; valid_to_mol_l is the strength up to which the
+    proportional scaling is trusted, mol/L.
+    """
+
+    key: str
+    kind: str = "aqueous"
+    excess_points: tuple[tuple[float, float], ...] = ()
+    reference_molality_mol_kg: float = 0.0
+    solute_molar_mass_g_mol: float = 0.0
+    alpha_per_k: float = 0.0
+    dilute_limit_mol_l: float = DILUTE_LIMIT_MOL_L
+    valid_to_mol_l: float = 2.0
+    source: str = ""
+
+    def __post_init__(self) -> None:
+        if self.kind not in ("aqueous", "linear"):
+            raise ValueError(f"{self.key}: kind must be 'aqueous' or 'linear', got {self.kind!r}")
+        if self.excess_points and len(self.excess_points) != 3:
+            raise ValueError(f"{self.key}: give three (t, excess density) points for the quadratic")
+
+    def excess_density(self, t_c: float) -> float:
+        """ρ_solution − ρ_water at the reference strength, kg/m3, at t_c °C (0 when no points)."""
+        if not self.excess_points:
+            return 0.0
+        (t0, y0), (t1, y1), (t2, y2) = self.excess_points
+        # Lagrange's quadratic through the three tabulated points.
+        return (
+            y0 * (t_c - t1) * (t_c - t2) / ((t0 - t1) * (t0 - t2))
+            + y1 * (t_c - t0) * (t_c - t2) / ((t1 - t0) * (t1 - t2))
+            + y2 * (t_c - t0) * (t_c - t1) / ((t2 - t0) * (t2 - t1))
+        )
+
+    @property
+    def reference_molarity_mol_l(self) -> float:
+        """The molarity at 20 °C of the tabulated reference strength, mol/L (c = m·ρ/(1 + m·M)), or 0."""
+        if not self.excess_points or self.reference_molality_mol_kg <= 0:
+            return 0.0
+        m = self.reference_molality_mol_kg
+        rho_kg_l = (water_density(REFERENCE_TEMPERATURE_C) + self.excess_density(REFERENCE_TEMPERATURE_C)) / 1000.0
+        return m * rho_kg_l / (1.0 + m * self.solute_molar_mass_g_mol / 1000.0)
+
+
+# Water's density alone, at every strength: for titrants whose own expansion has not been looked up.
+WATER_LIKE = ExpansionModel(
+    "water",
+    source="density of pure water, Tanaka et al., Metrologia 38 (2001) 301; the solute's own expansion is not modelled",
+)
+
+# Densities of 1.0 mol/kg solutions at 10, 25 and 40 °C, g/cm3: HCl 1.01767, 1.01420, 1.00908; NaOH 1.04340,
+# 1.03911, 1.03323 (advancedthermo.com electrolyte density tables, "Density of hydrochloric acid, HCl(aq)"
+# and "Density of sodium hydroxide, NaOH(aq)", Table 1, consistent with IAPWS-95 water). The excess over
+# Tanaka's water at the same temperatures (999.703, 997.047, 992.215 kg/m3) is stored.
+AQUEOUS_HCL = ExpansionModel(
+    "aqueous HCl",
+    excess_points=((10.0, 1017.67 - 999.703), (25.0, 1014.20 - 997.047), (40.0, 1009.08 - 992.215)),
+    reference_molality_mol_kg=1.0,
+    solute_molar_mass_g_mol=36.46,
+    source="water (Tanaka et al. 2001) plus the excess density of 1.0 mol/kg HCl(aq) at 10/25/40 °C "
+    "(advancedthermo.com HCl(aq) density table), scaled with molarity",
+)
+AQUEOUS_NAOH = ExpansionModel(
+    "aqueous NaOH",
+    excess_points=((10.0, 1043.40 - 999.703), (25.0, 1039.11 - 997.047), (40.0, 1033.23 - 992.215)),
+    reference_molality_mol_kg=1.0,
+    solute_molar_mass_g_mol=40.00,
+    source="water (Tanaka et al. 2001) plus the excess density of 1.0 mol/kg NaOH(aq) at 10/25/40 °C "
+    "(advancedthermo.com NaOH(aq) density table), scaled with molarity",
+)
+
+
+def solution_density(model: ExpansionModel, c_mol_l: float, t_c: float) -> float:
+    """Density of a titrant of strength c_mol_l at t_c by its model, kg/m3 (a relative scale for "linear").
+
+    model: the titrant's ExpansionModel; c_mol_l: its molarity, mol/L (selects dilute or not); t_c: °C
+    (0–40 for aqueous models). Returns kg/m3; for a "linear" model 1000·[1 − α(t − 20)], whose ratios
+    are what matter.
+    """
+    c = _number("c_mol_l", c_mol_l)
+    t = _number("t_c", t_c)
+    if model.kind == "linear":
+        return 1000.0 * (1.0 - model.alpha_per_k * (t - REFERENCE_TEMPERATURE_C))
+    rho = water_density(t)
+    c_ref = model.reference_molarity_mol_l
+    if c > model.dilute_limit_mol_l and c_ref > 0:
+        rho += (c / c_ref) * model.excess_density(t)
+    return rho
+
+
+def referral_factor(model: ExpansionModel, c_mol_l: float, t_c: float) -> float:
+    """Factor taking a molarity measured at t_c to 20 °C, ρ(20 °C)/ρ(t) (dimensionless).
+
+    model: the titrant's ExpansionModel; c_mol_l: its molarity, mol/L; t_c: °C. The amount of solute
+    in a given mass of solution does not change with temperature, so molarity follows density.
+    """
+    return solution_density(model, c_mol_l, REFERENCE_TEMPERATURE_C) / solution_density(model, c_mol_l, t_c)
+
+
+def molarity_at(model: ExpansionModel, c20_mol_l: float, t_c: float) -> float:
+    """The molarity at t_c of a titrant certified c20_mol_l at 20 °C, c20·ρ(t)/ρ(20 °C), mol/L.
+
+    model: the titrant's ExpansionModel; c20_mol_l: mol/L at 20 °C; t_c: °C.
+    """
+    c = _number("c20_mol_l", c20_mol_l)
+    return c / referral_factor(model, c, t_c)
+
+
+def expansion_coefficient(model: ExpansionModel, c_mol_l: float, t_c: float) -> float:
+    """Cubic expansion coefficient of the titrant at t_c, α = −(1/ρ)·dρ/dt, 1/K.
+
+    model: the titrant's ExpansionModel; c_mol_l: mol/L; t_c: °C. The derivative is a central
+    difference over ±0.05 K (both density formulas are smooth; the step error is below 1e-10 /K).
+    Pure water gives 2.07e-4 /K at 20 °C, 0.88e-4 at 10 °C and 3.0e-4 at 30 °C.
+    """
+    if model.kind == "linear":
+        return model.alpha_per_k / (1.0 - model.alpha_per_k * (_number("t_c", t_c) - REFERENCE_TEMPERATURE_C))
+    t = _number("t_c", t_c)
+    h = 0.05
+    lo, hi = max(0.0, t - h), min(40.0, t + h)
+    rho = solution_density(model, c_mol_l, t)
+    return -(solution_density(model, c_mol_l, hi) - solution_density(model, c_mol_l, lo)) / (hi - lo) / rho

@@ -5,8 +5,9 @@ and a class's titration results recomputed with it, out. No web or database impo
 
 "In force" on a day D is policy.release_in_force: the newest release made on or before D, unless the
 batch had expired or been withdrawn by D. The certified value is at 20 °C; at the bench temperature
-T it is c(T) = c(20 °C)·[1 − α(T − 20 °C)] (corrections.molarity_at_temperature, EURACHEM/CITAC
-QUAM:2012), the value to use with burette readings taken at T.
+T it is c(T) = c(20 °C)·ρ(T)/ρ(20 °C) by the titrant's density model (corrections.molarity_at; with an
+explicit α, the linear c(20 °C)·[1 − α(T − 20 °C)] of EURACHEM/CITAC QUAM:2012), the value to use with
+burette readings taken at T.
 
 The predicted value on D comes from the drift fit of the release in force (stockroom.drift), using
 every standardization of that release recorded up to `known_on` (normally today): for a past lab day,
@@ -180,17 +181,30 @@ def _hindsight(
     )
 
 
+def _at_bench(batch: BatchRecord, c20: float, bench_c: float, alpha_per_k: float | None) -> float:
+    """A 20 °C molarity moved to the bench temperature, mol/L: by α when given, else by the titrant's model."""
+    if alpha_per_k is not None:
+        return corrections.molarity_at_temperature(c20, REFERENCE_TEMPERATURE_C, bench_c, alpha_per_k)
+    try:
+        model = chemistry.titrant(batch.reagent).expansion
+    except chemistry.UnknownSubstance:
+        model = corrections.WATER_LIKE
+    return corrections.molarity_at(model, c20, bench_c)
+
+
 def entry_for(
     batch: BatchRecord,
     on: dt.date,
     known_on: dt.date,
     bench_temperature_c: float | None = None,
-    alpha_per_k: float = corrections.ALPHA_WATER_PER_K,
+    alpha_per_k: float | None = None,
 ) -> LabDayEntry | None:
     """The lab-day entry of one batch, or None when no release of it was in force on `on`.
 
     on: the lab day; known_on: standardizations recorded up to this date inform the prediction (a
-    later date than `on` for a past day); bench_temperature_c in °C or None; alpha_per_k in 1/K.
+    later date than `on` for a past day); bench_temperature_c in °C or None; alpha_per_k in 1/K for
+    the linear model, or None (the default) for the titrant's own density model from the catalogue
+    (chemistry.Titrant.expansion: water's density for dilute titrants, the solution's above 0.2 mol/L).
     """
     release = release_in_force(batch.facts, on)
     if release is None:
@@ -202,11 +216,9 @@ def entry_for(
     prediction = drift.predict(fit, on) if fit is not None else None
     at_bench = predicted_bench = None
     if bench is not None:
-        at_bench = corrections.molarity_at_temperature(release.molarity, REFERENCE_TEMPERATURE_C, bench, alpha_per_k)
+        at_bench = _at_bench(batch, release.molarity, bench, alpha_per_k)
         if prediction is not None:
-            predicted_bench = corrections.molarity_at_temperature(
-                prediction.molarity, REFERENCE_TEMPERATURE_C, bench, alpha_per_k
-            )
+            predicted_bench = _at_bench(batch, prediction.molarity, bench, alpha_per_k)
     flags = list(status.flags)
     late = _hindsight(release, status, fit, prediction, on, until)
     if late is not None:
@@ -250,13 +262,14 @@ def lab_day(
     known_on: dt.date,
     titrant: str | None = None,
     bench_temperature_c: float | None = None,
-    alpha_per_k: float = corrections.ALPHA_WATER_PER_K,
+    alpha_per_k: float | None = None,
 ) -> LabDay:
     """Every batch of a titrant (all titrants when None) in force on `on`, most urgent flags first.
 
     batches: BatchRecords (any titrants; those of other titrants are ignored); on: the lab day;
     known_on: the date the record is read on (today); titrant: catalogue key; bench_temperature_c in °C
-    (5–40) or None; alpha_per_k in 1/K. Returns a LabDay; an empty one carries the reason.
+    (5–40) or None; alpha_per_k in 1/K, or None for each titrant's own density model. Returns a LabDay;
+    an empty one carries the reason.
     """
     bench = check_bench_temperature(bench_temperature_c)
     key = chemistry.titrant(titrant).key if titrant else None

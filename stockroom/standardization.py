@@ -19,12 +19,13 @@ and an excluded replicate stays in the result, marked.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-from stockroom import corrections, settings, stats
+from stockroom import chemistry, corrections, glassware, settings, stats
 from stockroom.errors import FieldError, InvalidInput, StockroomError
 from stockroom.uncertainty import (
     Z95,
@@ -54,6 +55,27 @@ NOMINAL_REFUSE_FACTOR = 3.0
 _DECADE_TOLERANCE = 1.5
 # Temperatures certified values are referred to (volumetric glassware is graduated at 20 °C).
 REFERENCE_TEMPERATURE_C = corrections.REFERENCE_TEMPERATURE_C
+# A result within ±10 % of twice or half the nominal is refused, not warned about: the usual causes are a
+# carbonate titrated to its first end point and a diprotic titrant's normality read as molarity (common
+# practice). The ±10 % band is the nominal-strength tolerance above.
+NOMINAL_HALF_DOUBLE_BAND = 0.10
+# Certified assays of acidimetric primary standards are stated on both sides of 100 % (e.g. KHP 99.95–100.05 %,
+# common practice for certified reference materials); a purity up to this mass fraction is accepted.
+PURITY_MAX = 1.001
+# A purity above this reads as a percentage (99.95 for 0.9995), not as a slightly high mass fraction.
+PURITY_PERCENT_FROM = 1.5
+# How k is chosen: "effective-dof" (k = t_p(ν_eff), GUM G.4) or "fixed" (k = coverage_factor, for labs whose
+# procedure fixes k = 2).
+K_POLICIES = ("effective-dof", "fixed")
+# Checks a person may override with a reason (code -> what it guards against).
+OVERRIDABLE_CHECKS = {
+    "replicate-unit-slip": "one replicate off from the others by a power of ten",
+    "nominal-twice-or-half": "a result twice or half the nominal strength",
+}
+# How the titre's and the aliquot's temperature errors of a secondary run are treated: "shared" (one lab
+# temperature acts on both volumes, one input with the combined sensitivity) or "independent" (two inputs, as
+# QUAM:2012 A3 treats them).
+TEMPERATURE_TERMS = ("shared", "independent")
 
 
 # --------------------------------------------------------------------------- parameters
@@ -93,6 +115,17 @@ class Instruments:
     burette_reading_ml: float = 0.01
     # ±0.05 %, the purity tolerance QUAM:2012 A2 takes for KHP from its supplier's certificate.
     purity_tolerance_default: float = 0.0005
+    # Class of the glassware whose figures default from its capacity (glassware.py), "A" or "B".
+    burette_class: str = "A"
+    pipette_class: str = "A"
+    # Nominal capacity the pipette tolerance above belongs to, mL; None when it is a figure for whatever
+    # pipette is used. When set and the aliquots show another size, that size's figure is used instead.
+    pipette_capacity_ml: float | None = None
+    # k from the effective degrees of freedom at this coverage probability, or fixed (K_POLICIES).
+    k_policy: str = "effective-dof"
+    coverage_probability: float = 0.95
+    # A secondary run's titre and aliquot temperature terms (TEMPERATURE_TERMS) when the run does not say.
+    temperature_terms: str = "shared"
 
     @classmethod
     def from_settings(cls, config: Mapping[str, Any]) -> Instruments:
@@ -115,6 +148,15 @@ class Instruments:
             expansion_coefficient_per_k=float(get("EXPANSION_COEFFICIENT_PER_K")),
             coverage_factor=float(get("COVERAGE_FACTOR")),
             monte_carlo_draws=int(get("MONTE_CARLO_DRAWS")),
+            # The settings' default pipette tolerance is that of a Class A 25 mL pipette (its help text).
+            pipette_capacity_ml=25.0,
+            # Until a COVERAGE_K_POLICY setting is declared, the app keeps its fixed k (COVERAGE_FACTOR);
+            # a lab that wants k from ν_eff sets COVERAGE_K_POLICY = "effective-dof".
+            k_policy=str(config.get("COVERAGE_K_POLICY", "fixed")),
+            coverage_probability=float(config.get("COVERAGE_PROBABILITY", 0.95)),
+            # Likewise the app keeps QUAM:2012 A3's two independent temperature terms until a
+            # SECONDARY_TEMPERATURE_TERMS setting is declared ("shared" is the better model, §3 of the docs).
+            temperature_terms=str(config.get("SECONDARY_TEMPERATURE_TERMS", "independent")),
         )
 
 
@@ -228,7 +270,10 @@ class PrimaryRun:
     balance terms; u_volume_ml: of one titre, mL, replacing the burette and temperature terms;
     u_repeatability_rel: relative standard uncertainty of the repeatability of the certified value,
     replacing s/√n. alternatives: other standards the titrant pairs with, used only to name the
-    likely one when the answer is refused as a wrong standard.
+    likely one when the answer is refused as a wrong standard. titrant: the catalogue's Titrant, or
+    None; when given, its expansion model refers molarities to 20 °C and sets the budget's temperature
+    sensitivity, and its max_molarity caps a plausible result. overrides: check code (OVERRIDABLE_CHECKS)
+    -> the reason a person gives for going ahead; the result records them.
     """
 
     standard: StandardSpec
@@ -243,15 +288,21 @@ class PrimaryRun:
     u_repeatability_rel: float | None = None
     burette_capacity_ml: float | None = None
     alternatives: tuple[StandardSpec, ...] = ()
+    titrant: chemistry.Titrant | None = None
+    overrides: Mapping[str, str] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
 class Reference:
-    """The certified titrant a secondary standardization is made against: molarity and u, mol/L (at 20 °C)."""
+    """The certified titrant a secondary standardization is made against: molarity and u, mol/L (at 20 °C).
+
+    expansion: the reference titrant's expansion model, or None (then it expands as the new titrant does).
+    """
 
     molarity: float
     u: float
     name: str = "reference titrant"
+    expansion: corrections.ExpansionModel | None = None
 
 
 @dataclass(frozen=True)
@@ -262,6 +313,9 @@ class SecondaryRun:
     aliquot_of: "new" (an aliquot of the new batch titrated with the reference from the burette, as
     QUAM:2012 A3) or "reference" (an aliquot of the reference titrated with the new batch).
     u_aliquot_ml replaces the pipette terms, u_volume_ml the burette and temperature terms.
+    titrant and overrides as for PrimaryRun (titrant: the new batch's). temperature_terms: "shared"
+    (one lab temperature acting on both volumes) or "independent" (QUAM:2012 A3), or None for the
+    instruments' choice (Instruments.temperature_terms).
     """
 
     reference: Reference
@@ -274,9 +328,32 @@ class SecondaryRun:
     u_volume_ml: float | None = None
     u_repeatability_rel: float | None = None
     burette_capacity_ml: float | None = None
+    titrant: chemistry.Titrant | None = None
+    overrides: Mapping[str, str] = field(default_factory=dict)
+    temperature_terms: str | None = None
 
 
 # --------------------------------------------------------------------------- results
+
+
+@dataclass(frozen=True)
+class Check:
+    """A check that refused the result (or would have, but for an override).
+
+    code: one of OVERRIDABLE_CHECKS; replicate: 0-based index it concerns, or None for the whole run;
+    message: what was found and its likely causes; override_reason: the reason given for going ahead,
+    or None when the check stands (the result is then refused).
+    """
+
+    code: str
+    replicate: int | None
+    message: str
+    override_reason: str | None = None
+
+    @property
+    def overridden(self) -> bool:
+        """True when a person went ahead with a reason."""
+        return self.override_reason is not None
 
 
 @dataclass(frozen=True)
@@ -286,7 +363,7 @@ class ReplicateResult:
     molarity: mol/L at 20 °C; mass_g: buoyancy-corrected mass, g (primary) or None; titre_ml: net
     titre (less blank), mL; aliquot_ml: mL (secondary) or None; outlier: flagged by a screen of the
     whole run; outlier_tests names the tests that flagged it; excluded and exclusion_reason as the
-    analyst chose; warnings about this replicate.
+    analyst chose; warnings about this replicate; fills: burette fills the titre took (1 or 2).
     """
 
     index: int
@@ -299,6 +376,7 @@ class ReplicateResult:
     excluded: bool
     exclusion_reason: str | None
     warnings: tuple[str, ...]
+    fills: int = 1
 
 
 @dataclass(frozen=True)
@@ -309,7 +387,10 @@ class StandardizationResult:
     replicates, n_total all of them; summary of the included molarities (stats.Summary, mol/L);
     screening: outlier tests on all replicates in entry order; gum: GUM budget; monte_carlo:
     the JCGM 101 cross-check; accepted, reasons (why not) and warnings (accepted or not);
-    nominal_ratio: molarity / nominal, or None.
+    nominal_ratio: molarity / nominal, or None. nu_eff: effective degrees of freedom of u (GUM G.4,
+    inf when every source is Type B); coverage: the coverage probability k was taken for from
+    t(nu_eff), or None when k was fixed; checks: the overridable checks that fired (refused, or gone
+    ahead with a recorded reason); overrides: every (code, reason) the run was given, as recorded.
     """
 
     kind: str
@@ -329,6 +410,10 @@ class StandardizationResult:
     warnings: tuple[str, ...]
     nominal_ratio: float | None
     model: ProductModel = field(repr=False)
+    nu_eff: float = math.inf
+    coverage: float | None = None
+    checks: tuple[Check, ...] = ()
+    overrides: tuple[tuple[str, str], ...] = ()
 
     @property
     def u_rel(self) -> float:
@@ -387,11 +472,32 @@ def _net_titre(errors: list[FieldError], i: int, volume: float, blank: float) ->
         return None
 
 
-def _temperature_factor(t_c: float | None, alpha: float) -> float:
-    """Factor taking a molarity measured at t_c to 20 °C (1 when no temperature was recorded)."""
+def _temperature_factor(
+    t_c: float | None, alpha: float, model: corrections.ExpansionModel | None = None, strength_mol_l: float = 0.1
+) -> float:
+    """Factor taking a molarity measured at t_c to 20 °C (1 when no temperature was recorded).
+
+    With an expansion model, ρ(20 °C)/ρ(t) of a solution of strength_mol_l (mol/L); without, the
+    linear [1 + α(t − 20)] with alpha in 1/K.
+    """
     if t_c is None:
         return 1.0
+    if model is not None:
+        return corrections.referral_factor(model, strength_mol_l, t_c)
     return corrections.molarity_at_temperature(1.0, t_c, REFERENCE_TEMPERATURE_C, alpha)
+
+
+def _run_temperature(temperatures: Sequence[float | None]) -> float:
+    """The temperature the budget's sensitivity is taken at: the mean of those recorded, else 20 °C."""
+    recorded = [t for t in temperatures if t is not None]
+    return math.fsum(recorded) / len(recorded) if recorded else REFERENCE_TEMPERATURE_C
+
+
+def _alpha(instruments: Instruments, model: corrections.ExpansionModel | None, strength_mol_l: float, t_c: float) -> float:
+    """Expansion coefficient for the budget, 1/K: the model's −(1/ρ)dρ/dt at t_c, else the instruments' α."""
+    if model is None:
+        return instruments.expansion_coefficient_per_k
+    return corrections.expansion_coefficient(model, strength_mol_l, t_c)
 
 
 def _check_temperature(errors: list[FieldError], i: int, t_c: float | None) -> None:
@@ -414,9 +520,17 @@ def _effective(values: Sequence[float], quantities: Sequence[float]) -> float:
     return c_bar / (math.fsum(c / x for c, x in zip(values, quantities, strict=True)) / len(values))
 
 
-def _temperature_source(volume_ml: float, instruments: Instruments, what: str) -> InputQuantity:
+def _u_lab_temperature(instruments: Instruments) -> tuple[float, str]:
+    """Standard uncertainty of the lab temperature's departure from 20 °C, K, and how it was reached."""
     a = instruments.lab_temperature_half_range_k
-    alpha = instruments.expansion_coefficient_per_k
+    if instruments.lab_temperature_distribution == "normal":
+        return a / Z95, f"lab within ±{a:g} K at 95 %, u = a/1.96"
+    return a / math.sqrt(3), f"lab within ±{a:g} K, rectangular, u = a/√3"
+
+
+def _temperature_source(volume_ml: float, instruments: Instruments, what: str, alpha: float | None = None) -> InputQuantity:
+    a = instruments.lab_temperature_half_range_k
+    alpha = instruments.expansion_coefficient_per_k if alpha is None else alpha
     half = volume_ml * alpha * a
     if instruments.lab_temperature_distribution == "normal":
         return InputQuantity.normal(
@@ -436,9 +550,24 @@ def _temperature_source(volume_ml: float, instruments: Instruments, what: str) -
 
 
 def _titre_terms(
-    titre: float, blanks: Sequence[float], instruments: Instruments, u_volume_ml: float | None
+    titre: float,
+    blanks: Sequence[float],
+    instruments: Instruments,
+    u_volume_ml: float | None,
+    *,
+    burette_tolerance_ml: float | None = None,
+    alpha: float | None = None,
+    temperature: bool = True,
+    second_fill_share: float = 0.0,
 ) -> list[InputQuantity | Term]:
-    """The titre volume and its error sources (burette, temperature, end point, blank)."""
+    """The titre volume and its error sources (burette, temperature, end point, blank).
+
+    burette_tolerance_ml: ± mL of the burette used (default the instruments'); alpha: 1/K for the
+    temperature term (default the instruments'); temperature: False when a shared temperature input
+    carries it instead; second_fill_share: fraction of the included replicates whose titre took a second
+    fill of the burette, whose own calibration error enters with that weight.
+    """
+    tol = instruments.burette_tolerance_ml if burette_tolerance_ml is None else burette_tolerance_ml
     terms: list[InputQuantity | Term] = [
         InputQuantity.normal("titre volume", titre, 0.0, "mL", "mean effective titre of the run")
     ]
@@ -449,14 +578,25 @@ def _titre_terms(
     else:
         terms.append(
             InputQuantity.triangular(
-                "burette calibration",
-                0.0,
-                instruments.burette_tolerance_ml,
-                "mL",
-                f"burette tolerance ±{instruments.burette_tolerance_ml:g} mL, triangular, u = a/√6",
+                "burette calibration", 0.0, tol, "mL", f"burette tolerance ±{tol:g} mL, triangular, u = a/√6"
             )
         )
-        terms.append(_temperature_source(titre, instruments, "titre"))
+        if second_fill_share > 0:
+            terms.append(
+                Term(
+                    InputQuantity.triangular(
+                        "burette calibration (second fill)",
+                        0.0,
+                        tol,
+                        "mL",
+                        f"a second delivery, its own tolerance ±{tol:g} mL, triangular, in "
+                        f"{second_fill_share * 100:.0f} % of the replicates",
+                    ),
+                    second_fill_share,
+                )
+            )
+        if temperature:
+            terms.append(_temperature_source(titre, instruments, "titre", alpha))
     if instruments.endpoint_u_ml > 0:
         terms.append(
             InputQuantity.normal(
@@ -509,9 +649,24 @@ def _repeatability(
         return InputQuantity.normal("repeatability", 1.0, stated, "", "stated relative standard uncertainty of repeatability")
     if observed is not None and n >= 3:
         return InputQuantity.normal(
-            "repeatability", 1.0, observed, "", f"s/√n of the {n} included replicates, relative to their mean"
+            "repeatability", 1.0, observed, "", f"s/√n of the {n} included replicates, relative to their mean", dof=n - 1
         )
     fallback = rule.max_rsd / math.sqrt(n)
+    if observed is not None and observed > fallback:
+        # Two replicates that disagree by more than the acceptance limit allows: the stand-in would
+        # claim a repeatability better than the scatter seen, so the scatter itself is used.
+        warnings.append(
+            f"with {n} replicates the repeatability is taken from their own scatter (s/√n {observed:.2g} "
+            f"relative), which exceeds the acceptance limit's RSD {rule.max_rsd * 100:g} % /√{n}"
+        )
+        return InputQuantity.normal(
+            "repeatability",
+            1.0,
+            observed,
+            "",
+            f"s/√n of the {n} replicates ({observed:.2g}), above the acceptance-limit stand-in ({fallback:.2g})",
+            dof=n - 1,
+        )
     warnings.append(
         f"with {n} replicate{'s' if n != 1 else ''} the repeatability cannot be estimated; "
         f"the acceptance limit RSD {rule.max_rsd * 100:g} % /√{n} stands in for it — "
@@ -535,6 +690,121 @@ def _screen(values: Sequence[float]) -> tuple[list[stats.OutlierResult], dict[in
     return results, flags
 
 
+def _decade(ratio: float) -> int:
+    """The power of ten a ratio sits near (within _DECADE_TOLERANCE), or 0."""
+    if not ratio > 0:
+        return 0
+    d = math.log10(ratio)
+    k = round(d)
+    return k if k != 0 and abs(d - k) <= math.log10(_DECADE_TOLERANCE) else 0
+
+
+def _median(values: Sequence[float]) -> float:
+    v = sorted(values)
+    n = len(v)
+    return v[n // 2] if n % 2 else (v[n // 2 - 1] + v[n // 2]) / 2
+
+
+def _unit_hint(what: str, unit: str, k: int) -> str:
+    """The likely slip behind an entry off by 10^k (common practice)."""
+    if unit == "g" and k == 3:
+        return f"the {what} typed in mg as if in g"
+    if unit == "mL" and k == 3:
+        return f"the {what} typed in µL as if in mL"
+    if unit == "mL" and k == -3:
+        return f"the {what} typed in L as if in mL"
+    places = abs(k)
+    return f"the decimal point of the {what} {places} place{'s' if places > 1 else ''} off"
+
+
+def replicate_slips(
+    molarities: Sequence[float], included: Sequence[int], entries: Sequence[Mapping[str, tuple[float, str]]]
+) -> list[Check]:
+    """Replicates whose molarity is off from the others' median by a power of ten, with the likely entry.
+
+    molarities: every replicate's molarity, mol/L; included: indices not excluded; entries: per
+    replicate, name -> (value, unit) of the entries the molarity rests on (e.g. "mass": (0.51, "g"),
+    "titre": (24.9, "mL")). Returns one Check ("replicate-unit-slip") per slipped replicate naming it
+    (1-based in the message) and the entry that is off by the same power of ten, with its likely unit.
+    """
+    out: list[Check] = []
+    if len(included) < 2:
+        return out
+    for i in included:
+        others = [j for j in included if j != i]
+        k = _decade(molarities[i] / _median([molarities[j] for j in others]))
+        if k == 0:
+            continue
+        named = []
+        for name, (value, unit) in entries[i].items():
+            ref = _median([entries[j][name][0] for j in others])
+            kk = _decade(value / ref) if ref > 0 else 0
+            if kk != 0:
+                named.append(f"{name} {value:g} {unit} against {ref:g} {unit} in the others: {_unit_hint(name, unit, kk)}")
+        cause = "; ".join(named) if named else "check the units and decimal point of each of its entries"
+        out.append(
+            Check(
+                "replicate-unit-slip",
+                i,
+                f"replicate {i + 1} gives {molarities[i]:.5g} mol/L, {10 ** abs(k):g} times "
+                f"{'more' if k > 0 else 'less'} than the others ({_median([molarities[j] for j in others]):.5g} mol/L): "
+                f"{cause}",
+            )
+        )
+    return out
+
+
+def _half_double_check(molarity: float, nominal: float | None) -> Check | None:
+    """A Check when the result is within ±10 % of twice or half the nominal strength."""
+    if nominal is None:
+        return None
+    ratio = molarity / nominal
+    said = f"{molarity:.5g} mol/L is {ratio:.3g} times the nominal {nominal:g} mol/L"
+    if abs(ratio / 2.0 - 1.0) <= NOMINAL_HALF_DOUBLE_BAND:
+        return Check(
+            "nominal-twice-or-half",
+            None,
+            f"{said}: twice the nominal is what a carbonate standard titrated only to its first end point gives "
+            f"(CO3²⁻ → HCO3⁻ takes half the acid), or a monoprotic standard entered as a diprotic one",
+        )
+    if abs(ratio * 2.0 - 1.0) <= NOMINAL_HALF_DOUBLE_BAND:
+        return Check(
+            "nominal-twice-or-half",
+            None,
+            f"{said}: half the nominal is what a diprotic titrant labelled by its normality gives when read as "
+            f"molarity (0.1 N H2SO4 or Ba(OH)2 is 0.05 mol/L), or a carbonate counted as taking one proton",
+        )
+    return None
+
+
+def _ceiling_reason(molarity: float, titrant: chemistry.Titrant | None) -> str | None:
+    """A reason when a result is stronger than any solution of the titrant can be."""
+    if titrant is None or not molarity > titrant.max_molarity:
+        return None
+    k = _decade(molarity / 0.1)
+    slip = (
+        "a mass typed in mg as if in g, or a titre in L as if in mL (each a factor of 1000)"
+        if k >= 3
+        else "a decimal-point slip in a mass or a titre, or a nominal or dilution entered wrongly"
+    )
+    return (
+        f"{molarity:.5g} mol/L is stronger than any {titrant.name} solution can be (at most "
+        f"{titrant.max_molarity:g} mol/L: {titrant.max_molarity_source}); the likely cause is {slip}"
+    )
+
+
+def _check_overrides(errors: list[FieldError], overrides: Mapping[str, str]) -> None:
+    if not isinstance(overrides, Mapping):
+        errors.append(FieldError("overrides", "must map a check code to the reason for going ahead"))
+        return
+    for code, reason in overrides.items():
+        if code not in OVERRIDABLE_CHECKS:
+            codes = ", ".join(OVERRIDABLE_CHECKS)
+            errors.append(FieldError(f"overrides[{code}]", f"is not a check that can be overridden ({codes})"))
+        elif not isinstance(reason, str) or not reason.strip():
+            errors.append(FieldError(f"overrides[{code}]", "give the reason for going ahead despite this check"))
+
+
 def _nominal_check(
     molarity: float, nominal: float | None, reasons: list[str], warnings: list[str], alt_hint: str | None
 ) -> float | None:
@@ -543,6 +813,8 @@ def _nominal_check(
         return None
     ratio = molarity / nominal
     factor_off = max(ratio, 1.0 / ratio)
+    if _half_double_check(molarity, nominal) is not None:
+        return ratio  # refused (or overridden) by the twice-or-half check, which names the causes
     if factor_off >= NOMINAL_REFUSE_FACTOR:
         decade = math.log10(ratio)
         k = round(decade)
@@ -571,6 +843,11 @@ def _nominal_check(
 
 
 def _low_titre_warning(titre: float, capacity: float) -> str | None:
+    if titre > capacity:
+        return (
+            f"titre {titre:.2f} mL is beyond the {capacity:g} mL burette: counted as two fills, each with "
+            f"its own calibration and reading terms"
+        )
     if titre < LOW_TITRE_FRACTION * capacity:
         return (
             f"titre {titre:.2f} mL is under {LOW_TITRE_FRACTION * 100:g} % of the {capacity:g} mL "
@@ -601,6 +878,11 @@ def _finish(
     stated_rep: float | None,
     warnings: list[str],
     alt_hint_for: Any,
+    *,
+    titrant: chemistry.Titrant | None = None,
+    overrides: Mapping[str, str] | None = None,
+    slips: Sequence[Check] = (),
+    readings_per_titre: int = 2,
 ) -> StandardizationResult:
     """Statistics, model, GUM, Monte Carlo and verdict shared by both kinds of run."""
     inc_values = [molarities[i] for i in included]
@@ -616,17 +898,43 @@ def _finish(
     titres = [per_rep[i]["titre_ml"] for i in included]
     floor_rel = 0.0
     if titres:
-        reading_u = instruments.burette_reading_ml / math.sqrt(12) * math.sqrt(2)  # two readings per titre
+        # Two readings per titre, four when the titre took two fills.
+        reading_u = instruments.burette_reading_ml / math.sqrt(12) * math.sqrt(readings_per_titre)
         floor_rel = reading_u / (sum(titres) / len(titres)) / math.sqrt(len(titres))
     R = _repeatability(summary, stated_rep, rule, warnings, floor_rel)
     factors = [*model_factors, factor("repeatability", 1, R)]
     constant = _matching_constant(summary.mean, factors)
     model = ProductModel(constant, tuple(factors), UNIT, "c")
-    gum = combine(model, instruments.coverage_factor)
+    fixed = instruments.k_policy == "fixed"
+    gum = combine(model, instruments.coverage_factor if fixed else None, instruments.coverage_probability)
+    if not fixed and math.isfinite(gum.nu_eff):
+        warnings.append(
+            f"k = {gum.k:.3g} from t at {instruments.coverage_probability * 100:g} % with ν_eff = {gum.nu_eff:.1f} "
+            f"(Welch-Satterthwaite, GUM G.4)"
+        )
     mc = monte_carlo(model, instruments.monte_carlo_draws, instruments.monte_carlo_seed)
     verdict = stats.judge(summary, rule)
     reasons.extend(verdict.reasons)
-    ratio = _nominal_check(summary.mean, nominal, reasons, warnings, alt_hint_for(summary.mean, nominal) if nominal else None)
+    given = dict(overrides or {})
+    checks: list[Check] = list(slips)
+    half_double = _half_double_check(summary.mean, nominal) if not slips else None
+    if half_double is not None:
+        checks.append(half_double)
+    checks = [dataclasses.replace(c, override_reason=given[c.code].strip()) if c.code in given else c for c in checks]
+    for c in checks:
+        if c.overridden:
+            warnings.append(f"{c.message} — gone ahead: {c.override_reason}")
+        else:
+            reasons.append(f"{c.message} (to go ahead, override '{c.code}' with a reason)")
+    ceiling = _ceiling_reason(summary.mean, titrant)
+    if ceiling is not None:
+        reasons.append(ceiling)
+    if slips or ceiling is not None:
+        # A slipped entry or an impossible strength explains any distance from the nominal; the nominal
+        # check's wrong-standard hint would mislead.
+        ratio = summary.mean / nominal if nominal else None
+    else:
+        ratio = _nominal_check(summary.mean, nominal, reasons, warnings, alt_hint_for(summary.mean, nominal) if nominal else None)
     replicates = tuple(
         ReplicateResult(
             index=i,
@@ -639,6 +947,7 @@ def _finish(
             excluded=i in excluded,
             exclusion_reason=excluded.get(i),
             warnings=tuple(per_rep[i]["warnings"]),
+            fills=per_rep[i].get("fills", 1),
         )
         for i in range(len(molarities))
     )
@@ -662,6 +971,10 @@ def _finish(
         warnings=tuple(warnings),
         nominal_ratio=ratio,
         model=model,
+        nu_eff=gum.nu_eff,
+        coverage=gum.coverage,
+        checks=tuple(checks),
+        overrides=tuple((code, reason.strip()) for code, reason in given.items()),
     )
 
 
@@ -669,19 +982,28 @@ def _finish(
 
 
 def primary_replicate_molarity(
-    rep: Replicate, spec: StandardSpec, purity: float, buoyancy: bool, alpha_per_k: float
+    rep: Replicate,
+    spec: StandardSpec,
+    purity: float,
+    buoyancy: bool,
+    alpha_per_k: float,
+    expansion: corrections.ExpansionModel | None = None,
+    strength_mol_l: float | None = None,
 ) -> tuple[float, float, float]:
     """c = 1000·m·P·ν/(M·(V − V_blank)) for one replicate, referred to 20 °C.
 
     rep: the replicate (g, mL, °C); spec: the standard; purity: mass fraction; buoyancy: correct
-    the mass to vacuum; alpha_per_k: 1/K. Returns (molarity mol/L at 20 °C, true mass g, net titre mL).
+    the mass to vacuum; alpha_per_k: 1/K, used when expansion is None; expansion: the titrant's
+    model, referring by ρ(20 °C)/ρ(t) of a solution of strength_mol_l (mol/L; default this
+    replicate's own molarity). Returns (molarity mol/L at 20 °C, true mass g, net titre mL).
     """
     m = rep.air_mass_g
     if buoyancy and spec.density_g_cm3:
         m = corrections.true_mass(m, spec.density_g_cm3)
     titre = corrections.net_titre(rep.volume_ml, rep.blank_ml)
     c = 1000.0 * m * purity * spec.nu / (spec.molar_mass_g_mol * titre)
-    return c * _temperature_factor(rep.temperature_c, alpha_per_k), m, titre
+    strength = strength_mol_l if strength_mol_l is not None else c
+    return c * _temperature_factor(rep.temperature_c, alpha_per_k, expansion, strength), m, titre
 
 
 def _purity_quantity(run: PrimaryRun, instruments: Instruments, warnings: list[str]) -> InputQuantity:
@@ -700,8 +1022,17 @@ def _validate_primary(run: PrimaryRun) -> None:
     if not run.replicates:
         errors.append(FieldError("replicates", "give at least one replicate"))
     purity = run.purity.value if run.purity is not None else run.purity_value
-    if not _finite(purity) or not 0 < purity <= 1:
-        errors.append(FieldError("purity", "must be a mass fraction greater than 0 and at most 1"))
+    if not _finite(purity) or purity <= 0:
+        errors.append(FieldError("purity", f"must be a mass fraction greater than 0 and at most {PURITY_MAX:g}"))
+    elif purity > PURITY_PERCENT_FROM:
+        errors.append(FieldError("purity", f"is a mass fraction, not a percentage: write {purity:g} % as {purity / 100:g}"))
+    elif purity > PURITY_MAX:
+        errors.append(
+            FieldError(
+                "purity",
+                f"must be at most {PURITY_MAX:g}: a certified assay may read slightly above 1 (e.g. 1.0003), but not {purity:g}",
+            )
+        )
     for i, rep in enumerate(run.replicates):
         if rep.mass_g is not None:
             if rep.gross_g is not None or rep.tare_g is not None:
@@ -735,8 +1066,59 @@ def _validate_primary(run: PrimaryRun) -> None:
     if run.burette_capacity_ml is not None:
         _check_positive(errors, "burette_capacity_ml", run.burette_capacity_ml, "mL")
     _check_exclusions(errors, run.exclusions, len(run.replicates))
+    _check_overrides(errors, run.overrides)
+    _check_fills(errors, [r.volume_ml - r.blank_ml for r in run.replicates], run.burette_capacity_ml)
     if errors:
         raise InvalidInput(errors)
+
+
+def _check_fills(errors: list[FieldError], titres: Sequence[Any], capacity: float | None) -> None:
+    """Refuse titres of more than two burette fills (only when the run states its burette's capacity here;
+    the instruments' capacity is checked in the computation)."""
+    if capacity is None or not _finite(capacity) or capacity <= 0:
+        return
+    for i, t in enumerate(titres):
+        if _finite(t) and t > 0:
+            try:
+                glassware.burette_fills(t, capacity)
+            except InvalidInput as exc:
+                errors.append(FieldError(_path(i, "volume_ml"), exc.errors[0].message))
+
+
+def _fills(titre: float, capacity: float, index: int) -> int:
+    try:
+        return glassware.burette_fills(titre, capacity)
+    except InvalidInput as exc:
+        raise InvalidInput([FieldError(_path(index, "volume_ml"), exc.errors[0].message)]) from exc
+
+
+def _burette_tolerance(run_capacity: float | None, instruments: Instruments, warnings: list[str]) -> float:
+    """± mL of the burette used: the instruments' figure, or the listed figure for the capacity the run names."""
+    if run_capacity is None or run_capacity == instruments.burette_capacity_ml:
+        return instruments.burette_tolerance_ml
+    t = glassware.lookup("burette", run_capacity, instruments.burette_class)
+    if t is None:
+        warnings.append(
+            f"no tolerance is listed for a {run_capacity:g} mL burette; the instruments' ±"
+            f"{instruments.burette_tolerance_ml:g} mL is used"
+        )
+        return instruments.burette_tolerance_ml
+    return t.mpe_ml
+
+
+def _pipette_tolerance(aliquots: Sequence[float], instruments: Instruments) -> tuple[float, str]:
+    """± mL of the pipette used and how it was chosen: the instruments' figure, or the listed one for the
+    aliquots' nominal size when that differs from the size the instruments' figure belongs to."""
+    own = instruments.pipette_tolerance_ml
+    cap = instruments.pipette_capacity_ml
+    if cap is None or not aliquots:
+        return own, f"pipette tolerance ±{own:g} mL"
+    size = _median(aliquots)
+    listed = [c for c in glassware.capacities("pipette") if abs(size / c - 1) <= 0.01]
+    if not listed or listed[0] == cap:
+        return own, f"pipette tolerance ±{own:g} mL"
+    t = glassware.tolerance("pipette", listed[0], instruments.pipette_class)
+    return t.mpe_ml, f"{listed[0]:g} mL pipette, {t.source}: ±{t.mpe_ml:g} mL"
 
 
 def _alternative_hint(run: PrimaryRun) -> Any:
@@ -774,15 +1156,27 @@ def standardize_primary(
     if run.buoyancy and not spec.density_g_cm3:
         warnings.append(f"no density is known for {spec.name}; masses are not corrected for air buoyancy")
     alpha = instruments.expansion_coefficient_per_k
+    expansion = run.titrant.expansion if run.titrant is not None else None
     capacity = run.burette_capacity_ml or instruments.burette_capacity_ml
+    tolerance = _burette_tolerance(run.burette_capacity_ml, instruments, warnings)
     excluded = {ex.index: ex.reason.strip() for ex in run.exclusions}
     molarities: list[float] = []
     per_rep: list[dict[str, Any]] = []
-    for rep in run.replicates:
-        c, m, titre = primary_replicate_molarity(rep, spec, purity_q.value, run.buoyancy, alpha)
+    for i, rep in enumerate(run.replicates):
+        # The model's strength: the nominal, else this replicate's own molarity (the model's dependence on
+        # strength is slow, so either is close enough).
+        c, m, titre = primary_replicate_molarity(rep, spec, purity_q.value, run.buoyancy, alpha, expansion, run.nominal_molarity)
         molarities.append(c)
         low = _low_titre_warning(titre, capacity)
-        per_rep.append({"mass_g": m, "air_mass_g": rep.air_mass_g, "titre_ml": titre, "warnings": [low] if low else []})
+        per_rep.append(
+            {
+                "mass_g": m,
+                "air_mass_g": rep.air_mass_g,
+                "titre_ml": titre,
+                "warnings": [low] if low else [],
+                "fills": _fills(titre, capacity, i),
+            }
+        )
     included = [i for i in range(len(molarities)) if i not in excluded]
     inc_c = [molarities[i] for i in included]
     # The balance errors act on the readings, so m* is an effective balance reading; the buoyancy
@@ -790,6 +1184,10 @@ def standardize_primary(
     m_star = _effective(inc_c, [per_rep[i]["air_mass_g"] for i in included])
     v_star = _effective(inc_c, [per_rep[i]["titre_ml"] for i in included])
     blanks = [run.replicates[i].blank_ml for i in included]
+    strength = run.nominal_molarity or (math.fsum(inc_c) / len(inc_c))
+    t_run = _run_temperature([run.replicates[i].temperature_c for i in included])
+    budget_alpha = _alpha(instruments, expansion, strength, t_run)
+    two_fill_share = sum(1 for i in included if per_rep[i]["fills"] > 1) / len(included)
 
     # Mass: one shared error per reading, so the balance terms enter once for the run (see docs).
     mass_terms: list[InputQuantity | Term] = [
@@ -844,8 +1242,26 @@ def standardize_primary(
             ),
             unit="g/mol",
         ),
-        factor("titre volume", -1, *_titre_terms(v_star, blanks, instruments, run.u_volume_ml), unit="mL"),
+        factor(
+            "titre volume",
+            -1,
+            *_titre_terms(
+                v_star,
+                blanks,
+                instruments,
+                run.u_volume_ml,
+                burette_tolerance_ml=tolerance,
+                alpha=budget_alpha,
+                second_fill_share=two_fill_share,
+            ),
+            unit="mL",
+        ),
     ]
+    slips = replicate_slips(
+        molarities,
+        included,
+        [{"mass": (per_rep[i]["air_mass_g"], "g"), "titre": (per_rep[i]["titre_ml"], "mL")} for i in range(len(molarities))],
+    )
 
     return _finish(
         "primary",
@@ -860,23 +1276,42 @@ def standardize_primary(
         run.u_repeatability_rel,
         warnings,
         _alternative_hint(run),
+        titrant=run.titrant,
+        overrides=run.overrides,
+        slips=slips,
+        readings_per_titre=4 if two_fill_share > 0 else 2,
     )
 
 
 # --------------------------------------------------------------------------- secondary
 
 
-def secondary_replicate_molarity(rep: AliquotReplicate, reference: Reference, nu: float, aliquot_of: str) -> tuple[float, float]:
+def secondary_replicate_molarity(
+    rep: AliquotReplicate,
+    reference: Reference,
+    nu: float,
+    aliquot_of: str,
+    expansion: corrections.ExpansionModel | None = None,
+) -> tuple[float, float]:
     """c_x = c_ref·ν·V_titre/V_aliquot (aliquot of the new batch) or c_ref·ν·V_aliquot/V_titre.
 
     rep: the replicate (mL); reference: mol/L at 20 °C; nu: dimensionless; aliquot_of: "new" or
-    "reference". Returns (molarity mol/L at 20 °C, net titre mL). Both solutions are measured at the
-    same temperature and expand alike, so the 20 °C referral cancels here.
+    "reference"; expansion: the new titrant's model, or None. Returns (molarity mol/L at 20 °C, net
+    titre mL). Both solutions are measured at the same temperature, so the 20 °C referral cancels
+    when they expand alike; when their models differ (a 1 mol/L NaOH against a 0.1 mol/L HCl), the
+    difference is applied: c_x(20) = c_x(t)·[ρ_x(20)/ρ_x(t)]/[ρ_ref(20)/ρ_ref(t)].
     """
     titre = corrections.net_titre(rep.volume_ml, rep.blank_ml)
     if aliquot_of == "new":
-        return reference.molarity * nu * titre / rep.aliquot_ml, titre
-    return reference.molarity * nu * rep.aliquot_ml / titre, titre
+        c = reference.molarity * nu * titre / rep.aliquot_ml
+    else:
+        c = reference.molarity * nu * rep.aliquot_ml / titre
+    ref_model = reference.expansion or expansion
+    if rep.temperature_c is not None and expansion is not None and ref_model is not None and ref_model != expansion:
+        c *= corrections.referral_factor(expansion, c, rep.temperature_c) / corrections.referral_factor(
+            ref_model, reference.molarity, rep.temperature_c
+        )
+    return c, titre
 
 
 def _validate_secondary(run: SecondaryRun) -> None:
@@ -907,8 +1342,36 @@ def _validate_secondary(run: SecondaryRun) -> None:
     if run.burette_capacity_ml is not None:
         _check_positive(errors, "burette_capacity_ml", run.burette_capacity_ml, "mL")
     _check_exclusions(errors, run.exclusions, len(run.replicates))
+    _check_overrides(errors, run.overrides)
+    if run.temperature_terms is not None and run.temperature_terms not in TEMPERATURE_TERMS:
+        errors.append(FieldError("temperature_terms", f"must be one of {', '.join(TEMPERATURE_TERMS)}"))
+    _check_fills(errors, [r.volume_ml - r.blank_ml for r in run.replicates], run.burette_capacity_ml)
     if errors:
         raise InvalidInput(errors)
+
+
+def _shared_temperature(instruments: Instruments, alpha_ref: float, alpha_new: float, e_titre: int) -> InputQuantity | Term:
+    """One lab-temperature input acting on both volumes of a secondary run, with their combined sensitivity.
+
+    The reference's volume (titre when aliquot_of is "new", aliquot otherwise) grows by α_ref·δT and the new
+    batch's by α_new·δT, and c_x ∝ V_ref/V_new either way, so c_x changes by (α_ref − α_new)·δT: one input
+    δT (K) with coefficient (α_ref − α_new) in a factor of value 1. e_titre only says which volume is which
+    in the derivation.
+    """
+    u_t, how = _u_lab_temperature(instruments)
+    s = alpha_ref - alpha_new
+    which = "titre (reference) and aliquot (new batch)" if e_titre == 1 else "aliquot (reference) and titre (new batch)"
+    return Term(
+        InputQuantity.normal(
+            "lab temperature (shared by titre and aliquot)",
+            0.0,
+            u_t,
+            "K",
+            f"{how}; one temperature acts on the {which}: combined sensitivity α_ref − α_new = "
+            f"{alpha_ref:.3g} − {alpha_new:.3g} /K",
+        ),
+        s,
+    )
 
 
 def standardize_secondary(
@@ -924,19 +1387,40 @@ def standardize_secondary(
     _validate_secondary(run)
     warnings: list[str] = []
     capacity = run.burette_capacity_ml or instruments.burette_capacity_ml
+    tolerance = _burette_tolerance(run.burette_capacity_ml, instruments, warnings)
+    expansion = run.titrant.expansion if run.titrant is not None else None
     excluded = {ex.index: ex.reason.strip() for ex in run.exclusions}
     molarities: list[float] = []
     per_rep: list[dict[str, Any]] = []
-    for rep in run.replicates:
-        c, titre = secondary_replicate_molarity(rep, run.reference, run.nu, run.aliquot_of)
+    for i, rep in enumerate(run.replicates):
+        c, titre = secondary_replicate_molarity(rep, run.reference, run.nu, run.aliquot_of, expansion)
         molarities.append(c)
         low = _low_titre_warning(titre, capacity)
-        per_rep.append({"titre_ml": titre, "aliquot_ml": rep.aliquot_ml, "warnings": [low] if low else []})
+        per_rep.append(
+            {
+                "titre_ml": titre,
+                "aliquot_ml": rep.aliquot_ml,
+                "warnings": [low] if low else [],
+                "fills": _fills(titre, capacity, i),
+            }
+        )
     included = [i for i in range(len(molarities)) if i not in excluded]
     inc_c = [molarities[i] for i in included]
     t_star = _effective(inc_c, [per_rep[i]["titre_ml"] for i in included])
     a_star = _effective(inc_c, [per_rep[i]["aliquot_ml"] for i in included])
     blanks = [run.replicates[i].blank_ml for i in included]
+    strength = run.nominal_molarity or (math.fsum(inc_c) / len(inc_c))
+    t_run = _run_temperature([run.replicates[i].temperature_c for i in included])
+    alpha_new = _alpha(instruments, expansion, strength, t_run)
+    ref_model = run.reference.expansion or expansion
+    alpha_ref = _alpha(instruments, ref_model, run.reference.molarity, t_run)
+    # With a stated u for either volume, that u already holds its temperature effect: both stay independent.
+    terms = run.temperature_terms or instruments.temperature_terms
+    shared = terms == "shared" and run.u_volume_ml is None and run.u_aliquot_ml is None
+    e_titre = 1 if run.aliquot_of == "new" else -1
+    # Which solution each volume holds: the burette delivers the reference when the aliquot is of the new batch.
+    alpha_titre, alpha_aliquot = (alpha_ref, alpha_new) if e_titre == 1 else (alpha_new, alpha_ref)
+    two_fill_share = sum(1 for i in included if per_rep[i]["fills"] > 1) / len(included)
     aliquot_terms: list[InputQuantity | Term] = [
         InputQuantity.normal("aliquot volume", a_star, 0.0, "mL", "effective aliquot of the run")
     ]
@@ -945,14 +1429,10 @@ def standardize_secondary(
             InputQuantity.normal("aliquot (stated u)", 0.0, run.u_aliquot_ml, "mL", "stated standard uncertainty of one aliquot")
         )
     else:
-        tol = instruments.pipette_tolerance_ml
-        aliquot_terms.append(
-            InputQuantity.triangular(
-                "pipette calibration", 0.0, tol, "mL", f"pipette tolerance ±{tol:g} mL, triangular, u = a/√6"
-            )
-        )
-        aliquot_terms.append(_temperature_source(a_star, instruments, "aliquot"))
-    e_titre = 1 if run.aliquot_of == "new" else -1
+        tol, which = _pipette_tolerance([per_rep[i]["aliquot_ml"] for i in included], instruments)
+        aliquot_terms.append(InputQuantity.triangular("pipette calibration", 0.0, tol, "mL", f"{which}, triangular, u = a/√6"))
+        if not shared:
+            aliquot_terms.append(_temperature_source(a_star, instruments, "aliquot", alpha_aliquot))
     ref = run.reference
     model_factors = [
         factor(
@@ -966,9 +1446,38 @@ def standardize_secondary(
                 "certified value of the reference and its standard uncertainty (its own repeatability included)",
             ),
         ),
-        factor("titre volume", e_titre, *_titre_terms(t_star, blanks, instruments, run.u_volume_ml), unit="mL"),
+        factor(
+            "titre volume",
+            e_titre,
+            *_titre_terms(
+                t_star,
+                blanks,
+                instruments,
+                run.u_volume_ml,
+                burette_tolerance_ml=tolerance,
+                alpha=alpha_titre,
+                temperature=not shared,
+                second_fill_share=two_fill_share,
+            ),
+            unit="mL",
+        ),
         factor("aliquot volume", -e_titre, *aliquot_terms, unit="mL"),
     ]
+    if shared:
+        model_factors.append(
+            factor(
+                "temperature",
+                1,
+                InputQuantity.normal("temperature factor", 1.0, 0.0, "", "exactly 1 at the reference temperature"),
+                _shared_temperature(instruments, alpha_ref, alpha_new, e_titre),
+                unit="",
+            )
+        )
+    slips = replicate_slips(
+        molarities,
+        included,
+        [{"titre": (per_rep[i]["titre_ml"], "mL"), "aliquot": (per_rep[i]["aliquot_ml"], "mL")} for i in range(len(molarities))],
+    )
 
     return _finish(
         "secondary",
@@ -983,6 +1492,10 @@ def standardize_secondary(
         run.u_repeatability_rel,
         warnings,
         lambda c, nominal: None,
+        titrant=run.titrant,
+        overrides=run.overrides,
+        slips=slips,
+        readings_per_titre=4 if two_fill_share > 0 else 2,
     )
 
 
@@ -1019,6 +1532,7 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
             "components": [
                 {
                     "source": ln.source,
+                    "dof": _f(ln.dof),
                     "u": _f(ln.u),
                     "unit": ln.unit,
                     "u_rel": _f(ln.u_rel),
@@ -1043,6 +1557,9 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
         "u_rel": _f(result.u_rel),
         "U": _f(result.U),
         "k": _f(result.k),
+        # None when infinite (every source Type B): JSON has no infinity.
+        "nu_eff": _f(result.nu_eff),
+        "coverage": _f(result.coverage),
         "n": result.n,
         "n_total": result.n_total,
         "sd": _f(s.sd),
@@ -1060,6 +1577,7 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
                 "titre_ml": _f(r.titre_ml),
                 "aliquot_ml": _f(r.aliquot_ml),
                 "warnings": list(r.warnings),
+                "fills": r.fills,
             }
             for r in result.replicates
         ],
@@ -1072,6 +1590,8 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
                 "critical": _f(o.critical),
                 "outlier": o.outlier,
                 "note": o.note,
+                "verdict": o.verdict,
+                "ratio": o.ratio,
             }
             for o in result.screening
         ],
@@ -1087,5 +1607,10 @@ def result_as_dict(result: StandardizationResult, extra: dict[str, Any] | None =
         "accepted": result.accepted,
         "reasons": list(result.reasons),
         "warnings": list(result.warnings),
+        "checks": [
+            {"code": c.code, "replicate": c.replicate, "message": c.message, "override_reason": c.override_reason}
+            for c in result.checks
+        ],
+        "overrides": {code: reason for code, reason in result.overrides},
     }
     return body

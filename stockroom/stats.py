@@ -19,6 +19,11 @@ from stockroom.errors import FieldError, InvalidInput
 
 # Read from the package directory so a wheel install finds it beside this module.
 _DIXON_TABLE = Path(__file__).parent / "data" / "dixon_q_r10.csv"
+# Critical values of the ratio Dixon recommends for each n (r10, r11, r21, r22), 3 to 30 replicates.
+_DIXON_RATIOS_TABLE = Path(__file__).parent / "data" / "dixon_critical.csv"
+DIXON_RATIO_MAX_N = 30
+# At three replicates a screen cannot tell one stray value from a wide spread (see screen()).
+SCREEN_MIN_N = 4
 
 # Confidence levels tabulated in the Dixon r10 file, as (level, column name).
 _DIXON_LEVELS: tuple[tuple[float, str], ...] = ((0.90, "q90"), (0.95, "q95"), (0.99, "q99"))
@@ -147,9 +152,12 @@ def summarize(values: Sequence[float], confidence: float = 0.95) -> Summary:
 class OutlierResult:
     """Outcome of one outlier test on one set of replicates; reports only, never removes.
 
-    test: "grubbs" or "dixon"; applicable: False when the test cannot be run (see note); index:
-    0-based position in the input of the value tested; statistic and critical: dimensionless (G or
-    r10); outlier: statistic > critical; note: a sentence for a person.
+    test: "grubbs" or "dixon"; applicable: False when the test cannot be run or cannot judge (see
+    note); index: 0-based position in the input of the value tested; statistic and critical:
+    dimensionless (G, or the Dixon ratio named in `ratio`); outlier: statistic > critical; note: a
+    sentence for a person; verdict: "outlier", "no outlier", "cannot judge" (the test ran but too few
+    replicates make its answer meaningless) or "not applicable"; ratio: Dixon's ratio used ("r10",
+    "r11", "r21", "r22"), None for Grubbs.
     """
 
     test: str
@@ -159,6 +167,13 @@ class OutlierResult:
     critical: float | None
     outlier: bool
     note: str
+    verdict: str = ""
+    ratio: str | None = None
+
+    def __post_init__(self) -> None:
+        if not self.verdict:
+            verdict = ("outlier" if self.outlier else "no outlier") if self.applicable else "not applicable"
+            object.__setattr__(self, "verdict", verdict)
 
 
 def _not_applicable(test: str, note: str) -> OutlierResult:
@@ -305,17 +320,126 @@ def dixon(values: Sequence[float], confidence: float = 0.95) -> OutlierResult:
     return OutlierResult(test="dixon", applicable=True, index=index, statistic=q, critical=crit, outlier=flagged, note=note)
 
 
+def dixon_ratio_for(n: int) -> str:
+    """The Dixon ratio recommended for n replicates (Dixon 1953; Rorabacher 1991): r10, r11, r21 or r22.
+
+    n: count, 3 or more. r10 = gap/range for 3–7; r11 leaves the farthest value at the other end out of
+    the range (8–10); r21 also takes the gap to the second neighbour (11–13); r22 leaves two out at each
+    end (14 and more). Each guards against a second stray value masking the first.
+    """
+    if n <= 7:
+        return "r10"
+    if n <= 10:
+        return "r11"
+    if n <= 13:
+        return "r21"
+    return "r22"
+
+
+@cache
+def _dixon_ratio_table() -> dict[tuple[str, int], dict[str, float]]:
+    """Critical values by (ratio, n) and column name, read once from the package CSV."""
+    table: dict[tuple[str, int], dict[str, float]] = {}
+    with _DIXON_RATIOS_TABLE.open(newline="", encoding="utf-8") as fh:
+        rows = csv.DictReader(line for line in fh if line.strip() and not line.lstrip().startswith("#"))
+        for row in rows:
+            table[(row["ratio"], int(row["n"]))] = {name: float(row[name]) for _, name in _DIXON_LEVELS}
+    return table
+
+
+def dixon_ratio_critical(n: int, confidence: float = 0.95) -> tuple[str, float]:
+    """The recommended Dixon ratio for n and its two-sided critical value (data/dixon_critical.csv).
+
+    n: replicates, 3 to 30; confidence: 0.90, 0.95 or 0.99. Returns (ratio name, critical value).
+    """
+    errors: list[FieldError] = []
+    if isinstance(n, bool) or int(n) != n or not (DIXON_MIN_N <= n <= DIXON_RATIO_MAX_N):
+        errors.append(FieldError("n", f"the Dixon tables cover n = {DIXON_MIN_N} to {DIXON_RATIO_MAX_N}, got {n!r}"))
+    column = _dixon_column(float(confidence))
+    if column is None:
+        errors.append(FieldError("confidence", f"the Dixon table has confidence {_dixon_levels_text()} only, got {confidence!r}"))
+    if errors:
+        raise InvalidInput(errors)
+    assert column is not None
+    ratio = dixon_ratio_for(int(n))
+    return ratio, _dixon_ratio_table()[(ratio, int(n))][column]
+
+
+def _dixon_ends(s: list[float], ratio: str) -> tuple[float, float, float, float]:
+    """(low gap, low range, high gap, high range) of sorted values s for one of Dixon's ratios."""
+    n = len(s)
+    gap_i, drop_j = {"r10": (1, 0), "r11": (1, 1), "r21": (2, 1), "r22": (2, 2)}[ratio]
+    low_gap, low_range = s[gap_i] - s[0], s[n - 1 - drop_j] - s[0]
+    high_gap, high_range = s[n - 1] - s[n - 1 - gap_i], s[n - 1] - s[drop_j]
+    return low_gap, low_range, high_gap, high_range
+
+
+def dixon_recommended(values: Sequence[float], confidence: float = 0.95) -> OutlierResult:
+    """Dixon's test with the ratio recommended for n (r10, r11, r21, r22) on the more extreme end value.
+
+    values: replicate results, any one unit, 3 to 30 of them; confidence: 0.90, 0.95 or 0.99.
+    Returns an OutlierResult (ratio names the ratio; statistic and critical dimensionless).
+    """
+    column = _dixon_column(_probability(confidence, "confidence"))
+    if column is None:
+        raise InvalidInput(f"the Dixon table has confidence {_dixon_levels_text()} only, got {confidence!r}", field="confidence")
+    x = _finite_values(values)
+    n = len(x)
+    if not (DIXON_MIN_N <= n <= DIXON_RATIO_MAX_N):
+        return _not_applicable(
+            "dixon",
+            f"the Dixon tables cover {DIXON_MIN_N} to {DIXON_RATIO_MAX_N} replicates; there {'is' if n == 1 else 'are'} {n}",
+        )
+    ratio, crit = dixon_ratio_critical(n, confidence)
+    order = sorted(range(n), key=lambda i: (x[i], i))
+    s = [x[i] for i in order]
+    low_gap, low_range, high_gap, high_range = _dixon_ends(s, ratio)
+    if low_range <= 0.0 or high_range <= 0.0:
+        return OutlierResult(
+            "dixon", False, None, None, None, False, "too many equal replicates: the ratio is undefined", ratio=ratio
+        )
+    q_low, q_high = low_gap / low_range, high_gap / high_range
+    if q_high > q_low or (q_high == q_low and s[-1] - math.fsum(s) / n >= math.fsum(s) / n - s[0]):
+        q, index = q_high, order[-1]
+    else:
+        q, index = q_low, order[0]
+    flagged = q > crit
+    where = f"{_fmt(x[index])} (replicate {index + 1})"
+    level = f"{confidence * 100:g} %"
+    if flagged:
+        note = (
+            f"Dixon {ratio} = {q:.3f} exceeds {crit:.3f} (n = {n}, {level}): {where} is a suspected outlier; "
+            f"whether to exclude it is the analyst's decision"
+        )
+    else:
+        note = (
+            f"Dixon {ratio} = {q:.3f} does not exceed {crit:.3f} (n = {n}, {level}): "
+            f"the more extreme end value, {where}, is not flagged"
+        )
+    return OutlierResult("dixon", True, index, q, crit, flagged, note, ratio=ratio)
+
+
+def _cannot_judge(r: OutlierResult, n: int) -> OutlierResult:
+    reason = (
+        f"with {n} replicates no screen can judge: one stray value cannot be told from a wide spread "
+        f"(Grubbs' G cannot exceed (n − 1)/√n = {(n - 1) / math.sqrt(n):.3f}, barely above its critical value, and "
+        f"Dixon's Q needs the other two to agree within a few % of the range); measure a fourth replicate"
+    )
+    return OutlierResult(r.test, False, r.index, r.statistic, r.critical, False, reason, "cannot judge", r.ratio)
+
+
 def screen(values: Sequence[float], alpha: float = 0.05) -> list[OutlierResult]:
-    """Both outlier tests on the replicates: Grubbs always, Dixon r10 when 3 <= n <= 10.
+    """Both outlier tests on the replicates: Grubbs, and Dixon with the ratio recommended for n (3 to 30).
 
     values: replicate results, any one unit; alpha: significance level as a fraction (0.05; Dixon
     runs at confidence 1 − alpha, which must be a tabulated level, else its entry says why not).
-    Returns a list of OutlierResult, Grubbs first.
+    Returns a list of OutlierResult, Grubbs first. With three replicates both say "cannot judge"
+    (verdict) instead of flagging: their statistics are kept for the record.
     """
     alpha = _probability(alpha, "alpha")
     x = _finite_values(values)
     results = [grubbs(x, alpha)]
-    if DIXON_MIN_N <= len(x) <= DIXON_MAX_N:
+    if DIXON_MIN_N <= len(x) <= DIXON_RATIO_MAX_N:
         confidence = 1.0 - alpha
         if _dixon_column(confidence) is None:
             results.append(
@@ -325,7 +449,9 @@ def screen(values: Sequence[float], alpha: float = 0.05) -> list[OutlierResult]:
                 )
             )
         else:
-            results.append(dixon(x, confidence))
+            results.append(dixon_recommended(x, confidence))
+    if len(x) < SCREEN_MIN_N and len(x) >= GRUBBS_MIN_N:
+        results = [_cannot_judge(r, len(x)) if r.applicable else r for r in results]
     return results
 
 

@@ -20,6 +20,7 @@ from dataclasses import dataclass
 from enum import StrEnum
 
 import numpy as np
+from scipy import stats as _sps
 
 SQRT3 = math.sqrt(3.0)
 SQRT6 = math.sqrt(6.0)
@@ -91,7 +92,8 @@ class InputQuantity:
 
     value and u are in `unit`; `distribution` is what the Monte Carlo draws from (for rectangular
     and triangular the half-width is recovered from u); `derivation` is a sentence for the budget,
-    e.g. "balance linearity ±0.15 mg, rectangular".
+    e.g. "balance linearity ±0.15 mg, rectangular". dof: degrees of freedom of u (n − 1 for a Type A
+    estimate from n readings; infinite, the default, for a Type B figure taken as exactly known, GUM G.4.2).
     """
 
     name: str
@@ -100,10 +102,13 @@ class InputQuantity:
     unit: str = ""
     distribution: Distribution = Distribution.NORMAL
     derivation: str = ""
+    dof: float = math.inf
 
     def __post_init__(self) -> None:
         if not (math.isfinite(self.value) and math.isfinite(self.u)) or self.u < 0:
             raise ValueError(f"{self.name}: value and u must be finite and u >= 0, got {self.value!r} ± {self.u!r}")
+        if not self.dof > 0:
+            raise ValueError(f"{self.name}: degrees of freedom must be above 0, got {self.dof!r}")
 
     @property
     def half_width(self) -> float:
@@ -115,9 +120,11 @@ class InputQuantity:
         return 0.0
 
     @classmethod
-    def normal(cls, name: str, value: float, u: float, unit: str = "", derivation: str = "") -> InputQuantity:
-        """A normally distributed input of standard uncertainty u (both in unit)."""
-        return cls(name, value, abs(u), unit, Distribution.NORMAL, derivation)
+    def normal(
+        cls, name: str, value: float, u: float, unit: str = "", derivation: str = "", dof: float = math.inf
+    ) -> InputQuantity:
+        """A normally distributed input of standard uncertainty u (both in unit), with dof degrees of freedom."""
+        return cls(name, value, abs(u), unit, Distribution.NORMAL, derivation, dof)
 
     @classmethod
     def expanded(cls, name: str, value: float, expanded: float, k: float, unit: str = "", derivation: str = "") -> InputQuantity:
@@ -221,7 +228,8 @@ class BudgetLine:
 
     u and value in `unit` (the input's); u_rel = u/|X| with X the factor the source feeds (QUAM's
     "relative standard uncertainty"); sensitivity ∂y/∂x in y-unit per unit; contribution = |c|·u
-    in y's unit; contribution_rel = contribution/|y|; share = contribution²/u_c² (fraction).
+    in y's unit; contribution_rel = contribution/|y|; share = contribution²/u_c² (fraction); dof:
+    the input's degrees of freedom (inf for Type B).
     """
 
     source: str
@@ -236,6 +244,7 @@ class BudgetLine:
     contribution: float
     contribution_rel: float
     share: float
+    dof: float = math.inf
 
 
 @dataclass(frozen=True)
@@ -262,7 +271,9 @@ class GumResult:
     """Combined and expanded uncertainty of y with its budget.
 
     value, u (combined standard uncertainty) and U = k·u in `unit`; k dimensionless; lines per
-    elementary source, factors per model input, both in model order.
+    elementary source, factors per model input, both in model order. nu_eff: effective degrees of
+    freedom of u (Welch-Satterthwaite, GUM G.4.1; inf when every source is Type B); coverage: the
+    coverage probability k was chosen for from t(nu_eff), or None when k was fixed by the caller.
     """
 
     value: float
@@ -272,6 +283,8 @@ class GumResult:
     unit: str
     lines: tuple[BudgetLine, ...]
     factors: tuple[FactorLine, ...]
+    nu_eff: float = math.inf
+    coverage: float | None = None
 
     @property
     def u_rel(self) -> float:
@@ -283,13 +296,44 @@ def _share(contribution: float, u_c: float) -> float:
     return (contribution / u_c) ** 2 if u_c > 0 else 0.0
 
 
-def combine(model: ProductModel, k: float = 2.0) -> GumResult:
+def welch_satterthwaite(contributions: Sequence[tuple[float, float]]) -> float:
+    """Effective degrees of freedom ν_eff = u_c⁴ / Σ u_i⁴/ν_i (GUM G.4.1, equation G.2b).
+
+    contributions: (u_i, ν_i) pairs, u_i = |c_i|·u(x_i) in y's unit and ν_i > 0 (inf for Type B).
+    Returns ν_eff (dimensionless, not rounded; inf when every ν_i is infinite or u_c is 0).
+    """
+    u_c2 = math.fsum(u * u for u, _ in contributions)
+    den = math.fsum(u**4 / nu for u, nu in contributions if math.isfinite(nu) and u > 0)
+    if den == 0.0 or u_c2 == 0.0:
+        return math.inf
+    return u_c2 * u_c2 / den
+
+
+def coverage_factor(nu_eff: float, coverage: float = 0.95) -> float:
+    """k = t_p(ν) for a two-sided coverage probability p (GUM G.3.4, G.4.1).
+
+    nu_eff: effective degrees of freedom (inf gives the normal quantile); coverage: p as a fraction
+    (0.95). GUM G.4.1 takes ν_eff truncated to the next lower integer (at least 1) for the t table; so
+    does this. Returns k (dimensionless).
+    """
+    if not 0 < coverage < 1:
+        raise ValueError(f"coverage must lie between 0 and 1, got {coverage!r}")
+    q = 0.5 + coverage / 2.0
+    if not math.isfinite(nu_eff):
+        return float(_sps.norm.ppf(q))
+    # The 1e-9 keeps a ν_eff that rounding left at 7.999999999 from truncating to 7.
+    return float(_sps.t.ppf(q, max(1, math.floor(nu_eff + 1e-9))))
+
+
+def combine(model: ProductModel, k: float | None = 2.0, coverage: float = 0.95) -> GumResult:
     """Law of propagation of uncertainty (GUM 5.1.2) for a product model, exact sensitivities.
 
-    model: a ProductModel; k: coverage factor (dimensionless, > 0). Returns a GumResult in the
-    model's unit. For a pure product this is (u_c/y)² = Σ (e_i·u(x_i)/x_i)².
+    model: a ProductModel; k: coverage factor (dimensionless, > 0), or None to take k = t_p(ν_eff)
+    at the coverage probability `coverage` (fraction, 0.95) from the Welch-Satterthwaite ν_eff
+    (GUM G.4). Returns a GumResult in the model's unit. For a pure product this is
+    (u_c/y)² = Σ (e_i·u(x_i)/x_i)².
     """
-    if not k > 0:
+    if k is not None and not k > 0:
         raise ValueError(f"coverage factor must be positive, got {k!r}")
     y = model.value()
     raw: list[tuple[Factor, Term, float]] = []
@@ -318,6 +362,7 @@ def combine(model: ProductModel, k: float = 2.0) -> GumResult:
                 contribution=contribution,
                 contribution_rel=contribution / abs(y) if y else math.nan,
                 share=_share(contribution, u_c),
+                dof=q.dof,
             )
         )
     factors: list[FactorLine] = []
@@ -337,15 +382,28 @@ def combine(model: ProductModel, k: float = 2.0) -> GumResult:
                 sources=tuple(t.quantity.name for t in f.terms),
             )
         )
-    return GumResult(value=y, u=u_c, k=float(k), U=k * u_c, unit=model.unit, lines=tuple(lines), factors=tuple(factors))
+    nu_eff = welch_satterthwaite([(ln.contribution, ln.dof) for ln in lines])
+    used_k = coverage_factor(nu_eff, coverage) if k is None else float(k)
+    return GumResult(
+        value=y,
+        u=u_c,
+        k=used_k,
+        U=used_k * u_c,
+        unit=model.unit,
+        lines=tuple(lines),
+        factors=tuple(factors),
+        nu_eff=nu_eff,
+        coverage=coverage if k is None else None,
+    )
 
 
 def combine_numeric(
     func: Callable[[Sequence[float]], float],
     quantities: Sequence[InputQuantity],
-    k: float = 2.0,
+    k: float | None = 2.0,
     unit: str = "",
     step: float = 1e-3,
+    coverage: float = 0.95,
 ) -> GumResult:
     """GUM propagation for any model y = func(x), sensitivities by central differences.
 
@@ -374,10 +432,24 @@ def combine_numeric(
         crel = contribution / abs(y) if y else math.nan
         share = _share(contribution, u_c)
         lines.append(
-            BudgetLine(q.name, q.name, q.value, q.u, q.unit, str(q.distribution), q.derivation, c, rel, contribution, crel, share)
+            BudgetLine(
+                q.name, q.name, q.value, q.u, q.unit, str(q.distribution), q.derivation, c, rel, contribution, crel, share, q.dof
+            )
         )
         factors.append(FactorLine(q.name, q.value, q.u, q.unit, rel, contribution, crel, share, (q.name,)))
-    return GumResult(value=y, u=u_c, k=float(k), U=k * u_c, unit=unit, lines=tuple(lines), factors=tuple(factors))
+    nu_eff = welch_satterthwaite([(ln.contribution, ln.dof) for ln in lines])
+    used_k = coverage_factor(nu_eff, coverage) if k is None else float(k)
+    return GumResult(
+        value=y,
+        u=u_c,
+        k=used_k,
+        U=used_k * u_c,
+        unit=unit,
+        lines=tuple(lines),
+        factors=tuple(factors),
+        nu_eff=nu_eff,
+        coverage=coverage if k is None else None,
+    )
 
 
 # --------------------------------------------------------------------------- Monte Carlo

@@ -9,6 +9,7 @@ import math
 
 import pytest
 
+from stockroom import corrections
 from stockroom import corrections as corr
 from stockroom.errors import InvalidInput, StockroomError
 
@@ -293,3 +294,71 @@ def test_non_numbers_are_refused():
         corr.delivered_volume("0", 10.0)  # type: ignore[arg-type]
     with pytest.raises(InvalidInput):
         corr.net_titre(float("nan"))
+
+
+# --------------------------------------------------------------------------- titrant expansion models
+
+
+def test_water_expansion_coefficient_follows_temperature() -> None:
+    # Cubic expansion of water, 1/K: 0.88e-4 at 10 °C, 2.07e-4 at 20 °C, 3.03e-4 at 30 °C (handbook table of
+    # water's properties, from memory); several-fold over a lab's range, against one fixed 2.1e-4 before.
+    m = corrections.WATER_LIKE
+    assert corrections.expansion_coefficient(m, 0.1, 10.0) == pytest.approx(0.88e-4, abs=0.01e-4)
+    assert corrections.expansion_coefficient(m, 0.1, 20.0) == pytest.approx(2.07e-4, abs=0.01e-4)
+    assert corrections.expansion_coefficient(m, 0.1, 30.0) == pytest.approx(3.03e-4, abs=0.01e-4)
+
+
+def test_dilute_titrants_refer_by_waters_density() -> None:
+    # At or below 0.2 mol/L every aqueous model is water's: c(20) = c(t)·ρw(20)/ρw(t), Tanaka et al. (2001)
+    # table: ρ(20 °C) = 998.2067, ρ(25 °C) = 997.0470 kg/m³.
+    for m in (corrections.WATER_LIKE, corrections.AQUEOUS_HCL, corrections.AQUEOUS_NAOH):
+        assert corrections.referral_factor(m, 0.1, 25.0) == pytest.approx(998.2067 / 997.0470, rel=2e-7)
+        assert corrections.referral_factor(m, 0.2, 25.0) == corrections.referral_factor(corrections.WATER_LIKE, 0.2, 25.0)
+    assert corrections.molarity_at(corrections.WATER_LIKE, 0.1, 25.0) == pytest.approx(0.1 * 997.0470 / 998.2067, rel=2e-7)
+
+
+@pytest.mark.parametrize(
+    ("model", "molar_mass", "molality", "rho10", "rho40", "tol"),
+    [
+        # advancedthermo.com density tables (HCl(aq), NaOH(aq)), rows the model was NOT built from:
+        # g/cm3 at 10 and 40 °C. The model scales the 1.0 mol/kg row's excess density with molarity.
+        (corrections.AQUEOUS_HCL, 36.46, 0.5, 1.00889, 1.00087, 1e-4),
+        (corrections.AQUEOUS_HCL, 36.46, 2.0, 1.03424, 1.02465, 1e-4),
+        (corrections.AQUEOUS_NAOH, 40.00, 0.5, 1.02222, 1.01322, 3e-4),
+        (corrections.AQUEOUS_NAOH, 40.00, 2.0, 1.08315, 1.07114, 1e-3),
+    ],
+)
+def test_strong_titrant_expansion_against_other_rows_of_the_table(model, molar_mass, molality, rho10, rho40, tol) -> None:
+    # Molarity of the row at 25 °C, c = m·ρ/(1 + m·M) (the 25 °C column: HCl 1.00583 / 1.03008, NaOH 1.01860 / 1.07787).
+    rho25 = {(36.46, 0.5): 1.00583, (36.46, 2.0): 1.03008, (40.00, 0.5): 1.01860, (40.00, 2.0): 1.07787}[(molar_mass, molality)]
+    c = molality * rho25 / (1 + molality * molar_mass / 1000)
+    # The relative change of density from 10 to 40 °C: what the referral rests on. Its error over 30 K stays
+    # within tol (2e-4 over 30 K is 0.7e-5 /K): the limits docs/measurement-model.md states.
+    model_ratio = corrections.solution_density(model, c, 10.0) / corrections.solution_density(model, c, 40.0)
+    assert model_ratio == pytest.approx(rho10 / rho40, abs=tol)
+
+
+def test_one_molar_solutions_expand_more_than_water() -> None:
+    # From the same tables: 1 mol/L HCl 2.5e-4 /K, NaOH 3.0e-4 /K at 20 °C, against water's 2.07e-4.
+    a_w = corrections.expansion_coefficient(corrections.WATER_LIKE, 1.0, 20.0)
+    a_hcl = corrections.expansion_coefficient(corrections.AQUEOUS_HCL, 1.0, 20.0)
+    a_naoh = corrections.expansion_coefficient(corrections.AQUEOUS_NAOH, 1.0, 20.0)
+    assert a_w < a_hcl < a_naoh
+    assert a_hcl == pytest.approx(2.5e-4, abs=0.1e-4) and a_naoh == pytest.approx(3.0e-4, abs=0.1e-4)
+    # The derivative is that of the density: a finite difference over ±1 K agrees (independent of the step).
+    rho = corrections.solution_density
+    fd = (
+        -(rho(corrections.AQUEOUS_NAOH, 1.0, 21.0) - rho(corrections.AQUEOUS_NAOH, 1.0, 19.0))
+        / 2
+        / rho(corrections.AQUEOUS_NAOH, 1.0, 20.0)
+    )
+    assert a_naoh == pytest.approx(fd, rel=1e-3)
+
+
+def test_linear_model_for_other_media() -> None:
+    # A fixed α (e.g. a titrant in glacial acetic acid) gives back the linear QUAM form exactly.
+    m = corrections.ExpansionModel("acetic medium", kind="linear", alpha_per_k=1.07e-3, source="invented for the test")
+    assert corrections.referral_factor(m, 0.1, 25.0) == pytest.approx(1 / (1 - 1.07e-3 * 5), rel=1e-12)
+    assert corrections.expansion_coefficient(m, 0.1, 20.0) == pytest.approx(1.07e-3, rel=1e-12)
+    with pytest.raises(ValueError):
+        corrections.ExpansionModel("bad", kind="other")

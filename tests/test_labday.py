@@ -94,16 +94,25 @@ def test_empty_day_says_why_in_plain_words():
 
 
 def test_bench_temperature_value_follows_the_linear_expansion_model():
-    # EURACHEM/CITAC QUAM:2012: c(T) = c(20 °C)·[1 − α(T − 20)], α = 2.1e-4 /K.
+    # EURACHEM/CITAC QUAM:2012: c(T) = c(20 °C)·[1 − α(T − 20)], α = 2.1e-4 /K, when α is given.
     # 0.1002 · (1 − 2.1e-4 · 3) = 0.1002 · 0.99937 = 0.100136874 (hand computation).
     b = record(releases=(rel(0),))
-    entry = labday.lab_day([b], day(3), day(3), "NaOH", bench_temperature_c=23).entries[0]
+    entry = labday.lab_day([b], day(3), day(3), "NaOH", bench_temperature_c=23, alpha_per_k=2.1e-4).entries[0]
     assert entry.molarity_at_bench == pytest.approx(0.100136874, rel=1e-12)
-    # Cross-check with pure water's expansion (Tanaka et al., Metrologia 38 (2001) 301: ρ(20 °C) =
-    # 998.2067 kg/m³, ρ(23 °C) = 997.5385 kg/m³ — from memory of the table): the ratio agrees within 1e-4.
-    assert entry.molarity_at_bench / 0.1002 == pytest.approx(997.5385 / 998.2067, abs=1e-4)
+
+
+def test_bench_temperature_value_follows_the_titrants_density_by_default():
+    # A 0.1 mol/L titrant expands as pure water does (corrections.DILUTE_LIMIT_MOL_L): c(T) = c(20)·ρ(T)/ρ(20).
+    # Tanaka et al., Metrologia 38 (2001) 301, Table: ρ(20 °C) = 998.2067 kg/m³, ρ(25 °C) = 997.0470 kg/m³
+    # (7 figures, hence rel 2e-7).
+    b = record(releases=(rel(0),))
+    entry = labday.lab_day([b], day(3), day(3), "NaOH", bench_temperature_c=25).entries[0]
+    assert entry.molarity_at_bench == pytest.approx(0.1002 * 997.0470 / 998.2067, rel=2e-7)
+    # Water expands by 2.32e-4 /K on average between 20 and 25 °C, not QUAM's 2.1e-4: at 25 °C the two
+    # answers differ by 1.1e-4 relative (0.1002·(1 − 5·2.1e-4) = 0.100094790, hand computation).
+    assert entry.molarity_at_bench / 0.100094790 - 1 == pytest.approx(-1.1e-4, abs=0.1e-4)
     with pytest.raises(InvalidInput) as err:
-        labday.lab_day([b], day(3), day(3), "NaOH", bench_temperature_c=41)
+        labday.lab_day([record(releases=(rel(0),))], day(3), day(3), "NaOH", bench_temperature_c=41)
     assert err.value.errors[0].field == "bench_temperature_c"
 
 

@@ -9,10 +9,11 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from scipy import stats as scipy_stats
 from uncertainties import ufloat
 
+from stockroom import chemistry, corrections, stats
 from stockroom import settings as stock_settings
-from stockroom import stats
 from stockroom.errors import InvalidInput
 from stockroom.standardization import (
     AliquotReplicate,
@@ -48,6 +49,8 @@ def quam_instruments(**changes) -> Instruments:
         coverage_factor=2.0,
         monte_carlo_draws=100_000,
         lab_temperature_distribution="normal",
+        # QUAM:2012 states U with k = 2 fixed, not from ν_eff.
+        k_policy="fixed",
     )
     return dataclasses.replace(base, **changes)
 
@@ -119,6 +122,8 @@ def test_quam_a3_hcl_against_that_naoh():
         nu=1.0,
         replicates=(AliquotReplicate(aliquot_ml=15.0, volume_ml=14.89),),
         u_repeatability_rel=run_rep,
+        # QUAM A3 gives the titre and the aliquot a temperature term each, independent.
+        temperature_terms="independent",
     )
     r = standardize_secondary(run, inst)
     # QUAM:2012 A3: c(HCl) = 0.10139 mol/L, u ≈ 0.00018 mol/L.
@@ -500,3 +505,163 @@ def test_repeatability_never_below_what_two_burette_readings_resolve():
     expected = 0.01 / math.sqrt(12) * math.sqrt(2) / 24.85 / math.sqrt(4)
     assert line.u == pytest.approx(expected, rel=1e-12)
     assert result.summary.sd == 0.0
+
+
+# --------------------------------------------------------------------------- metrology at the edges
+
+NAOH = chemistry.titrant("NaOH")
+
+
+def _small_run(n: int = 3, **changes) -> PrimaryRun:
+    """An invented 0.1 mol/L NaOH run with ~20 mL titres and direct masses (demo data)."""
+    masses = [0.4101, 0.4123, 0.4088, 0.4110][:n]
+    titres = [20.09, 20.20, 20.03, 20.13][:n]
+    reps = tuple(Replicate(volume_ml=v, mass_g=m) for m, v in zip(masses, titres, strict=True))
+    run = PrimaryRun(standard_spec("NaOH", "KHP"), reps, purity_value=1.0, buoyancy=False, nominal_molarity=0.1)
+    return dataclasses.replace(run, **changes)
+
+
+def test_titrant_model_refers_dilute_runs_by_waters_density():
+    base = _khp_run(3, titrant=NAOH)
+    warm = dataclasses.replace(base, replicates=tuple(dataclasses.replace(r, temperature_c=25.0) for r in base.replicates))
+    c20 = standardize_primary(base, fast(DEFAULTS))
+    c25 = standardize_primary(warm, fast(DEFAULTS))
+    # 0.1 mol/L is dilute: ρw(20)/ρw(25) = 998.2067/997.0470 (Tanaka et al. 2001 table), not 1 + 5·2.1e-4.
+    assert c25.molarity / c20.molarity == pytest.approx(998.2067 / 997.0470, rel=2e-7)
+
+
+def test_titrant_model_sets_the_temperature_sensitivity():
+    reps = tuple(dataclasses.replace(r, temperature_c=28.0) for r in _khp_run(3).replicates)
+    r = standardize_primary(_khp_run(3, replicates=reps, titrant=NAOH), fast(DEFAULTS))
+    line = next(ln for ln in r.gum.lines if ln.source == "titre temperature")
+    v = next(f for f in r.gum.factors if f.name == "titre volume").value
+    alpha = corrections.expansion_coefficient(corrections.AQUEOUS_NAOH, 0.1, 28.0)
+    # Water expands by 2.57e-4 /K at 25 °C and 3.03e-4 at 30 °C (handbook table of water, from memory), so
+    # about 2.85e-4 at 28 °C: a third more than QUAM's 2.1e-4.
+    assert alpha == pytest.approx(2.85e-4, abs=0.05e-4)
+    assert line.u == pytest.approx(v * alpha * 3.0 / math.sqrt(3), rel=1e-12)
+
+
+def test_burette_figure_follows_the_capacity_used():
+    run = _small_run(burette_capacity_ml=25.0)
+    r = standardize_primary(run, fast(DEFAULTS))
+    line = next(ln for ln in r.gum.lines if ln.source == "burette calibration")
+    # ISO 385 Class A 25 mL: ±0.03 mL (from memory), triangular as QUAM A2 — not the 50 mL ±0.05.
+    assert line.u == pytest.approx(0.03 / math.sqrt(6), rel=1e-12)
+    assert standardize_primary(_small_run(), fast(DEFAULTS)).gum.lines[0].source  # default run still computes
+    default_line = next(
+        ln for ln in standardize_primary(_small_run(), fast(DEFAULTS)).gum.lines if ln.source == "burette calibration"
+    )
+    assert default_line.u == pytest.approx(0.05 / math.sqrt(6), rel=1e-12)
+
+
+def test_titres_past_the_burette_are_two_fills_and_three_are_refused():
+    r = standardize_primary(_khp_run(3, burette_capacity_ml=25.0), fast(DEFAULTS))
+    assert all(x.fills == 2 for x in r.replicates)
+    second = next(ln for ln in r.gum.lines if ln.source == "burette calibration (second fill)")
+    assert second.u == pytest.approx(0.03 / math.sqrt(6), rel=1e-12)
+    assert any("two fills" in w for w in r.warnings)
+    with pytest.raises(InvalidInput) as err:
+        standardize_primary(_khp_run(3, burette_capacity_ml=10.0), fast(DEFAULTS))
+    assert err.value.errors[0].field == "replicates[0].volume_ml" and "more than 2 fills" in err.value.errors[0].message
+
+
+def test_a_result_stronger_than_the_titrant_can_be_is_refused():
+    # Saturated NaOH(aq) is 19.1 mol/L at 25 °C (Sipos et al., J. Chem. Eng. Data 45 (2000) 613).
+    reps = tuple(dataclasses.replace(r, mass_g=r.mass_g * 1000) for r in _small_run().replicates)
+    r = standardize_primary(_small_run(replicates=reps, nominal_molarity=None, titrant=NAOH), fast(DEFAULTS))
+    assert not r.accepted
+    assert any("stronger than any sodium hydroxide solution" in x and "mg" in x for x in r.reasons)
+
+
+def test_one_replicate_off_by_a_thousand_is_named_with_its_unit():
+    reps = list(_small_run(4).replicates)
+    reps[1] = dataclasses.replace(reps[1], mass_g=412.3)  # typed in mg (common practice: the usual slip)
+    r = standardize_primary(_small_run(4, replicates=tuple(reps), titrant=NAOH), fast(DEFAULTS))
+    assert not r.accepted
+    slip = next(c for c in r.checks if c.code == "replicate-unit-slip")
+    assert slip.replicate == 1 and "replicate 2" in slip.message and "typed in mg as if in g" in slip.message
+    assert not any("wrong standard" in x for x in r.reasons)
+    # Overridden with a reason: the check stays on the result, its message moves to the warnings.
+    gone = standardize_primary(
+        _small_run(4, replicates=tuple(reps), overrides={"replicate-unit-slip": "balance printout shows 0.4123 g"}),
+        fast(DEFAULTS),
+    )
+    assert gone.checks[0].overridden and gone.overrides == (("replicate-unit-slip", "balance printout shows 0.4123 g"),)
+    assert not any("replicate-unit-slip" in x for x in gone.reasons)
+
+
+def test_twice_or_half_the_nominal_is_refused_unless_overridden():
+    twice = standardize_primary(_small_run(nominal_molarity=0.05), fast(DEFAULTS))
+    assert not twice.accepted and any("first end point" in x for x in twice.reasons)
+    half = standardize_primary(_small_run(nominal_molarity=0.2), fast(DEFAULTS))
+    assert not half.accepted and any("normality" in x for x in half.reasons)
+    ok = standardize_primary(
+        _small_run(nominal_molarity=0.05, overrides={"nominal-twice-or-half": "batch made up as 0.1 mol/L; label wrong"}),
+        fast(DEFAULTS),
+    )
+    assert ok.accepted and ok.checks[0].code == "nominal-twice-or-half" and ok.checks[0].overridden
+    with pytest.raises(InvalidInput) as err:
+        standardize_primary(_small_run(overrides={"nominal-twice-or-half": " ", "made-up": "x"}), fast(DEFAULTS))
+    assert {e.field for e in err.value.errors} == {"overrides[nominal-twice-or-half]", "overrides[made-up]"}
+
+
+def test_purity_just_above_one_is_accepted_and_percentages_are_named():
+    # Certified assays of acidimetric standards read on both sides of 100 % (common practice).
+    assert standardize_primary(_small_run(purity_value=1.0003), fast(DEFAULTS)).molarity > 0
+    with pytest.raises(InvalidInput) as err:
+        standardize_primary(_small_run(purity_value=1.002), fast(DEFAULTS))
+    assert "at most 1.001" in err.value.errors[0].message
+    with pytest.raises(InvalidInput) as err:
+        standardize_primary(_small_run(purity_value=99.95), fast(DEFAULTS))
+    assert "write 99.95 % as 0.9995" in err.value.errors[0].message
+
+
+def test_two_replicates_never_claim_less_than_their_scatter():
+    reps = (Replicate(volume_ml=20.09, mass_g=0.4101), Replicate(volume_ml=20.09, mass_g=0.4142))  # 1 % apart
+    r = standardize_primary(_small_run(replicates=reps), fast(DEFAULTS))
+    rep_u = {f.name: f.u for f in r.gum.factors}["repeatability"]
+    c = [x.molarity for x in r.replicates]
+    observed = np.std(c, ddof=1) / math.sqrt(2) / np.mean(c)  # numpy as the independent computation
+    assert rep_u == pytest.approx(observed, rel=1e-9) and rep_u > 0.002 / math.sqrt(2)
+
+
+def test_secondary_run_carries_one_shared_temperature_input():
+    ref = Reference(0.1000, 0.00008, "HCl")
+    reps = tuple(AliquotReplicate(aliquot_ml=25.0, volume_ml=v) for v in (24.80, 24.84, 24.78))
+    shared = standardize_secondary(SecondaryRun(ref, 1.0, reps, temperature_terms="shared"), fast(DEFAULTS))
+    apart = standardize_secondary(SecondaryRun(ref, 1.0, reps, temperature_terms="independent"), fast(DEFAULTS))
+    # The settings keep QUAM A3's independent terms until SECONDARY_TEMPERATURE_TERMS is declared.
+    assert standardize_secondary(SecondaryRun(ref, 1.0, reps), fast(DEFAULTS)).u == apart.u
+    sources = {ln.source for ln in shared.gum.lines}
+    assert "lab temperature (shared by titre and aliquot)" in sources
+    assert "titre temperature" not in sources and "aliquot temperature" not in sources
+    # Both solutions expand alike: the shared temperature cancels in V_titre/V_aliquot.
+    line = next(ln for ln in shared.gum.lines if ln.source.startswith("lab temperature"))
+    assert line.contribution == 0.0 and shared.u < apart.u
+    # A 1 mol/L NaOH batch against 0.1 mol/L HCl: the sensitivity is c·(α_ref − α_new).
+    strong = SecondaryRun(
+        Reference(0.1, 0.00008, "HCl", corrections.AQUEOUS_HCL),
+        10.0,
+        reps,
+        nominal_molarity=1.0,
+        titrant=NAOH,
+        temperature_terms="shared",
+    )
+    r = standardize_secondary(strong, fast(DEFAULTS))
+    line = next(ln for ln in r.gum.lines if ln.source.startswith("lab temperature"))
+    a_ref = corrections.expansion_coefficient(corrections.AQUEOUS_HCL, 0.1, 20.0)
+    a_new = corrections.expansion_coefficient(corrections.AQUEOUS_NAOH, 1.0, 20.0)
+    assert line.sensitivity == pytest.approx(r.molarity * (a_ref - a_new), rel=1e-9)
+
+
+def test_k_from_effective_degrees_of_freedom():
+    inst = fast(dataclasses.replace(DEFAULTS, k_policy="effective-dof"))
+    r = standardize_primary(_khp_run(3), inst)
+    # Repeatability from 3 replicates carries ν = 2; every other source is Type B (GUM G.4.2).
+    assert next(ln for ln in r.gum.lines if ln.source == "repeatability").dof == 2
+    assert math.isfinite(r.nu_eff) and r.coverage == 0.95
+    assert r.k == pytest.approx(scipy_stats.t.ppf(0.975, math.floor(r.nu_eff)), rel=1e-12)  # scipy.stats.t
+    assert r.U == pytest.approx(r.k * r.u, rel=1e-12)
+    # Labs whose procedure fixes k keep it (the settings' default until COVERAGE_K_POLICY is declared).
+    assert standardize_primary(_khp_run(3), fast(DEFAULTS)).k == 2.0

@@ -307,11 +307,13 @@ def test_screen_runs_both_tests_and_never_drops_a_value() -> None:
     assert all(r.outlier for r in results)
     assert values == PENNIES  # reports only; the input is untouched
     assert results[0] == stats.grubbs(PENNIES, 0.05)
-    assert results[1] == stats.dixon(PENNIES, 0.95)
+    # Nine replicates: Dixon's r11 (Dixon 1953; Rorabacher 1991), not r10.
+    assert results[1] == stats.dixon_recommended(PENNIES, 0.95)
+    assert results[1].ratio == "r11" and results[1].index == 1
 
 
 def test_screen_leaves_out_dixon_outside_its_table() -> None:
-    assert [r.test for r in stats.screen([0.1 + i * 1e-4 for i in range(11)])] == ["grubbs"]
+    assert [r.test for r in stats.screen([0.1 + i * 1e-4 for i in range(31)])] == ["grubbs"]
     two = stats.screen([0.1, 0.2])
     assert [r.test for r in two] == ["grubbs"] and not two[0].applicable
     odd_alpha = stats.screen(MOLARITIES, 0.02)
@@ -420,3 +422,64 @@ def test_grubbs_statistic_never_exceeds_its_bound(values: list[float]) -> None:
     assume(r.applicable)
     n = len(values)
     assert r.statistic is not None and r.statistic <= (n - 1) / math.sqrt(n) * (1 + 1e-12)
+
+
+# --------------------------------------------------------------------------- Dixon's ratio by n
+
+
+@pytest.mark.parametrize(
+    ("n", "ratio"),
+    [(3, "r10"), (7, "r10"), (8, "r11"), (10, "r11"), (11, "r21"), (13, "r21"), (14, "r22"), (30, "r22")],
+)
+def test_dixon_ratio_recommended_for_n(n: int, ratio: str) -> None:
+    # Dixon (1953) as Rorabacher (1991) restates it: r10 for 3-7, r11 for 8-10, r21 for 11-13, r22 for 14+.
+    assert stats.dixon_ratio_for(n) == ratio
+    assert stats.dixon_ratio_critical(n, 0.95)[0] == ratio
+
+
+def test_dixon_r10_rows_are_rorabachers() -> None:
+    # Rorabacher, Anal. Chem. 63 (1991) 139, Table II, 95 %: 0.970 0.829 0.710 0.625 0.568 for n = 3-7.
+    assert [stats.dixon_ratio_critical(n, 0.95)[1] for n in range(3, 8)] == [0.970, 0.829, 0.710, 0.625, 0.568]
+
+
+def _dixon_mc(n: int, ratio: str, draws: int, rng: np.random.Generator) -> np.ndarray:
+    s = np.sort(rng.standard_normal((draws, n)), axis=1)
+    gap_i, drop_j = {"r10": (1, 0), "r11": (1, 1), "r21": (2, 1), "r22": (2, 2)}[ratio]
+    low = (s[:, gap_i] - s[:, 0]) / (s[:, n - 1 - drop_j] - s[:, 0])
+    high = (s[:, -1] - s[:, n - 1 - gap_i]) / (s[:, -1] - s[:, drop_j])
+    return np.maximum(low, high)
+
+
+@pytest.mark.parametrize("n", [8, 10, 11, 13, 14, 20, 30])
+def test_dixon_higher_ratio_critical_values_by_independent_monte_carlo(n: int) -> None:
+    # Independent check with another seed and fewer draws than the table was made with: the 95 % and 99 %
+    # quantiles of the statistic for normal samples agree within 0.01.
+    rng = np.random.default_rng(1000 + n)
+    ratio, _ = stats.dixon_ratio_critical(n, 0.95)
+    q = _dixon_mc(n, ratio, 200_000, rng)
+    for conf in (0.95, 0.99):
+        assert abs(np.quantile(q, conf) - stats.dixon_ratio_critical(n, conf)[1]) < 0.01
+
+
+def test_dixon_recommended_uses_the_ratio_and_names_the_replicate() -> None:
+    # r11 on nine values: the low value 2.514 against the range without the highest (hand computation:
+    # (3.039 − 2.514)/(3.102 − 2.514) = 0.8929).
+    r = stats.dixon_recommended(PENNIES, 0.95)  # n = 9
+    assert r.ratio == "r11" and r.index == 1 and r.outlier and r.verdict == "outlier"
+    assert r.statistic == pytest.approx((3.039 - 2.514) / (3.102 - 2.514), rel=1e-12)
+    # r11 at the high end: the gap to the neighbour over the range without the lowest value (Dixon 1953).
+    masked = [10.0, 10.01, 10.02, 10.03, 10.02, 10.01, 11.0, 11.1]
+    m = stats.dixon_recommended(masked, 0.95)
+    assert m.ratio == "r11" and m.statistic == pytest.approx((11.1 - 11.0) / (11.1 - 10.01), rel=1e-12)
+
+
+def test_screen_cannot_judge_three_replicates() -> None:
+    # Common practice (and Grubbs' own bound): with n = 3 G cannot exceed (n − 1)/√n = 1.1547 while
+    # G_crit(3, 0.05) = 1.1531 (NIST/SEMATECH 1.3.5.17 table), so a "flag" says nothing.
+    results = stats.screen([0.1021, 0.1022, 0.1040])
+    assert [r.verdict for r in results] == ["cannot judge", "cannot judge"]
+    assert not any(r.outlier for r in results) and not any(r.applicable for r in results)
+    assert all("fourth replicate" in r.note for r in results)
+    assert results[0].statistic is not None  # kept for the record
+    four = stats.screen([0.1021, 0.1022, 0.1021, 0.1040])
+    assert four[0].verdict in ("outlier", "no outlier")

@@ -6,8 +6,10 @@ import math
 
 import numpy as np
 import pytest
+from scipy import stats as scipy_stats
 from uncertainties import ufloat
 
+from stockroom import uncertainty as unc
 from stockroom.uncertainty import (
     Distribution,
     InputQuantity,
@@ -226,3 +228,44 @@ def test_inputs_refuse_nonsense():
         InputQuantity("x", 1.0, -0.1)
     with pytest.raises(ValueError):
         monte_carlo(_quam_a2_model(), draws=10)
+
+
+# --------------------------------------------------------------------------- effective degrees of freedom
+
+
+def test_welch_satterthwaite_gum_h1_gauge_block() -> None:
+    # JCGM 100:2008 (GUM) H.1.6, the end-gauge calibration: contributions 25 nm (ν = 18), 9.7 nm (25.6),
+    # 2.9 nm (50) and 16.6 nm (2), u_c ≈ 32 nm, ν_eff ≈ 16.7, truncated to 16, t_95(16) = 2.12, U = 67 nm
+    # (the figures from memory of the example).
+    contributions = [(25.0, 18.0), (9.7, 25.6), (2.9, 50.0), (16.6, 2.0)]
+    nu = unc.welch_satterthwaite(contributions)
+    assert nu == pytest.approx(16.7, abs=0.1)
+    k = unc.coverage_factor(nu, 0.95)
+    # scipy.stats.t as the independent quantile: t(0.975, 16) = 2.1199.
+    assert k == pytest.approx(scipy_stats.t.ppf(0.975, 16), rel=1e-12) and round(k, 2) == 2.12
+    u_c = math.sqrt(sum(u * u for u, _ in contributions))
+    assert round(u_c) == 32 and round(k * u_c) == 67
+
+
+def test_welch_satterthwaite_limits() -> None:
+    # GUM G.4.1: two equal contributions of ν = 4 each give ν_eff = 8; Type B only gives infinity and the
+    # normal quantile (1.95996 at 95 %, scipy.stats.norm).
+    assert unc.welch_satterthwaite([(1.0, 4.0), (1.0, 4.0)]) == pytest.approx(8.0, rel=1e-12)
+    assert unc.welch_satterthwaite([(1.0, math.inf), (2.0, math.inf)]) == math.inf
+    assert unc.coverage_factor(math.inf, 0.95) == pytest.approx(scipy_stats.norm.ppf(0.975), rel=1e-12)
+    # A Type B source adds to u_c but not to the denominator: ν_eff grows above the Type A ν.
+    assert unc.welch_satterthwaite([(1.0, 2.0), (1.0, math.inf)]) == pytest.approx(8.0, rel=1e-12)
+
+
+def test_combine_takes_k_from_nu_eff_when_asked() -> None:
+    rep = unc.InputQuantity.normal("repeatability", 1.0, 0.001, dof=2)
+    v = unc.InputQuantity.normal("volume", 20.0, 0.02, "mL")
+    model = unc.ProductModel(1.0, (unc.factor("R", 1, rep), unc.factor("V", -1, v)), "mol/L")
+    fixed = unc.combine(model)
+    assert fixed.k == 2.0 and fixed.coverage is None
+    free = unc.combine(model, None, 0.95)
+    # (u_c/y)² = 0.001² + 0.001² so ν_eff = 2·(2e-6)²/(1e-6)² = 8; t(0.975, 8) = 2.306 (scipy.stats.t).
+    assert free.nu_eff == pytest.approx(8.0, rel=1e-9)
+    assert free.k == pytest.approx(scipy_stats.t.ppf(0.975, 8), rel=1e-12) and free.coverage == 0.95
+    assert free.U == pytest.approx(free.k * free.u, rel=1e-12)
+    assert [ln.dof for ln in free.lines] == [2, math.inf]
