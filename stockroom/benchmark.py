@@ -4,8 +4,8 @@
 
 measures the median wall time of the pure computation (request parsing, chemistry, statistics,
 GUM and Monte Carlo) and of the same request through the Flask test client, and compares each with
-the goals of the science-core issue: 10^5 draws within 30 ms, 10^6 draws within 0.5 s. A later
-`stockroom bench` command calls science_figures(). This is a benchmark, not a test: the figures
+its goal: 10^5 draws within 30 ms, 10^6 draws within 0.5 s. `stockroom bench` calls
+science_figures(). This is a benchmark, not a test: the figures
 depend on the machine.
 """
 

@@ -127,7 +127,7 @@ def _pooled(path: str) -> sqlite_utils.Database:
 
 
 def init_app(app: Any, prepare: Callable[[sqlite_utils.Database], object]) -> None:
-    """Attach per-request connection handling to a Flask app; `prepare` (the migration) runs once first."""
+    """Hand each request the thread's pooled connection and take it back clean; `prepare` (the migration) runs once first."""
     from flask import g
 
     db = connect(app.config["DATABASE"])

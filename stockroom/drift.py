@@ -224,16 +224,6 @@ class DriftReport:
     next_check_due: dt.date
     flags: tuple[Flag, ...] = field(default_factory=tuple)
 
-    @property
-    def last_check(self) -> Point | None:
-        """The newest re-check, or None."""
-        checks = [p for p in self.points if p.kind == "recheck"]
-        return checks[-1] if checks else None
-
-    def has(self, kind: FlagKind) -> bool:
-        """True when a flag of this kind is raised."""
-        return any(f.kind is kind for f in self.flags)
-
 
 @lru_cache(maxsize=256)
 def _t_crit(confidence: float, dof: int) -> float:

@@ -21,7 +21,6 @@ from stockroom.policy import BatchFacts, StatusReport, status_on
 from stockroom.recall import review_facts
 
 __all__ = [
-    "COARSE_FINAL",
     "BatchView",
     "batch_facts",
     "batch_history",
@@ -60,9 +59,6 @@ def batch_facts(db: sqlite_utils.Database, batch_id: int) -> BatchFacts:
     if facts is None:
         raise NotFound(f"no batch with id {batch_id}")
     return facts
-
-
-COARSE_FINAL = ("expired", "withdrawn")
 
 
 def coarse_statuses(

@@ -20,7 +20,7 @@ import io
 import sqlite3
 import weakref
 from collections import defaultdict
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
 
@@ -120,8 +120,7 @@ def _graph_of(db: sqlite_utils.Database, rows: list[dict[str, Any]], whole: bool
                     lot["id"],
                     lot["code"],
                     detail=f"{lot['substance']}, supplier's lot {lot['supplier_lot'] or '—'}\n"
-                    f"certificate: assay {lot['assay'] * 100:.3f} ± {lot['assay_expanded_u'] * 100:.3f} % "
-                    f"(k = {lot['assay_k']:g})",
+                    f"certificate: assay {formatting.percent_u(lot['assay'], lot['assay_expanded_u'], lot['assay_k'])}",
                     value=lot["assay"],
                     u=lot["assay_expanded_u"] / lot["assay_k"],
                 )
@@ -255,8 +254,7 @@ def _subjects(db: sqlite_utils.Database, wanted: Iterable[tuple[str, int]]) -> d
             out[(LOT, r["id"])] = (
                 r["code"],
                 f"{r['substance']}, supplier's lot {r['supplier_lot'] or '—'}, assay "
-                f"{r['assay'] * 100:.3f} ± {r['assay_expanded_u'] * 100:.3f} % "
-                f"(k = {r['assay_k']:g}), expires {r['expires_on']}",
+                f"{formatting.percent_u(r['assay'], r['assay_expanded_u'], r['assay_k'])}, expires {r['expires_on']}",
             )
     if by_kind.get(INSTRUMENT):
         for iid, inst in inst_mod.instruments_by_id(db, by_kind[INSTRUMENT]).items():
@@ -923,8 +921,3 @@ def subject_options(db: sqlite_utils.Database) -> dict[str, list[tuple[str, str]
         for r in dbmod.query(db, "SELECT id, code, reagent, nominal_molarity FROM batches ORDER BY code")
     ]
     return {LOT: lots, INSTRUMENT: insts, BATCH: batches}
-
-
-def batch_ids_reached(report: Impact) -> Mapping[int, str]:
-    """batch id -> batch code of every batch in a report (for the clearing form)."""
-    return {b.batch_id: b.code for b in report.batches}

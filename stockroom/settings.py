@@ -127,5 +127,5 @@ def _instance_secret(instance_dir: Path) -> str:
 
 
 def describe() -> list[tuple[str, Any, str]]:
-    """(name, default, help) of every setting, for `stockroom settings` and the docs."""
+    """(name, default, help) of every setting, for the admin settings page and the docs."""
     return [(s.name, s.default, s.help) for s in SETTINGS]

@@ -28,6 +28,12 @@ def test_ruff_is_clean():
     assert result.returncode == 0, result.stdout[-4000:]
 
 
+def test_the_tree_is_ruff_formatted():
+    # The project adopted `ruff format` in one mechanical commit; a file out of format fails here.
+    result = subprocess.run([_tool("ruff"), "format", "--check", "."], cwd=ROOT, capture_output=True, text=True, timeout=300)
+    assert result.returncode == 0, result.stdout[-4000:]
+
+
 def test_mypy_is_clean():
     result = subprocess.run([_tool("mypy"), "--no-error-summary"], cwd=ROOT, capture_output=True, text=True, timeout=600)
     assert result.returncode == 0, result.stdout[-4000:]
