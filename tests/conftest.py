@@ -2,17 +2,34 @@
 
 from __future__ import annotations
 
+import shutil
+
 import pytest
 
 from stockroom import create_app
 from stockroom import db as dbmod
 
 
+def _config(folder):
+    return {"DATABASE": str(folder / "stockroom.db"), "TESTING": True, "SECRET_KEY": "test-only", "LAB_TIMEZONE": "UTC"}
+
+
+@pytest.fixture(scope="session")
+def migrated_template(tmp_path_factory):
+    """A folder holding a freshly migrated database (and whatever files stockroom keeps beside it), made once."""
+    folder = tmp_path_factory.mktemp("template")
+    create_app(_config(folder))
+    return folder
+
+
 @pytest.fixture
-def app(tmp_path):
-    app = create_app(
-        {"DATABASE": str(tmp_path / "stockroom.db"), "TESTING": True, "SECRET_KEY": "test-only", "LAB_TIMEZONE": "UTC"}
-    )
+def app(tmp_path, migrated_template):
+    # Each test gets its own copy of the migrated template instead of migrating anew: the same file a
+    # new database would be, at a fraction of the cost (tests/test_db.py still migrates from nothing).
+    for item in migrated_template.iterdir():
+        if item.is_file():
+            shutil.copy2(item, tmp_path / item.name)
+    app = create_app(_config(tmp_path))
     yield app
 
 
