@@ -9,12 +9,18 @@ T it is c(T) = c(20 °C)·ρ(T)/ρ(20 °C) by the titrant's density model (corre
 explicit α, the linear c(20 °C)·[1 − α(T − 20 °C)] of EURACHEM/CITAC QUAM:2012), the value to use with
 burette readings taken at T.
 
-The predicted value on D comes from the drift fit of the release in force (stockroom.drift), using
-every standardization of that release recorded up to `known_on` (normally today): for a past lab day,
-re-checks made after it sharpen the estimate of what the titrant was that day; for a future day the
-line is extrapolated. The status and flags "that day" are policy.status_on(facts, D), as things stood
-on D. A flag is added when the fuller record shows the molarity was probably outside tolerance on D
-although nothing said so then.
+A batch in force on D is **on hold** when, as known today, it was beyond tolerance that day (policy:
+a re-check outside the band or a trend already outside it), is under a recall's review, or a re-check
+of the same release made after D, or the trend through the fuller record, puts D beyond tolerance.
+A batch on hold has no value to use (LabDayEntry.use_molarity is None); its certified value, latest
+re-check and prediction are shown for reference only.
+
+A past day's answer is the record as it stood that day (status, flags and the trend through the
+standardizations made up to D) and, beside it, what was learnt later, each with its date: a
+withdrawal and its reason, recalls opened or cleared, re-checks beyond tolerance, the fuller trend.
+Both come from one pure function, standing(batch, D, cut-off): "as known on D" is the cut-off D,
+"as known today" the cut-off today (policy.known_by drops what is dated after the cut-off). For a
+future day the trend is extrapolated from the standardizations made up to today.
 
 Class-data sheet (CSV, UTF-8, header row, columns in any order, `#` lines ignored, decimal point):
 
@@ -41,11 +47,21 @@ import math
 import re
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
+from enum import StrEnum
 
 from stockroom import chemistry, corrections, drift
-from stockroom.drift import Flag, FlagKind
+from stockroom.drift import Flag
 from stockroom.errors import FieldError, InvalidInput
-from stockroom.policy import BatchFacts, ReleaseFact, Status, StatusReport, release_in_force, release_points, status_on
+from stockroom.policy import (
+    BatchFacts,
+    ReleaseFact,
+    Status,
+    StatusReport,
+    known_by,
+    release_in_force,
+    release_points,
+    status_on,
+)
 
 BENCH_MIN_C = 5.0
 BENCH_MAX_C = 40.0
@@ -58,36 +74,229 @@ REFERENCE_TEMPERATURE_C = corrections.REFERENCE_TEMPERATURE_C
 
 @dataclass(frozen=True)
 class BatchRecord:
-    """One batch as the look-up needs it: its readable ID, titrant key, nominal molarity (mol/L), facts."""
+    """One batch as the look-up needs it: its readable ID, titrant key, nominal molarity (mol/L), facts.
+
+    withdrawal_reason: the words recorded with its withdrawal (BatchFacts carries only the date), or None.
+    """
 
     code: str
     reagent: str
     nominal_molarity: float
     facts: BatchFacts
     id: int = 0
+    withdrawal_reason: str | None = None
+
+
+class Later(StrEnum):
+    """What the record learnt about a lab day after it."""
+
+    WITHDRAWN = "withdrawn"
+    RECHECK_OUTSIDE = "recheck_outside"
+    TREND_OUTSIDE = "trend_outside"
+    UNDER_REVIEW = "under_review"
+    REVIEW_CLEARED = "review_cleared"
+
+
+# What, learnt after the day, puts the day's value on hold: a measurement of the same release beyond
+# tolerance, or the trend through the fuller record. A withdrawal alone does not (a bottle used up or
+# broken says nothing about its strength); it is shown with its reason for the reader to judge.
+_HOLDING = (Later.RECHECK_OUTSIDE, Later.TREND_OUTSIDE)
+
+
+@dataclass(frozen=True)
+class Learnt:
+    """One thing recorded after the lab day that concerns it: its date, its kind, and it in words with the date."""
+
+    on: dt.date
+    kind: Later
+    what: str
+
+
+@dataclass(frozen=True)
+class Standing:
+    """A batch on lab day `on` as the record stood on `known_on` (the knowledge cut-off).
+
+    release: the release in force on `on`; status: policy.status_on of the facts known by `known_on`;
+    later: what was recorded after `on` up to `known_on` (always empty when known_on <= on);
+    holds: why no value of it is to be used, in words (empty: none); latest_recheck: the newest re-check
+    of the release known by `known_on` (mol/L), or None. "As known on D" is standing(b, D, D) and "as
+    known today" standing(b, D, today): one function, two cut-offs.
+    """
+
+    on: dt.date
+    known_on: dt.date
+    release: ReleaseFact
+    status: StatusReport
+    later: tuple[Learnt, ...]
+    holds: tuple[str, ...]
+    latest_recheck: drift.Point | None
+
+    @property
+    def hold(self) -> str | None:
+        """The reasons for the hold as one sentence, or None when the batch is not on hold."""
+        if not self.holds:
+            return None
+        return _capitalized("; ".join(self.holds))
+
+
+def _tolerance(release: ReleaseFact) -> str:
+    return f"tolerance ±{release.tolerance_rel * 100:.2f} %"
+
+
+def standing(batch: BatchRecord, on: dt.date, known_on: dt.date) -> Standing | None:
+    """The standing of one batch on lab day `on` as known on `known_on`, or None if nothing was in force.
+
+    Pure: the batch's facts and two dates in. Facts dated after `known_on` are unseen (policy.known_by);
+    the status is that of the day itself; what is dated after `on` (up to `known_on`) is reported as
+    learnt later, each item with its date.
+    """
+    facts = known_by(batch.facts, known_on)
+    release = release_in_force(facts, on)
+    if release is None:
+        return None
+    status = status_on(facts, on)
+    band = drift.Band(release.molarity, release.tolerance_rel)
+    tol = _tolerance(release)
+    points = release_points(facts, release, known_on)
+    checks = [p for p in points if p.kind == "recheck"]
+    later: list[Learnt] = []
+    if on < known_on:
+        if facts.withdrawn_on is not None and on < facts.withdrawn_on:
+            why = f": {batch.withdrawal_reason.strip()}" if batch.withdrawal_reason else ""
+            later.append(Learnt(facts.withdrawn_on, Later.WITHDRAWN, f"withdrawn on {facts.withdrawn_on.isoformat()}{why}"))
+        for c in checks:
+            if c.on > on and not band.contains(c.molarity):
+                later.append(
+                    Learnt(
+                        c.on,
+                        Later.RECHECK_OUTSIDE,
+                        f"a re-check on {c.on.isoformat()} found {c.molarity:.5f} mol/L, "
+                        f"{band.deviation(c.molarity) * 100:+.2f} % from the certified value ({tol})",
+                    )
+                )
+        for rv in facts.reviews:
+            if rv.release_id != release.id:
+                continue
+            if on < rv.opened_on:
+                later.append(
+                    Learnt(
+                        rv.opened_on,
+                        Later.UNDER_REVIEW,
+                        f"put under recall review on {rv.opened_on.isoformat()}: its certified value rests on "
+                        f"{rv.subject}, suspect from {rv.suspect_from.isoformat()} (recall {rv.recall_id})",
+                    )
+                )
+            if rv.cleared_on is not None and on < rv.cleared_on:
+                later.append(
+                    Learnt(rv.cleared_on, Later.REVIEW_CLEARED, f"recall {rv.recall_id} cleared on {rv.cleared_on.isoformat()}")
+                )
+        fit, _ = drift.fit_line(points, release.released_on)
+        if fit is not None and fit.significant and fit.last_on > on and status.status is not Status.DRIFTING:
+            p = drift.predict(fit, on)
+            if not band.contains(p.molarity):
+                later.append(
+                    Learnt(
+                        fit.last_on,
+                        Later.TREND_OUTSIDE,
+                        f"the trend through the {fit.n} standardizations up to {fit.last_on.isoformat()} puts "
+                        f"{on.isoformat()} at {p.molarity:.5f} mol/L ({band.deviation(p.molarity) * 100:+.2f} %, {tol}): "
+                        "probably outside tolerance that day",
+                    )
+                )
+    later.sort(key=lambda item: item.on)
+    holds: list[str] = []
+    if status.status is Status.DRIFTING:
+        holds += [f"beyond tolerance: {r}" for r in status.reasons]
+    holds += [
+        f"under recall review since {rv.opened_on.isoformat()}: its certified value rests on {rv.subject}, "
+        f"suspect from {rv.suspect_from.isoformat()} (recall {rv.recall_id})"
+        for rv in facts.reviews
+        if rv.release_id == release.id and rv.open_on(known_on)
+    ]
+    holds += [item.what for item in later if item.kind in _HOLDING]
+    return Standing(
+        on=on,
+        known_on=known_on,
+        release=release,
+        status=status,
+        later=tuple(later),
+        holds=tuple(holds),
+        latest_recheck=checks[-1] if checks else None,
+    )
 
 
 @dataclass(frozen=True)
 class LabDayEntry:
-    """A batch in force on the day, with the molarity to use and what to know about it.
+    """A batch in force on the day, with the molarity to use (or why none) and what to know about it.
 
-    Molarities in mol/L (certified ones at 20 °C); bench_temperature_c in °C; dates as dates. status is
-    the batch's status as it stood that day; fit/prediction use standardizations up to known_on.
-    flags: the day's drift flags, then any seen only with the fuller record (kind HINDSIGHT_OUTSIDE).
+    Molarities in mol/L (certified ones at 20 °C); bench_temperature_c in °C; dates as dates.
+    known_on: the date the record is read on (today). that_day: the record as it stood on the day
+    (standing with the cut-off min(on, known_on)); current: as known on known_on, with what was learnt
+    later and the hold. status and flags are the day's own. fit/prediction use the standardizations
+    made up to trend_through = min(on, known_on): the trend as it stood that day.
     """
 
     batch: BatchRecord
     on: dt.date
-    release: ReleaseFact
-    status: StatusReport
     known_on: dt.date
+    that_day: Standing
+    current: Standing
     fit: drift.Fit | None
     fit_note: str | None
     prediction: drift.Prediction | None
     bench_temperature_c: float | None
     molarity_at_bench: float | None
     predicted_at_bench: float | None
-    flags: tuple[Flag, ...]
+
+    @property
+    def release(self) -> ReleaseFact:
+        """The release in force that day."""
+        return self.that_day.release
+
+    @property
+    def status(self) -> StatusReport:
+        """The batch's status as it stood that day."""
+        return self.that_day.status
+
+    @property
+    def flags(self) -> tuple[Flag, ...]:
+        """The day's flags (drift and recall review), as they stood that day."""
+        return self.that_day.status.flags
+
+    @property
+    def trend_through(self) -> dt.date:
+        """The last date whose standardizations the trend uses: the day, or today for a future day."""
+        return min(self.on, self.known_on)
+
+    @property
+    def hold(self) -> str | None:
+        """Why no value of this batch is to be used for the day, as known today, or None."""
+        return self.current.hold
+
+    @property
+    def learnt_later(self) -> tuple[Learnt, ...]:
+        """What was recorded after the day, up to known_on, that concerns it (oldest first)."""
+        return self.current.later
+
+    @property
+    def latest_recheck(self) -> drift.Point | None:
+        """The newest re-check of the release known today (mol/L), for reference."""
+        return self.current.latest_recheck
+
+    @property
+    def use_molarity(self) -> float | None:
+        """The molarity to use, mol/L: at the bench temperature when one was given, else the certified
+        value at 20 °C; None when the batch is on hold."""
+        if self.hold is not None:
+            return None
+        return self.molarity_at_bench if self.molarity_at_bench is not None else self.release.molarity
+
+    @property
+    def use_temperature_c(self) -> float:
+        """The temperature use_molarity applies at, °C."""
+        if self.molarity_at_bench is not None and self.bench_temperature_c is not None:
+            return self.bench_temperature_c
+        return REFERENCE_TEMPERATURE_C
 
     @property
     def U(self) -> float:
@@ -102,19 +311,28 @@ class LabDayEntry:
 
     @property
     def plain(self) -> tuple[str, ...]:
-        """Every flag as a sentence for a person; empty when nothing needs saying."""
+        """Every flag of the day as a sentence for a person; empty when nothing needs saying."""
         return tuple(_sentence(f) for f in self.flags)
 
     @property
+    def later_plain(self) -> tuple[str, ...]:
+        """What was learnt later, each as a sentence with its date."""
+        return tuple(_capitalized(item.what) for item in self.learnt_later)
+
+    @property
     def advice(self) -> str | None:
-        """What the status means for whoever uses the titrant that day, or None when it is in service."""
-        if any(f.kind is FlagKind.HINDSIGHT_OUTSIDE for f in self.flags) and self.status.status is Status.IN_SERVICE:
-            return "Results made with it that day may be off by more than the tolerance: correct them with care."
+        """What the answer means for whoever uses the titrant that day, or None when nothing needs saying."""
+        if self.hold is not None:
+            return "On hold: no value of this batch is to be used for this day. Ask the prep room for another batch."
+        if any(item.kind is Later.WITHDRAWN for item in self.learnt_later):
+            return (
+                "Withdrawn after this day: ask the prep room whether its value still held on "
+                f"{self.on.isoformat()} before correcting results with it."
+            )
         return ADVICE.get(self.status.status)
 
 
 ADVICE = {
-    Status.DRIFTING: "Ask the prep room before use: its strength may be outside tolerance.",
     Status.RECHECK_DUE: "The certified value stands until the prep room re-checks it.",
 }
 
@@ -124,7 +342,7 @@ class LabDay:
     """The answer for one day: entries in force (may be empty), and when empty the reason in plain words.
 
     reason is the whole answer as one text; headline and detail are its two parts (for a page or sheet).
-    future: the day is after the date the record was read on.
+    known_on: the date the record was read on; future: the day is after it; past: before it.
     """
 
     on: dt.date
@@ -134,6 +352,12 @@ class LabDay:
     headline: str | None = None
     detail: str | None = None
     future: bool = False
+    known_on: dt.date | None = None
+
+    @property
+    def past(self) -> bool:
+        """Whether the day is before the date the record was read on."""
+        return self.known_on is not None and self.on < self.known_on
 
     @property
     def reason(self) -> str | None:
@@ -143,9 +367,12 @@ class LabDay:
         return self.headline + (f" {self.detail}" if self.detail else "")
 
 
-def _sentence(flag: Flag) -> str:
-    text = flag.message
+def _capitalized(text: str) -> str:
     return text[:1].upper() + text[1:] + ("" if text.endswith(".") else ".")
+
+
+def _sentence(flag: Flag) -> str:
+    return _capitalized(flag.message)
 
 
 def check_bench_temperature(value: float | None) -> float | None:
@@ -155,30 +382,6 @@ def check_bench_temperature(value: float | None) -> float | None:
     if not (isinstance(value, int | float) and math.isfinite(value) and BENCH_MIN_C <= value <= BENCH_MAX_C):
         raise InvalidInput([FieldError("bench_temperature_c", f"must be between {BENCH_MIN_C:g} and {BENCH_MAX_C:g} °C")])
     return float(value)
-
-
-def _hindsight(
-    entry_release: ReleaseFact,
-    status: StatusReport,
-    fit: drift.Fit | None,
-    prediction: drift.Prediction | None,
-    on: dt.date,
-    known_on: dt.date,
-) -> Flag | None:
-    """A flag when later standardizations put the day's molarity outside tolerance and that day did not say so."""
-    if known_on <= on or fit is None or prediction is None or not fit.significant or fit.last_on <= on:
-        return None
-    band = drift.Band(entry_release.molarity, entry_release.tolerance_rel)
-    if band.contains(prediction.molarity) or status.status is Status.DRIFTING:
-        return None
-    dev = band.deviation(prediction.molarity) * 100
-    return Flag(
-        FlagKind.HINDSIGHT_OUTSIDE,
-        f"by the standardizations recorded up to {fit.last_on.isoformat()}, it was probably outside "
-        f"tolerance that day: {prediction.molarity:.5f} mol/L ({dev:+.2f} %, tolerance "
-        f"±{band.tolerance_rel * 100:.2f} %)",
-        on,
-    )
 
 
 def _at_bench(batch: BatchRecord, c20: float, bench_c: float, alpha_per_k: float | None) -> float:
@@ -201,41 +404,38 @@ def entry_for(
 ) -> LabDayEntry | None:
     """The lab-day entry of one batch, or None when no release of it was in force on `on`.
 
-    on: the lab day; known_on: standardizations recorded up to this date inform the prediction (a
-    later date than `on` for a past day); bench_temperature_c in °C or None; alpha_per_k in 1/K for
-    the linear model, or None (the default) for the titrant's own density model from the catalogue
+    on: the lab day; known_on: the date the record is read on (today); what is dated after `on` up to
+    it is reported as learnt later and can put the batch on hold; the trend uses the standardizations
+    made up to min(on, known_on). bench_temperature_c in °C or None; alpha_per_k in 1/K for the linear
+    model, or None (the default) for the titrant's own density model from the catalogue
     (chemistry.Titrant.expansion: water's density for dilute titrants, the solution's above 0.2 mol/L).
     """
-    release = release_in_force(batch.facts, on)
-    if release is None:
+    through = min(on, known_on)
+    that_day = standing(batch, on, through)
+    current = standing(batch, on, known_on)
+    if that_day is None or current is None:
         return None
     bench = check_bench_temperature(bench_temperature_c)
-    status = status_on(batch.facts, on)
-    until = max(on, known_on)
-    fit, note = drift.fit_line(release_points(batch.facts, release, until), release.released_on)
+    release = that_day.release
+    fit, note = drift.fit_line(release_points(batch.facts, release, through), release.released_on)
     prediction = drift.predict(fit, on) if fit is not None else None
     at_bench = predicted_bench = None
     if bench is not None:
         at_bench = _at_bench(batch, release.molarity, bench, alpha_per_k)
         if prediction is not None:
             predicted_bench = _at_bench(batch, prediction.molarity, bench, alpha_per_k)
-    flags = list(status.flags)
-    late = _hindsight(release, status, fit, prediction, on, until)
-    if late is not None:
-        flags.append(late)
     return LabDayEntry(
         batch=batch,
         on=on,
-        release=release,
-        status=status,
-        known_on=until,
+        known_on=known_on,
+        that_day=that_day,
+        current=current,
         fit=fit,
         fit_note=note,
         prediction=prediction,
         bench_temperature_c=bench,
         molarity_at_bench=at_bench,
         predicted_at_bench=predicted_bench,
-        flags=tuple(flags),
     )
 
 
@@ -276,7 +476,9 @@ def lab_day(
     mine = [b for b in batches if key is None or b.reagent == key]
     entries = [e for e in (entry_for(b, on, known_on, bench, alpha_per_k) for b in mine) if e is not None]
     order = {s: i for i, s in enumerate((Status.DRIFTING, Status.RECHECK_DUE, Status.IN_SERVICE))}
-    entries.sort(key=lambda e: (e.batch.reagent, e.batch.nominal_molarity, order.get(e.status.status, 9), e.batch.code))
+    entries.sort(
+        key=lambda e: (e.batch.reagent, e.batch.nominal_molarity, e.hold is None, order.get(e.status.status, 9), e.batch.code)
+    )
     headline = detail = None
     if not entries:
         what = f"{key} batch" if key else "titrant batch"
@@ -295,6 +497,7 @@ def lab_day(
         headline=headline,
         detail=detail,
         future=on > known_on,
+        known_on=known_on,
     )
 
 

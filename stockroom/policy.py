@@ -10,7 +10,7 @@ a flag shown with the status, and changes it only once that day has come.
 from __future__ import annotations
 
 import datetime as dt
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from enum import StrEnum
 from typing import cast
 
@@ -193,6 +193,28 @@ class StatusReport:
     def remarks(self) -> tuple[str, ...]:
         """The reasons, then the message of every other flag raised: what a list of batches shows."""
         return self.reasons + tuple(f.message for f in self.flags if f.message not in self.reasons)
+
+
+def known_by(facts: BatchFacts, known_on: dt.date) -> BatchFacts:
+    """The facts as the record held them on `known_on`: everything dated after it left out.
+
+    Releases by release date, re-checks by the date performed, the withdrawal by its date, recalls by
+    the date opened (a clearance after `known_on` not yet known). status_on(known_by(f, K), D) is the
+    status of day D as someone reading the record on K would have given it; with K = D it is the
+    record as it stood that day, equal to status_on(f, D).
+    """
+    reviews = tuple(
+        rv if rv.cleared_on is None or rv.cleared_on <= known_on else replace(rv, cleared_on=None)
+        for rv in facts.reviews
+        if rv.opened_on <= known_on
+    )
+    return BatchFacts(
+        prepared_on=facts.prepared_on,
+        releases=tuple(r for r in facts.releases if r.released_on <= known_on),
+        rechecks=tuple(c for c in facts.rechecks if c.performed_on <= known_on),
+        withdrawn_on=facts.withdrawn_on if facts.withdrawn_on is not None and facts.withdrawn_on <= known_on else None,
+        reviews=reviews,
+    )
 
 
 def expiry_for(released_on: dt.date, policy: ReagentPolicy, prepared_on: dt.date | None = None) -> dt.date:

@@ -94,17 +94,84 @@ def concentrates_for(reagent: str | Titrant) -> tuple[Concentrate, ...]:
 # ---------------------------------------------------------------------------------------------------------
 # Cautions
 
-# Shown with every plan, whatever the reagent: a calculator that tells someone to handle concentrates shows
-# the usual cautions and defers to the documents that govern the lab (project rule; common practice).
+# Chosen by reagent and form: an acid concentrate, an oxidizing acid (nitric, perchloric), base pellets
+# or a base concentrate. A calculator that tells someone to handle these shows the usual cautions and
+# always ends by deferring to the documents that govern the lab (project rule; every line common practice).
+DEFER = (
+    "These are the usual cautions only: the reagent's safety data sheet, local regulations and the "
+    "institution's chemical hygiene plan take precedence."
+)
+
+ACID_CONCENTRATE = "acid concentrate"
+OXIDIZING_ACID = "oxidizing acid"
+BASE_PELLETS = "base pellets"
+BASE_CONCENTRATE = "base concentrate"
+OXIDIZING_ACIDS = ("HNO3", "HClO4")
+
+_ACID_TO_WATER = (
+    "Add acid to water, never the reverse: water poured onto a concentrated acid can boil and spatter; diluting "
+    "it is exothermic, so let the solution cool to room temperature before making up to volume (common practice)."
+)
+_ACID_HOOD = "Open, measure and dilute the concentrate in a fume hood: it gives off corrosive fumes (common practice)."
+_ACID_WEAR = (
+    "Wear chemical splash goggles and a face shield, acid-resistant gloves and a lab coat; know where the "
+    "eyewash and safety shower are (common practice)."
+)
+_OXIDIZER_WEAR = (
+    "Wear chemical splash goggles and a face shield, gloves of the material the safety data sheet names for "
+    "this acid (not every glove resists an oxidizing acid) and a lab coat; know where the eyewash and safety "
+    "shower are (common practice)."
+)
+_OXIDIZER = (
+    "It is a strong oxidizer: keep it away from organic matter, solvents, paper and wood, and take up spills "
+    "with water or an acid spill kit, never with paper towels or sawdust (common practice)."
+)
+_BASE_WEAR = (
+    "Wear chemical splash goggles and a face shield, alkali-resistant gloves (the safety data sheet names the "
+    "material) and a lab coat: strong bases harm the eyes within seconds and feel slippery rather than painful "
+    "on skin at first, so rinse any splash at once with plenty of water for at least 15 minutes and know where "
+    "the eyewash and safety shower are (common practice; from memory)."
+)
+_BASE_STORE = "Keep strong bases in polyethylene: they attack glass, and glass stoppers seize in the neck (common practice)."
+_PELLETS_DISSOLVE = (
+    "Add the pellets (or crystals) to the water a few at a time with stirring, never water onto the pellets: dissolving them "
+    "is strongly exothermic and the solution can boil and spatter. Stand the vessel in cold water and let it "
+    "cool to room temperature before making up to volume (common practice)."
+)
+_PELLETS_HANDLE = (
+    "Take pellets with a scoop or spatula, never by hand, and close the stock bottle at once: they take up water "
+    "and CO2 from the air and burn damp skin (common practice)."
+)
+_PELLETS_VESSEL = (
+    "Dissolve them in a heat-resistant (borosilicate) beaker or a polyethylene vessel in a fume hood or a "
+    "well-ventilated place, not in a volumetric flask or measuring cylinder: the heat can crack thick glass "
+    "and raise a caustic mist (common practice)."
+)
+_BASE_DILUTE = (
+    "Add the concentrate slowly to the water with stirring, never water onto the concentrate: diluting it is "
+    "strongly exothermic; let it cool to room temperature before making up to volume (common practice)."
+)
+_BASE_MEASURE = (
+    "The concentrate is dense and viscous: measure it with a pipette and a pipette filler (never by mouth) or by "
+    "weighing, behind a splash screen or in a fume hood, and wipe drips at once (common practice)."
+)
+
+_KIND_CAUTIONS: dict[str, tuple[str, ...]] = {
+    ACID_CONCENTRATE: (_ACID_TO_WATER, _ACID_HOOD, _ACID_WEAR),
+    OXIDIZING_ACID: (_ACID_TO_WATER, _ACID_HOOD, _OXIDIZER, _OXIDIZER_WEAR),
+    BASE_PELLETS: (_PELLETS_DISSOLVE, _PELLETS_HANDLE, _PELLETS_VESSEL, _BASE_WEAR, _BASE_STORE),
+    BASE_CONCENTRATE: (_BASE_DILUTE, _BASE_MEASURE, _BASE_WEAR, _BASE_STORE),
+}
+
+# Shown before a reagent is chosen: both families, each line saying which it concerns.
 CAUTIONS: tuple[str, ...] = (
-    "Add acid to water, never the reverse: water poured onto a concentrated acid can boil and spatter (common practice).",
+    "Acids: " + _ACID_TO_WATER[:1].lower() + _ACID_TO_WATER[1:],
+    "Bases (NaOH, KOH): add pellets or concentrate to the water in portions, never water onto them: dissolving "
+    "or diluting them is strongly exothermic; let the solution cool before making up to volume (common practice).",
     "Work in a fume hood when opening, measuring or diluting concentrates (common practice).",
-    "Wear goggles and a face shield, acid-resistant gloves and a lab coat when handling concentrates; "
-    "know where the eyewash and safety shower are (common practice).",
-    "Dissolving or diluting concentrated NaOH or KOH is strongly exothermic: add it in portions with "
-    "stirring and let the solution cool to room temperature before making up to volume (common practice).",
-    "These are the usual cautions only: the concentrate's safety data sheet, local regulations and the "
-    "institution's chemical hygiene plan take precedence.",
+    "Wear chemical splash goggles and a face shield, gloves resistant to the reagent (the safety data sheet "
+    "names the material) and a lab coat; know where the eyewash and safety shower are (common practice).",
+    DEFER,
 )
 
 _EXTRA_CAUTIONS: dict[str, tuple[str, ...]] = {
@@ -113,27 +180,46 @@ _EXTRA_CAUTIONS: dict[str, tuple[str, ...]] = {
         "let it cool between portions (common practice).",
     ),
     "HNO3": (
-        "Nitric acid is a strong oxidizer and gives off nitrogen oxides: keep it away from organic matter "
-        "and measure it only in the fume hood (common practice).",
+        "Nitric acid gives off nitrogen oxides, more so in light and warmth: measure it only in the fume hood and "
+        "keep it in the dark (common practice).",
     ),
     "HClO4": (
-        "Perchloric acid is a strong oxidizer: keep it away from organic matter and reducing agents, never "
-        "let it evaporate to dryness, and heat it only in a hood built for perchloric acid (common "
-        "practice; from memory — check the safety data sheet).",
+        "Perchloric acid: never let it evaporate to dryness, keep it from dehydrating agents such as "
+        "concentrated sulfuric acid, and heat it only in a hood built for perchloric acid (common practice; from "
+        "memory — check the safety data sheet).",
     ),
     "HCl": ("Concentrated hydrochloric acid fumes: open and measure it only in the fume hood (common practice).",),
-    "NaOH": ("Concentrated NaOH attacks glass and skin quickly: use plastic ware for it (common practice).",),
-    "KOH": ("Concentrated KOH attacks glass and skin quickly: use plastic ware for it (common practice).",),
+    "Ba(OH)2": (
+        "Barium compounds are harmful if swallowed: weigh barium hydroxide without raising dust and wash hands "
+        "after (common practice; from memory — check the safety data sheet).",
+    ),
 }
 
 
-def cautions_for(reagent: str | Titrant) -> tuple[str, ...]:
-    """The cautions shown with a plan for this reagent: the general ones, then any the reagent adds.
+def caution_kind(reagent: str | Titrant, form: str | None) -> str:
+    """Which family of cautions a reagent in a form needs: acid concentrate, oxidizing acid, base pellets or
+    base concentrate. form: "liquid", "solid", or None (a base then counts as pellets only when solid)."""
+    t = _titrant(reagent, [])
+    if t.role == ACID:
+        return OXIDIZING_ACID if t.key in OXIDIZING_ACIDS else ACID_CONCENTRATE
+    return BASE_PELLETS if form == SOLID else BASE_CONCENTRATE
 
-    reagent: titrant key, name or Titrant. Returns a tuple of sentences.
+
+def cautions_for(reagent: str | Titrant, form: str | None = None) -> tuple[str, ...]:
+    """The cautions shown with a plan for this reagent in this form, ending with the deferral to the rules.
+
+    reagent: titrant key, name or Titrant; form: "liquid" (a concentrate), "solid" (pellets or crystals),
+    or None when not yet known (a base then gets both its pellet and concentrate lines). Returns a
+    tuple of sentences: the family's, then the reagent's own, then DEFER.
     """
-    key = _titrant(reagent, []).key
-    return CAUTIONS + _EXTRA_CAUTIONS.get(key, ())
+    t = _titrant(reagent, [])
+    if form is None and t.role == BASE:
+        lines = _KIND_CAUTIONS[BASE_PELLETS] + tuple(
+            c for c in _KIND_CAUTIONS[BASE_CONCENTRATE] if c not in _KIND_CAUTIONS[BASE_PELLETS]
+        )
+    else:
+        lines = _KIND_CAUTIONS[caution_kind(t, form)]
+    return lines + _EXTRA_CAUTIONS.get(t.key, ()) + (DEFER,)
 
 
 # ---------------------------------------------------------------------------------------------------------
@@ -462,7 +548,7 @@ def preparation_plan(
         concentrate_molarity_mol_l=conc_mol_l,
         water_approx_l=water_l,
         instructions=tuple(steps),
-        cautions=cautions_for(t),
+        cautions=cautions_for(t, form),
         notes=tuple(notes),
     )
 
@@ -539,7 +625,7 @@ def adjustment_plan(
     assert c is not None and ct is not None and vol is not None and tol is not None
 
     deviation = c / ct - 1.0
-    cautions = cautions_for(t)
+    cautions = cautions_for(t, LIQUID)  # a dilute batch, and any concentrate added to it
     water = _base_water(t)
     notes: list[str] = []
     if abs(deviation) > 0.1:

@@ -16,9 +16,8 @@ from pypdf import PdfReader
 from stockroom import accounts, create_app, labday
 from stockroom import db as dbmod
 from stockroom.demo import build_demo
-from stockroom.drift import FlagKind
 from stockroom.errors import InvalidInput
-from stockroom.policy import BatchFacts, CheckFact, ReleaseFact, Status
+from stockroom.policy import BatchFacts, CheckFact, ReleaseFact, ReviewFact, Status, known_by, status_on
 
 D0 = dt.date(2026, 3, 1)
 
@@ -116,27 +115,170 @@ def test_bench_temperature_value_follows_the_titrants_density_by_default():
     assert err.value.errors[0].field == "bench_temperature_c"
 
 
-def test_prediction_uses_later_rechecks_and_flags_a_day_found_outside_in_hindsight():
+def test_a_past_days_trend_uses_the_standardizations_up_to_that_day_and_later_ones_are_learnt_later():
     # Invented: flat for three weeks, then two re-checks far below. On day 30 nothing showed a trend;
-    # read on day 46, the line through all five puts day 30 at about -0.64 %, outside ±0.5 %.
+    # read on day 46, the two later re-checks are beyond ±0.5 % and the line through all five puts
+    # day 30 at about -0.64 % (weighted fit by drift.fit_line).
     c0 = 0.1002
     checks = tuple(CheckFact(day(d), c0 * (1 + e), 5e-5) for d, e in ((10, -0.0003), (20, -0.0001), (40, -0.0100), (45, -0.0115)))
     b = record(releases=(rel(0, c0, interval=60),), rechecks=checks)
     then = labday.lab_day([b], day(30), day(30), "NaOH").entries[0]
     later = labday.lab_day([b], day(30), day(46), "NaOH").entries[0]
-    assert then.fit.n == 3 and not then.fit.significant and then.flags == ()
-    assert later.fit.n == 5 and later.fit.significant
+    assert then.fit.n == 3 and not then.fit.significant and then.flags == () and then.hold is None
+    assert then.use_molarity == c0 and then.learnt_later == ()
+    # Read later, the trend is still the one of the day (3 standardizations up to day 30) ...
+    assert later.fit.n == 3 and later.trend_through == day(30) and later.prediction == then.prediction
     assert later.status.status is Status.IN_SERVICE  # as it stood that day
-    assert [f.kind for f in later.flags] == [FlagKind.HINDSIGHT_OUTSIDE]
-    assert later.prediction.molarity / c0 - 1 == pytest.approx(-0.0064, abs=0.0002)
-    assert "probably outside tolerance that day" in later.plain[0]
-    assert later.advice.startswith("Results made with it that day may be off")
+    # ... and what came after is named with its date, and puts the day on hold.
+    kinds = [(item.on, item.kind) for item in later.learnt_later]
+    assert kinds == [
+        (day(40), labday.Later.RECHECK_OUTSIDE),
+        (day(45), labday.Later.RECHECK_OUTSIDE),
+        (day(45), labday.Later.TREND_OUTSIDE),
+    ]
+    assert later.learnt_later[0].what == (
+        "a re-check on 2026-04-10 found 0.09920 mol/L, -1.00 % from the certified value (tolerance ±0.50 %)"
+    )
+    trend = later.learnt_later[2].what
+    assert trend.startswith("the trend through the 5 standardizations up to 2026-04-15 puts 2026-03-31 at 0.099")
+    assert float(re.search(r"\(([-+]\d\.\d\d) %", trend).group(1)) == pytest.approx(-0.64, abs=0.02)
+    assert later.use_molarity is None and later.hold.startswith("A re-check on 2026-04-10 found 0.09920 mol/L")
+    assert later.advice.startswith("On hold: no value of this batch is to be used")
 
 
-def test_future_day_is_marked_and_extrapolated():
+def test_future_day_is_marked_and_extrapolated_from_what_is_known_today():
     b = record(releases=(rel(0),), rechecks=(CheckFact(day(7), 0.1001, 5e-5), CheckFact(day(14), 0.1000, 5e-5)))
     answer = labday.lab_day([b], day(30), day(15), "NaOH")
-    assert answer.future and answer.entries[0].known_on == day(30)
+    entry = answer.entries[0]
+    assert answer.future and not answer.past and entry.known_on == day(15) and entry.trend_through == day(15)
+    assert entry.fit.n == 3 and entry.prediction.on == day(30) and entry.learnt_later == ()
+
+
+# ---------------------------------------------------------------- hold and hindsight, as tables of facts
+
+
+def review(opened: int, cleared: int | None = None, rid: int = 1) -> ReviewFact:
+    return ReviewFact(
+        recall_id=7,
+        release_id=rid,
+        subject="primary-standard lot STD-KHP-009 (invented)",
+        suspect_from=day(-10),
+        opened_on=day(opened),
+        cleared_on=day(cleared) if cleared is not None else None,
+    )
+
+
+OUT = 0.1002 * 0.99  # -1.00 % from 0.1002: beyond ±0.5 %
+IN = 0.1002 * 0.999  # -0.10 %: inside
+
+# (name, facts, lab day, read on, hold starts with (None: no hold), learnt later as (day, kind)).
+# Invented scenarios; the rule is the module's (labday.standing): beyond tolerance that day, an open
+# recall review, or a later re-check of the same release beyond tolerance put a batch on hold.
+HOLD_TABLE = [
+    ("clean", {}, 20, 20, None, []),
+    ("clean read later", {"rechecks": (CheckFact(day(14), IN, 5e-5),)}, 10, 30, None, []),
+    (
+        "re-check out before the day",
+        {"rechecks": (CheckFact(day(14), OUT, 5e-5),)},
+        20,
+        20,
+        "Beyond tolerance: re-check on 2026-03-15",
+        [],
+    ),
+    ("re-check out after the day, read that day", {"rechecks": (CheckFact(day(14), OUT, 5e-5),)}, 10, 10, None, []),
+    (
+        "re-check out after the day, read today",
+        {"rechecks": (CheckFact(day(14), OUT, 5e-5),)},
+        10,
+        30,
+        "A re-check on 2026-03-15 found 0.09920 mol/L",
+        [(14, labday.Later.RECHECK_OUTSIDE)],
+    ),
+    (
+        "withdrawn a week later",
+        {"withdrawn_on": day(17)},
+        10,
+        30,
+        None,
+        [(17, labday.Later.WITHDRAWN)],
+    ),
+    ("review open that day", {"reviews": (review(5),)}, 10, 10, "Under recall review since 2026-03-06", []),
+    ("review opened later, read that day", {"reviews": (review(15),)}, 10, 10, None, []),
+    (
+        "review opened later, read today",
+        {"reviews": (review(15),)},
+        10,
+        30,
+        "Under recall review since 2026-03-16",
+        [(15, labday.Later.UNDER_REVIEW)],
+    ),
+    ("review cleared later, read that day", {"reviews": (review(5, cleared=15),)}, 10, 10, "Under recall review since", []),
+    (
+        "review cleared later, read today",
+        {"reviews": (review(5, cleared=15),)},
+        10,
+        30,
+        None,
+        [(15, labday.Later.REVIEW_CLEARED)],
+    ),
+    ("review of another release", {"reviews": (review(5, rid=99),)}, 10, 30, None, []),
+    (
+        "re-check out under a later release does not cover the day",
+        {"releases": (rel(0), rel(12, 0.1000, rid=2)), "rechecks": (CheckFact(day(14), 0.1000 * 0.99, 5e-5),)},
+        10,
+        30,
+        None,
+        [],
+    ),
+]
+
+
+@pytest.mark.parametrize("name,facts,on,read,hold,later", HOLD_TABLE, ids=[row[0] for row in HOLD_TABLE])
+def test_hold_and_what_was_learnt_later(name, facts, on, read, hold, later):
+    facts = {"releases": (rel(0, interval=60),), **facts}
+    entry = labday.lab_day([record(**facts)], day(on), day(read), "NaOH").entries[0]
+    if hold is None:
+        assert entry.hold is None and entry.use_molarity == entry.release.molarity
+    else:
+        assert entry.hold.startswith(hold) and entry.use_molarity is None
+    assert [(item.on, item.kind) for item in entry.learnt_later] == [(day(d), k) for d, k in later]
+    # "As known that day" is the same function with the day as the cut-off: nothing learnt later.
+    assert entry.that_day == labday.standing(entry.batch, day(on), day(on))
+    assert entry.current == labday.standing(entry.batch, day(on), day(read))
+    assert entry.that_day.later == ()
+
+
+def test_a_withdrawal_learnt_later_is_named_with_its_date_and_reason():
+    b = labday.BatchRecord(
+        code="NAOH-2603-01",
+        reagent="NaOH",
+        nominal_molarity=0.1,
+        facts=BatchFacts(prepared_on=day(-1), releases=(rel(0),), withdrawn_on=day(17)),
+        withdrawal_reason="diluted in error (invented)",
+    )
+    entry = labday.lab_day([b], day(10), day(30), "NaOH").entries[0]
+    assert entry.later_plain == ("Withdrawn on 2026-03-18: diluted in error (invented).",)
+    assert entry.status.status is Status.IN_SERVICE and entry.hold is None
+    assert entry.advice.startswith("Withdrawn after this day: ask the prep room whether its value still held on 2026-03-11")
+
+
+@given(on=days, read=days, withdraw=st.one_of(st.none(), days), check=st.integers(1, 80), opened=st.integers(0, 120))
+def test_the_day_as_it_stood_is_the_status_with_the_day_as_cut_off(on, read, withdraw, check, opened):
+    facts = BatchFacts(
+        prepared_on=day(-40),
+        releases=(rel(0, interval=30),),
+        rechecks=(CheckFact(day(check), OUT, 5e-5),),
+        withdrawn_on=day(withdraw) if withdraw is not None else None,
+        reviews=(review(opened),),
+    )
+    # policy.status_on ignores what is dated after the day, so cutting the facts at the day changes nothing.
+    assert status_on(known_by(facts, day(on)), day(on)) == status_on(facts, day(on))
+    # Reading later can only add to a day's answer, never take a day out of force.
+    then = labday.lab_day([record(**facts.__dict__)], day(on), day(on), "NaOH")
+    now = labday.lab_day([record(**facts.__dict__)], day(on), day(max(on, read)), "NaOH")
+    assert [e.batch.code for e in then.entries] == [e.batch.code for e in now.entries]
+    if now.entries and then.entries[0].hold is not None and then.entries[0].status.status is Status.DRIFTING:
+        assert now.entries[0].hold is not None
 
 
 def test_cautions_defer_to_the_chemical_hygiene_plan_and_name_strong_solutions():
@@ -277,6 +419,38 @@ def test_api_lists_batches_in_force_with_the_fields_asked_for(client):
     assert one["flags"][0]["kind"] == "recheck_overdue"
 
 
+def test_api_every_batch_carries_use_molarity_and_hold(client):
+    # The JSON contract (README, JSON API): use_molarity in mol/L or null, hold null or the reason in words.
+    body = client.get(f"/api/v1/lab-day?date={TODAY}&titrant=NaOH&bench_temperature_c=23").get_json()
+    held, ok = body["batches"]
+    assert held["batch_id"] == "NAOH-2610-01" and held["use_molarity"] is None and held["use_temperature_c"] is None
+    assert held["hold"] == (
+        "Beyond tolerance: re-check on 2026-11-28 differs from the certified value by -0.69 % (tolerance ±0.50 %)."
+    )
+    # For reference only: the certified value, the latest re-check and the prediction stay in the answer.
+    assert held["latest_recheck"]["on"] == "2026-11-28"
+    assert held["latest_recheck"]["molarity"] / held["molarity"] - 1 == pytest.approx(-0.0069, abs=5e-5)
+    assert held["latest_recheck"]["U"] == pytest.approx(2 * held["latest_recheck"]["u"])  # GUM: U = k·u, k = 2
+    assert ok["hold"] is None and ok["use_molarity"] == ok["molarity_at_bench"] and ok["use_temperature_c"] == 23
+    plain = client.get(f"/api/v1/lab-day?date={TODAY}&titrant=HCl").get_json()
+    assert all(b["hold"] is None and b["use_molarity"] == b["molarity"] for b in plain["batches"])
+    assert all(b["use_temperature_c"] == 20 for b in plain["batches"])
+    for b in body["batches"] + plain["batches"]:
+        assert set(b) >= {"use_molarity", "hold", "learnt_later", "latest_recheck"}
+
+
+def test_past_day_page_shows_the_record_that_day_and_what_was_learnt_later(client):
+    earlier = (TODAY - dt.timedelta(days=12)).isoformat()
+    html = client.get(f"/lab-day?date={earlier}&titrant=NaOH").get_data(as_text=True)
+    held = html.split('id="entry-NAOH-2610-01"')[1].split("</section>")[0]
+    assert "chip chip-in_service" in held  # as it stood that day
+    assert "Learnt after 2026-11-19" in held and "A re-check on 2026-11-28 found 0.09965 mol/L" in held
+    assert "On hold: no value of NAOH-2610-01 is to be used for 2026-11-19." in held
+    assert "For reference, not for use" in held and "Use this value" not in held
+    assert "through the 4 standardizations made up to 2026-11-19 (the trend as it stood that day)" in held
+    assert 'id="labday-as-known"' in html
+
+
 def test_api_without_bench_temperature_leaves_bench_fields_out(client):
     body = client.get(f"/api/v1/lab-day?date={TODAY}&titrant=hydrochloric acid").get_json()
     assert body["titrant"] == "HCl" and len(body["batches"]) == 2
@@ -314,10 +488,13 @@ def test_api_bad_question_is_422_naming_the_field(client, query, field):
 def test_page_shows_value_bench_value_prediction_and_flags(client):
     html = client.get(f"/lab-day?date={TODAY}&titrant=NaOH&bench_temperature_c=23").get_data(as_text=True)
     assert "Titrants for the lab day 2026-12-01" in html
-    assert html.count('class="panel labday-entry"') == 2
-    assert "Ask the prep room before use" in html
+    assert html.count('class="panel labday-entry') == 2 and html.count("labday-held") == 1
+    assert "On hold: no value of NAOH-2610-01 is to be used for 2026-12-01." in html
     assert "Re-check on 2026-11-28 differs from the certified value by -0.69 %" in html
-    assert re.search(r'labday-bench">0\.100\d\d mol/L', html)
+    # Only the batch not on hold offers a value to use (the 1 mol/L one, at the bench temperature).
+    assert len(re.findall(r'class="plan-value labday-use labday-bench">0\.99\d\d mol/L', html)) == 1
+    assert "Use this value" in html.split('id="entry-NAOH-2611-01"')[1]
+    assert "Use this value" not in html.split('id="entry-NAOH-2610-01"')[1].split('id="entry-NAOH-2611-01"')[0]
     assert "chemical hygiene plan" in html
     empty = client.get("/lab-day?date=2001-01-01&titrant=NaOH").get_data(as_text=True)
     assert "No NaOH batch was in force on 2001-01-01." in empty
@@ -332,7 +509,7 @@ def test_sheet_pdf_lists_the_batches_and_the_cautions(client):
     assert "NaOH for the lab day 2026-12-01" in text
     assert "NAOH-2610-01" in text and "NAOH-2611-01" in text
     assert "chemical hygiene plan" in text
-    assert "Ask the prep room" in text
+    assert "Ask the prep room" in text and "ON HOLD" in text and "Use this value" not in text
 
 
 def test_drift_chart_is_served_as_svg(client):
@@ -405,6 +582,20 @@ def test_correction_needs_a_batch_when_several_were_in_force(demo_app):
     assert ok.status_code == 303
 
 
+def test_correction_refuses_a_batch_on_hold_unless_another_is_named(demo_app):
+    c = signed_in(demo_app, "demo-instructor")
+    conn = dbmod.connect(demo_app.config["DATABASE"])
+    before = conn.execute("SELECT count(*) FROM class_corrections").fetchone()[0]
+    r = _upload(c, titrant="NaOH", batch="NAOH-2610-01")
+    html = r.get_data(as_text=True)
+    assert r.status_code == 422
+    assert "NAOH-2610-01 is on hold for 2026-12-01, so it gives no value to correct with." in html
+    assert "name another batch in force that day: NAOH-2611-01" in html
+    assert conn.execute("SELECT count(*) FROM class_corrections").fetchone()[0] == before
+    conn.close()
+    assert _upload(c, titrant="NaOH", batch="NAOH-2611-01").status_code == 303
+
+
 def test_correction_refuses_a_bad_file_by_line_and_records_nothing(demo_app):
     c = signed_in(demo_app, "demo-instructor")
     conn = dbmod.connect(demo_app.config["DATABASE"])
@@ -445,5 +636,29 @@ def test_dashboard_lists_a_batch_expected_to_leave_tolerance_among_those_needing
     assert kinds[0] == "expected_to_leave"
     # Read with the later re-checks (the server's today is after the demo's last one), the line through all
     # five points puts that day already outside the band: the look-back says so.
+    assert kinds == ["expected_to_leave"]  # the day's own flags
+    # Read with the later re-checks (the server's today is after the demo's last one), what came after the
+    # day is named with its date, and the 2026-11-28 re-check beyond tolerance puts the day on hold.
     if body["known_on"] >= TODAY.isoformat():
-        assert kinds == ["expected_to_leave", "outside_in_hindsight"]
+        later = [(x["on"], x["kind"]) for x in drifting["learnt_later"]]
+        assert later == [("2026-11-28", "recheck_outside"), ("2026-11-28", "trend_outside")]
+        assert drifting["use_molarity"] is None and drifting["hold"].startswith("A re-check on 2026-11-28 found")
+        assert drifting["trend"]["points"] == 4 and drifting["trend"]["standardizations_up_to"] == earlier.isoformat()
+
+
+def test_sheet_of_a_held_batch_gives_no_value_to_use_and_says_why():
+    # Invented: a re-check 1 % below the certified value, 4 days before the lab day.
+    from stockroom.pdf.labday_sheet import labday_sheet_pdf
+
+    b = record(releases=(rel(0, interval=60),), rechecks=(CheckFact(day(6), OUT, 5e-5),))
+    answer = labday.lab_day([b], day(10), day(10), "NaOH")
+    pdf = labday_sheet_pdf(answer, printed_on=day(10))
+    text = " ".join(" ".join(p.extract_text().split()) for p in PdfReader(io.BytesIO(pdf)).pages)
+    assert "Use this value" not in text
+    use_box = text.split("ON HOLD")[1].split("For reference, not for use")[0]
+    assert use_box.startswith(" No value to use for 2026-03-11. Beyond tolerance: re-check on 2026-03-07 differs")
+    assert "(tolerance ±0.50 %)." in use_box
+    # No molarity in the use box: the one figure with a unit there is the tolerance, a percentage.
+    assert "mol/L" not in use_box
+    # The certified value (0.1002 ± 0.0001 mol/L) comes only after the reference label.
+    assert text.index("0.10020") > text.index("For reference, not for use")

@@ -41,6 +41,7 @@ def _styles() -> dict[str, ParagraphStyle]:
         "cell": ParagraphStyle("cell", parent=body, fontSize=9, leading=11.5),
         "head": ParagraphStyle("head", parent=body, fontName="Helvetica-Bold", fontSize=8.5, leading=10.5, textColor=MUTED),
         "value": ParagraphStyle("value", parent=body, fontName="Helvetica-Bold", fontSize=12.5, leading=15),
+        "hold": ParagraphStyle("hold", parent=body, fontName="Helvetica-Bold", fontSize=12.5, leading=15, textColor=BAD),
         "flag": ParagraphStyle("flag", parent=body, fontSize=8.5, leading=11, textColor=BAD),
         "note": ParagraphStyle("note", parent=body, fontSize=8, leading=10.5, textColor=MUTED),
         "reason": ParagraphStyle("reason", parent=body, fontName="Helvetica-Bold", fontSize=12, leading=16),
@@ -50,32 +51,48 @@ def _styles() -> dict[str, ParagraphStyle]:
 def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[object]:
     r = e.release
     t = chemistry.titrant(e.batch.reagent)
-    use = e.molarity_at_bench if e.molarity_at_bench is not None else r.molarity
-    use_note = f"at the bench, {fmt.temperature(e.bench_temperature_c)}" if e.molarity_at_bench is not None else "at 20 °C"
+    reference = "<b>For reference, not for use:</b><br/>" if e.hold else ""
     certified = (
-        f"{fmt.molarity(r.molarity, r.U)}<br/>{fmt.coverage(r.k)}, at 20 °C<br/>"
+        f"{reference}{fmt.molarity(r.molarity, r.U)}<br/>{fmt.coverage(r.k)}, at 20 °C<br/>"
         f"released {r.released_on.isoformat()}<br/>expires {r.expires_on.isoformat()}"
     )
+    if e.hold and e.latest_recheck is not None:
+        c = e.latest_recheck
+        certified += f"<br/>latest re-check {fmt.value_at(c.molarity, r.U, 'mol/L')} on {c.on.isoformat()}"
     if e.prediction is not None:
         p = e.prediction
         # Derived figures read to the place the certified value's U sets, like the value itself.
         trend = (
-            f"{fmt.value_at(p.molarity, r.U, 'mol/L')}<br/>{fmt.percent(p.confidence, 0)} interval "
+            f"{reference}{fmt.value_at(p.molarity, r.U, 'mol/L')}<br/>{fmt.percent(p.confidence, 0)} interval "
             f"{fmt.value_at(p.pi_low, r.U, '')} to {fmt.value_at(p.pi_high, r.U, 'mol/L')}"
         )
         if e.fit is not None:
-            trend += f"<br/>{e.fit.n} standardizations to {e.fit.last_on.isoformat()}"
+            trend += f"<br/>{e.fit.n} standardizations made up to {e.trend_through.isoformat()}"
     else:
         trend = "no trend yet"
+    if e.hold:
+        # No figure in the box a reader copies from: the hold and its reason take its place.
+        use: list[object] = [
+            Paragraph("ON HOLD", st["hold"]),
+            Paragraph(f"No value to use for {e.on.isoformat()}. {escape(e.hold)}", st["flag"]),
+        ]
+    else:
+        assert e.use_molarity is not None
+        use_note = f"at the bench, {fmt.temperature(e.bench_temperature_c)}" if e.molarity_at_bench is not None else "at 20 °C"
+        use = [Paragraph(fmt.value_at(e.use_molarity, r.U, "mol/L"), st["value"]), Paragraph(use_note, st["note"])]
     notes = [escape(s) for s in e.plain]
+    if e.on < e.known_on:
+        notes = [f"<i>That day:</i> {n}" for n in notes] or ["<i>That day:</i> nothing to report."]
+        later = [escape(s) for s in e.later_plain] or ["nothing recorded since."]
+        notes.append(f"<i>Learnt after {e.on.isoformat()}:</i> " + " ".join(later))
     advice = e.advice
     if advice:
         notes.insert(0, f"<b>{escape(advice)}</b>")
     flag_text = "<br/>".join(notes) if notes else "In service; nothing to report."
-    style = st["flag"] if e.flags or advice else st["cell"]
+    style = st["flag"] if e.flags or advice or e.learnt_later else st["cell"]
     return [
         Paragraph(f"<b>{escape(e.batch.code)}</b><br/>{escape(t.name)}, {e.batch.nominal_molarity:g} mol/L nominal", st["cell"]),
-        [Paragraph(fmt.value_at(use, r.U, "mol/L"), st["value"]), Paragraph(use_note, st["note"])],
+        use,
         Paragraph(certified, st["cell"]),
         Paragraph(trend, st["cell"]),
         Paragraph(flag_text, style),
@@ -132,6 +149,12 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
     sub += "."
     if day.future:
         sub += " The day is ahead: flags assume no new standardization before then."
+    if day.past:
+        sub += (
+            f" A past day: each batch shows the record as it stood on {day.on.isoformat()} (its trend through the "
+            f"standardizations made up to then), and what was learnt after it up to {printed_on.isoformat()}. "
+            "A batch on hold gives no value to use."
+        )
     story += [Paragraph(escape(sub), st["sub"]), Spacer(1, 5 * mm)]
     if not day.entries:
         story.append(Paragraph(escape(day.headline or "No titrant batch was in force that day."), st["reason"]))
@@ -139,7 +162,7 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
             story.append(Paragraph(escape(day.detail), st["body"]))
     else:
         head = [
-            Paragraph(h, st["head"]) for h in ("Batch", "Use this value", "Certified value", "Trend prediction that day", "Flags")
+            Paragraph(h, st["head"]) for h in ("Batch", "Value to use", "Certified value", "Trend prediction that day", "Flags")
         ]
         table = Table(
             [head] + [_row(e, st) for e in day.entries], repeatRows=1, colWidths=[28 * mm, 36 * mm, 41 * mm, 33 * mm, None]
@@ -162,8 +185,9 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
             Spacer(1, 4 * mm),
             Paragraph(
                 "Trend prediction: a weighted straight line through the batch's standardizations since its release, "
-                "with the interval a new re-check on that day would be expected to fall in. The certified value is "
-                "the one to use; the trend tells whether it still holds.",
+                "with the interval a new re-check on that day would be expected to fall in. The value to use is the "
+                "certified one (at the bench temperature when given); the trend tells whether it still holds. A batch "
+                "on hold (beyond tolerance, or under a recall's review) has none.",
                 st["note"],
             ),
         ]

@@ -59,10 +59,21 @@ def load_batches(db: sqlite_utils.Database, titrant: str | None, day: dt.date | 
     rows = dbmod.query(db, sql + " ORDER BY code", params)
     if not rows:
         return []
-    facts = readmodel.facts_of(db, [r["id"] for r in rows])
+    ids = [r["id"] for r in rows]
+    facts = readmodel.facts_of(db, ids)
+    # The withdrawal's reason, for a past day's "withdrawn on D: why" (BatchFacts keeps only the date).
+    marks = ",".join("?" * len(ids))
+    reasons: dict[int, str] = {}
+    for w in dbmod.query(db, f"SELECT batch_id, reason FROM withdrawals WHERE batch_id IN ({marks}) ORDER BY id", ids):
+        reasons.setdefault(w["batch_id"], w["reason"])
     return [
         ld.BatchRecord(
-            code=r["code"], reagent=r["reagent"], nominal_molarity=float(r["nominal_molarity"]), facts=facts[r["id"]], id=r["id"]
+            code=r["code"],
+            reagent=r["reagent"],
+            nominal_molarity=float(r["nominal_molarity"]),
+            facts=facts[r["id"]],
+            id=r["id"],
+            withdrawal_reason=reasons.get(r["id"]),
         )
         for r in rows
     ]
@@ -194,14 +205,26 @@ def _iso(d: dt.date | None) -> str | None:
     return d.isoformat() if d else None
 
 
+def _point_json(p: Any) -> dict[str, Any] | None:
+    return None if p is None else {"on": p.on.isoformat(), "molarity": p.molarity, "u": p.u, "k": p.k, "U": p.k * p.u}
+
+
 def entry_json(e: ld.LabDayEntry, bench_asked: bool) -> dict[str, Any]:
-    """One batch of the lab-day answer as JSON-ready values (mol/L, dates ISO)."""
+    """One batch of the lab-day answer as JSON-ready values (mol/L, dates ISO).
+
+    use_molarity is the value to use (mol/L, at use_temperature_c), or null when the batch is on hold,
+    with hold the reason in words; molarity (certified), predicted_molarity and latest_recheck are for
+    reference. status and flags are the day's own record; learnt_later what was recorded after it.
+    """
     r = e.release
     body: dict[str, Any] = {
         "batch_id": e.batch.code,
         "titrant": e.batch.reagent,
         "nominal_molarity": e.batch.nominal_molarity,
         "unit": "mol/L",
+        "use_molarity": e.use_molarity,
+        "use_temperature_c": e.use_temperature_c if e.use_molarity is not None else None,
+        "hold": e.hold,
         "release_id": r.id,
         "molarity": r.molarity,
         "u": r.u,
@@ -213,6 +236,7 @@ def entry_json(e: ld.LabDayEntry, bench_asked: bool) -> dict[str, Any]:
         "tolerance_rel": r.tolerance_rel,
         "status": e.status.status.value,
         "status_label": e.status.status.label,
+        "latest_recheck": _point_json(e.latest_recheck),
         "predicted_molarity": e.prediction.molarity if e.prediction else None,
         "prediction_interval": (
             {"low": e.prediction.pi_low, "high": e.prediction.pi_high, "confidence": e.prediction.confidence}
@@ -222,12 +246,14 @@ def entry_json(e: ld.LabDayEntry, bench_asked: bool) -> dict[str, Any]:
         "trend": None,
         "trend_note": e.fit_note,
         "flags": [{"kind": f.kind.value, "message": f.message, "date": _iso(f.date)} for f in e.flags],
+        "learnt_later": [{"on": item.on.isoformat(), "kind": item.kind.value, "what": item.what} for item in e.learnt_later],
     }
     if e.fit is not None:
         lo, hi = e.fit.slope_per_period_ci
         body["trend"] = {
             "points": e.fit.n,
             "through": e.fit.last_on.isoformat(),
+            "standardizations_up_to": e.trend_through.isoformat(),
             "slope_per_30_days": e.fit.slope_per_period,
             "slope_per_30_days_ci": [lo, hi],
             "confidence": e.fit.confidence,
@@ -312,6 +338,20 @@ def _correct_form(
     ), status
 
 
+def _held_message(entry: ld.LabDayEntry, choices: list[ld.LabDayEntry]) -> str:
+    """Why a batch on hold cannot correct results, and which batches of the day could."""
+    others = [e.batch.code for e in choices if e is not entry and e.hold is None]
+    then = (
+        "name another batch in force that day: " + ", ".join(others)
+        if others
+        else "no other batch of this titrant was in force that day, so these results cannot be corrected here"
+    )
+    return (
+        f"{entry.batch.code} is on hold for {entry.on.isoformat()}, so it gives no value to correct with. "
+        f"{entry.hold} To go on, {then}"
+    )
+
+
 @bp.route("/lab-day/correct", methods=["GET", "POST"])
 @require("classdata.correct")
 def correct() -> Any:
@@ -357,6 +397,9 @@ def correct() -> Any:
             )
         else:
             entry = choices[0]
+        if entry is not None and entry.hold is not None:
+            p.error("batch", _held_message(entry, choices))
+            entry = None
     upload = request.files.get("sheet")
     problems: list[tuple[int, str]] = []
     raw = b""
@@ -378,7 +421,8 @@ def correct() -> Any:
     if not p.ok:
         return _correct_form(form, InvalidInput(p.errors).fields, problems, choices, 422)
     assert entry is not None and day is not None and sheet is not None and upload is not None
-    molarity_used = entry.molarity_at_bench if entry.molarity_at_bench is not None else entry.release.molarity
+    molarity_used = entry.use_molarity
+    assert molarity_used is not None  # a batch on hold was refused above
     user = current_user()
     assert user is not None
     cid = records.record_correction(

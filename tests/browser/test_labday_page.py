@@ -38,10 +38,14 @@ def test_look_up_a_lab_day_with_the_bench_temperature(page, demo_server, screens
     assert drifting.locator(".chip").inner_text() == "Drifting"
     certified = drifting.locator(".labday-certified").inner_text()
     assert re.fullmatch(r"0\.10\d{3} ± 0\.000\d\d mol/L \(k = 2\)", certified)
-    bench = _number(drifting.locator(".labday-bench").inner_text())
-    # QUAM:2012 linear model, 3 K above 20 °C; the page rounds both figures to 5 decimals.
-    assert bench == pytest.approx(_number(certified) * (1 - 2.1e-4 * 3), abs=1.1e-5)
-    assert "Ask the prep room before use" in drifting.inner_text()
+    # Beyond tolerance: on hold, so no value to use and no bench value, the reason in words.
+    assert drifting.locator(".labday-use, .labday-bench").count() == 0
+    assert "On hold: no value of" in drifting.locator(".labday-hold").inner_text()
+    other = entries.nth(1)
+    bench = _number(other.locator(".labday-bench").inner_text())
+    other_certified = other.locator(".labday-certified").inner_text()
+    # QUAM:2012 linear model, 3 K above 20 °C; the page rounds both figures to 4 decimals (U to 2 figures).
+    assert bench == pytest.approx(_number(other_certified) * (1 - 2.1e-4 * 3), abs=1.1e-4)
     assert "differs from the certified value by -0.69 %" in drifting.locator(".labday-flags").inner_text()
     predicted = _number(drifting.locator(".labday-predicted").inner_text())
     assert predicted < _number(certified) * 0.995  # its trend is below the band
@@ -64,6 +68,25 @@ def test_look_up_a_lab_day_with_the_bench_temperature(page, demo_server, screens
     page.click("form.panel button[type=submit]")
     page.wait_for_load_state()
     assert page.locator("#e-bench_temperature_c").inner_text() == "must be between 5 and 40 °C"
+
+
+@pytest.mark.parametrize("width", [1366, 390])
+def test_a_held_batch_gives_no_value_to_use_at_desktop_and_phone_width(page, demo_server, screenshot, width):
+    page.set_viewport_size({"width": width, "height": 900})
+    page.goto(demo_server + "/lab-day?titrant=NaOH")
+    held = page.locator("section.labday-held")
+    assert held.count() == 1
+    hold = held.locator(".labday-hold")
+    assert hold.is_visible()
+    assert "beyond tolerance" in hold.locator(".labday-hold-reason").inner_text().lower()
+    assert held.locator(".labday-use").count() == 0 and "Use this value" not in held.inner_text()
+    assert held.locator(".labday-reference-title").inner_text() == "For reference, not for use"
+    # The hold box lies within the window (nothing to scroll sideways to find it) and above the reference figures.
+    box = hold.bounding_box()
+    assert box["x"] >= 0 and box["x"] + box["width"] <= width
+    assert page.evaluate("document.documentElement.scrollWidth") <= width
+    assert box["y"] < held.locator(".labday-reference").bounding_box()["y"]
+    screenshot(page, f"labday-held-{width}")
 
 
 def test_batch_page_shows_the_drift_chart(page, demo_server, screenshot):
