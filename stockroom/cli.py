@@ -357,7 +357,7 @@ def set_password(name: str, db_path: str | None) -> None:
         user = accounts.set_password(conn, name, password, _cli_actor())
     finally:
         conn.close()
-    click.echo(f"password of {user.username} changed; its sessions have ended")
+    click.echo(f"password of {user.username} changed; its sessions and API tokens have ended")
 
 
 # ---------------------------------------------------------------- labels and certificates
