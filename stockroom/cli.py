@@ -451,14 +451,16 @@ def _open_for_reading(path: str) -> sqlite_utils.Database:
     if target.is_dir():
         raise click.ClickException(f"{target} is a folder; --db names the database file")
     if not target.is_file():
-        raise click.ClickException(f"no database at {target}; name the database file with --db")
+        raise click.ClickException(
+            f"no database at {target}; create it with `stockroom init-db --db {target}` or name another with --db"
+        )
     try:
         with target.open("rb") as f:
             header = f.read(16)
     except OSError as exc:
         raise click.ClickException(_os_message(exc)) from None
     if header != b"SQLite format 3\x00":
-        raise click.ClickException(f"{target} is not a SQLite database (not a stockroom database file)")
+        raise click.ClickException(f"{target} is not a readable SQLite database (not a stockroom database file)")
     version = _schema_of_existing(target)
     if version == 0:
         raise click.ClickException(f"{target} is not a stockroom database (it has no schema)")

@@ -27,7 +27,7 @@ BUSY_TIMEOUT_MS = 10_000
 
 
 def connect(path: str | Path) -> sqlite_utils.Database:
-    """Open the database file with stockroom's pragmas (WAL, foreign keys, busy timeout, NORMAL sync)."""
+    """Open the database file with stockroom's pragmas (WAL, foreign keys, busy timeout, FULL sync)."""
     Path(path).parent.mkdir(parents=True, exist_ok=True)
     conn = sqlite3.connect(str(path), timeout=BUSY_TIMEOUT_MS / 1000, check_same_thread=False)
     # Autocommit at the driver level: transactions are only the explicit ones below and atomic().
@@ -38,7 +38,7 @@ def connect(path: str | Path) -> sqlite_utils.Database:
     mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
     if mode.lower() != "wal" and str(path) != ":memory:":
         raise RuntimeError(f"could not switch {path} to WAL journal mode (got {mode})")
-    conn.execute("PRAGMA synchronous = NORMAL")
+    conn.execute("PRAGMA synchronous = FULL")  # an acknowledged write survives power loss (README: durability)
     return sqlite_utils.Database(conn, execute_plugins=False)
 
 

@@ -21,7 +21,7 @@ def test_pragmas_on_every_connection(tmp_path):
     conn = dbmod.connect(tmp_path / "a.db")
     assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
     assert conn.execute("PRAGMA foreign_keys").fetchone()[0] == 1
-    assert conn.execute("PRAGMA synchronous").fetchone()[0] == 1  # NORMAL
+    assert conn.execute("PRAGMA synchronous").fetchone()[0] == 2  # FULL (README: durability)
     assert conn.execute("PRAGMA busy_timeout").fetchone()[0] == dbmod.BUSY_TIMEOUT_MS
 
 

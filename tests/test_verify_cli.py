@@ -55,7 +55,7 @@ def test_a_clean_database_verifies_and_says_what_it_checked(demo_db, tmp_path):
     "kind, make, words",
     [
         ("missing", lambda p: None, "no database at"),
-        ("text", lambda p: p.write_text("batch,molarity\nHCL-1,0.1\n"), "is not a SQLite database"),
+        ("text", lambda p: p.write_text("batch,molarity\nHCL-1,0.1\n"), "is not a readable SQLite database"),
         ("foreign", lambda p: sqlite3.connect(p).execute("CREATE TABLE t (x)").connection.commit(), "not a stockroom database"),
         (
             "migrations only",
