@@ -303,8 +303,8 @@ def apply_restore(checked: CheckedRestore, target: str | Path, *, key_file: str 
         if not place.exists() and Path(key_file).resolve() != place.resolve():
             place.parent.mkdir(parents=True, exist_ok=True)
             fd = os.open(place, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
-            with os.fdopen(fd, "wb") as out:
-                out.write(Path(key_file).read_bytes())
+            with os.fdopen(fd, "wb") as key_out:
+                key_out.write(Path(key_file).read_bytes())
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
         src = sqlite3.connect(checked.staged)
