@@ -5,6 +5,8 @@ API NOTE (agreed with the anchors work; change it only with a note here):
     verify(db, *, anchors=(), key_file=None) -> Report   (Report.ok, .problems, .checked, .notes)
     head_log_anchors(db) -> list[(entry_id, mac)]       (the head log beside the key, read back)
     key_file_for(db) / head_log_for(db) -> Path | None; use_key_file(database, key_file) for TRAIL_KEY_FILE
+    (create_app calls it; the README settings table needs a TRAIL_KEY_FILE row for tests/test_docs.py).
+    A copy of the database verifies only with its key: a backup must carry or name the key file.
 
 Every write appends one entry whose MAC covers the entry before it and the content of the record rows
 it wrote or changed: the entry names each row (table, id) with a SHA-256 of its canonical content
