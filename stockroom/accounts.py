@@ -22,7 +22,7 @@ import sqlite_utils
 from werkzeug.security import check_password_hash, generate_password_hash
 
 from stockroom import db as dbmod
-from stockroom import records
+from stockroom import records, tokens
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound, StockroomError
 
 # ---------------------------------------------------------------- roles and permissions
@@ -348,7 +348,7 @@ def change_password(
     *,
     now: dt.datetime | None = None,
 ) -> User:
-    """Change one's own password given the current one; every existing session of the user ends.
+    """Change one's own password given the current one; every session and live API token of the user ends.
 
     A wrong current password counts as a failed sign-in (same lock-out). InvalidInput names the
     field (current_password or new_password); SignInLocked while attempts are paused.
@@ -376,13 +376,14 @@ def change_password(
     with dbmod.write(db):
         _store_password(db, row["id"], password_hash)
         records.append_event(db, row["username"], "account.password_change", entity="users", entity_id=row["id"])
+        tokens.revoke_all_for(db, row["id"], row["username"], "password changed")
     found = user_by_id(db, row["id"])
     assert found is not None
     return found
 
 
 def set_password(db: sqlite_utils.Database, username: str, new: str, actor: str) -> User:
-    """Set a user's password without the current one (administrator or command line); ends their sessions."""
+    """Set a user's password without the current one (administrator or command line); ends their sessions and tokens."""
     row = _user_row(db, username)
     if row is None:
         raise NotFound(f"no user named {username!r}")
@@ -395,6 +396,7 @@ def set_password(db: sqlite_utils.Database, username: str, new: str, actor: str)
         records.append_event(
             db, actor, "account.password_reset", entity="users", entity_id=row["id"], detail={"username": row["username"]}
         )
+        tokens.revoke_all_for(db, row["id"], actor, f"password of {row['username']} reset")
     found = user_by_id(db, row["id"])
     assert found is not None
     return found

@@ -357,7 +357,7 @@ def set_password(name: str, db_path: str | None) -> None:
         user = accounts.set_password(conn, name, password, _cli_actor())
     finally:
         conn.close()
-    click.echo(f"password of {user.username} changed; its sessions have ended")
+    click.echo(f"password of {user.username} changed; its sessions and API tokens have ended")
 
 
 # ---------------------------------------------------------------- labels and certificates
@@ -437,39 +437,168 @@ def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> No
 # ---------------------------------------------------------------- integrity, backup and restore
 
 
+def _open_for_reading(path: str) -> sqlite_utils.Database:
+    """Open an existing stockroom database read-only, at this version's schema; anything else is one line.
+
+    A missing file, a folder, a file that is not SQLite, a SQLite file that is not stockroom's and one
+    whose schema is older or newer than this stockroom's are each refused, and nothing is created or
+    changed: verify reads only.
+    """
+    from stockroom import backup
+    from stockroom.schema import SCHEMA_VERSION
+
+    target = Path(path)
+    if target.is_dir():
+        raise click.ClickException(f"{target} is a folder; --db names the database file")
+    if not target.is_file():
+        raise click.ClickException(
+            f"no database at {target}; create it with `stockroom init-db --db {target}` or name another with --db"
+        )
+    try:
+        with target.open("rb") as f:
+            header = f.read(16)
+    except OSError as exc:
+        raise click.ClickException(_os_message(exc)) from None
+    if header != b"SQLite format 3\x00":
+        raise click.ClickException(f"{target} is not a readable SQLite database (not a stockroom database file)")
+    version = _schema_of_existing(target)
+    if version == 0:
+        raise click.ClickException(f"{target} is not a stockroom database (it has no schema)")
+    conn = sqlite3.connect(f"file:{target.resolve()}?mode=ro", uri=True)
+    conn.row_factory = sqlite3.Row
+    import sqlite_utils
+
+    db = sqlite_utils.Database(conn, execute_plugins=False)
+    try:
+        tables = {str(r[0]) for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+    except sqlite3.DatabaseError as exc:
+        db.close()
+        raise click.ClickException(f"{target} is not a readable SQLite database ({exc})") from None
+    missing = [t for t in backup.CORE_TABLES if t not in tables]
+    if missing:
+        db.close()
+        raise click.ClickException(f"{target} is not a stockroom database (it has no {', '.join(missing)} tables)")
+    if version > SCHEMA_VERSION:
+        db.close()
+        raise click.ClickException(
+            f"{target} has a newer schema ({version}) than this stockroom ({SCHEMA_VERSION}); upgrade stockroom"
+        )
+    if version < SCHEMA_VERSION:
+        db.close()
+        raise click.ClickException(
+            f"{target} is at schema version {version}, this stockroom's is {SCHEMA_VERSION}: bring it up to date with "
+            f"`stockroom init-db --db {target}` first (verify changes nothing)"
+        )
+    return db
+
+
+def _parse_anchor(text: str) -> tuple[int, str]:
+    entry, sep, mac = text.strip().partition(":")
+    mac = mac.strip().lower()
+    if not sep or not entry.strip().isdigit() or len(mac) < 16 or any(c not in "0123456789abcdef" for c in mac):
+        raise click.BadParameter(
+            f"{text!r}: give the entry id and at least 16 hex digits of its MAC, as a certificate's footer "
+            "prints them (41:3fa2...)",
+            param_hint="--anchor",
+        )
+    return int(entry), mac
+
+
+def _widen(db: sqlite_utils.Database, entry_id: int, mac: str) -> str:
+    """A certificate prints 16 hex digits of the MAC: take the entry's full MAC when it begins with them."""
+    if len(mac) >= 64:
+        return mac
+    row = db.execute("SELECT hash FROM events WHERE id = ?", [entry_id]).fetchone()
+    return str(row[0]) if row is not None and str(row[0]).startswith(mac) else mac
+
+
+def _plural(n: int, noun: str) -> str:
+    if n == 1:
+        return f"1 {noun}"
+    if noun.endswith(("ch", "sh", "s", "x")):
+        return f"{n} {noun}es"
+    if noun.endswith("y") and noun[-2:-1] not in "aeiou":
+        return f"{n} {noun[:-1]}ies"
+    return f"{n} {noun}s"
+
+
 @main.command()
 @database_option()
+@click.option(
+    "--manifest",
+    "manifests",
+    multiple=True,
+    type=click.Path(dir_okay=False),
+    help="A backup manifest (DEST.manifest.json) kept elsewhere: its trail head must be in the database. Repeatable.",
+)
+@click.option(
+    "--anchor",
+    "anchor_texts",
+    multiple=True,
+    help="An audit trail head ID:MAC as a certificate's footer prints it: that entry must be there, unchanged. Repeatable.",
+)
+@click.option(
+    "--key-file",
+    type=click.Path(dir_okay=False),
+    default=None,
+    help="The trail key (default: TRAIL_KEY_FILE, else beside the database).",
+)
 @reports_errors
-def verify(db_path: str | None) -> None:
-    """Check the audit trail's hash chain and that every record has its entry; exit 1 if not."""
-    from stockroom import records
+def verify(db_path: str | None, manifests: tuple[str, ...], anchor_texts: tuple[str, ...], key_file: str | None) -> None:
+    """Check the audit trail: guards, keyed chain, every record's content, and the heads kept outside; exit 1 on any problem."""
+    from stockroom import backup
+    from stockroom.records import audit
 
     path = working_database(db_path)
-    conn = open_database(path, must_exist=True)
+    anchors_given = [_parse_anchor(t) for t in anchor_texts]
+    manifest_heads: list[tuple[str, tuple[int, str] | None]] = []
+    for m in manifests:
+        try:
+            manifest_heads.append((m, backup.manifest_anchor(backup.read_manifest(m))))
+        except backup.ManifestUnreadable as exc:
+            raise click.ClickException(str(exc)) from None
+    db = _open_for_reading(path)
     try:
-        total = conn.execute("SELECT count(*) FROM events").fetchone()[0]
-        broken = records.verify_chain(conn)
-        missing = records.unaudited_records(conn)
-        integrity = conn.execute("PRAGMA integrity_check").fetchone()[0]
+        integrity = db.execute("PRAGMA integrity_check").fetchone()[0]
+        log = audit.head_log_for(db)
+        logged = audit.head_log_anchors(db)
+        anchors: list[tuple[int, str]] = list(logged)
+        sources: list[str] = []
+        sources.append(f"head log {log}: {_plural(len(logged), 'head')}" if logged else f"head log {log}: none (no file there)")
+        for m, head in manifest_heads:
+            if head is None:
+                sources.append(f"manifest {m}: an empty trail")
+            else:
+                anchors.append(head)
+                sources.append(f"manifest {m}: entry {head[0]}")
+        for entry_id, mac in anchors_given:
+            anchors.append((entry_id, _widen(db, entry_id, mac)))
+            sources.append(f"--anchor {entry_id}:{mac}")
+        counts = {t: int(db.execute(f"SELECT count(*) FROM [{t}]").fetchone()[0]) for t in audit.RECORD_TABLES}
+        report = audit.verify(db, anchors=anchors, key_file=key_file)
     finally:
-        conn.close()
-    problems = []
+        db.close()
+    click.echo(f"verified {path}")
+    for kind, n in report.checked:
+        click.echo(f"  {kind}: {n}")
+    kinds = [_plural(n, audit._NOUNS.get(t, t)) for t, n in counts.items() if n]
+    click.echo("  records by kind: " + (", ".join(kinds) if kinds else "none"))
+    click.echo("  anchors from outside the database:")
+    for line in sources:
+        click.echo(f"    {line}")
+    for note in report.notes:
+        click.echo(f"  note: {note}")
+    problems = [str(p) for p in report.problems]
     if integrity != "ok":
-        problems.append(f"SQLite integrity check failed: {integrity}")
-    if broken is not None:
-        problems.append(
-            f"the hash chain is broken at entry {broken}: that entry, or the one before it, was "
-            "changed or removed outside stockroom"
-        )
-    for table, row_id in missing[:20]:
-        problems.append(f"{table} row {row_id} has no audit entry (an entry was removed)")
-    if len(missing) > 20:
-        problems.append(f"... and {len(missing) - 20} more records without an entry")
+        problems.insert(0, f"the database file: fails SQLite's integrity check ({integrity})")
+    if report.key_missing:
+        problems.append("the keyed audit chain could not be checked: its key file is not there (give it with --key-file)")
     if problems:
         for line in problems:
             click.echo(f"PROBLEM: {line}", err=True)
+        click.echo(f"{_plural(len(problems), 'problem')} found", err=True)
         raise SystemExit(1)
-    click.echo(f"audit trail of {path} is whole: {total} entries, every record accounted for")
+    click.echo("no problems: the audit trail is whole and every record matches its entry")
 
 
 @main.command("backup")
@@ -477,33 +606,53 @@ def verify(db_path: str | None) -> None:
 @database_option()
 @reports_errors
 def backup_command(dest: str, db_path: str | None) -> None:
-    """Write a consistent copy of the database to DEST, safely while the server is running."""
+    """Write a consistent copy of the database to DEST and its manifest DEST.manifest.json, safely while serving."""
     from stockroom import backup
 
     path = working_database(db_path)
     open_database(path, must_exist=True).close()
     pages = backup.backup(path, dest)  # FileExistsError (never overwrites) is reported in one line
+    manifest = backup.manifest_path(dest)
+    head = backup.manifest_anchor(backup.read_manifest(manifest))
     click.echo(f"backup written to {dest} ({pages} pages), integrity check ok")
+    click.echo(
+        f"manifest written to {manifest}"
+        + (f" (trail head: entry {head[0]}, MAC {head[1][:16]}...)" if head else " (the trail is empty)")
+        + "; keep a copy away from the server"
+    )
 
 
 @main.command("restore")
 @click.argument("src", type=click.Path(dir_okay=False))
 @database_option(f"SQLite file to replace (default: {_DEFAULT_DATABASE}).")
 @click.option("--yes", is_flag=True, help="Do not ask for confirmation.")
+@click.option(
+    "--key-file",
+    type=click.Path(dir_okay=False, exists=True),
+    default=None,
+    help="The trail key to check SRC with (default: the target's); copied beside the target if it has none.",
+)
 @reports_errors
-def restore_command(src: str, db_path: str | None, yes: bool) -> None:
-    """Replace the database with the backup SRC (stop the server first); refuses a damaged or newer file."""
+def restore_command(src: str, db_path: str | None, yes: bool, key_file: str | None) -> None:
+    """Replace the database with the backup SRC (stop the server first) once SRC passes the audit verification."""
     from stockroom import backup
 
     target = working_database(db_path)
     try:
-        backup.check_restorable(src)
+        checked = backup.check_restorable(src, target, key_file=key_file)
     except backup.RestoreRefused as exc:
         raise click.ClickException(f"refused: {exc}") from None
-    if not yes:
-        click.confirm(f"Replace {target} with {src}? Everything recorded since that backup is lost", abort=True)
-    version = backup.restore(src, target)
-    click.echo(f"{target} restored from {src} (schema version {version}, brought up to date)")
+    try:
+        if not yes:
+            click.confirm(f"Replace {target} with {src}? Everything recorded since that backup is lost", abort=True)
+    except BaseException:
+        checked.discard()
+        raise
+    kept = backup.apply_restore(checked, target, key_file=key_file)
+    checks = ", ".join(f"{n} {kind}" for kind, n in checked.report.checked)
+    click.echo(f"{target} restored from {src} (schema version {checked.version}, brought up to date); verified: {checks}")
+    if kept is not None:
+        click.echo(f"the head log of the replaced database is kept as {kept}; a new one starts at the restored head")
 
 
 # ---------------------------------------------------------------- load tests

@@ -27,7 +27,7 @@ BUSY_TIMEOUT_MS = 10_000
 
 
 def connect(path: str | Path) -> sqlite_utils.Database:
-    """Open the database file with stockroom's pragmas (WAL, foreign keys, busy timeout, NORMAL sync)."""
+    """Open the database file with stockroom's pragmas (WAL, foreign keys, busy timeout, FULL sync)."""
     Path(path).parent.mkdir(parents=True, exist_ok=True)
     conn = sqlite3.connect(str(path), timeout=BUSY_TIMEOUT_MS / 1000, check_same_thread=False)
     # Autocommit at the driver level: transactions are only the explicit ones below and atomic().
@@ -35,10 +35,13 @@ def connect(path: str | Path) -> sqlite_utils.Database:
     conn.row_factory = sqlite3.Row
     conn.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
     conn.execute("PRAGMA foreign_keys = ON")
+    # REPLACE deletes the old row; with recursive triggers on, that delete fires the append-only
+    # tables' delete triggers, so INSERT OR REPLACE through stockroom fails like a DELETE does.
+    conn.execute("PRAGMA recursive_triggers = ON")
     mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
     if mode.lower() != "wal" and str(path) != ":memory:":
         raise RuntimeError(f"could not switch {path} to WAL journal mode (got {mode})")
-    conn.execute("PRAGMA synchronous = NORMAL")
+    conn.execute("PRAGMA synchronous = FULL")  # an acknowledged write survives power loss (README: durability)
     return sqlite_utils.Database(conn, execute_plugins=False)
 
 
@@ -52,14 +55,81 @@ def write(db: sqlite_utils.Database) -> Iterator[sqlite_utils.Database]:
                 yield db
             return
         db.conn.execute("BEGIN IMMEDIATE")
+        _written(db).clear()
+        before_commit(db).clear()
+        after_commit(db).clear()
         try:
             yield db
         except BaseException:
             if db.conn.in_transaction:
                 db.conn.execute("ROLLBACK")
+            _written(db).clear()
+            before_commit(db).clear()
+            after_commit(db).clear()
             raise
         else:
+            checks = list(before_commit(db))
+            before_commit(db).clear()
+            try:
+                for check in checks:  # a check that raises rolls the whole write back
+                    check()
+            except BaseException:
+                db.conn.execute("ROLLBACK")
+                _written(db).clear()
+                after_commit(db).clear()
+                raise
             db.conn.execute("COMMIT")
+            _written(db).clear()
+            hooks = list(after_commit(db))
+            after_commit(db).clear()
+            for hook in hooks:  # still under the write lock: no other write can come between
+                hook()
+
+
+def after_commit(db: sqlite_utils.Database) -> list[Callable[[], None]]:
+    """The connection's one-shot after-commit hooks: db.write runs them (in order) once the write commits.
+
+    A write that rolls back drops them. The audit trail appends its head log here, so this module needs
+    to know nothing about it.
+    """
+    hooks: list[Callable[[], None]] | None = getattr(db, "_stockroom_after_commit", None)
+    if hooks is None:
+        hooks = []
+        db._stockroom_after_commit = hooks  # type: ignore[attr-defined]
+    return hooks
+
+
+def before_commit(db: sqlite_utils.Database) -> list[Callable[[], None]]:
+    """The connection's one-shot before-commit checks: db.write runs them before COMMIT; one raising rolls back."""
+    checks: list[Callable[[], None]] | None = getattr(db, "_stockroom_before_commit", None)
+    if checks is None:
+        checks = []
+        db._stockroom_before_commit = checks  # type: ignore[attr-defined]
+    return checks
+
+
+def _written(db: sqlite_utils.Database) -> list[tuple[str, int]]:
+    rows: list[tuple[str, int]] | None = getattr(db, "_stockroom_written", None)
+    if rows is None:
+        rows = []
+        db._stockroom_written = rows  # type: ignore[attr-defined]
+    return rows
+
+
+def take_written_rows(db: sqlite_utils.Database) -> list[tuple[str, int]]:
+    """(table, id) of every row insert_row appended in this write since the last call; the list is emptied."""
+    rows = _written(db)
+    out = list(rows)
+    rows.clear()
+    return out
+
+
+def database_file(db: sqlite_utils.Database) -> str:
+    """The path of the connection's main database file; "" for an in-memory database."""
+    for row in db.execute("PRAGMA database_list").fetchall():
+        if row[1] == "main":
+            return str(row[2] or "")
+    return ""
 
 
 def write_lock() -> threading.RLock:
@@ -81,10 +151,14 @@ def lab_today(timezone_name: str, now: dt.datetime | None = None) -> dt.date:
 
 
 def insert_row(db: sqlite_utils.Database, table: str, row: dict[str, Any]) -> int:
-    """Append one row to a table (inside a write) and return its new id."""
+    """Append one row to a table (inside a write) and return its new id.
+
+    The row is remembered for the write (take_written_rows): the audit entry that follows names it.
+    """
     pk = db.table(table).insert(row).last_pk
     if pk is None:
         raise RuntimeError(f"insert into {table} returned no id")
+    _written(db).append((table, int(pk)))
     return int(pk)
 
 

@@ -783,6 +783,64 @@ def _instruments_recalls(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
+# Every table that has the append-only triggers, in the order the migrations made them.
+APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY + (
+    "signin_attempts",
+    "class_corrections",
+    "hazard_classifications",
+    "instruments",
+    "calibrations",
+    "run_instruments",
+    "recalls",
+    "recall_clearances",
+    "api_tokens",
+    "api_token_revocations",
+    "trail_keying",
+)
+
+
+def _no_replace_triggers(tables: tuple[str, ...]) -> list[str]:
+    """Triggers that refuse an insert reusing an existing id (INSERT OR REPLACE), recursive triggers on or off."""
+    return [
+        f"CREATE TRIGGER {table}_no_replace BEFORE INSERT ON {table} "
+        f"WHEN EXISTS (SELECT 1 FROM {table} WHERE id = NEW.id) "
+        f"BEGIN SELECT RAISE(ABORT, '{table} is append-only: a row cannot be replaced'); END"
+        for table in tables
+    ]
+
+
+def expected_triggers() -> dict[str, str]:
+    """Name -> CREATE TRIGGER text of every trigger the migrations make (the audit verifier compares them)."""
+    out: dict[str, str] = {}
+    for statement in _append_only_triggers(APPEND_ONLY_TABLES) + _no_replace_triggers(APPEND_ONLY_TABLES):
+        out[statement.split()[2]] = statement
+    return out
+
+
+# The keyed audit trail. Each entry now names the record rows it wrote, with a hash of their content
+# (events.records, JSON), and entries from trail_keying.first_keyed_entry on carry an HMAC-SHA-256
+# under a key kept outside the database file (stockroom.records.audit). The entries before it keep
+# the plain SHA-256 chain they were made with. The one row is literal SQL: no application code.
+_KEYED_TRAIL = [
+    "ALTER TABLE events ADD COLUMN records TEXT NOT NULL DEFAULT '[]'",
+    """CREATE TABLE trail_keying (
+        id INTEGER PRIMARY KEY,
+        first_keyed_entry INTEGER NOT NULL,          -- events.id of the first keyed entry
+        recorded_at TEXT NOT NULL
+    )""",
+    "INSERT INTO trail_keying (first_keyed_entry, recorded_at) "
+    "SELECT coalesce(max(id), 0) + 1, strftime('%Y-%m-%dT%H:%M:%S+00:00', 'now') FROM events",
+]
+
+
+@MIGRATIONS(name="0008_keyed_trail")
+def _keyed_trail(db: sqlite_utils.Database) -> None:
+    for statement in _KEYED_TRAIL:
+        db.execute(statement)
+    for statement in _append_only_triggers(("trail_keying",)) + _no_replace_triggers(APPEND_ONLY_TABLES):
+        db.execute(statement)
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 
 

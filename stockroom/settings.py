@@ -25,6 +25,14 @@ class Setting:
 SETTINGS: tuple[Setting, ...] = (
     Setting("DATABASE", "instance/stockroom.db", "Path of the SQLite database file."),
     Setting(
+        "TRAIL_KEY_FILE",
+        "",
+        "File holding the secret key of the audit trail's HMAC chain, kept outside the database file (made "
+        "0600 on the first write). Empty: '<database>.trail-key' beside the database. Keep a copy apart from "
+        "backups of the database: without it the keyed part of the trail cannot be checked. The head log "
+        "'<database name>.trail-head' is written beside it.",
+    ),
+    Setting(
         "SECRET_KEY",
         None,
         "Key that signs session cookies and CSRF tokens. Read from the "

@@ -64,6 +64,12 @@ def list_for(db: sqlite_utils.Database, user_id: int) -> list[Token]:
     return [Token(r["id"], r["user_id"], r["label"], r["shown_prefix"], r["created_at"], r["revoked_at"]) for r in rows]
 
 
+def _revoke_one(db: sqlite_utils.Database, token_id: int, actor: str, reason: str = "") -> None:
+    """Record one token's revocation and its audit entry (inside a write)."""
+    dbmod.insert_row(db, "api_token_revocations", {"token_id": token_id, "revoked_at": dbmod.utc_now(), "revoked_by": actor})
+    records.append_event(db, actor, "token.revoke", entity="api_tokens", entity_id=token_id, reason=reason)
+
+
 def revoke(db: sqlite_utils.Database, token_id: int, user_id: int, username: str) -> None:
     """Revoke one of the user's own tokens; it stops working at once."""
     with dbmod.write(db):
@@ -77,10 +83,28 @@ def revoke(db: sqlite_utils.Database, token_id: int, user_id: int, username: str
             raise NotFound("you have no token with that number")
         if rows[0]["rid"] is not None:
             raise Conflict("that token is already revoked")
-        dbmod.insert_row(
-            db, "api_token_revocations", {"token_id": token_id, "revoked_at": dbmod.utc_now(), "revoked_by": username}
-        )
-        records.append_event(db, username, "token.revoke", entity="api_tokens", entity_id=token_id)
+        _revoke_one(db, token_id, username)
+
+
+def revoke_all_for(db: sqlite_utils.Database, user_id: int, actor: str, reason: str) -> list[int]:
+    """Revoke every live token of a user (their password changed or was reset); return the ids revoked.
+
+    A token stands in for its owner's password: whoever took the old password may have made one, so
+    a new password ends them all, each with its own audit entry giving `reason`.
+    """
+    with dbmod.write(db):
+        live = [
+            int(r["id"])
+            for r in dbmod.query(
+                db,
+                "SELECT t.id FROM api_tokens t LEFT JOIN api_token_revocations r ON r.token_id = t.id "
+                "WHERE t.user_id = ? AND r.id IS NULL ORDER BY t.id",
+                [user_id],
+            )
+        ]
+        for token_id in live:
+            _revoke_one(db, token_id, actor, reason)
+    return live
 
 
 def user_id_for(db: sqlite_utils.Database, secret: str) -> int | None:

@@ -31,8 +31,12 @@ def test_round_trip_keeps_every_table(tmp_path):
     assert result.exit_code == 0, result.output
     before = _tables(live)
     fresh = tmp_path / "restored.db"
-    result = CliRunner().invoke(main, ["restore", str(tmp_path / "b.db"), "--db", str(fresh), "--yes"])
+    # A new place has no trail key yet: the one the file was made under is given, and installed there.
+    key = tmp_path / "live.db.trail-key"
+    args = ["restore", str(tmp_path / "b.db"), "--db", str(fresh), "--yes", "--key-file", str(key)]
+    result = CliRunner().invoke(main, args)
     assert result.exit_code == 0, result.output
+    assert (tmp_path / "restored.db.trail-key").read_bytes() == key.read_bytes()
     after = _tables(fresh)
     assert set(before) == set(after)
     for name in before:
@@ -96,3 +100,94 @@ def test_restore_refuses_damaged_foreign_and_newer_files(tmp_path):
         result = CliRunner().invoke(main, ["restore", str(bad), "--db", str(target), "--yes"])
         assert result.exit_code == 1 and why in result.output.replace("integrity check", "malformed"), (bad, result.output)
     assert not target.exists()
+
+
+def test_restore_refuses_a_file_with_only_a_migration_record(tmp_path):
+    # Before this check, such a file passed (its migration names are stockroom's) and the restore
+    # replaced a full database with an empty one.
+    live = tmp_path / "live.db"
+    build_demo(str(live), today=dt.date(2026, 12, 1))
+    before = live.read_bytes()
+    shell = tmp_path / "shell.db"
+    c = sqlite3.connect(shell)
+    c.execute("CREATE TABLE _sqlite_migrations (migration_set TEXT, name TEXT, applied_at TEXT)")
+    c.execute("INSERT INTO _sqlite_migrations VALUES ('stockroom', '0001_initial', 'x')")
+    c.commit()
+    c.close()
+    result = CliRunner().invoke(main, ["restore", str(shell), "--db", str(live), "--yes"])
+    assert result.exit_code == 1
+    assert "not a stockroom database" in result.output and "would empty the database" in result.output
+    assert len(result.output.strip().splitlines()) == 1
+    assert live.read_bytes() == before
+
+
+def _backup_of_demo(tmp_path):
+    live = tmp_path / "live.db"
+    build_demo(str(live), today=dt.date(2026, 12, 1))
+    assert CliRunner().invoke(main, ["backup", str(tmp_path / "b.db"), "--db", str(live)]).exit_code == 0
+    return live, tmp_path / "b.db"
+
+
+def test_restore_refuses_a_broken_chain_before_touching_the_target(tmp_path):
+    live, copy = _backup_of_demo(tmp_path)
+    backup.manifest_path(copy).unlink()  # no manifest: the chain and contents alone must catch it
+    c = sqlite3.connect(copy)
+    c.execute("DROP TRIGGER releases_no_update")
+    c.execute("UPDATE releases SET molarity = molarity + 0.001 WHERE id = 1")
+    c.execute(schema.expected_triggers()["releases_no_update"])  # the guard put back as it was: only the content is wrong
+    c.commit()
+    c.close()
+    before = live.read_bytes()
+    result = CliRunner().invoke(main, ["restore", str(copy), "--db", str(live), "--yes"])
+    assert result.exit_code == 1, result.output
+    assert "fails the audit verification" in result.output and "release 1 of" in result.output
+    assert len(result.output.strip().splitlines()) == 1
+    assert live.read_bytes() == before
+
+
+def test_restore_refuses_a_file_that_is_not_what_its_manifest_says(tmp_path):
+    live, copy = _backup_of_demo(tmp_path)
+    c = sqlite3.connect(copy)
+    c.execute("CREATE TABLE notes (x)")  # any change of the bytes
+    c.commit()
+    c.close()
+    result = CliRunner().invoke(main, ["restore", str(copy), "--db", str(tmp_path / "new.db"), "--yes"])
+    assert result.exit_code == 1 and "SHA-256 differs" in result.output
+    assert not (tmp_path / "new.db").exists()
+
+
+def test_the_manifest_states_the_backups_head_counts_and_hash(tmp_path):
+    import hashlib
+    import json
+
+    live, copy = _backup_of_demo(tmp_path)
+    manifest = json.loads(backup.manifest_path(copy).read_text())
+    conn = dbmod.connect(live)
+    try:
+        head = records.audit.chain_head(conn)
+        batches = conn.execute("SELECT count(*) FROM batches").fetchone()[0]
+        version = schema.schema_version(conn)
+    finally:
+        conn.close()
+    assert head is not None
+    assert manifest["trail_head"] == {"entry_id": head[0], "mac": head[1]}
+    assert manifest["row_counts"]["batches"] == batches == 8  # the invented demo scenario's 8 batches
+    assert manifest["schema_version"] == version == schema.SCHEMA_VERSION
+    assert manifest["sha256"] == hashlib.sha256(copy.read_bytes()).hexdigest()  # hashlib, independently
+    assert dt.datetime.fromisoformat(manifest["written_at"]).tzinfo is not None
+    # A second backup to the same place overwrites neither the file nor its manifest.
+    again = CliRunner().invoke(main, ["backup", str(copy), "--db", str(live)])
+    assert again.exit_code == 1 and "already exists" in again.output
+
+
+def test_a_restore_keeps_the_old_head_log_aside_and_the_result_verifies(tmp_path):
+    live, copy = _backup_of_demo(tmp_path)
+    conn = dbmod.connect(live)
+    records.append_event(conn, "writer", "account.signout")  # the live trail moves past the backup
+    conn.close()
+    result = CliRunner().invoke(main, ["restore", str(copy), "--db", str(live), "--yes"])
+    assert result.exit_code == 0, result.output
+    kept = list(tmp_path.glob("live.db.trail-head.before-restore-*"))
+    assert len(kept) == 1 and "kept as" in result.output
+    check = CliRunner().invoke(main, ["verify", "--db", str(live), "--manifest", str(backup.manifest_path(copy))])
+    assert check.exit_code == 0, check.output

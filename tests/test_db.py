@@ -21,7 +21,7 @@ def test_pragmas_on_every_connection(tmp_path):
     conn = dbmod.connect(tmp_path / "a.db")
     assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
     assert conn.execute("PRAGMA foreign_keys").fetchone()[0] == 1
-    assert conn.execute("PRAGMA synchronous").fetchone()[0] == 1  # NORMAL
+    assert conn.execute("PRAGMA synchronous").fetchone()[0] == 2  # FULL (README: durability)
     assert conn.execute("PRAGMA busy_timeout").fetchone()[0] == dbmod.BUSY_TIMEOUT_MS
 
 
@@ -98,7 +98,9 @@ def test_concurrent_writers_are_serialized(tmp_path):
         t.join()
     assert errors == []
     conn = dbmod.connect(path)
-    assert conn.execute("SELECT count(*) FROM events").fetchone()[0] == 150
+    # 150 entries plus the one that began the keyed trail (it names the starting rows).
+    assert conn.execute("SELECT count(*) FROM events WHERE action != 'trail.begin'").fetchone()[0] == 150
+    assert conn.execute("SELECT count(*) FROM events WHERE action = 'trail.begin'").fetchone()[0] == 1
     # The chain stays whole under concurrency because every append happens under the write lock.
     assert records.verify_chain(conn) is None
 
@@ -126,7 +128,7 @@ def _seeded_rows(conn) -> dict[str, list[dict]]:
     """Every row a fresh database holds, per table, without the time it was written."""
     out: dict[str, list[dict]] = {}
     for table in conn.table_names():
-        if table.startswith(("_", "sqlite")):
+        if table.startswith(("_", "sqlite")) or table == "trail_keying":  # checked on its own below
             continue
         rows = dbmod.query(conn, f"SELECT * FROM {table} ORDER BY id")
         if rows:
@@ -142,6 +144,8 @@ def test_a_fresh_database_has_exactly_the_rows_the_migrations_wrote_before_they_
     conn = dbmod.connect(tmp_path / "a.db")
     schema.migrate(conn)
     assert _seeded_rows(conn) == json.loads(SEEDED.read_text(encoding="utf-8"))
+    # A fresh database is keyed from its first entry on.
+    assert [r["first_keyed_entry"] for r in dbmod.query(conn, "SELECT * FROM trail_keying")] == [1]
 
 
 def test_the_seeded_rows_still_agree_with_the_applications_defaults(tmp_path):

@@ -8,7 +8,9 @@ or for a secondary standardization the chain of reference batches down to their 
 table, statistics, outlier screening, exclusions with their reasons; the uncertainty budget as stored
 with the run; the drift chart of the release; who standardized and who released it, when; and lines
 to sign. A superseded, expired or withdrawn release says so at the top, so an old certificate on file
-is never read as the value in force.
+is never read as the value in force. The footer prints the audit trail's head when the certificate was
+made (entry id and the first 16 hex digits of its MAC), so a paper copy is an anchor for
+`stockroom verify --anchor ID:MAC`.
 """
 
 from __future__ import annotations
@@ -42,7 +44,9 @@ from stockroom.errors import NotFound
 from stockroom.pdf.ghs import GHS_RED
 from stockroom.pdf.labels import printable, value_text
 from stockroom.policy import ReleaseFact
+from stockroom.records import audit
 
+HEAD_MAC_DIGITS = 16  # hex digits of the head's MAC the footer prints (64 bits: enough to anchor, short to copy)
 MAX_CHAIN = 12  # reference steps followed before giving up (a loop in the records would be a data fault)
 _INK = colors.HexColor("#1d2327")
 _RULE = colors.HexColor("#9aa5ab")
@@ -124,6 +128,7 @@ def certificate_data(db: sqlite_utils.Database, release_id: int, on: dt.date) ->
         "decision": run["decisions"][-1] if run["decisions"] else None,
         "drift": _drift_report(facts, fact, on),
         "on": on,
+        "trail_head": audit.chain_head(db),
     }
 
 
@@ -563,12 +568,13 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
 
 
 class _NumberedCanvas(Canvas):
-    """A canvas that writes 'page N of M' once every page is laid out."""
+    """A canvas that writes the footer, the trail's head and 'page N of M' once every page is laid out."""
 
-    def __init__(self, *args: Any, footer: str = "", **kwargs: Any):
+    def __init__(self, *args: Any, footer: str = "", anchor: str = "", **kwargs: Any):
         super().__init__(*args, **kwargs)
         self._pages: list[dict[str, Any]] = []
         self._footer = footer
+        self._anchor = anchor
 
     def showPage(self) -> None:  # noqa: N802 (reportlab's name)
         self._pages.append(dict(self.__dict__))
@@ -582,8 +588,17 @@ class _NumberedCanvas(Canvas):
             self.setFillColor(_INK)
             self.drawString(15 * mm, 9 * mm, self._footer)
             self.drawRightString(A4[0] - 15 * mm, 9 * mm, f"page {self._pageNumber} of {total}")
+            self.drawString(15 * mm, 5.5 * mm, self._anchor)
             super().showPage()
         super().save()
+
+
+def head_anchor(head: tuple[int, str] | None) -> str:
+    """The audit trail's head as the footer prints it and `stockroom verify --anchor` reads it: `ID:MAC16`."""
+    if head is None:
+        return "none (the audit trail is empty)"
+    entry_id, mac = head
+    return f"{entry_id}:{mac[:HEAD_MAC_DIGITS]}"
 
 
 def build_certificate(data: Mapping[str, Any]) -> bytes:
@@ -594,6 +609,7 @@ def build_certificate(data: Mapping[str, Any]) -> bytes:
         f"stockroom · certificate of standardization · batch {batch['code']} · release {release['id']} "
         f"· issued {data['on'].isoformat()}"
     )
+    anchor = f"audit trail head when made (entry:MAC, for stockroom verify --anchor): {head_anchor(data.get('trail_head'))}"
     doc = SimpleDocTemplate(
         buf,
         pagesize=A4,
@@ -607,5 +623,5 @@ def build_certificate(data: Mapping[str, Any]) -> bytes:
         subject=printable(f"{batch['reagent']} {batch['nominal_molarity']:g} mol/L"),
         invariant=1,
     )
-    doc.build(_story(data), canvasmaker=lambda *a, **k: _NumberedCanvas(*a, footer=footer, **k))
+    doc.build(_story(data), canvasmaker=lambda *a, **k: _NumberedCanvas(*a, footer=footer, anchor=anchor, **k))
     return buf.getvalue()

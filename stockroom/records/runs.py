@@ -80,6 +80,29 @@ def record_run(
         row["notes"] = row["notes"] or ""
         row["recorded_at"] = dbmod.utc_now()
         row["recorded_by"] = actor
+
+        def write_parts(run_id: int) -> None:
+            # The run's parts belong to its entry: written in the same transaction, before the entry
+            # so that it names them (and their content) too.
+            for rep in replicates:
+                rep_row = {k: rep.get(k) for k in REPLICATE_FIELDS}
+                rep_row["blank_ml"] = rep_row["blank_ml"] or 0.0
+                rep_row["run_id"] = run_id
+                dbmod.insert_row(db, "replicates", rep_row)
+            for position, reason in exclusions:
+                dbmod.insert_row(
+                    db,
+                    "exclusions",
+                    {
+                        "run_id": run_id,
+                        "position": position,
+                        "reason": reason.strip(),
+                        "recorded_at": row["recorded_at"],
+                        "recorded_by": actor,
+                    },
+                )
+            dbmod.insert_row(db, "run_results", _result_row(run_id, result, "recorded", actor))
+
         run_id = record_row(
             db,
             "runs",
@@ -93,26 +116,8 @@ def record_run(
                 "U": result.get("U"),
                 "excluded": [p for p, _ in exclusions],
             },
+            parts=write_parts,
         )
-        # The run's parts belong to its entry: written in the same transaction, after the run row.
-        for rep in replicates:
-            rep_row = {k: rep.get(k) for k in REPLICATE_FIELDS}
-            rep_row["blank_ml"] = rep_row["blank_ml"] or 0.0
-            rep_row["run_id"] = run_id
-            dbmod.insert_row(db, "replicates", rep_row)
-        for position, reason in exclusions:
-            dbmod.insert_row(
-                db,
-                "exclusions",
-                {
-                    "run_id": run_id,
-                    "position": position,
-                    "reason": reason.strip(),
-                    "recorded_at": row["recorded_at"],
-                    "recorded_by": actor,
-                },
-            )
-        dbmod.insert_row(db, "run_results", _result_row(run_id, result, "recorded", actor))
     return run_id
 
 
@@ -160,6 +165,8 @@ def exclude_replicate(
             raise Conflict(f"replicate {position} is already excluded")
         if run["decisions"]:
             raise Conflict("this run has already been decided; record a new run instead")
+        # The new result first, so the exclusion's entry names it too.
+        dbmod.insert_row(db, "run_results", _result_row(run_id, result, f"exclusion of replicate {position}", actor))
         record_row(
             db,
             "exclusions",
@@ -177,7 +184,6 @@ def exclude_replicate(
             reason=reason.strip(),
             detail={"position": position, "molarity": result["molarity"]},
         )
-        dbmod.insert_row(db, "run_results", _result_row(run_id, result, f"exclusion of replicate {position}", actor))
 
 
 def decide_run(
