@@ -292,7 +292,9 @@ def test_exports(app, setup, signed_in_client, form_token):
     run_csv = staff.get(f"/runs/{run_id}.csv")
     assert run_csv.mimetype == "text/csv"
     assert run_csv.headers["Content-Disposition"] == f'attachment; filename="{code}-run-{run_id}.csv"'
-    rows = list(csv.DictReader(line for line in run_csv.get_data(as_text=True).splitlines() if not line.startswith("#")))
+    rows = list(
+        csv.DictReader(line for line in run_csv.get_data(as_text=True).splitlines() if not line.lstrip('"').startswith("#"))
+    )
     assert [float(r["final_ml"]) for r in rows] == [float(f) for *_, f in GOOD]
     history = staff.get(f"/batches/{code}/history.csv").get_data(as_text=True)
     hist = list(csv.DictReader(io.StringIO(history)))
