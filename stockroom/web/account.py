@@ -31,7 +31,7 @@ def _sign_in_page(status: int = 200, **context: Any) -> tuple[str, int]:
 @public
 def sign_in() -> Any:
     nxt = safe_next(request.values.get("next"))
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         if current_user() is not None:
             return redirect(nxt or _home(), code=303)
         return _sign_in_page(next=nxt)
@@ -73,7 +73,7 @@ def sign_out() -> Any:
 def password() -> Any:
     user = current_user()
     assert user is not None
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         return render_template("account/password.html", errors={}, notice=None)
     current = request.form.get("current_password", "")
     new = request.form.get("new_password", "")
@@ -108,7 +108,7 @@ def first_run() -> Any:
     db = get_db()
     if accounts.has_users(db):
         abort(404, "Set-up is done: accounts exist. Sign in, or ask an administrator for an account.")
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         return render_template("account/first_run.html", errors={}, form={})
     username = request.form.get("username", "").strip()
     display_name = " ".join(request.form.get("display_name", "").split())
