@@ -783,6 +783,19 @@ def _instruments_recalls(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
+# Sign-in throttling state (stockroom.accounts.throttle_until): failures per key since its last success.
+# Operational, not a record: rows are updated and deleted; the attempts themselves stay in signin_attempts.
+@MIGRATIONS(name="m0xx_signin_throttle")
+def _signin_throttle(db: sqlite_utils.Database) -> None:
+    db.execute(
+        """CREATE TABLE signin_throttle (
+        key TEXT PRIMARY KEY,                       -- address:<ip>, account:<username>, device:<id>
+        failures INTEGER NOT NULL,
+        last_failure TEXT NOT NULL
+    )"""
+    )
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 
 

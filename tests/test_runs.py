@@ -127,7 +127,7 @@ def test_record_then_accept_releases_the_batch(app, setup, signed_in_client, for
     body = staff.get(f"/api/v1/batches/{code}").get_json()
     assert body["status"] == "in_service"
     assert body["releases"][0]["molarity"] == pytest.approx(run["current"]["molarity"])
-    assert body["releases"][0]["released_by"] == "staff-user"
+    assert body["releases"][0]["released_by"] == "Staff-User"  # the display name, never the sign-in name
     # The value in force carries the expanded uncertainty U = k u of its release, everywhere it is shown.
     release = body["releases"][0]
     assert release["U"] == pytest.approx(release["k"] * release["u"])
