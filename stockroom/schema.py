@@ -789,7 +789,8 @@ def _instruments_recalls(db: sqlite_utils.Database) -> None:
 def _signin_throttle(db: sqlite_utils.Database) -> None:
     db.execute(
         """CREATE TABLE signin_throttle (
-        key TEXT PRIMARY KEY,                       -- address:<ip>, account:<username>, device:<id>
+        id INTEGER PRIMARY KEY,
+        key TEXT NOT NULL UNIQUE,                   -- address:<ip>, account:<username>, device:<id>
         failures INTEGER NOT NULL,
         last_failure TEXT NOT NULL
     )"""
