@@ -13,7 +13,7 @@ import hashlib
 import math
 import re
 import secrets
-import time
+from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -143,6 +143,21 @@ class SignInLocked(SignInRefused):
             f"Try again in {minutes} minute{'' if minutes == 1 else 's'}, or ask an administrator."
         )
         self.until = until
+
+
+class SignInThrottled(SignInLocked):
+    """Too many recent failures from this client or for this username: try again at `until` (UTC)."""
+
+    def __init__(self, until: dt.datetime, now: dt.datetime):
+        seconds = max(1, math.ceil((until - now).total_seconds()))
+        wait = f"{seconds} second{'' if seconds == 1 else 's'}" if seconds < 120 else f"{math.ceil(seconds / 60)} minutes"
+        SignInRefused.__init__(
+            self,
+            f"Too many failed sign-ins from this computer or for this username. Try again in {wait}; "
+            "a browser you have signed in with before is not held up by guesses made elsewhere.",
+        )
+        self.until = until
+        self.retry_after = seconds
 
 
 # ---------------------------------------------------------------- passwords
@@ -407,9 +422,60 @@ def set_password(db: sqlite_utils.Database, username: str, new: str, actor: str)
 LOCKOUT_FAILURES = 5
 LOCKOUT_WINDOW = dt.timedelta(minutes=15)
 LOCKOUT_PAUSE = dt.timedelta(minutes=15)
-# Fixed pause after every failure, taken outside the write lock, so guessing is slow for everyone
-# without stalling other writers. Seconds.
-FAILURE_DELAY_S = 0.4
+# Sign-in throttling (what authenticate applies; lockout_until above is kept for the password change).
+# Each key (a client address, a username, a device) has its failures since its last success counted;
+# the first THROTTLE_FREE are free, then the key waits THROTTLE_BASE after its latest failure, doubling
+# with each further failure up to THROTTLE_MAX. Nothing sleeps: a throttled attempt is answered at once
+# (429 with Retry-After) and writes nothing.
+THROTTLE_FREE = 5
+THROTTLE_BASE = dt.timedelta(seconds=2)
+THROTTLE_MAX = dt.timedelta(minutes=15)
+
+
+def backoff(failures: int) -> dt.timedelta:
+    """How long a key waits after its latest failure, given its failures since its last success."""
+    if failures < THROTTLE_FREE:
+        return dt.timedelta(0)
+    return min(THROTTLE_MAX, THROTTLE_BASE * 2 ** min(failures - THROTTLE_FREE, 20))
+
+
+def throttle_keys(username: str, client: str, device: str | None) -> tuple[str, ...]:
+    """The keys an attempt is counted under.
+
+    A browser holding a device cookie from a past successful sign-in to this username (device: its
+    id) is counted on its own: guesses from elsewhere, which raise the username's and their own
+    address's counts, do not slow it down. Without one, the client address and the username count.
+    """
+    if device:
+        return (f"device:{device}",)
+    return (f"address:{client}", f"account:{username.strip().lower()[:80]}")
+
+
+def throttle_until(db: sqlite_utils.Database, keys: Iterable[str], now: dt.datetime | None = None) -> dt.datetime | None:
+    """When the slowest of these keys may try again (UTC), or None if none is waiting."""
+    moment = _now(now)
+    keys = list(keys)
+    if not keys:
+        return None
+    marks = ",".join("?" * len(keys))
+    rows = dbmod.query(db, f"SELECT failures, last_failure FROM signin_throttle WHERE key IN ({marks})", keys)
+    waits = [dt.datetime.fromisoformat(r["last_failure"]) + backoff(r["failures"]) for r in rows]
+    until = max(waits, default=None)
+    return until if until is not None and moment < until else None
+
+
+def _count_failure(db: sqlite_utils.Database, keys: Iterable[str], moment: dt.datetime) -> None:
+    for key in keys:
+        db.execute(
+            "INSERT INTO signin_throttle (key, failures, last_failure) VALUES (?, 1, ?) "
+            "ON CONFLICT (key) DO UPDATE SET failures = failures + 1, last_failure = excluded.last_failure",
+            [key, moment.isoformat()],
+        )
+
+
+def _clear_failures(db: sqlite_utils.Database, keys: Iterable[str]) -> None:
+    keys = list(keys)
+    db.execute(f"DELETE FROM signin_throttle WHERE key IN ({','.join('?' * len(keys))})", keys)
 
 
 def lockout_until(
@@ -459,9 +525,11 @@ def _record_failure(
     moment: dt.datetime,
     row: dict[str, Any] | None,
     why: str,
+    keys: Iterable[str] = (),
 ) -> None:
     with dbmod.write(db):
         _record_attempt(db, username, moment, succeeded=False)
+        _count_failure(db, keys, moment)
         records.append_event(
             db,
             "anonymous",
@@ -470,7 +538,6 @@ def _record_failure(
             entity_id=row["id"] if row else None,
             detail={"username": username[:80], "why": why},
         )
-    time.sleep(FAILURE_DELAY_S)
 
 
 def authenticate(
@@ -479,33 +546,36 @@ def authenticate(
     password: str,
     *,
     now: dt.datetime | None = None,
+    client: str = "",
+    device: str | None = None,
 ) -> User | None:
     """The user whose username and password these are, or None; records the attempt.
 
-    username: matched without regard to case; now: the attempt's time (UTC; the clock when None).
-    Raises SignInLocked while attempts for the username are paused, SignInRefused for a disabled
-    account given its right password. The password hash is checked even for an unknown username.
+    username: matched without regard to case; now: the attempt's time (UTC; the clock when None);
+    client: the client's address; device: the id from a device cookie this browser got at a past
+    successful sign-in to this username (None without one; see throttle_keys). Raises
+    SignInThrottled at once, writing nothing, while the attempt's keys wait; SignInRefused for a
+    disabled account given its right password. The password hash is checked even for an unknown
+    username.
     """
     moment = _now(now)
     username = username.strip()
-    until = lockout_until(db, username, moment)
+    keys = throttle_keys(username, client, device)
+    until = throttle_until(db, keys, moment)
     if until is not None:
-        with dbmod.write(db):
-            records.append_event(
-                db, "anonymous", "account.signin_paused", detail={"username": username[:80], "until": until.isoformat()}
-            )
-        time.sleep(FAILURE_DELAY_S)
-        raise SignInLocked(until, moment)
+        raise SignInThrottled(until, moment)
     row = _user_row(db, username) if len(username) <= 40 else None
     ok = check_password_hash(row["password_hash"] if row else _decoy_hash(HASH_METHOD), password)
     if not (row and ok):
-        _record_failure(db, username, moment, row, "wrong password" if row else "unknown username")
+        _record_failure(db, username, moment, row, "wrong password" if row else "unknown username", keys)
         return None
     if row["disabled_at"] is not None:
-        _record_failure(db, username, moment, row, "account disabled")
+        _record_failure(db, username, moment, row, "account disabled", keys)
         raise SignInRefused("This account is disabled; ask an administrator.")
     with dbmod.write(db):
         _record_attempt(db, row["username"], moment, succeeded=True)
+        # Only the keys this attempt counted under: a known browser's success leaves a guesser's counts.
+        _clear_failures(db, keys)
         records.append_event(db, row["username"], "account.signin", entity="users", entity_id=row["id"])
     return User.from_row(row)
 

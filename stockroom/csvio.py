@@ -14,10 +14,11 @@ replicate out of the result, with that reason.
 from __future__ import annotations
 
 import csv
-import io
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
+
+from stockroom.csvsafe import SafeCsv
 
 SHEET_COLUMNS = (
     "replicate",
@@ -63,7 +64,11 @@ def read_sheet(text: str, max_rows: int) -> Sheet:
     sheet = Sheet()
     if text.startswith("\ufeff"):
         text = text[1:]
-    lines = [(i, line) for i, line in enumerate(text.splitlines(), start=1) if line.strip() and not line.lstrip().startswith("#")]
+    lines = [
+        (i, line)
+        for i, line in enumerate(text.splitlines(), start=1)
+        if line.strip() and not line.lstrip().lstrip('"').startswith("#")
+    ]
     if not lines:
         sheet.problems.append((0, "the file has no header row and no data"))
         return sheet
@@ -111,21 +116,20 @@ def _fmt(value: Any) -> str:
 
 def write_run(run: Mapping[str, Any], batch: Mapping[str, Any]) -> str:
     """One run as a replicate sheet (re-importable) followed by its computed molarities, as CSV text."""
-    out = io.StringIO()
+    out = SafeCsv()
     current = run["current"]
-    out.write(
-        f"# stockroom run {run['id']} of batch {batch['code']} ({batch['reagent']}, nominal {batch['nominal_molarity']} mol/L)\n"
+    out.comment(
+        f"stockroom run {run['id']} of batch {batch['code']} ({batch['reagent']}, nominal {batch['nominal_molarity']} mol/L)"
     )
-    out.write(f"# {run['purpose']} / {run['method']} on {run['performed_on']} by {run['analyst']}\n")
-    out.write(
-        f"# result: {current['molarity']:.6f} mol/L, U = {current['expanded_u']:.6f} mol/L "
-        f"(k = {current['k']:g}), n = {current['n']}, at 20 °C\n"
+    out.comment(f"{run['purpose']} / {run['method']} on {run['performed_on']} by {run['analyst']}")
+    out.comment(
+        f"result: {current['molarity']:.6f} mol/L, U = {current['expanded_u']:.6f} mol/L "
+        f"(k = {current['k']:g}), n = {current['n']}, at 20 °C"
     )
-    w = csv.writer(out, lineterminator="\n")
-    w.writerow([*SHEET_COLUMNS, "molarity_mol_l"])
+    out.row([*SHEET_COLUMNS, "molarity_mol_l"])
     excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
     for rep in run["replicates"]:
-        w.writerow(
+        out.row(
             [
                 rep["position"],
                 *(_fmt(rep.get(c)) for c in NUMERIC_COLUMNS),
@@ -133,7 +137,7 @@ def write_run(run: Mapping[str, Any], batch: Mapping[str, Any]) -> str:
                 _fmt(rep["molarity"]),
             ]
         )
-    return out.getvalue()
+    return out.text()
 
 
 HISTORY_COLUMNS = (
@@ -162,15 +166,14 @@ HISTORY_COLUMNS = (
 def write_history(batch: Mapping[str, Any], history: Mapping[str, Any]) -> str:
     """A batch's runs, decisions and releases, one row per run, as CSV text."""
     releases = {r["run_id"]: r for r in history["releases"]}
-    out = io.StringIO()
-    w = csv.writer(out, lineterminator="\n")
-    w.writerow(HISTORY_COLUMNS)
+    out = SafeCsv()
+    out.row(HISTORY_COLUMNS)
     for run in history["runs"]:
         cur = run["current"] or {}
         rel = releases.get(run["id"])
         source = run["lot"]["code"] if run.get("lot") else (run["reference"]["code"] if run.get("reference") else "")
         decision = run["decision"] or {}
-        w.writerow(
+        out.row(
             [
                 batch["code"],
                 batch["reagent"],
@@ -194,7 +197,7 @@ def write_history(batch: Mapping[str, Any], history: Mapping[str, Any]) -> str:
             ]
         )
     for wd in history["withdrawals"]:
-        w.writerow(
+        out.row(
             [
                 batch["code"],
                 batch["reagent"],
@@ -217,7 +220,7 @@ def write_history(batch: Mapping[str, Any], history: Mapping[str, Any]) -> str:
                 "",
             ]
         )
-    return out.getvalue()
+    return out.text()
 
 
 def rows_as_replicates(rows: Sequence[SheetRow], secondary: bool) -> list[dict[str, str]]:

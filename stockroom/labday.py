@@ -50,6 +50,7 @@ from dataclasses import dataclass, field
 from enum import StrEnum
 
 from stockroom import chemistry, corrections, drift
+from stockroom.csvsafe import SafeCsv
 from stockroom.drift import Flag
 from stockroom.errors import FieldError, InvalidInput
 from stockroom.policy import (
@@ -812,14 +813,13 @@ RESULT_COLUMNS = (
 
 def results_to_csv(results: Sequence[ClassResult], about: Mapping[str, str]) -> str:
     """The corrected results as CSV text, preceded by `# key: value` lines saying how they were made."""
-    out = io.StringIO()
+    out = SafeCsv()
     for k, v in about.items():
-        out.write(f"# {k}: {v}\n")
-    w = csv.writer(out, lineterminator="\n")
-    w.writerow(RESULT_COLUMNS)
+        out.comment(f"{k}: {v}")
+    out.row(RESULT_COLUMNS)
     for res in results:
         r = res.row
-        w.writerow(
+        out.row(
             [
                 r.line,
                 r.group,
@@ -834,4 +834,4 @@ def results_to_csv(results: Sequence[ClassResult], about: Mapping[str, str]) -> 
                 r.notes,
             ]
         )
-    return out.getvalue()
+    return out.text()

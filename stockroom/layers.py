@@ -30,6 +30,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.preparation",
             "stockroom.traceability",
             "stockroom.hazards",
+            "stockroom.csvsafe",
             "stockroom.csvio",
             "stockroom.parsing",
             "stockroom.run_input",

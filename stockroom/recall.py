@@ -14,9 +14,7 @@ suspect (policy.release_in_force, day by day), and every class-data correction m
 
 from __future__ import annotations
 
-import csv
 import datetime as dt
-import io
 import sqlite3
 import weakref
 from collections import defaultdict
@@ -26,8 +24,8 @@ from typing import Any
 
 import sqlite_utils
 
+from stockroom import csvsafe, formatting, records, traceability
 from stockroom import db as dbmod
-from stockroom import formatting, records, traceability
 from stockroom import instruments as inst_mod
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
 from stockroom.policy import ReviewFact, Status, release_in_force, status_on
@@ -768,14 +766,6 @@ CSV_COLUMNS = (
 )
 
 
-def _cell(value: Any) -> str:
-    """A CSV cell; text a spreadsheet would read as a formula gets a leading apostrophe."""
-    if value is None:
-        return ""
-    text = str(value)
-    return "'" + text if text[:1] in ("=", "+", "-", "@", "\t", "\r") else text
-
-
 def impact_csv(report: Impact) -> str:
     """The impact report as CSV text: `# key: value` lines about the recall, then one row per finding.
 
@@ -784,7 +774,7 @@ def impact_csv(report: Impact) -> str:
     class-data correction made with a reached release). Molarities in mol/L.
     """
     rc = report.recall
-    out = io.StringIO()
+    out = csvsafe.SafeCsv()
     about = {
         "stockroom recall": str(rc.id),
         "suspect": f"{rc.subject_label} ({rc.subject_detail})",
@@ -799,14 +789,13 @@ def impact_csv(report: Impact) -> str:
         "class-data corrections made with them": str(len(report.corrections)),
     }
     for k, v in about.items():
-        out.write(f"# {k}: {' '.join(v.split())}\n")
-    w = csv.writer(out, lineterminator="\n")
-    w.writerow(CSV_COLUMNS)
+        out.comment(f"{k}: {v}")
+    out.row(CSV_COLUMNS)
     blank = dict.fromkeys(CSV_COLUMNS, "")
 
     def row(**values: Any) -> None:
         line = {**blank, **values}
-        w.writerow([_cell(line[c]) for c in CSV_COLUMNS])
+        out.row([line[c] for c in CSV_COLUMNS])
 
     for r in report.releases:
         row(
@@ -846,7 +835,7 @@ def impact_csv(report: Impact) -> str:
             rows=c["row_count"],
             note=f"recorded {c['recorded_at']} by {c['recorded_by']}",
         )
-    return out.getvalue()
+    return out.text()
 
 
 # ---------------------------------------------------------------------------------------------------------

@@ -841,6 +841,20 @@ def _keyed_trail(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
+# Sign-in throttling state (stockroom.accounts.throttle_until): failures per key since its last success.
+# Operational, not a record: rows are updated and deleted; the attempts themselves stay in signin_attempts.
+@MIGRATIONS(name="0009_signin_throttle")
+def _signin_throttle(db: sqlite_utils.Database) -> None:
+    db.execute(
+        """CREATE TABLE signin_throttle (
+        id INTEGER PRIMARY KEY,
+        key TEXT NOT NULL UNIQUE,                   -- address:<ip>, account:<username>, device:<id>
+        failures INTEGER NOT NULL,
+        last_failure TEXT NOT NULL
+    )"""
+    )
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 
 

@@ -22,9 +22,11 @@ TEST_PASSWORD = "violet kettle under the stairs"
 
 @pytest.fixture(autouse=True)
 def _no_failure_delay(monkeypatch):
-    # The pause after a failed attempt is real in production; tests count the calls instead of waiting.
+    # A failed attempt must never sleep in a server thread: any call to time.sleep is recorded here.
+    import time
+
     calls = []
-    monkeypatch.setattr(accounts.time, "sleep", calls.append)
+    monkeypatch.setattr(time, "sleep", calls.append)
     return calls
 
 
@@ -138,7 +140,7 @@ def test_authenticate_right_wrong_unknown_and_case(database, make_user, _no_fail
     assert accounts.authenticate(database, "GRACE", TEST_PASSWORD) == user
     assert _no_failure_delay == []  # no pause on success
     assert accounts.authenticate(database, "grace", TEST_PASSWORD + "x") is None
-    assert _no_failure_delay == [accounts.FAILURE_DELAY_S]
+    assert _no_failure_delay == []  # nor on failure: throttling answers 429 instead of sleeping
     # An unknown name still costs a hash check, so it is not told apart by timing.
     checked = []
     real = accounts.check_password_hash
@@ -174,43 +176,57 @@ def test_last_admin_cannot_be_disabled(database, make_user):
 # ---------------------------------------------------------------- lock-out
 
 
-def test_five_failures_pause_the_username_for_fifteen_minutes(database, make_user):
+def test_backoff_doubles_after_five_free_failures_up_to_fifteen_minutes():
+    assert [accounts.backoff(n).total_seconds() for n in range(9)] == [0, 0, 0, 0, 0, 2, 4, 8, 16]
+    assert accounts.backoff(13) == dt.timedelta(seconds=512)
+    assert accounts.backoff(14) == accounts.backoff(500) == dt.timedelta(minutes=15)
+
+
+def test_failures_back_off_exponentially_without_sleeping(database, make_user, _no_failure_delay):
     make_user("rosalind", "staff")
     t0 = dt.datetime(2026, 3, 2, 9, 0, tzinfo=dt.UTC)
     for i in range(5):
-        moment = t0 + dt.timedelta(minutes=i)
-        assert accounts.authenticate(database, "rosalind", f"wrong guess {i}", now=moment) is None
-    last = t0 + dt.timedelta(minutes=4)
-    # Even the right password is refused during the pause, and the refusal does not extend it.
-    with pytest.raises(accounts.SignInLocked) as locked:
-        accounts.authenticate(database, "rosalind", TEST_PASSWORD, now=last + dt.timedelta(minutes=1))
-    assert locked.value.until == last + dt.timedelta(minutes=15)
-    assert "14 minutes" in locked.value.message and locked.value.status == 429
-    with pytest.raises(accounts.SignInLocked):
-        accounts.authenticate(database, "Rosalind", TEST_PASSWORD, now=last + dt.timedelta(minutes=14, seconds=59))
-    resumed = last + dt.timedelta(minutes=15)
-    assert accounts.authenticate(database, "rosalind", TEST_PASSWORD, now=resumed) is not None
-    assert len(_events(database, "account.signin_paused")) == 2
-    # The success clears the count: one more failure does not pause again.
-    later = last + dt.timedelta(minutes=16)
-    assert accounts.authenticate(database, "rosalind", "wrong again", now=later) is None
-    assert accounts.lockout_until(database, "rosalind", later) is None
+        assert accounts.authenticate(database, "rosalind", f"wrong guess {i}", now=t0, client="10.0.0.9") is None
+    # The sixth attempt within 2 s is refused at once, even with the right password, and writes nothing.
+    attempts = database.execute("SELECT count(*) FROM signin_attempts").fetchone()[0]
+    with pytest.raises(accounts.SignInThrottled) as held:
+        accounts.authenticate(database, "rosalind", TEST_PASSWORD, now=t0 + dt.timedelta(seconds=1), client="10.0.0.9")
+    assert held.value.status == 429 and held.value.retry_after == 1 and "1 second" in held.value.message
+    assert database.execute("SELECT count(*) FROM signin_attempts").fetchone()[0] == attempts
+    # A sixth failure after the wait doubles it: 4 s.
+    assert accounts.authenticate(database, "rosalind", "wrong", now=t0 + dt.timedelta(seconds=2), client="10.0.0.9") is None
+    assert accounts.throttle_until(database, accounts.throttle_keys("rosalind", "10.0.0.9", None), t0) == t0 + dt.timedelta(
+        seconds=6
+    )
+    user = accounts.authenticate(database, "rosalind", TEST_PASSWORD, now=t0 + dt.timedelta(seconds=6), client="10.0.0.9")
+    assert user is not None and _no_failure_delay == []
+    # The success clears the counts.
+    assert database.execute("SELECT count(*) FROM signin_throttle").fetchone()[0] == 0
 
 
-def test_failures_spread_beyond_the_window_do_not_pause(database, make_user):
+def test_guesses_from_elsewhere_do_not_hold_up_a_known_browser(database, make_user):
     make_user("marie", "staff")
     t0 = dt.datetime(2026, 3, 2, 9, 0, tzinfo=dt.UTC)
-    for i in range(5):  # 5 failures over 16 minutes: never 5 within 15
-        accounts.authenticate(database, "marie", "not it at all", now=t0 + dt.timedelta(minutes=4 * i))
-    assert accounts.lockout_until(database, "marie", t0 + dt.timedelta(minutes=16)) is None
+    for i in range(40):  # a flood of guesses from many addresses: the username ends up waiting minutes
+        try:
+            accounts.authenticate(database, "marie", "guess", now=t0 + dt.timedelta(seconds=i * 30), client=f"203.0.113.{i}")
+        except accounts.SignInThrottled:
+            pass
+    later = t0 + dt.timedelta(minutes=20, seconds=1)
+    with pytest.raises(accounts.SignInThrottled):
+        accounts.authenticate(database, "marie", TEST_PASSWORD, now=later, client="198.51.100.7")
+    # Her own browser, holding the device cookie of a past sign-in, is counted on its own and gets in.
+    assert accounts.authenticate(database, "marie", TEST_PASSWORD, now=later, client="198.51.100.7", device="d1") is not None
 
 
-def test_unknown_usernames_are_paused_too(database, quick_password_hashing):
+def test_one_address_guessing_many_usernames_is_held_up(database, quick_password_hashing):
     t0 = dt.datetime(2026, 3, 2, 9, 0, tzinfo=dt.UTC)
-    for _ in range(5):
-        accounts.authenticate(database, "ghost", "whatever it is", now=t0)
-    with pytest.raises(accounts.SignInLocked):
-        accounts.authenticate(database, "ghost", "whatever it is", now=t0)
+    for i in range(5):
+        accounts.authenticate(database, f"ghost{i}", "whatever it is", now=t0, client="192.0.2.5")
+    with pytest.raises(accounts.SignInThrottled):
+        accounts.authenticate(database, "someone-else", "whatever it is", now=t0, client="192.0.2.5")
+    # Another address is not affected.
+    assert accounts.authenticate(database, "someone-else", "whatever it is", now=t0, client="192.0.2.6") is None
 
 
 def test_attempt_log_is_append_only(database, make_user):
@@ -228,8 +244,27 @@ def test_sign_in_page_shows_the_pause(client, form_token, make_user):
     for _ in range(5):
         assert _sign_in(client, form_token, "lise", "wrong wrong wrong").status_code == 401
     resp = _sign_in(client, form_token, "lise", TEST_PASSWORD)
-    assert resp.status_code == 429
-    assert "paused after 5 failed attempts" in resp.get_data(as_text=True)
+    assert resp.status_code == 429 and 1 <= int(resp.headers["Retry-After"]) <= 2
+    assert "Too many failed sign-ins" in resp.get_data(as_text=True)
+
+
+def test_a_device_cookie_from_a_past_sign_in_gets_past_a_flood(app, form_token, make_user):
+    make_user("lise", "staff")
+    own = app.test_client()
+    assert _sign_in(own, form_token, "lise", TEST_PASSWORD).status_code == 303
+    assert own.get_cookie("stockroom_device", path="/sign-in") is not None
+    own.post("/sign-out", data={"csrf_token": form_token(own, "/")})
+    # Guesses from another browser (same test address, no cookie) hold that browser up ...
+    other = app.test_client()
+    for _ in range(5):
+        assert _sign_in(other, form_token, "lise", "wrong wrong wrong").status_code == 401
+    assert _sign_in(other, form_token, "lise", TEST_PASSWORD).status_code == 429
+    # ... but not her own browser, which signs in at once.
+    assert _sign_in(own, form_token, "lise", TEST_PASSWORD).status_code == 303
+    # A forged cookie counts for nothing.
+    forged = app.test_client()
+    forged.set_cookie("stockroom_device", "eyJ1IjoibGlzZSIsImQiOiJ4In0.forged", path="/sign-in")
+    assert _sign_in(forged, form_token, "lise", TEST_PASSWORD).status_code == 429
 
 
 # ---------------------------------------------------------------- the sign-in page and sessions

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import csv
 import datetime as dt
 import hashlib
 import io
@@ -565,7 +566,7 @@ def test_class_data_correction_is_recorded_and_downloadable(demo_app):
     expected = release["molarity"] * 24.62 * 2 / 25.00
     assert f"{expected:.5f} mol/L" in html
     csv_text = c.get(f"/lab-day/corrections/{row['id']}.csv").get_data(as_text=True)
-    data = [line.split(",") for line in csv_text.splitlines() if not line.startswith("#")]
+    data = [r for r in csv.reader(io.StringIO(csv_text)) if not r[0].startswith("#")]
     assert data[0][:3] == ["line", "group", "aliquot_ml"] and len(data) == 3
     assert float(data[1][6]) == pytest.approx(expected, abs=5e-7)
     assert float(data[1][7]) == pytest.approx((0.1 / release["molarity"] - 1) * 100, abs=5e-4)

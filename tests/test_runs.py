@@ -127,7 +127,7 @@ def test_record_then_accept_releases_the_batch(app, setup, signed_in_client, for
     body = staff.get(f"/api/v1/batches/{code}").get_json()
     assert body["status"] == "in_service"
     assert body["releases"][0]["molarity"] == pytest.approx(run["current"]["molarity"])
-    assert body["releases"][0]["released_by"] == "staff-user"
+    assert body["releases"][0]["released_by"] == "Staff-User"  # the display name, never the sign-in name
     # The value in force carries the expanded uncertainty U = k u of its release, everywhere it is shown.
     release = body["releases"][0]
     assert release["U"] == pytest.approx(release["k"] * release["u"])
@@ -292,7 +292,9 @@ def test_exports(app, setup, signed_in_client, form_token):
     run_csv = staff.get(f"/runs/{run_id}.csv")
     assert run_csv.mimetype == "text/csv"
     assert run_csv.headers["Content-Disposition"] == f'attachment; filename="{code}-run-{run_id}.csv"'
-    rows = list(csv.DictReader(line for line in run_csv.get_data(as_text=True).splitlines() if not line.startswith("#")))
+    rows = list(
+        csv.DictReader(line for line in run_csv.get_data(as_text=True).splitlines() if not line.lstrip('"').startswith("#"))
+    )
     assert [float(r["final_ml"]) for r in rows] == [float(f) for *_, f in GOOD]
     history = staff.get(f"/batches/{code}/history.csv").get_data(as_text=True)
     hist = list(csv.DictReader(io.StringIO(history)))

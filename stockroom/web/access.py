@@ -18,6 +18,8 @@ the URL map and find a write route without a rule.
 from __future__ import annotations
 
 import functools
+import threading
+import time
 from collections.abc import Callable
 from typing import Any, TypeVar
 from urllib.parse import urlsplit
@@ -200,19 +202,67 @@ def api_require(permission: str) -> Callable[[F], F]:
     return decorate
 
 
+class RefusalTally:
+    """Refused requests counted per client (address and user) and minute; only the first of each minute is logged.
+
+    A refused page costs a hash-chained audit entry; a few sessions reloading a refused page would
+    otherwise append hundreds a second. The entry of a new minute carries how many refusals of that
+    client went unlogged since its previous entry. Counts live in this process (a restart loses at
+    most the unlogged tail, never an entry).
+    """
+
+    def __init__(self) -> None:
+        self._lock = threading.Lock()
+        self._minute = -1
+        self._logged: set[tuple[str, str]] = set()
+        self._unlogged: dict[tuple[str, str], int] = {}
+
+    def note(self, client: tuple[str, str], minute: int) -> int | None:
+        """Count one refusal; the unlogged count to put in a new entry, or None when this one is not logged."""
+        with self._lock:
+            if minute != self._minute:
+                self._minute = minute
+                self._logged = set()
+            if client in self._logged:
+                self._unlogged[client] = self._unlogged.get(client, 0) + 1
+                return None
+            self._logged.add(client)
+            return self._unlogged.pop(client, 0)
+
+
 def refuse(user: User, permission: str) -> None:
-    """Log a refused authorisation in the audit trail and raise Forbidden (403)."""
+    """Count a refused authorisation (logged in the audit trail once per client and minute); raise Forbidden (403)."""
     from stockroom import db as dbmod
 
-    db = get_db()
-    with dbmod.write(db):
-        records.append_event(
-            db,
-            user.username,
-            "access.refused",
-            detail={"permission": permission, "method": request.method, "path": request.path, "role": user.role},
-        )
+    unlogged = current_app.extensions["stockroom_refusals"].note(
+        (request.remote_addr or "", user.username), int(time.time() // 60)
+    )
+    if unlogged is not None:
+        db = get_db()
+        with dbmod.write(db):
+            records.append_event(
+                db,
+                user.username,
+                "access.refused",
+                detail={
+                    "permission": permission,
+                    "method": request.method,
+                    "path": request.path,
+                    "role": user.role,
+                    "address": request.remote_addr or "",
+                    "refused_unlogged_before": unlogged,
+                },
+            )
     raise Forbidden(f"Your role ({user.role_label}) does not allow you to {accounts.PERMISSIONS[permission]}.")
+
+
+def _no_store(response: Any) -> Any:
+    """after_request: pages for a signed-in user (the token page above all) are never kept by a cache."""
+    signed_in = g.get("stockroom_user", None) is not None or any(k in session for k in _KEYS)
+    if (signed_in or request.endpoint == "account.tokens") and request.endpoint != "static":
+        response.headers["Cache-Control"] = "no-store"
+        response.vary.add("Cookie")
+    return response
 
 
 def _gate() -> Any:
@@ -232,6 +282,8 @@ def _gate() -> Any:
 def init_app(app: Flask) -> None:
     """Register the gate in front of every view and expose `current_user` and `user_can` to templates."""
     app.before_request(_gate)
+    app.after_request(_no_store)
+    app.extensions["stockroom_refusals"] = RefusalTally()
     # Browsers then send the session cookie on top-level navigation from other sites but not on their
     # form posts or scripted requests: a second line behind the CSRF token. Strict may be set instead.
     app.config["SESSION_COOKIE_SAMESITE"] = app.config.get("SESSION_COOKIE_SAMESITE") or "Lax"

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import secrets
 from typing import Any
 
-from flask import Blueprint, abort, flash, redirect, render_template, request, url_for
+from flask import Blueprint, abort, current_app, flash, redirect, render_template, request, url_for
+from itsdangerous import BadSignature, URLSafeTimedSerializer
 
 from stockroom import accounts
 from stockroom.accounts import SignInLocked, SignInRefused
@@ -13,6 +15,32 @@ from stockroom.errors import InvalidInput
 from stockroom.web.access import begin_session, current_user, end_session, login_required, public, safe_next
 
 bp = Blueprint("account", __name__)
+
+# The device cookie: set at a successful sign-in, it lets this browser's later attempts for the same
+# username be counted on their own (stockroom.accounts.throttle_keys), so guesses from elsewhere
+# cannot hold up the person who signs in from their own browser. Signed with SECRET_KEY; it grants
+# nothing by itself (the password is still needed).
+DEVICE_COOKIE = "stockroom_device"
+DEVICE_MAX_AGE_S = 180 * 24 * 3600
+
+
+def _devices() -> URLSafeTimedSerializer:
+    return URLSafeTimedSerializer(current_app.config["SECRET_KEY"], salt="stockroom.sign-in-device")
+
+
+def _device_for(username: str) -> str | None:
+    """The device id of this browser's cookie if it was set by a sign-in to `username`, else None."""
+    raw = request.cookies.get(DEVICE_COOKIE)
+    if not raw:
+        return None
+    try:
+        value = _devices().loads(raw, max_age=DEVICE_MAX_AGE_S)
+    except BadSignature:
+        return None
+    if not isinstance(value, dict) or str(value.get("u", "")).lower() != username.strip().lower():
+        return None
+    device = value.get("d")
+    return device if isinstance(device, str) and device else None
 
 
 def _home() -> str:
@@ -31,7 +59,7 @@ def _sign_in_page(status: int = 200, **context: Any) -> tuple[str, int]:
 @public
 def sign_in() -> Any:
     nxt = safe_next(request.values.get("next"))
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         if current_user() is not None:
             return redirect(nxt or _home(), code=303)
         return _sign_in_page(next=nxt)
@@ -45,10 +73,12 @@ def sign_in() -> Any:
         errors["password"] = "Enter your password."
     if errors:
         return _sign_in_page(422, errors=errors, form=form, next=nxt)
+    device = _device_for(username)
     try:
-        user = accounts.authenticate(get_db(), username, password)
+        user = accounts.authenticate(get_db(), username, password, client=request.remote_addr or "", device=device)
     except SignInLocked as exc:
-        return _sign_in_page(429, notice=exc.message, form=form, next=nxt)
+        page, status = _sign_in_page(429, notice=exc.message, form=form, next=nxt)
+        return page, status, {"Retry-After": str(getattr(exc, "retry_after", 60))}
     except SignInRefused as exc:
         return _sign_in_page(403, notice=exc.message, form=form, next=nxt)
     if user is None:
@@ -57,7 +87,12 @@ def sign_in() -> Any:
         )
     begin_session(user)
     flash(f"Signed in as {user.display_name} ({user.role_label}).", "info")
-    return redirect(nxt or _home(), code=303)
+    resp = redirect(nxt or _home(), code=303)
+    cookie = _devices().dumps({"u": user.username.lower(), "d": device or secrets.token_urlsafe(16)})
+    resp.set_cookie(
+        DEVICE_COOKIE, cookie, max_age=DEVICE_MAX_AGE_S, httponly=True, samesite="Lax", secure=request.is_secure, path="/sign-in"
+    )
+    return resp
 
 
 @bp.post("/sign-out")
@@ -73,7 +108,7 @@ def sign_out() -> Any:
 def password() -> Any:
     user = current_user()
     assert user is not None
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         return render_template("account/password.html", errors={}, notice=None)
     current = request.form.get("current_password", "")
     new = request.form.get("new_password", "")
@@ -108,7 +143,7 @@ def first_run() -> Any:
     db = get_db()
     if accounts.has_users(db):
         abort(404, "Set-up is done: accounts exist. Sign in, or ask an administrator for an account.")
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         return render_template("account/first_run.html", errors={}, form={})
     username = request.form.get("username", "").strip()
     display_name = " ".join(request.form.get("display_name", "").split())

@@ -7,7 +7,7 @@ from typing import Any
 
 from flask import Blueprint, current_app, jsonify, request
 
-from stockroom import readmodel, records
+from stockroom import accounts, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import StatusReport
 from stockroom.web import lab_today, parse_date_arg
@@ -82,6 +82,8 @@ def batch(code: str) -> Any:
 
     report = status_on(readmodel.batch_facts(db, b["id"]), on)
     history = readmodel.batch_history(db, b["id"])
+    # Open reads show who released by display name: a sign-in name here would tell guessers whom to lock out.
+    shown = {u.username.lower(): u.display_name for u in accounts.list_users(db)}
     body = _summary(b, report)
     body.update(
         {
@@ -99,7 +101,7 @@ def batch(code: str) -> Any:
                     "reference_temperature_c": r["reference_temperature_c"],
                     "released_on": r["released_on"],
                     "expires_on": r["expires_on"],
-                    "released_by": r["recorded_by"],
+                    "released_by": shown.get(r["recorded_by"].lower(), r["recorded_by"]),
                     "superseded": r["superseded"],
                 }
                 for r in history["releases"]

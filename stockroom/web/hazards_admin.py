@@ -101,7 +101,7 @@ def _context(today: dt.date) -> dict[str, Any]:
 @require("hazard.edit")
 def hazard_data() -> Any:
     today = lab_today()
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         values = {"effective_from": today.isoformat(), "signal_word": "Warning", "min_molarity": "0"}
         return render_template("admin/hazards.html", values=values, errors={}, chosen=[], **_context(today))
     chosen = request.form.getlist("pictograms")

@@ -250,7 +250,7 @@ def list_instruments() -> str:
 @require("instrument.register")
 def new_instrument() -> Any:
     today = lab_today()
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         kind = request.args.get("kind", "")
         return render_template(
             "instruments/new.html", values={"kind": kind, "accuracy_class": "A", "outcome": "pass"}, errors={}, **_context()

@@ -103,7 +103,7 @@ def new_batch() -> Any:
     pols = records.policies(db, today)
     user = current_user()
     assert user is not None
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         defaults = {"prepared_on": today.isoformat(), "prepared_by": user.display_name, "source_form": LIQUID}
         return _batch_page(pols, defaults)
     if request.form.get("action") == "plan":
@@ -183,7 +183,7 @@ def withdraw(code: str) -> Any:
     batch = records.batch_by_code(db, code)
     existing = records.withdrawal_of(db, batch["id"])
     context: dict[str, Any] = {"batch": batch, "existing": existing, "labels": WITHDRAW_LABELS}
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         return render_template("intake/withdraw.html", values={"withdrawn_on": today.isoformat()}, errors={}, **context)
     user = current_user()
     assert user is not None

@@ -356,7 +356,7 @@ def _held_message(entry: ld.LabDayEntry, choices: list[ld.LabDayEntry]) -> str:
 @require("classdata.correct")
 def correct() -> Any:
     """Upload a class's results for a lab day; each is recomputed with the molarity in force that day."""
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         values = {
             "lab_day": request.args.get("date") or lab_today().isoformat(),
             "titrant": request.args.get("titrant", ""),

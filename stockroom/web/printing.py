@@ -135,7 +135,7 @@ def print_labels(code: str) -> Any:
     batch = records.batch_by_code(db, code)
     available, broken = layouts.load_all()
     ctx = _context(batch, available, broken)
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         wanted = request.args.get("layout")
         values = {
             "layout": wanted

@@ -75,7 +75,7 @@ def list_recalls() -> str:
 def new_recall() -> Any:
     today = lab_today()
     context: dict[str, Any] = {"groups": _subject_groups(), "labels": LABELS, "today": today}
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         values = {"subject": request.args.get("subject", ""), "suspect_from": request.args.get("suspect_from", "")}
         return render_template("recalls/new.html", values=values, errors={}, **context)
     form = request.form

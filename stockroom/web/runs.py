@@ -127,7 +127,7 @@ def new_run(code: str) -> Any:
     }
     ctx = _form_context(batch, method, "certify", today)
     defaults["purpose"] = request.args.get("purpose") or ("recheck" if ctx["in_force"] else "certify")
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         return _render_form(ctx, defaults, [], None, result=None)
     form = request.form
     data = run_input.from_form(form)
@@ -228,7 +228,7 @@ def import_sheet(code: str) -> Any:
     db = get_db()
     batch = records.batch_by_code(db, code)
     method = _method_arg()
-    if request.method == "GET":
+    if request.method != "POST":  # HEAD answers like GET and never writes
         return render_template("runs/import.html", batch=batch, method=method, problems=[], columns=csvio.SHEET_COLUMNS)
     upload = request.files.get("sheet")
     problems: list[tuple[int, str]] = []
