@@ -6,7 +6,8 @@ import datetime as dt
 import json
 
 import pytest
-from conftest import TEST_PASSWORD
+
+TEST_PASSWORD = "violet kettle under the stairs"  # the password conftest.signed_in_client gives (invented)
 
 from stockroom import accounts, tokens
 from stockroom import db as dbmod
