@@ -92,6 +92,9 @@ def record_run(
                 "molarity": result.get("molarity"),
                 "U": result.get("U"),
                 "excluded": [p for p, _ in exclusions],
+                # Checks that fired and the reasons given for going ahead despite them.
+                "checks": [c.get("code") for c in result.get("checks") or []],
+                "overrides": dict(result.get("overrides") or {}),
             },
         )
         # The run's parts belong to its entry: written in the same transaction, after the run row.

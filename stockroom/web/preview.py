@@ -67,6 +67,7 @@ _COMMON_KEYS = {
     "min_replicates",
     "max_rsd",
     "monte_carlo_draws",
+    "overrides",
     *INSTRUMENT_KEYS,
 }
 PRIMARY_KEYS = _COMMON_KEYS | {
@@ -200,6 +201,10 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
             data.get("u_repeatability_rel", MISSING), "u_repeatability_rel", required=False, ge=0, lt=1
         ),
         "burette_capacity_ml": run_input.burette_capacity(p, data.get("burette_capacity_ml", MISSING), required=False),
+        # Checks gone ahead despite, read as every door reads them (run_input.read_overrides).
+        "overrides": run_input.read_overrides(p, data.get("overrides", MISSING)),
+        # The titrant's expansion model refers volumes to 20 °C and its ceiling bounds a plausible result.
+        "titrant": titrant,
     }
     # The replicates by the run parser every door uses (a titre may also be given as volume_ml here).
     reps_raw = data.get("replicates", MISSING)
@@ -453,7 +458,7 @@ def _secondary(
     assert titrant is not None and ref_titrant is not None and nu is not None
     assert ref_molarity is not None and ref_u is not None and aliquot_of is not None
     run = SecondaryRun(
-        reference=Reference(ref_molarity, ref_u, f"reference {ref_titrant.key}"),
+        reference=Reference(ref_molarity, ref_u, f"reference {ref_titrant.key}", expansion=ref_titrant.expansion),
         nu=nu,
         replicates=tuple(replicates),
         aliquot_of=aliquot_of,
