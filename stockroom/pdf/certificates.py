@@ -385,8 +385,9 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                 ),
                 _p(
                     f"Standard uncertainty u = {fmt.uncertainty(release['u'], 'mol/L')}. U is the expanded uncertainty, "
-                    f"U = k · u (JCGM 100:2008), {_coverage_words(release, data.get('result') or {})}. This certificate describes one release; a later release supersedes it, "
-                    "and the batch page shows the value in force today. Handle the solution as its label and safety data "
+                    f"U = k · u (JCGM 100:2008), {_coverage_words(release, data.get('result') or {})}. "
+                    "This certificate describes one release; a later release supersedes it, and the batch page "
+                    "shows the value in force today. Handle the solution as its label and safety data "
                     "sheet say, following local regulations and your institution's chemical hygiene plan.",
                     _SMALL,
                 ),
