@@ -150,6 +150,10 @@ def display_strings(body: dict[str, Any]) -> dict[str, Any]:
         "rsd": formatting.percent(body.get("rsd"), 3),
         "ci95": ci_text,
         "u": f"{formatting.quantity(u, unit, 6)} ({formatting.percent(body.get('u_rel'), 3)})",
+        # How k was chosen, with ν_eff (GUM G.4) or the laboratory's fixed k: as the result panel reads it.
+        "k": formatting.coverage(body["k"]) if body.get("k") is not None else formatting.DASH,
+        "nu_eff": "∞ (every source Type B)" if body.get("nu_eff") is None else f"{body['nu_eff']:.1f}",
+        "coverage": formatting.coverage_basis(body.get("k"), body.get("nu_eff"), body.get("coverage")),
         "monte_carlo": f"u = {formatting.quantity(mc.get('u'), unit, 6)} from {int(mc.get('draws') or 0):,} draws",
         "replicates": [formatting.quantity(r.get("molarity"), unit, 5) for r in body.get("replicates", [])],
         "budget": [
