@@ -188,7 +188,7 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
         instruments = _replace(instruments, **figures)
     rule = _rule(p, data, config)
     titrant = _titrant(p, data.get("titrant", MISSING), "titrant")
-    common = {
+    common: dict[str, Any] = {
         "nominal_molarity": _measurable(
             p,
             p.number(
