@@ -52,6 +52,25 @@ def coverage(k: float) -> str:
     return f"k = {k:.3g}" if abs(k - round(k)) > 1e-9 else f"k = {int(round(k))}"
 
 
+def coverage_basis(k: float | None, nu_eff: float | None, probability: float | None) -> str:
+    """How k was chosen, in words: 'k = 2.78 for 95 % coverage (ν_eff = 4.0, Welch-Satterthwaite, GUM G.4)'.
+
+    k: the coverage factor (dimensionless); nu_eff: effective degrees of freedom (None or inf when every
+    source is Type B); probability: the coverage probability k was taken for (0–1), or None when k was
+    fixed, which reads 'k = 2 fixed by the laboratory's procedure'. A missing k gives a dash.
+    """
+    if k is None or not math.isfinite(k):
+        return DASH
+    if probability is None:
+        return f"{coverage(k)} fixed by the laboratory's procedure"
+    p = f"{fixed(probability * 100, 1).rstrip('0').rstrip('.')} %"
+    if nu_eff is None or not math.isfinite(nu_eff):
+        dof = "ν_eff = ∞: every source is Type B"
+    else:
+        dof = f"ν_eff = {fixed(nu_eff, 1)}, Welch-Satterthwaite, GUM G.4"
+    return f"{coverage(k)} for {p} coverage ({dof})"
+
+
 def value_u(value: float | None, U: float | None, unit: str, k: float | None = None, *, default_decimals: int = 5) -> str:
     """'0.10214 ± 0.00020 mol/L (k = 2)': value ± U in `unit` (both in that unit), at U's second significant figure.
 

@@ -27,7 +27,7 @@ from typing import Any
 import sqlite_utils
 
 from stockroom import db as dbmod
-from stockroom import records, standardization
+from stockroom import glassware, records, standardization
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
 
 KINDS = ("balance", "burette", "pipette")
@@ -37,24 +37,17 @@ KIND_LABELS = {"balance": "balance", "burette": "burette", "pipette": "pipette"}
 ROLES_FOR_METHOD = {"primary": ("balance", "burette"), "secondary": ("burette", "pipette")}
 DUE_SOON_DAYS = 30  # a month's notice to book the next calibration (common practice)
 
-# Class A tolerances, ± mL, by nominal capacity. Burettes: ASTM E287 Table 1 for 10, 25, 50 and 100 mL
-# (the 50 mL figure ±0.05 mL agrees with ISO 385 as secondary sources quote it; the others are from
-# memory). Volumetric (transfer) pipettes: ASTM E969 Class A, from memory. Class B is twice Class A
-# (ASTM E287 1.1.2 states this for burettes; the same rule for pipettes is from memory).
-CLASS_A_TOLERANCE_ML: dict[str, dict[float, float]] = {
-    "burette": {10.0: 0.02, 25.0: 0.03, 50.0: 0.05, 100.0: 0.10},
-    "pipette": {1.0: 0.006, 2.0: 0.006, 5.0: 0.01, 10.0: 0.02, 20.0: 0.03, 25.0: 0.03, 50.0: 0.05, 100.0: 0.08},
-}
-CLASS_FACTOR = {"A": 1.0, "B": 2.0}
-
 
 def class_tolerance(kind: str, accuracy_class: str, capacity: float) -> float | None:
-    """The tolerance (± mL) of Class A or B glassware of a listed capacity (mL), or None when not listed."""
-    factor = CLASS_FACTOR.get(accuracy_class.strip().upper())
-    table = CLASS_A_TOLERANCE_ML.get(kind)
-    if factor is None or table is None or capacity not in table:
+    """The tolerance (± mL) of Class A or B glassware of a listed capacity (mL), or None when not listed.
+
+    The figures are glassware.py's (ISO 385 burettes, ISO 648 one-mark pipettes); an unknown kind or
+    class gives None, as an unlisted capacity does.
+    """
+    if kind not in glassware.KINDS or accuracy_class.strip().upper() not in glassware.CLASSES:
         return None
-    return round(table[capacity] * factor, 6)
+    listed = glassware.lookup(kind, float(capacity), accuracy_class)
+    return None if listed is None else listed.mpe_ml
 
 
 # ---------------------------------------------------------------------------------------------------------
@@ -260,15 +253,26 @@ def figures(config: Mapping[str, Any], chosen: Mapping[str, Instrument], on: dt.
         linearity = balance.linearity_on(on)
         if linearity is not None:
             changes["balance_linearity_g"] = linearity
+    # Glassware: the register's (or its calibration's) tolerance wins; failing that, the table's figure
+    # for its size in its own class, else in the settings' class (BURETTE_CLASS, PIPETTE_CLASS).
     burette = chosen.get("burette")
     if burette is not None:
         changes["burette_capacity_ml"] = burette.capacity
+        if burette.accuracy_class.strip().upper() in glassware.CLASSES:
+            changes["burette_class"] = burette.accuracy_class.strip().upper()
         tol = burette.tolerance_on(on)
+        if tol is None:
+            tol = class_tolerance("burette", changes.get("burette_class", base.burette_class), burette.capacity)
         if tol is not None:
             changes["burette_tolerance_ml"] = tol
     pipette = chosen.get("pipette")
     if pipette is not None:
+        changes["pipette_capacity_ml"] = pipette.capacity
+        if pipette.accuracy_class.strip().upper() in glassware.CLASSES:
+            changes["pipette_class"] = pipette.accuracy_class.strip().upper()
         tol = pipette.tolerance_on(on)
+        if tol is None:
+            tol = class_tolerance("pipette", changes.get("pipette_class", base.pipette_class), pipette.capacity)
         if tol is not None:
             changes["pipette_tolerance_ml"] = tol
     return dataclasses.replace(base, **changes) if changes else base

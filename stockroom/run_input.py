@@ -23,6 +23,7 @@ from typing import Any
 
 from stockroom.errors import FieldError, InvalidInput
 from stockroom.parsing import MISSING, Parser, field_path
+from stockroom.standardization import OVERRIDABLE_CHECKS
 
 
 @dataclass(frozen=True)
@@ -167,6 +168,8 @@ class RunInput:
     reference_batch: str | None = None
     exclusions: Mapping[int, str] = field(default_factory=lambda: MappingProxyType({}))
     instruments: Mapping[str, int] = field(default_factory=lambda: MappingProxyType({}))
+    # Checks gone ahead despite, with the reason (check code from standardization.OVERRIDABLE_CHECKS -> reason).
+    overrides: Mapping[str, str] = field(default_factory=lambda: MappingProxyType({}))
 
     def meta(self) -> dict[str, Any]:
         """The run's own columns as the record layer stores them (without batch and partner ids)."""
@@ -194,7 +197,7 @@ def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None) 
     if not isinstance(data, Mapping):
         raise InvalidInput([FieldError("_body", "the run must be a JSON object")])
     method = p.choice(data.get("method", MISSING), "method", METHODS, default="primary") or "primary"
-    allowed = (*COMMON_KEYS, PARTNER_KEY[method], *(f"{r}_id" for r in ROLES[method]), "replicates")
+    allowed = (*COMMON_KEYS, PARTNER_KEY[method], *(f"{r}_id" for r in ROLES[method]), "replicates", "overrides")
     _refuse_unknown(p, data, allowed, method, "")
     purpose = p.choice(data.get("purpose", MISSING), "purpose", PURPOSES)
     performed_on = _date(p, data.get("performed_on", MISSING), "performed_on", not_after=today, not_before=prepared_on)
@@ -215,6 +218,7 @@ def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None) 
         if iid is not None:
             instruments[role] = iid
     reps, excluded = read_replicates(p, data.get("replicates", MISSING), method, capacity_ml=capacity, run_temperature=run_t)
+    overrides = read_overrides(p, data.get("overrides", MISSING))
     p.raise_if_errors()
     assert purpose is not None and performed_on is not None and analyst is not None and capacity is not None
     return RunInput(
@@ -231,7 +235,42 @@ def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None) 
         reference_batch=reference,
         exclusions=MappingProxyType(dict(excluded)),
         instruments=MappingProxyType(instruments),
+        overrides=MappingProxyType(overrides),
     )
+
+
+def override_path(code: str) -> str:
+    """The request path (and the run form's field name) of one override's reason: overrides[<code>]."""
+    return f"overrides[{code}]"
+
+
+def read_overrides(p: Parser, raw: Any) -> dict[str, str]:
+    """The checks a run goes ahead despite: {check code: reason} -> the same dict, trimmed.
+
+    Codes are those of standardization.OVERRIDABLE_CHECKS; each needs a reason of at most
+    LIMITS.max_reason characters. Errors go to `p`, named overrides[<code>] (an empty map is none).
+    """
+    out: dict[str, str] = {}
+    if raw is MISSING or raw is None:
+        return out
+    if not isinstance(raw, Mapping):
+        p.error("overrides", "must map a check's code to the reason for going ahead despite it")
+        return out
+    codes = ", ".join(OVERRIDABLE_CHECKS)
+    for code, reason in raw.items():
+        if not isinstance(code, str) or code not in OVERRIDABLE_CHECKS:
+            # An unknown key is named only when short enough to read; a long one is reported on the field.
+            shown = code if isinstance(code, str) and len(code) <= 40 and code.isprintable() else None
+            p.error(override_path(shown) if shown else "overrides", f"is not a check that can be gone ahead despite ({codes})")
+            continue
+        path = override_path(code)
+        if reason is None or (isinstance(reason, str) and not reason.strip()):
+            p.error(path, "give the reason for going ahead despite this check")
+            continue
+        text = p.text(reason, path, max_length=LIMITS.max_reason)
+        if text:
+            out[code] = text
+    return out
 
 
 def _refuse_unknown(p: Parser, data: Mapping[str, Any], allowed: Sequence[str], method: str, base: str) -> None:
@@ -420,6 +459,7 @@ def _replicate(
 
 _PATH = re.compile(r"replicates\[(\d+)\](?:\.(\w+))?")
 _FORM = re.compile(r"r(\d+)_(\w+)")
+_OVERRIDE = re.compile(r"overrides\[([^\]]*)\]")
 
 
 def form_name(path: str, rows: Sequence[int] | None = None) -> str:
@@ -454,6 +494,9 @@ def request_path(name: str) -> str:
 
 def label(path: str, rows: Sequence[int] | None = None) -> str:
     """How the run form names a field: replicates[2].final_ml -> "Replicate 3, final reading"."""
+    o = _OVERRIDE.fullmatch(path)
+    if o and o.group(1) in OVERRIDABLE_CHECKS:
+        return f"Reason for going ahead despite {OVERRIDABLE_CHECKS[o.group(1)]}"
     m = _PATH.fullmatch(path)
     if m:
         i = int(m.group(1))
@@ -508,6 +551,14 @@ def from_form(form: Mapping[str, Any]) -> dict[str, Any]:
             rep["exclude_reason"] = str(form.get(f"r{row}_exclude_reason") or "")
         reps.append(rep)
     data["replicates"] = reps
+    # A reason box shown for a refused check: overrides[<code>]; only filled ones count.
+    overrides = {}
+    for key in form:
+        o = _OVERRIDE.fullmatch(str(key))
+        if o and str(form.get(key) or "").strip():
+            overrides[o.group(1)] = str(form.get(key))
+    if overrides:
+        data["overrides"] = overrides
     return data
 
 
@@ -515,7 +566,9 @@ def to_form(data: Mapping[str, Any]) -> dict[str, str]:
     """JSON-shaped run data -> the run form's fields (replicate i in row i + 1): what fills the grid."""
     form: dict[str, str] = {}
     for key, value in data.items():
-        if key != "replicates" and value is not None:
+        if key == "overrides" and isinstance(value, Mapping):
+            form.update({override_path(str(code)): str(reason) for code, reason in value.items()})
+        elif key != "replicates" and value is not None:
             form[key] = str(value)
     for i, rep in enumerate(data.get("replicates") or (), start=1):
         for key, value in rep.items():

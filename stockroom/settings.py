@@ -61,12 +61,62 @@ SETTINGS: tuple[Setting, ...] = (
         float,
     ),
     Setting("DEFAULT_MIN_REPLICATES", 3, "Fewest replicates a run needs to be accepted.", int),
-    Setting("COVERAGE_FACTOR", 2.0, "Coverage factor k for expanded uncertainty U = k u.", float),
+    Setting(
+        "COVERAGE_K_POLICY",
+        "effective-dof",
+        'How k of U = k u is chosen: "effective-dof" takes k = t_p(nu_eff) at COVERAGE_PROBABILITY, nu_eff by '
+        "Welch-Satterthwaite (GUM G.4), so a three-replicate run states k = 2.5 or so rather than claim 95 %; "
+        '"fixed" uses COVERAGE_FACTOR, for a lab whose procedure fixes k = 2 (the certificate then says so).',
+    ),
+    Setting(
+        "COVERAGE_PROBABILITY",
+        0.95,
+        "Coverage probability k is taken for when COVERAGE_K_POLICY is effective-dof (0.95 = 95 %).",
+        float,
+    ),
+    Setting(
+        "COVERAGE_FACTOR",
+        2.0,
+        "Coverage factor k for expanded uncertainty U = k u when COVERAGE_K_POLICY is fixed.",
+        float,
+    ),
+    Setting(
+        "SECONDARY_TEMPERATURE_TERMS",
+        "shared",
+        'How a run against a certified titrant treats temperature: "shared" (one lab temperature acts on the titre '
+        "and the aliquot alike, so only the difference of the two solutions' expansion counts; the physical model "
+        'when both stand on the same bench) or "independent" (two separate terms, as EURACHEM/CITAC QUAM:2012 A3 '
+        "treats them; larger, and what reproduces A3).",
+    ),
     Setting("BALANCE_READABILITY_G", 0.0001, "Analytical balance readability (last digit), g.", float),
     Setting("BALANCE_LINEARITY_G", 0.00015, "Balance linearity half-width (rectangular), g.", float),
     Setting("BURETTE_CAPACITY_ML", 50.0, "Default burette capacity, mL.", float),
-    Setting("BURETTE_TOLERANCE_ML", 0.05, "Default burette tolerance half-width (Class A 50 mL), mL.", float),
-    Setting("PIPETTE_TOLERANCE_ML", 0.03, "Default aliquot pipette tolerance half-width (Class A 25 mL), mL.", float),
+    Setting(
+        "BURETTE_TOLERANCE_ML",
+        None,
+        "Default burette tolerance half-width, mL; empty takes the ISO 385 figure for BURETTE_CAPACITY_ML in "
+        "BURETTE_CLASS (±0.05 mL for a Class A 50 mL burette). A registered burette's own figure wins.",
+        float,
+    ),
+    Setting(
+        "BURETTE_CLASS",
+        "A",
+        "Class (A or B) of the burettes whose tolerance is taken from the ISO 385 table: the default burette, "
+        "a run's burette of another size, a registered burette that states no tolerance and no class.",
+    ),
+    Setting("PIPETTE_CAPACITY_ML", 25.0, "Default aliquot pipette capacity, mL.", float),
+    Setting(
+        "PIPETTE_TOLERANCE_ML",
+        None,
+        "Default aliquot pipette tolerance half-width, mL; empty takes the ISO 648 figure for PIPETTE_CAPACITY_ML "
+        "in PIPETTE_CLASS (±0.03 mL for a Class A 25 mL pipette). A registered pipette's own figure wins.",
+        float,
+    ),
+    Setting(
+        "PIPETTE_CLASS",
+        "A",
+        "Class (A or B) of the one-mark pipettes whose tolerance is taken from the ISO 648 table (as BURETTE_CLASS).",
+    ),
     Setting("LAB_TEMPERATURE_HALF_RANGE_K", 3.0, "Half-width of the lab temperature range (rectangular), K.", float),
     Setting(
         "EXPANSION_COEFFICIENT_PER_K",

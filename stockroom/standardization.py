@@ -138,26 +138,51 @@ class Instruments:
         def get(name: str) -> Any:
             return config.get(name, defaults[name])
 
+        burette_capacity = float(get("BURETTE_CAPACITY_ML"))
+        burette_class = _setting_choice("BURETTE_CLASS", get("BURETTE_CLASS"), glassware.CLASSES, upper=True)
+        pipette_capacity = float(get("PIPETTE_CAPACITY_ML"))
+        pipette_class = _setting_choice("PIPETTE_CLASS", get("PIPETTE_CLASS"), glassware.CLASSES, upper=True)
         return cls(
             balance_readability_g=float(get("BALANCE_READABILITY_G")),
             balance_linearity_g=float(get("BALANCE_LINEARITY_G")),
-            burette_capacity_ml=float(get("BURETTE_CAPACITY_ML")),
-            burette_tolerance_ml=float(get("BURETTE_TOLERANCE_ML")),
-            pipette_tolerance_ml=float(get("PIPETTE_TOLERANCE_ML")),
+            burette_capacity_ml=burette_capacity,
+            burette_tolerance_ml=_setting_tolerance(get("BURETTE_TOLERANCE_ML"), "burette", burette_capacity, burette_class),
+            pipette_tolerance_ml=_setting_tolerance(get("PIPETTE_TOLERANCE_ML"), "pipette", pipette_capacity, pipette_class),
             lab_temperature_half_range_k=float(get("LAB_TEMPERATURE_HALF_RANGE_K")),
             expansion_coefficient_per_k=float(get("EXPANSION_COEFFICIENT_PER_K")),
             coverage_factor=float(get("COVERAGE_FACTOR")),
             monte_carlo_draws=int(get("MONTE_CARLO_DRAWS")),
-            # The settings' default pipette tolerance is that of a Class A 25 mL pipette (its help text).
-            pipette_capacity_ml=25.0,
-            # Until a COVERAGE_K_POLICY setting is declared, the app keeps its fixed k (COVERAGE_FACTOR);
-            # a lab that wants k from ν_eff sets COVERAGE_K_POLICY = "effective-dof".
-            k_policy=str(config.get("COVERAGE_K_POLICY", "fixed")),
-            coverage_probability=float(config.get("COVERAGE_PROBABILITY", 0.95)),
-            # Likewise the app keeps QUAM:2012 A3's two independent temperature terms until a
-            # SECONDARY_TEMPERATURE_TERMS setting is declared ("shared" is the better model, §3 of the docs).
-            temperature_terms=str(config.get("SECONDARY_TEMPERATURE_TERMS", "independent")),
+            burette_class=burette_class,
+            pipette_class=pipette_class,
+            pipette_capacity_ml=pipette_capacity,
+            k_policy=_setting_choice("COVERAGE_K_POLICY", get("COVERAGE_K_POLICY"), K_POLICIES),
+            coverage_probability=float(get("COVERAGE_PROBABILITY")),
+            temperature_terms=_setting_choice(
+                "SECONDARY_TEMPERATURE_TERMS", get("SECONDARY_TEMPERATURE_TERMS"), TEMPERATURE_TERMS
+            ),
         )
+
+
+def _setting_choice(name: str, value: Any, allowed: Sequence[str], upper: bool = False) -> str:
+    """A text setting that must be one of `allowed`; a ValueError naming the setting otherwise."""
+    text = str(value).strip()
+    text = text.upper() if upper else text.lower()
+    if text not in allowed:
+        raise ValueError(f"setting {name} must be one of {', '.join(allowed)} (got {value!r})")
+    return text
+
+
+def _setting_tolerance(value: Any, kind: str, capacity_ml: float, accuracy_class: str) -> float:
+    """A tolerance setting (± mL), or when empty the listed figure for the capacity (mL) and class."""
+    if value is not None and str(value).strip() != "":
+        return float(value)
+    listed = glassware.lookup(kind, capacity_ml, accuracy_class)
+    if listed is None:
+        raise ValueError(
+            f"no Class {accuracy_class} {kind} of {capacity_ml:g} mL is listed: set {kind.upper()}_TOLERANCE_ML "
+            f"(listed capacities: {', '.join(f'{c:g}' for c in glassware.capacities(kind))} mL)"
+        )
+    return listed.mpe_ml
 
 
 def acceptance_rule_from_settings(config: Mapping[str, Any]) -> stats.AcceptanceRule:

@@ -57,10 +57,13 @@ def compute_primary(
     policy: ReagentPolicy,
     burette_capacity_ml: float | None = None,
     figures: standardization.Instruments | None = None,
+    overrides: Mapping[str, str] | None = None,
 ) -> StandardizationResult:
     """Compute a primary run from stored-form replicate dicts (1-based positions in `excluded`).
 
     figures: the instrument figures of the run (instruments.figures); None takes the settings' defaults.
+    overrides: check code -> reason for going ahead despite it (standardization.OVERRIDABLE_CHECKS).
+    The batch's titrant (its expansion model and plausibility ceiling) enters the computation.
     """
     spec = standardization.standard_spec(batch["reagent"], lot["substance"])
     titrant = chemistry.titrant(batch["reagent"])
@@ -87,6 +90,8 @@ def compute_primary(
         exclusions=tuple(standardization.Exclusion(p - 1, why) for p, why in sorted(excluded.items())),
         burette_capacity_ml=burette_capacity_ml,
         alternatives=alternatives,
+        titrant=titrant,
+        overrides=dict(overrides or {}),
     )
     return standardization.standardize_primary(
         run, figures or standardization.Instruments.from_settings(config), rule_for(policy)
@@ -104,12 +109,16 @@ def compute_secondary(
     policy: ReagentPolicy,
     burette_capacity_ml: float | None = None,
     figures: standardization.Instruments | None = None,
+    overrides: Mapping[str, str] | None = None,
 ) -> StandardizationResult:
     """Compute a secondary run: aliquots of this batch titrated with a certified reference batch.
 
     figures: the instrument figures of the run (instruments.figures); None takes the settings' defaults.
+    overrides as for compute_primary. Both titrants' expansion models refer the volumes to 20 °C.
     """
-    nu = chemistry.stoichiometric_factor(chemistry.titrant(batch["reagent"]), chemistry.titrant(reference_batch["reagent"]))
+    titrant = chemistry.titrant(batch["reagent"])
+    ref_titrant = chemistry.titrant(reference_batch["reagent"])
+    nu = chemistry.stoichiometric_factor(titrant, ref_titrant)
     reps = tuple(
         standardization.AliquotReplicate(
             aliquot_ml=float(r["aliquot_ml"]),
@@ -120,12 +129,16 @@ def compute_secondary(
         for r in replicates
     )
     run = standardization.SecondaryRun(
-        reference=standardization.Reference(reference_molarity, reference_u, name=reference_batch["code"]),
+        reference=standardization.Reference(
+            reference_molarity, reference_u, name=reference_batch["code"], expansion=ref_titrant.expansion
+        ),
         nu=nu,
         replicates=reps,
         nominal_molarity=float(batch["nominal_molarity"]),
         exclusions=tuple(standardization.Exclusion(p - 1, why) for p, why in sorted(excluded.items())),
         burette_capacity_ml=burette_capacity_ml,
+        titrant=titrant,
+        overrides=dict(overrides or {}),
     )
     return standardization.standardize_secondary(
         run, figures or standardization.Instruments.from_settings(config), rule_for(policy)
@@ -169,14 +182,30 @@ def run_figures(
 
 
 def _stored_result(
-    result: StandardizationResult, chosen: Mapping[str, inst_mod.Instrument], on: dt.date, purpose: str
+    result: StandardizationResult,
+    chosen: Mapping[str, inst_mod.Instrument],
+    on: dt.date,
+    purpose: str,
+    overridden_by: str | None = None,
 ) -> dict[str, Any]:
-    """The snapshot stored with a run, with the warnings about its instruments added."""
+    """The snapshot stored with a run, with the warnings about its instruments added.
+
+    overridden_by: who gave the run's overrides (the recorder), stored beside them when there are any.
+    """
     body = snapshot(result)
     extra = inst_mod.warnings_for(chosen, on, purpose)
     if extra:
         body["warnings"] = list(body.get("warnings") or []) + extra
+    if overridden_by and result.overrides:
+        body["overridden_by"] = overridden_by
     return body
+
+
+def stored_overrides(run: Mapping[str, Any]) -> dict[str, str]:
+    """The overrides a stored run was recorded with (check code -> reason), carried by its current result."""
+    body = (run.get("current") or {}).get("result") or {}
+    given = body.get("overrides") or {}
+    return {str(k): str(v) for k, v in given.items()} if isinstance(given, Mapping) else {}
 
 
 def _record(
@@ -195,7 +224,7 @@ def _record(
             db,
             run,
             _replicate_rows(replicates, result),
-            _stored_result(result, chosen, on, str(run["purpose"])),
+            _stored_result(result, chosen, on, str(run["purpose"]), overridden_by=actor),
             actor,
             exclusions=sorted(excluded.items()),
         )
@@ -295,12 +324,13 @@ def _compute_resolved(
     reps = [r.stored() for r in run.replicates]
     figures = run_figures(config, chosen, on)
     excluded = dict(run.exclusions)
+    overrides = dict(run.overrides)
     if partner.lot is not None:
-        return compute_primary(config, batch, partner.lot, reps, excluded, policy, run.burette_capacity_ml, figures)
+        return compute_primary(config, batch, partner.lot, reps, excluded, policy, run.burette_capacity_ml, figures, overrides)
     assert partner.reference is not None and partner.release is not None
     rel = partner.release
     return compute_secondary(
-        config, batch, partner.reference, rel.molarity, rel.u, reps, excluded, policy, run.burette_capacity_ml, figures
+        config, batch, partner.reference, rel.molarity, rel.u, reps, excluded, policy, run.burette_capacity_ml, figures, overrides
     )
 
 
@@ -358,13 +388,27 @@ def recompute(
     performed_on = dt.date.fromisoformat(run["performed_on"])
     policy = records.policy_for(db, batch["reagent"], performed_on)
     figures = run_figures(config, inst_mod.instruments_of_run(db, run["id"]), performed_on)
+    # The overrides the run was recorded with hold for every recomputation of it.
+    overrides = stored_overrides(run)
     if run["method"] == "primary":
         lot = records.lot_by_id(db, run["standard_lot_id"])
-        return compute_primary(config, batch, lot, run["replicates"], excluded, policy, run["burette_capacity_ml"], figures)
+        return compute_primary(
+            config, batch, lot, run["replicates"], excluded, policy, run["burette_capacity_ml"], figures, overrides
+        )
     ref_batch = records.batch_by_id(db, run["reference_batch_id"])
     ref = next(r for r in readmodel.batch_facts(db, ref_batch["id"]).releases if r.id == run["reference_release_id"])
     return compute_secondary(
-        config, batch, ref_batch, ref.molarity, ref.u, run["replicates"], excluded, policy, run["burette_capacity_ml"], figures
+        config,
+        batch,
+        ref_batch,
+        ref.molarity,
+        ref.u,
+        run["replicates"],
+        excluded,
+        policy,
+        run["burette_capacity_ml"],
+        figures,
+        overrides,
     )
 
 

@@ -46,7 +46,7 @@ def test_verify_reports_an_edited_entry(demo_db):
     conn = _raw(demo_db)
     conn.execute("DROP TRIGGER events_no_update")  # what someone with a raw SQLite shell could do
     target = conn.execute("SELECT id FROM events WHERE action = 'batch.release' ORDER BY id LIMIT 1").fetchone()[0]
-    conn.execute("UPDATE events SET detail = replace(detail, '\"k\":2.0', '\"k\":1.0') WHERE id = ?", [target])
+    conn.execute("UPDATE events SET detail = replace(detail, '\"k\":', '\"k\":9') WHERE id = ?", [target])
     conn.close()
     result = verify(demo_db)
     assert result.exit_code == 1

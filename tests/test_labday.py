@@ -409,7 +409,10 @@ def test_api_lists_batches_in_force_with_the_fields_asked_for(client):
     ):
         assert key in drifting
     assert drifting["U"] == pytest.approx(drifting["k"] * drifting["u"])  # GUM: U = k·u
-    assert drifting["molarity_at_bench"] == pytest.approx(drifting["molarity"] * (1 - 2.1e-4 * 3))  # QUAM:2012
+    # Referred by the titrant's own model, water's density for dilute NaOH: c·ρ(23 °C)/ρ(20 °C), with
+    # 997.5415 and 998.2071 kg/m3 (CRC Handbook water density table, from memory).
+    assert drifting["molarity_at_bench"] == pytest.approx(drifting["molarity"] * 997.5415 / 998.2071, rel=1e-6)
+    assert drifting["bench_referral_model"] == "water density (Tanaka 2001)"
     lo, hi = drifting["prediction_interval"]["low"], drifting["prediction_interval"]["high"]
     assert lo < drifting["predicted_molarity"] < hi < drifting["molarity"]  # drifted down, below certified
     assert drifting["status"] == "drifting" and drifting["flags"][0]["kind"] == "recheck_outside"

@@ -49,11 +49,26 @@ def post(client, body):
     return client.post(URL, json=body)
 
 
+def _quam_app(client, **config):
+    """An app treating coverage and temperature as QUAM:2012 does: k = 2 fixed, the secondary run's
+    titre and aliquot temperature terms independent (A3). The app's own defaults differ (settings.py)."""
+    return create_app(
+        {
+            "DATABASE": client.application.config["DATABASE"],
+            "TESTING": True,
+            "COVERAGE_K_POLICY": "fixed",
+            "SECONDARY_TEMPERATURE_TERMS": "independent",
+            **config,
+        }
+    )
+
+
 def test_quam_a2_through_the_api(client):
     # QUAM:2012 Example A2 with its own table's standard uncertainties given as overrides:
     # u(m) 0.00013 g, u(V) 0.013 mL, repeatability 0.0005, P 1.0 ± 0.0005 rectangular and
     # M = 204.2212 ± 0.0038 g/mol (older atomic weights) → c = 0.10214, u = 0.00010 mol/L,
-    # relative 0.00097.
+    # relative 0.00097. QUAM states U with k = 2 fixed.
+    client = _quam_app(client).test_client()
     body = {
         "titrant": "NaOH",
         "standard": "KHP",
@@ -90,15 +105,12 @@ def test_quam_a3_through_the_api(client):
     # QUAM:2012 A3: 15 mL HCl aliquots titrated with 14.89 mL of the A2 NaOH → 0.10139 mol/L.
     # u ≈ 0.00018 mol/L with the reference's u (A3's ±4 °C treatment gives 0.000107 mol/L) and
     # this run's own repeatability √(0.001² − 0.0005²); pipette ±0.02 mL, burette ±0.03 mL, ±4 °C.
-    app = create_app(
-        {
-            "DATABASE": client.application.config["DATABASE"],
-            "TESTING": True,
-            "PIPETTE_TOLERANCE_ML": 0.02,
-            "BURETTE_TOLERANCE_ML": 0.03,
-            "LAB_TEMPERATURE_HALF_RANGE_K": 4.0,
-            "MONTE_CARLO_DRAWS": 20_000,
-        }
+    app = _quam_app(
+        client,
+        PIPETTE_TOLERANCE_ML=0.02,
+        BURETTE_TOLERANCE_ML=0.03,
+        LAB_TEMPERATURE_HALF_RANGE_K=4.0,
+        MONTE_CARLO_DRAWS=20_000,
     )
     body = {
         "titrant": "HCl",

@@ -631,8 +631,11 @@ def test_secondary_run_carries_one_shared_temperature_input():
     reps = tuple(AliquotReplicate(aliquot_ml=25.0, volume_ml=v) for v in (24.80, 24.84, 24.78))
     shared = standardize_secondary(SecondaryRun(ref, 1.0, reps, temperature_terms="shared"), fast(DEFAULTS))
     apart = standardize_secondary(SecondaryRun(ref, 1.0, reps, temperature_terms="independent"), fast(DEFAULTS))
-    # The settings keep QUAM A3's independent terms until SECONDARY_TEMPERATURE_TERMS is declared.
-    assert standardize_secondary(SecondaryRun(ref, 1.0, reps), fast(DEFAULTS)).u == apart.u
+    # The settings' default is the shared term (SECONDARY_TEMPERATURE_TERMS); QUAM A3's independent terms
+    # are the setting's other value.
+    assert standardize_secondary(SecondaryRun(ref, 1.0, reps), fast(DEFAULTS)).u == shared.u
+    quam = Instruments.from_settings({"SECONDARY_TEMPERATURE_TERMS": "independent"})
+    assert standardize_secondary(SecondaryRun(ref, 1.0, reps), fast(quam)).u == apart.u
     sources = {ln.source for ln in shared.gum.lines}
     assert "lab temperature (shared by titre and aliquot)" in sources
     assert "titre temperature" not in sources and "aliquot temperature" not in sources
@@ -663,5 +666,7 @@ def test_k_from_effective_degrees_of_freedom():
     assert math.isfinite(r.nu_eff) and r.coverage == 0.95
     assert r.k == pytest.approx(scipy_stats.t.ppf(0.975, math.floor(r.nu_eff)), rel=1e-12)  # scipy.stats.t
     assert r.U == pytest.approx(r.k * r.u, rel=1e-12)
-    # Labs whose procedure fixes k keep it (the settings' default until COVERAGE_K_POLICY is declared).
-    assert standardize_primary(_khp_run(3), fast(DEFAULTS)).k == 2.0
+    # The settings' default policy is effective-dof; labs whose procedure fixes k keep k = 2.
+    assert standardize_primary(_khp_run(3), fast(DEFAULTS)).k == r.k
+    fixed = Instruments.from_settings({"COVERAGE_K_POLICY": "fixed"})
+    assert standardize_primary(_khp_run(3), fast(fixed)).k == 2.0

@@ -280,6 +280,12 @@ def _replicate_rows(data: Mapping[str, Any]) -> tuple[list[str], list[list[Any]]
     return header, rows, widths, tuple(shaded)
 
 
+def _coverage_words(release: Mapping[str, Any], result: Mapping[str, Any]) -> str:
+    """How the release's k was chosen ('k = 2.78 for 95 % coverage (ν_eff = ...)' or '... fixed by the
+    laboratory's procedure'), from the run's result that carries nu_eff and the coverage probability."""
+    return fmt.coverage_basis(release["k"], result.get("nu_eff"), result.get("coverage"))
+
+
 def _statistics(data: Mapping[str, Any]) -> list[tuple[str, Any]]:
     r = data["result"]
     ci = r.get("ci95") or [None, None]
@@ -292,7 +298,10 @@ def _statistics(data: Mapping[str, Any]) -> list[tuple[str, Any]]:
         ("Relative standard deviation", fmt.relative(r.get("sd"), mean)),
         ("95 % confidence interval of the mean", fmt.interval(ci[0], ci[1], "mol/L")),
         ("Combined standard uncertainty u", f"{fmt.uncertainty(r.get('u'), 'mol/L')} ({fmt.relative(r.get('u'), mean)})"),
-        ("Expanded uncertainty U", f"{fmt.uncertainty(r.get('U'), 'mol/L')} ({fmt.coverage(r.get('k', 2))})"),
+        (
+            "Expanded uncertainty U",
+            f"{fmt.uncertainty(r.get('U'), 'mol/L')} ({fmt.coverage_basis(r.get('k', 2), r.get('nu_eff'), r.get('coverage'))})",
+        ),
         (
             "Monte Carlo cross-check (JCGM 101)",
             f"u = {fmt.uncertainty(mc.get('u'), 'mol/L')} from {mc.get('draws', 0):,} draws" if mc else "—",
@@ -300,7 +309,19 @@ def _statistics(data: Mapping[str, Any]) -> list[tuple[str, Any]]:
         ("Ratio to nominal", fmt.quantity(r.get("nominal_ratio"), "", 4).rstrip()),
         ("Acceptance rule", "met" if r.get("accepted") else "not met: " + "; ".join(r.get("reasons", []))),
     ]
+    for line in override_lines(r, (data.get("run") or {}).get("recorded_by")):
+        rows.append(("Check gone ahead despite", line))
     return rows
+
+
+def override_lines(result: Mapping[str, Any], recorded_by: str | None) -> list[str]:
+    """Each overridden check of a run's result: '<what it found> — overridden by <who>: <reason>'."""
+    who = result.get("overridden_by") or recorded_by or "?"
+    return [
+        f"{c.get('message')} — overridden by {who}: {c.get('override_reason')}"
+        for c in result.get("checks") or []
+        if c.get("override_reason")
+    ]
 
 
 def _budget_rows(result: Mapping[str, Any]) -> list[list[Any]]:
@@ -369,8 +390,9 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                 ),
                 _p(
                     f"Standard uncertainty u = {fmt.uncertainty(release['u'], 'mol/L')}. U is the expanded uncertainty, "
-                    "U = k · u (JCGM 100:2008). This certificate describes one release; a later release supersedes it, "
-                    "and the batch page shows the value in force today. Handle the solution as its label and safety data "
+                    f"U = k · u (JCGM 100:2008), {_coverage_words(release, data.get('result') or {})}. "
+                    "This certificate describes one release; a later release supersedes it, and the batch page "
+                    "shows the value in force today. Handle the solution as its label and safety data "
                     "sheet say, following local regulations and your institution's chemical hygiene plan.",
                     _SMALL,
                 ),

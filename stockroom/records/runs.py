@@ -115,6 +115,9 @@ def record_run(
                 "molarity": result.get("molarity"),
                 "U": result.get("U"),
                 "excluded": [p for p, _ in exclusions],
+                # Checks that fired and the reasons given for going ahead despite them.
+                "checks": [c.get("code") for c in result.get("checks") or []],
+                "overrides": dict(result.get("overrides") or {}),
             },
             parts=write_parts,
         )

@@ -7,6 +7,7 @@ from typing import Any
 from flask import Flask
 
 from stockroom.formatting import (
+    coverage_basis,
     date,
     interval,
     molarity,
@@ -38,6 +39,7 @@ def fromjson(text: str | None) -> Any:
 def install(app: Flask) -> None:
     """Register the filters with Jinja."""
     app.add_template_filter(molarity, "molarity")
+    app.add_template_filter(coverage_basis, "coverage_basis")
     app.add_template_filter(value_u, "value_u")
     app.add_template_filter(value_at, "value_at")
     app.add_template_filter(percent_u, "percent_u")

@@ -19,6 +19,7 @@ from typing import Any
 
 from flask import Blueprint, flash, redirect, render_template, request, url_for
 
+from stockroom import glassware
 from stockroom import instruments as inst_mod
 from stockroom.db import get_db
 from stockroom.errors import InvalidInput
@@ -107,7 +108,7 @@ def read_instrument(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, 
 
     Capacity in g (balance) or mL; a balance's readability and linearity in mg; glassware tolerance and
     scale division in mL. Glassware of Class A or B and a listed size may leave the tolerance blank: it
-    is taken from the class table (instruments.CLASS_A_TOLERANCE_ML). Raises InvalidInput naming each field.
+    is taken from the class table (glassware.py: ISO 385 burettes, ISO 648 pipettes). Raises InvalidInput naming each field.
     """
     p = Parser()
     notes: list[str] = []
@@ -234,7 +235,11 @@ def _context() -> dict[str, Any]:
         "kinds": KIND_OPTIONS,
         "classes": CLASS_OPTIONS,
         "outcomes": OUTCOME_OPTIONS,
-        "class_table": inst_mod.CLASS_A_TOLERANCE_ML,
+        # Class A figures by capacity, mL (glassware.py); Class B is shown by the register form's result.
+        "class_table": {
+            kind: {cap: t.mpe_ml for cap in glassware.capacities(kind) if (t := glassware.lookup(kind, cap, "A")) is not None}
+            for kind in glassware.KINDS
+        },
     }
 
 

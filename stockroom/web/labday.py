@@ -15,12 +15,12 @@ from typing import Any
 import sqlite_utils
 from flask import Blueprint, Response, current_app, redirect, render_template, request, url_for
 
-from stockroom import chemistry, readmodel, records
+from stockroom import chemistry, corrections, readmodel, records
 from stockroom import db as dbmod
 from stockroom import labday as ld
 from stockroom.chemistry import UnknownSubstance
 from stockroom.db import get_db
-from stockroom.errors import InvalidInput, NotFound
+from stockroom.errors import InvalidInput, NotFound, StockroomError
 from stockroom.pdf.charts import drift_svg
 from stockroom.pdf.labday_sheet import labday_sheet_pdf
 from stockroom.policy import drift_on
@@ -79,8 +79,19 @@ def load_batches(db: sqlite_utils.Database, titrant: str | None, day: dt.date | 
     ]
 
 
-def _alpha() -> float:
-    return float(current_app.config.get("EXPANSION_COEFFICIENT_PER_K", 2.1e-4))
+def referral_model(reagent: str, molarity: float) -> str:
+    """Which model moves a 20 °C value to the bench temperature, in words, for a titrant (catalogue key)
+    of a strength (mol/L): "water density (Tanaka 2001)" for a dilute one, else its solute's table."""
+    try:
+        model = chemistry.titrant(reagent).expansion
+    except StockroomError:
+        model = corrections.WATER_LIKE
+    if model.kind == "linear":
+        return f"{model.key}: a fixed expansion of {model.alpha_per_k:.3g} /K"
+    if not model.excess_points or molarity <= model.dilute_limit_mol_l:
+        return "water density (Tanaka 2001)"
+    solute = model.key.removeprefix("aqueous ")
+    return f"water density (Tanaka 2001) plus the 1 mol/kg {solute} density table, scaled to {molarity:g} mol/L"
 
 
 # ---------------------------------------------------------------- parsing the question
@@ -145,7 +156,7 @@ def look_up(day: dt.date, titrant: str | None, bench: float | None) -> ld.LabDay
         # Only the batches that can be in force are loaded; when none can, all are, so that the
         # answer can say why (none made yet, all expired, withdrawn...).
         batches = load_batches(db, titrant, day) or load_batches(db, titrant)
-        return ld.lab_day(batches, day, today, titrant, bench, _alpha())
+        return ld.lab_day(batches, day, today, titrant, bench)
 
     return viewcache.cached(db, ("lab-day", day, titrant, bench, today), compute)
 
@@ -167,7 +178,7 @@ def page() -> Any:
         "errors": {},
         "day": None,
         "today": today,
-        "alpha": _alpha(),
+        "referral_model": referral_model,
         "titrants": [(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
     }
     try:
@@ -264,6 +275,7 @@ def entry_json(e: ld.LabDayEntry, bench_asked: bool) -> dict[str, Any]:
         body["bench_temperature_c"] = e.bench_temperature_c
         body["molarity_at_bench"] = e.molarity_at_bench
         body["predicted_molarity_at_bench"] = e.predicted_at_bench
+        body["bench_referral_model"] = referral_model(e.batch.reagent, r.molarity)
     return body
 
 
@@ -444,7 +456,7 @@ def _stored(cid: int) -> tuple[dict[str, Any], tuple[ld.ClassResult, ...], ld.La
     results = ld.correct_class(ld.rows_from_csv(row["rows_csv"]), row["molarity_used"], row["nominal_molarity"])
     day = dt.date.fromisoformat(row["lab_day"])
     batch = next((b for b in load_batches(db, row["titrant"]) if b.id == row["batch_id"]), None)
-    entry = ld.entry_for(batch, day, lab_today(), row["bench_temperature_c"], _alpha()) if batch else None
+    entry = ld.entry_for(batch, day, lab_today(), row["bench_temperature_c"]) if batch else None
     return row, results, entry
 
 

@@ -67,6 +67,7 @@ _COMMON_KEYS = {
     "min_replicates",
     "max_rsd",
     "monte_carlo_draws",
+    "overrides",
     *INSTRUMENT_KEYS,
 }
 PRIMARY_KEYS = _COMMON_KEYS | {
@@ -149,6 +150,10 @@ def display_strings(body: dict[str, Any]) -> dict[str, Any]:
         "rsd": formatting.percent(body.get("rsd"), 3),
         "ci95": ci_text,
         "u": f"{formatting.quantity(u, unit, 6)} ({formatting.percent(body.get('u_rel'), 3)})",
+        # How k was chosen, with ν_eff (GUM G.4) or the laboratory's fixed k: as the result panel reads it.
+        "k": formatting.coverage(body["k"]) if body.get("k") is not None else formatting.DASH,
+        "nu_eff": "∞ (every source Type B)" if body.get("nu_eff") is None else f"{body['nu_eff']:.1f}",
+        "coverage": formatting.coverage_basis(body.get("k"), body.get("nu_eff"), body.get("coverage")),
         "monte_carlo": f"u = {formatting.quantity(mc.get('u'), unit, 6)} from {int(mc.get('draws') or 0):,} draws",
         "replicates": [formatting.quantity(r.get("molarity"), unit, 5) for r in body.get("replicates", [])],
         "budget": [
@@ -183,7 +188,7 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
         instruments = _replace(instruments, **figures)
     rule = _rule(p, data, config)
     titrant = _titrant(p, data.get("titrant", MISSING), "titrant")
-    common = {
+    common: dict[str, Any] = {
         "nominal_molarity": _measurable(
             p,
             p.number(
@@ -200,6 +205,10 @@ def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationR
             data.get("u_repeatability_rel", MISSING), "u_repeatability_rel", required=False, ge=0, lt=1
         ),
         "burette_capacity_ml": run_input.burette_capacity(p, data.get("burette_capacity_ml", MISSING), required=False),
+        # Checks gone ahead despite, read as every door reads them (run_input.read_overrides).
+        "overrides": run_input.read_overrides(p, data.get("overrides", MISSING)),
+        # The titrant's expansion model refers volumes to 20 °C and its ceiling bounds a plausible result.
+        "titrant": titrant,
     }
     # The replicates by the run parser every door uses (a titre may also be given as volume_ml here).
     reps_raw = data.get("replicates", MISSING)
@@ -453,7 +462,7 @@ def _secondary(
     assert titrant is not None and ref_titrant is not None and nu is not None
     assert ref_molarity is not None and ref_u is not None and aliquot_of is not None
     run = SecondaryRun(
-        reference=Reference(ref_molarity, ref_u, f"reference {ref_titrant.key}"),
+        reference=Reference(ref_molarity, ref_u, f"reference {ref_titrant.key}", expansion=ref_titrant.expansion),
         nu=nu,
         replicates=tuple(replicates),
         aliquot_of=aliquot_of,

@@ -16,7 +16,7 @@ from flask import (
     url_for,
 )
 
-from stockroom import chemistry, csvio, readmodel, records, run_input, workflow
+from stockroom import chemistry, csvio, readmodel, records, run_input, standardization, workflow
 from stockroom.db import get_db
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
 from stockroom.policy import release_in_force
@@ -107,7 +107,23 @@ def _render_form(ctx: dict[str, Any], values: Any, errors: list[FieldError], row
     by_field: dict[str, str] = {}
     for name, _label, message in shown:
         by_field.setdefault(name, message)
-    return render_template("runs/new.html", values=values, errors=by_field, error_list=shown, **ctx, **extra)
+    boxes = _override_boxes(extra.get("result"), values, by_field)
+    return render_template(
+        "runs/new.html", values=values, errors=by_field, error_list=shown, override_boxes=boxes, **ctx, **extra
+    )
+
+
+def _override_boxes(result: Any, values: Any, errors: dict[str, str]) -> list[tuple[str, str]]:
+    """(check code, message) for each reason box the form shows: every overridable check the computed
+    result raised, and any override already typed or refused (so a bad reason is shown beside its box)."""
+    boxes: dict[str, str] = {}
+    for c in (result or {}).get("checks") or []:
+        boxes.setdefault(str(c.get("code")), str(c.get("message")))
+    for code, what in standardization.OVERRIDABLE_CHECKS.items():
+        name = run_input.override_path(code)
+        if code not in boxes and (str(values.get(name) or "").strip() or name in errors):
+            boxes[code] = what[:1].upper() + what[1:]
+    return list(boxes.items())
 
 
 @bp.route("/batches/<code>/runs/new", methods=["GET", "POST"])
