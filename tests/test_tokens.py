@@ -7,11 +7,11 @@ import json
 
 import pytest
 
-TEST_PASSWORD = "violet kettle under the stairs"  # the password conftest.signed_in_client gives (invented)
-
 from stockroom import accounts, tokens
 from stockroom import db as dbmod
 from stockroom.errors import InvalidInput
+
+TEST_PASSWORD = "violet kettle under the stairs"  # the password conftest.signed_in_client gives (invented)
 
 NEW_PASSWORD = "copper lantern beside the quarry"  # invented; long, and not on the common list
 
