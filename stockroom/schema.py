@@ -783,6 +783,21 @@ def _instruments_recalls(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
+@MIGRATIONS(name="m008_form_submissions")
+def _form_submissions(db: sqlite_utils.Database) -> None:
+    # Operational, not a record (no audit entry, no append-only trigger): which one-time form ids
+    # were used, by whom, and the page showing what each made (stockroom.web.once).
+    db.execute(
+        """CREATE TABLE form_submissions (
+        id INTEGER PRIMARY KEY,
+        form_id TEXT NOT NULL UNIQUE,
+        username TEXT,
+        location TEXT NOT NULL,
+        submitted_at TEXT NOT NULL
+    )"""
+    )
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 
 
