@@ -1,7 +1,8 @@
 """Races on a run's certified value, driven by real concurrent HTTP requests on loopback.
 
-The real app is served by waitress in a thread; two signed-in clients (cookies, CSRF tokens read
-from pages) are released at once by a threading.Barrier. Each race is repeated 100 times.
+The real app is served by waitress (`stockroom serve` in a subprocess, as test_reliability does);
+two signed-in clients (cookies, CSRF tokens read from pages) are released at once by a
+threading.Barrier. Each race is repeated 100 times.
 
 Race 1: two people leave out different replicates at once; the current result must count both.
 Race 2: one person leaves a replicate out while another accepts; the release must carry the result
@@ -20,8 +21,7 @@ import threading
 from html import unescape
 
 import pytest
-import waitress
-from test_reliability import PASSWORD, Session, _free_port
+from test_reliability import PASSWORD, Server, Session
 
 from stockroom import accounts, create_app, records, run_input, schema, workflow
 from stockroom import db as dbmod
@@ -57,7 +57,7 @@ class FastSession(Session):
 
 @pytest.fixture
 def served(tmp_path):
-    """The real app on waitress in a thread on a free loopback port, with two staff accounts and a lot."""
+    """The real app on waitress on a free loopback port, with two staff accounts, a lot and a batch."""
     path = tmp_path / "races.db"
     conn = dbmod.connect(path)
     schema.migrate(conn)
@@ -82,17 +82,13 @@ def served(tmp_path):
         {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 20, "prepared_on": TODAY.isoformat(), "prepared_by": "t"},
         "test",
     )
+    # The app as served (stockroom serve: waitress) in a subprocess on a free loopback port.
     app = create_app({"DATABASE": str(path), "SECRET_KEY": "races", "LAB_TIMEZONE": "UTC"})
-    port = _free_port()
-    server = waitress.create_server(app, host="127.0.0.1", port=port, threads=8)
-    thread = threading.Thread(target=server.run, daemon=True)
-    thread.start()
-    base = f"http://127.0.0.1:{port}"
+    server = Server(path)
     try:
-        yield {"base": base, "conn": conn, "app": app, "lot": lot, "batch": batch}
+        yield {"base": server.base, "conn": conn, "app": app, "lot": lot, "batch": batch}
     finally:
-        server.close()
-        thread.join(timeout=10)
+        server.stop()
         conn.close()
 
 
