@@ -111,6 +111,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.web.intake",
             "stockroom.web.labday",
             "stockroom.web.lots",
+            "stockroom.web.once",
             "stockroom.web.preview",
             "stockroom.web.printing",
             "stockroom.web.recalls",

@@ -851,6 +851,19 @@ def _signin_throttle(db: sqlite_utils.Database) -> None:
         key TEXT NOT NULL UNIQUE,                   -- address:<ip>, account:<username>, device:<id>
         failures INTEGER NOT NULL,
         last_failure TEXT NOT NULL
+
+
+@MIGRATIONS(name="0010_form_submissions")
+def _form_submissions(db: sqlite_utils.Database) -> None:
+    # Operational, not a record (no audit entry, no append-only trigger): which one-time form ids
+    # were used, by whom, and the page showing what each made (stockroom.web.once).
+    db.execute(
+        """CREATE TABLE form_submissions (
+        id INTEGER PRIMARY KEY,
+        form_id TEXT NOT NULL UNIQUE,
+        username TEXT,
+        location TEXT NOT NULL,
+        submitted_at TEXT NOT NULL
     )"""
     )
 

@@ -415,23 +415,80 @@ def recompute(
 def exclude(
     db: sqlite_utils.Database, config: Mapping[str, Any], run_id: int, position: int, reason: str, actor: str
 ) -> StandardizationResult:
-    """Leave one replicate of an undecided run out, with a reason; store the recomputed result."""
-    run = records.run_by_id(db, run_id)
-    excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
-    excluded[position] = reason
-    result = recompute(db, config, run, excluded)
-    body = _stored_result(
-        result, inst_mod.instruments_of_run(db, run_id), dt.date.fromisoformat(run["performed_on"]), run["purpose"]
-    )
-    records.exclude_replicate(db, run_id, position, reason, body, actor)
+    """Leave one replicate of an undecided run out, with a reason; store the recomputed result.
+
+    The exclusions are read and the result recomputed inside the write lock, so two people leaving
+    out different replicates at once both count: the second computes from the first's exclusion.
+    """
+    with dbmod.write(db):
+        run = records.run_by_id(db, run_id)
+        excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
+        if position in excluded:
+            raise Conflict(f"replicate {position} is already excluded")
+        excluded[position] = reason
+        result = recompute(db, config, run, excluded)
+        body = _stored_result(
+            result, inst_mod.instruments_of_run(db, run_id), dt.date.fromisoformat(run["performed_on"]), run["purpose"]
+        )
+        records.exclude_replicate(db, run_id, position, reason, body, actor)
     return result
 
 
+def check_version(db: sqlite_utils.Database, run: Mapping[str, Any], shown_version: int | None) -> None:
+    """Refuse (Conflict) a decision taken on a result that is no longer the run's current one.
+
+    shown_version: the id of the result the deciding page (or API client) saw; None skips the check.
+    """
+    current = run["current"]
+    if shown_version is None or current is None or int(current["id"]) == shown_version:
+        return
+    newer = dbmod.query(
+        db,
+        "SELECT cause, recorded_by, recorded_at FROM run_results WHERE run_id = ? AND id > ? ORDER BY id",
+        [run["id"], shown_version],
+    )
+    by_position = {f"exclusion of replicate {e['position']}": e for e in run["exclusions"]}
+    changes = []
+    for r in newer:
+        e = by_position.get(r["cause"])
+        if e is not None:
+            changes.append(f"Replicate {e['position']} was left out by {e['recorded_by']} at {e['recorded_at']}")
+        else:
+            changes.append(f"{r['cause']} by {r['recorded_by']} at {r['recorded_at']}")
+    what = "; ".join(changes) or "the result you saw is not one of this run's results"
+    raise Conflict(f"the result changed since you opened the page: {what}; review the new result")
+
+
 def accept(
-    db: sqlite_utils.Database, run_id: int, actor: str, released_on: dt.date | None = None, reason: str = ""
+    db: sqlite_utils.Database,
+    run_id: int,
+    actor: str,
+    released_on: dt.date | None = None,
+    reason: str = "",
+    shown_version: int | None = None,
 ) -> int | None:
-    """Accept a run. A certifying run releases the batch with its current result; return the release id."""
+    """Accept a run. A certifying run releases the batch with its current result; return the release id.
+
+    shown_version: the id of the result the person saw (the run page's form carries it); when given
+    and no longer current, Conflict and nothing written. Everything is read inside the write lock,
+    so the release carries the result computed from every exclusion stored before it.
+    """
+    with dbmod.write(db):
+        return _accept_locked(db, run_id, actor, released_on, reason, shown_version)
+
+
+def _accept_locked(
+    db: sqlite_utils.Database,
+    run_id: int,
+    actor: str,
+    released_on: dt.date | None,
+    reason: str,
+    shown_version: int | None,
+) -> int | None:
     run = records.run_by_id(db, run_id)
+    if run["decisions"]:
+        raise Conflict("this run has already been decided")
+    check_version(db, run, shown_version)
     current = run["current"]
     if not current["accepted_by_rule"]:
         why = "; ".join(current["result"].get("reasons", [])) or "it does not meet the acceptance rule"

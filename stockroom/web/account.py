@@ -13,6 +13,7 @@ from stockroom.accounts import SignInLocked, SignInRefused
 from stockroom.db import get_db
 from stockroom.errors import InvalidInput
 from stockroom.web.access import begin_session, current_user, end_session, login_required, public, safe_next
+from stockroom.web.once import made, once
 
 bp = Blueprint("account", __name__)
 
@@ -139,6 +140,7 @@ def password() -> Any:
 
 @bp.route("/first-run", methods=["GET", "POST"])
 @public
+@once
 def first_run() -> Any:
     db = get_db()
     if accounts.has_users(db):
@@ -174,6 +176,7 @@ def first_run() -> Any:
 
 @bp.route("/account/tokens", methods=["GET", "POST"])
 @login_required
+@once
 def api_tokens() -> Any:
     """List, make and revoke one's own API tokens (for programs writing through the JSON API)."""
     from stockroom import tokens
@@ -187,6 +190,7 @@ def api_tokens() -> Any:
     if request.method == "POST":
         try:
             _, secret = tokens.create(db, user.id, user.username, request.form.get("label", ""))
+            made()  # a second submission shows the list (the secret is shown once only)
         except InvalidInput as exc:
             errors, status = exc.fields, 422
     return render_template(
@@ -196,6 +200,7 @@ def api_tokens() -> Any:
 
 @bp.post("/account/tokens/<int:token_id>/revoke")
 @login_required
+@once
 def revoke_token(token_id: int) -> Any:
     from stockroom import tokens
 

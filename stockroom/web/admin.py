@@ -15,6 +15,7 @@ from stockroom.web import lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.forms import date as form_date
 from stockroom.web.inputs import Parser
+from stockroom.web.once import once
 
 bp = Blueprint("admin", __name__, url_prefix="/admin")
 
@@ -26,6 +27,7 @@ def _actor() -> str:
 
 @bp.route("/users", methods=["GET", "POST"])
 @require("users.manage")
+@once
 def users() -> Any:
     db = get_db()
     errors: dict[str, str] = {}
@@ -58,6 +60,7 @@ def users() -> Any:
 
 @bp.post("/users/<username>/disable")
 @require("users.manage")
+@once
 def disable(username: str) -> Any:
     reason = (request.form.get("reason") or "").strip()
     if not reason:
@@ -94,6 +97,7 @@ def _policy_form(p: Parser, form: Any) -> tuple[ReagentPolicy | None, dt.date | 
 
 @bp.route("/policy", methods=["GET", "POST"])
 @require("policy.edit")
+@once
 def policy() -> Any:
     db = get_db()
     errors: dict[str, str] = {}

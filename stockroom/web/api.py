@@ -178,14 +178,16 @@ def create_run(code: str) -> Any:
     run = run_input.parse_run(data, today=lab_today(), prepared_on=dt.date.fromisoformat(batch["prepared_on"]))
     user = current_user()
     run_id, _ = workflow.record_run(db, current_app.config, batch, run, user.username if user else "?")
-    # The result as stored, with the warnings about the run's instruments.
-    return jsonify({"run_id": run_id, "result": records.run_by_id(db, run_id)["current"]["result"]}), 201
+    # The result as stored, with the warnings about the run's instruments; result_version is what a
+    # decision may quote back so that it is refused (409) if the result changed meanwhile.
+    current = records.run_by_id(db, run_id)["current"]
+    return jsonify({"run_id": run_id, "result_version": current["id"], "result": current["result"]}), 201
 
 
 @bp.post("/runs/<int:run_id>/decision")
 @api_require("run.decide")
 def decide_run(run_id: int) -> Any:
-    """Accept (releasing a certifying run) or reject a run: {decision, reason, released_on}."""
+    """Accept (releasing a certifying run) or reject a run: {decision, reason, released_on, result_version}."""
     from stockroom import workflow
     from stockroom.web.forms import date as form_date
     from stockroom.web.inputs import Parser
@@ -193,7 +195,7 @@ def decide_run(run_id: int) -> Any:
     db = get_db()
     data = _json_body()
     p = Parser()
-    p.known_keys(data, ("decision", "reason", "released_on"))
+    p.known_keys(data, ("decision", "reason", "released_on", "result_version"))
     decision = p.choice(data.get("decision"), "decision", ("accept", "reject"))
     reason = p.text(data.get("reason"), "reason", required=decision == "reject", max_length=500) or ""
     run = records.run_by_id(db, run_id)
@@ -205,11 +207,13 @@ def decide_run(run_id: int) -> Any:
         not_after=lab_today(),
         not_before=dt.date.fromisoformat(run["performed_on"]),
     )
+    # Optional: the result_version the client was given when recording; checked when given.
+    shown_version = p.integer(data.get("result_version"), "result_version", ge=1, required=False)
     p.raise_if_errors()
     user = current_user()
     actor = user.username if user else "?"
     if decision == "accept":
-        release_id = workflow.accept(db, run_id, actor, released_on=released_on, reason=reason)
+        release_id = workflow.accept(db, run_id, actor, released_on=released_on, reason=reason, shown_version=shown_version)
         return jsonify({"run_id": run_id, "decision": "accept", "release_id": release_id}), 200
     workflow.reject(db, run_id, reason, actor)
     return jsonify({"run_id": run_id, "decision": "reject"}), 200

@@ -28,6 +28,7 @@ def register(app: Flask) -> None:
         intake,
         labday,
         lots,
+        once,
         preview,
         printing,
         recalls,
@@ -54,6 +55,7 @@ def register(app: Flask) -> None:
     csrf.exempt(intake.api_bp)  # the preparation calculator: computes, stores nothing
     csrf.exempt(labday.api_bp)  # the lab-day look-up: JSON reads only
     formatting.install(app)
+    once.install(app)  # once_field(): the one-time form id of every creating form
 
     @app.errorhandler(StockroomError)
     def _stockroom_error(exc: StockroomError) -> Any:

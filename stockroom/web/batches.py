@@ -12,6 +12,7 @@ from stockroom.policy import URGENCY, release_in_force
 from stockroom.web import lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
+from stockroom.web.once import once
 
 bp = Blueprint("batches", __name__, url_prefix="/batches")
 
@@ -90,6 +91,7 @@ _AMEND_NUMERIC = {"volume_l": (0.1, 50.0), "concentrate_assay_w_w": (0.01, 1.0),
 
 @bp.post("/<code>/amend")
 @require("batch.register")
+@once
 def amend(code: str) -> Any:
     """Correct one descriptive detail of a batch, with a reason; the original entry stays as written."""
     db = get_db()

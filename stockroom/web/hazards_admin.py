@@ -20,6 +20,7 @@ from stockroom.errors import InvalidInput
 from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
+from stockroom.web.once import once
 from stockroom.web.printing import pictogram_uri
 
 bp = Blueprint("hazards_admin", __name__, url_prefix="/admin")
@@ -99,6 +100,7 @@ def _context(today: dt.date) -> dict[str, Any]:
 
 @bp.route("/hazards", methods=["GET", "POST"])
 @require("hazard.edit")
+@once
 def hazard_data() -> Any:
     today = lab_today()
     if request.method != "POST":  # HEAD answers like GET and never writes

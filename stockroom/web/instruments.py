@@ -27,6 +27,7 @@ from stockroom.instruments import Instrument
 from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
+from stockroom.web.once import once
 
 bp = Blueprint("instruments", __name__, url_prefix="/instruments")
 
@@ -253,6 +254,7 @@ def list_instruments() -> str:
 
 @bp.route("/new", methods=["GET", "POST"])
 @require("instrument.register")
+@once
 def new_instrument() -> Any:
     today = lab_today()
     if request.method != "POST":  # HEAD answers like GET and never writes
@@ -302,6 +304,7 @@ def show(instrument_id: int) -> Any:
 
 @bp.post("/<int:instrument_id>/calibrations")
 @require("instrument.register")
+@once
 def calibrate(instrument_id: int) -> Any:
     db = get_db()
     inst = inst_mod.instrument_by_id(db, instrument_id)

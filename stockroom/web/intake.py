@@ -30,6 +30,7 @@ from stockroom.policy import ReagentPolicy, Status, release_in_force, status_on
 from stockroom.web import forms, lab_today
 from stockroom.web.access import anonymous_response, current_user, login_required, public, refuse, require
 from stockroom.web.inputs import Parser
+from stockroom.web.once import once
 
 bp = Blueprint("intake", __name__)
 # The JSON calculator sits in its own blueprint so that it alone is exempt from the CSRF check:
@@ -97,6 +98,7 @@ PLAN_KEYS = frozenset(
 
 @bp.route("/batches/new", methods=["GET", "POST"])
 @require("batch.register")
+@once
 def new_batch() -> Any:
     db = get_db()
     today = lab_today()
@@ -177,6 +179,7 @@ def adjust(code: str) -> Any:
 
 @bp.route("/batches/<code>/withdraw", methods=["GET", "POST"])
 @require("batch.withdraw")
+@once
 def withdraw(code: str) -> Any:
     db = get_db()
     today = lab_today()

@@ -27,6 +27,7 @@ from stockroom.policy import drift_on
 from stockroom.web import lab_today, viewcache
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import MISSING, Parser
+from stockroom.web.once import once
 
 bp = Blueprint("labday", __name__)
 api_bp = Blueprint("labday_api", __name__, url_prefix="/api/v1")
@@ -366,6 +367,7 @@ def _held_message(entry: ld.LabDayEntry, choices: list[ld.LabDayEntry]) -> str:
 
 @bp.route("/lab-day/correct", methods=["GET", "POST"])
 @require("classdata.correct")
+@once
 def correct() -> Any:
     """Upload a class's results for a lab day; each is recomputed with the molarity in force that day."""
     if request.method != "POST":  # HEAD answers like GET and never writes

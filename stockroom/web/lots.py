@@ -23,6 +23,7 @@ from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
 from stockroom.web.intake import read_percent
+from stockroom.web.once import once
 
 bp = Blueprint("lots", __name__, url_prefix="/lots")
 
@@ -68,6 +69,7 @@ def show(lot_id: int) -> str:
 
 @bp.route("/new", methods=["GET", "POST"])
 @require("lot.register")
+@once
 def new_lot() -> Any:
     today = lab_today()
     context: dict[str, Any] = {"standards": _standard_options(), "rules": _rules(), "labels": LOT_LABELS}

@@ -24,9 +24,11 @@ from stockroom.pdf import certificates, ghs, layouts
 from stockroom.pdf import labels as pdflabels
 from stockroom.policy import Status, release_in_force, status_on
 from stockroom.web import lab_today
+from stockroom.web import once as once_mod
 from stockroom.web.access import current_user, require
 from stockroom.web.forms import field
 from stockroom.web.inputs import Parser
+from stockroom.web.once import once
 
 bp = Blueprint("printing", __name__)
 
@@ -130,6 +132,7 @@ def _read_print_form(
 
 @bp.route("/batches/<code>/labels", methods=["GET", "POST"])
 @require("label.print")
+@once
 def print_labels(code: str) -> Any:
     db = get_db()
     batch = records.batch_by_code(db, code)
@@ -159,6 +162,7 @@ def print_labels(code: str) -> Any:
     except InvalidInput as exc:
         return _reshow(ctx, exc)
     name = f"labels-{batch['code']}-{pdflabels.format_serial(job.record['serial_first'])}.pdf"
+    once_mod.made()  # a second submission is sent to this page (its list of prints), not printed again
     return _pdf_response(job.pdf, name)
 
 

@@ -28,6 +28,7 @@ from stockroom.pdf.recall_report import recall_report_pdf
 from stockroom.web import forms, lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
+from stockroom.web.once import once
 
 bp = Blueprint("recalls", __name__, url_prefix="/recalls")
 trace_bp = Blueprint("traceability", __name__)
@@ -72,6 +73,7 @@ def list_recalls() -> str:
 
 @bp.route("/new", methods=["GET", "POST"])
 @require("recall.manage")
+@once
 def new_recall() -> Any:
     today = lab_today()
     context: dict[str, Any] = {"groups": _subject_groups(), "labels": LABELS, "today": today}
@@ -130,6 +132,7 @@ def report_pdf(recall_id: int) -> Response:
 
 @bp.post("/<int:recall_id>/clear")
 @require("recall.manage")
+@once
 def clear(recall_id: int) -> Any:
     db = get_db()
     today = lab_today()

@@ -26,6 +26,7 @@ from stockroom.web.access import current_user, require
 from stockroom.web.forms import date as form_date
 from stockroom.web.forms import field
 from stockroom.web.inputs import Parser
+from stockroom.web.once import once
 
 bp = Blueprint("runs", __name__)
 
@@ -128,6 +129,7 @@ def _override_boxes(result: Any, values: Any, errors: dict[str, str]) -> list[tu
 
 @bp.route("/batches/<code>/runs/new", methods=["GET", "POST"])
 @require("run.record")
+@once
 def new_run(code: str) -> Any:
     db = get_db()
     batch = records.batch_by_code(db, code)
@@ -193,6 +195,7 @@ def show(run_id: int) -> Any:
 
 @bp.post("/runs/<int:run_id>/exclude")
 @require("run.decide")
+@once
 def exclude(run_id: int) -> Any:
     p = Parser()
     position = p.integer(field("position"), "position", ge=1)
@@ -207,6 +210,7 @@ def exclude(run_id: int) -> Any:
 
 @bp.post("/runs/<int:run_id>/decide")
 @require("run.decide")
+@once
 def decide(run_id: int) -> Any:
     db = get_db()
     p = Parser()
@@ -221,12 +225,14 @@ def decide(run_id: int) -> Any:
         not_after=lab_today(),
         not_before=dt.date.fromisoformat(run["performed_on"]),
     )
+    # The id of the result the page showed: accepting refuses (409) when it is no longer current.
+    shown_version = p.integer(field("result_version"), "result_version", ge=1, required=False)
     p.raise_if_errors()
     user = current_user()
     actor = user.username if user else "?"
     batch = records.batch_by_id(db, run["batch_id"])
     if decision == "accept":
-        release_id = workflow.accept(db, run_id, actor, released_on=released_on, reason=reason)
+        release_id = workflow.accept(db, run_id, actor, released_on=released_on, reason=reason, shown_version=shown_version)
         if release_id:
             flash(f"{batch['code']} released with its new certified value.", "ok")
         else:
