@@ -851,6 +851,8 @@ def _signin_throttle(db: sqlite_utils.Database) -> None:
         key TEXT NOT NULL UNIQUE,                   -- address:<ip>, account:<username>, device:<id>
         failures INTEGER NOT NULL,
         last_failure TEXT NOT NULL
+    )"""
+    )
 
 
 @MIGRATIONS(name="0010_form_submissions")
