@@ -50,7 +50,7 @@ def test_verify_reports_an_edited_entry(demo_db):
     conn.close()
     result = verify(demo_db)
     assert result.exit_code == 1
-    assert f"broken at entry {target}" in result.output
+    assert f"audit entry {target}" in result.output and "keyed MAC does not match" in result.output
 
 
 def test_verify_reports_a_deleted_middle_entry(demo_db):
@@ -59,11 +59,11 @@ def test_verify_reports_a_deleted_middle_entry(demo_db):
     conn.execute("DELETE FROM events WHERE id = 10")
     conn.close()
     result = verify(demo_db)
-    assert result.exit_code == 1 and "broken at entry 10" in result.output
+    assert result.exit_code == 1 and "audit entry 10: is recorded outside the database but is missing from it" in result.output
 
 
 def test_verify_reports_the_newest_entry_removed(demo_db):
-    """Removing the last entry leaves the chain consistent; the record left without its entry gives it away."""
+    """Removing the last entry leaves the chain consistent; the head log outside the database gives it away."""
     conn = _raw(demo_db)
     conn.execute("DROP TRIGGER events_no_delete")
     last = conn.execute("SELECT id, entity, entity_id FROM events ORDER BY id DESC LIMIT 1").fetchone()
@@ -71,7 +71,7 @@ def test_verify_reports_the_newest_entry_removed(demo_db):
     conn.close()
     result = verify(demo_db)
     assert result.exit_code == 1
-    assert f"{last[1]} row {last[2]} has no audit entry" in result.output
+    assert f"audit entry {last[0]}: is recorded outside the database but the trail ends at entry {last[0] - 1}" in result.output
 
 
 def test_audit_page_needs_a_user_and_filters(app, client, signed_in_client):
