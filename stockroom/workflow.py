@@ -428,7 +428,11 @@ def exclude(
         excluded[position] = reason
         result = recompute(db, config, run, excluded)
         body = _stored_result(
-            result, inst_mod.instruments_of_run(db, run_id), dt.date.fromisoformat(run["performed_on"]), run["purpose"]
+            result,
+            inst_mod.instruments_of_run(db, run_id),
+            dt.date.fromisoformat(run["performed_on"]),
+            run["purpose"],
+            overridden_by=run["recorded_by"],  # the overrides were given when the run was recorded
         )
         records.exclude_replicate(db, run_id, position, reason, body, actor)
     return result
