@@ -1,8 +1,8 @@
 """Every page a signed-in administrator can open, at phone and desktop size, in a real browser.
 
 The walk is the app's own URL map: each GET route that answers with a page, its ids filled from the
-invented demo scenario (plus an instrument and a recall added here, which the scenario does not hold). A route that takes an id the walk cannot fill fails the test, so a new page
-cannot slip past it.
+invented demo scenario (plus an instrument and a recall added here, which the scenario does not
+hold). A route that takes an id the walk cannot fill fails the test, so a new page cannot slip past.
 
 Set LAYOUT_SHOTS=/some/dir to save a full-page screenshot of every page at both sizes.
 """
@@ -35,7 +35,8 @@ def layout_site(tmp_path_factory):
     """A live demo with one of everything a page can show; yields (base URL, GET paths to walk)."""
     from waitress.server import create_server
 
-    from stockroom import create_app, db as dbmod, instruments, recall
+    from stockroom import create_app, instruments, recall
+    from stockroom import db as dbmod
     from stockroom.demo import build_demo
 
     path = tmp_path_factory.mktemp("layout") / "demo.db"
