@@ -24,9 +24,10 @@ def _local(utc_text: str, zone: ZoneInfo) -> str:
         moment = dt.datetime.fromisoformat(utc_text)
     except ValueError:
         return utc_text
-    return moment.astimezone(zone).strftime("%Y-%m-%d %H:%M:%S %Z")
+    return moment.astimezone(zone).strftime("%Y-%m-%d %H:%M")
 
 
+@bp.get("/audit/")
 @bp.get("/audit")
 @login_required
 def trail() -> Any:
