@@ -87,6 +87,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.pdf.labels",
             "stockroom.pdf.layouts",
             "stockroom.pdf.recall_report",
+            "stockroom.pdf.tall_rows",
         ),
     ),
     # Blueprints and their request handling.

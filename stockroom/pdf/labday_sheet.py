@@ -20,6 +20,7 @@ from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Space
 from stockroom import chemistry
 from stockroom import formatting as fmt
 from stockroom.labday import LabDay, LabDayEntry, cautions
+from stockroom.pdf.tall_rows import group_ends, split_row
 
 INK = colors.HexColor("#1d2327")
 MUTED = colors.HexColor("#5b6770")
@@ -48,7 +49,8 @@ def _styles() -> dict[str, ParagraphStyle]:
     }
 
 
-def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[object]:
+def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[list[object]]:
+    """One batch's cells, each a list of short paragraphs (tall_rows.split_row lays them out over rows)."""
     r = e.release
     t = chemistry.titrant(e.batch.reagent)
     reference = "<b>For reference, not for use:</b><br/>" if e.hold else ""
@@ -71,11 +73,13 @@ def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[object]:
     else:
         trend = "no trend yet"
     if e.hold:
-        # No figure in the box a reader copies from: the hold and its reason take its place.
+        # No figure in the box a reader copies from: the hold and its reasons take its place, one
+        # paragraph a reason so that many reasons (many open recalls) can run over several rows.
         use: list[object] = [
             Paragraph("ON HOLD", st["hold"]),
-            Paragraph(f"No value to use for {e.on.isoformat()}. {escape(e.hold)}", st["flag"]),
+            Paragraph(f"No value to use for {e.on.isoformat()}.", st["flag"]),
         ]
+        use += [Paragraph(escape(_sentence(reason)), st["flag"]) for reason in e.current.holds]
     else:
         assert e.use_molarity is not None
         use_note = f"at the bench, {fmt.temperature(e.bench_temperature_c)}" if e.molarity_at_bench is not None else "at 20 °C"
@@ -84,19 +88,29 @@ def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[object]:
     if e.on < e.known_on:
         notes = [f"<i>That day:</i> {n}" for n in notes] or ["<i>That day:</i> nothing to report."]
         later = [escape(s) for s in e.later_plain] or ["nothing recorded since."]
-        notes.append(f"<i>Learnt after {e.on.isoformat()}:</i> " + " ".join(later))
+        notes.append(f"<i>Learnt after {e.on.isoformat()}:</i> {later[0]}")
+        notes += later[1:]
     advice = e.advice
     if advice:
         notes.insert(0, f"<b>{escape(advice)}</b>")
-    flag_text = "<br/>".join(notes) if notes else "In service; nothing to report."
     style = st["flag"] if e.flags or advice or e.learnt_later else st["cell"]
+    flags = [Paragraph(n, style) for n in notes] or [Paragraph("In service; nothing to report.", st["cell"])]
     return [
-        Paragraph(f"<b>{escape(e.batch.code)}</b><br/>{escape(t.name)}, {e.batch.nominal_molarity:g} mol/L nominal", st["cell"]),
+        [
+            Paragraph(
+                f"<b>{escape(e.batch.code)}</b><br/>{escape(t.name)}, {e.batch.nominal_molarity:g} mol/L nominal", st["cell"]
+            )
+        ],
         use,
-        Paragraph(certified, st["cell"]),
-        Paragraph(trend, st["cell"]),
-        Paragraph(flag_text, style),
+        [Paragraph(certified, st["cell"])],
+        [Paragraph(trend, st["cell"])],
+        flags,
     ]
+
+
+def _sentence(text: str) -> str:
+    text = text[:1].upper() + text[1:]
+    return text if text.endswith((".", "!", "?")) else text + "."
 
 
 def _footer(printed_on: dt.date):  # type: ignore[no-untyped-def]
@@ -164,20 +178,26 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
         head = [
             Paragraph(h, st["head"]) for h in ("Batch", "Value to use", "Certified value", "Trend prediction that day", "Flags")
         ]
-        table = Table(
-            [head] + [_row(e, st) for e in day.entries], repeatRows=1, colWidths=[28 * mm, 36 * mm, 41 * mm, 33 * mm, None]
-        )
+        groups = [split_row(_row(e, st)) for e in day.entries]
+        for e, group in zip(day.entries, groups, strict=True):
+            for later_row in group[1:]:  # a batch running over several rows names itself on each
+                later_row[0] = [Paragraph(f"{escape(e.batch.code)} (continued)", st["note"])]
+        rows: list[list[object]] = [head]
+        for group in groups:
+            rows += group
+        table = Table(rows, repeatRows=1, colWidths=[28 * mm, 36 * mm, 41 * mm, 33 * mm, None])
         table.setStyle(
             TableStyle(
                 [
                     ("VALIGN", (0, 0), (-1, -1), "TOP"),
                     ("LINEBELOW", (0, 0), (-1, 0), 0.8, INK),
-                    ("LINEBELOW", (0, 1), (-1, -1), 0.4, LINE),
                     ("TOPPADDING", (0, 0), (-1, -1), 4),
                     ("BOTTOMPADDING", (0, 0), (-1, -1), 5),
                     ("LEFTPADDING", (0, 0), (-1, -1), 3),
                     ("RIGHTPADDING", (0, 0), (-1, -1), 3),
                 ]
+                # A rule under each batch, not under the rows its long cells run on over.
+                + [("LINEBELOW", (0, end), (-1, end), 0.4, LINE) for end in group_ends([len(g) for g in groups])]
             )
         )
         story.append(table)
