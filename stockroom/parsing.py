@@ -164,7 +164,7 @@ def number_problem(raw: Any) -> tuple[float | None, str | None]:
     if isinstance(raw, str):
         text = raw.strip()
         if len(text) > MAX_NUMBER_TEXT:
-            return None, f"is too long to be a number (at most {MAX_NUMBER_TEXT} characters)"
+            return None, f"is too large to be a measurement (at most {MAX_NUMBER_TEXT} characters)"
         if non_ascii_digits(text):
             return None, f"must be a plain decimal number: {ASCII_DIGITS_RULE}"
         if _DECIMAL_COMMA.fullmatch(text):
@@ -191,10 +191,6 @@ def _quote(text: str) -> str:
 def _kind(raw: Any) -> str:
     if raw is None:
         return "null"
-    if isinstance(raw, bool):
-        return "true or false"
-    if isinstance(raw, int | float):
-        return "a number"
     if isinstance(raw, list | tuple):
         return "a list"
     if isinstance(raw, Mapping):
@@ -204,6 +200,10 @@ def _kind(raw: Any) -> str:
 
 def kind_of(raw: Any) -> str:
     """What a JSON value is, for a message: "null", "a number", "a list", "an object", "true or false"."""
+    if isinstance(raw, bool):
+        return "true or false"
+    if isinstance(raw, int | float):
+        return "a number"
     return _kind(raw)
 
 

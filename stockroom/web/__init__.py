@@ -21,7 +21,7 @@ from werkzeug.routing import IntegerConverter
 
 from stockroom import db as dbmod
 from stockroom import parsing
-from stockroom.errors import FieldError, InvalidInput, StockroomError
+from stockroom.errors import FieldError, InvalidInput
 
 csrf = CSRFProtect()
 
@@ -29,9 +29,6 @@ csrf = CSRFProtect()
 # many parameters. Nothing a page links to comes near either.
 MAX_QUERY_VALUE = 200
 MAX_QUERY_PARAMS = 30
-# Form values: the longest a form takes is the notes (2000) and pasted hazard data; past this the
-# post is refused before any view reads it. Files are not form values (the CSV import has its own limits).
-MAX_FORM_VALUE = 20_000
 # JSON bodies: the deepest real request (a run: object -> replicates -> replicate) is 3 levels.
 MAX_JSON_DEPTH = 20
 MAX_JSON_BYTES = 512 * 1024
@@ -83,10 +80,25 @@ def int_arg(name: str, default: int, *, ge: int = 0, le: int = 1_000_000) -> int
 # ------------------------------------------------------------------------------ the JSON body
 
 
-class UnsupportedMediaType(StockroomError):
+class _BodyRefused(InvalidInput):
+    """The request body as a whole is refused (named "_body" in the errors, like every body problem)."""
+
+    def __init__(self, message: str):
+        super().__init__([FieldError("_body", message)])
+
+
+class UnsupportedMediaType(_BodyRefused):
     """A JSON endpoint was sent a body that does not say it is JSON."""
 
     status = 415
+
+
+class _TooLarge(_BodyRefused):
+    status = 413
+
+
+class _BadJSON(_BodyRefused):
+    status = 400
 
 
 def _depth_and_text_problem(data: Any) -> tuple[str, str] | None:
@@ -133,14 +145,6 @@ def read_json_body(*, max_bytes: int = MAX_JSON_BYTES) -> dict[str, Any]:
     if problem is not None:
         raise _refuse(*problem)
     return data
-
-
-class _TooLarge(StockroomError):
-    status = 413
-
-
-class _BadJSON(StockroomError):
-    status = 400
 
 
 # ------------------------------------------------------------------------------ the request guards
@@ -217,7 +221,11 @@ def _check_values(values: Iterable[tuple[str, str]], *, max_length: int, where: 
 
 
 def guard_request() -> None:
-    """Before every view: the query string and form values are held to the shared limits (422)."""
+    """Before every view: the query string is held to the shared limits (422).
+
+    Form values are not checked here but by the Parser that reads each field (Parser.text refuses
+    control characters), so that the form comes back with the message beside its field.
+    """
     args = request.args
     if len(args) > MAX_QUERY_PARAMS:
         raise _refuse("_", f"a query string may have at most {MAX_QUERY_PARAMS} parameters")
@@ -225,11 +233,6 @@ def guard_request() -> None:
     for value in args.values():
         if parsing.text_problem(value, multiline=False):
             raise _refuse("_", "a query parameter must be on one line")
-    if request.method in ("POST", "PUT", "PATCH") and request.mimetype in (
-        "application/x-www-form-urlencoded",
-        "multipart/form-data",
-    ):
-        _check_values(request.form.items(multi=True), max_length=MAX_FORM_VALUE, where="form field")
 
 
 def install(app: Flask) -> None:

@@ -8,10 +8,9 @@ from the app config (the setting names in stockroom.settings).
 
 from __future__ import annotations
 
-import json
 from typing import Any
 
-from flask import Blueprint, current_app, jsonify, request
+from flask import Blueprint, current_app, jsonify
 
 from stockroom import chemistry, formatting, run_input, stats
 from stockroom.errors import FieldError, InvalidInput, StockroomError
