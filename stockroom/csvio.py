@@ -55,6 +55,9 @@ class Sheet:
         return not self.problems
 
 
+MAX_LINE_CHARS = 2000
+
+
 def read_sheet(text: str, max_rows: int) -> Sheet:
     """Read a replicate sheet's text; structure problems are reported per line, values stay text.
 
@@ -93,6 +96,12 @@ def read_sheet(text: str, max_rows: int) -> Sheet:
     if sheet.problems:
         return sheet
     data = lines[1:]
+    # A replicate row is a few numbers and a reason (at most 500 characters): a longer line is not a
+    # sheet row, and the csv module would refuse a cell past its own limit with an exception.
+    long_line = next((n for n, line in data if len(line) > MAX_LINE_CHARS), None)
+    if long_line is not None:
+        sheet.problems.append((long_line, f"is longer than {MAX_LINE_CHARS} characters"))
+        return sheet
     if len(data) > max_rows:
         sheet.problems.append((0, f"the file has {len(data)} data rows; at most {max_rows} are accepted"))
         return sheet

@@ -8,6 +8,7 @@ names are the request's own paths, e.g. `replicates[2].mass_g` (see field_path).
 
 from __future__ import annotations
 
+import datetime as dt
 import math
 import re
 from collections.abc import Iterable, Mapping
@@ -16,11 +17,76 @@ from typing import Any
 from stockroom.errors import FieldError, InvalidInput
 
 # Optional sign, digits with at most one point (".5" and "5." allowed); no exponent, no grouping.
-_PLAIN_DECIMAL = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)")
-_DECIMAL_COMMA = re.compile(r"[+-]?(?:\d+,\d*|,\d+)")
-_PLAIN_INTEGER = re.compile(r"[+-]?\d+")
+# Digits are 0-9 only: Python's int() and float() also read Arabic-Indic, Devanagari or full-width
+# digits, which a person cannot tell apart on a label, so they are refused with a message.
+_PLAIN_DECIMAL = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)")
+_DECIMAL_COMMA = re.compile(r"[+-]?(?:[0-9]+,[0-9]*|,[0-9]+)")
+_PLAIN_INTEGER = re.compile(r"[+-]?[0-9]+")
+_ISO_DATE = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}")
 _TRUE = {"true", "1", "yes", "on"}
 _FALSE = {"false", "0", "no", "off"}
+
+# ---- the bounds every request value is held to, whichever door it comes through
+
+# The earliest date anyone may type: nothing in a prep room's records predates the register, and a
+# year such as 0001 or 1899 would make a batch code (YYMM) that looks plausible but is not.
+EARLIEST_DATE = dt.date(2000, 1, 1)
+# The latest date at all (an expiry, a calibration due date): batch codes carry two-digit years.
+LATEST_DATE = dt.date(2099, 12, 31)
+# How far ahead a date may be where the future makes sense (a lab day looked up, a planned date).
+FUTURE_DAYS = 366
+# Whole numbers (ids, counts, page numbers): SQLite's integers stop at 2**63 - 1; nothing here
+# comes near 2**53, the largest a JSON client's double holds exactly.
+MAX_INTEGER = 2**53
+# A number written as text: longer than this it is not a measurement but padding.
+MAX_NUMBER_TEXT = 40
+# One-line text: control characters (NUL, escape, form feed...) are never typed by a person; line
+# breaks are allowed only in notes.
+_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f\ud800-\udfff]")
+_LINE_BREAK = re.compile(r"[\r\n\u2028\u2029\x85]")
+ASCII_DIGITS_RULE = "use the digits 0-9"
+
+
+def non_ascii_digits(text: str) -> bool:
+    """True when text holds a digit other than 0-9 (e.g. '٣', '２', '²')."""
+    return any(ch.isdigit() and not "0" <= ch <= "9" for ch in text)
+
+
+def text_problem(value: str, *, multiline: bool = False) -> str | None:
+    """Why a piece of typed text cannot be kept, or None: control characters, or a line break in a one-line field."""
+    if _CONTROL.search(value):
+        return "must not contain control characters (such as NUL)"
+    if not multiline and (_LINE_BREAK.search(value) or "\t" in value):
+        return "must be on one line (line breaks are allowed only in notes)"
+    return None
+
+
+def date_problem(
+    raw: Any, *, not_before: dt.date | None = None, not_after: dt.date | None = None
+) -> tuple[dt.date | None, str | None]:
+    """Read YYYY-MM-DD (digits 0-9) within [not_before, not_after] and the register's own bounds.
+
+    raw: the typed value; not_before/not_after: the caller's bounds (None: EARLIEST_DATE and
+    LATEST_DATE only). Returns (date, None) or (None, message).
+    """
+    if not isinstance(raw, str):
+        return None, f"must be a date written as YYYY-MM-DD, not {_kind(raw)}"
+    text = raw.strip()
+    if non_ascii_digits(text):
+        return None, f"{_quote(text)} is not a date: {ASCII_DIGITS_RULE}, as YYYY-MM-DD"
+    if not _ISO_DATE.fullmatch(text):
+        return None, f"{_quote(text)} is not a date; write it as YYYY-MM-DD"
+    try:
+        value = dt.date.fromisoformat(text)
+    except ValueError:
+        return None, f"{_quote(text)} is not a date on the calendar; write it as YYYY-MM-DD"
+    low = max(EARLIEST_DATE, not_before) if not_before is not None else EARLIEST_DATE
+    high = min(LATEST_DATE, not_after) if not_after is not None else LATEST_DATE
+    if value < low:
+        return None, f"cannot be earlier than {low.isoformat()}"
+    if value > high:
+        return None, f"cannot be later than {high.isoformat()}"
+    return value, None
 
 
 class _Missing:
@@ -97,6 +163,10 @@ def number_problem(raw: Any) -> tuple[float | None, str | None]:
         return raw, None
     if isinstance(raw, str):
         text = raw.strip()
+        if len(text) > MAX_NUMBER_TEXT:
+            return None, f"is too large to be a measurement (at most {MAX_NUMBER_TEXT} characters)"
+        if non_ascii_digits(text):
+            return None, f"must be a plain decimal number: {ASCII_DIGITS_RULE}"
         if _DECIMAL_COMMA.fullmatch(text):
             fixed = text.replace(",", ".")
             fixed = re.sub(r"^([+-]?)\.", r"\g<1>0.", fixed)
@@ -126,6 +196,15 @@ def _kind(raw: Any) -> str:
     if isinstance(raw, Mapping):
         return "an object"
     return type(raw).__name__
+
+
+def kind_of(raw: Any) -> str:
+    """What a JSON value is, for a message: "null", "a number", "a list", "an object", "true or false"."""
+    if isinstance(raw, bool):
+        return "true or false"
+    if isinstance(raw, int | float):
+        return "a number"
+    return _kind(raw)
 
 
 def _absent(raw: Any) -> bool:
@@ -201,10 +280,17 @@ class Parser:
                 self.error(field, "is required")
             return None
         if isinstance(raw, str):
-            if not _PLAIN_INTEGER.fullmatch(raw.strip()):
+            text = raw.strip()
+            if non_ascii_digits(text):
+                self.error(field, f"must be a whole number: {ASCII_DIGITS_RULE}")
+                return None
+            if not _PLAIN_INTEGER.fullmatch(text):
                 self.error(field, "must be a whole number")
                 return None
-            value = int(raw.strip())
+            if len(text.lstrip("+-")) > 16:
+                self.error(field, "is too large")
+                return None
+            value = int(text)
         else:
             f, problem = number_problem(raw)
             if problem is not None:
@@ -214,7 +300,13 @@ class Parser:
             if isinstance(raw, float) and not f.is_integer():
                 self.error(field, "must be a whole number")
                 return None
+            if abs(f) > MAX_INTEGER:
+                self.error(field, "is too large")
+                return None
             value = int(raw)
+        if abs(value) > MAX_INTEGER:
+            self.error(field, "is too large")
+            return None
         if (ge is not None and value < ge) or (le is not None and value > le):
             self.error(field, range_rule(ge=ge, le=le) or "is out of range")
             return None
@@ -233,8 +325,14 @@ class Parser:
         self.error(field, "must be true or false")
         return None
 
-    def text(self, raw: Any, field: str, *, required: bool = True, max_length: int = 200) -> str | None:
-        """A non-empty string (trimmed) of at most max_length characters, or None."""
+    def text(
+        self, raw: Any, field: str, *, required: bool = True, max_length: int = 200, multiline: bool | None = None
+    ) -> str | None:
+        """A non-empty string (trimmed) of at most max_length characters, or None.
+
+        multiline: line breaks allowed; None: only in notes (a field whose name ends in "notes").
+        Control characters are refused everywhere.
+        """
         if _absent(raw):
             if required:
                 self.error(field, "is required")
@@ -245,6 +343,32 @@ class Parser:
         value = raw.strip()
         if len(value) > max_length:
             self.error(field, f"must be at most {max_length} characters")
+            return None
+        if multiline is None:
+            multiline = field.rsplit(".", 1)[-1].endswith("notes")
+        problem = text_problem(value, multiline=multiline)
+        if problem is not None:
+            self.error(field, problem)
+            return None
+        return value
+
+    def date(
+        self,
+        raw: Any,
+        field: str,
+        *,
+        required: bool = True,
+        not_before: dt.date | None = None,
+        not_after: dt.date | None = None,
+    ) -> dt.date | None:
+        """A YYYY-MM-DD date within the bounds (and EARLIEST_DATE..LATEST_DATE), or None."""
+        if _absent(raw):
+            if required:
+                self.error(field, "is required")
+            return None
+        value, problem = date_problem(raw, not_before=not_before, not_after=not_after)
+        if problem is not None:
+            self.error(field, problem)
             return None
         return value
 

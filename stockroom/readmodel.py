@@ -41,6 +41,11 @@ class BatchView:
     report: StatusReport
 
 
+def like_literal(text: str) -> str:
+    """text for a LIKE pattern with ESCAPE '\\': its %, _ and \\ match themselves, not any characters."""
+    return text.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
+
+
 def facts_of(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = None) -> dict[int, BatchFacts]:
     """BatchFacts of many batches (all when None): the recorded facts plus the recalls' review facts.
 
@@ -89,8 +94,8 @@ def coarse_statuses(
         sql += " AND b.reagent = ?"
         params.append(reagent)
     if search:
-        sql += " AND (b.code LIKE ? OR b.prepared_by LIKE ? OR b.notes LIKE ?)"
-        params += [f"%{search}%"] * 3
+        sql += " AND (b.code LIKE ? ESCAPE '\\' OR b.prepared_by LIKE ? ESCAPE '\\' OR b.notes LIKE ? ESCAPE '\\')"
+        params += [f"%{like_literal(search)}%"] * 3
     sql += " ORDER BY b.prepared_on DESC, b.id DESC"
     out = []
     for r in db.execute(sql, params):

@@ -22,7 +22,7 @@ from types import MappingProxyType
 from typing import Any
 
 from stockroom.errors import FieldError, InvalidInput
-from stockroom.parsing import MISSING, Parser, field_path
+from stockroom.parsing import MISSING, Parser, date_problem, field_path, kind_of
 from stockroom.standardization import OVERRIDABLE_CHECKS
 
 
@@ -196,6 +196,8 @@ def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None) 
     p = Parser()
     if not isinstance(data, Mapping):
         raise InvalidInput([FieldError("_body", "the run must be a JSON object")])
+    bad = _refuse_non_text(p, data, TEXT_KEYS, "")
+    data = {k: (MISSING if k in bad else v) for k, v in data.items()}
     method = p.choice(data.get("method", MISSING), "method", METHODS, default="primary") or "primary"
     allowed = (*COMMON_KEYS, PARTNER_KEY[method], *(f"{r}_id" for r in ROLES[method]), "replicates", "overrides")
     _refuse_unknown(p, data, allowed, method, "")
@@ -219,6 +221,9 @@ def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None) 
             instruments[role] = iid
     reps, excluded = read_replicates(p, data.get("replicates", MISSING), method, capacity_ml=capacity, run_temperature=run_t)
     overrides = read_overrides(p, data.get("overrides", MISSING))
+    # A field refused for its type is named once (not again as "is required").
+    first = {e.field: e for e in reversed(p.errors) if e.field in bad}
+    p.errors = [e for e in p.errors if e.field not in bad or first[e.field] is e]
     p.raise_if_errors()
     assert purpose is not None and performed_on is not None and analyst is not None and capacity is not None
     return RunInput(
@@ -296,14 +301,11 @@ def _date(p: Parser, raw: Any, name: str, *, not_after: dt.date, not_before: dt.
     if raw is MISSING or raw is None or (isinstance(raw, str) and not raw.strip()):
         p.error(name, "is required")
         return None
-    text = raw.strip() if isinstance(raw, str) else None
-    try:
-        if text is None or not re.fullmatch(r"\d{4}-\d{2}-\d{2}", text):
-            raise ValueError
-        value = dt.date.fromisoformat(text)
-    except ValueError:
-        p.error(name, f"{raw!r} is not a date; write it as YYYY-MM-DD")
+    value, problem = date_problem(raw)
+    if problem is not None:
+        p.error(name, problem)
         return None
+    assert value is not None
     if value > not_after:
         p.error(name, f"cannot be later than {not_after.isoformat()} (today)")
         return None
@@ -311,6 +313,21 @@ def _date(p: Parser, raw: Any, name: str, *, not_after: dt.date, not_before: dt.
         p.error(name, f"cannot be earlier than {not_before.isoformat()}, when the batch was prepared")
         return None
     return value
+
+
+# The fields a run gives as text. A JSON list, object, number or null in one of them is refused by
+# name (a form or a CSV sheet can only send text, so only the JSON door can get this wrong).
+TEXT_KEYS = ("method", "purpose", "performed_on", "analyst", "endpoint", "notes", "reference_batch")
+
+
+def _refuse_non_text(p: Parser, data: Mapping[str, Any], keys: Sequence[str], base: str) -> set[str]:
+    """Record an error for each of keys present in data whose value is not a string; return those keys."""
+    bad = set()
+    for key in keys:
+        if key in data and not isinstance(data[key], str):
+            p.error(field_path(base, key) if base else key, f"must be text, not {kind_of(data[key])}")
+            bad.add(key)
+    return bad
 
 
 def burette_capacity(p: Parser, raw: Any, *, required: bool) -> float | None:
@@ -358,6 +375,8 @@ def read_replicates(
         if obj is None:
             continue
         _refuse_unknown(p, obj, keys, method, here)
+        if _refuse_non_text(p, obj, ("exclude_reason",), here):
+            obj = {k: v for k, v in obj.items() if k != "exclude_reason"}
         rep = _replicate(p, obj, here, method, capacity_ml, run_temperature, allow_volume)
         if "exclude_reason" in obj:
             reason = p.text(
@@ -457,8 +476,9 @@ def _replicate(
 
 # ------------------------------------------------------------------------------ paths and form fields
 
-_PATH = re.compile(r"replicates\[(\d+)\](?:\.(\w+))?")
-_FORM = re.compile(r"r(\d+)_(\w+)")
+# Row numbers are digits 0-9 (re.ASCII: `\d` and `\w` would also take '٣' or '²'), at most 4 of them.
+_PATH = re.compile(r"replicates\[([0-9]{1,4})\](?:\.(\w+))?", re.ASCII)
+_FORM = re.compile(r"r([0-9]{1,4})_(\w+)", re.ASCII)
 _OVERRIDE = re.compile(r"overrides\[([^\]]*)\]")
 
 

@@ -314,12 +314,13 @@ def test_secondary_errors(client):
     ("data", "content_type", "status"),
     [
         ("not json", "application/json", 400),
-        ("not json", "text/plain", 400),
+        ("not json", "text/plain", 415),  # a JSON endpoint wants a JSON content type
         ("", "application/json", 400),
         ("[1, 2]", "application/json", 422),
         ('"text"', "application/json", 422),
         ("3", "application/json", 422),
-        ("[" * 50_000 + "]" * 50_000, "application/json", 400),
+        ("[" * 50_000 + "]" * 50_000, "application/json", 413),  # past the anonymous 64 KB body cap
+        ("[" * 5_000 + "]" * 5_000, "application/json", 400),
         (b"\xff\xfe", "application/json", 400),
     ],
 )

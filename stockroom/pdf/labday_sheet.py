@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import datetime as dt
 import io
+from typing import Any
 from xml.sax.saxutils import escape
 
 from reportlab.lib import colors
@@ -182,7 +183,7 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
         for e, group in zip(day.entries, groups, strict=True):
             for later_row in group[1:]:  # a batch running over several rows names itself on each
                 later_row[0] = [Paragraph(f"{escape(e.batch.code)} (continued)", st["note"])]
-        rows: list[list[object]] = [head]
+        rows: list[list[Any]] = [head]
         for group in groups:
             rows += group
         table = Table(rows, repeatRows=1, colWidths=[28 * mm, 36 * mm, 41 * mm, 33 * mm, None])

@@ -10,7 +10,7 @@ from flask import Blueprint, current_app, jsonify, request
 from stockroom import accounts, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import StatusReport
-from stockroom.web import lab_today, parse_date_arg
+from stockroom.web import int_arg, lab_today, parse_date_arg, read_json_body
 from stockroom.web.access import api_require, current_user
 
 bp = Blueprint("api", __name__, url_prefix="/api/v1")
@@ -38,17 +38,10 @@ def _summary(batch: dict[str, Any], report: StatusReport) -> dict[str, Any]:
 @bp.get("/batches")
 def batches() -> Any:
     on = parse_date_arg(request.args.get("on"), "on") or lab_today()
-    from stockroom.errors import FieldError, InvalidInput
-
     db = get_db()
     titrant, status = request.args.get("titrant") or None, request.args.get("status") or None
-    try:
-        limit = int(request.args.get("limit", "200"))
-        offset = int(request.args.get("offset", "0"))
-    except ValueError:
-        raise InvalidInput([FieldError("limit", "limit and offset must be whole numbers")]) from None
-    if not 1 <= limit <= 1000 or offset < 0:
-        raise InvalidInput([FieldError("limit", "limit must be between 1 and 1000 and offset at least 0")])
+    limit = int_arg("limit", 200, ge=1, le=1000)
+    offset = int_arg("offset", 0, ge=0, le=10_000_000)
     views, total = readmodel.batch_page(db, on, reagent=titrant, status=status, limit=limit, offset=offset)
     body: dict[str, Any] = {
         "on": on.isoformat(),
@@ -130,12 +123,8 @@ def batch(code: str) -> Any:
 
 
 def _json_body() -> dict[str, Any]:
-    from stockroom.errors import FieldError, InvalidInput
-
-    data = request.get_json(silent=True)
-    if not isinstance(data, dict):
-        raise InvalidInput([FieldError("_body", "the request body must be a JSON object")])
-    return data
+    # The one JSON body reader (content type, size, depth, characters): stockroom.web.read_json_body.
+    return read_json_body()
 
 
 def _as_text(value: Any) -> Any:

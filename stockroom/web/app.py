@@ -8,7 +8,7 @@ from flask import Flask, jsonify, render_template
 from werkzeug.exceptions import HTTPException, SecurityError
 
 from stockroom.errors import InvalidInput, StockroomError
-from stockroom.web import csrf, wants_json
+from stockroom.web import csrf, install, wants_json
 
 
 def register(app: Flask) -> None:
@@ -35,6 +35,7 @@ def register(app: Flask) -> None:
         runs,
     )
 
+    install(app)  # the request guards every route shares (stockroom.web)
     csrf.init_app(app)
     for module in (health, dashboard, batches, api, preview, account, runs, intake, lots, labday):
         app.register_blueprint(module.bp)

@@ -11,7 +11,8 @@ from flask import Blueprint, current_app, render_template, request
 
 from stockroom import records
 from stockroom.db import get_db, query
-from stockroom.web import parse_date_arg
+from stockroom.readmodel import like_literal
+from stockroom.web import int_arg, parse_date_arg
 from stockroom.web.access import login_required
 
 bp = Blueprint("audit", __name__)
@@ -38,17 +39,14 @@ def trail() -> Any:
     code = (request.args.get("batch") or "").strip()
     since = parse_date_arg(request.args.get("from"), "from")
     until = parse_date_arg(request.args.get("to"), "to")
-    try:
-        page = max(1, int(request.args.get("page", "1")))
-    except ValueError:
-        page = 1
+    page = int_arg("page", 1, ge=1, le=1_000_000)
     where, params = ["1 = 1"], []
     if actor:
         where.append("e.actor = ?")
         params.append(actor)
     if action:
-        where.append("e.action LIKE ?")
-        params.append(action.replace("%", "") + "%")
+        where.append("e.action LIKE ? ESCAPE '\\'")
+        params.append(like_literal(action) + "%")
     if code:
         where.append("e.batch_id = (SELECT id FROM batches WHERE code = ?)")
         params.append(code)

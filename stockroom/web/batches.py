@@ -9,7 +9,7 @@ from flask import Blueprint, flash, redirect, render_template, request, url_for
 from stockroom import chemistry, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, release_in_force
-from stockroom.web import lab_today, parse_date_arg
+from stockroom.web import int_arg, lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
 from stockroom.web.once import once
@@ -17,6 +17,10 @@ from stockroom.web.once import once
 bp = Blueprint("batches", __name__, url_prefix="/batches")
 
 PAGE_SIZE = 50
+# A search of the register: codes, names and notes, at most 100 characters; pages past 10^5 (five
+# million batches) are no page anyone reached by following links.
+MAX_SEARCH = 100
+MAX_PAGE = 100_000
 
 
 @bp.get("/")
@@ -24,12 +28,12 @@ def list_batches() -> str:
     on = parse_date_arg(request.args.get("on"), "on") or lab_today()
     reagent = request.args.get("reagent") or None
     status = request.args.get("status") or None
-    search = (request.args.get("q") or "").strip() or None
+    p = Parser()
+    # The search is literal text: readmodel.batch_page escapes LIKE's % and _ so that they match themselves.
+    search = p.text(request.args.get("q"), "q", required=False, max_length=MAX_SEARCH)
+    p.raise_if_errors()
+    page = int_arg("page", 1, ge=1, le=MAX_PAGE)
     db = get_db()
-    try:
-        page = max(1, int(request.args.get("page", "1")))
-    except ValueError:
-        page = 1
     shown, total = readmodel.batch_page(
         db, on, reagent=reagent, status=status, search=search, limit=PAGE_SIZE, offset=(page - 1) * PAGE_SIZE
     )
@@ -111,6 +115,7 @@ def amend(code: str) -> Any:
                 "new_value",
                 required=name not in ("notes", "concentrate_lot", "container", "water_grade"),
                 max_length=2000 if name == "notes" else 120,
+                multiline=name == "notes",
             )
             or ""
         )

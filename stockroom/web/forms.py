@@ -32,23 +32,11 @@ def date(
     not_after: dt.date | None = None,
     not_before: dt.date | None = None,
 ) -> dt.date | None:
-    """An ISO date (YYYY-MM-DD) from a form field, within optional bounds, or None with an error recorded."""
-    if raw is None or (isinstance(raw, str) and raw.strip() == ""):
-        if required:
-            parser.error(name, "is required")
-        return None
-    try:
-        value = dt.date.fromisoformat(str(raw).strip())
-    except ValueError:
-        parser.error(name, f"{raw!r} is not a date; write it as YYYY-MM-DD")
-        return None
-    if not_after is not None and value > not_after:
-        parser.error(name, f"cannot be later than {not_after.isoformat()}")
-        return None
-    if not_before is not None and value < not_before:
-        parser.error(name, f"cannot be earlier than {not_before.isoformat()}")
-        return None
-    return value
+    """An ISO date (YYYY-MM-DD) from a form field, within optional bounds, or None with an error recorded.
+
+    The register's own bounds (parsing.EARLIEST_DATE .. LATEST_DATE) apply whatever the caller gives.
+    """
+    return parser.date(raw, name, required=required, not_before=not_before, not_after=not_after)
 
 
 def reshow(template: str, exc: InvalidInput, status: int = 422, **context: Any) -> tuple[str, int]:

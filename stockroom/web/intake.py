@@ -27,7 +27,7 @@ from stockroom.errors import Conflict, FieldError, InvalidInput
 from stockroom.formatting import molarity, percent
 from stockroom.formatting import significant as sig
 from stockroom.policy import ReagentPolicy, Status, release_in_force, status_on
-from stockroom.web import forms, lab_today
+from stockroom.web import forms, lab_today, read_json_body
 from stockroom.web.access import anonymous_response, current_user, login_required, public, refuse, require
 from stockroom.web.inputs import Parser
 from stockroom.web.once import once
@@ -135,9 +135,7 @@ def plan_api() -> Any:
     # Storing nothing, it is a read in all but method: open exactly when reads are open.
     if not current_app.config.get("OPEN_READS", True) and current_user() is None:
         return anonymous_response()
-    data = request.get_json(silent=True)
-    if not isinstance(data, dict):
-        return jsonify({"errors": [{"field": "_body", "message": "the request body must be a JSON object"}]}), 400
+    data = read_json_body()  # content type, size, depth and characters, as at every JSON endpoint
     try:
         plan, warnings = work_out_plan(data, records.policies(get_db(), lab_today()), strict_keys=True)
     except InvalidInput as exc:

@@ -8,10 +8,9 @@ from the app config (the setting names in stockroom.settings).
 
 from __future__ import annotations
 
-import json
 from typing import Any
 
-from flask import Blueprint, current_app, jsonify, request
+from flask import Blueprint, current_app, jsonify
 
 from stockroom import chemistry, formatting, run_input, stats
 from stockroom.errors import FieldError, InvalidInput, StockroomError
@@ -31,6 +30,7 @@ from stockroom.standardization import (
     standardize_secondary,
 )
 from stockroom.uncertainty import InputQuantity
+from stockroom.web import read_json_body
 from stockroom.web.access import anonymous_response, current_user, public
 from stockroom.web.inputs import MISSING, Parser, field_path, number_problem
 
@@ -41,6 +41,11 @@ MAX_REPLICATES = run_input.LIMITS.max_replicates
 # A preview may ask for more draws than the default, up to the 10^6 the benchmark times.
 MAX_DRAWS = 1_000_000
 MIN_DRAWS = 1_000
+# Without signing in: at most 10^5 draws (the default setting) and a 64 KB body (a 50-replicate run
+# is under 10 KB); signed in, the JSON reader's own 512 KB.
+ANONYMOUS_MAX_DRAWS = 100_000
+ANONYMOUS_MAX_BYTES = 64 * 1024
+MAX_BODY_BYTES = 512 * 1024
 # The replicates and the fields a run shares with the form (burette, temperatures, reasons) are
 # read by stockroom.run_input under its one table of limits; these bound the preview's own
 # standalone fields, well past any bench titration, so nonsense (1e300) stays out of the arithmetic.
@@ -107,18 +112,14 @@ def preview() -> Any:
     # `public` views take anonymous POSTs, so the rule is applied here).
     if not current_app.config.get("OPEN_READS", True) and current_user() is None:
         return anonymous_response()
-    raw = request.get_data(cache=True)
-    try:
-        data = json.loads(raw)
-    except (ValueError, RecursionError):
-        # RecursionError: a deeply nested body; json raises it rather than a ValueError.
-        return _error_response([FieldError("_body", "the request body must be a JSON object")], 400)
-    if not isinstance(data, dict):
-        kind = {list: "a list", str: "a string", bool: "true or false", type(None): "null"}.get(type(data), "a number")
-        return _error_response([FieldError("_body", f"the request body must be a JSON object, not {kind}")], 422)
+    anonymous = current_user() is None
+    # One JSON body reader for every JSON endpoint (content type, size, depth, characters); an
+    # anonymous preview is held to a smaller body and fewer Monte Carlo draws, so that nobody can
+    # make the server compute 10^6 draws per request without signing in.
+    data = read_json_body(max_bytes=ANONYMOUS_MAX_BYTES if anonymous else MAX_BODY_BYTES)
     config = current_app.config
     try:
-        result, extra = compute_preview(data, config)
+        result, extra = compute_preview(data, config, max_draws=ANONYMOUS_MAX_DRAWS if anonymous else MAX_DRAWS)
     except InvalidInput as exc:
         return _error_response(exc.errors, 422)
     except StockroomError as exc:
@@ -166,19 +167,24 @@ def display_strings(body: dict[str, Any]) -> dict[str, Any]:
 # --------------------------------------------------------------------------- request → run
 
 
-def compute_preview(data: dict[str, Any], config: Any) -> tuple[StandardizationResult, dict[str, Any]]:
+def compute_preview(
+    data: dict[str, Any], config: Any, *, max_draws: int = MAX_DRAWS
+) -> tuple[StandardizationResult, dict[str, Any]]:
     """Parse a preview request and compute it.
 
-    data: the decoded JSON object; config: settings mapping (app.config). Returns the result and
+    data: the decoded JSON object; config: settings mapping (app.config); max_draws: the most Monte
+    Carlo draws this request may ask for (fewer for anonymous requests). Returns the result and
     the extra fields the response echoes (titrant, standard or reference). Raises InvalidInput.
     """
     p = Parser()
     secondary = "reference" in data
     p.known_keys(data, SECONDARY_KEYS if secondary else PRIMARY_KEYS)
     instruments = Instruments.from_settings(config)
-    draws = p.integer(data.get("monte_carlo_draws", MISSING), "monte_carlo_draws", required=False, ge=MIN_DRAWS, le=MAX_DRAWS)
+    draws = p.integer(data.get("monte_carlo_draws", MISSING), "monte_carlo_draws", required=False, ge=MIN_DRAWS, le=max_draws)
     if draws is not None:
         instruments = _replace(instruments, monte_carlo_draws=draws)
+    elif instruments.monte_carlo_draws > max_draws:
+        instruments = _replace(instruments, monte_carlo_draws=max_draws)
     figures = {}
     for key in INSTRUMENT_KEYS:
         value = p.number(data.get(key, MISSING), key, required=False, gt=0, le=10, unit="g" if key.endswith("_g") else "mL")
