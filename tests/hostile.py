@@ -207,8 +207,9 @@ def record_counts(path: str) -> dict[str, int]:
     if c is None:
         c = _READERS[path] = sqlite3.connect(path, check_same_thread=False)
     tables = [r[0] for r in c.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
-    # Refused sign-ins are recorded on purpose (the lock-out counts them), as are refused authorisations.
-    skip = ("web_sessions", "events", "signin_attempts")
+    # Refused sign-ins are recorded on purpose (the throttle counts them), as are refused authorisations;
+    # the throttle's counters and the one-time form ids are operational bookkeeping, not records.
+    skip = ("web_sessions", "events", "signin_attempts", "signin_throttle", "form_submissions")
     counts = {t: c.execute(f"SELECT count(*) FROM {t}").fetchone()[0] for t in tables if t not in skip}
     counts["events"] = c.execute(
         "SELECT count(*) FROM events WHERE action NOT LIKE 'access.%' AND action != 'account.signin_failed'"

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import re
 from typing import Any
 
 from flask import Flask
+from markupsafe import Markup, escape
 
 from stockroom.formatting import (
     coverage_basis,
@@ -24,6 +26,14 @@ from stockroom.formatting import (
     value_u,
 )
 from stockroom.records.audit import action_label  # the words come from the action registry
+
+_ISO_DATE = re.compile(r"\d{4}-\d{2}-\d{2}")
+
+
+def unbroken_dates(text: Any) -> Markup:
+    """Free text (escaped) with each ISO date kept on one line: a date broken at its hyphens misreads."""
+    escaped = str(escape("" if text is None else text))
+    return Markup(_ISO_DATE.sub(lambda m: f'<span class="nowrap">{m.group(0)}</span>', escaped))
 
 
 def fromjson(text: str | None) -> Any:
@@ -55,3 +65,4 @@ def install(app: Flask) -> None:
     app.add_template_filter(date, "date")
     app.add_template_filter(action_label, "action_label")
     app.add_template_filter(fromjson, "fromjson")
+    app.add_template_filter(unbroken_dates, "unbroken_dates")
