@@ -291,7 +291,17 @@ def demo(db_path: str | None, host: str, port: int, no_serve: bool) -> None:
     for line in summary:
         click.echo(f"  {line}")
     if not no_serve:
-        _serve(create_app({"DATABASE": str(target)}), host, port)
+        _serve(create_app({"DATABASE": str(target), **demo_address(host, port)}), host, port)
+
+
+def demo_address(host: str, port: int) -> dict[str, str]:
+    """BASE_URL for a demo served at host:port, so its label QR codes point where it serves. A wildcard
+    host (0.0.0.0, ::) names no address to print: BASE_URL stays empty and labels printed from the web
+    carry the address the person printing reached."""
+    if host in ("", "0.0.0.0", "::"):
+        return {}
+    shown = f"[{host}]" if ":" in host else host
+    return {"BASE_URL": f"http://{shown}:{port}"}
 
 
 # ---------------------------------------------------------------- accounts

@@ -11,6 +11,7 @@ import sqlite3
 import threading
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
+from contextvars import ContextVar
 from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo
@@ -137,9 +138,27 @@ def write_lock() -> threading.RLock:
     return _WRITE_LOCK
 
 
+_FIXED_NOW: ContextVar[dt.datetime | None] = ContextVar("stockroom_fixed_now", default=None)
+
+
 def utc_now() -> str:
-    """Current UTC time as ISO 8601 with seconds and offset."""
-    return dt.datetime.now(dt.UTC).replace(microsecond=0).isoformat()
+    """Current UTC time as ISO 8601 with seconds and offset (the fixed time inside clock_at, if any)."""
+    fixed = _FIXED_NOW.get()
+    moment = fixed if fixed is not None else dt.datetime.now(dt.UTC)
+    return moment.astimezone(dt.UTC).replace(microsecond=0).isoformat()
+
+
+@contextmanager
+def clock_at(moment: dt.datetime) -> Iterator[None]:
+    """Make utc_now() answer `moment` (an aware time) inside the block: the demo loader writes its
+    history at the scenario's dates. Only for building a fresh database; the server never uses it."""
+    if moment.tzinfo is None:
+        raise ValueError("clock_at needs an aware time (with its UTC offset)")
+    token = _FIXED_NOW.set(moment)
+    try:
+        yield
+    finally:
+        _FIXED_NOW.reset(token)
 
 
 def lab_today(timezone_name: str, now: dt.datetime | None = None) -> dt.date:

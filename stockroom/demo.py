@@ -68,11 +68,13 @@ def build_demo(path: str, today: dt.date | None = None, password: str | None = N
                 data["standard_lot_id"] = lots[r["lot"]]["id"]
             actor = _username(scenario["users"], r["analyst"])
             run = run_input.parse_run(data, today=today, prepared_on=dt.date.fromisoformat(batch["prepared_on"]))
-            run_id, _ = workflow.record_run(conn, config, batch, run, actor)
-            if r.get("decision") == "accept":
-                workflow.accept(conn, run_id, actor)
-            elif r.get("decision") == "reject":
-                workflow.reject(conn, run_id, r["reason"], actor)
+            # The history is written at the run's day (mid-day UTC), not the moment the demo is built.
+            with dbmod.clock_at(dt.datetime.combine(today + dt.timedelta(days=run_day), dt.time(12), dt.UTC)):
+                run_id, _ = workflow.record_run(conn, config, batch, run, actor)
+                if r.get("decision") == "accept":
+                    workflow.accept(conn, run_id, actor)
+                elif r.get("decision") == "reject":
+                    workflow.reject(conn, run_id, r["reason"], actor)
         for b in scenario["batches"]:
             if "withdrawn" in b:
                 records.withdraw_batch(

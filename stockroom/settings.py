@@ -40,7 +40,12 @@ SETTINGS: tuple[Setting, ...] = (
         "instance/secret_key beside the database (never a fixed string).",
     ),
     Setting("LAB_TIMEZONE", "Europe/London", "IANA time zone of the lab; dates and times are shown in it."),
-    Setting("BASE_URL", "http://127.0.0.1:8000", "Public address of this server, used in label QR codes."),
+    Setting(
+        "BASE_URL",
+        "",
+        "Public address of this server, used in label QR codes. Empty: the address the person printing "
+        "reached (the request's host and port); from the command line, http://127.0.0.1:8000.",
+    ),
     Setting("OPEN_READS", True, "Allow reading pages without signing in (lab network kiosks).", bool),
     Setting("SESSION_COOKIE_SECURE", False, "Send the session cookie only over HTTPS; turn on behind TLS.", bool),
     Setting("TRUSTED_HOSTS", "", "Comma-separated host names the server answers for; empty allows any.", str),

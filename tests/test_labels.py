@@ -639,3 +639,36 @@ def test_the_certified_value_wraps_only_between_its_parts(width_pt):
     assert len(lines) > 1 or width_pt >= 160
     for ln in lines:
         assert ln.startswith(("0.10035", "0.00016", "(k = 2)", "at 20 °C")), lines
+
+
+# ---------------------------------------------------------------- the address a QR code carries
+
+
+def test_a_label_printed_from_the_web_carries_the_address_its_printer_reached(world, signed_in_client, form_token):
+    """No BASE_URL set (the default): the QR code starts with the request's scheme, host and port."""
+    assert world["config"]["BASE_URL"] == ""
+    staff = signed_in_client("staff")
+    code = world["naoh"]["code"]
+    url = f"/batches/{code}/labels"
+    base = "http://localhost:8765/"  # the session cookie is for localhost; the port differs
+    token = form_token(staff, url)
+    resp = staff.post(url, data={"layout": "carboy-a5", "copies": "1", "csrf_token": token}, base_url=base)
+    assert resp.status_code == 200 and resp.mimetype == "application/pdf"
+    assert qr_decode(render_png(resp.data, dpi=150)) == [f"http://localhost:8765/batches/{code}"]
+
+
+def test_qr_base_url_prefers_the_setting_then_the_request_then_the_fallback():
+    assert labels.qr_base_url("https://prep.example.org", "http://localhost:5000/") == "https://prep.example.org"
+    assert labels.qr_base_url("", "http://localhost:5000/") == "http://localhost:5000/"
+    assert labels.qr_base_url("  ", None) == labels.FALLBACK_BASE_URL == "http://127.0.0.1:8000"
+
+
+def test_the_demo_sets_its_qr_address_to_the_port_it_serves():
+    from stockroom.cli import demo_address
+
+    assert demo_address("127.0.0.1", 8123) == {"BASE_URL": "http://127.0.0.1:8123"}
+    assert demo_address("::1", 9000) == {"BASE_URL": "http://[::1]:9000"}
+    assert demo_address("0.0.0.0", 8123) == {}  # a wildcard names no address: the request's host is used
+    assert labels.batch_url(demo_address("127.0.0.1", 8123)["BASE_URL"], "HCL-2606-01") == (
+        "http://127.0.0.1:8123/batches/HCL-2606-01"
+    )

@@ -141,3 +141,23 @@ def test_without_the_key_verify_says_so_and_fails(demo_db, tmp_path):
     assert result.exit_code == 1
     assert "could not be checked" in result.output
     assert not (tmp_path / "copy.db.trail-key").exists()  # verify never makes a key
+
+
+def test_the_demo_writes_its_release_history_at_the_release_dates(demo_db):
+    """The loader's clock is set to each run's day: every release's audit entry carries its release date."""
+    conn = sqlite3.connect(str(demo_db))
+    try:
+        releases = conn.execute("SELECT id, released_on FROM releases").fetchall()
+        assert len(releases) >= 2
+        for release_id, released_on in releases:
+            times = [
+                row[0]
+                for row in conn.execute(
+                    "SELECT occurred_at FROM events WHERE entity IN ('release', 'releases') AND entity_id = ?", [release_id]
+                )
+            ]
+            assert times and all(t.startswith(released_on) for t in times), (release_id, released_on, times)
+        days = {r[0][:10] for r in conn.execute("SELECT occurred_at FROM events")}
+        assert len(days) > 3  # not all the moment it was built
+    finally:
+        conn.close()

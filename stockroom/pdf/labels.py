@@ -116,6 +116,19 @@ def not_for_use_text(status: Status) -> str:
     return f"{NOT_FOR_USE} {DASH} {_NOT_FOR_USE_WHY.get(status, 'no certified value in force')}"
 
 
+# Where QR codes point when neither BASE_URL nor a request says (printing from the command line).
+FALLBACK_BASE_URL = "http://127.0.0.1:8000"
+
+
+def qr_base_url(configured: str | None, request_root: str | None = None) -> str:
+    """The address a label's QR code starts with: BASE_URL when set, else the address the person
+    printing reached (the request's scheme, host and port), else FALLBACK_BASE_URL."""
+    for candidate in (configured, request_root):
+        if candidate and str(candidate).strip():
+            return str(candidate).strip()
+    return FALLBACK_BASE_URL
+
+
 def batch_url(base_url: str, code: str) -> str:
     """The batch page's address, as the QR code carries it."""
     return f"{base_url.rstrip('/')}/batches/{quote(code, safe='')}"
@@ -579,7 +592,7 @@ def label_content(db: sqlite_utils.Database, config: Mapping[str, Any], batch: M
         prepared_on=batch["prepared_on"],
         prepared_by=batch["prepared_by"],
         elements=elements,
-        url=batch_url(str(config["BASE_URL"]), batch["code"]),
+        url=batch_url(qr_base_url(config.get("BASE_URL"), config.get("REQUEST_ROOT")), batch["code"]),
         printed_on=on.isoformat(),
         release_id=release["id"] if release else None,
     )

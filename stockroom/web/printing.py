@@ -81,6 +81,12 @@ def labels_in_circulation(history: Mapping[str, Any], in_force: Any, status: Sta
     }
 
 
+def _label_config() -> dict[str, Any]:
+    """The app's settings plus REQUEST_ROOT, the address this page was reached at: label QR codes use
+    it when BASE_URL is empty, so a label printed from the web carries the address its printer used."""
+    return dict(current_app.config, REQUEST_ROOT=request.host_url)
+
+
 def _serial_range(p: Mapping[str, Any]) -> str:
     first, last = pdflabels.format_serial(p["serial_first"]), pdflabels.format_serial(p["serial_last"])
     return first if first == last else f"{first}–{last}"
@@ -93,7 +99,7 @@ def _context(
     on = lab_today()
     content, problem = None, None
     try:
-        content = pdflabels.label_content(db, current_app.config, batch, on)
+        content = pdflabels.label_content(db, _label_config(), batch, on)
     except Conflict as exc:
         problem = exc.message
     history = readmodel.batch_history(db, batch["id"])
@@ -156,7 +162,7 @@ def print_labels(code: str) -> Any:
         assert layout is not None and copies is not None and start is not None
         user = current_user()
         assert user is not None
-        job = pdflabels.print_labels(db, current_app.config, batch, layout, copies, start, user.username, lab_today())
+        job = pdflabels.print_labels(db, _label_config(), batch, layout, copies, start, user.username, lab_today())
     except pdflabels.LabelOverflow as exc:
         return _reshow(ctx, InvalidInput([FieldError("layout", exc.message)]))
     except InvalidInput as exc:
