@@ -5,7 +5,6 @@ from __future__ import annotations
 import re
 
 import pytest
-
 from formposts import post
 
 # (url, fields posted, field refused, the label the page shows for it)
