@@ -11,7 +11,7 @@ from stockroom import accounts, chemistry, records, settings
 from stockroom.db import get_db
 from stockroom.errors import InvalidInput
 from stockroom.policy import ReagentPolicy
-from stockroom.web import lab_today
+from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.forms import date as form_date
 from stockroom.web.inputs import Parser
@@ -48,7 +48,7 @@ def users() -> Any:
             flash(f"Account {user.username} ({user.role_label}) created.", "ok")
             return redirect(url_for("admin.users"), 303)
     values = {k: v for k, v in request.form.items() if k != "password"}
-    return render_template(
+    return forms.render_form(
         "admin/users.html",
         users=accounts.list_users(db),
         roles=accounts.ROLES,
@@ -115,7 +115,7 @@ def policy() -> Any:
             return redirect(url_for("admin.policy"), 303)
         errors, status = InvalidInput(p.errors).fields, 422
     today = lab_today()
-    return render_template(
+    return forms.render_form(
         "admin/policy.html",
         in_force=sorted(records.policies(db, today).values(), key=lambda x: x.reagent),
         history=records.policy_history(db),

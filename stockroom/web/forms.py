@@ -7,6 +7,8 @@ field, HTTP 422, and nothing written.
 from __future__ import annotations
 
 import datetime as dt
+import html
+import re
 from typing import Any
 
 from flask import render_template, request
@@ -39,6 +41,41 @@ def date(
     return parser.date(raw, name, required=required, not_before=not_before, not_after=not_after)
 
 
+# A form field's label as the page shows it: <label for="f-NAME">Text <span class="unit">(g)</span></label>
+_LABEL = re.compile(r'<label[^>]*\bfor="f-([A-Za-z0-9_.-]+)"[^>]*>(.*?)</label>', re.S)
+_UNIT = re.compile(r'<span class="unit">.*?</span>', re.S)
+_TAG = re.compile(r"<[^>]+>")
+
+
+def labels_in(page: str) -> dict[str, str]:
+    """Field name -> the label text a rendered form shows for it (units and markup dropped)."""
+    out: dict[str, str] = {}
+    for name, inner in _LABEL.findall(page):
+        text = " ".join(html.unescape(_TAG.sub("", _UNIT.sub("", inner))).split())
+        if text:
+            out.setdefault(name, text)
+    return out
+
+
+def spoken(name: str) -> str:
+    """A field name as words, for a field no label names ("shelf_life_days" -> "Shelf life days")."""
+    words = name.replace("_", " ").replace(".", " ").strip()
+    return words[:1].upper() + words[1:] if words else "This form"
+
+
+def render_form(template: str, *, errors: dict[str, str], **context: Any) -> str:
+    """Render a form; when it carries errors, each is listed under the label the form shows for its field.
+
+    The labels are read from the form itself (a first rendering), so the list at the top of the form
+    and the field it points to always use the same words; a name with no label is spelled as words.
+    """
+    if not errors:
+        return render_template(template, errors=errors, labels={}, **context)
+    found = labels_in(render_template(template, errors=errors, labels={}, **context))
+    labels = {name: found.get(name) or spoken(name) for name in errors}
+    return render_template(template, errors=errors, labels=labels, **context)
+
+
 def reshow(template: str, exc: InvalidInput, status: int = 422, **context: Any) -> tuple[str, int]:
-    """Render the form again with what was typed and each error beside its field."""
-    return render_template(template, values=request.form, errors=exc.fields, **context), status
+    """Render the form again with what was typed and each error beside its field, listed by its label."""
+    return render_form(template, values=request.form, errors=exc.fields, **context), status
