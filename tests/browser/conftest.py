@@ -8,11 +8,11 @@ from __future__ import annotations
 
 import os
 import shutil
-import socket
 import threading
 from pathlib import Path
 
 import pytest
+from livesite import DEMO_PASSWORD, _free_port
 
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
 
@@ -23,12 +23,6 @@ def _chromium() -> str | None:
         if found:
             return found
     return None
-
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
 
 
 @pytest.fixture(scope="session")
@@ -105,7 +99,6 @@ def screenshot():
 # ---------------------------------------------------------------- a signed-in prep-staff page
 
 # Invented, for the browser tests' own demo database only; long and not on the common-password list.
-DEMO_PASSWORD = "invented lantern for browser tests"
 DEMO_STAFF = "okafor"  # a prep-staff user of the demo scenario (demo_data/scenario.json)
 
 

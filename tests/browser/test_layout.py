@@ -16,8 +16,7 @@ import threading
 from pathlib import Path
 
 import pytest
-
-from tests.browser.conftest import DEMO_PASSWORD, _free_port
+from livesite import DEMO_PASSWORD, _free_port
 
 pytestmark = pytest.mark.browser
 
