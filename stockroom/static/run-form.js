@@ -261,7 +261,8 @@
       if (lot && lot.value && hint) {
         hint.textContent = "About " + lot.dataset.suggested + " g gives a 40 mL titre at the nominal strength.";
         var ep = form.elements.endpoint;
-        if (ep && !ep.value) { ep.value = lot.dataset.endpoint; }
+        // A suggestion, not the analyst's record: shown as a placeholder, so an empty field stores empty.
+        if (ep) { ep.placeholder = "usually: " + lot.dataset.endpoint; }
       }
     });
   }

@@ -73,6 +73,10 @@ def test_register_standardize_and_release(staff_page, staff_demo_server, screens
     if lot_value is None:  # the option text shows the lot code, not the supplier's lot
         lot_value = page.locator("#f-standard_lot_id option").last.get_attribute("value")
     page.select_option("#f-standard_lot_id", lot_value)
+    # The usual end point is offered as a placeholder, never typed in for the analyst (common practice:
+    # the record says what the analyst observed).
+    assert page.input_value("#f-endpoint") == ""
+    assert page.get_attribute("#f-endpoint", "placeholder").startswith("usually: ")
     page.focus("#f-r1_gross_g")
     for gross, tare, initial, final in ROWS:
         page.keyboard.type(gross)
