@@ -69,10 +69,11 @@ def render_form(template: str, *, errors: dict[str, str], **context: Any) -> str
     The labels are read from the form itself (a first rendering), so the list at the top of the form
     and the field it points to always use the same words; a name with no label is spelled as words.
     """
-    if not errors:
-        return render_template(template, errors=errors, labels={}, **context)
-    found = labels_in(render_template(template, errors=errors, labels={}, **context))
-    labels = {name: found.get(name) or spoken(name) for name in errors}
+    given: dict[str, str] = dict(context.pop("labels", None) or {})  # a view's own table of labels wins
+    if not errors or all(name in given for name in errors):
+        return render_template(template, errors=errors, labels=given, **context)
+    found = labels_in(render_template(template, errors=errors, labels=given, **context))
+    labels = given | {name: found.get(name) or spoken(name) for name in errors if name not in given}
     return render_template(template, errors=errors, labels=labels, **context)
 
 
