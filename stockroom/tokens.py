@@ -10,7 +10,7 @@ from typing import Any
 import sqlite_utils
 
 from stockroom import db as dbmod
-from stockroom import records
+from stockroom import parsing, records
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
 
 PREFIX = "srt_"
@@ -35,6 +35,9 @@ def _digest(secret: str) -> str:
 def create(db: sqlite_utils.Database, user_id: int, username: str, label: str) -> tuple[Token, str]:
     """Make a token for a user; return it and its secret (shown once, never stored in clear)."""
     label = (label or "").strip()
+    problem = parsing.text_problem(label)  # a NUL or control character: SQLite would read the name as empty
+    if problem:
+        raise InvalidInput([FieldError("label", problem)])
     if not label or len(label) > 80:
         raise InvalidInput(
             [FieldError("label", "give the token a name of 1 to 80 characters, e.g. the program that will use it")]

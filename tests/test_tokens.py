@@ -93,3 +93,14 @@ def test_a_refused_password_change_leaves_the_tokens_alive(conn, make_user):
         accounts.change_password(conn, user, "not the current one", NEW_PASSWORD, now=dt.datetime.now(dt.UTC))
     assert tokens.user_id_for(conn, secret) == user.id
     assert _revocations(conn, user.id) == []
+
+
+@pytest.mark.parametrize("label", ["\x00reason", "bench\x07script", "two\nlines"])
+def test_a_token_name_with_control_characters_is_refused_and_nothing_stored(conn, make_user, label):
+    # Found by the write-route fuzzer: SQLite reads text up to a NUL, so "\x00reason" met the table's
+    # non-empty check as empty and answered 500.
+    user = make_user("ctrl-user", "staff")
+    with pytest.raises(InvalidInput) as exc:
+        tokens.create(conn, user.id, user.username, label)
+    assert exc.value.errors[0].field == "label"
+    assert conn.execute("SELECT count(*) FROM api_tokens").fetchone()[0] == 0
