@@ -88,6 +88,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.pdf.layouts",
             "stockroom.pdf.recall_report",
             "stockroom.pdf.tall_rows",
+            "stockroom.pdf.typeface",
         ),
     ),
     # Blueprints and their request handling.

@@ -403,8 +403,12 @@ def test_a_word_wider_than_the_box_is_broken_and_every_piece_fits():
     assert "".join(lines).replace(" ", "") == "P303+P361+P353" + "x" * 60
 
 
-def test_letters_the_standard_fonts_lack_lose_their_accents_not_their_place():
-    assert labels.printable("Łukasz Żółć, 0.1 µmol, α = 0.05") == "Lukasz Zólc, 0.1 µmol, α = 0.05"
+def test_accents_greek_and_the_combining_bar_are_kept_and_only_missing_letters_change():
+    # The embedded typeface draws Ł, ő, ñ, Greek and the combining macron of the mean-volume symbol.
+    text = "Łukasz Żółć, Erdős, Nuñez, 0.1 µmol, α = 0.05, V\u0304 ≤ 25 °C ± 0.5, ν\u2082"
+    assert labels.printable(text) == text
+    # A letter the font lacks (CJK) becomes '?', one with a missing accented form keeps its base letter.
+    assert labels.printable("漢 x") == "? x"
 
 
 # ---------------------------------------------------------------- sheets

@@ -41,8 +41,10 @@ from stockroom import chemistry, readmodel, records
 from stockroom import db as dbmod
 from stockroom import formatting as fmt
 from stockroom.errors import NotFound
+from stockroom.pdf import typeface
 from stockroom.pdf.ghs import GHS_RED
-from stockroom.pdf.labels import printable, value_text
+from stockroom.pdf.labels import value_text
+from stockroom.pdf.typeface import printable
 from stockroom.policy import ReleaseFact
 from stockroom.records import audit
 
@@ -51,14 +53,14 @@ MAX_CHAIN = 12  # reference steps followed before giving up (a loop in the recor
 _INK = colors.HexColor("#1d2327")
 _RULE = colors.HexColor("#9aa5ab")
 _SHADE = colors.HexColor("#eef1f2")
-_BODY = ParagraphStyle("body", fontName="Helvetica", fontSize=9, leading=11.5, textColor=_INK, alignment=TA_LEFT)
+_BODY = ParagraphStyle("body", fontName=typeface.REGULAR, fontSize=9, leading=11.5, textColor=_INK, alignment=TA_LEFT)
 _SMALL = ParagraphStyle("small", parent=_BODY, fontSize=7.5, leading=9.5)
 _CELL = ParagraphStyle("cell", parent=_BODY, fontSize=8, leading=10)
-_CELL_BOLD = ParagraphStyle("cellb", parent=_CELL, fontName="Helvetica-Bold")
-_H1 = ParagraphStyle("h1", parent=_BODY, fontName="Helvetica-Bold", fontSize=17, leading=21, spaceAfter=2)
-_H2 = ParagraphStyle("h2", parent=_BODY, fontName="Helvetica-Bold", fontSize=11, leading=14, spaceBefore=9, spaceAfter=4)
-_VALUE = ParagraphStyle("value", parent=_BODY, fontName="Helvetica-Bold", fontSize=15, leading=19)
-_BANNER = ParagraphStyle("banner", parent=_BODY, fontName="Helvetica-Bold", fontSize=10.5, leading=13.5, textColor=colors.white)
+_CELL_BOLD = ParagraphStyle("cellb", parent=_CELL, fontName=typeface.BOLD)
+_H1 = ParagraphStyle("h1", parent=_BODY, fontName=typeface.BOLD, fontSize=17, leading=21, spaceAfter=2)
+_H2 = ParagraphStyle("h2", parent=_BODY, fontName=typeface.BOLD, fontSize=11, leading=14, spaceBefore=9, spaceAfter=4)
+_VALUE = ParagraphStyle("value", parent=_BODY, fontName=typeface.BOLD, fontSize=15, leading=19)
+_BANNER = ParagraphStyle("banner", parent=_BODY, fontName=typeface.BOLD, fontSize=10.5, leading=13.5, textColor=colors.white)
 
 
 def _p(text: Any, style: ParagraphStyle = _CELL) -> Paragraph:
@@ -558,7 +560,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
     sig.setStyle(
         TableStyle(
             [
-                ("FONT", (0, 0), (-1, -1), "Helvetica", 8.5),
+                ("FONT", (0, 0), (-1, -1), typeface.REGULAR, 8.5),
                 ("VALIGN", (0, 0), (-1, -1), "BOTTOM"),
                 ("LINEBELOW", (1, 0), (1, -1), 0.6, _INK),
                 ("LINEBELOW", (3, 0), (3, -1), 0.6, _INK),
@@ -606,7 +608,7 @@ class _NumberedCanvas(Canvas):
         total = len(self._pages)
         for state in self._pages:
             self.__dict__.update(state)
-            self.setFont("Helvetica", 7)
+            self.setFont(typeface.REGULAR, 7)
             self.setFillColor(_INK)
             self.drawString(15 * mm, 9 * mm, self._footer)
             self.drawRightString(A4[0] - 15 * mm, 9 * mm, f"page {self._pageNumber} of {total}")

@@ -19,8 +19,9 @@ from reportlab.pdfbase.pdfmetrics import stringWidth
 
 from stockroom import formatting as fmt
 from stockroom.drift import DriftReport, Fit, interval_at
+from stockroom.pdf import typeface
 
-FONT = "Helvetica"
+FONT = typeface.REGULAR
 INK = colors.HexColor("#1d2327")
 MUTED = colors.HexColor("#5b6770")
 GRID = colors.HexColor("#e3e7e9")
@@ -385,6 +386,8 @@ def drift_svg(
     summary = title or "Drift chart"
     desc = _describe(report)
     svg = svg.replace("<title>...</title>", f"<title>{escape(summary)}</title>", 1)
+    # The text was measured in the PDFs' typeface; a browser without it takes the nearest sans.
+    svg = svg.replace(f"font-family: {FONT};", "font-family: 'DejaVu Sans', Verdana, Arial, sans-serif;")
     return svg.replace("<desc>...</desc>", f"<desc>{escape(desc)}</desc>", 1)
 
 

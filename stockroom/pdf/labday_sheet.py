@@ -21,6 +21,7 @@ from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Space
 from stockroom import chemistry
 from stockroom import formatting as fmt
 from stockroom.labday import LabDay, LabDayEntry, cautions
+from stockroom.pdf import typeface
 from stockroom.pdf.tall_rows import group_ends, split_row
 
 INK = colors.HexColor("#1d2327")
@@ -34,19 +35,19 @@ WARN_BG = colors.HexColor("#fdf0d5")
 def _styles() -> dict[str, ParagraphStyle]:
     base = getSampleStyleSheet()
     body = ParagraphStyle(
-        "body", parent=base["BodyText"], fontName="Helvetica", fontSize=9.5, leading=12.5, textColor=INK, alignment=TA_LEFT
+        "body", parent=base["BodyText"], fontName=typeface.REGULAR, fontSize=9.5, leading=12.5, textColor=INK, alignment=TA_LEFT
     )
     return {
-        "title": ParagraphStyle("title", parent=body, fontName="Helvetica-Bold", fontSize=17, leading=21, spaceAfter=2),
+        "title": ParagraphStyle("title", parent=body, fontName=typeface.BOLD, fontSize=17, leading=21, spaceAfter=2),
         "sub": ParagraphStyle("sub", parent=body, textColor=MUTED, fontSize=9.5, leading=12.5),
         "body": body,
         "cell": ParagraphStyle("cell", parent=body, fontSize=9, leading=11.5),
-        "head": ParagraphStyle("head", parent=body, fontName="Helvetica-Bold", fontSize=8.5, leading=10.5, textColor=MUTED),
-        "value": ParagraphStyle("value", parent=body, fontName="Helvetica-Bold", fontSize=12.5, leading=15),
-        "hold": ParagraphStyle("hold", parent=body, fontName="Helvetica-Bold", fontSize=12.5, leading=15, textColor=BAD),
+        "head": ParagraphStyle("head", parent=body, fontName=typeface.BOLD, fontSize=8.5, leading=10.5, textColor=MUTED),
+        "value": ParagraphStyle("value", parent=body, fontName=typeface.BOLD, fontSize=12.5, leading=15),
+        "hold": ParagraphStyle("hold", parent=body, fontName=typeface.BOLD, fontSize=12.5, leading=15, textColor=BAD),
         "flag": ParagraphStyle("flag", parent=body, fontSize=8.5, leading=11, textColor=BAD),
         "note": ParagraphStyle("note", parent=body, fontSize=8, leading=10.5, textColor=MUTED),
-        "reason": ParagraphStyle("reason", parent=body, fontName="Helvetica-Bold", fontSize=12, leading=16),
+        "reason": ParagraphStyle("reason", parent=body, fontName=typeface.BOLD, fontSize=12, leading=16),
     }
 
 
@@ -117,7 +118,7 @@ def _sentence(text: str) -> str:
 def _footer(printed_on: dt.date):  # type: ignore[no-untyped-def]
     def draw(canvas, doc) -> None:  # type: ignore[no-untyped-def]
         canvas.saveState()
-        canvas.setFont("Helvetica", 7.5)
+        canvas.setFont(typeface.REGULAR, 7.5)
         canvas.setFillColor(MUTED)
         canvas.drawString(
             doc.leftMargin,

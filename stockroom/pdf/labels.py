@@ -22,7 +22,6 @@ import functools
 import io
 import math
 import re
-import unicodedata
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
@@ -41,7 +40,7 @@ from stockroom import chemistry, formatting, hazards, readmodel, records
 from stockroom import db as dbmod
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
 from stockroom.hazards import LabelElements
-from stockroom.pdf import ghs
+from stockroom.pdf import ghs, typeface
 from stockroom.pdf.layouts import Field, Layout
 from stockroom.policy import Status, release_in_force, status_on
 
@@ -181,38 +180,11 @@ def format_serial(serial: int) -> str:
 
 # ---------------------------------------------------------------- text that fits
 
-_SPECIAL = {"Ł": "L", "ł": "l", "Đ": "D", "đ": "d", "Ħ": "H", "ħ": "h", "ı": "i", "−": "-", "‐": "-", "‑": "-"}
 
-
-def _symbol_codec() -> None:
-    from reportlab.pdfbase.rl_codecs import RL_Codecs
-
-    RL_Codecs.register()
-
-
-def _encodable(ch: str, codec: str) -> bool:
-    try:
-        ch.encode(codec)
-    except UnicodeEncodeError:
-        return False
-    return True
-
-
-@functools.lru_cache(maxsize=4096)
 def printable(text: str) -> str:
-    """Text the standard PDF fonts can show: Windows-1252, plus Greek and maths signs, which reportlab sets
-    in the Symbol font. Any other letter loses its accent (Ż -> Z) rather than printing as a black box."""
-    _symbol_codec()
-    out = []
-    for ch in text:
-        if _encodable(ch, "cp1252") or _encodable(ch, "symbol"):
-            out.append(ch)
-        elif ch in _SPECIAL:
-            out.append(_SPECIAL[ch])
-        else:
-            base = "".join(c for c in unicodedata.normalize("NFKD", ch) if not unicodedata.combining(c))
-            out.append(base if base and all(_encodable(c, "cp1252") for c in base) else "?")
-    return "".join(out)
+    """Text the label's typeface can show (stockroom.pdf.typeface.printable): accents beyond one code page,
+    Greek and combining marks are kept; a character the font lacks loses its accent or becomes '?'."""
+    return typeface.printable(text)
 
 
 @functools.lru_cache(maxsize=16384)

@@ -19,6 +19,7 @@ from typing import Any
 from reportlab.lib.units import mm
 
 from stockroom.errors import StockroomError
+from stockroom.pdf import typeface
 from stockroom.resources import resource_dir
 
 # Page sizes in mm (ISO 216 and the North American sizes).
@@ -31,10 +32,15 @@ PAGE_SIZES: dict[str, tuple[float, float]] = {
     "legal": (215.9, 355.6),
 }
 
+# One typeface, embedded in every PDF (stockroom.pdf.typeface). The standard-font names layouts of
+# earlier versions gave are read as it: those fonts lack characters labels print (Ł, ő, V̄).
+DEFAULT_FAMILY = "DejaVu Sans"
 FONT_FAMILIES: dict[str, tuple[str, str]] = {
-    "Helvetica": ("Helvetica", "Helvetica-Bold"),
-    "Times": ("Times-Roman", "Times-Bold"),
-    "Courier": ("Courier", "Courier-Bold"),
+    DEFAULT_FAMILY: (typeface.REGULAR, typeface.BOLD),
+    "DejaVu Sans Condensed": (typeface.CONDENSED, typeface.CONDENSED_BOLD),
+    "Helvetica": (typeface.REGULAR, typeface.BOLD),
+    "Times": (typeface.REGULAR, typeface.BOLD),
+    "Courier": (typeface.REGULAR, typeface.BOLD),
 }
 
 # What a text template may show. Every label must carry the REQUIRED ones somewhere.
@@ -345,7 +351,7 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
 
     font = r.table(data, "font", required=False)
     r.known(font, "[font] ", _FONT_KEYS)
-    family = r.text(font, "family", "[font] ", default="Helvetica", choices=tuple(FONT_FAMILIES))
+    family = r.text(font, "family", "[font] ", default=DEFAULT_FAMILY, choices=tuple(FONT_FAMILIES))
     base_size = r.number(font, "size_pt", "[font] ", 8.0, minimum=ABSOLUTE_MIN_PT)
     base_min = r.number(font, "min_size_pt", "[font] ", 5.0, minimum=ABSOLUTE_MIN_PT)
     base_leading = r.number(font, "leading", "[font] ", 1.15, minimum=1.0)

@@ -20,6 +20,7 @@ from reportlab.lib.units import mm
 from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
 
 from stockroom import formatting as fmt
+from stockroom.pdf import typeface
 
 if TYPE_CHECKING:
     from stockroom.recall import Impact
@@ -36,19 +37,17 @@ WIDTH = A4[0] - 28 * mm
 def _styles() -> dict[str, ParagraphStyle]:
     base = getSampleStyleSheet()
     body = ParagraphStyle(
-        "body", parent=base["BodyText"], fontName="Helvetica", fontSize=9.5, leading=12.5, textColor=INK, alignment=TA_LEFT
+        "body", parent=base["BodyText"], fontName=typeface.REGULAR, fontSize=9.5, leading=12.5, textColor=INK, alignment=TA_LEFT
     )
     return {
-        "title": ParagraphStyle("title", parent=body, fontName="Helvetica-Bold", fontSize=16, leading=20, spaceAfter=2),
-        "h2": ParagraphStyle(
-            "h2", parent=body, fontName="Helvetica-Bold", fontSize=11.5, leading=14, spaceBefore=8, spaceAfter=3
-        ),
+        "title": ParagraphStyle("title", parent=body, fontName=typeface.BOLD, fontSize=16, leading=20, spaceAfter=2),
+        "h2": ParagraphStyle("h2", parent=body, fontName=typeface.BOLD, fontSize=11.5, leading=14, spaceBefore=8, spaceAfter=3),
         "sub": ParagraphStyle("sub", parent=body, textColor=MUTED),
         "body": body,
         "cell": ParagraphStyle("cell", parent=body, fontSize=8.5, leading=10.5),
-        "head": ParagraphStyle("head", parent=body, fontName="Helvetica-Bold", fontSize=8, leading=10, textColor=MUTED),
-        "bad": ParagraphStyle("bad", parent=body, fontName="Helvetica-Bold", textColor=BAD),
-        "ok": ParagraphStyle("ok", parent=body, fontName="Helvetica-Bold", textColor=OK),
+        "head": ParagraphStyle("head", parent=body, fontName=typeface.BOLD, fontSize=8, leading=10, textColor=MUTED),
+        "bad": ParagraphStyle("bad", parent=body, fontName=typeface.BOLD, textColor=BAD),
+        "ok": ParagraphStyle("ok", parent=body, fontName=typeface.BOLD, textColor=OK),
         "note": ParagraphStyle("note", parent=body, fontSize=8, leading=10.5, textColor=MUTED),
     }
 
@@ -77,7 +76,7 @@ def _table(
 def _footer(recall_id: int, printed_on: dt.date):  # type: ignore[no-untyped-def]
     def draw(canvas, doc) -> None:  # type: ignore[no-untyped-def]
         canvas.saveState()
-        canvas.setFont("Helvetica", 7.5)
+        canvas.setFont(typeface.REGULAR, 7.5)
         canvas.setFillColor(MUTED)
         canvas.drawString(
             doc.leftMargin,
