@@ -216,3 +216,10 @@ def date(value: Any) -> str:
     if isinstance(value, dt.date):
         return value.isoformat()[:10]
     return str(value)[:10]
+
+
+def release_name(number: int | None, batch_code: str | None = None) -> str:
+    """A release as people read it: 'release 2 of HCL-2606-01' (its number within the batch, never a row id)."""
+    if number is None:
+        return "release (not on record)"
+    return f"release {number} of {batch_code}" if batch_code else f"release {number}"

@@ -34,7 +34,6 @@ from reportlab.platypus import (
     SimpleDocTemplate,
     Spacer,
     Table,
-    TableStyle,
 )
 
 from stockroom import chemistry, readmodel, records
@@ -101,7 +100,8 @@ def _chain(db: sqlite_utils.Database, run: Mapping[str, Any]) -> list[dict[str, 
         ref_batch = records.batch_by_id(db, current["reference_batch_id"])
         ref_run = records.run_by_id(db, ref_release["run_id"])
         lot = records.lot_by_id(db, ref_run["standard_lot_id"]) if ref_run["standard_lot_id"] else None
-        steps.append({"batch": ref_batch, "release": ref_release, "run": ref_run, "lot": lot})
+        number = records.release_number(db, release_id)
+        steps.append({"batch": ref_batch, "release": ref_release, "run": ref_run, "lot": lot, "number": number})
         current = ref_run
     return steps
 
@@ -115,8 +115,13 @@ def certificate_data(db: sqlite_utils.Database, release_id: int, on: dt.date) ->
     later = dbmod.query(db, "SELECT * FROM releases WHERE supersedes_id = ? ORDER BY id LIMIT 1", [release_id])
     facts = readmodel.batch_facts(db, batch["id"])
     fact = next((r for r in facts.releases if r.id == release_id), None)
+    numbers = records.release_numbers(db, [release_id, release["supersedes_id"], later[0]["id"] if later else None])
     return {
         "release": release,
+        # Releases as people read them: their number within the batch (release 2 of HCL-2606-01).
+        "release_number": numbers.get(release_id),
+        "supersedes_number": numbers.get(release["supersedes_id"]) if release["supersedes_id"] else None,
+        "superseded_by_number": numbers.get(later[0]["id"]) if later else None,
         "batch": batch,
         "run": run,
         "lot": lot,
@@ -175,7 +180,7 @@ def _kv_table(rows: list[tuple[str, Any]], widths: tuple[float, float]) -> Table
     body = [[_p(k, _CELL_BOLD), v if isinstance(v, Paragraph) else _p(v)] for k, v in rows]
     t = Table(body, colWidths=list(widths), hAlign="LEFT")
     t.setStyle(
-        TableStyle(
+        typeface.table_style(
             [
                 ("VALIGN", (0, 0), (-1, -1), "TOP"),
                 ("LINEBELOW", (0, 0), (-1, -1), 0.25, _RULE),
@@ -200,14 +205,14 @@ def _grid(header: list[str], rows: list[list[Any]], widths: list[float], shade_r
     ]
     for r in shade_rows:
         style.append(("BACKGROUND", (0, r + 1), (-1, r + 1), _SHADE))
-    t.setStyle(TableStyle(style))
+    t.setStyle(typeface.table_style(style))
     return t
 
 
 def _banner(text: str) -> Table:
     t = Table([[Paragraph(escape(printable(text)), _BANNER)]], colWidths=[180 * mm], hAlign="LEFT")
     t.setStyle(
-        TableStyle(
+        typeface.table_style(
             [
                 ("BACKGROUND", (0, 0), (-1, -1), GHS_RED),
                 ("TOPPADDING", (0, 0), (-1, -1), 5),
@@ -226,7 +231,8 @@ def status_lines(data: Mapping[str, Any]) -> list[str]:
     later = data["superseded_by"]
     if later is not None:
         out.append(
-            f"SUPERSEDED: release {later['id']} of {later['released_on']} replaced this value with "
+            f"SUPERSEDED: {fmt.release_name(data.get('superseded_by_number'))} of {later['released_on']} "
+            "replaced this value with "
             f"{value_text(later['molarity'], later['expanded_u'], later['k'], later['reference_temperature_c'])}. "
             "This certificate records a value no longer in force."
         )
@@ -375,7 +381,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
         Paragraph("Certificate of standardization", _H1),
         _p(
             f"Batch {batch['code']} · {titrant.name} ({titrant.formula}), {batch['nominal_molarity']:g} mol/L "
-            f"nominal · release {release['id']}",
+            f"nominal · {fmt.release_name(data.get('release_number'), batch['code'])}",
             _BODY,
         ),
         Spacer(1, 4 * mm),
@@ -412,7 +418,12 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                     f"every {release['recheck_interval_days']} days; drift tolerance "
                     f"± {fmt.percent(release['tolerance_rel'])} of the certified value",
                 ),
-                ("Supersedes", f"release {release['supersedes_id']}" if release["supersedes_id"] else "— (first release)"),
+                (
+                    "Supersedes",
+                    fmt.release_name(data.get("supersedes_number"), batch["code"])
+                    if release["supersedes_id"]
+                    else "— (first release)",
+                ),
             ],
             (45 * mm, 135 * mm),
         )
@@ -459,7 +470,8 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                 [
                     i,
                     step["batch"]["code"],
-                    f"release {rel['id']} of {rel['released_on']}: {fmt.molarity(rel['molarity'], rel['expanded_u'], rel['k'])}",
+                    f"{fmt.release_name(step.get('number'))} of {rel['released_on']}: "
+                    f"{fmt.molarity(rel['molarity'], rel['expanded_u'], rel['k'])}",
                     f"{ref_run['performed_on']}, against {basis}",
                 ]
             )
@@ -558,7 +570,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
         hAlign="LEFT",
     )
     sig.setStyle(
-        TableStyle(
+        typeface.table_style(
             [
                 ("FONT", (0, 0), (-1, -1), typeface.REGULAR, 8.5),
                 ("VALIGN", (0, 0), (-1, -1), "BOTTOM"),
@@ -628,20 +640,21 @@ def head_anchor(head: tuple[int, str] | None) -> str:
 def build_certificate(data: Mapping[str, Any]) -> bytes:
     """The certificate of standardization as A4 PDF bytes, from certificate_data(...)."""
     buf = io.BytesIO()
-    release, batch = data["release"], data["batch"]
+    batch = data["batch"]
     footer = printable(
-        f"stockroom · certificate of standardization · batch {batch['code']} · release {release['id']} "
+        f"stockroom · certificate of standardization · {fmt.release_name(data.get('release_number'), batch['code'])} "
         f"· issued {data['on'].isoformat()}"
     )
     anchor = f"audit trail head when made (entry:MAC, for stockroom verify --anchor): {head_anchor(data.get('trail_head'))}"
     doc = SimpleDocTemplate(
         buf,
+        initialFontName=typeface.REGULAR,  # no standard font in the file, not even unused
         pagesize=A4,
         leftMargin=15 * mm,
         rightMargin=15 * mm,
         topMargin=14 * mm,
         bottomMargin=16 * mm,
-        title=printable(f"Certificate of standardization, {batch['code']}, release {release['id']}"),
+        title=printable(f"Certificate of standardization, {fmt.release_name(data.get('release_number'), batch['code'])}"),
         author="stockroom",
         creator="stockroom",
         subject=printable(f"{batch['reagent']} {batch['nominal_molarity']:g} mol/L"),

@@ -16,7 +16,7 @@ from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4
 from reportlab.lib.styles import ParagraphStyle, getSampleStyleSheet
 from reportlab.lib.units import mm
-from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
+from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table
 
 from stockroom import chemistry
 from stockroom import formatting as fmt
@@ -49,6 +49,15 @@ def _styles() -> dict[str, ParagraphStyle]:
         "note": ParagraphStyle("note", parent=body, fontSize=8, leading=10.5, textColor=MUTED),
         "reason": ParagraphStyle("reason", parent=body, fontName=typeface.BOLD, fontSize=12, leading=16),
     }
+
+
+_BATCH_COLUMN = 31 * mm
+_CELL_PADDING = 6  # pt each side, reportlab's table default
+
+
+def _code_size(code: str, size: float) -> float:
+    """The size the batch ID is set at so it stays on one line in its column (IDs are never broken)."""
+    return typeface.fitting_size(code, typeface.BOLD, size, _BATCH_COLUMN - 2 * _CELL_PADDING, 6.0)
 
 
 def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[list[object]]:
@@ -100,7 +109,9 @@ def _row(e: LabDayEntry, st: dict[str, ParagraphStyle]) -> list[list[object]]:
     return [
         [
             Paragraph(
-                f"<b>{escape(e.batch.code)}</b><br/>{escape(t.name)}, {e.batch.nominal_molarity:g} mol/L nominal", st["cell"]
+                f"<b><font size={_code_size(e.batch.code, st['cell'].fontSize)}>{escape(e.batch.code)}</font></b><br/>"
+                f"{escape(t.name)}, {e.batch.nominal_molarity:g} mol/L nominal",
+                st["cell"],
             )
         ],
         use,
@@ -142,6 +153,7 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
     buf = io.BytesIO()
     doc = SimpleDocTemplate(
         buf,
+        initialFontName=typeface.REGULAR,  # no standard font in the file, not even unused
         pagesize=A4,
         leftMargin=14 * mm,
         rightMargin=14 * mm,
@@ -187,9 +199,9 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
         rows: list[list[Any]] = [head]
         for group in groups:
             rows += group
-        table = Table(rows, repeatRows=1, colWidths=[28 * mm, 36 * mm, 41 * mm, 33 * mm, None])
+        table = Table(rows, repeatRows=1, colWidths=[_BATCH_COLUMN, 36 * mm, 41 * mm, 33 * mm, None])
         table.setStyle(
-            TableStyle(
+            typeface.table_style(
                 [
                     ("VALIGN", (0, 0), (-1, -1), "TOP"),
                     ("LINEBELOW", (0, 0), (-1, 0), 0.8, INK),
@@ -220,7 +232,7 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
         colWidths=[A4[0] - 28 * mm],
     )
     box.setStyle(
-        TableStyle(
+        typeface.table_style(
             [
                 ("BOX", (0, 0), (-1, -1), 1.4, WARN),
                 ("BACKGROUND", (0, 0), (-1, -1), WARN_BG),

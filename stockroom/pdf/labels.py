@@ -495,7 +495,7 @@ def build_labels(content: LabelContent, layout: Layout, copies: int, start: int 
     if not 1 <= start <= layout.per_page:
         raise ValueError(f"start must be between 1 and {layout.per_page}")
     buf = io.BytesIO()
-    c = Canvas(buf, pagesize=layout.page_size_pt, invariant=1, pageCompression=1)
+    c = Canvas(buf, pagesize=layout.page_size_pt, invariant=1, pageCompression=1, initialFontName=typeface.REGULAR)
     last = first_serial + copies - 1
     c.setTitle(printable(f"Labels {content.batch_id}, serials {format_serial(first_serial)}-{format_serial(last)}"))
     c.setAuthor("stockroom")

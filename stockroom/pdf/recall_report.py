@@ -17,7 +17,7 @@ from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4
 from reportlab.lib.styles import ParagraphStyle, getSampleStyleSheet
 from reportlab.lib.units import mm
-from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table, TableStyle
+from reportlab.platypus import KeepTogether, Paragraph, SimpleDocTemplate, Spacer, Table
 
 from stockroom import formatting as fmt
 from stockroom.pdf import typeface
@@ -69,7 +69,7 @@ def _table(
     ]
     if urgent:
         style.append(("BACKGROUND", (0, 1), (-1, -1), BAD_BG))
-    t.setStyle(TableStyle(style))
+    t.setStyle(typeface.table_style(style))
     return t
 
 
@@ -105,6 +105,7 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
     buf = io.BytesIO()
     doc = SimpleDocTemplate(
         buf,
+        initialFontName=typeface.REGULAR,  # no standard font in the file, not even unused
         pagesize=A4,
         leftMargin=14 * mm,
         rightMargin=14 * mm,
@@ -142,7 +143,7 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
         colWidths=[32 * mm, WIDTH - 32 * mm],
     )
     box.setStyle(
-        TableStyle(
+        typeface.table_style(
             [
                 ("BOX", (0, 0), (-1, -1), 1, INK),
                 ("VALIGN", (0, 0), (-1, -1), "TOP"),

@@ -18,10 +18,12 @@ from __future__ import annotations
 import functools
 import unicodedata
 from pathlib import Path
+from typing import Any
 
 from reportlab.lib.fonts import addMapping
 from reportlab.pdfbase import pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
+from reportlab.platypus import TableStyle
 
 FONT_DIR = Path(__file__).resolve().parent / "fonts"
 FAMILY = "DejaVuSans"  # the family name reportlab knows; <b> and <i> in paragraphs map to the faces below
@@ -85,3 +87,18 @@ def printable(text: str) -> str:
         base = "".join(c for c in unicodedata.normalize("NFKD", ch) if not unicodedata.combining(c))
         out.append(base if base and all(has_glyph(c) for c in base) else "?")
     return "".join(out)
+
+
+def table_style(commands: list[tuple[Any, ...]]) -> TableStyle:
+    """A TableStyle whose cells default to the typeface (reportlab's own default is Helvetica, which an
+    empty or plain-text cell would otherwise pull into the file)."""
+    return TableStyle([("FONT", (0, 0), (-1, -1), REGULAR), *commands])
+
+
+def fitting_size(text: str, font: str, size: float, width_pt: float, smallest: float) -> float:
+    """The largest size, from `size` down to `smallest` pt in quarter points, at which `text` is at most
+    `width_pt` wide on one line (`smallest` when even that is too wide): for IDs that must not break."""
+    s = size
+    while s > smallest and pdfmetrics.stringWidth(text, font, s) > width_pt:
+        s -= 0.25
+    return max(s, smallest)

@@ -47,6 +47,8 @@ from stockroom.records.runs import (
     exclude_replicate,
     latest_results,
     record_run,
+    release_number,
+    release_numbers,
     run_by_id,
 )
 from stockroom.records.withdrawals import withdraw_batch, withdrawal_of
@@ -90,6 +92,8 @@ __all__ = [
     "record_print",
     "record_row",
     "record_run",
+    "release_number",
+    "release_numbers",
     "recorded_facts",
     "run_by_id",
     "unaudited_records",

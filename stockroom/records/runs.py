@@ -267,3 +267,29 @@ def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict
             "supersedes": row["supersedes_id"],
         },
     )
+
+
+def release_numbers(db: sqlite_utils.Database, release_ids: Iterable[int]) -> dict[int, int]:
+    """Each release's number within its batch: 1 for a batch's first release, 2 for its second...
+
+    Derived, not stored: releases are append-only, so a release's place among its batch's releases
+    (by the order they were recorded) never changes. Unknown ids are left out.
+    """
+    wanted = sorted({int(i) for i in release_ids if i is not None})
+    if not wanted:
+        return {}
+    marks = ",".join("?" * len(wanted))
+    rows = db.execute(
+        "SELECT r.id, (SELECT count(*) FROM releases o WHERE o.batch_id = r.batch_id AND o.id <= r.id) "
+        f"FROM releases r WHERE r.id IN ({marks})",
+        wanted,
+    ).fetchall()
+    return {int(r[0]): int(r[1]) for r in rows}
+
+
+def release_number(db: sqlite_utils.Database, release_id: int) -> int:
+    """The number of release `release_id` within its batch (see release_numbers); NotFound if unknown."""
+    found = release_numbers(db, [release_id]).get(int(release_id))
+    if found is None:
+        raise NotFound("no such release")
+    return found
