@@ -441,7 +441,7 @@ def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> No
     finally:
         conn.close()
     Path(out_path).write_bytes(pdf)
-    click.echo(f"certificate of {batch_id}, release {data['release']['id']}, written to {out_path}")
+    click.echo(f"certificate of {batch_id}, release {data['release_number']}, written to {out_path}")
 
 
 # ---------------------------------------------------------------- integrity, backup and restore

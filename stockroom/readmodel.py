@@ -203,8 +203,11 @@ def batch_history(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:
         r["reference"] = refs.get(r["reference_batch_id"])
     releases = dbmod.query(db, "SELECT * FROM releases WHERE batch_id = ? ORDER BY released_on, id", [batch_id])
     superseded = {r["supersedes_id"] for r in releases if r["supersedes_id"]}
+    # Each release's number within the batch (records.release_numbers: by the order recorded).
+    numbers = {rid: n for n, rid in enumerate(sorted(r["id"] for r in releases), start=1)}
     for r in releases:
         r["superseded"] = r["id"] in superseded
+        r["number"] = numbers[r["id"]]
     return {
         "runs": runs,
         "releases": releases,

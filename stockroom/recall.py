@@ -535,6 +535,7 @@ class ReachedRelease:
     suspect_from: dt.date | None
     periods: tuple[Period, ...]
     corrections: tuple[dict[str, Any], ...]
+    number: int | None = None  # the release's number within its batch (release 2 of HCL-2606-01)
 
     @property
     def days_in_force(self) -> int:
@@ -623,14 +624,18 @@ def _periods(facts: Any, release_id: int, start: dt.date, end: dt.date) -> tuple
     return tuple(out)
 
 
-def _via(graph: Graph, key: str) -> str:
+def _via(graph: Graph, key: str, numbers: dict[int, int] | None = None) -> str:
     if key.startswith(BATCH + ":"):
         return "its own value (the batch is the suspect item)"
     node = graph.get(key)
     if node is None:
         return key
     if node.kind == RELEASE:
-        return f"reference {node.label}, release {node.id} of {node.released_on.isoformat() if node.released_on else '?'}"
+        number = (numbers or {}).get(node.id)
+        return (
+            f"reference {node.label}, {formatting.release_name(number)} of "
+            f"{node.released_on.isoformat() if node.released_on else '?'}"
+        )
     if node.kind == LOT:
         return f"primary-standard lot {node.label}"
     return f"instrument {node.label}"
@@ -669,6 +674,11 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
             release_ids,
         ):
             corrections[c["release_id"]].append(c)
+    via_ids = [graph.node(r.via).id for r in reached.values() if r.via.startswith(RELEASE + ":") and graph.get(r.via)]
+    numbers = records.release_numbers(db, [*release_ids, *via_ids])
+    for rows in corrections.values():
+        for c in rows:
+            c["release_number"] = numbers.get(c["release_id"])
     out: list[ReachedRelease] = []
     for key, r in reached.items():
         n = nodes[key]
@@ -689,10 +699,11 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
                 U=rel.U,
                 k=rel.k,
                 depth=r.depth,
-                via=_via(graph, r.via),
+                via=_via(graph, r.via, numbers),
                 suspect_from=r.suspect_from,
                 periods=_periods(facts[n.batch_id], n.id, start, end) if start <= end else (),
                 corrections=made_with,
+                number=numbers.get(n.id),
             )
         )
     out.sort(key=lambda x: (x.depth, x.batch_code, x.released_on, x.release_id))
@@ -727,7 +738,8 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
             state, note = (
                 "re-standardized",
                 (
-                    f"a new value, released {current.released_on.isoformat()} (release {current.id}), "
+                    f"a new value, released {current.released_on.isoformat()} "
+                    f"({formatting.release_name(records.release_number(db, current.id))}), "
                     "does not rest on the suspect item"
                 ),
             )

@@ -59,11 +59,13 @@ def _text(report):
 
 def _release_words(path, release_id):
     conn = _raw(path)
-    code = conn.execute(
-        "SELECT b.code FROM releases r JOIN batches b ON b.id = r.batch_id WHERE r.id = ?", [release_id]
-    ).fetchone()[0]
+    code, batch_id = conn.execute(
+        "SELECT b.code, b.id FROM releases r JOIN batches b ON b.id = r.batch_id WHERE r.id = ?", [release_id]
+    ).fetchone()
+    # A release is named by its place among its batch's releases, not by its row id.
+    ids = [r[0] for r in conn.execute("SELECT id FROM releases WHERE batch_id = ? ORDER BY id", [batch_id])]
     conn.close()
-    return f"release {release_id} of {code}"
+    return f"release {ids.index(release_id) + 1} of {code}"
 
 
 def test_an_untouched_copy_verifies_clean(copy):
@@ -88,6 +90,7 @@ def test_edited_release_molarity_is_named(copy):
     conn.close()
     text = _text(_report(copy))
     assert f"{_release_words(copy, 3)}: molarity changed since audit entry" in text
+    assert _release_words(copy, 3) != "release 3 of " + _release_words(copy, 3).rsplit(" of ", 1)[1]  # id 3 is not 3rd
     assert "releases_no_update" in text  # the dropped guard is reported too
 
 

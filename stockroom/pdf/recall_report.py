@@ -205,7 +205,7 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
                 [
                     [
                         r.batch_code,
-                        f"{r.release_id} of {r.released_on.isoformat()}",
+                        f"{r.number or '—'} of {r.released_on.isoformat()}",
                         _value(r.molarity, r.U, r.k),
                         r.via,
                         str(r.depth),
@@ -258,7 +258,7 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
                     [
                         c["lab_day"],
                         c["batch_code"],
-                        str(c["release_id"]),
+                        str(c.get("release_number") or "—"),
                         fmt.quantity(c["molarity_used"], "mol/L", 6),
                         str(c["row_count"]),
                         f"{c['recorded_at'][:10]} by {c['recorded_by']}",

@@ -550,6 +550,12 @@ class _Namer:
         self.batch_codes = {int(r[0]): str(r[1]) for r in db.execute("SELECT id, code FROM batches")}
         self.run_batch = {int(r[0]): int(r[1]) for r in db.execute("SELECT id, batch_id FROM runs")}
         self.usernames = {int(r[0]): str(r[1]) for r in db.execute("SELECT id, username FROM users")}
+        # A release is named by its number within its batch (release 2 of HCL-2606-01), never its row id.
+        self.release_numbers: dict[int, int] = {}
+        seen: dict[int, int] = {}
+        for rid, bid in db.execute("SELECT id, batch_id FROM releases ORDER BY id"):
+            seen[int(bid)] = seen.get(int(bid), 0) + 1
+            self.release_numbers[int(rid)] = seen[int(bid)]
 
     def _of_batch(self, batch_id: Any) -> str:
         code = self.batch_codes.get(int(batch_id)) if batch_id is not None else None
@@ -570,6 +576,8 @@ class _Namer:
             return (
                 f"replicate {row.get('position')} of run {row['run_id']}{self._of_batch(self.run_batch.get(int(row['run_id'])))}"
             )
+        if table == "releases" and row_id in self.release_numbers and "batch_id" in row:
+            return f"release {self.release_numbers[row_id]}{self._of_batch(row['batch_id'])}"
         if "batch_id" in row:
             return f"{noun} {row_id}{self._of_batch(row['batch_id'])}"
         if "run_id" in row:

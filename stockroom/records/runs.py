@@ -9,6 +9,7 @@ from typing import Any
 import sqlite_utils
 
 from stockroom import db as dbmod
+from stockroom import formatting
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
 from stockroom.records.audit import record_row
 from stockroom.records.withdrawals import withdrawal_of
@@ -235,6 +236,7 @@ def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict
     previous = db.execute(
         "SELECT id FROM releases WHERE batch_id = ? ORDER BY released_on DESC, id DESC LIMIT 1", [batch_id]
     ).fetchone()
+    number = db.execute("SELECT count(*) FROM releases WHERE batch_id = ?", [batch_id]).fetchone()[0] + 1
     row = {
         "batch_id": batch_id,
         "run_id": run["id"],
@@ -264,7 +266,9 @@ def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict
             "k": row["k"],
             "released_on": row["released_on"],
             "expires_on": row["expires_on"],
-            "supersedes": row["supersedes_id"],
+            # Releases in words, by their number within the batch (the trail shows these to people).
+            "release": formatting.release_name(number),
+            "supersedes": formatting.release_name(release_number(db, previous[0])) if previous else "none (first release)",
         },
     )
 
@@ -293,3 +297,18 @@ def release_number(db: sqlite_utils.Database, release_id: int) -> int:
     if found is None:
         raise NotFound("no such release")
     return found
+
+
+def release_labels(db: sqlite_utils.Database, release_ids: Iterable[int]) -> dict[int, str]:
+    """Each release as people read it: 'release 2 of HCL-2606-01' (formatting.release_name)."""
+    numbers = release_numbers(db, release_ids)
+    if not numbers:
+        return {}
+    marks = ",".join("?" * len(numbers))
+    codes = {
+        int(r[0]): str(r[1])
+        for r in db.execute(
+            f"SELECT r.id, b.code FROM releases r JOIN batches b ON b.id = r.batch_id WHERE r.id IN ({marks})", list(numbers)
+        )
+    }
+    return {rid: formatting.release_name(n, codes.get(rid)) for rid, n in numbers.items()}

@@ -46,6 +46,22 @@ def fromjson(text: str | None) -> Any:
     return "—" if value in (None, "") else value
 
 
+def release_label(release_id: Any) -> str:
+    """A release id as people read it, 'release 2 of HCL-2606-01' (looked up once per request)."""
+    from flask import g
+
+    from stockroom.db import get_db
+    from stockroom.records import release_labels
+
+    if release_id is None or release_id == "":
+        return "—"
+    cache = g.setdefault("release_labels", {})
+    rid = int(release_id)
+    if rid not in cache:
+        cache[rid] = release_labels(get_db(), [rid]).get(rid, "release (not on record)")
+    return str(cache[rid])
+
+
 def install(app: Flask) -> None:
     """Register the filters with Jinja."""
     app.add_template_filter(molarity, "molarity")
@@ -66,3 +82,4 @@ def install(app: Flask) -> None:
     app.add_template_filter(action_label, "action_label")
     app.add_template_filter(fromjson, "fromjson")
     app.add_template_filter(unbroken_dates, "unbroken_dates")
+    app.add_template_filter(release_label, "release_label")

@@ -477,7 +477,8 @@ def _about(row: Mapping[str, Any]) -> dict[str, str]:
     return {
         "stockroom class-data correction": str(row["id"]),
         "lab day": row["lab_day"],
-        "titrant": f"{row['titrant']} batch {row['batch_code']} (release {row['release_id']})",
+        "titrant": f"{row['titrant']} batch {row['batch_code']} "
+        f"({records.release_labels(get_db(), [row['release_id']]).get(row['release_id'], 'release not on record')})",
         "certified molarity at 20 °C": f"{row['certified_molarity']:.6f} mol/L",
         "bench temperature": f"{bench:g} °C" if bench is not None else "not given (20 °C value used)",
         "molarity used": f"{row['molarity_used']:.6f} mol/L",
