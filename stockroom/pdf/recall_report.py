@@ -52,11 +52,21 @@ def _styles() -> dict[str, ParagraphStyle]:
     }
 
 
+def _cell(text: str, width: float | None, style: ParagraphStyle) -> Paragraph:
+    """A cell; a single token (a batch ID, a date) is set smaller rather than broken when its column is narrow."""
+    if width is None or " " in text.strip():
+        return Paragraph(escape(text), style)
+    size = typeface.fitting_size(text, style.fontName, style.fontSize, width - 6, 6.0)  # 3 pt padding each side
+    if size >= style.fontSize:
+        return Paragraph(escape(text), style)
+    return Paragraph(f"<font size={size:g}>{escape(text)}</font>", style)
+
+
 def _table(
     head: list[str], rows: list[list[str]], widths: list[float | None], st: dict[str, ParagraphStyle], *, urgent: bool = False
 ) -> Table:
     data = [[Paragraph(escape(h), st["head"]) for h in head]]
-    data += [[Paragraph(escape(c), st["cell"]) for c in r] for r in rows]
+    data += [[_cell(c, w, st["cell"]) for c, w in zip(r, widths, strict=False)] for r in rows]
     t = Table(data, repeatRows=1, colWidths=widths)
     style = [
         ("VALIGN", (0, 0), (-1, -1), "TOP"),
@@ -205,7 +215,7 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
                 [
                     [
                         r.batch_code,
-                        f"{r.number or '—'} of {r.released_on.isoformat()}",
+                        f"{r.number or '—'} ({r.released_on.isoformat()})",
                         _value(r.molarity, r.U, r.k),
                         r.via,
                         str(r.depth),
@@ -234,7 +244,7 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
         story.append(
             _table(
                 ["Batch", "Release", "From", "To", "Days"],
-                [[r.batch_code, str(r.release_id), p.start.isoformat(), p.end.isoformat(), str(p.days)] for r, p in periods],
+                [[r.batch_code, str(r.number or "—"), p.start.isoformat(), p.end.isoformat(), str(p.days)] for r, p in periods],
                 [30 * mm, 22 * mm, 30 * mm, 30 * mm, None],
                 st,
             )
