@@ -437,7 +437,7 @@ def certificate_command(batch_id: str, db_path: str | None, out_path: str) -> No
     try:
         config = _settings_for(path)
         data = certificates.certificate_data_for_batch(conn, batch_id, _lab_today(config["LAB_TIMEZONE"]))
-        pdf = certificates.build_certificate(data)
+        pdf = certificates.build_certificate(data, institution=str(config.get("INSTITUTION_NAME") or ""))
     finally:
         conn.close()
     Path(out_path).write_bytes(pdf)

@@ -46,6 +46,12 @@ SETTINGS: tuple[Setting, ...] = (
         "Public address of this server, used in label QR codes. Empty: the address the person printing "
         "reached (the request's host and port); from the command line, http://127.0.0.1:8000.",
     ),
+    Setting(
+        "INSTITUTION_NAME",
+        "",
+        "The institution (and prep room) printed at the head of certificates, lab-day sheets and the larger "
+        "labels, e.g. 'Chemistry Department, North Campus'. Empty: nothing is printed.",
+    ),
     Setting("OPEN_READS", True, "Allow reading pages without signing in (lab network kiosks).", bool),
     Setting("SESSION_COOKIE_SECURE", False, "Send the session cookie only over HTTPS; turn on behind TLS.", bool),
     Setting("TRUSTED_HOSTS", "", "Comma-separated host names the server answers for; empty allows any.", str),

@@ -59,6 +59,9 @@ _CELL_BOLD = ParagraphStyle("cellb", parent=_CELL, fontName=typeface.BOLD)
 _H1 = ParagraphStyle("h1", parent=_BODY, fontName=typeface.BOLD, fontSize=17, leading=21, spaceAfter=2)
 _H2 = ParagraphStyle("h2", parent=_BODY, fontName=typeface.BOLD, fontSize=11, leading=14, spaceBefore=9, spaceAfter=4)
 _VALUE = ParagraphStyle("value", parent=_BODY, fontName=typeface.BOLD, fontSize=15, leading=19)
+_INSTITUTION = ParagraphStyle(
+    "institution", parent=_BODY, fontName=typeface.BOLD, fontSize=9.5, leading=12, textColor=colors.HexColor("#4a555c")
+)
 _BANNER = ParagraphStyle("banner", parent=_BODY, fontName=typeface.BOLD, fontSize=10.5, leading=13.5, textColor=colors.white)
 
 
@@ -377,7 +380,8 @@ def _lot_rows(lot: Mapping[str, Any]) -> list[tuple[str, Any]]:
 def _story(data: Mapping[str, Any]) -> list[Any]:
     release, batch, run, titrant = data["release"], data["batch"], data["run"], data["titrant"]
     result = data["result"]
-    story: list[Any] = [
+    story: list[Any] = [_p(data["institution"], _INSTITUTION)] if data.get("institution") else []
+    story += [
         Paragraph("Certificate of standardization", _H1),
         _p(
             f"Batch {batch['code']} · {titrant.name} ({titrant.formula}), {batch['nominal_molarity']:g} mol/L "
@@ -637,8 +641,13 @@ def head_anchor(head: tuple[int, str] | None) -> str:
     return f"{entry_id}:{mac[:HEAD_MAC_DIGITS]}"
 
 
-def build_certificate(data: Mapping[str, Any]) -> bytes:
-    """The certificate of standardization as A4 PDF bytes, from certificate_data(...)."""
+def build_certificate(data: Mapping[str, Any], institution: str = "") -> bytes:
+    """The certificate of standardization as A4 PDF bytes, from certificate_data(...).
+
+    institution: the INSTITUTION_NAME setting, printed above the title (nothing when empty).
+    """
+    if institution.strip():
+        data = {**data, "institution": institution.strip()}
     buf = io.BytesIO()
     batch = data["batch"]
     footer = printable(

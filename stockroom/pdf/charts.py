@@ -180,7 +180,7 @@ def drift_drawing(
     if font_size is not None and abs(font_size - BASE_FONT) > 1e-9:
         k = font_size / BASE_FONT
         inner = _draw(report, width_pt / k, height_pt / k, on_label, BASE_FONT)
-        outer = Drawing(width_pt, height_pt)
+        outer = typeface.drawing(width_pt, height_pt)
         group = Group(*inner.contents)
         group.scale(k, k)
         outer.add(group)
@@ -189,7 +189,7 @@ def drift_drawing(
 
 
 def _draw(report: DriftReport, width_pt: float, height_pt: float, on_label: str | None, fs: float) -> Drawing:
-    d = Drawing(width_pt, height_pt)
+    d = typeface.drawing(width_pt, height_pt)
     left, right, bottom = 62.0, 14.0, 40.0
     start, end = _domain(report)
     fit = report.fit

@@ -17,6 +17,7 @@ from reportlab.graphics.shapes import Circle, Drawing, Ellipse, Group, Polygon, 
 from reportlab.lib import colors
 
 from stockroom.hazards import PICTOGRAMS
+from stockroom.pdf import typeface
 
 # GHS red; the standard asks for red, and print shops use a strong warm red (this one is our choice).
 GHS_RED = colors.Color(0.86, 0.0, 0.05)
@@ -216,7 +217,7 @@ def group(code: str) -> Group:
 
 def pictogram(code: str, size: float) -> Drawing:
     """The pictogram `code` as a square Drawing `size` points wide (the diamond touches all four sides)."""
-    d = Drawing(size, size)
+    d = typeface.drawing(size, size)
     g = group(code)
     scale = size / 100.0
     g.transform = (scale, 0, 0, scale, 0, 0)

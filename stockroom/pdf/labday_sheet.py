@@ -40,6 +40,9 @@ def _styles() -> dict[str, ParagraphStyle]:
     return {
         "title": ParagraphStyle("title", parent=body, fontName=typeface.BOLD, fontSize=17, leading=21, spaceAfter=2),
         "sub": ParagraphStyle("sub", parent=body, textColor=MUTED, fontSize=9.5, leading=12.5),
+        "institution": ParagraphStyle(
+            "institution", parent=body, fontName=typeface.BOLD, textColor=MUTED, fontSize=9.5, leading=12
+        ),
         "body": body,
         "cell": ParagraphStyle("cell", parent=body, fontSize=9, leading=11.5),
         "head": ParagraphStyle("head", parent=body, fontName=typeface.BOLD, fontSize=8.5, leading=10.5, textColor=MUTED),
@@ -143,10 +146,11 @@ def _footer(printed_on: dt.date):  # type: ignore[no-untyped-def]
     return draw
 
 
-def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
+def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date, institution: str = "") -> bytes:
     """The lab-day sheet as PDF bytes (A4 portrait).
 
-    day: the look-up's answer (stockroom.labday.lab_day); printed_on: the date the sheet is made.
+    day: the look-up's answer (stockroom.labday.lab_day); printed_on: the date the sheet is made;
+    institution: the INSTITUTION_NAME setting, printed above the title (nothing when empty).
     Molarities in mol/L; the certified value at 20 °C, the bench value at day.bench_temperature_c °C.
     """
     st = _styles()
@@ -164,7 +168,10 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date) -> bytes:
         subject="Titrant molarities in force on a lab day",
     )
     what = f"{day.titrant} for" if day.titrant else "Titrants for"
-    story: list[object] = [Paragraph(f"{escape(what)} the lab day {day.on.isoformat()}", st["title"])]
+    story: list[object] = (
+        [Paragraph(escape(typeface.printable(institution.strip())), st["institution"])] if institution.strip() else []
+    )
+    story.append(Paragraph(f"{escape(what)} the lab day {day.on.isoformat()}", st["title"]))
     sub = (
         f"Certified molarities in force that day, from the stockroom record as of {printed_on.isoformat()}. "
         "Values at 20 °C with their expanded uncertainty U (coverage factor k)"

@@ -103,6 +103,7 @@ class LabelContent:
     printed_on: str
     release_id: int | None = None
     regulations: str = REGULATIONS
+    institution: str = ""  # setting INSTITUTION_NAME; empty prints nothing
 
 
 def value_text(molarity: float, U: float, k: float, reference_temperature_c: float) -> str:
@@ -161,6 +162,7 @@ def placeholder_values(content: LabelContent, serial: int, codes_only: bool = Fa
         "regulations_short": REGULATIONS_SHORT,
         "serial": format_serial(serial),
         "printed_on": content.printed_on,
+        "institution": content.institution,
     }
 
 
@@ -351,7 +353,7 @@ def fit_report(content: LabelContent, layout: Layout, serial: int = 999999) -> l
 
 def _qr_drawing(url: str, size: float) -> Drawing:
     widget = QrCodeWidget(url, barLevel=QR_LEVEL, barBorder=4, barWidth=size, barHeight=size)
-    d = Drawing(size, size)
+    d = typeface.drawing(size, size)
     d.add(widget)
     return d
 
@@ -567,6 +569,7 @@ def label_content(db: sqlite_utils.Database, config: Mapping[str, Any], batch: M
         url=batch_url(qr_base_url(config.get("BASE_URL"), config.get("REQUEST_ROOT")), batch["code"]),
         printed_on=on.isoformat(),
         release_id=release["id"] if release else None,
+        institution=str(config.get("INSTITUTION_NAME") or "").strip(),
     )
 
 

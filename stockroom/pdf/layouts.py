@@ -63,6 +63,7 @@ PLACEHOLDERS: dict[str, str] = {
     "regulations_short": "the same line, shorter, for small labels",
     "serial": "this label's print serial (unique in the database)",
     "printed_on": "the date of printing",
+    "institution": "the institution's name (setting INSTITUTION_NAME; empty when it is not set)",
 }
 REQUIRED = (
     "batch_id",

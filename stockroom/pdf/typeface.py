@@ -20,6 +20,7 @@ import unicodedata
 from pathlib import Path
 from typing import Any
 
+from reportlab.graphics.shapes import Drawing
 from reportlab.lib.fonts import addMapping
 from reportlab.pdfbase import pdfmetrics
 from reportlab.pdfbase.ttfonts import TTFont
@@ -102,3 +103,11 @@ def fitting_size(text: str, font: str, size: float, width_pt: float, smallest: f
     while s > smallest and pdfmetrics.stringWidth(text, font, s) > width_pt:
         s -= 0.25
     return max(s, smallest)
+
+
+def drawing(width: float, height: float) -> Drawing:
+    """A reportlab Drawing whose initial font is the typeface (the renderer's default would put
+    Helvetica into the PDF even when every string names another font)."""
+    d = Drawing(width, height)
+    d.initialFontName = REGULAR
+    return d

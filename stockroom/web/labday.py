@@ -208,7 +208,7 @@ def sheet() -> Response:
     """The printable lab-day sheet (A4 PDF) for the same question as the page."""
     day, titrant, bench = parse_question(request.args, strict=False, default_day=lab_today())
     result = look_up(day, titrant, bench)
-    pdf = labday_sheet_pdf(result, printed_on=lab_today())
+    pdf = labday_sheet_pdf(result, printed_on=lab_today(), institution=str(current_app.config.get("INSTITUTION_NAME") or ""))
     name = f"lab-day-{day.isoformat()}{'-' + titrant if titrant else ''}.pdf"
     return Response(pdf, mimetype="application/pdf", headers={"Content-Disposition": f'inline; filename="{name}"'})
 
