@@ -239,9 +239,9 @@ def _break_word(word: str, font: str, size: float, width: float) -> list[str]:
     return pieces
 
 
-def wrap(text: str, font: str, size: float, width: float) -> list[str]:
+def wrap(text: str, font: str, size: float, width: float, *, break_words: bool = True) -> list[str] | None:
     """Lines of `text` no wider than `width` pt at `size` pt: breaks at spaces (never at a no-break space),
-    at newlines, and inside a word only when the word alone is too wide."""
+    at newlines, and inside a word only when the word alone is too wide (None then, with break_words=False)."""
     lines: list[str] = []
     for paragraph in text.split("\n"):
         current = ""
@@ -256,6 +256,8 @@ def wrap(text: str, font: str, size: float, width: float) -> list[str]:
                 lines.append(current)
             if _width(word, font, size) <= width:
                 current = word
+            elif not break_words:
+                return None
             else:
                 *full, current = _break_word(word, font, size, width)
                 lines.extend(full)
@@ -276,8 +278,8 @@ def fit_text(
 ) -> FieldFit | None:
     """The largest setting of `text` in a width x height pt box, or None when nothing fits.
 
-    Prefers the text unwrapped, set down to 80 % of `size`; then wrapped, from `size` down to `min_size`
-    (sizes in pt; leading as a multiple of the size).
+    Prefers the text unwrapped, set down to 80 % of `size`; then wrapped at spaces, from `size` down to
+    `min_size`; then wrapped with words broken too (sizes in pt; leading as a multiple of the size).
     """
     paragraphs = text.split("\n")
 
@@ -297,8 +299,14 @@ def fit_text(
         fit = attempt(s, paragraphs)
         if fit.fits:
             return fit
+    # Wrapped at spaces only, smaller and smaller: a value keeps "20 °C" and "mol/L" with their figures.
     for s in _sizes(size, min_size):
-        fit = attempt(s, wrap(text, font, s, width))
+        lines = wrap(text, font, s, width, break_words=False)
+        if lines is not None and (fit := attempt(s, lines)).fits:
+            return fit
+    # Only then inside a word too wide for the box at the smallest size (a long name, say).
+    for s in _sizes(size, min_size):
+        fit = attempt(s, wrap(text, font, s, width) or [])
         if fit.fits:
             return fit
     return None
@@ -318,24 +326,31 @@ def _is_alert(field: Field, content: LabelContent) -> bool:
     return not content.released and "certified" in field.placeholders
 
 
+# A figure and its unit are never parted by a line break: '0.1 mol/L', '20 °C', '2.5 %', '25 mL'.
+_FIGURE_UNIT = re.compile(r"(\d) (?=(?:mol/L|mmol/L|mL|L|g|mg|°C|K|%)(?![\w/]))")
+
+
 def _fill(field: Field, values: Mapping[str, str]) -> str:
     text = field.text.format_map(values)
     if not field.one_per_line:
         text = " ".join(part for part in text.split("\n"))
-    return printable(text.strip())
+    return printable(_FIGURE_UNIT.sub("\\1" + NBSP, text.strip()))
 
 
 def fit_field(field: Field, layout: Layout, content: LabelContent, serial: int) -> FieldFit:
-    """The setting of one text field; LabelOverflow when it cannot fit (P statements first fall back to codes)."""
+    """The setting of one text field; LabelOverflow when it cannot fit. P statements first fall back to
+    their codes, then the field's shorter template (if it has one) is tried."""
     framed = field.frame or _is_alert(field, content)
     width, height = _inner_box(field, framed)
     font = layout.font_bold if field.bold or _is_alert(field, content) else layout.font_regular
     tries = [False, True] if "precautionary_statements" in field.placeholders else [False]
-    for codes_only in tries:
-        text = _fill(field, placeholder_values(content, serial, codes_only=codes_only))
-        fit = fit_text(field.name, text, font, field.size_pt, field.min_size_pt, width, height, field.leading)
-        if fit is not None:
-            return fit
+    for template in field.templates():
+        shaped = replace(field, text=template)
+        for codes_only in tries:
+            text = _fill(shaped, placeholder_values(content, serial, codes_only=codes_only))
+            fit = fit_text(field.name, text, font, field.size_pt, field.min_size_pt, width, height, field.leading)
+            if fit is not None:
+                return fit
     raise LabelOverflow(layout.name, field.name, field.min_size_pt)
 
 
@@ -420,30 +435,21 @@ class _Painter:
                 self._text(f, fit, bx, by_top)
 
     def _qr(self, f: Field, bx: float, by_top: float) -> None:
-        side = min(f.width, f.height) * mm
+        x, y, side = qr_place(f)
         key = self._form(f"qr{int(side * 100)}", _qr_drawing(self.content.url, side))
         c = self.c
         c.saveState()
-        c.translate(bx + (f.width * mm - side) / 2, by_top - f.height * mm + (f.height * mm - side) / 2)
+        c.translate(bx + x, by_top - y - side)
         c.doForm(key)
         c.restoreState()
 
     def _pictograms(self, f: Field, bx: float, by_top: float) -> None:
         codes = self.content.elements.pictograms
-        if not codes:
-            return
-        w, h, gap = f.width * mm, f.height * mm, 1.0 * mm
-        rows, cols, side = _pictogram_grid(len(codes), w, h, gap)
-        used_w = cols * side + (cols - 1) * gap
-        used_h = rows * side + (rows - 1) * gap
-        x0 = bx + (w - used_w) / 2
-        y0 = by_top - (h - used_h) / 2
         c = self.c
-        for i, code in enumerate(codes):
-            row, col = divmod(i, cols)
+        for code, (x, y, side) in zip(codes, pictogram_places(f, len(codes)), strict=True):
             key = self._form(f"ghs{code}", ghs.pictogram(code, 100.0))
             c.saveState()
-            c.translate(x0 + col * (side + gap), y0 - (row + 1) * side - row * gap)
+            c.translate(bx + x, by_top - y - side)
             c.scale(side / 100.0, side / 100.0)
             c.doForm(key)
             c.restoreState()
@@ -451,9 +457,7 @@ class _Painter:
     def _text(self, f: Field, fit: FieldFit, bx: float, by_top: float) -> None:
         c = self.c
         alert = _is_alert(f, self.content)
-        framed = f.frame or alert
-        pad = _pad_mm(f, framed) * mm
-        if framed:
+        if f.frame or alert:
             c.saveState()
             if alert:
                 c.setFillColor(ghs.GHS_RED)
@@ -462,28 +466,123 @@ class _Painter:
                 c.setLineWidth(0.6)
                 c.rect(bx, by_top - f.height * mm, f.width * mm, f.height * mm, stroke=1, fill=0)
             c.restoreState()
-        inner_w, inner_h = fit.box_width_pt, fit.box_height_pt
-        block = fit.text_height_pt
-        top = by_top - pad
-        if f.valign == "middle" or alert:
-            top -= (inner_h - block) / 2
-        elif f.valign == "bottom":
-            top -= inner_h - block
-        ascent, descent = getAscentDescent(fit.font, fit.size_pt)
         c.saveState()
         c.setFillColor(colors.white if alert else colors.black)
         c.setFont(fit.font, fit.size_pt)
-        for i, (line, width) in enumerate(zip(fit.lines, fit.line_widths_pt, strict=True)):
-            slot_top = top - i * fit.leading_pt
-            baseline = slot_top - (fit.leading_pt - (ascent - descent)) / 2 - ascent
-            if f.align == "right":
-                x = bx + pad + inner_w - width
-            elif f.align == "centre" or alert:
-                x = bx + pad + (inner_w - width) / 2
-            else:
-                x = bx + pad
-            c.drawString(x, baseline, line)
+        for line, (x, baseline, _) in zip(fit.lines, text_places(f, fit, alert), strict=True):
+            c.drawString(bx + x, by_top - baseline, line)
         c.restoreState()
+
+
+# ---------------------------------------------------------------- where things go (shared by drawing and checks)
+# Offsets in pt from the field's top-left corner, x to the right and y downwards.
+
+
+def qr_place(f: Field) -> tuple[float, float, float]:
+    """The QR code's square in its box: (x, y, side) in pt, centred."""
+    side = min(f.width, f.height) * mm
+    return (f.width * mm - side) / 2, (f.height * mm - side) / 2, side
+
+
+def pictogram_places(f: Field, n: int) -> list[tuple[float, float, float]]:
+    """Each of n pictograms' squares in the box, (x, y, side) in pt: as large as they fit, the group
+    placed by the field's align and valign (so a layout can sit them against the signal word)."""
+    if n == 0:
+        return []
+    w, h, gap = f.width * mm, f.height * mm, 1.0 * mm
+    rows, cols, side = _pictogram_grid(n, w, h, gap)
+    used_w = cols * side + (cols - 1) * gap
+    used_h = rows * side + (rows - 1) * gap
+    x0 = {"left": 0.0, "right": w - used_w}.get(f.align, (w - used_w) / 2)
+    y0 = {"top": 0.0, "bottom": h - used_h}.get(f.valign, (h - used_h) / 2)
+    out = []
+    for i in range(n):
+        row, col = divmod(i, cols)
+        out.append((x0 + col * (side + gap), y0 + row * (side + gap), side))
+    return out
+
+
+def text_places(f: Field, fit: FieldFit, alert: bool = False) -> list[tuple[float, float, float]]:
+    """Each line's (x, baseline, width) in pt from the field's top-left: aligned and spaced as drawn."""
+    pad = _pad_mm(f, f.frame or alert) * mm
+    inner_w, inner_h = fit.box_width_pt, fit.box_height_pt
+    top = pad
+    if f.valign == "middle" or alert:
+        top += (inner_h - fit.text_height_pt) / 2
+    elif f.valign == "bottom":
+        top += inner_h - fit.text_height_pt
+    ascent, descent = getAscentDescent(fit.font, fit.size_pt)
+    out = []
+    for i, width in enumerate(fit.line_widths_pt):
+        slot_top = top + i * fit.leading_pt
+        baseline = slot_top + (fit.leading_pt - (ascent - descent)) / 2 + ascent
+        if f.align == "right":
+            x = pad + inner_w - width
+        elif f.align == "centre" or alert:
+            x = pad + (inner_w - width) / 2
+        else:
+            x = pad
+        out.append((x, baseline, width))
+    return out
+
+
+@dataclass(frozen=True)
+class DrawnBox:
+    """Something one field puts on a label, in mm from the label's top-left corner.
+
+    kind: "text" (the ink of one line: its width, from the font's ascent to its descent), "frame" (a
+    rule or a filled box), "qr" or "pictogram" (one square each).
+    """
+
+    field: str
+    kind: str
+    x: float
+    y: float
+    width: float
+    height: float
+
+    @property
+    def right(self) -> float:
+        return self.x + self.width
+
+    @property
+    def bottom(self) -> float:
+        return self.y + self.height
+
+    def gap_to(self, other: DrawnBox) -> float:
+        """The shortest distance between the two boxes (0 when they touch or overlap), mm."""
+        dx = max(other.x - self.right, self.x - other.right, 0.0)
+        dy = max(other.y - self.bottom, self.y - other.bottom, 0.0)
+        return math.hypot(dx, dy)
+
+
+def drawn_boxes(content: LabelContent, layout: Layout, serial: int = 999999) -> list[DrawnBox]:
+    """Every box the layout engine draws on one label of `content`, as the painter places it.
+
+    Raises LabelOverflow as printing would. Empty text (e.g. no signal word) draws no line.
+    """
+    out: list[DrawnBox] = []
+    to_mm = 1 / mm
+    for f in layout.fields:
+        if f.kind == "qr":
+            x, y, side = qr_place(f)
+            out.append(DrawnBox(f.name, "qr", f.x + x * to_mm, f.y + y * to_mm, side * to_mm, side * to_mm))
+        elif f.kind == "pictograms":
+            for x, y, side in pictogram_places(f, len(content.elements.pictograms)):
+                out.append(DrawnBox(f.name, "pictogram", f.x + x * to_mm, f.y + y * to_mm, side * to_mm, side * to_mm))
+        else:
+            fit = fit_field(f, layout, content, serial)
+            alert = _is_alert(f, content)
+            if f.frame or alert:
+                out.append(DrawnBox(f.name, "frame", f.x, f.y, f.width, f.height))
+            ascent, descent = getAscentDescent(fit.font, fit.size_pt)
+            for line, (x, baseline, width) in zip(fit.lines, text_places(f, fit, alert), strict=True):
+                if line.strip():
+                    top = baseline - ascent
+                    out.append(
+                        DrawnBox(f.name, "text", f.x + x * to_mm, f.y + top * to_mm, width * to_mm, (ascent - descent) * to_mm)
+                    )
+    return out
 
 
 def build_labels(content: LabelContent, layout: Layout, copies: int, start: int = 1, first_serial: int = 1) -> bytes:

@@ -8,6 +8,7 @@ the code changes. Every problem of a file is reported at once, each naming the k
 
 from __future__ import annotations
 
+import math
 import re
 import string
 import tomllib
@@ -89,6 +90,9 @@ ABSOLUTE_MIN_PT = 4.0  # below this a printed label is not reliably legible (com
 MIN_QR_MM = 12.0  # a QR code smaller than this scans poorly from a phone at arm's length (common practice)
 MIN_PICTOGRAM_MM = 10.0  # CLP Annex I 1.2.1: each pictogram at least 1 cm2 (from memory)
 _TOLERANCE_MM = 0.01
+# Nothing is drawn closer than this to a label's edge: sheets and label printers place the print and the
+# cut to within about a millimetre (common practice), and text at the edge reads as cut off.
+EDGE_MARGIN_MM = 1.0
 _NAME = re.compile(r"[a-z0-9][a-z0-9_-]{0,40}")
 
 
@@ -122,6 +126,11 @@ class Field:
     leading: float = 1.15
     frame: bool = False
     one_per_line: bool = False
+    shorter: str = ""  # a shorter template, set when `text` cannot fit even at min_size_pt
+
+    def templates(self) -> tuple[str, ...]:
+        """The text template, then the shorter one if any: the forms fit_field tries in turn."""
+        return (self.text, self.shorter) if self.shorter else (self.text,)
 
     @property
     def placeholders(self) -> tuple[str, ...]:
@@ -298,6 +307,7 @@ _FIELD_KEYS = (
     "leading",
     "frame",
     "one_per_line",
+    "shorter",
 )
 
 
@@ -404,6 +414,12 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
             r.problem(f"{where}box_mm", "width and height must be greater than 0")
         if x < -_TOLERANCE_MM or y < -_TOLERANCE_MM or x + w > lw + _TOLERANCE_MM or y + h > lh + _TOLERANCE_MM:
             r.problem(f"{where}box_mm", f"[{x:g}, {y:g}, {w:g}, {h:g}] reaches outside the {lw:g} x {lh:g} mm label")
+        elif not inside_label(x, y, w, h, lw, lh):
+            r.problem(
+                f"{where}box_mm",
+                f"[{x:g}, {y:g}, {w:g}, {h:g}] comes closer than {EDGE_MARGIN_MM:g} mm to the label's edge: "
+                "printing and cutting shift by about that much",
+            )
         text = r.text(raw, "text", where, default="")
         size = r.number(raw, "size_pt", where, base_size, minimum=ABSOLUTE_MIN_PT)
         min_size = r.number(raw, "min_size_pt", where, min(base_min, size), minimum=ABSOLUTE_MIN_PT)
@@ -421,11 +437,15 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
             size_pt=size,
             min_size_pt=min_size,
             bold=r.flag(raw, "bold", where, False),
-            align=r.text(raw, "align", where, default="left", choices=ALIGNS).replace("center", "centre"),
-            valign=r.text(raw, "valign", where, default="top", choices=VALIGNS),
+            # Pictograms sit in the middle of their box unless the layout places them (e.g. against the signal word).
+            align=r.text(raw, "align", where, default="centre" if kind == "pictograms" else "left", choices=ALIGNS).replace(
+                "center", "centre"
+            ),
+            valign=r.text(raw, "valign", where, default="middle" if kind == "pictograms" else "top", choices=VALIGNS),
             leading=leading,
             frame=r.flag(raw, "frame", where, False),
             one_per_line=r.flag(raw, "one_per_line", where, False),
+            shorter=r.text(raw, "shorter", where, default=""),
         )
         if kind == "text":
             if not text.strip():
@@ -439,11 +459,13 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
                 r.problem(f"{where}text", f"unknown placeholder {{{unknown[0]}}} (known: {', '.join(PLACEHOLDERS)})")
             if h * mm < min_size * leading * 0.95:
                 r.problem(f"{where}box_mm", f"is {h:g} mm tall: too short for one line at {min_size:g} pt")
+            if field.shorter:
+                _check_shorter(r, where, field)
         elif kind == "qr" and min(w, h) < MIN_QR_MM:
             r.problem(f"{where}box_mm", f"a QR code needs at least {MIN_QR_MM:g} x {MIN_QR_MM:g} mm to scan reliably")
         elif kind == "pictograms" and min(w, h) < MIN_PICTOGRAM_MM:
             r.problem(f"{where}box_mm", f"pictograms need at least {MIN_PICTOGRAM_MM:g} mm each way")
-        elif text:
+        elif text or field.shorter:
             r.problem(f"{where}text", f"a {kind} field takes no text")
         fields.append(field)
 
@@ -479,6 +501,42 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
         fields=tuple(fields),
         source=source,
     )
+
+
+def inside_label(
+    x: float, y: float, w: float, h: float, lw: float, lh: float, radius: float = 0.0, *, corners: bool = False
+) -> bool:
+    """Whether the box (mm from the label's top-left) keeps EDGE_MARGIN_MM from the label's edges and,
+    with corners=True, from its rounded corners (corner radius `radius`, mm) too. A layout's boxes are
+    checked against the edges; what is drawn in them (text ink, frames) against the corners as well
+    (stockroom.pdf.labels.drawn_boxes)."""
+    m = EDGE_MARGIN_MM - _TOLERANCE_MM
+    if x < m or y < m or x + w > lw - m or y + h > lh - m:
+        return False
+    if not corners or radius <= EDGE_MARGIN_MM:
+        return True
+    # A box corner inside a corner's square must lie within the arc drawn EDGE_MARGIN_MM inside it.
+    inner = radius - EDGE_MARGIN_MM + _TOLERANCE_MM
+    for px, py in ((x, y), (x + w, y), (x, y + h), (x + w, y + h)):
+        cx = radius if px < radius else (lw - radius if px > lw - radius else px)
+        cy = radius if py < radius else (lh - radius if py > lh - radius else py)
+        if math.hypot(px - cx, py - cy) > inner:
+            return False
+    return True
+
+
+def _check_shorter(r: _Reader, where: str, field: Field) -> None:
+    try:
+        names = [n for _, n, _, _ in string.Formatter().parse(field.shorter) if n]
+    except ValueError as exc:
+        r.problem(f"{where}shorter", f"braces do not match ({exc})")
+        return
+    unknown = [n for n in names if n not in PLACEHOLDERS]
+    if unknown:
+        r.problem(f"{where}shorter", f"unknown placeholder {{{unknown[0]}}}")
+    dropped = [p for p in _safe_placeholders(field) if p in REQUIRED and p not in names]
+    if dropped:
+        r.problem(f"{where}shorter", "must keep what the label must show: " + ", ".join("{" + p + "}" for p in dropped))
 
 
 def _safe_placeholders(f: Field) -> tuple[str, ...]:
