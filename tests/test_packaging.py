@@ -32,5 +32,10 @@ def test_wheel_contains_templates_labels_demo_data_and_static(tmp_path):
     for layout in (ROOT / "labels").glob("*"):
         if layout.is_file() and not layout.name.startswith("."):
             assert f"stockroom/labels/{layout.name}" in names
+    # The PDFs' typeface and its licence (stockroom.pdf.typeface).
+    fonts = sorted(p.name for p in (ROOT / "stockroom" / "pdf" / "fonts").iterdir())
+    assert "LICENSE.txt" in fonts and "DejaVuSans.ttf" in fonts
+    for font in fonts:
+        assert f"stockroom/pdf/fonts/{font}" in names
     entry = next(n for n in names if n.endswith("entry_points.txt"))
     assert "stockroom = stockroom.cli:main" in zipfile.ZipFile(wheel).read(entry).decode()

@@ -273,7 +273,7 @@ def _write_release(db: sqlite_utils.Database, run: dict[str, Any], release: dict
     )
 
 
-def release_numbers(db: sqlite_utils.Database, release_ids: Iterable[int]) -> dict[int, int]:
+def release_numbers(db: sqlite_utils.Database, release_ids: Iterable[int | None]) -> dict[int, int]:
     """Each release's number within its batch: 1 for a batch's first release, 2 for its second...
 
     Derived, not stored: releases are append-only, so a release's place among its batch's releases
@@ -299,7 +299,7 @@ def release_number(db: sqlite_utils.Database, release_id: int) -> int:
     return found
 
 
-def release_labels(db: sqlite_utils.Database, release_ids: Iterable[int]) -> dict[int, str]:
+def release_labels(db: sqlite_utils.Database, release_ids: Iterable[int | None]) -> dict[int, str]:
     """Each release as people read it: 'release 2 of HCL-2606-01' (formatting.release_name)."""
     numbers = release_numbers(db, release_ids)
     if not numbers:
