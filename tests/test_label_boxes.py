@@ -14,7 +14,7 @@ from stockroom.pdf.layouts import EDGE_MARGIN_MM, inside_label
 from stockroom.policy import Status
 
 LAYOUTS, BROKEN = layouts.load_all()
-MAX_SIGNAL_GAP_MM = 4.0  # the signal word reads with its pictograms: next to them, not across the label
+MAX_SIGNAL_GAP_MM = 3.0  # the signal word reads with its pictograms: next to them, not across the label
 
 H_TWO = (("H290", "May be corrosive to metals."), ("H314", "Causes severe skin burns and eye damage."))
 P_SIX = (
