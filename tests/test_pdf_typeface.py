@@ -180,6 +180,9 @@ def test_recall_report(world, tmp_path):
     pdf = recall_report_pdf(recall_mod.impact(db, rid, lab_today()), printed_on=lab_today())
     assert_one_embedded_typeface(pdf, tmp_path)
     assert REASON in text_of(pdf)
+    # A character the typeface lacks prints as '?', not as an empty box.
+    odd = recall_mod.open_recall(db, "batch", world["batch"]["id"], lab_today(), "label 漢 smudged", lab_today(), "setup")
+    assert "label ? smudged" in text_of(recall_report_pdf(recall_mod.impact(db, odd, lab_today()), printed_on=lab_today()))
 
 
 def test_drift_chart(world, tmp_path):

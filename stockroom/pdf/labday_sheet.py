@@ -9,7 +9,7 @@ from __future__ import annotations
 import datetime as dt
 import io
 from typing import Any
-from xml.sax.saxutils import escape
+from xml.sax.saxutils import escape as _xml_escape
 
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
@@ -30,6 +30,11 @@ LINE = colors.HexColor("#b9c1c6")
 BAD = colors.HexColor("#9b2226")
 WARN = colors.HexColor("#8a5a00")
 WARN_BG = colors.HexColor("#fdf0d5")
+
+
+def escape(text: str) -> str:
+    """Text for a Paragraph: what the typeface can draw (typeface.printable), XML-escaped."""
+    return _xml_escape(typeface.printable(str(text)))
 
 
 def _styles() -> dict[str, ParagraphStyle]:

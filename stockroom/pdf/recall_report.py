@@ -10,7 +10,7 @@ from __future__ import annotations
 import datetime as dt
 import io
 from typing import TYPE_CHECKING
-from xml.sax.saxutils import escape
+from xml.sax.saxutils import escape as _xml_escape
 
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
@@ -32,6 +32,11 @@ BAD = colors.HexColor("#9b2226")
 BAD_BG = colors.HexColor("#fbe9e9")
 OK = colors.HexColor("#2f6b3a")
 WIDTH = A4[0] - 28 * mm
+
+
+def escape(text: str) -> str:
+    """Text for a Paragraph: what the typeface can draw (typeface.printable), XML-escaped."""
+    return _xml_escape(typeface.printable(str(text)))
 
 
 def _styles() -> dict[str, ParagraphStyle]:
