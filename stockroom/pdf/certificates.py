@@ -515,7 +515,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
     story += [Spacer(1, 3 * mm), _grid(header, rows, widths, shaded)]
 
     story.append(Paragraph("Statistics", _H2))
-    story.append(_kv_table(_statistics(data), (62 * mm, 118 * mm)))
+    story.append(_kv_table(_statistics(data), (68 * mm, 112 * mm)))
     screening = result.get("screening", [])
     if screening:
         story.append(Paragraph("Outlier screening", _H2))
@@ -597,7 +597,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
                             + (f" (note: {decision['reason']})" if decision and decision["reason"] else ""),
                         ),
                     ],
-                    (45 * mm, 135 * mm),
+                    (52 * mm, 128 * mm),
                 ),
                 Spacer(1, 2 * mm),
                 sig,
