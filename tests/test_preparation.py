@@ -38,7 +38,7 @@ def _text(plan: prep.PreparationPlan | prep.AdjustmentPlan) -> str:
 def test_molar_mass_in_plans_matches_periodictable(key):
     # Source: periodictable package, CIAAW 2021 standard atomic weights.
     plan = prep.preparation_plan(key, 0.1, 1.0, 0.5, 1.5)
-    assert plan.molar_mass_g_mol == pytest.approx(periodictable.formula(key).mass, rel=1e-9)
+    assert plan.molar_mass_g_mol == pytest.approx(periodictable.formula(chemistry.titrant(key).formula).mass, rel=1e-9)
 
 
 # ---------------------------------------------------------------------------------------------------------
