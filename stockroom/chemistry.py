@@ -1282,7 +1282,8 @@ _PERMANGANATE_HOT = (
 )
 _EDTA_PH = (
     "Buffer to the pH the indicator needs before titrating: pH 10 (NH3/NH4Cl) for eriochrome black T, "
-    "pH 5–6 (hexamine) for xylenol orange; the metal complex and the indicator's colour change both depend on pH (common practice)"
+    "pH 5–6 (hexamine) for xylenol orange; the metal complex and the indicator's colour change both "
+    "depend on pH (common practice)"
 )
 
 PAIRS: tuple[Pair, ...] = (
@@ -1389,7 +1390,8 @@ PAIRS: tuple[Pair, ...] = (
         "Cl^-",
         conditions="Neutral solution, potassium chromate (Mohr) or dichlorofluorescein, or potentiometric",
         rules=(
-            "Titrate in subdued light and keep the solution in amber glass: silver chloride and nitrate darken in light (common practice)",
+            "Titrate in subdued light and keep the solution in amber glass: silver chloride and nitrate "
+            "darken in light (common practice)",
         ),
         equivalence="1 mL of 0.1 mol/L AgNO3 ≡ 5.844 mg NaCl (pharmacopoeial VS list; from memory)",
     ),
@@ -1437,7 +1439,8 @@ PAIRS: tuple[Pair, ...] = (
         ("C8H5O4^- + H^+ -> C8H6O4",),
         "H^+",
         "C8H5O4^-",
-        conditions="KHP dissolved in anhydrous acetic acid (warm gently, cool protected from air); crystal violet or potentiometric",
+        conditions="KHP dissolved in anhydrous acetic acid (warm gently, cool protected from air); "
+        "crystal violet or potentiometric",
         rules=(
             "In anhydrous acetic acid the hydrogen phthalate ion acts as a base (BP 2012 Appendix I B, Perchloric Acid VS)",
             "Record the temperature of the standardization: the medium expands 0.0011 per °C (BP 2012 Appendix I B)",
