@@ -1703,3 +1703,96 @@ def missing_drying_warning(standard: PrimaryStandard | str) -> str | None:
     if not std.drying.drying_required:
         return None
     return f"no drying is recorded for this lot of {std.name}. {std.drying.text}"
+
+
+# ---------------------------------------------------------------------------------------------------------
+# The catalogue as data (GET /api/v1/catalogue)
+
+
+def _titrant_entry(t: Titrant) -> dict[str, object]:
+    m = t.expansion
+    return {
+        "key": t.key,
+        "name": t.name,
+        "formula": t.formula,
+        "aliases": list(t.aliases),
+        "class": t.reaction_class,
+        "role": t.role,
+        "solvent": t.solvent,
+        "species": t.species or None,
+        "electrons": t.electrons or None,
+        "acid_base_equivalents": t.equivalents or None,
+        "molar_mass_g_mol": round(t.molar_mass.value, 5),
+        "weighed_as": t.weighed_as or None,
+        "weighed_as_molar_mass_g_mol": round(molar_mass(t.weighed_as).value, 5) if t.weighed_as else None,
+        "expansion_model": {
+            "name": m.key,
+            "kind": "fixed coefficient" if m.kind == "linear" else "density of water (and solute)",
+            "coefficient_per_c": m.alpha_per_k if m.kind == "linear" else None,
+            "source": m.source,
+        },
+        "endpoint": t.endpoint or None,
+        "storage": t.storage or None,
+        "standardized_against_titrant_only": t.secondary_only,
+        "back_titrant": t.back_titrant,
+        "max_molarity_mol_l": t.max_molarity if math.isfinite(t.max_molarity) else None,
+    }
+
+
+def _standard_entry(s: PrimaryStandard) -> dict[str, object]:
+    return {
+        "key": s.key,
+        "name": s.name,
+        "formula": s.formula,
+        "aliases": list(s.aliases),
+        "class": s.reaction_class,
+        "role": s.role,
+        "molar_mass_g_mol": round(s.molar_mass.value, 5),
+        "u_molar_mass_g_mol": float(f"{s.molar_mass.u:.2g}"),
+        "density_g_cm3": s.density_g_cm3,
+        "density_source": s.density_source,
+        "drying": {
+            "oven_allowed": s.drying.oven_allowed,
+            "min_c": s.drying.min_c,
+            "max_c": s.drying.max_c,
+            "rule": s.drying.text,
+        },
+        "endpoint": s.endpoint,
+    }
+
+
+def catalogue() -> dict[str, list[dict[str, object]]]:
+    """The whole catalogue as plain data: titrants, standards and every pair that titrates.
+
+    Returns {"titrants": [...], "standards": [...], "pairs": [...]}; each pair names titrant and partner
+    by key, its class, the equations, the mole ratio (mol titrant per mol partner) and its rules.
+    Acid-base pairs without a recorded equation give their ratio from the proton counts.
+    """
+    pairs: list[dict[str, object]] = []
+    for t in TITRANTS:
+        for partner in (*STANDARDS, *TITRANTS):
+            if partner is t or not reacts(t, partner):
+                continue
+            found = pair_for(t, partner)
+            pair = found[0] if found else None
+            pairs.append(
+                {
+                    "titrant": t.key,
+                    "partner": partner.key,
+                    "partner_kind": "titrant" if isinstance(partner, Titrant) else "standard",
+                    "class": t.reaction_class,
+                    "equations": list(pair.steps) if pair else [],
+                    "mol_titrant_per_mol_partner": stoichiometric_factor(t, partner),
+                    "ratio_from": "balanced equations" if pair else "protons given and taken",
+                    "conditions": (pair.conditions or None) if pair else None,
+                    "rules": list(pair.rules) if pair else [],
+                    "blank": (pair.blank or None) if pair else None,
+                    "flask_temperature_min_c": pair.hot_min_c if pair else None,
+                    "published_equivalence": (pair.equivalence or None) if pair else None,
+                }
+            )
+    return {
+        "titrants": [_titrant_entry(t) for t in TITRANTS],
+        "standards": [_standard_entry(s) for s in STANDARDS],
+        "pairs": pairs,
+    }

@@ -1,0 +1,393 @@
+"""Titrants beyond acids and bases: the catalogue, the stoichiometry from balanced equations, the acetic-acid
+medium's expansion, and each new pair registered, standardized, released, labelled and looked up end to end.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import io
+import json
+import re
+
+import periodictable
+import pypdf
+import pytest
+
+from stockroom import chemistry as chem
+from stockroom import corrections, records, tokens
+from stockroom import db as dbmod
+
+TODAY = dt.date.today()
+
+# ---------------------------------------------------------------------------------------------------------
+# Molar masses against an independent library
+
+
+NEW_FORMULAS = sorted(
+    {t.formula for t in chem.OTHER_TITRANTS}
+    | {t.weighed_as for t in chem.OTHER_TITRANTS if t.weighed_as}
+    | {s.formula for s in chem.OTHER_STANDARDS}
+)
+
+
+@pytest.mark.parametrize("formula", NEW_FORMULAS)
+def test_molar_masses_match_periodictable(formula):
+    # Source: the periodictable package (CIAAW standard atomic weights), an independent implementation.
+    # periodictable writes the hydrate dot as "+" ("ZnSO4+7H2O").
+    assert chem.molar_mass(formula).value == pytest.approx(periodictable.formula(formula.replace("·", "+")).mass, rel=2e-5)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Stoichiometry by hand and against published equivalents
+
+# Mol titrant per mol partner, worked by hand from the half-reactions (electrons given = electrons taken):
+#   MnO4- + 8H+ + 5e- -> Mn2+;  C2O4^2- -> 2CO2 + 2e-          => 2 MnO4- : 5 C2O4^2-, ν = 2/5
+#   Ce4+ + e- -> Ce3+                                         => 2 Ce4+ : 1 C2O4^2-,  ν = 2
+#   IO3- + 6H+ + 5I- -> 3I2 ; I2 + 2 S2O3^2- -> S4O6^2- + 2I-  => 1 IO3- : 6 S2O3^2-   ν = 6
+#   BrO3- and Cr2O7^2- each take 6 e-, i.e. free 3 I2          => ν = 6
+#   KH(IO3)2 holds two iodates                                 => ν = 12
+#   Cr2O7^2- + 6 Fe2+                                          => ν(Fe per Cr2O7) = 6
+#   Ag+ + Cl-, Zn2+ + H2Y^2-, Ca2+ + H2Y^2-, H+ + HPh-         => ν = 1
+#   secondary: S2O3^2- per I2 = 2; Fe2+ per MnO4- = 5; Fe2+ per Ce4+ = 1; SCN- per Ag+ = 1.
+BY_HAND = [
+    ("KMnO4", "Na2C2O4", 0.4),
+    ("Ce(SO4)2", "Na2C2O4", 2.0),
+    ("Na2S2O3", "KIO3", 6.0),
+    ("Na2S2O3", "KBrO3", 6.0),
+    ("Na2S2O3", "dichromate", 6.0),
+    ("Na2S2O3", "biiodate", 12.0),
+    ("FAS", "dichromate", 6.0),
+    ("AgNO3", "NaCl", 1.0),
+    ("AgNO3", "KCl", 1.0),
+    ("EDTA", "Zn", 1.0),
+    ("EDTA", "CaCO3", 1.0),
+    ("HClO4-AcOH", "KHP", 1.0),
+]
+BY_HAND_SECONDARY = [
+    ("Na2S2O3", "I2", 2.0),
+    ("I2", "Na2S2O3", 0.5),
+    ("FAS", "KMnO4", 5.0),
+    ("KMnO4", "FAS", 0.2),
+    ("FAS", "Ce(SO4)2", 1.0),
+    ("K2Cr2O7", "FAS", 1 / 6),
+    ("NH4SCN", "AgNO3", 1.0),
+    ("ZnSO4", "EDTA", 1.0),
+]
+
+
+@pytest.mark.parametrize(("titrant", "standard", "nu"), BY_HAND)
+def test_primary_ratios_follow_the_balanced_equations(titrant, standard, nu):
+    assert chem.stoichiometric_factor(chem.titrant(titrant), chem.standard(standard)) == pytest.approx(nu, rel=1e-12)
+
+
+@pytest.mark.parametrize(("titrant", "reference", "nu"), BY_HAND_SECONDARY)
+def test_secondary_ratios_follow_the_balanced_equations(titrant, reference, nu):
+    assert chem.stoichiometric_factor(chem.titrant(titrant), chem.titrant(reference)) == pytest.approx(nu, rel=1e-12)
+
+
+# mg of standard per mL of titrant of the stated molarity, as the pharmacopoeias' lists of volumetric
+# solutions print them (USP "Volumetric Solutions", Ph. Eur. 4.2.2, BP Appendix I B). From memory unless
+# marked: the BP perchloric acid figure was read in BP 2012 Appendix I B, "Perchloric Acid VS".
+PUBLISHED = [
+    ("KMnO4", 0.02, "Na2C2O4", 6.700),  # potassium permanganate VS (from memory)
+    ("Na2S2O3", 0.1, "KIO3", 3.567),  # sodium thiosulfate VS against potassium iodate (from memory)
+    ("Na2S2O3", 0.1, "KBrO3", 2.783),  # Ph. Eur. 4.2.2 sodium thiosulfate (from memory)
+    ("Na2S2O3", 0.1, "dichromate", 4.903),  # USP sodium thiosulfate VS (from memory)
+    ("AgNO3", 0.1, "NaCl", 5.844),  # silver nitrate VS (from memory)
+    ("EDTA", 0.05, "Zn", 3.269),  # Ph. Eur. 4.2.2 sodium edetate 0.05 M (from memory)
+    ("EDTA", 0.05, "CaCO3", 5.004),  # USP edetate disodium VS 0.05 M (from memory)
+    ("HClO4-AcOH", 0.1, "KHP", 20.42),  # BP 2012 Appendix I B, Perchloric Acid VS (looked up)
+    ("Ce(SO4)2", 0.1, "Na2C2O4", 6.700),  # ceric sulfate against sodium oxalate (from memory)
+]
+
+
+@pytest.mark.parametrize(("titrant", "molarity", "standard", "mg_per_ml"), PUBLISHED)
+def test_published_equivalents(titrant, molarity, standard, mg_per_ml):
+    t, s = chem.titrant(titrant), chem.standard(standard)
+    nu = chem.stoichiometric_factor(t, s)
+    # 1 mL holds molarity mmol of titrant, which reacts with molarity/ν mmol of standard.
+    mg = molarity / nu * s.molar_mass.value
+    assert mg == pytest.approx(mg_per_ml, abs=0.0006 * mg_per_ml)  # the printed figure's last digit
+
+
+def test_every_recorded_equation_balances_and_a_wrong_one_is_caught():
+    for pair in chem.PAIRS:
+        for step in pair.steps:
+            assert chem.imbalance(step) is None, step
+    assert "Mn" not in (chem.imbalance("2 MnO4^- + 5 C2O4^2- + 16 H^+ -> 2 Mn^2+ + 10 CO2 + 8 H2O") or "")
+    assert "O" in chem.imbalance("MnO4^- + 5 C2O4^2- + 16 H^+ -> Mn^2+ + 10 CO2 + 8 H2O")
+    assert "charge" in chem.imbalance("Ce^4+ + Fe^2+ -> Ce^3+ + Fe^2+")
+    assert chem.parse_species("C2O4^2-") == ("C2O4", -2) and chem.parse_species("Ag^+") == ("Ag", 1)
+    with pytest.raises(chem.FormulaError):
+        chem.parse_species("Fe^two+")
+
+
+@pytest.mark.parametrize(
+    ("titrant", "partner", "words"),
+    [
+        ("KMnO4", "NaCl", "a redox titrant"),
+        ("AgNO3", "KIO3", "a precipitation titrant"),
+        ("EDTA", "Na2C2O4", "a complexometric titrant"),
+        ("HClO4-AcOH", "Na2CO3", "anhydrous acetic acid"),
+        ("NaOH", "KIO3", "an acid-base titrant"),
+    ],
+)
+def test_pairs_that_do_not_titrate_are_refused_saying_what_does(titrant, partner, words):
+    t = chem.titrant(titrant)
+    with pytest.raises(chem.IncompatiblePair) as caught:
+        chem.stoichiometric_factor(t, chem.standard(partner))
+    assert caught.value.status == 422
+    msg = caught.value.message
+    assert words in msg and "pairs with" in msg
+    assert all(s.key in msg for s in chem.list_standards(t))
+
+
+def test_thiosulfate_against_permanganate_is_refused_with_the_chemistry():
+    # Common practice: permanganate oxidizes thiosulfate to a mixture (sulfate and tetrathionate).
+    with pytest.raises(chem.IncompatiblePair) as caught:
+        chem.stoichiometric_factor(chem.titrant("KMnO4"), chem.titrant("Na2S2O3"))
+    assert "no fixed ratio" in caught.value.message
+    assert not chem.reacts(chem.titrant("Na2S2O3"), chem.titrant("KMnO4"))
+
+
+@pytest.mark.parametrize(
+    ("text", "key"),
+    [
+        ("ceric sulfate", "Ce(SO4)2"),
+        ("ferrous ammonium sulfate", "FAS"),
+        ("(NH4)2Fe(SO4)2", "FAS"),
+        ("Na2EDTA", "EDTA"),
+        ("perchloric acid in glacial acetic acid", "HClO4-AcOH"),
+        ("HClO4", "HClO4"),  # the formula alone still means the aqueous acid
+        ("silver nitrate", "AgNO3"),
+        ("Na2S2O3", "Na2S2O3"),
+    ],
+)
+def test_titrants_by_key_alias_or_formula(text, key):
+    assert chem.titrant(text).key == key
+
+
+@pytest.mark.parametrize(
+    ("text", "key"), [("Na2C2O4", "Na2C2O4"), ("potassium dichromate", "dichromate"), ("K2Cr2O7", "dichromate"), ("zinc", "Zn")]
+)
+def test_standards_by_key_alias_or_formula(text, key):
+    assert chem.standard(text).key == key
+
+
+def test_each_new_entry_says_its_class_and_model():
+    for t in chem.OTHER_TITRANTS:
+        assert t.reaction_class in chem.REACTION_CLASSES and t.endpoint and t.storage
+        assert chem.list_standards(t) or chem.list_references(t)
+    for s in chem.OTHER_STANDARDS:
+        assert s.reaction_class in chem.REACTION_CLASSES and s.density_g_cm3 > 0 and s.drying.text and s.endpoint
+    assert chem.titrant("HClO4-AcOH").expansion.kind == "linear"
+    assert chem.titrant("KMnO4").expansion is corrections.WATER_LIKE
+
+
+# ---------------------------------------------------------------------------------------------------------
+# The acetic-acid medium
+
+
+def test_perchloric_in_acetic_acid_refers_to_20c_with_its_own_coefficient():
+    # BP 2012 Appendix I B, Perchloric Acid VS: VC = V[1 + 0.0011(t1 − t2)]. A volume delivered at
+    # 25 °C is, at 20 °C, V[1 − 0.0011·5] to first order; the molarity found at 25 °C times the
+    # referral factor is the 20 °C molarity, higher by the same 0.55 % to first order.
+    model = chem.titrant("HClO4-AcOH").expansion
+    f = corrections.referral_factor(model, 0.1, 25.0)
+    assert f == pytest.approx(1 + 0.0011 * 5, abs=4e-5)
+    assert corrections.molarity_at(model, 0.1, 25.0) == pytest.approx(0.1 * (1 - 0.0011 * 5), rel=1e-12)
+    # About five times water's expansion (2.07e-4 /K at 20 °C, Tanaka et al. 2001).
+    ratio = corrections.expansion_coefficient(model, 0.1, 20.0) / corrections.expansion_coefficient(
+        corrections.WATER_LIKE, 0.1, 20.0
+    )
+    assert 5.0 < ratio < 5.6
+
+
+# ---------------------------------------------------------------------------------------------------------
+# The catalogue endpoint
+
+
+def test_catalogue_endpoint_lists_classes_pairs_and_models(client):
+    resp = client.get("/api/v1/catalogue")
+    assert resp.status_code == 200
+    body = resp.get_json()
+    titrants = {t["key"]: t for t in body["titrants"]}
+    assert {"KMnO4", "Na2S2O3", "I2", "Ce(SO4)2", "FAS", "K2Cr2O7", "AgNO3", "NH4SCN", "EDTA", "ZnSO4", "HClO4-AcOH"} <= set(
+        titrants
+    )
+    assert titrants["KMnO4"]["class"] == "redox" and titrants["KMnO4"]["electrons"] == 5
+    assert titrants["HClO4-AcOH"]["solvent"] == "anhydrous acetic acid"
+    assert titrants["HClO4-AcOH"]["expansion_model"]["coefficient_per_c"] == 0.0011
+    assert titrants["NaOH"]["class"] == "acid-base" and titrants["NaOH"]["expansion_model"]["coefficient_per_c"] is None
+    standards = {s["key"]: s for s in body["standards"]}
+    assert standards["Na2C2O4"]["molar_mass_g_mol"] == pytest.approx(periodictable.formula("Na2C2O4").mass, rel=2e-5)
+    pairs = {(p["titrant"], p["partner"]): p for p in body["pairs"]}
+    permanganate = pairs[("KMnO4", "Na2C2O4")]
+    assert permanganate["mol_titrant_per_mol_partner"] == pytest.approx(0.4)
+    assert permanganate["flask_temperature_min_c"] == 60.0 and permanganate["equations"]
+    iodate = pairs[("Na2S2O3", "KIO3")]
+    assert len(iodate["equations"]) == 2 and iodate["blank"] and iodate["mol_titrant_per_mol_partner"] == 6.0
+    assert pairs[("NaOH", "KHP")]["ratio_from"] == "protons given and taken"
+    assert ("KMnO4", "NaCl") not in pairs and ("HClO4-AcOH", "Na2CO3") not in pairs
+    assert pairs[("I2", "Na2S2O3")]["partner_kind"] == "titrant"
+
+
+# ---------------------------------------------------------------------------------------------------------
+# End to end: register, standardize, release, label, look up
+
+
+@pytest.fixture
+def conn(app):
+    c = dbmod.connect(app.config["DATABASE"])
+    yield c
+    c.close()
+
+
+def _call(client, method, url, token, body):
+    return client.open(
+        url, method=method, headers={"Authorization": f"Bearer {token}"}, data=json.dumps(body), content_type="application/json"
+    )
+
+
+def _register(client, token, reagent, nominal):
+    body = {
+        "reagent": reagent,
+        "nominal_molarity": nominal,
+        "volume_l": 5,
+        "prepared_on": (TODAY - dt.timedelta(days=1)).isoformat(),
+        "prepared_by": "Test Person (invented)",
+        "water_grade": "purified water",
+    }
+    resp = _call(client, "POST", "/api/v1/batches", token, body)
+    assert resp.status_code == 201, resp.get_json()
+    return resp.get_json()["id"]
+
+
+def _lot(conn, key):
+    s = chem.standard(key)
+    values = {
+        "substance": key,
+        "assay": 1.0,
+        "assay_expanded_u": 0.0002,
+        "assay_k": 2,
+        "expires_on": (TODAY + dt.timedelta(days=300)).isoformat(),
+    }
+    if s.drying.oven_allowed and s.drying.min_c is not None:
+        values.update({"dried_on": TODAY.isoformat(), "dried_at_c": (s.drying.min_c + (s.drying.max_c or s.drying.min_c)) / 2})
+    return records.create_lot(conn, values, "setup")
+
+
+def _release(client, token, code, run):
+    resp = _call(client, "POST", f"/api/v1/batches/{code}/runs", token, run)
+    assert resp.status_code == 201, resp.get_json()
+    result = resp.get_json()["result"]
+    assert result["accepted"] is True, result
+    decided = _call(client, "POST", f"/api/v1/runs/{resp.get_json()['run_id']}/decision", token, {"decision": "accept"})
+    assert decided.status_code == 200, decided.get_json()
+    return result
+
+
+def _pdf_text(pdf: bytes) -> str:
+    return re.sub(r"\s+", " ", " ".join(p.extract_text() for p in pypdf.PdfReader(io.BytesIO(pdf)).pages))
+
+
+# The label line each titrant's usual strength carries (hazards.OTHER_CLASSIFICATIONS; from memory).
+LABEL_TEXT = {
+    "KMnO4": "Harmful to aquatic life with long lasting effects.",
+    "AgNO3": "Very toxic to aquatic life with long lasting effects.",
+    "HClO4-AcOH": "Flammable liquid and vapour.",
+    "K2Cr2O7": "May cause cancer.",
+    "EDTA": "May cause damage to organs through prolonged or repeated exposure.",
+}
+
+
+def test_each_new_pair_end_to_end(app, client, conn, make_user, signed_in_client, form_token):
+    user = make_user("api-staff", "staff")
+    token = tokens.create(conn, user.id, user.username, "e2e script")[1]
+    certified: dict[str, tuple[str, float]] = {}  # titrant key -> (batch code, certified mol/L)
+    codes: dict[tuple[str, str], str] = {}
+
+    # Primary pairs: invented masses chosen for a 40 mL titre at 1.002 × nominal.
+    for titrant_key, standard_key, _ in BY_HAND:
+        t, s = chem.titrant(titrant_key), chem.standard(standard_key)
+        nominal = records.policies(conn)[t.key].nominal_molarities[0]
+        code = _register(client, token, t.key, nominal)
+        lot = _lot(conn, s.key)
+        nu = chem.stoichiometric_factor(t, s)
+        m_mol = s.molar_mass.value
+        true_c = nominal * 1.002
+        buoyancy = corrections.buoyancy_factor(s.density_g_cm3)
+        reps, expected = [], []
+        for factor in (1.0, 1.012, 0.991):
+            mass = round(true_c * 40.0 * m_mol / (1000.0 * nu) * factor, 4)
+            titre = round(1000.0 * mass * buoyancy * nu / (m_mol * true_c), 2)
+            reps.append({"mass_g": mass, "initial_ml": 0.0, "final_ml": titre})
+            # c = 1000·m·b·P·ν/(M·V), worked by hand for each replicate (P = 1, 20 °C).
+            expected.append(1000.0 * mass * buoyancy * nu / (m_mol * titre))
+        run = {
+            "purpose": "certify",
+            "standard_lot_id": lot["id"],
+            "performed_on": TODAY.isoformat(),
+            "analyst": "Test Person (invented)",
+            "burette_capacity_ml": 50,
+            "replicates": reps,
+        }
+        result = _release(client, token, code, run)
+        assert result["molarity"] == pytest.approx(sum(expected) / 3, rel=2e-5), (titrant_key, standard_key)
+        certified.setdefault(t.key, (code, result["molarity"]))
+        codes[(t.key, s.key)] = code
+
+    # Secondary pairs: aliquots of the new batch titrated with a certified reference batch.
+    secondary = [("I2", "Na2S2O3"), ("NH4SCN", "AgNO3"), ("ZnSO4", "EDTA"), ("FAS", "Ce(SO4)2"), ("FAS", "KMnO4")]
+    secondary += [("K2Cr2O7", "FAS"), ("Na2S2O3", "I2")]
+    for titrant_key, ref_key in secondary:
+        t, ref = chem.titrant(titrant_key), chem.titrant(ref_key)
+        nominal = records.policies(conn)[t.key].nominal_molarities[0]
+        code = _register(client, token, t.key, nominal)
+        ref_code, ref_c = certified[ref.key]
+        nu = chem.stoichiometric_factor(t, ref)
+        true_c = nominal * 1.002
+        reps, expected = [], []
+        for aliquot in (25.0, 25.0, 20.0):
+            titre = round(true_c * aliquot / (nu * ref_c), 2)
+            reps.append({"aliquot_ml": aliquot, "initial_ml": 0.0, "final_ml": titre})
+            expected.append(ref_c * titre * nu / aliquot)  # c_x = c_ref·V_ref·ν/V_x, by hand
+        run = {
+            "method": "secondary",
+            "purpose": "certify",
+            "reference_batch": ref_code,
+            "performed_on": TODAY.isoformat(),
+            "analyst": "Test Person (invented)",
+            "burette_capacity_ml": 50,
+            "replicates": reps,
+        }
+        result = _release(client, token, code, run)
+        assert result["molarity"] == pytest.approx(sum(expected) / 3, rel=2e-5), (titrant_key, ref_key)
+        certified.setdefault(t.key, (code, result["molarity"]))
+        codes[(t.key, ref.key)] = code
+
+    # Labelled: each batch prints, with its hazard lines where its strength carries any.
+    staff = signed_in_client("staff")
+    for (titrant_key, _), code in codes.items():
+        url = f"/batches/{code}/labels"
+        resp = staff.post(url, data={"layout": "bottle", "copies": "1", "csrf_token": form_token(staff, url)})
+        assert resp.status_code == 200 and resp.mimetype == "application/pdf", (titrant_key, resp.get_data(as_text=True)[:400])
+        text = _pdf_text(resp.data)
+        assert code in text
+        if titrant_key in LABEL_TEXT:
+            assert LABEL_TEXT[titrant_key] in text, titrant_key
+
+    # Looked up on the lab day, by an alias, with the value certified.
+    aliases = {t.key: t.aliases[0] for t in chem.OTHER_TITRANTS}
+    for key, (code, molarity) in certified.items():
+        body = client.get(f"/api/v1/lab-day?date={TODAY}&titrant={aliases[key]}").get_json()
+        found = {b["batch_id"]: b for b in body["batches"]}
+        assert code in found, (key, body)
+        assert found[code]["molarity"] == pytest.approx(molarity, rel=1e-12)
+
+    # The bench value of perchloric acid in acetic acid follows its own expansion (BP 2012 App. I B).
+    code, c20 = certified["HClO4-AcOH"]
+    body = client.get(f"/api/v1/lab-day?date={TODAY}&titrant=HClO4-AcOH&bench_temperature_c=25").get_json()
+    entry = next(b for b in body["batches"] if b["batch_id"] == code)
+    assert entry["use_temperature_c"] == 25
+    assert entry["use_molarity"] == pytest.approx(c20 * (1 - 0.0011 * 5), rel=1e-9)
