@@ -16,6 +16,7 @@ import pytest
 from stockroom import chemistry as chem
 from stockroom import corrections, records, tokens
 from stockroom import db as dbmod
+from stockroom import preparation as prep
 
 TODAY = dt.date.today()
 
@@ -391,3 +392,62 @@ def test_each_new_pair_end_to_end(app, client, conn, make_user, signed_in_client
     entry = next(b for b in body["batches"] if b["batch_id"] == code)
     assert entry["use_temperature_c"] == 25
     assert entry["use_molarity"] == pytest.approx(c20 * (1 - 0.0011 * 5), rel=1e-9)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Preparation of the new titrants
+
+
+@pytest.mark.parametrize(
+    ("key", "molarity", "assay", "grams", "source"),
+    [
+        # 0.1 mol/L × 1 L × 248.18 g/mol (periodictable) / 0.995; USP thiosulfate VS takes "about 26 g" (from memory).
+        ("Na2S2O3", 0.1, 0.995, 0.1 * periodictable.formula("Na2S2O3+5H2O").mass / 0.995, "USP"),
+        # USP permanganate VS 0.02 M dissolves "about 3.3 g" per litre (from memory).
+        ("KMnO4", 0.02, 0.99, 0.02 * periodictable.formula("KMnO4").mass / 0.99, "USP"),
+        # Ph. Eur. 4.2.2 sodium edetate 0.05 M: 18.6 g of the dihydrate per litre (from memory).
+        ("EDTA", 0.05, 1.0, 18.61, "Ph. Eur."),
+        ("AgNO3", 0.1, 1.0, 16.99, "Ph. Eur."),  # silver nitrate 0.1 M: 17.0 g per litre (from memory)
+    ],
+)
+def test_solid_titrants_are_weighed_as_the_form_on_the_bottle(key, molarity, assay, grams, source):
+    plan = prep.preparation_plan(key, molarity, 1.0, assay, form="solid")
+    assert plan.concentrate_mass_g == pytest.approx(grams, rel=1e-3)
+    assert plan.concentrate_volume_ml is None
+    text = " ".join(plan.instructions + plan.cautions)
+    assert plan.cautions[-1] == prep.DEFER
+    assert "acid to water, never the reverse" not in text or key in ("Ce(SO4)2", "FAS")
+
+
+def test_perchloric_acid_in_acetic_acid_is_diluted_with_anhydride_and_its_cautions():
+    # BP 2012 Appendix I B, Perchloric Acid VS: 8.5 mL of perchloric acid per litre of 0.1 M (looked up);
+    # 0.1 mol/L × 100.46 g/mol / 0.70 / 1.67 g/mL = 8.59 mL (periodictable's molar mass).
+    plan = prep.preparation_plan("HClO4-AcOH", 0.1, 1.0, 0.70, 1.67, form="liquid")
+    by_hand = 0.1 * periodictable.formula("HClO4").mass / 0.70 / 1.67
+    assert plan.concentrate_volume_ml == pytest.approx(by_hand, rel=1e-9)
+    assert plan.concentrate_volume_ml == pytest.approx(8.5, abs=0.15)
+    text = " ".join(plan.instructions)
+    assert "acetic anhydride" in text and "glacial" in text and "24 hours" in text
+    cautions = " ".join(plan.cautions)
+    assert "flammable" in cautions and "acetyl perchlorate" in cautions and plan.cautions[-1] == prep.DEFER
+    assert prep.caution_kind("HClO4-AcOH", "liquid") == prep.ACETIC_PERCHLORIC
+
+
+@pytest.mark.parametrize(
+    ("key", "kind", "phrase"),
+    [
+        ("KMnO4", prep.OXIDIZING_SOLID, "sintered-glass"),
+        ("K2Cr2O7", prep.OXIDIZING_SOLID, "chromium(VI) waste"),
+        ("AgNO3", prep.OXIDIZING_SOLID, "amber glass"),
+        ("I2", prep.OXIDIZING_SOLID, "potassium iodide"),
+        ("Na2S2O3", prep.SALT_SOLID, "sodium carbonate"),
+        ("EDTA", prep.SALT_SOLID, "polyethylene"),
+    ],
+)
+def test_each_new_titrant_gets_its_own_cautions_and_steps(key, kind, phrase):
+    c = next(c for c in prep.CONCENTRATES if c.reagent == key)
+    plan = prep.preparation_plan(key, 0.05, 1.0, c.assay_w_w, form=c.form)
+    assert prep.caution_kind(key, "solid") == kind
+    assert phrase in " ".join(plan.instructions + plan.cautions)
+    # No acid-base line leaks in: no pellets, no CO2-free water for a redox or complexometric titrant.
+    assert "pellets" not in " ".join(plan.cautions) and "CO2-free" not in " ".join(plan.instructions)

@@ -323,7 +323,7 @@ def _read_plan_fields(
     nominal = p.number(data.get("nominal_molarity"), "nominal_molarity", gt=0, le=MAX_NOMINAL_MOL_L, unit="mol/L")
     volume = p.number(data.get("volume_l"), "volume_l", ge=MIN_VOLUME_L, le=MAX_VOLUME_L, unit="L")
     form = p.choice(data.get("source_form"), "source_form", [k for k, _ in SOURCE_FORMS], default=LIQUID)
-    if form == SOLID and t is not None and t.role != BASE:
+    if form == SOLID and t is not None and not preparation.solid_allowed(t):
         p.error("source_form", f"{t.name} is made from a liquid concentrate: choose the concentrate")
         form = None
     pct = read_percent(p, data.get("concentrate_assay_pct"), "concentrate_assay_pct", required=need_concentrate, gt=1, le=100)
