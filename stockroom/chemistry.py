@@ -1796,3 +1796,34 @@ def catalogue() -> dict[str, list[dict[str, object]]]:
         "standards": [_standard_entry(s) for s in STANDARDS],
         "pairs": pairs,
     }
+
+
+_SUPERSCRIPT = str.maketrans("0123456789+-", "⁰¹²³⁴⁵⁶⁷⁸⁹⁺⁻")
+
+
+def equation_text(equation: str) -> str:
+    """An equation as people read it: charges raised ("MnO4^-" -> "MnO4⁻") and "->" as an arrow."""
+    return re.sub(r"\^([0-9]*[+-])", lambda m: m.group(1).translate(_SUPERSCRIPT), equation).replace("->", "→")
+
+
+def pair_notes(titrant: Titrant) -> list[dict[str, object]]:
+    """What a person standardizing titrant should know of each recorded pair, in words, for a page.
+
+    Returns [{"partner": name (key), "equations": [text], "lines": [conditions, rules, blank, equivalence]}].
+    """
+    out: list[dict[str, object]] = []
+    for p in pairs_of(titrant):
+        other_key = p.partner if p.titrant == titrant.key else p.titrant
+        other: Titrant | PrimaryStandard = (
+            _lookup(TITRANTS, other_key, "titrant") if p.partner_is_titrant else _lookup(STANDARDS, other_key, "primary standard")
+        )
+        lines = [p.conditions, *p.rules, p.blank, p.equivalence]
+        out.append(
+            {
+                "partner": f"{other.name} ({other.key})",
+                "kind": "reference titrant" if p.partner_is_titrant else "primary standard",
+                "equations": [equation_text(e) for e in p.steps],
+                "lines": [line for line in dict.fromkeys(lines) if line],
+            }
+        )
+    return out

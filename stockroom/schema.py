@@ -1242,6 +1242,8 @@ _CLASS_HAZARDS: tuple[dict[str, Any], ...] = (
 
 @MIGRATIONS(name="0013_titrant_classes")
 def _titrant_classes(db: sqlite_utils.Database) -> None:
+    # The temperature of the solution titrated (°C), for pairs titrated hot (permanganate and oxalate).
+    db.execute("ALTER TABLE runs ADD COLUMN titration_temperature_c REAL")
     now = dbmod.utc_now()
     for row in _CLASS_POLICIES:
         db.table("reagent_policies").insert({**row, "recorded_at": now})

@@ -333,10 +333,24 @@ def test_each_new_pair_end_to_end(app, client, conn, make_user, signed_in_client
             "burette_capacity_ml": 50,
             "replicates": reps,
         }
+        pair = chem.pair_for(t, s)
+        if pair is not None and pair[0].hot_min_c is not None:
+            # Titrated hot: the run is refused until the solution's temperature is given, and given warm.
+            refused = _call(client, "POST", f"/api/v1/batches/{code}/runs", token, run)
+            assert refused.status_code == 422
+            assert refused.get_json()["errors"][0]["field"] == "titration_temperature_c"
+            cool = _call(client, "POST", f"/api/v1/batches/{code}/runs", token, {**run, "titration_temperature_c": 30})
+            assert cool.status_code == 422 and "too cool" in cool.get_json()["errors"][0]["message"]
+            run["titration_temperature_c"] = 75
         result = _release(client, token, code, run)
         assert result["molarity"] == pytest.approx(sum(expected) / 3, rel=2e-5), (titrant_key, standard_key)
+        # Iodometric pairs ask for a blank; a run without one says so (common practice).
+        assert any("no blank was recorded" in w for w in result["warnings"]) == bool(pair and pair[0].blank)
         certified.setdefault(t.key, (code, result["molarity"]))
         codes[(t.key, s.key)] = code
+
+    hot = conn.execute("SELECT count(*) FROM runs WHERE titration_temperature_c = 75").fetchone()[0]
+    assert hot == 2  # permanganate and cerium(IV) against oxalate, stored with the run
 
     # Secondary pairs: aliquots of the new batch titrated with a certified reference batch.
     secondary = [("I2", "Na2S2O3"), ("NH4SCN", "AgNO3"), ("ZnSO4", "EDTA"), ("FAS", "Ce(SO4)2"), ("FAS", "KMnO4")]
@@ -451,3 +465,40 @@ def test_each_new_titrant_gets_its_own_cautions_and_steps(key, kind, phrase):
     assert phrase in " ".join(plan.instructions + plan.cautions)
     # No acid-base line leaks in: no pellets, no CO2-free water for a redox or complexometric titrant.
     assert "pellets" not in " ".join(plan.cautions) and "CO2-free" not in " ".join(plan.instructions)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Chemistry-specific rules on the pages
+
+
+def test_run_form_shows_the_pairs_rules_and_asks_the_flask_temperature(conn, signed_in_client):
+    batch = records.create_batch(
+        conn,
+        {
+            "reagent": "KMnO4",
+            "nominal_molarity": 0.02,
+            "volume_l": 5,
+            "prepared_on": (TODAY - dt.timedelta(days=1)).isoformat(),
+            "prepared_by": "Test Person (invented)",
+        },
+        "setup",
+    )
+    html = signed_in_client("staff").get(f"/batches/{batch['code']}/runs/new").get_data(as_text=True)
+    assert 'name="titration_temperature_c"' in html and "Temperature of the titrated solution" in html
+    assert "How potassium permanganate is standardized" in html
+    assert "2 MnO4⁻ + 5 C2O4²⁻ + 16 H⁺ → 2 Mn²⁺ + 10 CO2 + 8 H2O" in html
+    assert "Titrate hot" in html and "amber glass" in html
+    assert "6.700 mg Na2C2O4" in html
+
+
+def test_bench_cautions_name_the_new_titrants():
+    from types import SimpleNamespace
+
+    from stockroom import labday
+
+    entries = [SimpleNamespace(batch=SimpleNamespace(reagent=k, nominal_molarity=0.1)) for k in ("AgNO3", "HClO4-AcOH", "EDTA")]
+    lines = labday.cautions(entries)
+    text = " ".join(lines)
+    assert "silver residue bottle" in text and "flammable and corrosive" in text
+    assert "chromium" not in text  # only the titrants on the bench
+    assert lines[-1].startswith("These are the usual cautions only")

@@ -82,6 +82,7 @@ def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date)
         "rows": GRID_ROWS,
         "today": on,
         "standards": {s.key: s for s in chemistry.list_standards(titrant)},
+        "pair_notes": chemistry.pair_notes(titrant),
         # Mass of each standard that gives a 40 mL titre at the nominal strength (a 50 mL burette).
         "suggested": {
             s.key: chemistry.suggested_standard_mass(titrant, s, batch["nominal_molarity"], 40.0)
