@@ -1769,8 +1769,9 @@ def catalogue() -> dict[str, list[dict[str, object]]]:
     Acid-base pairs without a recorded equation give their ratio from the proton counts.
     """
     pairs: list[dict[str, object]] = []
+    partners: tuple[Titrant | PrimaryStandard, ...] = (*STANDARDS, *TITRANTS)
     for t in TITRANTS:
-        for partner in (*STANDARDS, *TITRANTS):
+        for partner in partners:
             if partner is t or not reacts(t, partner):
                 continue
             found = pair_for(t, partner)
