@@ -502,3 +502,55 @@ def test_bench_cautions_name_the_new_titrants():
     assert "silver residue bottle" in text and "flammable and corrosive" in text
     assert "chromium" not in text  # only the titrants on the bench
     assert lines[-1].startswith("These are the usual cautions only")
+
+
+def test_the_acetic_medium_enters_the_run_and_its_budget():
+    from stockroom import standardization as st
+
+    # The same invented KHP replicates at 23 °C, once as perchloric acid in acetic acid, once as if it
+    # expanded like water: only the referral to 20 °C and the budget's temperature term differ.
+    spec = st.standard_spec("HClO4-AcOH", "KHP")
+    reps = tuple(
+        st.Replicate(volume_ml=v, mass_g=m, temperature_c=23.0) for v, m in [(40.0, 0.8176), (40.4, 0.8259), (39.6, 0.8094)]
+    )
+    inst = st.Instruments.from_settings({})
+    got = {}
+    for key in ("HClO4-AcOH", "HClO4"):
+        run = st.PrimaryRun(standard=spec, replicates=reps, nominal_molarity=0.1, titrant=chem.titrant(key))
+        r = st.standardize_primary(run, inst)
+        line = next(x for x in r.gum.lines if x.source == "titre temperature")
+        got[key] = (r.molarity, line.contribution_rel)
+    acetic, water = chem.titrant("HClO4-AcOH").expansion, corrections.WATER_LIKE
+    # c(20 °C) = c(T)·ρ(20)/ρ(T) for each medium (the glass term is common and cancels in the ratio).
+    ratio = corrections.referral_factor(acetic, 0.1, 23.0) / corrections.referral_factor(water, 0.1, 23.0)
+    assert got["HClO4-AcOH"][0] / got["HClO4"][0] == pytest.approx(ratio, rel=1e-9)
+    # The temperature term scales with the medium's expansion coefficient at 23 °C (about 4.6 times water's).
+    alphas = corrections.expansion_coefficient(acetic, 0.1, 23.0) / corrections.expansion_coefficient(water, 0.1, 23.0)
+    assert got["HClO4-AcOH"][1] / got["HClO4"][1] == pytest.approx(alphas, rel=1e-3)
+
+
+def test_preview_takes_the_new_pairs_by_name_and_refuses_a_wrong_one(client):
+    # Invented replicates: about 0.02 mol/L KMnO4 against sodium oxalate, titrated hot.
+    body = {
+        "titrant": "potassium permanganate",
+        "standard": "sodium oxalate",
+        "purity": 1.0,
+        "purity_U": 0.0002,
+        "purity_k": 2,
+        "nominal_molarity": 0.02,
+        "replicates": [
+            {"mass_g": 0.2680, "volume_ml": 40.00},
+            {"mass_g": 0.2712, "volume_ml": 40.48},
+            {"mass_g": 0.2655, "volume_ml": 39.62},
+        ],
+    }
+    resp = client.post("/api/v1/standardizations/preview", json=body)
+    assert resp.status_code == 200, resp.get_json()
+    j = resp.get_json()
+    # c = 1000·m·b·ν/(M·V), ν = 2/5, by hand for the first replicate (buoyancy at 0.0012 g/cm3, 2.34 g/cm3).
+    b = corrections.buoyancy_factor(2.34)
+    first = 1000 * 0.2680 * b * 0.4 / (periodictable.formula("Na2C2O4").mass * 40.00)
+    assert j["replicates"][0]["molarity"] == pytest.approx(first, rel=5e-5)
+    wrong = client.post("/api/v1/standardizations/preview", json={**body, "standard": "NaCl"})
+    assert wrong.status_code == 422
+    assert "sodium oxalate" in json.dumps(wrong.get_json()) or "Na2C2O4" in json.dumps(wrong.get_json())
