@@ -554,3 +554,20 @@ def test_preview_takes_the_new_pairs_by_name_and_refuses_a_wrong_one(client):
     wrong = client.post("/api/v1/standardizations/preview", json={**body, "standard": "NaCl"})
     assert wrong.status_code == 422
     assert "sodium oxalate" in json.dumps(wrong.get_json()) or "Na2C2O4" in json.dumps(wrong.get_json())
+
+
+def test_batch_page_says_how_the_titrant_is_kept_and_its_medium(conn, client):
+    batch = records.create_batch(
+        conn,
+        {
+            "reagent": "HClO4-AcOH",
+            "nominal_molarity": 0.1,
+            "volume_l": 1,
+            "prepared_on": (TODAY - dt.timedelta(days=1)).isoformat(),
+            "prepared_by": "Test Person (invented)",
+        },
+        "setup",
+    )
+    html = client.get(f"/batches/{batch['code']}").get_data(as_text=True)
+    assert "Made in anhydrous acetic acid" in html and "0.0011 per °C" in html
+    assert "Perchloric Acid VS" in html
