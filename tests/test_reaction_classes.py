@@ -571,3 +571,29 @@ def test_batch_page_says_how_the_titrant_is_kept_and_its_medium(conn, client):
     html = client.get(f"/batches/{batch['code']}").get_data(as_text=True)
     assert "Made in anhydrous acetic acid" in html and "0.0011 per °C" in html
     assert "Perchloric Acid VS" in html
+
+
+def test_plan_api_weighs_thiosulfate_pentahydrate_and_refuses_a_solid_acid(client):
+    resp = client.post(
+        "/api/v1/preparation/plan",
+        json={
+            "reagent": "sodium thiosulfate",
+            "nominal_molarity": "0.1",
+            "volume_l": 2,
+            "source_form": "solid",
+            "concentrate_assay_pct": "99.5",
+        },
+    )
+    assert resp.status_code == 200, resp.get_json()
+    body = resp.get_json()
+    # 2 L · 0.1 mol/L · M(Na2S2O3·5H2O) / 0.995 (periodictable's molar mass).
+    grams = 2 * 0.1 * periodictable.formula("Na2S2O3+5H2O").mass / 0.995
+    assert body["plan"]["concentrate_mass_g"] == pytest.approx(grams, rel=1e-4)
+    assert body["display"]["figures"][0]["value"] == f"{grams:.2f} g"
+    assert body["display"]["cautions"][-1] == prep.DEFER
+    assert not any("CO2-free" in w for w in body["warnings"])
+    acid = client.post(
+        "/api/v1/preparation/plan",
+        json={"reagent": "HCl", "nominal_molarity": "0.1", "volume_l": 2, "source_form": "solid", "concentrate_assay_pct": "37"},
+    )
+    assert acid.status_code == 422 and acid.get_json()["errors"][0]["field"] == "source_form"

@@ -40,7 +40,7 @@ api_bp = Blueprint("intake_api", __name__, url_prefix="/api/v1")
 LIQUID, SOLID = preparation.LIQUID, preparation.SOLID
 SOURCE_FORMS: tuple[tuple[str, str], ...] = (
     (LIQUID, "a liquid concentrate, diluted"),
-    (SOLID, "solid pellets, dissolved (NaOH, KOH)"),
+    (SOLID, "a solid, weighed and dissolved (pellets of NaOH or KOH; the salts of the other classes)"),
 )
 # Offered in the water field's list; any other description may be typed.
 WATER_GRADES: tuple[str, ...] = (
@@ -218,6 +218,7 @@ def _catalogue(pols: Mapping[str, ReagentPolicy]) -> dict[str, Any]:
         out[t.key] = {
             "name": t.name,
             "role": t.role,
+            "solid": preparation.solid_allowed(t),
             "nominals": [f"{n:g}" for n in pols[t.key].nominal_molarities],
             "typical": _typical_hint(t.key),
             "cautions": list(preparation.cautions_for(t.key)),
