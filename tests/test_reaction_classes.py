@@ -597,3 +597,37 @@ def test_plan_api_weighs_thiosulfate_pentahydrate_and_refuses_a_solid_acid(clien
         json={"reagent": "HCl", "nominal_molarity": "0.1", "volume_l": 2, "source_form": "solid", "concentrate_assay_pct": "37"},
     )
     assert acid.status_code == 422 and acid.get_json()["errors"][0]["field"] == "source_form"
+
+
+def test_the_run_form_refuses_a_cold_permanganate_run_beside_the_field(app, conn, signed_in_client, form_token):
+    from formposts import count, error_beside, post
+
+    batch = records.create_batch(
+        conn,
+        {
+            "reagent": "KMnO4",
+            "nominal_molarity": 0.02,
+            "volume_l": 5,
+            "prepared_on": (TODAY - dt.timedelta(days=1)).isoformat(),
+            "prepared_by": "Test Person (invented)",
+        },
+        "setup",
+    )
+    lot = _lot(conn, "Na2C2O4")
+    form = {
+        "purpose": "certify",
+        "standard_lot_id": str(lot["id"]),
+        "performed_on": TODAY.isoformat(),
+        "analyst": "Test Person",
+        "burette_capacity_ml": "50.0",
+        "titration_temperature_c": "22",
+        "action": "record",
+    }
+    for i, (m, v) in enumerate([("0.2680", "40.00"), ("0.2712", "40.48"), ("0.2655", "39.62")], start=1):
+        form.update({f"r{i}_mass_g": m, f"r{i}_initial_ml": "0.00", f"r{i}_final_ml": v})
+    staff = signed_in_client("staff")
+    before = count(app, "runs")
+    page = post(staff, form_token, f"/batches/{batch['code']}/runs/new", form)
+    assert page.status_code == 422
+    assert "too cool" in error_beside(page.get_data(as_text=True), "titration_temperature_c")
+    assert count(app, "runs") == before
