@@ -586,10 +586,19 @@ OTHER_CLASSIFICATIONS: tuple[Classification, ...] = (
     _row(
         "AgNO3",
         0.0,
-        0.3,
+        0.059,
         ("H410",),
         _ENV_P,
-        "Silver nitrate is Aquatic Acute 1 and Chronic 1 with high M-factors: even 0.1 mol/L solutions are H410.",
+        "Silver nitrate is Aquatic Acute 1 and Chronic 1 with high M-factors: even dilute solutions are H410.",
+    ),
+    _row(
+        "AgNO3",
+        0.059,
+        0.3,
+        ("H315", "H319", "H410"),
+        ("P264", "P273", "P280", "P302+P352", "P305+P351+P338", "P501"),
+        "Silver nitrate is also Skin Corr. 1B: Skin Irrit. 2 and Eye Irrit. 2 from 1 % w/w (about 0.059 mol/L); "
+        "Aquatic Acute 1 and Chronic 1 with high M-factors (H410).",
     ),
     _row("NH4SCN", 0.0, 0.5, (), (), _NOT_CLASSIFIED),
     _row("EDTA", 0.0, 0.027, (), (), _NOT_CLASSIFIED + " Below 1 % w/w (about 0.027 mol/L)."),

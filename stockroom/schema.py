@@ -1127,13 +1127,30 @@ _CLASS_HAZARDS: tuple[dict[str, Any], ...] = (
     {
         "reagent": "AgNO3",
         "min_molarity": 0.0,
-        "max_molarity": 0.3,
+        "max_molarity": 0.059,
         "signal_word": "Warning",
         "pictograms": '["GHS09"]',
         "hazard_statements": '["H410"]',
         "precautionary_statements": '["P273", "P501"]',
         "source_note": _FROM_MEMORY
-        + (" Silver nitrate is Aquatic Acute 1 and Chronic 1 with high M-factors: even 0.1 mol/L solutions are H410."),
+        + (" Silver nitrate is Aquatic Acute 1 and Chronic 1 with high M-factors: even dilute solutions are H410."),
+        "reason": "starting classification",
+        "effective_from": "2000-01-01",
+        "recorded_by": "system",
+    },
+    {
+        "reagent": "AgNO3",
+        "min_molarity": 0.059,
+        "max_molarity": 0.3,
+        "signal_word": "Warning",
+        "pictograms": '["GHS07", "GHS09"]',
+        "hazard_statements": '["H315", "H319", "H410"]',
+        "precautionary_statements": '["P264", "P273", "P280", "P302+P352", "P305+P351+P338", "P501"]',
+        "source_note": _FROM_MEMORY
+        + (
+            " Silver nitrate is also Skin Corr. 1B: Skin Irrit. 2 and Eye Irrit. 2 from 1 % w/w (about 0.059 "
+            "mol/L); Aquatic Acute 1 and Chronic 1 with high M-factors (H410)."
+        ),
         "reason": "starting classification",
         "effective_from": "2000-01-01",
         "recorded_by": "system",
