@@ -12,6 +12,8 @@ import re
 import periodictable
 import pypdf
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from stockroom import chemistry as chem
 from stockroom import corrections, records, tokens
@@ -505,19 +507,19 @@ def test_bench_cautions_name_the_new_titrants():
 
 
 def test_the_acetic_medium_enters_the_run_and_its_budget():
-    from stockroom import standardization as st
+    from stockroom import standardization as std
 
     # The same invented KHP replicates at 23 °C, once as perchloric acid in acetic acid, once as if it
     # expanded like water: only the referral to 20 °C and the budget's temperature term differ.
-    spec = st.standard_spec("HClO4-AcOH", "KHP")
+    spec = std.standard_spec("HClO4-AcOH", "KHP")
     reps = tuple(
-        st.Replicate(volume_ml=v, mass_g=m, temperature_c=23.0) for v, m in [(40.0, 0.8176), (40.4, 0.8259), (39.6, 0.8094)]
+        std.Replicate(volume_ml=v, mass_g=m, temperature_c=23.0) for v, m in [(40.0, 0.8176), (40.4, 0.8259), (39.6, 0.8094)]
     )
-    inst = st.Instruments.from_settings({})
+    inst = std.Instruments.from_settings({})
     got = {}
     for key in ("HClO4-AcOH", "HClO4"):
-        run = st.PrimaryRun(standard=spec, replicates=reps, nominal_molarity=0.1, titrant=chem.titrant(key))
-        r = st.standardize_primary(run, inst)
+        run = std.PrimaryRun(standard=spec, replicates=reps, nominal_molarity=0.1, titrant=chem.titrant(key))
+        r = std.standardize_primary(run, inst)
         line = next(x for x in r.gum.lines if x.source == "titre temperature")
         got[key] = (r.molarity, line.contribution_rel)
     acetic, water = chem.titrant("HClO4-AcOH").expansion, corrections.WATER_LIKE
@@ -631,3 +633,36 @@ def test_the_run_form_refuses_a_cold_permanganate_run_beside_the_field(app, conn
     assert page.status_code == 422
     assert "too cool" in error_beside(page.get_data(as_text=True), "titration_temperature_c")
     assert count(app, "runs") == before
+
+
+def test_a_pair_titrates_only_when_its_reaction_is_recorded_or_it_is_aqueous_acid_base():
+    # The whole catalogue, titrant × partner: nothing reacts by accident across classes or media.
+    for t in chem.TITRANTS:
+        for partner in (*chem.STANDARDS, *chem.TITRANTS):
+            if partner is t:
+                continue
+            recorded = chem.pair_for(t, partner) is not None
+            refused = frozenset({t.key, partner.key}) in chem.REFUSED
+            aqueous_acid_base = (
+                t.reaction_class == partner.reaction_class == chem.ACID_BASE
+                and t.solvent == "water"
+                and getattr(partner, "solvent", "water") == "water"
+                and t.role != partner.role
+            )
+            assert chem.reacts(t, partner) == (recorded or (aqueous_acid_base and not refused)), (t.key, partner.key)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.sampled_from([s for p in chem.PAIRS for s in p.steps]), st.integers(min_value=2, max_value=7), st.data())
+def test_scaled_equations_balance_and_a_changed_coefficient_does_not(step, k, data):
+    # Conservation of atoms and charge: k times a balanced equation still balances; changing one
+    # coefficient of a species that carries atoms or charge breaks it.
+    left, right = chem.parse_equation(step)
+
+    def text(lhs, rhs):
+        return " + ".join(f"{n:g} {sp}" for n, sp in lhs) + " -> " + " + ".join(f"{n:g} {sp}" for n, sp in rhs)
+
+    assert chem.imbalance(text([(n * k, sp) for n, sp in left], [(n * k, sp) for n, sp in right])) is None
+    i = data.draw(st.integers(min_value=0, max_value=len(left) - 1))
+    changed = [(n + 1 if j == i else n, sp) for j, (n, sp) in enumerate(left)]
+    assert chem.imbalance(text(changed, right)) is not None
