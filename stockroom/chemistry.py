@@ -385,11 +385,31 @@ class Titrant:
     expansion: corrections.ExpansionModel = corrections.WATER_LIKE
     max_molarity: float = math.inf
     max_molarity_source: str = ""
+    # Beyond acids and bases (see "Reaction classes" below). role then reads oxidant, reductant, ligand,
+    # metal ion, precipitant; equivalents stays the acid-base count and is 0 for the other classes,
+    # whose stoichiometry comes from the balanced reaction of each pair (PAIRS).
+    reaction_class: str = "acid-base"
+    solvent: str = "water"
+    species: str = ""  # the reacting species the formula unit gives, charge after "^" ("MnO4^-")
+    electrons: int = 0  # redox: electrons taken (oxidant) or given (reductant) per formula unit
+    weighed_as: str = ""  # the solid reagent weighed to make it, when not the formula ("Na2S2O3·5H2O")
+    endpoint: str = ""
+    storage: str = ""
+    secondary_only: bool = False  # standardized against another titrant only
+    back_titrant: bool = False  # used to titrate the excess of another titrant
 
     @property
     def molar_mass(self) -> MolarMass:
         """Molar mass of the reagent, g/mol."""
         return molar_mass(self.formula)
+
+    @property
+    def expansion_model_text(self) -> str:
+        """Which expansion model refers this titrant to 20 °C, in words."""
+        m = self.expansion
+        if m.kind == "linear":
+            return f"{m.key}: {m.alpha_per_k:.2g} per °C ({m.source})"
+        return f"{m.key} ({m.source})"
 
 
 @dataclass(frozen=True)
@@ -406,6 +426,7 @@ class PrimaryStandard:
     endpoint: str
     aliases: tuple[str, ...] = ()
     density_source: str = ""
+    reaction_class: str = "acid-base"
 
     @property
     def molar_mass(self) -> MolarMass:
@@ -413,7 +434,7 @@ class PrimaryStandard:
         return molar_mass(self.formula)
 
 
-TITRANTS: tuple[Titrant, ...] = (
+ACID_BASE_TITRANTS: tuple[Titrant, ...] = (
     Titrant(
         "HCl",
         "hydrochloric acid",
@@ -447,9 +468,8 @@ TITRANTS: tuple[Titrant, ...] = (
         18.7,
         "98 % H2SO4, about 1.84 g/cm3, 18.4 mol/L (from memory); 100 % is 18.7 mol/L",
     ),
-    # Aqueous perchloric acid only. Perchloric acid in glacial acetic acid (non-aqueous titrimetry) is
-    # standardized against KHP acting as a base in that solvent; that pairing is outside this catalogue,
-    # and would bring its own ExpansionModel(kind="linear", alpha_per_k=...) for the acetic-acid medium.
+    # Aqueous perchloric acid. Perchloric acid in anhydrous acetic acid is its own titrant
+    # ("HClO4-AcOH" below): another solvent, its own expansion, KHP acting as a base.
     Titrant(
         "HClO4",
         "perchloric acid",
@@ -496,10 +516,235 @@ TITRANTS: tuple[Titrant, ...] = (
     ),
 )
 
+# ---------------------------------------------------------------------------------------------------------
+# Reaction classes beyond acids and bases
+#
+# A titrant's molarity is of its formula unit (KMnO4, Na2S2O3, Na2H2EDTA, ...), never normality. The
+# titrant/partner mole ratio comes from the balanced equation(s) of the pair (PAIRS below), checked for
+# atoms and charge on import. Media, end points and storage are common practice unless a source is named;
+# the pharmacopoeias' chapters on volumetric solutions (USP <541> and the VS list, Ph. Eur. 4.2.2, BP
+# Appendix I B) and ASTM E200 describe these standardizations.
+
+ACID_BASE = "acid-base"
+REDOX = "redox"
+COMPLEXOMETRIC = "complexometric"
+PRECIPITATION = "precipitation"
+REACTION_CLASSES: tuple[str, ...] = (ACID_BASE, REDOX, COMPLEXOMETRIC, PRECIPITATION)
+
+OXIDANT = "oxidant"
+REDUCTANT = "reductant"
+LIGAND = "ligand"
+METAL_ION = "metal ion"
+PRECIPITANT = "precipitant"
+PRECIPITATED = "precipitated ion"
+
+_DARK = "Keep in a well-closed amber glass bottle, away from light (common practice)."
+
+OTHER_TITRANTS: tuple[Titrant, ...] = (
+    Titrant(
+        "KMnO4",
+        "potassium permanganate",
+        "KMnO4",
+        OXIDANT,
+        0,
+        ("potassium permanganate", "permanganate"),
+        max_molarity=0.4,
+        max_molarity_source="solubility about 6.4 g per 100 g water at 20 °C, about 0.4 mol/L (from memory)",
+        reaction_class=REDOX,
+        species="MnO4^-",
+        electrons=5,
+        endpoint="Self-indicating: the first faint pink that persists 30 s (common practice)",
+        storage="Let stand a week or boil an hour, filter off MnO2 through sintered glass (not paper); "
+        + _DARK
+        + " Re-check often: it decomposes in light and on any organic matter (common practice).",
+    ),
+    Titrant(
+        "Na2S2O3",
+        "sodium thiosulfate",
+        "Na2S2O3",
+        REDUCTANT,
+        0,
+        ("sodium thiosulfate", "sodium thiosulphate", "thiosulfate", "hypo"),
+        max_molarity=3.0,
+        max_molarity_source="solubility of the pentahydrate about 70 g per 100 g water at 20 °C (from memory)",
+        reaction_class=REDOX,
+        species="S2O3^2-",
+        electrons=1,
+        weighed_as="Na2S2O3·5H2O",
+        endpoint="Starch added near the end point (pale straw colour), blue to colourless (common practice)",
+        storage="Make with boiled, cooled water and a little Na2CO3 (about 0.1 g/L) against bacterial "
+        "decomposition; " + _DARK + " Re-check often (common practice).",
+    ),
+    Titrant(
+        "I2",
+        "iodine",
+        "I2",
+        OXIDANT,
+        0,
+        ("iodine", "iodine solution", "triiodide"),
+        max_molarity=0.5,
+        max_molarity_source="iodine in concentrated KI solution; 0.05 mol/L is the usual strength (from memory)",
+        reaction_class=REDOX,
+        species="I2",
+        electrons=2,
+        endpoint="Starch, colourless to blue; or the iodine's own yellow (common practice)",
+        storage="Dissolved in KI solution (about 36 g KI per 0.05 mol I2 per litre); keep in a glass-stoppered "
+        "amber bottle, cool: iodine is volatile (common practice).",
+        secondary_only=True,
+    ),
+    Titrant(
+        "Ce(SO4)2",
+        "cerium(IV) sulfate",
+        "Ce(SO4)2",
+        OXIDANT,
+        0,
+        ("cerium(IV) sulfate", "ceric sulfate", "ceric sulphate", "cerium(IV) sulphate", "cerium sulfate"),
+        max_molarity=0.5,
+        max_molarity_source="about 0.5 mol/L in 1 mol/L sulfuric acid (from memory)",
+        reaction_class=REDOX,
+        species="Ce^4+",
+        electrons=1,
+        weighed_as="Ce(SO4)2·4H2O",
+        endpoint="Ferroin, red to pale blue (common practice)",
+        storage="Made in sulfuric acid (about 0.5 mol/L H2SO4) so it does not hydrolyse; stable for months (common practice).",
+    ),
+    Titrant(
+        "FAS",
+        "ammonium iron(II) sulfate",
+        "(NH4)2Fe(SO4)2",
+        REDUCTANT,
+        0,
+        (
+            "ammonium iron(II) sulfate",
+            "ferrous ammonium sulfate",
+            "ferrous ammonium sulphate",
+            "ammonium iron(II) sulphate",
+            "Mohr's salt",
+        ),
+        max_molarity=0.5,
+        max_molarity_source="0.1 mol/L is the usual strength; the hexahydrate dissolves to about 0.7 mol/L (from memory)",
+        reaction_class=REDOX,
+        species="Fe^2+",
+        electrons=1,
+        weighed_as="(NH4)2Fe(SO4)2·6H2O",
+        endpoint="Ferroin or sodium diphenylamine sulfonate, or potentiometric (common practice)",
+        storage="Made in dilute sulfuric acid; air oxidizes it slowly: standardize on the day of use (common practice).",
+    ),
+    Titrant(
+        "K2Cr2O7",
+        "potassium dichromate",
+        "K2Cr2O7",
+        OXIDANT,
+        0,
+        ("potassium dichromate", "potassium bichromate", "dichromate"),
+        max_molarity=0.4,
+        max_molarity_source="solubility about 12 g per 100 g water at 20 °C, about 0.4 mol/L (from memory)",
+        reaction_class=REDOX,
+        species="Cr2O7^2-",
+        electrons=6,
+        endpoint="Sodium diphenylamine sulfonate, green to violet, in H2SO4/H3PO4 (common practice)",
+        storage="Very stable; weighed from the dried primary standard it needs no standardization, "
+        "checking it against iron(II) is a secondary check (common practice).",
+    ),
+    Titrant(
+        "AgNO3",
+        "silver nitrate",
+        "AgNO3",
+        PRECIPITANT,
+        0,
+        ("silver nitrate",),
+        max_molarity=5.0,
+        max_molarity_source="0.1 mol/L is usual; solubility about 216 g per 100 g water at 20 °C (from memory)",
+        reaction_class=PRECIPITATION,
+        species="Ag^+",
+        endpoint="Potassium chromate (Mohr, neutral), an adsorption indicator such as dichlorofluorescein "
+        "(Fajans), or potentiometric with a silver electrode (common practice)",
+        storage="Keep in amber glass, away from light: silver salts darken (common practice).",
+    ),
+    Titrant(
+        "NH4SCN",
+        "ammonium thiocyanate",
+        "NH4SCN",
+        PRECIPITATED,
+        0,
+        ("ammonium thiocyanate", "ammonium sulfocyanide", "thiocyanate"),
+        max_molarity=5.0,
+        max_molarity_source="0.1 mol/L is usual; very soluble in water (from memory)",
+        reaction_class=PRECIPITATION,
+        species="SCN^-",
+        endpoint="Iron(III) alum in nitric acid, the first permanent red-brown (Volhard; common practice)",
+        storage="Hygroscopic solid: never weighed as a standard, always standardized against silver nitrate (common practice).",
+        secondary_only=True,
+        back_titrant=True,
+    ),
+    Titrant(
+        "EDTA",
+        "disodium edetate",
+        "Na2H2C10H12N2O8",
+        LIGAND,
+        0,
+        (
+            "disodium edetate",
+            "edetate disodium",
+            "disodium EDTA",
+            "Na2EDTA",
+            "sodium edetate",
+            "disodium ethylenediaminetetraacetate",
+        ),
+        max_molarity=0.25,
+        max_molarity_source="solubility of the dihydrate about 10 g per 100 g water at 20 °C, about 0.27 mol/L (from memory)",
+        reaction_class=COMPLEXOMETRIC,
+        species="C10H14N2O8^2-",  # H2Y^2-
+        weighed_as="C10H14N2Na2O8·2H2O",
+        endpoint="Eriochrome black T at pH 10 (NH3/NH4Cl buffer), red to blue; xylenol orange at pH 5–6 "
+        "(hexamine buffer) for zinc (common practice)",
+        storage="Keep in polyethylene: glass gives up calcium and magnesium to it (common practice).",
+    ),
+    Titrant(
+        "ZnSO4",
+        "zinc sulfate",
+        "ZnSO4",
+        METAL_ION,
+        0,
+        ("zinc sulfate", "zinc sulphate"),
+        max_molarity=3.0,
+        max_molarity_source="solubility of the heptahydrate about 96 g per 100 g water at 20 °C (from memory)",
+        reaction_class=COMPLEXOMETRIC,
+        species="Zn^2+",
+        weighed_as="ZnSO4·7H2O",
+        endpoint="Eriochrome black T at pH 10, blue to red (back-titration of excess edetate; common practice)",
+        storage="Stable; standardized against a certified disodium edetate solution (common practice).",
+        secondary_only=True,
+        back_titrant=True,
+    ),
+    Titrant(
+        "HClO4-AcOH",
+        "perchloric acid in anhydrous acetic acid",
+        "HClO4",
+        ACID,
+        1,
+        (
+            "perchloric acid in acetic acid",
+            "perchloric acid in glacial acetic acid",
+            "perchloric acid in anhydrous acetic acid",
+            "non-aqueous perchloric acid",
+        ),
+        corrections.ACETIC_ACID_HCLO4,
+        0.2,
+        "0.1 mol/L is the pharmacopoeial strength; made from 70 % HClO4 and acetic anhydride (from memory)",
+        reaction_class=ACID_BASE,
+        solvent="anhydrous acetic acid",
+        species="H^+",
+        endpoint="Crystal violet, violet to blue-green, or potentiometric (BP 2012 Appendix I B, Perchloric Acid VS)",
+        storage="Keep tightly closed, protected from moisture; record the temperature of each "
+        "standardization and use: the medium expands about 0.11 % per °C (BP 2012 Appendix I B).",
+    ),
+)
+
 # Drying temperatures and end points are common practice in prep rooms and volumetric-analysis texts;
 # none is from a single standard. Temperatures marked "from memory" should be checked against the
 # supplier's certificate of the lot in use, which overrides this table.
-STANDARDS: tuple[PrimaryStandard, ...] = (
+ACID_BASE_STANDARDS: tuple[PrimaryStandard, ...] = (
     PrimaryStandard(
         key="Na2CO3",
         name="sodium carbonate",
@@ -660,6 +905,166 @@ STANDARDS: tuple[PrimaryStandard, ...] = (
     ),
 )
 
+TITRANTS: tuple[Titrant, ...] = ACID_BASE_TITRANTS + OTHER_TITRANTS
+
+
+# Standards for the other classes. Drying rules follow the pharmacopoeias' volumetric-solution texts
+# where they name one (from memory, as marked) and are otherwise common practice; the lot's certificate
+# overrides them. Densities are handbook values from memory (they enter only the buoyancy correction,
+# where a 10 % error in density moves the mass by under 0.005 %).
+OTHER_STANDARDS: tuple[PrimaryStandard, ...] = (
+    PrimaryStandard(
+        key="Na2C2O4",
+        name="sodium oxalate",
+        formula="Na2C2O4",
+        role=REDUCTANT,
+        equivalents=0,
+        density_g_cm3=2.34,
+        density_source="from memory — verify",
+        drying=DryingRule(
+            oven_allowed=True,
+            min_c=105.0,
+            max_c=110.0,
+            text="Dry 2 h at 105–110 °C, cool in a desiccator (common practice; from memory — verify)",
+        ),
+        endpoint="Titrated hot (above 60 °C) in dilute sulfuric acid; permanganate is its own indicator (common practice)",
+        aliases=("sodium oxalate", "disodium oxalate"),
+        reaction_class=REDOX,
+    ),
+    PrimaryStandard(
+        key="KIO3",
+        name="potassium iodate",
+        formula="KIO3",
+        role=OXIDANT,
+        equivalents=0,
+        density_g_cm3=3.93,
+        density_source="from memory — verify",
+        drying=DryingRule(
+            oven_allowed=True,
+            min_c=105.0,
+            max_c=120.0,
+            text="Dry to constant mass at about 110 °C, cool in a desiccator (common practice; from memory — verify)",
+        ),
+        endpoint="With excess KI in acid; the iodine freed is titrated with thiosulfate to starch (common practice)",
+        aliases=("potassium iodate",),
+        reaction_class=REDOX,
+    ),
+    PrimaryStandard(
+        key="KBrO3",
+        name="potassium bromate",
+        formula="KBrO3",
+        role=OXIDANT,
+        equivalents=0,
+        density_g_cm3=3.27,
+        density_source="from memory — verify",
+        drying=DryingRule(
+            oven_allowed=True,
+            min_c=105.0,
+            max_c=180.0,
+            text="Dry 1–2 h at 110–180 °C, cool in a desiccator (common practice; from memory — verify)",
+        ),
+        endpoint="With excess KI in acid; the iodine freed is titrated with thiosulfate to starch (common practice)",
+        aliases=("potassium bromate",),
+        reaction_class=REDOX,
+    ),
+    PrimaryStandard(
+        key="dichromate",
+        name="potassium dichromate",
+        formula="K2Cr2O7",
+        role=OXIDANT,
+        equivalents=0,
+        density_g_cm3=2.68,
+        density_source="from memory — verify",
+        drying=DryingRule(
+            oven_allowed=True,
+            min_c=110.0,
+            max_c=150.0,
+            text="Crush and dry 4 h at about 120 °C, cool in a desiccator (common practice; from memory — verify)",
+        ),
+        endpoint="With excess KI in acid, in the dark for 5–10 min, then thiosulfate to starch; or titrating "
+        "iron(II) to diphenylamine sulfonate (common practice)",
+        aliases=("potassium dichromate", "potassium bichromate"),
+        reaction_class=REDOX,
+    ),
+    PrimaryStandard(
+        key="NaCl",
+        name="sodium chloride",
+        formula="NaCl",
+        role=PRECIPITATED,
+        equivalents=0,
+        density_g_cm3=2.165,
+        density_source="from memory — verify",
+        drying=DryingRule(
+            oven_allowed=True,
+            min_c=105.0,
+            max_c=300.0,
+            text="Dry 2 h at about 110 °C (or heat to 300 °C), cool in a desiccator (common practice; from memory — verify)",
+        ),
+        endpoint="Potassium chromate in neutral solution, or an adsorption indicator, or potentiometric (common practice)",
+        aliases=("sodium chloride", "halite"),
+        reaction_class=PRECIPITATION,
+    ),
+    PrimaryStandard(
+        key="KCl",
+        name="potassium chloride",
+        formula="KCl",
+        role=PRECIPITATED,
+        equivalents=0,
+        density_g_cm3=1.984,
+        density_source="from memory — verify",
+        drying=DryingRule(
+            oven_allowed=True,
+            min_c=105.0,
+            max_c=300.0,
+            text="Dry 2 h at about 110 °C, cool in a desiccator (common practice; from memory — verify)",
+        ),
+        endpoint="Potassium chromate in neutral solution, or potentiometric (common practice)",
+        aliases=("potassium chloride", "sylvite"),
+        reaction_class=PRECIPITATION,
+    ),
+    PrimaryStandard(
+        key="Zn",
+        name="zinc metal",
+        formula="Zn",
+        role=METAL_ION,
+        equivalents=0,
+        density_g_cm3=7.14,
+        density_source="from memory — verify",
+        drying=DryingRule(
+            # The metal is not oven-dried: its surface oxide is rinsed off with dilute acid before weighing.
+            oven_allowed=False,
+            min_c=None,
+            max_c=None,
+            text="Not oven-dried: rinse the granules in dilute HCl, then water and acetone, air-dry and weigh; "
+            "dissolve in dilute HCl (common practice)",
+        ),
+        endpoint="Dissolved in HCl, buffered to pH 10 for eriochrome black T or pH 5–6 for xylenol orange (common practice)",
+        aliases=("zinc", "zinc metal", "granulated zinc"),
+        reaction_class=COMPLEXOMETRIC,
+    ),
+    PrimaryStandard(
+        key="CaCO3",
+        name="calcium carbonate",
+        formula="CaCO3",
+        role=METAL_ION,
+        equivalents=0,
+        density_g_cm3=2.71,
+        density_source="from memory (calcite) — verify",
+        drying=DryingRule(
+            oven_allowed=True,
+            min_c=105.0,
+            max_c=200.0,
+            text="Dry 2 h at 110–200 °C, cool in a desiccator (common practice; from memory — verify)",
+        ),
+        endpoint="Dissolved in a little dilute HCl, boiled to expel CO2, buffered to pH 10 (eriochrome black T, with "
+        "a little Mg–EDTA) or pH 12–13 (calconcarboxylic acid) (common practice)",
+        aliases=("calcium carbonate", "calcite"),
+        reaction_class=COMPLEXOMETRIC,
+    ),
+)
+
+STANDARDS: tuple[PrimaryStandard, ...] = ACID_BASE_STANDARDS + OTHER_STANDARDS
+
 
 _Entry = TypeVar("_Entry", Titrant, PrimaryStandard)
 
@@ -723,35 +1128,507 @@ def list_standards(for_titrant: Titrant | None = None) -> tuple[PrimaryStandard,
     """
     if for_titrant is None:
         return STANDARDS
-    return tuple(s for s in STANDARDS if s.role != for_titrant.role)
+    return tuple(s for s in STANDARDS if reacts(for_titrant, s))
+
+
+def list_references(for_titrant: Titrant) -> tuple[Titrant, ...]:
+    """Catalogue titrants that can serve as the reference of a secondary standardization of for_titrant.
+
+    for_titrant: a Titrant. Returns a tuple of Titrant in catalogue order.
+    """
+    return tuple(t for t in TITRANTS if t.key != for_titrant.key and reacts(for_titrant, t))
+
+
+def reacts(titrant: Titrant, partner: Titrant | PrimaryStandard) -> bool:
+    """Whether titrant and partner react as a titration (stoichiometric_factor would not refuse)."""
+    return isinstance(_factor(titrant, partner), float)
+
+
+# ---------------------------------------------------------------------------------------------------------
+# Balanced reactions
+#
+# A species is a formula with its charge after "^" ("MnO4^-", "C2O4^2-", "Fe^2+", "H^+", "CO2"); an
+# equation is "coefficient species + ... -> ...". Every equation below is checked for atoms and charge
+# when the module loads, and each pair's mole ratio is derived from its equations, never typed in.
+
+_CHARGE = re.compile(r"^(\d*)([+-])$")
+
+
+def parse_species(text: str) -> tuple[str, int]:
+    """A species' formula and charge: "C2O4^2-" -> ("C2O4", -2). Raises FormulaError when malformed."""
+    formula, caret, charge = text.partition("^")
+    z = 0
+    if caret:
+        m = _CHARGE.match(charge)
+        if not m:
+            raise FormulaError(f"cannot read the charge of {text!r}: write it as ^2-, ^+, ^3+")
+        z = int(m.group(1) or 1) * (1 if m.group(2) == "+" else -1)
+    parse_formula(formula)
+    return formula, z
+
+
+def parse_equation(text: str) -> tuple[tuple[tuple[float, str], ...], tuple[tuple[float, str], ...]]:
+    """The two sides of an equation as ((coefficient, species), ...). Raises FormulaError when malformed."""
+    if "->" not in text:
+        raise FormulaError(f"an equation needs '->' between its sides: {text!r}")
+    sides = []
+    for side in text.split("->"):
+        terms = []
+        for term in side.split(" + "):
+            words = term.split()
+            if len(words) == 2:
+                terms.append((float(words[0]), words[1]))
+            elif len(words) == 1:
+                terms.append((1.0, words[0]))
+            else:
+                raise FormulaError(f"cannot read the term {term!r} of {text!r}")
+        sides.append(tuple(terms))
+    if len(sides) != 2:
+        raise FormulaError(f"an equation has exactly one '->': {text!r}")
+    return sides[0], sides[1]
+
+
+def imbalance(text: str) -> str | None:
+    """Why an equation does not balance (atoms or charge), or None when it does."""
+    left, right = parse_equation(text)
+    totals: list[tuple[dict[str, float], float]] = []
+    for side in (left, right):
+        atoms: dict[str, float] = {}
+        charge = 0.0
+        for n, sp in side:
+            formula, z = parse_species(sp)
+            for sym, k in parse_formula(formula).items():
+                atoms[sym] = atoms.get(sym, 0.0) + n * k
+            charge += n * z
+        totals.append((atoms, charge))
+    (a1, z1), (a2, z2) = totals
+    off = sorted(sym for sym in set(a1) | set(a2) if abs(a1.get(sym, 0.0) - a2.get(sym, 0.0)) > 1e-9)
+    if off:
+        return f"{', '.join(off)} not balanced in {text!r}"
+    if abs(z1 - z2) > 1e-9:
+        return f"charge {z1:g} on the left and {z2:g} on the right in {text!r}"
+    return None
+
+
+def _coefficient(side: tuple[tuple[float, str], ...], species: str) -> float | None:
+    return next((n for n, sp in side if sp == species), None)
+
+
+@dataclass(frozen=True)
+class Pair:
+    """A titrant and the standard (or reference titrant) it is standardized against, by their reaction.
+
+    steps: balanced equations, the last one the titration; earlier ones free the species titrated (an
+    iodate's iodine, a zinc granule's Zn2+). titrant_species / partner_species: what each formula unit
+    brings (titrant_units / partner_units per formula unit: KH(IO3)2 brings 2 IO3-). conditions: medium
+    and indicator; rules: chemistry-specific rules with their sources; equivalence: a published figure
+    (mg of standard per mL of titrant) with its source; hot_min_c: the flask temperature the titration
+    needs, °C, or None; blank: why a blank is run, or "".
+    """
+
+    titrant: str
+    partner: str
+    partner_is_titrant: bool
+    reaction_class: str
+    steps: tuple[str, ...]
+    titrant_species: str
+    partner_species: str
+    partner_units: int = 1
+    titrant_units: int = 1
+    conditions: str = ""
+    rules: tuple[str, ...] = ()
+    equivalence: str = ""
+    hot_min_c: float | None = None
+    blank: str = ""
+
+    @property
+    def ratio(self) -> float:
+        """Moles of titrant (formula units) per mole of partner (formula units), from the equations."""
+        amount = float(self.partner_units)
+        current = self.partner_species
+        for i, step in enumerate(self.steps):
+            left, right = parse_equation(step)
+            a = _coefficient(left, current)
+            if a is None:
+                raise ValueError(f"{self.titrant}/{self.partner}: {current!r} is not a reactant of {step!r}")
+            if i == len(self.steps) - 1:
+                t = _coefficient(left, self.titrant_species)
+                if t is None:
+                    raise ValueError(f"{self.titrant}/{self.partner}: {self.titrant_species!r} is not a reactant of {step!r}")
+                return amount * t / a / self.titrant_units
+            following = {sp for _, sp in parse_equation(self.steps[i + 1])[0]}
+            carried = [(n, sp) for n, sp in right if sp in following]
+            if len(carried) != 1:
+                raise ValueError(f"{self.titrant}/{self.partner}: step {step!r} must hand one species to the next")
+            amount *= carried[0][0] / a
+            current = carried[0][1]
+        raise ValueError(f"{self.titrant}/{self.partner}: no steps")
+
+    @property
+    def overall(self) -> str:
+        """The steps joined for display ("; then ")."""
+        return "; then ".join(self.steps)
+
+
+_IODOMETRIC_BLANK = (
+    "Run a blank with the same KI, acid and water and no standard: iodate in the KI or air oxidation of "
+    "iodide frees iodine of its own; subtract its titre (common practice)"
+)
+_THIOSULFATE_STEP = "I2 + 2 S2O3^2- -> 2 I^- + S4O6^2-"
+_EDTA_ZN = "Zn^2+ + C10H14N2O8^2- -> C10H12N2ZnO8^2- + 2 H^+"
+_PERMANGANATE_HOT = (
+    "Titrate hot: oxalate reacts slowly with permanganate at room temperature; keep the flask above "
+    "60 °C to the end point (McBride's method starts at 80–90 °C; common practice)"
+)
+_EDTA_PH = (
+    "Buffer to the pH the indicator needs before titrating: pH 10 (NH3/NH4Cl) for eriochrome black T, "
+    "pH 5–6 (hexamine) for xylenol orange; the metal complex and the indicator's colour change both "
+    "depend on pH (common practice)"
+)
+
+PAIRS: tuple[Pair, ...] = (
+    Pair(
+        "KMnO4",
+        "Na2C2O4",
+        False,
+        REDOX,
+        ("2 MnO4^- + 5 C2O4^2- + 16 H^+ -> 2 Mn^2+ + 10 CO2 + 8 H2O",),
+        "MnO4^-",
+        "C2O4^2-",
+        conditions="In dilute sulfuric acid (about 1 mol/L), hot; permanganate is its own indicator",
+        rules=(_PERMANGANATE_HOT,),
+        equivalence="1 mL of 0.02 mol/L KMnO4 ≡ 6.700 mg Na2C2O4 (pharmacopoeial VS list; from memory)",
+        hot_min_c=60.0,
+    ),
+    Pair(
+        "Ce(SO4)2",
+        "Na2C2O4",
+        False,
+        REDOX,
+        ("2 Ce^4+ + C2O4^2- -> 2 Ce^3+ + 2 CO2",),
+        "Ce^4+",
+        "C2O4^2-",
+        conditions="In sulfuric/hydrochloric acid with iodine monochloride as catalyst, warm; ferroin (common practice)",
+        equivalence="1 mL of 0.1 mol/L Ce(IV) ≡ 6.700 mg Na2C2O4 (computed from the equation; from memory)",
+        hot_min_c=50.0,
+        rules=("Titrate warm (about 50 °C) unless a catalyst such as ICl is used (common practice)",),
+    ),
+    Pair(
+        "Na2S2O3",
+        "KIO3",
+        False,
+        REDOX,
+        ("IO3^- + 5 I^- + 6 H^+ -> 3 I2 + 3 H2O", _THIOSULFATE_STEP),
+        "S2O3^2-",
+        "IO3^-",
+        conditions="Iodometric: the standard with excess KI in dilute acid; the iodine freed titrated to starch",
+        rules=(_IODOMETRIC_BLANK,),
+        equivalence="1 mL of 0.1 mol/L Na2S2O3 ≡ 3.567 mg KIO3 (pharmacopoeial VS list; from memory)",
+        blank=_IODOMETRIC_BLANK,
+    ),
+    Pair(
+        "Na2S2O3",
+        "KBrO3",
+        False,
+        REDOX,
+        ("BrO3^- + 6 I^- + 6 H^+ -> Br^- + 3 I2 + 3 H2O", _THIOSULFATE_STEP),
+        "S2O3^2-",
+        "BrO3^-",
+        conditions="Iodometric: the standard with excess KI in dilute acid; the iodine freed titrated to starch",
+        rules=(_IODOMETRIC_BLANK,),
+        equivalence="1 mL of 0.1 mol/L Na2S2O3 ≡ 2.783 mg KBrO3 (Ph. Eur. 4.2.2, sodium thiosulfate; from memory)",
+        blank=_IODOMETRIC_BLANK,
+    ),
+    Pair(
+        "Na2S2O3",
+        "dichromate",
+        False,
+        REDOX,
+        ("Cr2O7^2- + 6 I^- + 14 H^+ -> 2 Cr^3+ + 3 I2 + 7 H2O", _THIOSULFATE_STEP),
+        "S2O3^2-",
+        "Cr2O7^2-",
+        conditions="Iodometric: excess KI in strong acid, 5–10 min in the dark, then thiosulfate to starch",
+        rules=(
+            _IODOMETRIC_BLANK,
+            "Let the dichromate and iodide react in the dark, stoppered, before titrating (common practice)",
+        ),
+        equivalence="1 mL of 0.1 mol/L Na2S2O3 ≡ 4.903 mg K2Cr2O7 (USP VS list; from memory)",
+        blank=_IODOMETRIC_BLANK,
+    ),
+    Pair(
+        "Na2S2O3",
+        "biiodate",
+        False,
+        REDOX,
+        ("IO3^- + 5 I^- + 6 H^+ -> 3 I2 + 3 H2O", _THIOSULFATE_STEP),
+        "S2O3^2-",
+        "IO3^-",
+        partner_units=2,
+        conditions="Iodometric: the standard with excess KI in dilute acid; the iodine freed titrated to starch",
+        rules=(_IODOMETRIC_BLANK,),
+        equivalence="1 mL of 0.1 mol/L Na2S2O3 ≡ 3.249 mg KH(IO3)2 (computed from the equation)",
+        blank=_IODOMETRIC_BLANK,
+    ),
+    Pair(
+        "FAS",
+        "dichromate",
+        False,
+        REDOX,
+        ("Cr2O7^2- + 6 Fe^2+ + 14 H^+ -> 2 Cr^3+ + 6 Fe^3+ + 7 H2O",),
+        "Fe^2+",
+        "Cr2O7^2-",
+        conditions="In H2SO4/H3PO4; sodium diphenylamine sulfonate, green to violet (common practice)",
+        equivalence="1 mL of 0.1 mol/L Fe(II) ≡ 4.903 mg K2Cr2O7 (computed from the equation)",
+    ),
+    Pair(
+        "AgNO3",
+        "NaCl",
+        False,
+        PRECIPITATION,
+        ("Ag^+ + Cl^- -> AgCl",),
+        "Ag^+",
+        "Cl^-",
+        conditions="Neutral solution, potassium chromate (Mohr) or dichlorofluorescein, or potentiometric",
+        rules=(
+            "Titrate in subdued light and keep the solution in amber glass: silver chloride and nitrate "
+            "darken in light (common practice)",
+        ),
+        equivalence="1 mL of 0.1 mol/L AgNO3 ≡ 5.844 mg NaCl (pharmacopoeial VS list; from memory)",
+    ),
+    Pair(
+        "AgNO3",
+        "KCl",
+        False,
+        PRECIPITATION,
+        ("Ag^+ + Cl^- -> AgCl",),
+        "Ag^+",
+        "Cl^-",
+        conditions="Neutral solution, potassium chromate (Mohr), or potentiometric",
+        rules=("Titrate in subdued light and keep the solution in amber glass (common practice)",),
+        equivalence="1 mL of 0.1 mol/L AgNO3 ≡ 7.455 mg KCl (computed from the equation)",
+    ),
+    Pair(
+        "EDTA",
+        "Zn",
+        False,
+        COMPLEXOMETRIC,
+        ("Zn + 2 H^+ -> Zn^2+ + H2", _EDTA_ZN),
+        "C10H14N2O8^2-",
+        "Zn",
+        conditions="Zinc dissolved in dilute HCl, neutralized, buffered; xylenol orange at pH 5–6 or eriochrome black T at pH 10",
+        rules=(_EDTA_PH,),
+        equivalence="1 mL of 0.05 mol/L disodium edetate ≡ 3.269 mg Zn (Ph. Eur. 4.2.2, sodium edetate; from memory)",
+    ),
+    Pair(
+        "EDTA",
+        "CaCO3",
+        False,
+        COMPLEXOMETRIC,
+        ("CaCO3 + 2 H^+ -> Ca^2+ + CO2 + H2O", "Ca^2+ + C10H14N2O8^2- -> C10H12CaN2O8^2- + 2 H^+"),
+        "C10H14N2O8^2-",
+        "CaCO3",
+        conditions="Dissolved in a little HCl, CO2 boiled off, buffered to pH 10 (eriochrome black T with Mg–EDTA) or pH 12–13",
+        rules=(_EDTA_PH,),
+        equivalence="1 mL of 0.05 mol/L disodium edetate ≡ 5.004 mg CaCO3 (USP VS list, edetate disodium; from memory)",
+    ),
+    Pair(
+        "HClO4-AcOH",
+        "KHP",
+        False,
+        ACID_BASE,
+        ("C8H5O4^- + H^+ -> C8H6O4",),
+        "H^+",
+        "C8H5O4^-",
+        conditions="KHP dissolved in anhydrous acetic acid (warm gently, cool protected from air); "
+        "crystal violet or potentiometric",
+        rules=(
+            "In anhydrous acetic acid the hydrogen phthalate ion acts as a base (BP 2012 Appendix I B, Perchloric Acid VS)",
+            "Record the temperature of the standardization: the medium expands 0.0011 per °C (BP 2012 Appendix I B)",
+        ),
+        equivalence="1 mL of 0.1 mol/L HClO4 ≡ 20.42 mg C8H5KO4 (BP 2012 Appendix I B, Perchloric Acid VS)",
+        blank="Titrate a blank of the acetic acid used and subtract it (common practice)",
+    ),
+    # Secondary standardizations: titrant against a certified titrant.
+    Pair("Na2S2O3", "I2", True, REDOX, (_THIOSULFATE_STEP,), "S2O3^2-", "I2", conditions="Starch near the end point"),
+    Pair(
+        "NH4SCN",
+        "AgNO3",
+        True,
+        PRECIPITATION,
+        ("Ag^+ + SCN^- -> AgSCN",),
+        "SCN^-",
+        "Ag^+",
+        conditions="Iron(III) alum in nitric acid (Volhard)",
+    ),
+    Pair(
+        "ZnSO4",
+        "EDTA",
+        True,
+        COMPLEXOMETRIC,
+        (_EDTA_ZN,),
+        "Zn^2+",
+        "C10H14N2O8^2-",
+        conditions="pH 10 buffer, eriochrome black T",
+        rules=(_EDTA_PH,),
+    ),
+    Pair(
+        "FAS",
+        "Ce(SO4)2",
+        True,
+        REDOX,
+        ("Ce^4+ + Fe^2+ -> Ce^3+ + Fe^3+",),
+        "Fe^2+",
+        "Ce^4+",
+        conditions="In dilute H2SO4; ferroin",
+    ),
+    Pair(
+        "FAS",
+        "KMnO4",
+        True,
+        REDOX,
+        ("MnO4^- + 5 Fe^2+ + 8 H^+ -> Mn^2+ + 5 Fe^3+ + 4 H2O",),
+        "Fe^2+",
+        "MnO4^-",
+        conditions="In dilute H2SO4 (with H3PO4); permanganate is its own indicator",
+    ),
+    Pair(
+        "FAS",
+        "K2Cr2O7",
+        True,
+        REDOX,
+        ("Cr2O7^2- + 6 Fe^2+ + 14 H^+ -> 2 Cr^3+ + 6 Fe^3+ + 7 H2O",),
+        "Fe^2+",
+        "Cr2O7^2-",
+        conditions="In H2SO4/H3PO4; sodium diphenylamine sulfonate",
+    ),
+)
+
+# Pairs that look possible but do not react as a titration, and why.
+REFUSED: dict[frozenset[str], str] = {
+    frozenset({"KMnO4", "Na2S2O3"}): "permanganate oxidizes thiosulfate partly to sulfate and partly to "
+    "tetrathionate: there is no fixed ratio to titrate by (thiosulfate is standardized iodometrically)",
+    frozenset({"Ce(SO4)2", "Na2S2O3"}): "cerium(IV) oxidizes thiosulfate to a mixture of products: no fixed "
+    "ratio (thiosulfate is standardized iodometrically)",
+    frozenset({"K2Cr2O7", "Na2S2O3"}): "dichromate does not oxidize thiosulfate cleanly; it is titrated "
+    "through the iodine it frees from iodide (weigh K2Cr2O7 as the primary standard instead)",
+}
+
+
+def _check_pairs() -> None:
+    titrant_keys = {t.key for t in TITRANTS}
+    standard_keys = {s.key for s in STANDARDS}
+    for pair in PAIRS:
+        if pair.titrant not in titrant_keys or pair.partner not in (titrant_keys if pair.partner_is_titrant else standard_keys):
+            raise ValueError(f"pair {pair.titrant}/{pair.partner} names an entry the catalogue lacks")
+        for step in pair.steps:
+            why = imbalance(step)
+            if why:
+                raise ValueError(f"pair {pair.titrant}/{pair.partner}: {why}")
+        if not pair.ratio > 0:
+            raise ValueError(f"pair {pair.titrant}/{pair.partner}: no positive ratio")
+
+
+_check_pairs()
+
+
+def pair_for(titrant: Titrant, partner: Titrant | PrimaryStandard) -> tuple[Pair, bool] | None:
+    """The recorded reaction of a titrant with a partner, and whether it is recorded the other way round.
+
+    Returns (Pair, inverted) or None when no reaction is recorded (acid-base pairs follow their rule).
+    """
+    is_titrant = isinstance(partner, Titrant)
+    for pair in PAIRS:
+        if pair.titrant == titrant.key and pair.partner == partner.key and pair.partner_is_titrant == is_titrant:
+            return pair, False
+        if is_titrant and pair.partner_is_titrant and pair.titrant == partner.key and pair.partner == titrant.key:
+            return pair, True
+    return None
+
+
+def pairs_of(titrant: Titrant) -> tuple[Pair, ...]:
+    """Recorded reactions in which titrant is standardized or serves as reference, catalogue order."""
+    return tuple(p for p in PAIRS if p.titrant == titrant.key or (p.partner_is_titrant and p.partner == titrant.key))
+
+
+def _aqueous_acid_base(titrant: Titrant, partner: Titrant | PrimaryStandard) -> bool:
+    if titrant.reaction_class != ACID_BASE or titrant.solvent != "water" or partner.reaction_class != ACID_BASE:
+        return False
+    return not isinstance(partner, Titrant) or partner.solvent == "water"
+
+
+def _partners_text(titrant: Titrant) -> str:
+    names = [s.key for s in STANDARDS if reacts(titrant, s)]
+    refs = [t.key for t in TITRANTS if t.key != titrant.key and reacts(titrant, t)]
+    parts = []
+    if names:
+        parts.append("primary standards " + ", ".join(names))
+    if refs:
+        parts.append("reference titrants " + ", ".join(refs))
+    return "; ".join(parts) or "no catalogue partner"
 
 
 # ---------------------------------------------------------------------------------------------------------
 # Stoichiometry and masses
 
 
+def _factor(titrant: Titrant, partner: Titrant | PrimaryStandard) -> float | str:
+    """ν for a pair that reacts, else the reason it does not (a clause)."""
+    found = pair_for(titrant, partner)
+    if found is not None:
+        pair, inverted = found
+        return 1.0 / pair.ratio if inverted else pair.ratio
+    what = "reference titrant" if isinstance(partner, Titrant) else "primary standard"
+    refused = REFUSED.get(frozenset({titrant.key, partner.key}))
+    if refused is not None:
+        return refused
+    if _aqueous_acid_base(titrant, partner):
+        if partner.role == titrant.role:
+            return "same role"
+        return partner.equivalents / titrant.equivalents
+    if titrant.solvent != "water" or (isinstance(partner, Titrant) and partner.solvent != "water"):
+        return f"{titrant.key} is titrated in {titrant.solvent}, against partners of its own"
+    if partner.reaction_class != titrant.reaction_class:
+        return (
+            f"{titrant.key} is {_article(titrant.reaction_class)} titrant ({titrant.role}) and {partner.key} "
+            f"{_article(partner.reaction_class)} {what} ({partner.role})"
+        )
+    if partner.role == titrant.role:
+        return f"both are {titrant.role}s"
+    return "no titration reaction between them is recorded"
+
+
 def stoichiometric_factor(titrant: Titrant, partner: Titrant | PrimaryStandard) -> float:
-    """Moles of titrant per mole of partner, ν = partner.equivalents / titrant.equivalents.
+    """Moles of titrant per mole of partner, ν, from the pair's balanced reaction.
 
     titrant: the solution being standardized. partner: the primary standard, or the reference titrant
     of a secondary standardization. Returns ν (dimensionless) such that
-    c = 1000·m·P·ν/(M·V) (primary) and c_x = c_ref·V_ref·ν/V_x (secondary).
-    Raises IncompatiblePair when both are acids or both bases.
+    c = 1000·m·P·ν/(M·V) (primary) and c_x = c_ref·V_ref·ν/V_x (secondary). Recorded reactions (PAIRS)
+    give ν from their equations; aqueous acid-base pairs give partner.equivalents / titrant.equivalents.
+    Raises IncompatiblePair for a pair that does not react as a titration.
     """
-    if partner.role == titrant.role:
+    nu = _factor(titrant, partner)
+    if isinstance(nu, float):
+        return nu
+    what = "reference titrant" if isinstance(partner, Titrant) else "primary standard"
+    if nu == "same role":
         opposite = BASE if titrant.role == ACID else ACID
         if isinstance(partner, Titrant):
-            what = "reference titrant"
-            suggestions = ", ".join(t.key for t in TITRANTS if t.role == opposite)
+            suggestions = ", ".join(t.key for t in TITRANTS if t.role == opposite and _aqueous_acid_base(titrant, t))
         else:
-            what = "primary standard"
-            suggestions = ", ".join(s.key for s in STANDARDS if s.role == opposite)
+            suggestions = ", ".join(s.key for s in STANDARDS if s.role == opposite and _aqueous_acid_base(titrant, s))
         raise IncompatiblePair(
             f"{titrant.key} is {_a(titrant.role)} titrant and {partner.name} ({partner.key}) is "
             f"{_a(partner.role)} {what}: {_a(titrant.role)} titrant is standardized against "
             f"{'a basic' if opposite == BASE else 'an acidic'} {what} (e.g. {suggestions})"
         )
-    return partner.equivalents / titrant.equivalents
+    raise IncompatiblePair(
+        f"{titrant.name} ({titrant.key}) cannot be standardized against {partner.name} ({partner.key}): "
+        f"{nu}. {titrant.key} pairs with {_partners_text(titrant)}"
+    )
+
+
+def _article(word: str) -> str:
+    return f"an {word}" if word[:1] in "aeiou" else f"a {word}"
 
 
 def _a(role: str) -> str:
@@ -826,3 +1703,128 @@ def missing_drying_warning(standard: PrimaryStandard | str) -> str | None:
     if not std.drying.drying_required:
         return None
     return f"no drying is recorded for this lot of {std.name}. {std.drying.text}"
+
+
+# ---------------------------------------------------------------------------------------------------------
+# The catalogue as data (GET /api/v1/catalogue)
+
+
+def _titrant_entry(t: Titrant) -> dict[str, object]:
+    m = t.expansion
+    return {
+        "key": t.key,
+        "name": t.name,
+        "formula": t.formula,
+        "aliases": list(t.aliases),
+        "class": t.reaction_class,
+        "role": t.role,
+        "solvent": t.solvent,
+        "species": t.species or None,
+        "electrons": t.electrons or None,
+        "acid_base_equivalents": t.equivalents or None,
+        "molar_mass_g_mol": round(t.molar_mass.value, 5),
+        "weighed_as": t.weighed_as or None,
+        "weighed_as_molar_mass_g_mol": round(molar_mass(t.weighed_as).value, 5) if t.weighed_as else None,
+        "expansion_model": {
+            "name": m.key,
+            "kind": "fixed coefficient" if m.kind == "linear" else "density of water (and solute)",
+            "coefficient_per_c": m.alpha_per_k if m.kind == "linear" else None,
+            "source": m.source,
+        },
+        "endpoint": t.endpoint or None,
+        "storage": t.storage or None,
+        "standardized_against_titrant_only": t.secondary_only,
+        "back_titrant": t.back_titrant,
+        "max_molarity_mol_l": t.max_molarity if math.isfinite(t.max_molarity) else None,
+    }
+
+
+def _standard_entry(s: PrimaryStandard) -> dict[str, object]:
+    return {
+        "key": s.key,
+        "name": s.name,
+        "formula": s.formula,
+        "aliases": list(s.aliases),
+        "class": s.reaction_class,
+        "role": s.role,
+        "molar_mass_g_mol": round(s.molar_mass.value, 5),
+        "u_molar_mass_g_mol": float(f"{s.molar_mass.u:.2g}"),
+        "density_g_cm3": s.density_g_cm3,
+        "density_source": s.density_source,
+        "drying": {
+            "oven_allowed": s.drying.oven_allowed,
+            "min_c": s.drying.min_c,
+            "max_c": s.drying.max_c,
+            "rule": s.drying.text,
+        },
+        "endpoint": s.endpoint,
+    }
+
+
+def catalogue() -> dict[str, list[dict[str, object]]]:
+    """The whole catalogue as plain data: titrants, standards and every pair that titrates.
+
+    Returns {"titrants": [...], "standards": [...], "pairs": [...]}; each pair names titrant and partner
+    by key, its class, the equations, the mole ratio (mol titrant per mol partner) and its rules.
+    Acid-base pairs without a recorded equation give their ratio from the proton counts.
+    """
+    pairs: list[dict[str, object]] = []
+    partners: tuple[Titrant | PrimaryStandard, ...] = (*STANDARDS, *TITRANTS)
+    for t in TITRANTS:
+        for partner in partners:
+            if partner is t or not reacts(t, partner):
+                continue
+            found = pair_for(t, partner)
+            pair = found[0] if found else None
+            pairs.append(
+                {
+                    "titrant": t.key,
+                    "partner": partner.key,
+                    "partner_kind": "titrant" if isinstance(partner, Titrant) else "standard",
+                    "class": t.reaction_class,
+                    "equations": list(pair.steps) if pair else [],
+                    "mol_titrant_per_mol_partner": stoichiometric_factor(t, partner),
+                    "ratio_from": "balanced equations" if pair else "protons given and taken",
+                    "conditions": (pair.conditions or None) if pair else None,
+                    "rules": list(pair.rules) if pair else [],
+                    "blank": (pair.blank or None) if pair else None,
+                    "flask_temperature_min_c": pair.hot_min_c if pair else None,
+                    "published_equivalence": (pair.equivalence or None) if pair else None,
+                }
+            )
+    return {
+        "titrants": [_titrant_entry(t) for t in TITRANTS],
+        "standards": [_standard_entry(s) for s in STANDARDS],
+        "pairs": pairs,
+    }
+
+
+_SUPERSCRIPT = str.maketrans("0123456789+-", "⁰¹²³⁴⁵⁶⁷⁸⁹⁺⁻")
+
+
+def equation_text(equation: str) -> str:
+    """An equation as people read it: charges raised ("MnO4^-" -> "MnO4⁻") and "->" as an arrow."""
+    return re.sub(r"\^([0-9]*[+-])", lambda m: m.group(1).translate(_SUPERSCRIPT), equation).replace("->", "→")
+
+
+def pair_notes(titrant: Titrant) -> list[dict[str, object]]:
+    """What a person standardizing titrant should know of each recorded pair, in words, for a page.
+
+    Returns [{"partner": name (key), "equations": [text], "lines": [conditions, rules, blank, equivalence]}].
+    """
+    out: list[dict[str, object]] = []
+    for p in pairs_of(titrant):
+        other_key = p.partner if p.titrant == titrant.key else p.titrant
+        other: Titrant | PrimaryStandard = (
+            _lookup(TITRANTS, other_key, "titrant") if p.partner_is_titrant else _lookup(STANDARDS, other_key, "primary standard")
+        )
+        lines = [p.conditions, *p.rules, p.blank, p.equivalence]
+        out.append(
+            {
+                "partner": f"{other.name} ({other.key})",
+                "kind": "reference titrant" if p.partner_is_titrant else "primary standard",
+                "equations": [equation_text(e) for e in p.steps],
+                "lines": [line for line in dict.fromkeys(lines) if line],
+            }
+        )
+    return out

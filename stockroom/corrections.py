@@ -345,6 +345,18 @@ AQUEOUS_NAOH = ExpansionModel(
     "(advancedthermo.com NaOH(aq) density table), scaled with molarity",
 )
 
+# Perchloric acid in anhydrous (glacial) acetic acid, the usual titrant of non-aqueous acidimetry. The
+# British Pharmacopoeia's monograph of the volumetric solution (BP 2012, Appendix I B, "Perchloric Acid VS")
+# corrects a volume used at t2 after standardization at t1 by VC = V[1 + 0.0011(t1 − t2)]: the medium
+# expands by 0.0011 per °C, about five times water's 2.1e-4. Taken as a constant cubic expansion
+# coefficient about 20 °C; to first order the BP's correction and this model's 20 °C referral agree.
+ACETIC_ACID_HCLO4 = ExpansionModel(
+    "acetic acid medium",
+    kind="linear",
+    alpha_per_k=0.0011,
+    source="BP 2012 Appendix I B, Perchloric Acid VS: VC = V[1 + 0.0011(t1 − t2)]",
+)
+
 
 def solution_density(model: ExpansionModel, c_mol_l: float, t_c: float) -> float:
     """Density of a titrant of strength c_mol_l at t_c by its model, kg/m3 (a relative scale for "linear").

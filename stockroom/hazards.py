@@ -113,7 +113,7 @@ PICTOGRAMS: dict[str, str] = {
     "GHS08": "health hazard",
     "GHS09": "environment",
 }
-DRAWN: tuple[str, ...] = ("GHS02", "GHS03", "GHS05", "GHS07")
+DRAWN: tuple[str, ...] = ("GHS02", "GHS03", "GHS05", "GHS07", "GHS08", "GHS09")
 
 # The pictogram and signal word each hazard statement carries (GHS Annex 1 allocation, from memory —
 # verify). None: the statement carries no pictogram or no signal word of its own.
@@ -457,7 +457,7 @@ def _row(reagent: str, lo: float, hi: float | None, h: tuple[str, ...], p: tuple
 # Band limits converted from the % w/w limits with solution densities near 1.0-1.1 g/mL (from memory),
 # rounded down, so a solution at a limit always gets the stronger band.
 # H290 (corrosive to metals) is suppliers' self-classification of dilute acids and bases, not Annex VI.
-DEFAULT_CLASSIFICATIONS: tuple[Classification, ...] = (
+ACID_BASE_CLASSIFICATIONS: tuple[Classification, ...] = (
     _row("NaOH", 0.0, 0.125, ("H290",), _H290_P, "Below 0.5 % w/w (about 0.125 mol/L): many suppliers give H290 only."),
     _row(
         "NaOH",
@@ -542,3 +542,99 @@ DEFAULT_CLASSIFICATIONS: tuple[Classification, ...] = (
         "flame over circle) and toxic by inhalation; enter that band from its SDS before labelling it.",
     ),
 )
+
+# Titrants beyond acids and bases, at their usual working strengths. Mixture classification by the CLP
+# generic concentration limits (from memory): aquatic Chronic 1 ingredients (M = 1) give Chronic 3
+# (H412) from 0.25 % w/w; STOT RE 1/2 ingredients give H373 from 1 %; carcinogens, mutagens (1B) from
+# 0.1 % and reproductive toxicants (1B) from 0.3 %. A dilute titrant is no oxidizing liquid: H271/H272
+# belong to the solid reagent's label (the preparation plan's cautions cover handling it).
+_NOT_CLASSIFIED = "Not classified at this strength by the CLP generic limits (from memory)."
+_ENV_P = ("P273", "P501")
+OTHER_CLASSIFICATIONS: tuple[Classification, ...] = (
+    _row("KMnO4", 0.0, 0.016, (), (), _NOT_CLASSIFIED + " Below 0.25 % w/w (about 0.016 mol/L)."),
+    _row(
+        "KMnO4",
+        0.016,
+        0.15,
+        ("H412",),
+        _ENV_P,
+        "KMnO4 is Aquatic Chronic 1 (CLP Annex VI): Chronic 3 from 0.25 % w/w (about 0.016 mol/L) to 2.5 % "
+        "(about 0.16 mol/L); the solid is also an oxidizer (H272).",
+    ),
+    _row("Na2S2O3", 0.0, 1.0, (), (), _NOT_CLASSIFIED),
+    _row("I2", 0.0, 0.039, (), (), _NOT_CLASSIFIED + " Below 1 % w/w iodine (about 0.039 mol/L)."),
+    _row(
+        "I2",
+        0.039,
+        0.3,
+        ("H373",),
+        ("P260", "P501"),
+        "Iodine is STOT RE 1 (thyroid): H373 from 1 % w/w (about 0.039 mol/L); iodine vapour irritates.",
+    ),
+    _row("Ce(SO4)2", 0.0, 0.2, ("H290", "H315", "H319"), _IRRITANT_P, "From the sulfuric acid medium (about 0.5 mol/L H2SO4)."),
+    _row("FAS", 0.0, 0.5, ("H290",), _H290_P, "From the dilute sulfuric acid medium; the iron salt itself is not classified."),
+    _row(
+        "K2Cr2O7",
+        0.0,
+        0.1,
+        ("H340", "H350", "H360", "H412"),
+        ("P201", "P280", "P273", "P501"),
+        "Potassium dichromate is Muta. 1B, Carc. 1B, Repr. 1B (CLP Annex VI): H340/H350 from 0.1 % w/w and "
+        "H360 from 0.3 %, so even 0.0167 mol/L (0.49 %) carries them; also a skin and respiratory sensitizer "
+        "at higher strengths. Dispose of as chromium(VI) waste.",
+    ),
+    _row(
+        "AgNO3",
+        0.0,
+        0.059,
+        ("H410",),
+        _ENV_P,
+        "Silver nitrate is Aquatic Acute 1 and Chronic 1 with high M-factors: even dilute solutions are H410.",
+    ),
+    _row(
+        "AgNO3",
+        0.059,
+        0.3,
+        ("H315", "H319", "H410"),
+        ("P264", "P273", "P280", "P302+P352", "P305+P351+P338", "P501"),
+        "Silver nitrate is also Skin Corr. 1B: Skin Irrit. 2 and Eye Irrit. 2 from 1 % w/w (about 0.059 mol/L); "
+        "Aquatic Acute 1 and Chronic 1 with high M-factors (H410).",
+    ),
+    _row("NH4SCN", 0.0, 0.5, (), (), _NOT_CLASSIFIED),
+    _row("EDTA", 0.0, 0.027, (), (), _NOT_CLASSIFIED + " Below 1 % w/w (about 0.027 mol/L)."),
+    _row(
+        "EDTA",
+        0.027,
+        0.3,
+        ("H373",),
+        ("P260", "P501"),
+        "Disodium edetate is STOT RE 2 (CLP Annex VI): H373 from 1 % w/w (about 0.027 mol/L).",
+    ),
+    _row("ZnSO4", 0.0, 0.0155, (), (), _NOT_CLASSIFIED + " Below 0.25 % w/w (about 0.016 mol/L)."),
+    _row(
+        "ZnSO4",
+        0.0155,
+        0.062,
+        ("H412",),
+        _ENV_P,
+        "Zinc sulfate is Aquatic Chronic 1: Chronic 3 from 0.25 % w/w; eye irritation (H319) from 1 % (about 0.062 mol/L).",
+    ),
+    _row(
+        "ZnSO4",
+        0.062,
+        0.15,
+        ("H319", "H412"),
+        ("P264", "P273", "P280", "P305+P351+P338", "P337+P313", "P501"),
+        "Zinc sulfate is Eye Dam. 1: Eye Irrit. 2 from 1 % w/w (about 0.062 mol/L); Aquatic Chronic 3.",
+    ),
+    _row(
+        "HClO4-AcOH",
+        0.0,
+        0.25,
+        ("H226", "H314"),
+        ("P210", "P280", "P303+P361+P353", "P305+P351+P338", "P310"),
+        "Glacial acetic acid is Flam. Liq. 3 (flash point about 39 °C) and Skin Corr. 1A from 90 %; perchloric "
+        "acid at 0.1 mol/L adds little, but never let the solution evaporate to dryness.",
+    ),
+)
+DEFAULT_CLASSIFICATIONS: tuple[Classification, ...] = ACID_BASE_CLASSIFICATIONS + OTHER_CLASSIFICATIONS

@@ -506,6 +506,20 @@ def lab_day(
 # Cautions for a sheet posted at the bench
 
 
+# Titrants beyond acids and bases at the bench (common practice; each label carries its own statements).
+BENCH_CAUTIONS: dict[str, str] = {
+    "KMnO4": "Potassium permanganate stains skin and clothes brown and is titrated hot: handle the hot flask with "
+    "tongs or a cloth, and collect waste as the instructor says (common practice).",
+    "K2Cr2O7": "Potassium dichromate is a chromium(VI) solution that may cause cancer: gloves on, no splashes, every "
+    "drop of waste into the chromium waste bottle (common practice).",
+    "AgNO3": "Silver nitrate stains skin black and harms the eyes; its waste goes into the silver residue bottle, "
+    "never down the drain (common practice).",
+    "I2": "Iodine solution stains skin and clothes; wipe spills with a little thiosulfate solution (common practice).",
+    "HClO4-AcOH": "Perchloric acid in acetic acid is flammable and corrosive: no flames or hot plates near it, burettes "
+    "filled in the fume hood, and any splash rinsed off at once with plenty of water (common practice).",
+}
+
+
 def cautions(entries: Sequence[LabDayEntry]) -> tuple[str, ...]:
     """The usual cautions for handling the titrants listed (common practice), deferring to the local rules."""
     lines = [
@@ -527,6 +541,8 @@ def cautions(entries: Sequence[LabDayEntry]) -> tuple[str, ...]:
             ", ".join(strong) + ": at this strength the solution can burn skin and damage eyes; fill "
             "burettes below eye level with a funnel (common practice; check the bottle's label)."
         )
+    on_bench = {e.batch.reagent for e in entries}
+    lines.extend(line for key, line in BENCH_CAUTIONS.items() if key in on_bench)
     lines.append(
         "These are the usual cautions only: the label, the safety data sheet, local regulations and the "
         "institution's chemical hygiene plan take precedence."

@@ -46,6 +46,20 @@ DEFAULT_POLICIES: tuple[ReagentPolicy, ...] = (
     ReagentPolicy("HClO4", (0.1,), shelf_life_days=365, recheck_interval_days=90),
     ReagentPolicy("NaOH", (0.1, 0.5, 1.0), shelf_life_days=90, recheck_interval_days=14),
     ReagentPolicy("KOH", (0.1, 0.5, 1.0), shelf_life_days=90, recheck_interval_days=14),
+    # Beyond acids and bases (common practice, from memory): permanganate and thiosulfate decompose in
+    # light and are re-checked every two weeks; iron(II) is oxidized by air and re-checked weekly; iodine
+    # is volatile; dichromate, cerium(IV), edetate and zinc keep for a year.
+    ReagentPolicy("KMnO4", (0.02,), shelf_life_days=180, recheck_interval_days=14),
+    ReagentPolicy("Na2S2O3", (0.1,), shelf_life_days=90, recheck_interval_days=14),
+    ReagentPolicy("I2", (0.05,), shelf_life_days=90, recheck_interval_days=14),
+    ReagentPolicy("Ce(SO4)2", (0.1,), shelf_life_days=365, recheck_interval_days=90),
+    ReagentPolicy("FAS", (0.1,), shelf_life_days=30, recheck_interval_days=7),
+    ReagentPolicy("K2Cr2O7", (0.0167, 0.02), shelf_life_days=365, recheck_interval_days=180),
+    ReagentPolicy("AgNO3", (0.1,), shelf_life_days=180, recheck_interval_days=60),
+    ReagentPolicy("NH4SCN", (0.1,), shelf_life_days=180, recheck_interval_days=60),
+    ReagentPolicy("EDTA", (0.05, 0.1), shelf_life_days=365, recheck_interval_days=90),
+    ReagentPolicy("ZnSO4", (0.05, 0.1), shelf_life_days=365, recheck_interval_days=90),
+    ReagentPolicy("HClO4-AcOH", (0.1,), shelf_life_days=180, recheck_interval_days=30),
 )
 
 

@@ -54,7 +54,7 @@ class Concentrate:
         return concentrate_molarity(self.reagent, self.assay_w_w, self.density_g_ml)
 
 
-CONCENTRATES: tuple[Concentrate, ...] = (
+ACID_BASE_CONCENTRATES: tuple[Concentrate, ...] = (
     Concentrate("HCl-37", "HCl", "hydrochloric acid 37 %", LIQUID, 0.37, (0.36, 0.38), 1.19, (1.18, 1.19)),
     Concentrate("HCl-32", "HCl", "hydrochloric acid 32 %", LIQUID, 0.32, (0.31, 0.33), 1.16, (1.15, 1.17)),
     Concentrate("H2SO4-96", "H2SO4", "sulfuric acid 95–98 %", LIQUID, 0.96, (0.95, 0.98), 1.84, (1.83, 1.84)),
@@ -67,6 +67,46 @@ CONCENTRATES: tuple[Concentrate, ...] = (
     # KOH pellets carry water and some K2CO3; about 85 % KOH is the usual reagent-grade minimum.
     Concentrate("KOH-pellets", "KOH", "potassium hydroxide pellets", SOLID, 0.85, (0.85, 0.90), None, None),
 )
+
+# Titrants beyond acids and bases are weighed as solids; a solid's assay is of the form weighed
+# (Titrant.weighed_as: the pentahydrate of thiosulfate, the dihydrate of edetate...). Perchloric acid in
+# acetic acid is made from the 70 % aqueous acid diluted in anhydrous acetic acid.
+OTHER_CONCENTRATES: tuple[Concentrate, ...] = (
+    Concentrate("KMnO4-solid", "KMnO4", "potassium permanganate crystals", SOLID, 0.99, (0.99, 1.0), None, None),
+    Concentrate("Na2S2O3-5H2O", "Na2S2O3", "sodium thiosulfate pentahydrate", SOLID, 0.995, (0.99, 1.0), None, None),
+    Concentrate("I2-solid", "I2", "iodine, resublimed", SOLID, 0.998, (0.995, 1.0), None, None),
+    Concentrate("Ce(SO4)2-4H2O", "Ce(SO4)2", "cerium(IV) sulfate tetrahydrate", SOLID, 0.98, (0.95, 0.99), None, None),
+    Concentrate("FAS-6H2O", "FAS", "ammonium iron(II) sulfate hexahydrate", SOLID, 0.99, (0.985, 1.0), None, None),
+    Concentrate("K2Cr2O7-solid", "K2Cr2O7", "potassium dichromate", SOLID, 0.999, (0.998, 1.0), None, None),
+    Concentrate("AgNO3-solid", "AgNO3", "silver nitrate", SOLID, 0.998, (0.995, 1.0), None, None),
+    Concentrate("NH4SCN-solid", "NH4SCN", "ammonium thiocyanate", SOLID, 0.98, (0.97, 0.99), None, None),
+    Concentrate("EDTA-2H2O", "EDTA", "disodium edetate dihydrate", SOLID, 0.99, (0.99, 1.0), None, None),
+    Concentrate("ZnSO4-7H2O", "ZnSO4", "zinc sulfate heptahydrate", SOLID, 0.99, (0.99, 1.0), None, None),
+    Concentrate(
+        "HClO4-70-AcOH",
+        "HClO4-AcOH",
+        "perchloric acid 70 % (for the acetic acid medium)",
+        LIQUID,
+        0.70,
+        (0.69, 0.72),
+        1.67,
+        (1.66, 1.68),
+    ),
+)
+CONCENTRATES: tuple[Concentrate, ...] = ACID_BASE_CONCENTRATES + OTHER_CONCENTRATES
+
+
+def solid_allowed(reagent: str | Titrant) -> bool:
+    """Whether a titrant may be made by weighing a solid (bases, and every titrant beyond acids and bases)."""
+    t = _titrant(reagent, [])
+    return t.role == BASE or (t.reaction_class != chemistry.ACID_BASE)
+
+
+def weighed_molar_mass(t: Titrant, form: str) -> float:
+    """Molar mass of what is weighed or measured for titrant t in a form, g/mol (the hydrate for solids)."""
+    if form == SOLID and t.weighed_as:
+        return chemistry.molar_mass(t.weighed_as).value
+    return t.molar_mass.value
 
 
 def concentrate(key: str) -> Concentrate:
@@ -106,6 +146,9 @@ ACID_CONCENTRATE = "acid concentrate"
 OXIDIZING_ACID = "oxidizing acid"
 BASE_PELLETS = "base pellets"
 BASE_CONCENTRATE = "base concentrate"
+OXIDIZING_SOLID = "oxidizing solid"
+SALT_SOLID = "salt"
+ACETIC_PERCHLORIC = "perchloric acid in acetic acid"
 OXIDIZING_ACIDS = ("HNO3", "HClO4")
 
 _ACID_TO_WATER = (
@@ -156,7 +199,40 @@ _BASE_MEASURE = (
     "weighing, behind a splash screen or in a fume hood, and wipe drips at once (common practice)."
 )
 
+_SOLID_WEIGH = (
+    "Weigh the solid on a weighing boat or paper with a spatula, never by hand, without raising dust; close "
+    "the stock bottle at once and wipe up spilt crystals (common practice)."
+)
+_SOLID_WEAR = (
+    "Wear safety glasses or goggles, nitrile gloves and a lab coat (common practice; the safety data sheet names the glove)."
+)
+_OXIDIZING_SOLID = (
+    "It is an oxidizer: keep the solid away from organic matter, reducing agents, paper and wood; do not "
+    "return spilt or surplus solid to the stock bottle (common practice)."
+)
+_AQUATIC = (
+    "Toxic to aquatic life: collect the solution's waste and rinsings for disposal as the institution's "
+    "waste rules say; do not pour them down the drain (common practice)."
+)
+_ACETIC_FLAMMABLE = (
+    "Glacial acetic acid is flammable (flash point about 39 °C) and corrosive, with a choking vapour: work in the "
+    "fume hood, away from flames and hot plates, with goggles, a face shield and gloves the safety data sheet "
+    "names (common practice; from memory)."
+)
+_ACETIC_PERCHLORIC = (
+    "Add the 70 % perchloric acid to most of the acetic acid first, and only then the acetic anhydride, slowly, "
+    "with cooling: perchloric acid must never meet acetic anhydride undiluted (the mixture can form explosive "
+    "acetyl perchlorate), and the anhydride reacts with the acid's water with heat (common practice)."
+)
+_ACETIC_ANHYDRIDE = (
+    "Acetic anhydride is corrosive, flammable and reacts violently with water: measure it in the hood with a "
+    "dry cylinder (common practice)."
+)
+
 _KIND_CAUTIONS: dict[str, tuple[str, ...]] = {
+    OXIDIZING_SOLID: (_SOLID_WEIGH, _OXIDIZING_SOLID, _SOLID_WEAR),
+    SALT_SOLID: (_SOLID_WEIGH, _SOLID_WEAR),
+    ACETIC_PERCHLORIC: (_ACETIC_FLAMMABLE, _ACETIC_PERCHLORIC, _ACETIC_ANHYDRIDE, _OXIDIZER),
     ACID_CONCENTRATE: (_ACID_TO_WATER, _ACID_HOOD, _ACID_WEAR),
     OXIDIZING_ACID: (_ACID_TO_WATER, _ACID_HOOD, _OXIDIZER, _OXIDIZER_WEAR),
     BASE_PELLETS: (_PELLETS_DISSOLVE, _PELLETS_HANDLE, _PELLETS_VESSEL, _BASE_WEAR, _BASE_STORE),
@@ -189,6 +265,34 @@ _EXTRA_CAUTIONS: dict[str, tuple[str, ...]] = {
         "memory — check the safety data sheet).",
     ),
     "HCl": ("Concentrated hydrochloric acid fumes: open and measure it only in the fume hood (common practice).",),
+    "KMnO4": (
+        "Permanganate stains skin and cloth brown and can ignite glycerol, ethylene glycol and other organic "
+        "liquids on contact: keep them apart (common practice).",
+        _AQUATIC,
+    ),
+    "K2Cr2O7": (
+        "Potassium dichromate is a chromium(VI) compound: it may cause cancer and genetic defects and damage "
+        "fertility, and sensitizes skin and lungs. Weigh it in a fume hood or ventilated enclosure, wear nitrile "
+        "gloves, and collect every residue as chromium(VI) waste (common practice; check the safety data sheet).",
+        _AQUATIC,
+    ),
+    "AgNO3": (
+        "Silver nitrate burns the eyes and stains skin black (the stain appears hours later): goggles and "
+        "gloves throughout; keep the solid and the solution in amber glass, out of light (common practice).",
+        _AQUATIC,
+    ),
+    "I2": (
+        "Iodine gives off a corrosive vapour and stains: weigh it quickly in a closed weighing bottle, in the "
+        "hood, and dissolve it in the concentrated potassium iodide solution before diluting (common practice).",
+    ),
+    "Ce(SO4)2": (
+        "It is made up in dilute sulfuric acid: add the acid to the water (never the reverse), let it cool, "
+        "then dissolve the salt (common practice).",
+    ),
+    "FAS": (
+        "It is made up in dilute sulfuric acid: add the acid to the water, never the reverse, and let it cool (common practice).",
+    ),
+    "ZnSO4": (_AQUATIC,),
     "Ba(OH)2": (
         "Barium compounds are harmful if swallowed: weigh barium hydroxide without raising dust and wash hands "
         "after (common practice; from memory — check the safety data sheet).",
@@ -196,10 +300,19 @@ _EXTRA_CAUTIONS: dict[str, tuple[str, ...]] = {
 }
 
 
+# Silver nitrate is an oxidizing solid though its titrating role is the precipitant.
+_OXIDIZING_SALTS = ("AgNO3",)
+
+
 def caution_kind(reagent: str | Titrant, form: str | None) -> str:
     """Which family of cautions a reagent in a form needs: acid concentrate, oxidizing acid, base pellets or
-    base concentrate. form: "liquid", "solid", or None (a base then counts as pellets only when solid)."""
+    base concentrate; for the other classes an oxidizing solid or a salt; perchloric acid in acetic acid.
+    form: "liquid", "solid", or None (a base then counts as pellets only when solid)."""
     t = _titrant(reagent, [])
+    if t.solvent != "water":
+        return ACETIC_PERCHLORIC
+    if t.reaction_class != chemistry.ACID_BASE:
+        return OXIDIZING_SOLID if t.role == chemistry.OXIDANT or t.key in _OXIDIZING_SALTS else SALT_SOLID
     if t.role == ACID:
         return OXIDIZING_ACID if t.key in OXIDIZING_ACIDS else ACID_CONCENTRATE
     return BASE_PELLETS if form == SOLID else BASE_CONCENTRATE
@@ -434,6 +547,69 @@ def _solid_steps(t: Titrant, m_g: float, w: float, vol_l: float) -> list[str]:
     return steps
 
 
+# Per titrant: what the solid is dissolved in, and any step of its own (common practice; quantities from
+# memory, as the pharmacopoeias' volumetric-solution texts give them — verify).
+_MEDIUM: dict[str, str] = {
+    "Na2S2O3": "freshly boiled and cooled purified water with about 0.1 g of anhydrous sodium carbonate per litre",
+    "Ce(SO4)2": "water to which about 28 mL of concentrated sulfuric acid per litre has been added (acid to water)",
+    "FAS": "water to which about 30 mL of concentrated sulfuric acid per litre has been added (acid to water)",
+}
+
+
+def _salt_steps(t: Titrant, m_g: float, w: float, vol_l: float) -> list[str]:
+    medium = _MEDIUM.get(t.key, "purified water")
+    steps = [f"Weigh {sig(m_g)} g of {t.weighed_as or t.formula} ({percent(w, None)} assay) on a top-pan balance."]
+    if t.key == "I2":
+        ki = 2.8 * m_g  # USP/BP iodine VS: about 36 g KI for 12.7 g iodine per litre (from memory)
+        steps.append(
+            f"Dissolve {sig(ki, 2)} g of potassium iodide in as little water as will take it (about "
+            f"{sig(max(ki * 0.6, 5), 2)} mL), add the iodine and swirl until it has all dissolved: iodine dissolves "
+            "only as triiodide, in concentrated iodide (common practice)."
+        )
+    else:
+        steps.append(f"Dissolve it in about {sig(0.5 * vol_l, 2)} L of {medium} in a clean beaker or flask.")
+    if t.key == "KMnO4":
+        steps.append(
+            "Heat to boiling for about an hour (or let stand a week in the dark), then filter through a sintered-glass "
+            "funnel, not paper, to remove manganese dioxide, which would catalyse its decomposition (common practice)."
+        )
+    steps.append(f"Make up to {sig(vol_l, 3)} L with the same water and mix thoroughly.")
+    steps.append(t.storage)
+    return steps
+
+
+def _stock_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float, vol_l: float) -> list[str]:
+    medium = _MEDIUM.get(t.key, "purified water")
+    return [
+        f"Put about {sig(0.75 * vol_l, 3)} L of {medium} into the clean, labelled container.",
+        f"Measure {sig(v_ml)} mL of the {percent(w, None)} stock solution (density {rho:g} g/mL), or weigh "
+        f"{sig(m_g)} g of it, and add it with stirring; rinse the measure into the container.",
+        f"Make up to {sig(vol_l, 3)} L with the same water and mix thoroughly.",
+        t.storage,
+    ]
+
+
+# Acetic anhydride: (CH3CO)2O + H2O -> 2 CH3COOH; 102.09 g/mol, 1.08 g/mL at 20 °C (from memory).
+_ANHYDRIDE_G_MOL = 102.09
+_ANHYDRIDE_G_ML = 1.08
+
+
+def _acetic_liquid_steps(t: Titrant, v_ml: float, m_g: float, w: float, rho: float, vol_l: float) -> list[str]:
+    water_mol = m_g * (1.0 - w) / chemistry.molar_mass("H2O").value
+    anhydride_ml = water_mol * _ANHYDRIDE_G_MOL / _ANHYDRIDE_G_ML
+    return [
+        f"In the fume hood put about {sig(0.9 * vol_l, 3)} L of glacial (anhydrous) acetic acid into a dry glass bottle.",
+        f"Measure {sig(v_ml)} mL of the {percent(w, None)} perchloric acid (density {rho:g} g/mL) in a dry cylinder, or "
+        f"weigh {sig(m_g)} g of it, and add it to the acetic acid with swirling.",
+        f"Then add slowly, with cooling, about {sig(anhydride_ml, 2)} mL of acetic anhydride: the amount that takes "
+        f"up the {sig(water_mol * 18.015, 2)} g of water the perchloric acid brings (the BP adds 30 mL per litre of 0.1 "
+        "mol/L and then adjusts the water content to 0.1–0.2 % by Karl Fischer titration; BP 2012 Appendix I B).",
+        f"Make up to {sig(vol_l, 3)} L with anhydrous acetic acid, mix, and let stand 24 hours before "
+        "standardizing, so the anhydride has reacted.",
+        t.storage,
+    ]
+
+
 def preparation_plan(
     reagent: str | Titrant,
     target_molarity_mol_l: float,
@@ -480,14 +656,14 @@ def preparation_plan(
             errors.append(FieldError("density_g_ml", "is needed for a liquid concentrate, in g/mL at 20 °C"))
         else:
             rho = _density(errors, "density_g_ml", density_g_ml)
-    elif t.role != BASE:
+    elif not solid_allowed(t):
         errors.append(FieldError("form", f"{t.name} is not prepared from a solid here: choose liquid"))
     if vol is not None and cap is not None and vol > cap:
         errors.append(FieldError("final_volume_l", f"{vol:g} L does not fit the {cap:g} L container"))
     _raise(errors)
     assert c is not None and vol is not None and w is not None and over is not None
 
-    m_r = t.molar_mass.value
+    m_r = weighed_molar_mass(t, form) if form in FORMS else t.molar_mass.value
     planned = c * (1.0 + over)
     reagent_g = planned * vol * m_r
     notes: list[str] = [
@@ -516,18 +692,28 @@ def preparation_plan(
         mismatch = _typical_mismatch(t, form, w, rho)
         if mismatch:
             notes.append(mismatch)
-        steps = (_acid_liquid_steps if t.role == ACID else _base_liquid_steps)(t, v_ml, m_g, w, rho, vol)
+        if t.solvent != "water":
+            steps = _acetic_liquid_steps(t, v_ml, m_g, w, rho, vol)
+        elif t.reaction_class != chemistry.ACID_BASE:
+            steps = _stock_liquid_steps(t, v_ml, m_g, w, rho, vol)
+        else:
+            steps = (_acid_liquid_steps if t.role == ACID else _base_liquid_steps)(t, v_ml, m_g, w, rho, vol)
         conc_ml: float | None = v_ml
         conc_mol_l: float | None = c_conc
     else:
         m_g = reagent_g / w
         # The dissolved solid's own volume is neglected, as is contraction: make up to the mark.
         water_l = vol
-        steps = _solid_steps(t, m_g, w, vol)
-        notes.append(
-            "Solids take up water and CO2 once the container is opened, so the real assay drifts below the "
-            "certificate's; standardization measures the result (common practice)."
-        )
+        if t.reaction_class != chemistry.ACID_BASE:
+            steps = _salt_steps(t, m_g, w, vol)
+            if t.weighed_as:
+                notes.append(f"Weighed as {t.weighed_as} ({sig(m_r)} g/mol); the assay is of that form.")
+        else:
+            steps = _solid_steps(t, m_g, w, vol)
+            notes.append(
+                "Solids take up water and CO2 once the container is opened, so the real assay drifts below the "
+                "certificate's; standardization measures the result (common practice)."
+            )
         conc_ml = None
         conc_mol_l = None
     steps.append("Label the container with the batch details; it awaits standardization before any use.")

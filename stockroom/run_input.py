@@ -52,6 +52,10 @@ class Limits:
     # Titrant temperature, °C: the range the temperature referral of the burette volume is made for.
     min_temperature_c: float = 5.0
     max_temperature_c: float = 40.0
+    # Temperature of the solution being titrated, °C (permanganate and cerium(IV) against oxalate are
+    # titrated hot): from 5 °C up to boiling water.
+    min_titration_temperature_c: float = 5.0
+    max_titration_temperature_c: float = 100.0
     # Replicates in one run: 50 (every door's limit; more is a pasted sheet gone wrong).
     max_replicates: int = 50
     # Text lengths (characters): the analyst's name, the end point or indicator, the notes, a reason
@@ -75,7 +79,17 @@ PURPOSES = ("certify", "recheck")
 # The instruments a run may name, by method (role -> the form's and the request's `<role>_id`).
 ROLES: dict[str, tuple[str, ...]] = {"primary": ("balance", "burette"), "secondary": ("burette", "pipette")}
 
-COMMON_KEYS = ("method", "purpose", "performed_on", "analyst", "burette_capacity_ml", "temperature_c", "endpoint", "notes")
+COMMON_KEYS = (
+    "method",
+    "purpose",
+    "performed_on",
+    "analyst",
+    "burette_capacity_ml",
+    "temperature_c",
+    "titration_temperature_c",
+    "endpoint",
+    "notes",
+)
 PARTNER_KEY = {"primary": "standard_lot_id", "secondary": "reference_batch"}
 REPLICATE_KEYS: dict[str, tuple[str, ...]] = {
     "primary": ("gross_g", "tare_g", "mass_g", "initial_ml", "final_ml", "blank_ml", "temperature_c", "exclude_reason"),
@@ -93,6 +107,7 @@ LABELS = {
     "analyst": "Analyst",
     "burette_capacity_ml": "Burette",
     "temperature_c": "Titrant temperature",
+    "titration_temperature_c": "Temperature of the titrated solution",
     "endpoint": "End point / indicator",
     "notes": "Notes",
     "standard_lot_id": "Primary-standard lot",
@@ -164,6 +179,7 @@ class RunInput:
     temperature_c: float | None = None
     endpoint: str = ""
     notes: str = ""
+    titration_temperature_c: float | None = None
     standard_lot_id: int | None = None
     reference_batch: str | None = None
     exclusions: Mapping[int, str] = field(default_factory=lambda: MappingProxyType({}))
@@ -179,6 +195,7 @@ class RunInput:
             "analyst": self.analyst,
             "burette_capacity_ml": self.burette_capacity_ml,
             "temperature_c": self.temperature_c,
+            "titration_temperature_c": self.titration_temperature_c,
             "endpoint": self.endpoint,
             "notes": self.notes,
         }
@@ -206,6 +223,14 @@ def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None) 
     analyst = p.text(data.get("analyst", MISSING), "analyst", max_length=LIMITS.max_analyst)
     capacity = burette_capacity(p, data.get("burette_capacity_ml", MISSING), required=True)
     run_t = temperature(p, data.get("temperature_c", MISSING), "temperature_c")
+    flask_t = p.number(
+        data.get("titration_temperature_c", MISSING),
+        "titration_temperature_c",
+        required=False,
+        ge=LIMITS.min_titration_temperature_c,
+        le=LIMITS.max_titration_temperature_c,
+        unit="°C",
+    )
     endpoint = p.text(data.get("endpoint", MISSING), "endpoint", required=False, max_length=LIMITS.max_endpoint) or ""
     notes = p.text(data.get("notes", MISSING), "notes", required=False, max_length=LIMITS.max_notes) or ""
     lot_id: int | None = None
@@ -236,6 +261,7 @@ def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None) 
         temperature_c=run_t,
         endpoint=endpoint,
         notes=notes,
+        titration_temperature_c=flask_t,
         standard_lot_id=lot_id,
         reference_batch=reference,
         exclusions=MappingProxyType(dict(excluded)),

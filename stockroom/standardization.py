@@ -214,7 +214,7 @@ class StandardSpec:
 
 
 def standard_spec(titrant_key: str, standard_key: str) -> StandardSpec:
-    """StandardSpec from the chemistry catalogue (CIAAW 2021 molar mass, ν from equivalents).
+    """StandardSpec from the chemistry catalogue (CIAAW 2021 molar mass, ν from the pair's reaction).
 
     titrant_key, standard_key: catalogue keys, aliases or formulas. Returns a StandardSpec.
     Raises chemistry.UnknownSubstance or chemistry.IncompatiblePair (both status 422).

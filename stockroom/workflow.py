@@ -11,6 +11,7 @@ re-check is recorded with a warning.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -93,9 +94,14 @@ def compute_primary(
         titrant=titrant,
         overrides=dict(overrides or {}),
     )
-    return standardization.standardize_primary(
+    result = standardization.standardize_primary(
         run, figures or standardization.Instruments.from_settings(config), rule_for(policy)
     )
+    found = chemistry.pair_for(titrant, chemistry.standard(lot["substance"]))
+    if found is not None and found[0].blank and not any(r.blank_ml for r in reps):
+        # The pair's method asks for a blank (iodometric: iodine freed by the reagents themselves).
+        result = dataclasses.replace(result, warnings=(*result.warnings, f"no blank was recorded. {found[0].blank}."))
+    return result
 
 
 def compute_secondary(
@@ -248,6 +254,21 @@ def check_not_withdrawn(db: sqlite_utils.Database, batch: Mapping[str, Any]) -> 
         raise Conflict(f"batch {batch['code']} is withdrawn; no run can be recorded for it")
 
 
+def _condition_errors(titrant: chemistry.Titrant, standard: chemistry.PrimaryStandard, run: RunInput) -> list[FieldError]:
+    """The pair's own conditions a run breaks: a pair titrated hot needs the solution's temperature."""
+    found = chemistry.pair_for(titrant, standard)
+    if found is None or found[0].hot_min_c is None:
+        return []
+    need = found[0].hot_min_c
+    t = run.titration_temperature_c
+    why = f"{titrant.name} against {standard.name} is titrated hot, at {need:g} °C or more (common practice)"
+    if t is None:
+        return [FieldError("titration_temperature_c", f"is required: {why}; give the solution's temperature in °C")]
+    if t < need:
+        return [FieldError("titration_temperature_c", f"{t:g} °C is too cool: {why}; warm the solution and titrate again")]
+    return []
+
+
 def _resolve(
     db: sqlite_utils.Database, batch: Mapping[str, Any], run: RunInput
 ) -> tuple[Partner, dict[str, inst_mod.Instrument]]:
@@ -269,6 +290,7 @@ def _resolve(
             chemistry.stoichiometric_factor(titrant, chemistry.standard(lot["substance"]))
             check_lot_usable(lot, on)
             partner = Partner(lot=lot)
+            errors.extend(_condition_errors(titrant, chemistry.standard(lot["substance"]), run))
         except InvalidInput as exc:
             errors.extend(exc.errors)
         except StockroomError as exc:

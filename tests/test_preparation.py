@@ -38,7 +38,7 @@ def _text(plan: prep.PreparationPlan | prep.AdjustmentPlan) -> str:
 def test_molar_mass_in_plans_matches_periodictable(key):
     # Source: periodictable package, CIAAW 2021 standard atomic weights.
     plan = prep.preparation_plan(key, 0.1, 1.0, 0.5, 1.5)
-    assert plan.molar_mass_g_mol == pytest.approx(periodictable.formula(key).mass, rel=1e-9)
+    assert plan.molar_mass_g_mol == pytest.approx(periodictable.formula(chemistry.titrant(key).formula).mass, rel=1e-9)
 
 
 # ---------------------------------------------------------------------------------------------------------
@@ -98,8 +98,8 @@ def test_catalogue_liquids_match_commonly_quoted_molarity(key):
 
 
 def test_catalogue_is_marked_from_memory_and_consistent():
-    liquids = {c.key for c in prep.CONCENTRATES if c.form == prep.LIQUID}
-    solids = {c.key for c in prep.CONCENTRATES if c.form == prep.SOLID}
+    liquids = {c.key for c in prep.ACID_BASE_CONCENTRATES if c.form == prep.LIQUID}
+    solids = {c.key for c in prep.ACID_BASE_CONCENTRATES if c.form == prep.SOLID}
     assert liquids == set(QUOTED_MOLARITY)
     assert solids == {"NaOH-pellets", "KOH-pellets"}
     for c in prep.CONCENTRATES:
@@ -434,7 +434,7 @@ BY_KIND = {
 
 
 def _every_plan():
-    for c in prep.CONCENTRATES:
+    for c in prep.ACID_BASE_CONCENTRATES:  # the other classes: tests/test_reaction_classes.py
         yield (
             prep.caution_kind(c.reagent, c.form),
             prep.preparation_plan(c.reagent, 0.1, 10.0, c.assay_w_w, c.density_g_ml, form=c.form),

@@ -188,11 +188,40 @@ def _flame_over_circle(g: Group) -> None:
     g.add(_poly([(35, 27.5), (65, 27.5), (65, 23.0), (35, 23.0)]))
 
 
+def _star(cx: float, cy: float, outer: float, inner: float, points: int = 8) -> list[Point]:
+    out: list[Point] = []
+    for i in range(2 * points):
+        r = outer if i % 2 == 0 else inner
+        a = math.pi / 2 + i * math.pi / points
+        out.append((cx + r * math.cos(a), cy + r * math.sin(a)))
+    return out
+
+
+def _health_hazard(g: Group) -> None:
+    """GHS08: a head and shoulders with a burst on the chest (long-term health hazards)."""
+    g.add(Circle(50, 68.5, 7.5, fillColor=BLACK, strokeColor=None))
+    g.add(_poly([(29, 26), (71, 26), (71, 45), (65, 55), (56, 59), (44, 59), (35, 55), (29, 45)]))
+    g.add(_poly(_star(50, 41, 10.5, 4.5), fill=WHITE))
+
+
+def _environment(g: Group) -> None:
+    """GHS09: a bare tree and a fish lying on its back beside water (hazard to the aquatic environment)."""
+    g.add(_poly([(35.5, 31), (40.5, 31), (41.5, 63), (38.5, 64)]))  # trunk
+    g.add(_poly([(40.5, 51), (50.5, 62.5), (48.5, 64), (39.5, 54.5)]))  # right branch
+    g.add(_poly([(39.0, 57), (30.5, 66), (29.0, 64.5), (38.5, 54)]))  # left branch
+    g.add(_poly([(26, 31), (74, 31), (74, 27.5), (26, 27.5)]))  # ground
+    g.add(Ellipse(57.5, 38.5, 10.0, 4.6, fillColor=BLACK, strokeColor=None))  # the fish
+    g.add(_poly([(66, 38.5), (73.5, 44), (73.5, 33)]))  # its tail
+    g.add(Circle(51.5, 39.5, 1.4, fillColor=WHITE, strokeColor=None))  # its eye
+
+
 _SYMBOLS: dict[str, Callable[[Group], None]] = {
     "GHS02": _flame,
     "GHS03": _flame_over_circle,
     "GHS05": _corrosion,
     "GHS07": _exclamation,
+    "GHS08": _health_hazard,
+    "GHS09": _environment,
 }
 
 

@@ -27,6 +27,7 @@ RUN_FIELDS = (
     "burette_capacity_ml",
     "endpoint",
     "notes",
+    "titration_temperature_c",  # °C of the solution titrated, for pairs titrated hot (migration 0013)
 )
 REPLICATE_FIELDS = (
     "position",

@@ -63,10 +63,10 @@
     }
     var assayHint = hintOf("concentrate_assay_pct");
     if (assayHint) { assayHint.textContent = assayBaseHint + (entry ? entry.typical : ""); }
-    // Only bases are made from pellets.
+    // Bases, and the salts of the other classes, are made from a solid; acids are not.
     var solid = control("source_form").querySelector("option[value=solid]");
     if (solid) {
-      solid.disabled = !!entry && entry.role !== "base";
+      solid.disabled = !!entry && !entry.solid;
       if (solid.disabled && control("source_form").value === "solid") { control("source_form").value = "liquid"; }
     }
     if (entry) { setList(cautionList, entry.cautions); }

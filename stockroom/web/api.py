@@ -206,3 +206,11 @@ def decide_run(run_id: int) -> Any:
         return jsonify({"run_id": run_id, "decision": "accept", "release_id": release_id}), 200
     workflow.reject(db, run_id, reason, actor)
     return jsonify({"run_id": run_id, "decision": "reject"}), 200
+
+
+@bp.get("/catalogue")
+def catalogue() -> Any:
+    """Every titrant, primary standard and titrating pair, with classes, ratios and rules (stockroom.chemistry)."""
+    from stockroom import chemistry
+
+    return jsonify(chemistry.catalogue())

@@ -40,7 +40,7 @@ api_bp = Blueprint("intake_api", __name__, url_prefix="/api/v1")
 LIQUID, SOLID = preparation.LIQUID, preparation.SOLID
 SOURCE_FORMS: tuple[tuple[str, str], ...] = (
     (LIQUID, "a liquid concentrate, diluted"),
-    (SOLID, "solid pellets, dissolved (NaOH, KOH)"),
+    (SOLID, "a solid, weighed and dissolved (pellets of NaOH or KOH; the salts of the other classes)"),
 )
 # Offered in the water field's list; any other description may be typed.
 WATER_GRADES: tuple[str, ...] = (
@@ -218,6 +218,7 @@ def _catalogue(pols: Mapping[str, ReagentPolicy]) -> dict[str, Any]:
         out[t.key] = {
             "name": t.name,
             "role": t.role,
+            "solid": preparation.solid_allowed(t),
             "nominals": [f"{n:g}" for n in pols[t.key].nominal_molarities],
             "typical": _typical_hint(t.key),
             "cautions": list(preparation.cautions_for(t.key)),
@@ -323,7 +324,7 @@ def _read_plan_fields(
     nominal = p.number(data.get("nominal_molarity"), "nominal_molarity", gt=0, le=MAX_NOMINAL_MOL_L, unit="mol/L")
     volume = p.number(data.get("volume_l"), "volume_l", ge=MIN_VOLUME_L, le=MAX_VOLUME_L, unit="L")
     form = p.choice(data.get("source_form"), "source_form", [k for k, _ in SOURCE_FORMS], default=LIQUID)
-    if form == SOLID and t is not None and t.role != BASE:
+    if form == SOLID and t is not None and not preparation.solid_allowed(t):
         p.error("source_form", f"{t.name} is made from a liquid concentrate: choose the concentrate")
         form = None
     pct = read_percent(p, data.get("concentrate_assay_pct"), "concentrate_assay_pct", required=need_concentrate, gt=1, le=100)

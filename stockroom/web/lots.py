@@ -92,10 +92,10 @@ def new_lot() -> Any:
 
 
 def _standard_options() -> list[tuple[str, str]]:
-    return [
-        (s.key, f"{s.name} ({s.key}) — standardizes {'bases' if s.role == 'acid' else 'acids'}")
-        for s in chemistry.list_standards()
-    ]
+    def use(s: chemistry.PrimaryStandard) -> str:
+        return "standardizes " + ", ".join(t.key for t in chemistry.list_titrants() if chemistry.reacts(t, s))
+
+    return [(s.key, f"{s.name} ({s.key}) — {use(s)}") for s in chemistry.list_standards()]
 
 
 def _rules() -> list[tuple[str, str]]:

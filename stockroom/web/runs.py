@@ -42,16 +42,16 @@ def _lots_for(batch: dict[str, Any], on: dt.date) -> list[dict[str, Any]]:
 
 
 def _references_for(batch: dict[str, Any], on: dt.date) -> list[tuple[dict[str, Any], Any]]:
-    """Certified batches of the opposite role with a value in force on `on` (candidates for reference)."""
+    """Certified batches of a titrant that reacts with this one, with a value in force on `on` (references)."""
     db = get_db()
-    role = chemistry.titrant(batch["reagent"]).role
+    titrant = chemistry.titrant(batch["reagent"])
     # Only live batches (released, not expired or withdrawn) can have a value in force; their release
     # in the status report is that value.
     live = [i for i, c, _ in readmodel.coarse_statuses(db, on) if c == "live" and i != batch["id"]]
     out = []
     for v in readmodel.views_of(db, live, on):
         try:
-            if chemistry.titrant(v.batch["reagent"]).role == role:
+            if not chemistry.reacts(titrant, chemistry.titrant(v.batch["reagent"])):
                 continue
         except StockroomError:
             continue
@@ -82,6 +82,7 @@ def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date)
         "rows": GRID_ROWS,
         "today": on,
         "standards": {s.key: s for s in chemistry.list_standards(titrant)},
+        "pair_notes": chemistry.pair_notes(titrant),
         # Mass of each standard that gives a 40 mL titre at the nominal strength (a 50 mL burette).
         "suggested": {
             s.key: chemistry.suggested_standard_mass(titrant, s, batch["nominal_molarity"], 40.0)
