@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 
-from stockroom import run_input, workflow
+from stockroom import records, run_input, workflow
 
 _NAMES = {"mass_gross_g": "gross_g", "mass_tare_g": "tare_g"}
 
@@ -38,3 +38,43 @@ def record(db, config, batch, meta, reps, actor, *, lot=None, reference=None, ex
     today = max(dt.date.today(), dt.date.fromisoformat(str(meta["performed_on"])))
     run = run_input.parse_run(data, today=today, prepared_on=dt.date.fromisoformat(batch["prepared_on"]))
     return workflow.record_run(db, config, batch, run, actor)
+
+
+# Invented replicates: about 0.1 mol/L NaOH against KHP (gross, tare in g; initial, final in mL).
+GOOD = [
+    ("12.4581", "11.6402", "0.12", "40.21"),
+    ("12.0117", "11.1891", "0.40", "40.73"),
+    ("11.9012", "11.0759", "0.05", "40.50"),
+    ("12.2230", "11.4170", "0.30", "39.82"),
+]
+
+
+def good_replicates():
+    """The GOOD readings as stored replicate rows (masses in g, readings and titre in mL)."""
+    return [
+        {
+            "mass_gross_g": float(g),
+            "mass_tare_g": float(t),
+            "initial_ml": float(i),
+            "final_ml": float(f),
+            "volume_ml": round(float(f) - float(i), 2),
+        }
+        for g, t, i, f in GOOD
+    ]
+
+
+def khp_lot(db, today):
+    """An invented KHP lot (assay 0.9998, U 0.0004 at k = 2) expiring 300 days after today."""
+    return records.create_lot(
+        db,
+        {
+            "substance": "KHP",
+            "assay": 0.9998,
+            "assay_expanded_u": 0.0004,
+            "assay_k": 2,
+            "supplier": "Invented Chemicals",
+            "supplier_lot": "K-7781",
+            "expires_on": (today + dt.timedelta(days=300)).isoformat(),
+        },
+        "setup",
+    )

@@ -12,7 +12,7 @@ import subprocess
 from pathlib import Path
 
 import pytest
-from recorded_runs import record
+from recorded_runs import good_replicates, khp_lot, record
 from reportlab.graphics import renderPDF
 
 from stockroom import readmodel, records, workflow
@@ -31,13 +31,6 @@ INSTITUTION = "Département de Chimie, Łódź Prep Room (invented)"
 NOTE = "V\u0304 ≤ 25.00 mL; μ, σ, ν, Δ; 2 × 10 mL at 20 °C ± 0.5 °C; CO₂-free H₂O"
 REASON = "assay doubt: Δ of 0.3 % (σ ≈ 0.1 %), ≤ 25 °C; reported by Łucja Ősz"
 FONT_NAME = re.compile(r"[A-Z]{6}\+DejaVuSans(Condensed)?(-Bold|-Oblique)?")
-
-GOOD = [
-    ("12.4581", "11.6402", "0.12", "40.21"),
-    ("12.0117", "11.1891", "0.40", "40.73"),
-    ("11.9012", "11.0759", "0.05", "40.50"),
-    ("12.2230", "11.4170", "0.30", "39.82"),
-]
 
 
 def lab_today() -> dt.date:
@@ -75,19 +68,7 @@ def world(app, database):
     db, config = database, app.config
     config["INSTITUTION_NAME"] = INSTITUTION
     today = lab_today()
-    lot = records.create_lot(
-        db,
-        {
-            "substance": "KHP",
-            "assay": 0.9998,
-            "assay_expanded_u": 0.0004,
-            "assay_k": 2,
-            "supplier": "Invented Chemicals",
-            "supplier_lot": "K-7781",
-            "expires_on": (today + dt.timedelta(days=300)).isoformat(),
-        },
-        "setup",
-    )
+    lot = khp_lot(db, today)
     batch = records.create_batch(
         db,
         {
@@ -99,16 +80,7 @@ def world(app, database):
         },
         "setup",
     )
-    reps = [
-        {
-            "mass_gross_g": float(g),
-            "mass_tare_g": float(t),
-            "initial_ml": float(i),
-            "final_ml": float(f),
-            "volume_ml": round(float(f) - float(i), 2),
-        }
-        for g, t, i, f in GOOD
-    ]
+    reps = good_replicates()
     meta = {
         "purpose": "certify",
         "performed_on": (today - dt.timedelta(days=2)).isoformat(),

@@ -10,20 +10,12 @@ import subprocess
 
 import pypdf
 import pytest
-from recorded_runs import record
+from recorded_runs import good_replicates, khp_lot, record
 
 from stockroom import readmodel, records, workflow
 from stockroom import recall as recall_mod
 from stockroom.pdf import certificates
 from stockroom.pdf.recall_report import recall_report_pdf
-
-# Invented replicates: about 0.1 mol/L NaOH against KHP (gross, tare in g; initial, final in mL).
-GOOD = [
-    ("12.4581", "11.6402", "0.12", "40.21"),
-    ("12.0117", "11.1891", "0.40", "40.73"),
-    ("11.9012", "11.0759", "0.05", "40.50"),
-    ("12.2230", "11.4170", "0.30", "39.82"),
-]
 
 
 def lab_today() -> dt.date:
@@ -34,37 +26,12 @@ def flat_text(pdf: bytes) -> str:
     return re.sub(r"\s+", " ", "\n".join(p.extract_text() for p in pypdf.PdfReader(io.BytesIO(pdf)).pages))
 
 
-def _reps():
-    return [
-        {
-            "mass_gross_g": float(g),
-            "mass_tare_g": float(t),
-            "initial_ml": float(i),
-            "final_ml": float(f),
-            "volume_ml": round(float(f) - float(i), 2),
-        }
-        for g, t, i, f in GOOD
-    ]
-
-
 @pytest.fixture
 def world(app, database):
     """Batch A released once (row id 1); batch B released twice (row ids 2 and 3: its releases 1 and 2)."""
     db, config = database, app.config
     today = lab_today()
-    lot = records.create_lot(
-        db,
-        {
-            "substance": "KHP",
-            "assay": 0.9998,
-            "assay_expanded_u": 0.0004,
-            "assay_k": 2,
-            "supplier": "Invented Chemicals",
-            "supplier_lot": "K-7781",
-            "expires_on": (today + dt.timedelta(days=300)).isoformat(),
-        },
-        "setup",
-    )
+    lot = khp_lot(db, today)
 
     def batch(days_ago):
         return records.create_batch(
@@ -86,7 +53,7 @@ def world(app, database):
             "analyst": "R. Okafor",
             "burette_capacity_ml": 50.0,
         }
-        run_id, _ = record(db, config, b, meta, _reps(), "setup", lot=lot)
+        run_id, _ = record(db, config, b, meta, good_replicates(), "setup", lot=lot)
         return workflow.accept(db, run_id, "setup")
 
     a, b = batch(9), batch(8)
