@@ -266,6 +266,21 @@ def _register(client, token, reagent, nominal):
     return resp.get_json()["id"]
 
 
+def _batch(conn, reagent, nominal, volume_l):
+    """A batch of reagent (nominal in mol/L, volume in L) prepared yesterday by an invented person."""
+    return records.create_batch(
+        conn,
+        {
+            "reagent": reagent,
+            "nominal_molarity": nominal,
+            "volume_l": volume_l,
+            "prepared_on": (TODAY - dt.timedelta(days=1)).isoformat(),
+            "prepared_by": "Test Person (invented)",
+        },
+        "setup",
+    )
+
+
 def _lot(conn, key):
     s = chem.standard(key)
     values = {
@@ -474,17 +489,7 @@ def test_each_new_titrant_gets_its_own_cautions_and_steps(key, kind, phrase):
 
 
 def test_run_form_shows_the_pairs_rules_and_asks_the_flask_temperature(conn, signed_in_client):
-    batch = records.create_batch(
-        conn,
-        {
-            "reagent": "KMnO4",
-            "nominal_molarity": 0.02,
-            "volume_l": 5,
-            "prepared_on": (TODAY - dt.timedelta(days=1)).isoformat(),
-            "prepared_by": "Test Person (invented)",
-        },
-        "setup",
-    )
+    batch = _batch(conn, "KMnO4", 0.02, 5)
     html = signed_in_client("staff").get(f"/batches/{batch['code']}/runs/new").get_data(as_text=True)
     assert 'name="titration_temperature_c"' in html and "Temperature of the titrated solution" in html
     assert "How potassium permanganate is standardized" in html
@@ -559,17 +564,7 @@ def test_preview_takes_the_new_pairs_by_name_and_refuses_a_wrong_one(client):
 
 
 def test_batch_page_says_how_the_titrant_is_kept_and_its_medium(conn, client):
-    batch = records.create_batch(
-        conn,
-        {
-            "reagent": "HClO4-AcOH",
-            "nominal_molarity": 0.1,
-            "volume_l": 1,
-            "prepared_on": (TODAY - dt.timedelta(days=1)).isoformat(),
-            "prepared_by": "Test Person (invented)",
-        },
-        "setup",
-    )
+    batch = _batch(conn, "HClO4-AcOH", 0.1, 1)
     html = client.get(f"/batches/{batch['code']}").get_data(as_text=True)
     assert "Made in anhydrous acetic acid" in html and "0.0011 per °C" in html
     assert "Perchloric Acid VS" in html
@@ -604,17 +599,7 @@ def test_plan_api_weighs_thiosulfate_pentahydrate_and_refuses_a_solid_acid(clien
 def test_the_run_form_refuses_a_cold_permanganate_run_beside_the_field(app, conn, signed_in_client, form_token):
     from formposts import count, error_beside, post
 
-    batch = records.create_batch(
-        conn,
-        {
-            "reagent": "KMnO4",
-            "nominal_molarity": 0.02,
-            "volume_l": 5,
-            "prepared_on": (TODAY - dt.timedelta(days=1)).isoformat(),
-            "prepared_by": "Test Person (invented)",
-        },
-        "setup",
-    )
+    batch = _batch(conn, "KMnO4", 0.02, 5)
     lot = _lot(conn, "Na2C2O4")
     form = {
         "purpose": "certify",
