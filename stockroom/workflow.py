@@ -513,6 +513,18 @@ def _accept_locked(
         return records.decide_run(db, run_id, "accept", reason, actor)
     batch = records.batch_by_id(db, run["batch_id"])
     released_on = released_on or dt.date.fromisoformat(run["performed_on"])
+    in_force = release_in_force(readmodel.batch_facts(db, batch["id"]), released_on)
+    if in_force is not None and not reason.strip():
+        # Replacing a value labels and lab days already use is a correction of the record: it says why.
+        raise InvalidInput(
+            [
+                FieldError(
+                    "reason",
+                    f"is required: this release replaces the certified value in force since {in_force.released_on.isoformat()}; "
+                    "say why the new value supersedes it",
+                )
+            ]
+        )
     policy = records.policy_for(db, batch["reagent"], released_on)
     prepared_on = dt.date.fromisoformat(batch["prepared_on"])
     expires_on = expiry_for(released_on, policy, prepared_on=prepared_on)

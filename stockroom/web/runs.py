@@ -190,6 +190,7 @@ def show(run_id: int) -> Any:
         result=run["current"]["result"],
         today=lab_today(),
         excluded={e["position"]: e for e in run["exclusions"]},
+        in_force=release_in_force(readmodel.batch_facts(db, batch["id"]), lab_today()),
     )
 
 
