@@ -147,7 +147,8 @@ def test_record_then_accept_releases_the_batch(app, setup, signed_in_client, for
     [
         ({"r2_final_ml": "0.30"}, "r2_final_ml", "final reading must be greater than the initial"),
         ({"r1_gross_g": "-12.4581"}, "r1_gross_g", "must be greater than 0"),
-        ({"r3_initial_ml": "0,05"}, "r3_initial_ml", "not a comma"),
+        ({"r3_initial_ml": "0,0,5"}, "r3_initial_ml", "more than one comma"),
+        ({"r3_initial_ml": "1,050"}, "r3_initial_ml", "could be 1.050 or 1050"),
         ({"r4_final_ml": "52.10"}, "r4_final_ml", "beyond the scale of the 50 mL burette"),
         ({"r1_temperature_c": "45"}, "r1_temperature_c", "between 5 and 40"),
         ({"temperature_c": "4"}, "temperature_c", "between 5 and 40"),

@@ -120,7 +120,7 @@ def policy() -> Any:
     errors: dict[str, str] = {}
     status = 200
     if request.method == "POST":
-        p = Parser()
+        p = forms.parser()
         new, since, reason = _policy_form(p, request.form)
         if p.ok and new is not None and since is not None and reason is not None:
             records.add_policy(db, new, since, reason, _actor())

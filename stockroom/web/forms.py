@@ -28,6 +28,11 @@ def field(name: str) -> Any:
     return value
 
 
+def parser() -> Parser:
+    """The Parser of an HTML form: as strict as the JSON API's, but an unambiguous decimal comma is read."""
+    return Parser(decimal_comma=True)
+
+
 def date(
     parser: Parser,
     raw: Any,

@@ -115,7 +115,7 @@ def new_batch() -> Any:
             return forms.reshow("intake/new.html", exc, **_batch_context(pols, request.form))
         return _batch_page(pols, request.form, plan=plan, warnings=warnings)
     try:
-        values, warnings = read_batch(request.form, pols, today)
+        values, warnings = read_batch(request.form, pols, today, decimal_comma=True)
     except InvalidInput as exc:
         return forms.reshow("intake/new.html", exc, **_batch_context(pols, request.form, plan=_quiet_plan(pols)))
     row = records.create_batch(db, values, user.username)
@@ -372,7 +372,7 @@ def work_out_plan(
     data: field name -> raw value (strings or JSON numbers); nominal in mol/L, volume in L, assay in
     % w/w, density in g/mL at 20 °C. Returns (plan, warnings). Raises InvalidInput naming form fields.
     """
-    p = Parser()
+    p = Parser(decimal_comma=not strict_keys)  # the form reads "0,1" as 0.1; the JSON API refuses a comma
     if strict_keys:
         p.known_keys(data, PLAN_KEYS)
     fields = _read_plan_fields(p, data, pols, need_concentrate=True)
@@ -397,14 +397,16 @@ def _text_or_none(raw: Any) -> str | None:
     return raw.strip() if isinstance(raw, str) and raw.strip() else None
 
 
-def read_batch(form: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], today: dt.date) -> tuple[dict[str, Any], list[str]]:
+def read_batch(
+    form: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], today: dt.date, *, decimal_comma: bool = False
+) -> tuple[dict[str, Any], list[str]]:
     """The register form, checked, as records.create_batch takes it, and the warnings to show.
 
     form: the posted fields; today: the lab's date (prepared_on may not be later). Returns
     (values, warnings): nominal in mol/L, volume in L, assay as a mass fraction, density in g/mL.
-    Raises InvalidInput naming every bad field.
+    Raises InvalidInput naming every bad field. decimal_comma: True at the form's door (not the API's).
     """
-    p = Parser()
+    p = Parser(decimal_comma=decimal_comma)
     fields = _read_plan_fields(p, form, pols, need_concentrate=False)
     prepared_on = forms.date(p, form.get("prepared_on"), "prepared_on", not_after=today)
     prepared_by = p.text(form.get("prepared_by"), "prepared_by", max_length=80)
@@ -563,7 +565,7 @@ def work_out_adjustment(
 
     Returns (basis used, plan). Raises InvalidInput naming the form's fields.
     """
-    p = Parser()
+    p = forms.parser()
     if not bases:
         raise InvalidInput([FieldError("basis", "this batch has no standardization yet: there is nothing to adjust from")])
     key = p.choice(args.get("basis"), "basis", [b["key"] for b in bases], default=bases[0]["key"])

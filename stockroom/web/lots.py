@@ -21,7 +21,6 @@ from stockroom.db import get_db
 from stockroom.errors import InvalidInput
 from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
-from stockroom.web.inputs import Parser
 from stockroom.web.intake import read_percent
 from stockroom.web.once import once
 
@@ -134,7 +133,7 @@ def read_lot(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, Any], l
     today: the lab's date. Returns (values with assay and U as mass fractions, warnings).
     Raises InvalidInput naming every bad field.
     """
-    p = Parser()
+    p = forms.parser()
     std = None
     raw = form.get("substance")
     if raw is None or not str(raw).strip():

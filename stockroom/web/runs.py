@@ -154,7 +154,7 @@ def new_run(code: str) -> Any:
     ctx["purpose"] = form.get("purpose") if form.get("purpose") in run_input.PURPOSES else "certify"
     actor = user.username if user else "?"
     try:
-        run = run_input.parse_run(data, today=today, prepared_on=_prepared_on(batch))
+        run = run_input.parse_run(data, today=today, prepared_on=_prepared_on(batch), decimal_comma=True)
         if form.get("action") != "record":
             # "Compute" without JavaScript: show the same result the live preview shows, store nothing.
             result = workflow.compute_run(db, current_app.config, batch, run)
