@@ -283,7 +283,7 @@ def _show(inst: Instrument, values: Mapping[str, Any], errors: Mapping[str, str]
     from stockroom import recall as recall_mod
 
     recalls = [rc for rc in recall_mod.list_recalls(db) if rc.subject_kind == "instrument" and rc.subject_id == inst.id]
-    return render_template(
+    return forms.render_form(
         "instruments/show.html",
         inst=inst,
         standing=inst_mod.standing(inst, today),

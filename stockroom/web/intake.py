@@ -171,7 +171,7 @@ def adjust(code: str) -> Any:
     try:
         chosen, result = work_out_adjustment(request.args, batch, bases)
     except InvalidInput as exc:
-        return render_template("intake/adjust.html", values=request.args, errors=exc.fields, adjustment=None, **context), 422
+        return forms.render_form("intake/adjust.html", values=request.args, errors=exc.fields, adjustment=None, **context), 422
     return render_template("intake/adjust.html", values=request.args, errors={}, adjustment=result, basis=chosen, **context)
 
 

@@ -186,7 +186,7 @@ def page() -> Any:
         day, titrant, bench = parse_question(request.args, strict=False, default_day=today)
     except InvalidInput as exc:
         context["errors"] = exc.fields
-        return render_template("labday/index.html", **context), 422
+        return forms.render_form("labday/index.html", **context), 422
     query: dict[str, Any] = {
         "date": day.isoformat(),
         **({"titrant": titrant} if titrant else {}),
@@ -338,7 +338,7 @@ def _correct_form(
     choices: list[ld.LabDayEntry],
     status: int = 200,
 ) -> tuple[str, int]:
-    return render_template(
+    return forms.render_form(
         "labday/correct.html",
         values=values,
         errors=errors,
