@@ -38,7 +38,7 @@ from stockroom.records.hazard_data import (
     record_classification,
 )
 from stockroom.records.label_prints import next_serial, record_print
-from stockroom.records.lots import LOT_FIELDS, create_lot, list_lots, lot_by_id
+from stockroom.records.lots import LOT_FIELDS, create_lot, list_lots, lot_by_code, lot_by_id
 from stockroom.records.policies import add_policy, policies, policy_for, policy_history
 from stockroom.records.runs import (
     REPLICATE_FIELDS,
@@ -79,6 +79,7 @@ __all__ = [
     "exclude_replicate",
     "latest_results",
     "list_lots",
+    "lot_by_code",
     "lot_by_id",
     "next_batch_code",
     "next_serial",
