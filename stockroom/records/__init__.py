@@ -40,6 +40,7 @@ from stockroom.records.hazard_data import (
 from stockroom.records.label_prints import next_serial, record_print
 from stockroom.records.lots import LOT_FIELDS, create_lot, list_lots, lot_by_code, lot_by_id
 from stockroom.records.policies import add_policy, policies, policy_for, policy_history
+from stockroom.records.registered_in_error import mark_registered_in_error, registration_in_error_of
 from stockroom.records.runs import (
     REPLICATE_FIELDS,
     RUN_FIELDS,
@@ -97,6 +98,8 @@ __all__ = [
     "utc_now",
     "verify_chain",
     "with_amendments",
+    "mark_registered_in_error",
+    "registration_in_error_of",
     "withdraw_batch",
     "withdrawal_of",
 ]

@@ -71,7 +71,7 @@ def spoken(name: str) -> str:
     return words[:1].upper() + words[1:] if words else "This form"
 
 
-def render_form(template: str, *, errors: dict[str, str], **context: Any) -> str:
+def render_form(template: str, *, errors: Mapping[str, str], **context: Any) -> str:
     """Render a form; when it carries errors, each is listed under the label the form shows for its field.
 
     The labels are read from the form itself (a first rendering), so the list at the top of the form

@@ -206,6 +206,49 @@ def withdraw(code: str) -> Any:
     return redirect(url_for("batches.show", code=batch["code"]), code=303)
 
 
+IN_ERROR_LABELS: dict[str, str] = {"reason": "What was registered by mistake"}
+
+
+@bp.route("/batches/<code>/registered-in-error", methods=["GET", "POST"])
+@require("batch.withdraw")
+@once
+def registered_in_error(code: str) -> Any:
+    """Mark a batch registered by mistake, with the reason: a new record; the batch's rows stay as written."""
+    db = get_db()
+    batch = records.batch_by_code(db, code)
+    context: dict[str, Any] = {
+        "batch": batch,
+        "existing": records.registration_in_error_of(db, batch["id"]),
+        "withdrawal": records.withdrawal_of(db, batch["id"]),
+        "released": bool(readmodel.batch_facts(db, batch["id"]).releases),
+        "labels": IN_ERROR_LABELS,
+    }
+    if request.method != "POST":  # HEAD answers like GET and never writes
+        return render_template("intake/registered_in_error.html", values={}, errors={}, **context)
+    user = current_user()
+    assert user is not None
+    try:
+        p = forms.parser()
+        reason = p.text(request.form.get("reason"), "reason", required=False, max_length=1000)
+        if reason is None and not p.has_error("reason"):
+            p.error("reason", "is required: say what was registered by mistake (a second entry, the wrong reagent…)")
+        p.raise_if_errors()
+        assert reason is not None
+        records.mark_registered_in_error(db, batch["id"], lab_today(), reason, user.username)
+    except InvalidInput as exc:
+        return forms.reshow("intake/registered_in_error.html", exc, **context)
+    except Conflict as exc:
+        context["existing"] = records.registration_in_error_of(db, batch["id"])
+        page = render_template("intake/registered_in_error.html", values=request.form, errors={}, conflict=exc.message, **context)
+        return page, 409
+    flash(
+        f"Batch {batch['code']} is marked registered in error: it cannot be standardized, released or "
+        "offered for a lab day. Its entries stay on record.",
+        "info",
+    )
+    return redirect(url_for("batches.show", code=batch["code"]), code=303)
+
+
 # ------------------------------------------------------------------------------------ page context
 
 

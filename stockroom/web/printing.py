@@ -102,6 +102,8 @@ def _context(
         content = pdflabels.label_content(db, _label_config(), batch, on)
     except Conflict as exc:
         problem = exc.message
+    if records.registration_in_error_of(db, batch["id"]) is not None:
+        problem = f"{batch['code']} is marked registered in error: no label is printed for it"
     history = readmodel.batch_history(db, batch["id"])
     facts = readmodel.batch_facts(db, batch["id"])
     report = status_on(facts, on)
