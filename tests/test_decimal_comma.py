@@ -113,3 +113,21 @@ def test_the_json_api_stays_strict(app, client, make_user):
     assert count(app, "batches") == 0
     plan = client.post("/api/v1/preparation/plan", json={"reagent": "HCl", "nominal_molarity": "0,1", "volume_l": 1})
     assert plan.status_code == 422 and "not a comma" in plan.get_json()["errors"][0]["message"]
+
+
+def test_the_form_pages_live_helpers_read_the_comma_as_their_form_does(client):
+    # The register page's calculator sends X-Stockroom-Door: form (stockroom/static/intake.js).
+    body = {
+        "reagent": "HCl",
+        "nominal_molarity": "0,1",
+        "volume_l": "1",
+        "concentrate_assay_pct": "37",
+        "concentrate_density_g_ml": "1,19",
+    }
+    helper = client.post("/api/v1/preparation/plan", json=body, headers={"X-Stockroom-Door": "form"})
+    assert helper.status_code == 200, helper.get_json()
+    program = client.post("/api/v1/preparation/plan", json=body)
+    assert program.status_code == 422
+    assert {e["field"] for e in program.get_json()["errors"]} == {"nominal_molarity", "concentrate_density_g_ml"}
+    ambiguous = client.post("/api/v1/preparation/plan", json=dict(body, volume_l="1,000"), headers={"X-Stockroom-Door": "form"})
+    assert ambiguous.status_code == 422 and "could be 1.000 or 1000" in ambiguous.get_json()["errors"][0]["message"]

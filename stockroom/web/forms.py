@@ -33,6 +33,18 @@ def parser() -> Parser:
     return Parser(decimal_comma=True)
 
 
+FORM_DOOR_HEADER = "X-Stockroom-Door"
+
+
+def from_form_page() -> bool:
+    """Whether a JSON request is a form page's live helper (its script sends X-Stockroom-Door: form).
+
+    The live calculator and the run preview then read numbers as the form they serve will (a decimal
+    comma where unambiguous); a program calling the JSON API sends no such header and stays strict.
+    """
+    return request.headers.get(FORM_DOOR_HEADER, "").strip().lower() == "form"
+
+
 def date(
     parser: Parser,
     raw: Any,

@@ -137,7 +137,8 @@ def plan_api() -> Any:
         return anonymous_response()
     data = read_json_body()  # content type, size, depth and characters, as at every JSON endpoint
     try:
-        plan, warnings = work_out_plan(data, records.policies(get_db(), lab_today()), strict_keys=True)
+        pols = records.policies(get_db(), lab_today())
+        plan, warnings = work_out_plan(data, pols, strict_keys=True, decimal_comma=forms.from_form_page())
     except InvalidInput as exc:
         return jsonify({"errors": [e.as_dict() for e in exc.errors]}), 422
     return jsonify(plan_json(plan, warnings))
@@ -408,14 +409,15 @@ def water_warning(t: chemistry.Titrant, water_grade: str | None) -> str | None:
 
 
 def work_out_plan(
-    data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], strict_keys: bool = False
+    data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], strict_keys: bool = False, decimal_comma: bool | None = None
 ) -> tuple[preparation.PreparationPlan, list[str]]:
     """The preparation plan for the calculator's fields (form or JSON values), with warnings.
 
     data: field name -> raw value (strings or JSON numbers); nominal in mol/L, volume in L, assay in
     % w/w, density in g/mL at 20 °C. Returns (plan, warnings). Raises InvalidInput naming form fields.
     """
-    p = Parser(decimal_comma=not strict_keys)  # the form reads "0,1" as 0.1; the JSON API refuses a comma
+    # The form reads "0,1" as 0.1; the JSON API refuses a comma unless the form page's script asks.
+    p = Parser(decimal_comma=not strict_keys if decimal_comma is None else decimal_comma)
     if strict_keys:
         p.known_keys(data, PLAN_KEYS)
     fields = _read_plan_fields(p, data, pols, need_concentrate=True)
