@@ -72,7 +72,7 @@ def build_demo(path: str, today: dt.date | None = None, password: str | None = N
             with dbmod.clock_at(dt.datetime.combine(today + dt.timedelta(days=run_day), dt.time(12), dt.UTC)):
                 run_id, _ = workflow.record_run(conn, config, batch, run, actor)
                 if r.get("decision") == "accept":
-                    workflow.accept(conn, run_id, actor)
+                    workflow.accept(conn, run_id, actor, reason=r.get("reason", ""))
                 elif r.get("decision") == "reject":
                     workflow.reject(conn, run_id, r["reason"], actor)
         for b in scenario["batches"]:

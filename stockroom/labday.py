@@ -450,6 +450,8 @@ def _why_not(batch: BatchRecord, on: dt.date) -> str:
         first = min((r.released_on for r in facts.releases), default=None)
         later = f" (first released {first.isoformat()})" if first else ""
         return f"{batch.code} was not yet standardized{later}"
+    if report.status is Status.REGISTERED_IN_ERROR:
+        return f"{batch.code} was registered in error"
     if report.status is Status.WITHDRAWN and facts.withdrawn_on is not None:
         return f"{batch.code} had been withdrawn on {facts.withdrawn_on.isoformat()}"
     if report.status is Status.EXPIRED and report.release is not None:

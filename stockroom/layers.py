@@ -55,6 +55,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.records.lots",
             "stockroom.records.policies",
             "stockroom.records.runs",
+            "stockroom.records.registered_in_error",
             "stockroom.records.withdrawals",
         ),
     ),

@@ -2,8 +2,10 @@
 
 Nothing here guesses: a number is a real JSON number or a plain decimal string; true/false, NaN,
 infinities, a decimal comma and empty text are refused with a sentence saying what to write
-instead. A Parser collects every FieldError of a request so one answer can name them all; field
-names are the request's own paths, e.g. `replicates[2].mass_g` (see field_path).
+instead. The one exception is the HTML forms' door (Parser(decimal_comma=True)), which reads a
+decimal comma where it cannot be a thousands separator (form_decimal). A Parser collects every
+FieldError of a request so one answer can name them all; field names are the request's own paths,
+e.g. `replicates[2].mass_g` (see field_path).
 """
 
 from __future__ import annotations
@@ -184,6 +186,37 @@ def number_problem(raw: Any) -> tuple[float | None, str | None]:
     return None, f"must be a number, not {_kind(raw)}"
 
 
+_ONE_DECIMAL_COMMA = re.compile(r"([+-]?)([0-9]*),([0-9]+)")
+
+
+def form_decimal(raw: Any) -> tuple[Any, str | None]:
+    """A form's typed number with a decimal comma read as a point where that is unambiguous: (value, problem).
+
+    The HTML forms' door only (the JSON API stays strict: a comma there is refused by number_problem).
+    One comma and no point, with digits after it, is a decimal sign ("0,1012" -> "0.1012", "12,5" ->
+    "12.5") unless it could be a thousands separator: a non-zero whole part followed by exactly three
+    digits ("1,234" reads as 1.234 or as 1234), which is refused, as are two commas ("1,234,5") and a
+    comma with a point ("1,234.5"). Anything else is returned as typed for number_problem to judge.
+    """
+    if not isinstance(raw, str) or "," not in raw:
+        return raw, None
+    text = raw.strip()
+    if "." in text:
+        return None, "mixes a comma and a point: write the number with one decimal sign and no thousands separators, e.g. 1234.5"
+    if text.count(",") > 1:
+        return None, "has more than one comma: write the number with one decimal sign and no thousands separators, e.g. 1234.5"
+    m = _ONE_DECIMAL_COMMA.fullmatch(text)
+    if m is None:
+        return raw, None
+    sign, whole, fraction = m.groups()
+    if whole.lstrip("0") and len(fraction) == 3:
+        return None, (
+            f"{_quote(text)} could be {sign}{whole}.{fraction} or {sign}{whole}{fraction}: "
+            f"write it with a point for the decimal sign (e.g. {sign}{whole}.{fraction}) and no thousands separator"
+        )
+    return f"{sign}{whole or '0'}.{fraction}", None
+
+
 def _quote(text: str) -> str:
     return repr(text if len(text) <= 20 else text[:20] + "…")
 
@@ -214,8 +247,11 @@ def _absent(raw: Any) -> bool:
 class Parser:
     """Collects FieldErrors while reading one request; raise_if_errors() ends the reading."""
 
-    def __init__(self) -> None:
+    def __init__(self, *, decimal_comma: bool = False) -> None:
         self.errors: list[FieldError] = []
+        # True at the HTML forms' door: an unambiguous decimal comma is read (form_decimal); the
+        # JSON API and the CSV sheet keep False and refuse every comma.
+        self.decimal_comma = decimal_comma
 
     @property
     def ok(self) -> bool:
@@ -258,6 +294,11 @@ class Parser:
             if required:
                 self.error(field, "is required")
             return None
+        if self.decimal_comma:
+            raw, problem = form_decimal(raw)
+            if problem is not None:
+                self.error(field, problem)
+                return None
         value, problem = number_problem(raw)
         if problem is not None:
             self.error(field, problem)

@@ -72,6 +72,7 @@ class Status(StrEnum):
     DRIFTING = "drifting"
     EXPIRED = "expired"
     WITHDRAWN = "withdrawn"
+    REGISTERED_IN_ERROR = "registered_in_error"
 
     @property
     def label(self) -> str:
@@ -85,6 +86,7 @@ _LABELS = {
     Status.DRIFTING: "Drifting",
     Status.EXPIRED: "Expired",
     Status.WITHDRAWN: "Withdrawn",
+    Status.REGISTERED_IN_ERROR: "Registered in error",
 }
 
 # Most urgent first: the order the dashboard lists batches in.
@@ -95,6 +97,7 @@ URGENCY = (
     Status.IN_SERVICE,
     Status.EXPIRED,
     Status.WITHDRAWN,
+    Status.REGISTERED_IN_ERROR,
 )
 
 
@@ -169,6 +172,9 @@ class BatchFacts:
     rechecks: tuple[CheckFact, ...] = ()
     withdrawn_on: dt.date | None = None
     reviews: tuple[ReviewFact, ...] = ()
+    # The lab date the batch was marked registered in error (a mistaken entry), or None. Once known it
+    # holds for every date asked: the registration itself was the mistake, so no day had the batch.
+    registered_in_error_on: dt.date | None = None
 
 
 @dataclass(frozen=True)
@@ -228,6 +234,9 @@ def known_by(facts: BatchFacts, known_on: dt.date) -> BatchFacts:
         rechecks=tuple(c for c in facts.rechecks if c.performed_on <= known_on),
         withdrawn_on=facts.withdrawn_on if facts.withdrawn_on is not None and facts.withdrawn_on <= known_on else None,
         reviews=reviews,
+        registered_in_error_on=facts.registered_in_error_on
+        if facts.registered_in_error_on is not None and facts.registered_in_error_on <= known_on
+        else None,
     )
 
 
@@ -244,7 +253,10 @@ def latest_release(facts: BatchFacts, on: dt.date) -> ReleaseFact | None:
 
 
 def release_in_force(facts: BatchFacts, on: dt.date) -> ReleaseFact | None:
-    """The release whose certified value applies on `on`, or None (not yet released, expired, withdrawn)."""
+    """The release whose certified value applies on `on`, or None (not yet released, expired, withdrawn,
+    registered in error)."""
+    if facts.registered_in_error_on is not None:
+        return None
     if facts.withdrawn_on is not None and facts.withdrawn_on <= on:
         return None
     release = latest_release(facts, on)
@@ -304,6 +316,12 @@ _DUE_KINDS = (FlagKind.RECHECK_DUE, FlagKind.RECHECK_OVERDUE)
 
 def status_on(facts: BatchFacts, on: dt.date) -> StatusReport:
     """Derive a batch's status on date `on` from its facts alone (standardizations made after `on` unseen)."""
+    if facts.registered_in_error_on is not None:
+        return StatusReport(
+            Status.REGISTERED_IN_ERROR,
+            on,
+            reasons=(f"marked registered in error on {facts.registered_in_error_on.isoformat()}: never in use",),
+        )
     if facts.withdrawn_on is not None and facts.withdrawn_on <= on:
         return StatusReport(Status.WITHDRAWN, on, reasons=(f"withdrawn on {facts.withdrawn_on.isoformat()}",))
     release = latest_release(facts, on)

@@ -75,7 +75,8 @@ def coarse_statuses(
 ) -> list[tuple[int, str, str | None]]:
     """(batch id, coarse status, since) of every batch that existed on `on`, newest first, from SQL alone.
 
-    The coarse status is "withdrawn", "expired" or "awaiting" exactly as policy.status_on would say, or
+    The coarse status is "registered_in_error", "withdrawn", "expired" or "awaiting" exactly as
+    policy.status_on would say, or
     "live" for a batch whose finer status (in service, re-check due, drifting) needs its history; `since`
     is the ISO date withdrawn or the expiry date, else None. Lists
     that show thousands of batches use this so that only the rows they display pay for the rest.
@@ -86,7 +87,8 @@ def coarse_statuses(
         "(SELECT min(w.withdrawn_on) FROM withdrawals w WHERE w.batch_id = b.id) AS withdrawn_on, "
         "(SELECT r.expires_on FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ? "
         " ORDER BY r.released_on DESC, r.id DESC LIMIT 1) AS expires_on, "
-        "EXISTS (SELECT 1 FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ?) AS released "
+        "EXISTS (SELECT 1 FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ?) AS released, "
+        "(SELECT e.marked_on FROM registrations_in_error e WHERE e.batch_id = b.id) AS in_error_on "
         "FROM batches b WHERE b.prepared_on <= ?"
     )
     params: list[Any] = [day, day, day]
@@ -100,7 +102,9 @@ def coarse_statuses(
     out = []
     for r in db.execute(sql, params):
         since = None
-        if r["withdrawn_on"] is not None and r["withdrawn_on"] <= day:
+        if r["in_error_on"] is not None:  # policy.status_on: registered in error whatever the date asked
+            coarse, since = "registered_in_error", r["in_error_on"]
+        elif r["withdrawn_on"] is not None and r["withdrawn_on"] <= day:
             coarse, since = "withdrawn", r["withdrawn_on"]
         elif not r["released"]:
             coarse = "awaiting"
@@ -110,6 +114,9 @@ def coarse_statuses(
             coarse = "live"
         out.append((int(r["id"]), coarse, since))
     return out
+
+
+COARSE = ("registered_in_error", "expired", "withdrawn", "awaiting")  # the statuses SQL alone tells
 
 
 def views_of(db: sqlite_utils.Database, ids: list[int], on: dt.date) -> list[BatchView]:
@@ -143,7 +150,7 @@ def batch_page(
     """
     coarse = coarse_statuses(db, on, reagent=reagent, search=search)
     end = None if limit is None else offset + limit
-    if status is not None and status not in ("expired", "withdrawn", "awaiting"):
+    if status is not None and status not in COARSE:
         live = views_of(db, [i for i, c, _ in coarse if c == "live"], on)
         matching = [v for v in live if v.report.status.value == status]
         return matching[offset:end], len(matching)
@@ -212,6 +219,9 @@ def batch_history(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any]:
         "runs": runs,
         "releases": releases,
         "withdrawals": dbmod.query(db, "SELECT * FROM withdrawals WHERE batch_id = ? ORDER BY id", [batch_id]),
+        "registrations_in_error": dbmod.query(
+            db, "SELECT * FROM registrations_in_error WHERE batch_id = ? ORDER BY id", [batch_id]
+        ),
         "prints": dbmod.query(db, "SELECT * FROM label_prints WHERE batch_id = ? ORDER BY id", [batch_id]),
         "events": dbmod.query(db, "SELECT * FROM events WHERE batch_id = ? ORDER BY id", [batch_id]),
         "amendments": dbmod.query(

@@ -204,13 +204,14 @@ class RunInput:
 # ------------------------------------------------------------------------------------------ parsing
 
 
-def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None) -> RunInput:
+def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None, decimal_comma: bool = False) -> RunInput:
     """JSON-shaped run data -> RunInput; every broken rule at once as InvalidInput (request paths).
 
     today: the lab's today (a run cannot be dated after it); prepared_on: the batch's preparation
-    date (a run cannot be dated before it), None to skip that rule.
+    date (a run cannot be dated before it), None to skip that rule; decimal_comma: True for the
+    HTML form only (an unambiguous "0,05" reads as 0.05, parsing.form_decimal).
     """
-    p = Parser()
+    p = Parser(decimal_comma=decimal_comma)
     if not isinstance(data, Mapping):
         raise InvalidInput([FieldError("_body", "the run must be a JSON object")])
     bad = _refuse_non_text(p, data, TEXT_KEYS, "")

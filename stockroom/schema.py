@@ -797,6 +797,9 @@ APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY + (
     "api_token_revocations",
     "trail_keying",
 )
+# The tables migration 0008 gave no-replace triggers: fixed, so that a later table (added to
+# APPEND_ONLY_TABLES at the end of this module) does not reach back into an earlier migration.
+_APPEND_ONLY_BY_0008 = APPEND_ONLY_TABLES
 
 
 def _no_replace_triggers(tables: tuple[str, ...]) -> list[str]:
@@ -837,7 +840,7 @@ _KEYED_TRAIL = [
 def _keyed_trail(db: sqlite_utils.Database) -> None:
     for statement in _KEYED_TRAIL:
         db.execute(statement)
-    for statement in _append_only_triggers(("trail_keying",)) + _no_replace_triggers(APPEND_ONLY_TABLES):
+    for statement in _append_only_triggers(("trail_keying",)) + _no_replace_triggers(_APPEND_ONLY_BY_0008):
         db.execute(statement)
 
 
@@ -1267,6 +1270,28 @@ def _titrant_classes(db: sqlite_utils.Database) -> None:
     for row in _CLASS_HAZARDS:
         db.table("hazard_classifications").insert({**row, "recorded_at": now})
 
+
+# A batch registered by mistake (a double entry, the wrong reagent): marked so, with the reason, as a
+# new row. Distinct from a withdrawal (a batch that was in service and is taken out of use): status
+# "registered in error" is derived from it (stockroom.policy.status_on), and such a batch is never
+# standardized, released or offered for a lab day. One row per batch at most.
+@MIGRATIONS(name="0011_registered_in_error")
+def _registered_in_error(db: sqlite_utils.Database) -> None:
+    db.execute(
+        """CREATE TABLE registrations_in_error (
+        id INTEGER PRIMARY KEY,
+        batch_id INTEGER NOT NULL UNIQUE REFERENCES batches (id),
+        marked_on TEXT NOT NULL,                    -- the lab's date it was marked (YYYY-MM-DD)
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )"""
+    )
+    for statement in _append_only_triggers(("registrations_in_error",)) + _no_replace_triggers(("registrations_in_error",)):
+        db.execute(statement)
+
+
+APPEND_ONLY_TABLES = APPEND_ONLY_TABLES + ("registrations_in_error",)
 
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 

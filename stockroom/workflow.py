@@ -249,9 +249,11 @@ class Partner:
 
 
 def check_not_withdrawn(db: sqlite_utils.Database, batch: Mapping[str, Any]) -> None:
-    """Refuse (Conflict) any run on a withdrawn batch: it is out of use for good."""
+    """Refuse (Conflict) any run on a withdrawn batch (out of use for good) or one registered in error."""
     if records.withdrawal_of(db, batch["id"]) is not None:
         raise Conflict(f"batch {batch['code']} is withdrawn; no run can be recorded for it")
+    if records.registration_in_error_of(db, batch["id"]) is not None:
+        raise Conflict(f"batch {batch['code']} is marked registered in error; it cannot be standardized or released")
 
 
 def _condition_errors(titrant: chemistry.Titrant, standard: chemistry.PrimaryStandard, run: RunInput) -> list[FieldError]:
@@ -534,7 +536,20 @@ def _accept_locked(
     if run["purpose"] != "certify":
         return records.decide_run(db, run_id, "accept", reason, actor)
     batch = records.batch_by_id(db, run["batch_id"])
+    check_not_withdrawn(db, batch)  # nor registered in error since the run was recorded
     released_on = released_on or dt.date.fromisoformat(run["performed_on"])
+    in_force = release_in_force(readmodel.batch_facts(db, batch["id"]), released_on)
+    if in_force is not None and not reason.strip():
+        # Replacing a value labels and lab days already use is a correction of the record: it says why.
+        raise InvalidInput(
+            [
+                FieldError(
+                    "reason",
+                    f"is required: this release replaces the certified value in force since {in_force.released_on.isoformat()}; "
+                    "say why the new value supersedes it",
+                )
+            ]
+        )
     policy = records.policy_for(db, batch["reagent"], released_on)
     prepared_on = dt.date.fromisoformat(batch["prepared_on"])
     expires_on = expiry_for(released_on, policy, prepared_on=prepared_on)

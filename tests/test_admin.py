@@ -67,3 +67,28 @@ def test_policy_change_is_a_new_row_in_force_from_its_date(app, signed_in_client
 def test_settings_page_hides_the_secret(signed_in_client):
     html = signed_in_client("admin").get("/admin/settings").get_data(as_text=True)
     assert "BALANCE_LINEARITY_G" in html and "(set; not shown)" in html and "test-only" not in html
+
+
+def _input_value(page: str, name: str) -> str:
+    import re
+
+    found = re.search(rf'<input id="f-{name}" name="{name}" type="[a-z]+" value="([^"]*)"', page)
+    assert found, name
+    return found.group(1)
+
+
+def test_policy_form_starts_from_the_policy_in_force(signed_in_client):
+    # The starting NaOH policy (policy.DEFAULT_POLICIES): 90 days' shelf life, re-check every 14 days,
+    # tolerance 0.5 %, RSD 0.2 %, three replicates, 0.1/0.5/1 mol/L.
+    admin = signed_in_client("admin")
+    page = admin.get("/admin/policy?reagent=NaOH").get_data(as_text=True)
+    assert '<option value="NaOH" selected>' in page
+    assert _input_value(page, "shelf_life_days") == "90"
+    assert _input_value(page, "recheck_interval_days") == "14"
+    assert _input_value(page, "tolerance_pct") == "0.5"
+    assert _input_value(page, "max_rsd_pct") == "0.2"
+    assert _input_value(page, "min_replicates") == "3"
+    assert _input_value(page, "nominal_molarities") == "0.1, 0.5, 1"
+    hcl = admin.get("/admin/policy?reagent=HCl").get_data(as_text=True)
+    assert _input_value(hcl, "shelf_life_days") == "365" and _input_value(hcl, "recheck_interval_days") == "90"
+    assert _input_value(hcl, "reason") == ""

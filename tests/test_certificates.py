@@ -154,7 +154,7 @@ def test_a_superseded_release_says_so_at_the_top(world):
     ]
     meta = {"purpose": "certify", "performed_on": lab_today().isoformat(), "analyst": "M. Lindqvist", "burette_capacity_ml": 50.0}
     run_id, _ = record(db, world["config"], world["naoh"], meta, reps, "setup", lot=world["lot"])
-    second = workflow.accept(db, run_id, "setup")
+    second = workflow.accept(db, run_id, "setup", reason="re-standardized")
     old = flat(text_of(certificates.build_certificate(certificates.certificate_data(db, first, lab_today()))))
     new_release = readmodel.batch_history(db, world["naoh"]["id"])["releases"][-1]
     assert f"SUPERSEDED: release {second} of {new_release['released_on']}" in old

@@ -263,7 +263,7 @@ def test_an_admin_adds_a_classification_and_the_next_label_uses_it(app, signed_i
         ({"hazard_statements": "H2900"}, "hazard_statements", "H followed by three digits"),
         ({"signal_word": "Warning"}, "signal_word", "call for Danger"),
         ({"pictograms": []}, "pictograms", "need GHS05"),
-        ({"min_molarity": "0,5"}, "min_molarity", "use a point"),
+        ({"min_molarity": "1,000"}, "min_molarity", "could be 1.000 or 1000"),
         ({"max_molarity": "0.2"}, "max_molarity", "above the lower limit"),
         ({"reason": ""}, "reason", "is required"),
         ({"effective_from": "2001-01-01"}, "effective_from", "cannot be earlier than"),

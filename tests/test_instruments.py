@@ -358,7 +358,7 @@ def test_register_through_the_form_takes_the_class_tolerance(conn, signed_in_cli
         ({"kind": "flask"}, "kind", "must be one of"),
         ({"capacity": "-5"}, "capacity", "greater than 0"),
         ({"capacity": "30"}, "capacity", "runs offer burettes of 10, 25, 50, 100 mL"),
-        ({"capacity": "50,0"}, "capacity", "not a comma"),
+        ({"capacity": "5,0.0"}, "capacity", "mixes a comma and a point"),
         ({"accuracy_class": "", "tolerance_ml": ""}, "tolerance_ml", "is required"),
         ({"tolerance_ml": "5"}, "tolerance_ml", "at most 1 mL"),
         ({"tolerance_ml": "0.9", "capacity": "25"}, "tolerance_ml", "more than 2 % of 25 mL"),
@@ -491,7 +491,15 @@ def test_a_suspect_burette_reaches_the_values_it_helped_certify(conn, setup, sig
     assert f"/recalls/{rid}" not in staff.get(f"/instruments/{other.id}").get_data(as_text=True)
     # A value certified with the other burette is not reached, even after the recall.
     clean = record_run(staff, form_token, setup, burette_id=str(other.id))
-    assert post(staff, form_token, f"/runs/{clean}/decide", {"decision": "accept"}).status_code == 303
+    assert (
+        post(
+            staff,
+            form_token,
+            f"/runs/{clean}/decide",
+            {"decision": "accept", "reason": "re-made with a checked burette (invented)"},
+        ).status_code
+        == 303
+    )
     assert [r.release_id for r in recall_mod.impact(conn, rid, TODAY).releases] == [release_id]
     states = {b.code: b.state for b in recall_mod.impact(conn, rid, TODAY).batches}
     assert states == {setup["batch"]["code"]: "re-standardized"}

@@ -105,7 +105,9 @@ def test_register_batch_gives_readable_id_awaiting_and_an_audit_event(app, staff
     ("field", "typed", "message"),
     [
         ("volume_l", "twenty", "must be a plain decimal number such as 0.25"),
-        ("nominal_molarity", "0,1", "use a point, not a comma, for the decimal sign: write 0.1"),
+        ("nominal_molarity", "0,1,2", "has more than one comma"),
+        ("volume_l", "1,234.5", "mixes a comma and a point"),
+        ("volume_l", "2,500", "could be 2.500 or 2500"),
         ("volume_l", "-5", "must be between 0.1 and 50 L"),
         ("volume_l", "80", "must be between 0.1 and 50 L"),
         ("nominal_molarity", "-0.1", "must be greater than 0 mol/L and at most 2 mol/L"),
@@ -139,7 +141,7 @@ def test_prepared_in_the_future_is_refused(app, staff, form_token):
 
 
 def test_every_bad_field_is_reported_at_once(app, staff, form_token):
-    resp = post(staff, form_token, "/batches/new", good_form(volume_l="0,5", concentrate_assay_pct="x", prepared_by=""))
+    resp = post(staff, form_token, "/batches/new", good_form(volume_l="0,5,0", concentrate_assay_pct="x", prepared_by=""))
     html = resp.get_data(as_text=True)
     assert resp.status_code == 422 and "3 fields need attention" in html
     for field in ("volume_l", "concentrate_assay_pct", "prepared_by"):
@@ -425,7 +427,7 @@ def test_weak_batch_without_a_concentrate_is_asked_for_one(app, staff):
 
 @pytest.mark.parametrize(
     ("typed", "message"),
-    [("", "is required"), ("0,5", "use a point, not a comma"), ("-2", "must be greater than 0 L and at most 60 L")],
+    [("", "is required"), ("0,5,1", "more than one comma"), ("-2", "must be greater than 0 L and at most 60 L")],
 )
 def test_adjustment_volume_is_checked(app, staff, typed, message):
     batch = released_batch(app, 0.1032)

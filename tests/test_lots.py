@@ -67,7 +67,7 @@ def test_register_a_dried_lot(app, staff, form_token):
     resp = post(staff, form_token, good_lot())
     assert resp.status_code == 303
     (lot,) = lots(app)
-    assert resp.headers["Location"] == f"/lots/{lot['id']}"
+    assert resp.headers["Location"] == "/lots/STD-KHP-001"
     assert lot["substance"] == "KHP" and lot["code"] == "STD-KHP-001"
     assert lot["assay"] == pytest.approx(0.9998) and lot["assay_expanded_u"] == pytest.approx(0.0002)
     assert lot["assay_k"] == 2 and lot["dried_at_c"] == 120 and lot["dried_on"] == days(-2)
@@ -134,7 +134,7 @@ def test_khp_without_a_drying_record_is_registered_with_a_warning(app, staff, fo
         ({"assay_pct": "0.9998"}, "assay_pct", "is in percent: 0.9998 looks like a mass fraction; for 99.98 % type 99.98"),
         ({"assay_pct": "85"}, "assay_pct", "must be greater than 90 % and at most 100.01 %"),
         ({"assay_pct": "100.5"}, "assay_pct", "must be greater than 90 % and at most 100.01 %"),
-        ({"assay_pct": "99,98"}, "assay_pct", "use a point, not a comma, for the decimal sign: write 99.98"),
+        ({"assay_pct": "99,9,8"}, "assay_pct", "has more than one comma"),
         ({"assay_u_pct": "abc"}, "assay_u_pct", "must be a plain decimal number"),
         ({"assay_u_pct": "-0.1"}, "assay_u_pct", "must be between 0 and 2 % w/w"),
         ({"assay_k": "0"}, "assay_k", "must be between 1 and 5"),
@@ -213,7 +213,59 @@ def test_lot_page_and_missing_lot(app, client):
         lot = _lot(conn, "borax", days(30), storage_note="constant-humidity jar")
     finally:
         conn.close()
-    html = unescape(client.get(f"/lots/{lot['id']}").get_data(as_text=True))
+    html = unescape(client.get(f"/lots/{lot['code']}").get_data(as_text=True))
     assert "sodium tetraborate decahydrate" in html and "constant-humidity jar" in html
     assert "Never oven-dry" in html
     assert client.get("/lots/999").status_code == 404
+    assert client.get("/lots/STD-NONE-999").status_code == 404
+
+
+def test_a_lot_is_addressed_by_its_code_and_an_old_number_moves_there(app, client):
+    conn = dbmod.connect(app.config["DATABASE"])
+    try:
+        lot = _lot(conn, "borax", days(30), storage_note="constant-humidity jar")
+    finally:
+        conn.close()
+    moved = client.get(f"/lots/{lot['id']}")
+    assert moved.status_code == 301 and moved.headers["Location"] == f"/lots/{lot['code']}"
+    listing = client.get("/lots/").get_data(as_text=True)
+    assert f'href="/lots/{lot["code"]}"' in listing
+    assert f'href="/lots/{lot["id"]}"' not in listing
+
+
+def test_run_and_batch_pages_link_the_lot_by_its_code(app, signed_in_client, form_token):
+    from formposts import post as post_form
+
+    conn = dbmod.connect(app.config["DATABASE"])
+    try:
+        lot = _lot(conn, "KHP", days(300), dried_on=days(0), dried_at_c=120)
+        batch = records.create_batch(
+            conn,
+            {"reagent": "NaOH", "nominal_molarity": 0.1, "volume_l": 5, "prepared_on": days(-1), "prepared_by": "T"},
+            "setup",
+        )
+    finally:
+        conn.close()
+    staff = signed_in_client("staff")
+    form = {
+        "purpose": "certify",
+        "standard_lot_id": str(lot["id"]),
+        "performed_on": days(0),
+        "analyst": "T",
+        "burette_capacity_ml": "50.0",
+        "action": "record",
+    }
+    for i, (g, t, a, b) in enumerate(
+        [
+            ("12.4581", "11.6402", "0.12", "40.21"),
+            ("12.0117", "11.1891", "0.40", "40.73"),
+            ("11.9012", "11.0759", "0.05", "40.50"),
+        ],
+        1,
+    ):
+        form |= {f"r{i}_gross_g": g, f"r{i}_tare_g": t, f"r{i}_initial_ml": a, f"r{i}_final_ml": b}
+    resp = post_form(staff, form_token, f"/batches/{batch['code']}/runs/new", form)
+    assert resp.status_code == 303
+    link = f'href="/lots/{lot["code"]}"'
+    assert link in staff.get(resp.headers["Location"]).get_data(as_text=True)
+    assert link in staff.get(f"/batches/{batch['code']}").get_data(as_text=True)

@@ -143,7 +143,7 @@ def _cases():
             "/runs/{run}",
             "/runs/{run}/decide",
             "decisions",
-            {"decision": "accept", "released_on": TODAY.isoformat()},
+            {"decision": "accept", "released_on": TODAY.isoformat(), "reason": "replaces the setup release (invented)"},
         ),
         (
             "withdrawal",

@@ -105,12 +105,12 @@ class World:
     def primary(self, key, reagent, prepared, on, lot):
         b = self.batches.get(key) or self.batch(key, reagent, prepared)
         run_id, _ = record(self.conn, self.app.config, b, self.meta(on), PRIMARY, "setup", lot=lot)
-        self.releases.setdefault(key, []).append(workflow.accept(self.conn, run_id, "setup"))
+        self.releases.setdefault(key, []).append(workflow.accept(self.conn, run_id, "setup", reason="re-standardized"))
 
     def secondary(self, key, reagent, prepared, on, ref):
         b = self.batches.get(key) or self.batch(key, reagent, prepared)
         run_id, _ = record(self.conn, self.app.config, b, self.meta(on), SECONDARY, "setup", reference=self.batches[ref])
-        self.releases.setdefault(key, []).append(workflow.accept(self.conn, run_id, "setup"))
+        self.releases.setdefault(key, []).append(workflow.accept(self.conn, run_id, "setup", reason="re-standardized"))
 
     def code(self, key):
         return self.batches[key]["code"]

@@ -147,7 +147,8 @@ def test_record_then_accept_releases_the_batch(app, setup, signed_in_client, for
     [
         ({"r2_final_ml": "0.30"}, "r2_final_ml", "final reading must be greater than the initial"),
         ({"r1_gross_g": "-12.4581"}, "r1_gross_g", "must be greater than 0"),
-        ({"r3_initial_ml": "0,05"}, "r3_initial_ml", "not a comma"),
+        ({"r3_initial_ml": "0,0,5"}, "r3_initial_ml", "more than one comma"),
+        ({"r3_initial_ml": "1,050"}, "r3_initial_ml", "could be 1.050 or 1050"),
         ({"r4_final_ml": "52.10"}, "r4_final_ml", "beyond the scale of the 50 mL burette"),
         ({"r1_temperature_c": "45"}, "r1_temperature_c", "between 5 and 40"),
         ({"temperature_c": "4"}, "temperature_c", "between 5 and 40"),
@@ -346,3 +347,59 @@ def test_the_import_pages_own_example_is_accepted_as_printed(app, setup, signed_
     assert resp.status_code == 200, body[:2000]
     assert "replicate rows read" in body
     assert count(app, "runs") == 0
+
+
+def test_superseding_the_value_in_service_asks_for_a_reason(app, setup, signed_in_client, form_token):
+    staff = signed_in_client("staff")
+    code = setup["batch"]["code"]
+
+    def record():
+        resp = post(staff, form_token, f"/batches/{code}/runs/new", run_form(setup, action="record"))
+        assert resp.status_code == 303
+        return int(re.search(r"/runs/(\d+)", resp.headers["Location"]).group(1))
+
+    first = record()
+    assert post(staff, form_token, f"/runs/{first}/decide", {"decision": "accept"}).status_code == 303  # nothing in force yet
+    second = record()
+    page = staff.get(f"/runs/{second}").get_data(as_text=True)
+    assert "Reason for replacing the value in force (required)" in page
+    before = count(app, "releases"), count(app, "decisions")
+    refused = post(staff, form_token, f"/runs/{second}/decide", {"decision": "accept", "reason": "  "})
+    assert refused.status_code == 422
+    text = refused.get_data(as_text=True)
+    assert "Reason" in text and "replaces the certified value in force" in text and "reason:" not in text
+    assert (count(app, "releases"), count(app, "decisions")) == before
+    ok = post(staff, form_token, f"/runs/{second}/decide", {"decision": "accept", "reason": "new KHP lot; first run was short"})
+    assert ok.status_code == 303
+    conn = dbmod.connect(app.config["DATABASE"])
+    try:
+        run = records.run_by_id(conn, second)
+    finally:
+        conn.close()
+    assert run["decisions"][-1]["reason"] == "new KHP lot; first run was short"
+    assert count(app, "releases") == before[0] + 1
+
+
+def test_superseding_through_the_api_asks_for_a_reason_too(app, setup, make_user, client, signed_in_client, form_token):
+    from stockroom import tokens
+
+    staff = signed_in_client("staff")
+    code = setup["batch"]["code"]
+    ids = []
+    for _ in range(2):
+        resp = post(staff, form_token, f"/batches/{code}/runs/new", run_form(setup, action="record"))
+        ids.append(int(re.search(r"/runs/(\d+)", resp.headers["Location"]).group(1)))
+    conn = dbmod.connect(app.config["DATABASE"])
+    try:
+        user = make_user("api-staff", "staff")
+        secret = tokens.create(conn, user.id, user.username, "bench script")[1]
+    finally:
+        conn.close()
+    headers = {"Authorization": f"Bearer {secret}"}
+    assert client.post(f"/api/v1/runs/{ids[0]}/decision", json={"decision": "accept"}, headers=headers).status_code == 200
+    refused = client.post(f"/api/v1/runs/{ids[1]}/decision", json={"decision": "accept"}, headers=headers)
+    assert refused.status_code == 422
+    assert refused.get_json()["errors"][0]["field"] == "reason"
+    assert count(app, "releases") == 1
+    ok = client.post(f"/api/v1/runs/{ids[1]}/decision", json={"decision": "accept", "reason": "re-made"}, headers=headers)
+    assert ok.status_code == 200 and count(app, "releases") == 2

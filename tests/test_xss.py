@@ -73,7 +73,7 @@ def test_payload_in_every_free_text_field_is_escaped_everywhere(app, signed_in_c
         f"/batches/{batch['code']}",
         f"/runs/{run_id}",
         "/lots/",
-        f"/lots/{lot['id']}",
+        f"/lots/{lot['code']}",
         "/audit",
         "/account/tokens",
         f"/lab-day?date={TODAY.isoformat()}&titrant=NaOH",

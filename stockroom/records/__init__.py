@@ -38,8 +38,9 @@ from stockroom.records.hazard_data import (
     record_classification,
 )
 from stockroom.records.label_prints import next_serial, record_print
-from stockroom.records.lots import LOT_FIELDS, create_lot, list_lots, lot_by_id
+from stockroom.records.lots import LOT_FIELDS, create_lot, list_lots, lot_by_code, lot_by_id
 from stockroom.records.policies import add_policy, policies, policy_for, policy_history
+from stockroom.records.registered_in_error import mark_registered_in_error, registration_in_error_of
 from stockroom.records.runs import (
     REPLICATE_FIELDS,
     RUN_FIELDS,
@@ -82,6 +83,7 @@ __all__ = [
     "exclude_replicate",
     "latest_results",
     "list_lots",
+    "lot_by_code",
     "lot_by_id",
     "next_batch_code",
     "next_serial",
@@ -102,6 +104,8 @@ __all__ = [
     "utc_now",
     "verify_chain",
     "with_amendments",
+    "mark_registered_in_error",
+    "registration_in_error_of",
     "withdraw_batch",
     "withdrawal_of",
 ]

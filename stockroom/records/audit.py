@@ -55,6 +55,7 @@ _ACTIONS = (
     Action("batch.register", "registered a batch", "batches", every_row=True),
     Action("batch.release", "released a batch", "releases", every_row=True),
     Action("batch.withdraw", "withdrew a batch", "withdrawals", every_row=True),
+    Action("batch.registered_in_error", "marked a batch registered in error", "registrations_in_error", every_row=True),
     Action("batch.amend", "corrected a batch detail", "amendments", every_row=True),
     Action("lot.register", "registered a standard lot", "standard_lots", every_row=True),
     # A run is recorded as a certifying run or a re-check: its row has one entry of either.
@@ -131,6 +132,7 @@ _NOUNS: Mapping[str, str] = {
     "decisions": "decision",
     "releases": "release",
     "withdrawals": "withdrawal",
+    "registrations_in_error": "registration in error",
     "label_prints": "label print",
     "amendments": "correction",
     "class_corrections": "class-data correction",

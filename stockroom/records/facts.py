@@ -1,4 +1,4 @@
-"""The recorded facts of batches (releases, accepted re-checks, withdrawal, date prepared), read in bulk.
+"""The recorded facts of batches (releases, re-checks, withdrawal, registration in error, date prepared), read in bulk.
 
 These are the plain values policy.status_on needs, as the record tables hold them. Recalls add review
 facts on top (stockroom.readmodel.facts_of joins the two); this layer does not know about recalls.
@@ -16,7 +16,7 @@ from stockroom.policy import BatchFacts, CheckFact, ReleaseFact
 
 
 def recorded_facts(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = None) -> dict[int, BatchFacts]:
-    """BatchFacts (without review facts) of many batches, or all when None, from four queries in all."""
+    """BatchFacts (without review facts) of many batches, or all when None, from five queries in all."""
     where, params = "", []
     ids = list(batch_ids) if batch_ids is not None else None
     if ids is not None:
@@ -60,6 +60,10 @@ def recorded_facts(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = 
             "SELECT batch_id, min(withdrawn_on) AS withdrawn_on FROM withdrawals" + where + " GROUP BY batch_id", params
         )
     }
+    in_error = {
+        r["batch_id"]: dt.date.fromisoformat(r["marked_on"])
+        for r in db.execute("SELECT batch_id, marked_on FROM registrations_in_error" + where, params)
+    }
     prepared = {
         r["id"]: dt.date.fromisoformat(r["prepared_on"])
         for r in db.execute("SELECT id, prepared_on FROM batches" + (where.replace("batch_id", "id") if where else ""), params)
@@ -70,6 +74,7 @@ def recorded_facts(db: sqlite_utils.Database, batch_ids: Iterable[int] | None = 
             releases=tuple(releases.get(bid, ())),
             rechecks=tuple(checks.get(bid, ())),
             withdrawn_on=withdrawn.get(bid),
+            registered_in_error_on=in_error.get(bid),
         )
         for bid, p in prepared.items()
     }

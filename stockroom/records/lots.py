@@ -60,6 +60,14 @@ def lot_by_id(db: sqlite_utils.Database, lot_id: int) -> dict[str, Any]:
     return rows[0]
 
 
+def lot_by_code(db: sqlite_utils.Database, code: str) -> dict[str, Any]:
+    """One standard lot by its code (e.g. STD-KHP-002, the way people name it); NotFound if none."""
+    rows = dbmod.query(db, "SELECT * FROM standard_lots WHERE code = ?", [code])
+    if not rows:
+        raise NotFound(f"no standard lot {code}")
+    return rows[0]
+
+
 def list_lots(db: sqlite_utils.Database) -> list[dict[str, Any]]:
     """Every standard lot, newest first."""
     return dbmod.query(db, "SELECT * FROM standard_lots ORDER BY id DESC")

@@ -25,6 +25,8 @@ def withdraw_batch(db: sqlite_utils.Database, batch_id: int, withdrawn_on: dt.da
     with dbmod.write(db):
         if withdrawal_of(db, batch_id) is not None:
             raise Conflict("this batch is already withdrawn")
+        if dbmod.query(db, "SELECT 1 FROM registrations_in_error WHERE batch_id = ? LIMIT 1", [batch_id]):
+            raise Conflict("this batch is marked registered in error: it was never in service, so there is nothing to withdraw")
         return record_row(
             db,
             "withdrawals",

@@ -150,7 +150,8 @@
     planBox.setAttribute("aria-busy", "true");
     fetch(planUrl, {
       method: "POST",
-      headers: {"Content-Type": "application/json", "Accept": "application/json"},
+      // The form's own door: the server reads an unambiguous decimal comma as the form will (parsing.form_decimal).
+      headers: {"Content-Type": "application/json", "Accept": "application/json", "X-Stockroom-Door": "form"},
       credentials: "same-origin",
       body: JSON.stringify(body)
     }).then(function (resp) {

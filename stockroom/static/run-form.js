@@ -195,7 +195,8 @@
     }
     var mine = ++seq;
     fetch(form.dataset.previewUrl, {
-      method: "POST", headers: { "Content-Type": "application/json", "Accept": "application/json" },
+      // The form's own door: the server reads an unambiguous decimal comma as the form will (parsing.form_decimal).
+      method: "POST", headers: { "Content-Type": "application/json", "Accept": "application/json", "X-Stockroom-Door": "form" },
       body: JSON.stringify(built.req), credentials: "same-origin"
     }).then(function (resp) {
       return resp.json().then(function (data) { return { status: resp.status, data: data }; });
@@ -213,6 +214,40 @@
     if (timer) { clearTimeout(timer); }
     timer = setTimeout(refresh, 250);
   }
+
+  // Tab goes along a row's readings only (the cells typed from the balance and the burette); the
+  // row's other controls (leave-out tick, its reason, any link) leave the Tab path and are reached
+  // with the arrow keys from the row's cells, or by pointer. Without this script the natural order
+  // keeps every control on the Tab path.
+  var READING = "input[inputmode=decimal]";
+  function offPath(row) {
+    row.querySelectorAll("input, select, a, button").forEach(function (c) {
+      if (!c.matches(READING)) { c.setAttribute("tabindex", "-1"); }
+    });
+  }
+  rows().forEach(offPath);
+  function atEdge(input, forward) {
+    if (input.type !== "text" && input.type !== "") { return true; }  // a tick box: always at its edge
+    try {
+      var end = forward ? input.value.length : 0;
+      return input.selectionStart === end && input.selectionEnd === end;
+    } catch (e) { return true; }
+  }
+  tbody.addEventListener("keydown", function (ev) {
+    if (ev.key !== "ArrowRight" && ev.key !== "ArrowLeft") { return; }
+    var forward = ev.key === "ArrowRight";
+    if (!atEdge(ev.target, forward)) { return; }
+    var cells = Array.prototype.slice.call(ev.target.closest("tr").querySelectorAll("input, select, a, button"));
+    var next = cells[cells.indexOf(ev.target) + (forward ? 1 : -1)];
+    if (next) { ev.preventDefault(); next.focus(); }
+  });
+  // Ticking "leave out" asks for the reason at once.
+  tbody.addEventListener("change", function (ev) {
+    if (ev.target.dataset.key === "exclude" && ev.target.checked) {
+      var why = ev.target.closest("tr").querySelector("[data-key=exclude_reason]");
+      if (why) { why.focus(); }
+    }
+  });
 
   // Enter in a grid cell moves to the first column of the next row (adding one if needed) instead
   // of submitting the form half-typed.
@@ -245,6 +280,7 @@
     cell.dataset.row = String(n);
     cell.textContent = "";
     tbody.appendChild(copy);
+    offPath(copy);
     return copy;
   }
 

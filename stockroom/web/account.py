@@ -12,6 +12,7 @@ from stockroom import accounts
 from stockroom.accounts import SignInLocked, SignInRefused
 from stockroom.db import get_db
 from stockroom.errors import InvalidInput
+from stockroom.web import forms
 from stockroom.web.access import begin_session, current_user, end_session, login_required, public, safe_next
 from stockroom.web.once import made, once
 
@@ -124,7 +125,7 @@ def password() -> Any:
         problems = accounts.password_problems(new, username=user.username, display_name=user.display_name)
         if problems:
             errors.setdefault("new_password", problems[0])
-        return render_template("account/password.html", errors=errors, notice=None), 422
+        return forms.render_form("account/password.html", errors=errors, notice=None), 422
     try:
         updated = accounts.change_password(get_db(), user, current, new)
     except SignInLocked as exc:
@@ -132,7 +133,7 @@ def password() -> Any:
     except SignInRefused as exc:
         return render_template("account/password.html", errors={}, notice=exc.message), 403
     except InvalidInput as exc:
-        return render_template("account/password.html", errors=exc.fields, notice=None), 422
+        return forms.render_form("account/password.html", errors=exc.fields, notice=None), 422
     begin_session(updated)
     flash("Password changed. Any other browser signed in as you has been signed out.", "info")
     return redirect(_home(), code=303)
@@ -163,7 +164,7 @@ def first_run() -> Any:
         except InvalidInput as exc:
             errors = exc.fields
     if errors:
-        return render_template("account/first_run.html", errors=errors, form=form), 422
+        return forms.render_form("account/first_run.html", errors=errors, form=form), 422
     begin_session(user)
     flash(
         f"Welcome, {user.display_name}: you are this stockroom's first administrator. Add the other "
@@ -193,7 +194,7 @@ def api_tokens() -> Any:
             made()  # a second submission shows the list (the secret is shown once only)
         except InvalidInput as exc:
             errors, status = exc.fields, 422
-    return render_template(
+    return forms.render_form(
         "account/tokens.html", tokens=tokens.list_for(db, user.id), secret=secret, errors=errors, values=request.form
     ), status
 

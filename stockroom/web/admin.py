@@ -95,6 +95,23 @@ def _policy_form(p: Parser, form: Any) -> tuple[ReagentPolicy | None, dt.date | 
     return (ReagentPolicy(reagent, tuple(sorted(set(nominals))), shelf, interval, tol / 100, rsd / 100, min_n), since, reason)
 
 
+def _policy_start(in_force: list[ReagentPolicy], reagent: str | None, today: dt.date) -> dict[str, str]:
+    """The policy form's first values: the policy in force for `reagent` (else the first one), to be changed."""
+    chosen = next((p for p in in_force if p.reagent == reagent), in_force[0] if in_force else None)
+    values = {"effective_from": today.isoformat()}
+    if chosen is not None:
+        values |= {
+            "reagent": chosen.reagent,
+            "nominal_molarities": ", ".join(f"{m:g}" for m in chosen.nominal_molarities),
+            "shelf_life_days": str(chosen.shelf_life_days),
+            "recheck_interval_days": str(chosen.recheck_interval_days),
+            "tolerance_pct": f"{chosen.tolerance_rel * 100:g}",
+            "max_rsd_pct": f"{chosen.max_rsd * 100:g}",
+            "min_replicates": str(chosen.min_replicates),
+        }
+    return values
+
+
 @bp.route("/policy", methods=["GET", "POST"])
 @require("policy.edit")
 @once
@@ -103,7 +120,7 @@ def policy() -> Any:
     errors: dict[str, str] = {}
     status = 200
     if request.method == "POST":
-        p = Parser()
+        p = forms.parser()
         new, since, reason = _policy_form(p, request.form)
         if p.ok and new is not None and since is not None and reason is not None:
             records.add_policy(db, new, since, reason, _actor())
@@ -115,12 +132,13 @@ def policy() -> Any:
             return redirect(url_for("admin.policy"), 303)
         errors, status = InvalidInput(p.errors).fields, 422
     today = lab_today()
+    in_force = sorted(records.policies(db, today).values(), key=lambda x: x.reagent)
     return forms.render_form(
         "admin/policy.html",
-        in_force=sorted(records.policies(db, today).values(), key=lambda x: x.reagent),
+        in_force=in_force,
         history=records.policy_history(db),
         errors=errors,
-        values=request.form if request.method == "POST" else {"effective_from": today.isoformat()},
+        values=request.form if request.method == "POST" else _policy_start(in_force, request.args.get("reagent"), today),
         reagent_options=[(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
     ), status
 

@@ -8,7 +8,7 @@ from flask import Flask, jsonify, render_template
 from werkzeug.exceptions import HTTPException, SecurityError
 
 from stockroom.errors import InvalidInput, StockroomError
-from stockroom.web import csrf, install, wants_json
+from stockroom.web import csrf, forms, install, wants_json
 
 
 def register(app: Flask) -> None:
@@ -66,6 +66,9 @@ def register(app: Flask) -> None:
             else:
                 body = {"errors": [{"field": "_", "message": exc.message}]}
             return jsonify(body), exc.status
+        if isinstance(exc, InvalidInput):  # each field by the words the form uses, never its internal name
+            listed = forms.problems(exc)
+            return render_template("error.html", status=exc.status, message=None, problems=listed), exc.status
         return render_template("error.html", status=exc.status, message=exc.message), exc.status
 
     @app.errorhandler(HTTPException)

@@ -9,7 +9,7 @@ from flask import Blueprint, flash, redirect, render_template, request, url_for
 from stockroom import chemistry, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, release_in_force
-from stockroom.web import int_arg, lab_today, parse_date_arg
+from stockroom.web import forms, int_arg, lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
 from stockroom.web.once import once
@@ -100,7 +100,7 @@ def amend(code: str) -> Any:
     """Correct one descriptive detail of a batch, with a reason; the original entry stays as written."""
     db = get_db()
     batch = records.batch_by_code(db, code)
-    p = Parser()
+    p = forms.parser()
     name = p.choice(request.form.get("field") or None, "field", records.AMENDABLE_BATCH_FIELDS)
     reason = p.text(request.form.get("reason") or None, "reason", max_length=500)
     raw = request.form.get("new_value")

@@ -7,12 +7,15 @@ field, HTTP 422, and nothing written.
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import html
 import re
+from collections.abc import Callable, Mapping
 from typing import Any
 
-from flask import render_template, request
+from flask import g, render_template, request
 
+from stockroom import run_input
 from stockroom.errors import InvalidInput
 from stockroom.web.inputs import Parser
 
@@ -23,6 +26,23 @@ def field(name: str) -> Any:
     if value is None or value.strip() == "":
         return None
     return value
+
+
+def parser() -> Parser:
+    """The Parser of an HTML form: as strict as the JSON API's, but an unambiguous decimal comma is read."""
+    return Parser(decimal_comma=True)
+
+
+FORM_DOOR_HEADER = "X-Stockroom-Door"
+
+
+def from_form_page() -> bool:
+    """Whether a JSON request is a form page's live helper (its script sends X-Stockroom-Door: form).
+
+    The live calculator and the run preview then read numbers as the form they serve will (a decimal
+    comma where unambiguous); a program calling the JSON API sends no such header and stays strict.
+    """
+    return request.headers.get(FORM_DOOR_HEADER, "").strip().lower() == "form"
 
 
 def date(
@@ -63,7 +83,7 @@ def spoken(name: str) -> str:
     return words[:1].upper() + words[1:] if words else "This form"
 
 
-def render_form(template: str, *, errors: dict[str, str], **context: Any) -> str:
+def render_form(template: str, *, errors: Mapping[str, str], **context: Any) -> str:
     """Render a form; when it carries errors, each is listed under the label the form shows for its field.
 
     The labels are read from the form itself (a first rendering), so the list at the top of the form
@@ -80,3 +100,65 @@ def render_form(template: str, *, errors: dict[str, str], **context: Any) -> str
 def reshow(template: str, exc: InvalidInput, status: int = 422, **context: Any) -> tuple[str, int]:
     """Render the form again with what was typed and each error beside its field, listed by its label."""
     return render_form(template, values=request.form, errors=exc.fields, **context), status
+
+
+# ------------------------------------------------------------------ a refusal answered by the error page
+
+# The words a form without its own page of errors uses for its fields (a decision, a leave-out, a
+# disabled account, a batch correction). A view may name its own with @labelled(table).
+COMMON_LABELS: dict[str, str] = {
+    "reason": "Reason",
+    "decision": "Decision",
+    "released_on": "Released on",
+    "result_version": "Result shown",
+    "position": "Replicate",
+    "field": "Detail to correct",
+    "new_value": "Corrected value",
+    "label": "What will use it",
+    "new_password": "New password",
+    "current_password": "Current password",
+    "confirm_password": "New password again",
+    "password": "Password",
+    "username": "Username",
+    "display_name": "Name",
+    "role": "Role",
+    "layout": "Label layout",
+    "copies": "Copies",
+    "start": "Start at label",
+    "on": "Date shown",
+    "date": "Lab day",
+    "q": "Search",
+    "page": "Page",
+}
+
+
+def labelled(table: Mapping[str, str]) -> Callable[[Callable[..., Any]], Callable[..., Any]]:
+    """Decorate a view: a refusal it lets reach the error page names its fields by these labels."""
+
+    def wrap(view: Callable[..., Any]) -> Callable[..., Any]:
+        @functools.wraps(view)
+        def inner(*args: Any, **kwargs: Any) -> Any:
+            g.form_labels = table
+            return view(*args, **kwargs)
+
+        return inner
+
+    return wrap
+
+
+def label_for(name: str, labels: Mapping[str, str] | None = None) -> str | None:
+    """The words a person reads for a field: the view's label, a common one, or its name as words; None for "_"."""
+    if name in ("_", "_body", ""):
+        return None
+    table = {**COMMON_LABELS, **(labels or {})}
+    if name in table:
+        return table[name]
+    if name.startswith(("replicates", "overrides")):  # a run's request paths: "Replicate 3, final reading"
+        return run_input.label(name)
+    return spoken(name)
+
+
+def problems(exc: InvalidInput) -> list[tuple[str | None, str]]:
+    """(label or None, message) of each refused field, for the error page."""
+    labels = g.get("form_labels")
+    return [(label_for(e.field, labels), e.message) for e in exc.errors]

@@ -19,7 +19,6 @@ from stockroom.db import get_db
 from stockroom.errors import InvalidInput
 from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
-from stockroom.web.inputs import Parser
 from stockroom.web.once import once
 from stockroom.web.printing import pictogram_uri
 
@@ -45,7 +44,7 @@ def read_classification(form: Mapping[str, Any], pictograms: list[str], today: d
 
     Concentrations in mol/L; codes typed separated by spaces or commas; effective_from today or later.
     """
-    p = Parser()
+    p = forms.parser()
     reagents = tuple(t.key for t in chemistry.list_titrants())
     reagent = p.choice(form.get("reagent") or None, "reagent", reagents)
     low = p.number(form.get("min_molarity"), "min_molarity", ge=0, unit="mol/L")

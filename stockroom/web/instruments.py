@@ -111,7 +111,7 @@ def read_instrument(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, 
     scale division in mL. Glassware of Class A or B and a listed size may leave the tolerance blank: it
     is taken from the class table (glassware.py: ISO 385 burettes, ISO 648 pipettes). Raises InvalidInput naming each field.
     """
-    p = Parser()
+    p = forms.parser()
     notes: list[str] = []
     raw_code = (form.get("code") or "").strip()
     code = p.text(form.get("code"), "code", max_length=40)
@@ -176,7 +176,7 @@ def read_instrument(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, 
 
 def read_calibration(form: Mapping[str, Any], instrument: Instrument, today: dt.date) -> dict[str, Any]:
     """The "record a calibration" form, checked; the new calibration may not be older than the last one."""
-    p = Parser()
+    p = forms.parser()
     values = _calibration(p, form, today, instrument.kind, required=True)
     assert values is not None
     if values["calibrated_on"] and instrument.calibrations:
@@ -283,7 +283,7 @@ def _show(inst: Instrument, values: Mapping[str, Any], errors: Mapping[str, str]
     from stockroom import recall as recall_mod
 
     recalls = [rc for rc in recall_mod.list_recalls(db) if rc.subject_kind == "instrument" and rc.subject_id == inst.id]
-    return render_template(
+    return forms.render_form(
         "instruments/show.html",
         inst=inst,
         standing=inst_mod.standing(inst, today),

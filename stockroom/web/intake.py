@@ -115,7 +115,7 @@ def new_batch() -> Any:
             return forms.reshow("intake/new.html", exc, **_batch_context(pols, request.form))
         return _batch_page(pols, request.form, plan=plan, warnings=warnings)
     try:
-        values, warnings = read_batch(request.form, pols, today)
+        values, warnings = read_batch(request.form, pols, today, decimal_comma=True)
     except InvalidInput as exc:
         return forms.reshow("intake/new.html", exc, **_batch_context(pols, request.form, plan=_quiet_plan(pols)))
     row = records.create_batch(db, values, user.username)
@@ -137,7 +137,8 @@ def plan_api() -> Any:
         return anonymous_response()
     data = read_json_body()  # content type, size, depth and characters, as at every JSON endpoint
     try:
-        plan, warnings = work_out_plan(data, records.policies(get_db(), lab_today()), strict_keys=True)
+        pols = records.policies(get_db(), lab_today())
+        plan, warnings = work_out_plan(data, pols, strict_keys=True, decimal_comma=forms.from_form_page())
     except InvalidInput as exc:
         return jsonify({"errors": [e.as_dict() for e in exc.errors]}), 422
     return jsonify(plan_json(plan, warnings))
@@ -171,7 +172,7 @@ def adjust(code: str) -> Any:
     try:
         chosen, result = work_out_adjustment(request.args, batch, bases)
     except InvalidInput as exc:
-        return render_template("intake/adjust.html", values=request.args, errors=exc.fields, adjustment=None, **context), 422
+        return forms.render_form("intake/adjust.html", values=request.args, errors=exc.fields, adjustment=None, **context), 422
     return render_template("intake/adjust.html", values=request.args, errors={}, adjustment=result, basis=chosen, **context)
 
 
@@ -201,6 +202,49 @@ def withdraw(code: str) -> Any:
     flash(
         f"Batch {batch['code']} is withdrawn from {withdrawn_on.isoformat()}: it shows as withdrawn "
         f"from that day and cannot be released again.",
+        "info",
+    )
+    return redirect(url_for("batches.show", code=batch["code"]), code=303)
+
+
+IN_ERROR_LABELS: dict[str, str] = {"reason": "What was registered by mistake"}
+
+
+@bp.route("/batches/<code>/registered-in-error", methods=["GET", "POST"])
+@require("batch.withdraw")
+@once
+def registered_in_error(code: str) -> Any:
+    """Mark a batch registered by mistake, with the reason: a new record; the batch's rows stay as written."""
+    db = get_db()
+    batch = records.batch_by_code(db, code)
+    context: dict[str, Any] = {
+        "batch": batch,
+        "existing": records.registration_in_error_of(db, batch["id"]),
+        "withdrawal": records.withdrawal_of(db, batch["id"]),
+        "released": bool(readmodel.batch_facts(db, batch["id"]).releases),
+        "labels": IN_ERROR_LABELS,
+    }
+    if request.method != "POST":  # HEAD answers like GET and never writes
+        return render_template("intake/registered_in_error.html", values={}, errors={}, **context)
+    user = current_user()
+    assert user is not None
+    try:
+        p = forms.parser()
+        reason = p.text(request.form.get("reason"), "reason", required=False, max_length=1000)
+        if reason is None and not p.has_error("reason"):
+            p.error("reason", "is required: say what was registered by mistake (a second entry, the wrong reagent…)")
+        p.raise_if_errors()
+        assert reason is not None
+        records.mark_registered_in_error(db, batch["id"], lab_today(), reason, user.username)
+    except InvalidInput as exc:
+        return forms.reshow("intake/registered_in_error.html", exc, **context)
+    except Conflict as exc:
+        context["existing"] = records.registration_in_error_of(db, batch["id"])
+        page = render_template("intake/registered_in_error.html", values=request.form, errors={}, conflict=exc.message, **context)
+        return page, 409
+    flash(
+        f"Batch {batch['code']} is marked registered in error: it cannot be standardized, released or "
+        "offered for a lab day. Its entries stay on record.",
         "info",
     )
     return redirect(url_for("batches.show", code=batch["code"]), code=303)
@@ -366,14 +410,15 @@ def water_warning(t: chemistry.Titrant, water_grade: str | None) -> str | None:
 
 
 def work_out_plan(
-    data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], strict_keys: bool = False
+    data: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], strict_keys: bool = False, decimal_comma: bool | None = None
 ) -> tuple[preparation.PreparationPlan, list[str]]:
     """The preparation plan for the calculator's fields (form or JSON values), with warnings.
 
     data: field name -> raw value (strings or JSON numbers); nominal in mol/L, volume in L, assay in
     % w/w, density in g/mL at 20 °C. Returns (plan, warnings). Raises InvalidInput naming form fields.
     """
-    p = Parser()
+    # The form reads "0,1" as 0.1; the JSON API refuses a comma unless the form page's script asks.
+    p = Parser(decimal_comma=not strict_keys if decimal_comma is None else decimal_comma)
     if strict_keys:
         p.known_keys(data, PLAN_KEYS)
     fields = _read_plan_fields(p, data, pols, need_concentrate=True)
@@ -398,14 +443,16 @@ def _text_or_none(raw: Any) -> str | None:
     return raw.strip() if isinstance(raw, str) and raw.strip() else None
 
 
-def read_batch(form: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], today: dt.date) -> tuple[dict[str, Any], list[str]]:
+def read_batch(
+    form: Mapping[str, Any], pols: Mapping[str, ReagentPolicy], today: dt.date, *, decimal_comma: bool = False
+) -> tuple[dict[str, Any], list[str]]:
     """The register form, checked, as records.create_batch takes it, and the warnings to show.
 
     form: the posted fields; today: the lab's date (prepared_on may not be later). Returns
     (values, warnings): nominal in mol/L, volume in L, assay as a mass fraction, density in g/mL.
-    Raises InvalidInput naming every bad field.
+    Raises InvalidInput naming every bad field. decimal_comma: True at the form's door (not the API's).
     """
-    p = Parser()
+    p = Parser(decimal_comma=decimal_comma)
     fields = _read_plan_fields(p, form, pols, need_concentrate=False)
     prepared_on = forms.date(p, form.get("prepared_on"), "prepared_on", not_after=today)
     prepared_by = p.text(form.get("prepared_by"), "prepared_by", max_length=80)
@@ -564,7 +611,7 @@ def work_out_adjustment(
 
     Returns (basis used, plan). Raises InvalidInput naming the form's fields.
     """
-    p = Parser()
+    p = forms.parser()
     if not bases:
         raise InvalidInput([FieldError("basis", "this batch has no standardization yet: there is nothing to adjust from")])
     key = p.choice(args.get("basis"), "basis", [b["key"] for b in bases], default=bases[0]["key"])

@@ -24,7 +24,7 @@ from stockroom.errors import InvalidInput, NotFound, StockroomError
 from stockroom.pdf.charts import drift_svg
 from stockroom.pdf.labday_sheet import labday_sheet_pdf
 from stockroom.policy import drift_on
-from stockroom.web import lab_today, viewcache
+from stockroom.web import forms, lab_today, viewcache
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import MISSING, Parser
 from stockroom.web.once import once
@@ -186,7 +186,7 @@ def page() -> Any:
         day, titrant, bench = parse_question(request.args, strict=False, default_day=today)
     except InvalidInput as exc:
         context["errors"] = exc.fields
-        return render_template("labday/index.html", **context), 422
+        return forms.render_form("labday/index.html", **context), 422
     query: dict[str, Any] = {
         "date": day.isoformat(),
         **({"titrant": titrant} if titrant else {}),
@@ -338,7 +338,7 @@ def _correct_form(
     choices: list[ld.LabDayEntry],
     status: int = 200,
 ) -> tuple[str, int]:
-    return render_template(
+    return forms.render_form(
         "labday/correct.html",
         values=values,
         errors=errors,
@@ -379,7 +379,7 @@ def correct() -> Any:
         }
         return _correct_form(values, {}, [], [])
     form = request.form
-    p = Parser()
+    p = forms.parser()
     day = _date(p, form.get("lab_day", MISSING), "lab_day", None)
     titrant = _titrant_key(p, form.get("titrant", MISSING), "titrant", True)
     bench = p.number(

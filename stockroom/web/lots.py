@@ -2,7 +2,7 @@
 
     GET      /lots/          every lot: in date or expired (today in the lab's time zone), drying record
     GET/POST /lots/new       register a lot from its certificate, with its drying or storage record
-    GET      /lots/<id>      one lot
+    GET      /lots/<code>    one lot, by its code (STD-KHP-002); /lots/<number> moves there (301)
 
 A drying record that breaks the substance's rule is refused with the rule; a substance that should be
 dried but has no drying record is registered with a warning (a run on it warns again).
@@ -21,7 +21,6 @@ from stockroom.db import get_db
 from stockroom.errors import InvalidInput
 from stockroom.web import forms, lab_today
 from stockroom.web.access import current_user, require
-from stockroom.web.inputs import Parser
 from stockroom.web.intake import read_percent
 from stockroom.web.once import once
 
@@ -61,9 +60,15 @@ def list_lots() -> str:
 
 
 @bp.get("/<int:lot_id>")
-def show(lot_id: int) -> str:
+def by_number(lot_id: int) -> Any:
+    """An old numeric address: moved for good to the lot's code (301), the way every page links it."""
+    return redirect(url_for("lots.show", code=records.lot_by_id(get_db(), lot_id)["code"]), code=301)
+
+
+@bp.get("/<code>")
+def show(code: str) -> str:
     today = lab_today()
-    lot = describe(records.lot_by_id(get_db(), lot_id), today)
+    lot = describe(records.lot_by_code(get_db(), code), today)
     return render_template("lots/show.html", lot=lot, today=today)
 
 
@@ -85,7 +90,7 @@ def new_lot() -> Any:
     flash(f"Registered standard lot {row['code']} ({chemistry.standard(row['substance']).name}).", "info")
     for warning in warnings:
         flash(warning, "warning")
-    return redirect(url_for("lots.show", lot_id=row["id"]), code=303)
+    return redirect(url_for("lots.show", code=row["code"]), code=303)
 
 
 # ------------------------------------------------------------------------------------------ helpers
@@ -134,7 +139,7 @@ def read_lot(form: Mapping[str, Any], today: dt.date) -> tuple[dict[str, Any], l
     today: the lab's date. Returns (values with assay and U as mass fractions, warnings).
     Raises InvalidInput naming every bad field.
     """
-    p = Parser()
+    p = forms.parser()
     std = None
     raw = form.get("substance")
     if raw is None or not str(raw).strip():

@@ -30,7 +30,7 @@ from stockroom.standardization import (
     standardize_secondary,
 )
 from stockroom.uncertainty import InputQuantity
-from stockroom.web import read_json_body
+from stockroom.web import forms, read_json_body
 from stockroom.web.access import anonymous_response, current_user, public
 from stockroom.web.inputs import MISSING, Parser, field_path, number_problem
 
@@ -119,7 +119,8 @@ def preview() -> Any:
     data = read_json_body(max_bytes=ANONYMOUS_MAX_BYTES if anonymous else MAX_BODY_BYTES)
     config = current_app.config
     try:
-        result, extra = compute_preview(data, config, max_draws=ANONYMOUS_MAX_DRAWS if anonymous else MAX_DRAWS)
+        draws = ANONYMOUS_MAX_DRAWS if anonymous else MAX_DRAWS
+        result, extra = compute_preview(data, config, max_draws=draws, decimal_comma=forms.from_form_page())
     except InvalidInput as exc:
         return _error_response(exc.errors, 422)
     except StockroomError as exc:
@@ -168,15 +169,16 @@ def display_strings(body: dict[str, Any]) -> dict[str, Any]:
 
 
 def compute_preview(
-    data: dict[str, Any], config: Any, *, max_draws: int = MAX_DRAWS
+    data: dict[str, Any], config: Any, *, max_draws: int = MAX_DRAWS, decimal_comma: bool = False
 ) -> tuple[StandardizationResult, dict[str, Any]]:
     """Parse a preview request and compute it.
 
     data: the decoded JSON object; config: settings mapping (app.config); max_draws: the most Monte
     Carlo draws this request may ask for (fewer for anonymous requests). Returns the result and
     the extra fields the response echoes (titrant, standard or reference). Raises InvalidInput.
+    decimal_comma: True for the run form's own live preview (parsing.form_decimal), False for programs.
     """
-    p = Parser()
+    p = Parser(decimal_comma=decimal_comma)
     secondary = "reference" in data
     p.known_keys(data, SECONDARY_KEYS if secondary else PRIMARY_KEYS)
     instruments = Instruments.from_settings(config)

@@ -23,7 +23,7 @@ from stockroom.errors import Conflict, FieldError, InvalidInput
 from stockroom.pdf import certificates, ghs, layouts
 from stockroom.pdf import labels as pdflabels
 from stockroom.policy import Status, release_in_force, status_on
-from stockroom.web import lab_today
+from stockroom.web import forms, lab_today
 from stockroom.web import once as once_mod
 from stockroom.web.access import current_user, require
 from stockroom.web.forms import field
@@ -102,6 +102,8 @@ def _context(
         content = pdflabels.label_content(db, _label_config(), batch, on)
     except Conflict as exc:
         problem = exc.message
+    if records.registration_in_error_of(db, batch["id"]) is not None:
+        problem = f"{batch['code']} is marked registered in error: no label is printed for it"
     history = readmodel.batch_history(db, batch["id"])
     facts = readmodel.batch_facts(db, batch["id"])
     report = status_on(facts, on)
@@ -173,7 +175,7 @@ def print_labels(code: str) -> Any:
 
 
 def _reshow(ctx: dict[str, Any], exc: InvalidInput) -> tuple[str, int]:
-    return render_template("printing/labels.html", values=request.form, errors=exc.fields, **ctx), 422
+    return forms.render_form("printing/labels.html", values=request.form, errors=exc.fields, **ctx), 422
 
 
 @bp.get("/releases/<int:release_id>/certificate.pdf")

@@ -174,7 +174,7 @@ def _hrefs(chain: traceability.Chain) -> dict[str, str]:
         for _, inst in step.instruments:
             out[inst.key] = url_for("instruments.show", instrument_id=inst.id)
     if chain.origin is not None:
-        out[chain.origin.key] = url_for("lots.show", lot_id=chain.origin.id)
+        out[chain.origin.key] = url_for("lots.show", code=chain.origin.label)
     return out
 
 

@@ -155,7 +155,7 @@ def new_run(code: str) -> Any:
     ctx["purpose"] = form.get("purpose") if form.get("purpose") in run_input.PURPOSES else "certify"
     actor = user.username if user else "?"
     try:
-        run = run_input.parse_run(data, today=today, prepared_on=_prepared_on(batch))
+        run = run_input.parse_run(data, today=today, prepared_on=_prepared_on(batch), decimal_comma=True)
         if form.get("action") != "record":
             # "Compute" without JavaScript: show the same result the live preview shows, store nothing.
             result = workflow.compute_run(db, current_app.config, batch, run)
@@ -191,6 +191,7 @@ def show(run_id: int) -> Any:
         result=run["current"]["result"],
         today=lab_today(),
         excluded={e["position"]: e for e in run["exclusions"]},
+        in_force=release_in_force(readmodel.batch_facts(db, batch["id"]), lab_today()),
     )
 
 

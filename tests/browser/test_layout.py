@@ -299,7 +299,14 @@ def test_skip_link_and_new_password_fields(browser, layout_site):
         skip = page.locator("a.skip")
         assert skip.evaluate("a => a === document.activeElement")
         assert skip.is_visible() and skip.get_attribute("href") == "#content"
-        for path, name in (("/account/password", "new_password"), ("/admin/users", "password")):
+        assert skip.inner_text() == "Skip to content"
+        page.keyboard.press("Enter")
+        assert page.evaluate("document.activeElement.id") == "content"
+        for path, name in (
+            ("/account/password", "new_password"),
+            ("/account/password", "confirm_password"),
+            ("/admin/users", "password"),
+        ):
             page.goto(base + path)
             assert page.locator(f"main input[name={name}]").get_attribute("autocomplete") == "new-password"
     finally:

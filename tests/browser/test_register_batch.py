@@ -45,14 +45,18 @@ def test_register_a_batch_with_the_live_plan(staff_page, staff_demo_server, scre
     page.fill("#f-container", "20 L HDPE carboy (invented)")
     screenshot(page, "batch-new-plan")
 
-    # A decimal comma: the live calculator names the field, and registering is refused beside it.
-    page.fill("#f-volume_l", "20,5")
-    expect(page.locator("#plan")).to_contain_text("Volume made up: use a point, not a comma")
+    # An ambiguous comma (a thousands separator or a decimal sign?): the live calculator names the
+    # field by its label, and registering is refused beside it.
+    page.fill("#f-volume_l", "20,500")
+    expect(page.locator("#plan")).to_contain_text("Volume made up: '20,500' could be 20.500 or 20500")
     page.click("button[value=register]")
     page.wait_for_load_state()
     error = page.locator("#e-volume_l")
-    assert error.inner_text() == "use a point, not a comma, for the decimal sign: write 20.5"
-    assert page.locator("#f-volume_l").input_value() == "20,5"
+    assert error.inner_text().startswith("'20,500' could be 20.500 or 20500")
+    assert page.locator("#f-volume_l").input_value() == "20,500"
+    # An unambiguous decimal comma reads as the form will read it.
+    page.fill("#f-volume_l", "20,5")
+    expect(page.locator("#plan")).not_to_contain_text("comma")
     assert page.locator("#f-concentrate_lot").input_value() == "INV-HC-3310 (invented)"
     screenshot(page, "batch-new-error")
 
@@ -110,7 +114,7 @@ def test_register_lots_and_see_the_list(staff_page, staff_demo_server, screensho
     page.fill("#f-dried_at_c", "")
     page.fill("#f-storage_note", "constant-humidity jar over saturated NaCl and sucrose")
     page.click("text=Register lot")
-    page.wait_for_url(re.compile(r".*/lots/\d+$"))
+    page.wait_for_url(re.compile(r".*/lots/STD-BORAX-\d+$"))  # a lot is addressed by its code
     assert "Registered standard lot STD-BORAX-" in page.locator(".notice").first.inner_text()
     page.goto(staff_demo_server + "/lots/")
     table = page.locator("table.grid tbody")

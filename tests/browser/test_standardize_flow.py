@@ -135,10 +135,10 @@ def test_bad_reading_is_flagged_at_the_cell_live_and_on_submit(staff_page, staff
     page.fill("#f-r1_initial_ml", "10.20")
     page.fill("#f-r1_final_ml", "9.80")  # below the initial reading
     expect(page.locator("#replicates .live-error").first).to_contain_text("final")
-    page.fill("#f-r2_initial_ml", "0,40")  # a decimal comma
+    page.fill("#f-r2_initial_ml", "0,4,0")  # two commas: no decimal sign reads it
     page.click("button[value=record]")
     page.wait_for_load_state()
     assert "final reading must be greater than the initial" in page.locator("#replicates").inner_text()
-    assert "not a comma" in page.locator("#replicates").inner_text()
-    assert page.locator("#f-r2_initial_ml").input_value() == "0,40"
+    assert "more than one comma" in page.locator("#replicates").inner_text()
+    assert page.locator("#f-r2_initial_ml").input_value() == "0,4,0"
     assert "Nothing was saved" in page.locator("main").inner_text()
