@@ -48,6 +48,7 @@ from stockroom.records.runs import (
     latest_results,
     record_run,
     run_by_id,
+    undecided_runs,
 )
 from stockroom.records.withdrawals import withdraw_batch, withdrawal_of
 
@@ -93,6 +94,7 @@ __all__ = [
     "recorded_facts",
     "run_by_id",
     "unaudited_records",
+    "undecided_runs",
     "utc_now",
     "verify_chain",
     "with_amendments",

@@ -29,6 +29,7 @@ from stockroom.formatting import significant as sig
 from stockroom.policy import ReagentPolicy, Status, release_in_force, status_on
 from stockroom.web import forms, lab_today, read_json_body
 from stockroom.web.access import anonymous_response, current_user, login_required, public, refuse, require
+from stockroom.web.formatting import on_screen
 from stockroom.web.inputs import Parser
 from stockroom.web.once import once
 
@@ -219,8 +220,8 @@ def _catalogue(pols: Mapping[str, ReagentPolicy]) -> dict[str, Any]:
             "name": t.name,
             "role": t.role,
             "nominals": [f"{n:g}" for n in pols[t.key].nominal_molarities],
-            "typical": _typical_hint(t.key),
-            "cautions": list(preparation.cautions_for(t.key)),
+            "typical": on_screen(_typical_hint(t.key)),
+            "cautions": [on_screen(c) for c in preparation.cautions_for(t.key)],
         }
     return out
 
@@ -482,9 +483,9 @@ def plan_display(plan: preparation.PreparationPlan) -> dict[str, Any]:
         )
     return {
         "figures": figures,
-        "instructions": list(plan.instructions),
-        "notes": list(plan.notes),
-        "cautions": list(plan.cautions),
+        "instructions": [on_screen(t) for t in plan.instructions],
+        "notes": [on_screen(t) for t in plan.notes],
+        "cautions": [on_screen(t) for t in plan.cautions],
         "summary": f"{sig(plan.final_volume_l, 3)} L of {plan.target_molarity_mol_l:g} mol/L {plan.reagent}",
     }
 
