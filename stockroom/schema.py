@@ -783,8 +783,9 @@ def _instruments_recalls(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
-# Every table that has the append-only triggers, in the order the migrations made them.
-APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY + (
+# Every table that has the append-only triggers, in the order the migrations made them: those that
+# existed when 0008 gave each its no-replace trigger, then the tables later migrations made.
+APPEND_ONLY_TABLES_AT_0008: tuple[str, ...] = APPEND_ONLY + (
     "signin_attempts",
     "class_corrections",
     "hazard_classifications",
@@ -797,6 +798,7 @@ APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY + (
     "api_token_revocations",
     "trail_keying",
 )
+APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY_TABLES_AT_0008 + ("batch_preparations",)
 
 
 def _no_replace_triggers(tables: tuple[str, ...]) -> list[str]:
@@ -837,7 +839,7 @@ _KEYED_TRAIL = [
 def _keyed_trail(db: sqlite_utils.Database) -> None:
     for statement in _KEYED_TRAIL:
         db.execute(statement)
-    for statement in _append_only_triggers(("trail_keying",)) + _no_replace_triggers(APPEND_ONLY_TABLES):
+    for statement in _append_only_triggers(("trail_keying",)) + _no_replace_triggers(APPEND_ONLY_TABLES_AT_0008):
         db.execute(statement)
 
 
@@ -868,6 +870,28 @@ def _form_submissions(db: sqlite_utils.Database) -> None:
         submitted_at TEXT NOT NULL
     )"""
     )
+
+
+# What was actually measured when a batch was made up: the concentrate's volume (mL) or the pellets'
+# mass (g), beside what the preparation calculator suggested for the same fields. One row per batch,
+# written with the batch's registration (its entry names it); append-only like the batch itself.
+_BATCH_PREPARATIONS = """CREATE TABLE batch_preparations (
+        id INTEGER PRIMARY KEY,
+        batch_id INTEGER NOT NULL UNIQUE REFERENCES batches (id),
+        source_form TEXT NOT NULL CHECK (source_form IN ('liquid', 'solid')),
+        measured_amount REAL CHECK (measured_amount IS NULL OR measured_amount > 0),
+        measured_unit TEXT NOT NULL CHECK (measured_unit IN ('mL', 'g')),
+        suggested_amount REAL CHECK (suggested_amount IS NULL OR suggested_amount > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )"""
+
+
+@MIGRATIONS(name="0017_ux")
+def _batch_preparations(db: sqlite_utils.Database) -> None:
+    db.execute(_BATCH_PREPARATIONS)
+    for statement in _append_only_triggers(("batch_preparations",)) + _no_replace_triggers(("batch_preparations",)):
+        db.execute(statement)
 
 
 SCHEMA_VERSION = len(MIGRATIONS._migrations)

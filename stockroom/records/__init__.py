@@ -27,6 +27,7 @@ from stockroom.records.batches import (
     batch_by_id,
     create_batch,
     next_batch_code,
+    preparation_of,
     with_amendments,
 )
 from stockroom.records.class_corrections import correction_by_id, corrections_with_release, record_correction
@@ -86,6 +87,7 @@ __all__ = [
     "policies",
     "policy_for",
     "policy_history",
+    "preparation_of",
     "record_classification",
     "record_correction",
     "record_print",

@@ -77,6 +77,7 @@ def show(code: str) -> str:
         in_force=release_in_force(facts, on),
         titrant=chemistry.titrant(batch["reagent"]),
         amend_labels=_AMEND_LABELS,
+        preparation=records.preparation_of(db, batch["id"]),
     )
 
 
