@@ -236,4 +236,5 @@ def test_catalogue_notes_read_as_defaults_to_check():
     assert on_screen("Dry 2 h at 105–120 °C (common practice; from memory — verify)") == (
         "Dry 2 h at 105–120 °C (common practice; a default to check against the supplier's certificate or safety data sheet)"
     )
-    assert on_screen("know where the eyewash is (common practice; from memory).") == "know where the eyewash is (common practice)."
+    eyewash = "know where the eyewash is (common practice; from memory)."
+    assert on_screen(eyewash) == "know where the eyewash is (common practice)."
