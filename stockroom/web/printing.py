@@ -110,7 +110,15 @@ def _context(
     report = status_on(facts, on)
     in_force = release_in_force(facts, on)
     current = pdflabels.current_value_text(history, in_force, report.status)
-    prints = [dict(p, serials=_serial_range(p), current=p["value_printed"] == current) for p in reversed(history["prints"])]
+    prints = [
+        dict(
+            p,
+            serials=_serial_range(p),
+            current=p["value_printed"] == current,
+            layout_title=available[p["layout"]].title if p["layout"] in available else p["layout"],
+        )
+        for p in reversed(history["prints"])
+    ]
     return {
         "batch": batch,
         "content": content,

@@ -166,6 +166,13 @@ def test_instructor_lab_day_sheet_and_class_correction(browser, staff_demo_serve
         page.wait_for_load_state()
         assert "Titrants for the lab day" in page.locator("h1").inner_text()
         expect(page.locator(".labday-entry").first).to_be_visible()
+        # A batch on hold says so in a word and a shape beside its status, not by colour alone.
+        held = page.locator(".labday-held").first
+        chips = held.locator(".chip").evaluate_all(
+            "cs => cs.map(c => [c.innerText.trim(), getComputedStyle(c, '::before').content])"
+        )
+        words = [w for w, _ in chips]
+        assert "On hold" in words and len({g for _, g in chips}) == len(chips), chips
         _fits(page, size, "instructor-labday", screenshot)
         sheet = page.locator("a", has_text="Printable sheet (PDF)").get_attribute("href")
         answer = page.request.get(base + sheet)
@@ -222,5 +229,65 @@ def test_admin_accounts_policy_and_audit(browser, staff_demo_server, size, scree
         trail = page.locator("main table").inner_text()
         assert "created an account" in trail and "demo-admin" in trail
         _fits(page, size, "admin-audit", screenshot)
+    finally:
+        context.close()
+
+
+@pytest.fixture
+def empty_site(tmp_path_factory):
+    """A live stockroom on a new database with one administrator and nothing else; yields its base URL."""
+    import threading
+
+    from livesite import _free_port
+    from waitress.server import create_server
+
+    from stockroom import accounts, create_app
+    from stockroom import db as dbmod
+
+    path = tmp_path_factory.mktemp("empty") / "new.db"
+    app = create_app({"DATABASE": str(path), "SECRET_KEY": "browser-empty", "LAB_TIMEZONE": "UTC"})
+    conn = dbmod.connect(path)
+    try:
+        accounts.create_user(conn, "first-admin", "First Admin", "admin", DEMO_PASSWORD, actor="test-setup")
+    finally:
+        conn.close()
+    server = create_server(app, host="127.0.0.1", port=_free_port(), threads=2)
+    threading.Thread(target=server.run, daemon=True).start()
+    yield f"http://127.0.0.1:{server.effective_port}"
+    server.close()
+
+
+def test_first_steps_on_a_new_database(browser, empty_site, size, screenshot):
+    base = empty_site
+    context, page = _sign_in(browser, base, size, "first-admin")
+    try:
+        steps = page.locator("#first-steps")
+        expect(steps.locator("h2")).to_have_text("Getting started")
+        items = steps.locator("li")
+        assert items.count() == 3 and steps.locator(".step-done").count() == 0
+        assert [a.inner_text() for a in steps.locator("a").all()] == [
+            "Set the reagent policies",
+            "Register a primary-standard lot",
+            "Register a batch",
+        ]
+        _fits(page, size, "first-steps", screenshot)
+        steps.locator("a", has_text="Register a primary-standard lot").click()
+        page.wait_for_url(base + "/lots/new")
+        today = dt.date.today()
+        page.select_option("#f-substance", "KHP")
+        page.fill("#f-supplier", "Invented Fine Chemicals")
+        page.fill("#f-supplier_lot", f"IFC-{size}-1 (invented)")
+        page.fill("#f-assay_pct", "99.995")
+        page.fill("#f-assay_u_pct", "0.02")
+        page.fill("#f-expires_on", (today + dt.timedelta(days=365)).isoformat())
+        page.fill("#f-dried_on", today.isoformat())
+        page.fill("#f-dried_at_c", "120")
+        page.click("main button[type=submit]")
+        page.wait_for_load_state()
+        page.goto(base + "/")
+        done = page.locator("#first-steps .step-done")
+        expect(done).to_have_count(1)
+        assert "Register a primary-standard lot" in done.inner_text() and done.inner_text().startswith("done:")
+        _fits(page, size, "first-steps-lot-done", screenshot)
     finally:
         context.close()
