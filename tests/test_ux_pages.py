@@ -238,3 +238,16 @@ def test_catalogue_notes_read_as_defaults_to_check():
     )
     eyewash = "know where the eyewash is (common practice; from memory)."
     assert on_screen(eyewash) == "know where the eyewash is (common practice)."
+
+
+def test_a_runs_decision_is_spelt_the_same_on_every_page(app, database, signed_in_client):
+    lot = make_lot(database)
+    batch = make_batch(database)
+    open_id, _ = run(database, app.config, batch, lot, days_ago=2)
+    shut_id, _ = run(database, app.config, batch, lot, days_ago=1)
+    records.decide_run(database, shut_id, "reject", "invented: wrong standard", "setup")
+    staff = signed_in_client("staff")
+    pages = [_text(staff.get(p)) for p in ("/", f"/batches/{batch['code']}", f"/runs/{open_id}", f"/runs/{shut_id}")]
+    assert all("undecided" not in t.lower() for t in pages)
+    assert "awaiting a decision" in pages[1] and "rejected" in pages[1]
+    assert "awaiting a decision" in pages[2] and "rejected by setup" in pages[3]
