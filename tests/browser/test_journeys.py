@@ -168,7 +168,7 @@ def test_instructor_lab_day_sheet_and_class_correction(browser, staff_demo_serve
         expect(page.locator(".labday-entry").first).to_be_visible()
         # A batch on hold says so in a word and a shape beside its status, not by colour alone.
         held = page.locator(".labday-held").first
-        chips = held.locator(".chip").evaluate_all(
+        chips = held.locator(".chip, .status-mark").evaluate_all(
             "cs => cs.map(c => [c.innerText.trim(), getComputedStyle(c, '::before').content])"
         )
         words = [w for w, _ in chips]
