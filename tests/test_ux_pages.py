@@ -90,6 +90,10 @@ def test_a_recheck_shows_its_deviation_from_the_certified_value(app, database, s
     assert re.search(r"Difference \+0\.00\d+ mol/L", far_text)
     near_text = _section(staff.get(f"/runs/{near_id}").get_data(as_text=True), "recheck-against")
     assert "+0.10 %" in near_text and "within tolerance" in near_text
+    # The batch page says the same beside each re-check.
+    batch_text = _text(staff.get(f"/batches/{batch['code']}"))
+    assert "(+1.00 %), tolerance ±0.50 %: beyond tolerance" in batch_text
+    assert "(+0.10 %), tolerance ±0.50 %: within tolerance" in batch_text
 
 
 def test_accepting_shows_the_expiry_it_will_set(app, database, signed_in_client):

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+from collections.abc import Mapping
 from typing import Any
 
 from flask import (
@@ -204,7 +205,13 @@ def recheck_against(db: Any, run: dict[str, Any]) -> dict[str, Any] | None:
     """
     if run["purpose"] != "recheck" or run["current"] is None:
         return None
-    facts = readmodel.batch_facts(db, run["batch_id"])
+    return against_release(readmodel.batch_facts(db, run["batch_id"]), run)
+
+
+def against_release(facts: Any, run: Mapping[str, Any]) -> dict[str, Any] | None:
+    """recheck_against with the batch's facts already read (a batch page reads them once for all its runs)."""
+    if run["purpose"] != "recheck" or not run.get("current"):
+        return None
     rel = release_in_force(facts, dt.date.fromisoformat(run["performed_on"]))
     if rel is None:
         return None
