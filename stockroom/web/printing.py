@@ -126,7 +126,6 @@ def _context(
         "layouts": list(available.values()),
         "broken": broken,
         "labels": PRINT_LABELS,
-        "layout_options": [(lay.name, f"{lay.title} [{lay.name}]") for lay in available.values()],
         "prints": prints,
         "report": report,
         "pictograms": [(code, ghs.name(code), pictogram_uri(code)) for code in (content.elements.pictograms if content else ())],

@@ -136,7 +136,7 @@ def test_prep_staff_register_standardize_accept_release_print(browser, staff_dem
         _fits(page, size, "staff-labels", screenshot)
 
         # 5. Print: the page confirms what was printed, the PDF downloads, and the print is listed.
-        page.select_option("#f-layout", "bottle")
+        page.check("input[name=layout][value=bottle]")
         page.fill("#f-copies", "2")
         with page.expect_download() as download:
             page.click("button:has-text('Record the print')")
