@@ -783,8 +783,9 @@ def _instruments_recalls(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
-# Every table that has the append-only triggers, in the order the migrations made them.
-APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY + (
+# Every table that has the append-only triggers, in the order the migrations made them: those that
+# existed when 0008 gave each its no-replace trigger, then the tables later migrations made.
+APPEND_ONLY_TABLES_AT_0008: tuple[str, ...] = APPEND_ONLY + (
     "signin_attempts",
     "class_corrections",
     "hazard_classifications",
@@ -797,9 +798,6 @@ APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY + (
     "api_token_revocations",
     "trail_keying",
 )
-# The tables migration 0008 gave no-replace triggers: fixed, so that a later table (added to
-# APPEND_ONLY_TABLES at the end of this module) does not reach back into an earlier migration.
-_APPEND_ONLY_BY_0008 = APPEND_ONLY_TABLES
 
 
 def _no_replace_triggers(tables: tuple[str, ...]) -> list[str]:
@@ -840,7 +838,7 @@ _KEYED_TRAIL = [
 def _keyed_trail(db: sqlite_utils.Database) -> None:
     for statement in _KEYED_TRAIL:
         db.execute(statement)
-    for statement in _append_only_triggers(("trail_keying",)) + _no_replace_triggers(_APPEND_ONLY_BY_0008):
+    for statement in _append_only_triggers(("trail_keying",)) + _no_replace_triggers(APPEND_ONLY_TABLES_AT_0008):
         db.execute(statement)
 
 
@@ -1291,7 +1289,30 @@ def _registered_in_error(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
-APPEND_ONLY_TABLES = APPEND_ONLY_TABLES + ("registrations_in_error",)
+# What was actually measured when a batch was made up: the concentrate's volume (mL) or the pellets'
+# mass (g), beside what the preparation calculator suggested for the same fields. One row per batch,
+# written with the batch's registration (its entry names it); append-only like the batch itself.
+_BATCH_PREPARATIONS = """CREATE TABLE batch_preparations (
+        id INTEGER PRIMARY KEY,
+        batch_id INTEGER NOT NULL UNIQUE REFERENCES batches (id),
+        source_form TEXT NOT NULL CHECK (source_form IN ('liquid', 'solid')),
+        measured_amount REAL CHECK (measured_amount IS NULL OR measured_amount > 0),
+        measured_unit TEXT NOT NULL CHECK (measured_unit IN ('mL', 'g')),
+        suggested_amount REAL CHECK (suggested_amount IS NULL OR suggested_amount > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )"""
+
+
+@MIGRATIONS(name="0017_ux")
+def _batch_preparations(db: sqlite_utils.Database) -> None:
+    db.execute(_BATCH_PREPARATIONS)
+    for statement in _append_only_triggers(("batch_preparations",)) + _no_replace_triggers(("batch_preparations",)):
+        db.execute(statement)
+
+
+APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY_TABLES_AT_0008 + ("registrations_in_error", "batch_preparations")
+
 
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 

@@ -27,6 +27,7 @@ from stockroom.records.batches import (
     batch_by_id,
     create_batch,
     next_batch_code,
+    preparation_of,
     with_amendments,
 )
 from stockroom.records.class_corrections import correction_by_id, corrections_with_release, record_correction
@@ -52,6 +53,7 @@ from stockroom.records.runs import (
     release_number,
     release_numbers,
     run_by_id,
+    undecided_runs,
 )
 from stockroom.records.withdrawals import withdraw_batch, withdrawal_of
 
@@ -90,6 +92,7 @@ __all__ = [
     "policies",
     "policy_for",
     "policy_history",
+    "preparation_of",
     "record_classification",
     "record_correction",
     "record_print",
@@ -101,6 +104,7 @@ __all__ = [
     "recorded_facts",
     "run_by_id",
     "unaudited_records",
+    "undecided_runs",
     "utc_now",
     "verify_chain",
     "with_amendments",

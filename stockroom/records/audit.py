@@ -145,6 +145,7 @@ _NOUNS: Mapping[str, str] = {
     "api_tokens": "API token",
     "api_token_revocations": "API token revocation",
     "users": "user account",
+    "batch_preparations": "amount measured for a batch",
     # Not records, named only when one of their append-only guards is reported.
     "events": "audit entry",
     "signin_attempts": "sign-in attempt",

@@ -39,8 +39,24 @@ BATCH_FIELDS = (
 )
 
 
+PREPARATION_FIELDS = ("source_form", "measured_amount", "measured_unit", "suggested_amount")
+
+
+def preparation_of(db: sqlite_utils.Database, batch_id: int) -> dict[str, Any] | None:
+    """What was measured when the batch was made up (source form, amount and unit, the calculator's
+    suggestion in the same unit), or None for a batch registered without it."""
+    rows = dbmod.query(db, "SELECT * FROM batch_preparations WHERE batch_id = ? ORDER BY id LIMIT 1", [batch_id])
+    return rows[0] if rows else None
+
+
 def create_batch(db: sqlite_utils.Database, values: dict[str, Any], actor: str) -> dict[str, Any]:
-    """Register a batch (values already validated); return its row with the new code."""
+    """Register a batch (values already validated); return its row with the new code.
+
+    values["preparation"], if given, is what was measured (PREPARATION_FIELDS: source_form "liquid" or
+    "solid", measured_amount in measured_unit "mL" or "g", suggested_amount in the same unit or None);
+    it is written with the batch, in the same entry.
+    """
+    preparation = values.get("preparation")
     with dbmod.write(db):
         prepared_on = dt.date.fromisoformat(str(values["prepared_on"]))
         row = {k: values.get(k) for k in BATCH_FIELDS}
@@ -50,6 +66,19 @@ def create_batch(db: sqlite_utils.Database, values: dict[str, Any], actor: str) 
         row["code"] = values.get("code") or next_batch_code(db, values["reagent"], prepared_on)
         row["recorded_at"] = dbmod.utc_now()
         row["recorded_by"] = actor
+
+        def write_preparation(batch_id: int) -> None:
+            if preparation:
+                part = {k: preparation.get(k) for k in PREPARATION_FIELDS}
+                dbmod.insert_row(
+                    db,
+                    "batch_preparations",
+                    {"batch_id": batch_id, **part, "recorded_at": row["recorded_at"], "recorded_by": actor},
+                )
+
+        detail: dict[str, Any] = {"code": row["code"], "reagent": row["reagent"], "nominal_molarity": row["nominal_molarity"]}
+        if preparation and preparation.get("measured_amount") is not None:
+            detail["measured"] = f"{preparation['measured_amount']:g} {preparation['measured_unit']}"
         row["id"] = record_row(
             db,
             "batches",
@@ -57,7 +86,8 @@ def create_batch(db: sqlite_utils.Database, values: dict[str, Any], actor: str) 
             actor=actor,
             action_code="batch.register",
             row_is_batch=True,
-            detail={"code": row["code"], "reagent": row["reagent"], "nominal_molarity": row["nominal_molarity"]},
+            detail=detail,
+            parts=write_preparation,
         )
     return row
 

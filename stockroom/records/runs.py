@@ -313,3 +313,23 @@ def release_labels(db: sqlite_utils.Database, release_ids: Iterable[int | None])
         )
     }
     return {rid: formatting.release_name(n, codes.get(rid)) for rid, n in numbers.items()}
+
+
+def undecided_runs(db: sqlite_utils.Database) -> list[dict[str, Any]]:
+    """Runs awaiting a decision (neither accepted nor rejected) on batches not withdrawn, oldest first.
+
+    Each row: id, purpose, performed_on, analyst, recorded_by, the batch's code and reagent, and
+    "current" (its newest result row, the stored result decoded under "result").
+    """
+    rows = dbmod.query(
+        db,
+        "SELECT r.id, r.purpose, r.method, r.performed_on, r.analyst, r.recorded_by, r.batch_id, b.code AS batch_code,"
+        " b.reagent, b.nominal_molarity FROM runs r JOIN batches b ON b.id = r.batch_id"
+        " WHERE NOT EXISTS (SELECT 1 FROM decisions d WHERE d.run_id = r.id)"
+        " AND NOT EXISTS (SELECT 1 FROM withdrawals w WHERE w.batch_id = r.batch_id)"
+        " ORDER BY r.performed_on, r.id",
+    )
+    current = latest_results(db, [r["id"] for r in rows])
+    for r in rows:
+        r["current"] = current.get(r["id"])
+    return rows

@@ -76,6 +76,9 @@
   function onForm() {
     // A density means nothing for pellets; a disabled field is not sent, so none is stored.
     control("concentrate_density_g_ml").disabled = control("source_form").value === "solid";
+    // What was measured: millilitres of a concentrate, grams of pellets.
+    var unit = form.querySelector("label[for=f-measured_amount] .unit");
+    if (unit) { unit.textContent = control("source_form").value === "solid" ? "(g of pellets)" : "(mL of concentrate)"; }
   }
 
   function drawPlan(answer) {

@@ -10,6 +10,7 @@ from stockroom import chemistry, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, release_in_force
 from stockroom.web import forms, int_arg, lab_today, parse_date_arg
+from stockroom.web import runs as web_runs
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
 from stockroom.web.once import once
@@ -77,6 +78,8 @@ def show(code: str) -> str:
         in_force=release_in_force(facts, on),
         titrant=chemistry.titrant(batch["reagent"]),
         amend_labels=_AMEND_LABELS,
+        preparation=records.preparation_of(db, batch["id"]),
+        against={r["id"]: a for r in history["runs"] if (a := web_runs.against_release(facts, r)) is not None},
     )
 
 

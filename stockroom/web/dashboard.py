@@ -8,7 +8,7 @@ from typing import Any
 from flask import Blueprint, render_template, request
 from markupsafe import Markup
 
-from stockroom import readmodel
+from stockroom import readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, Status
 from stockroom.web import lab_today, parse_date_arg, viewcache
@@ -25,7 +25,25 @@ def index() -> str:
     db = get_db()
     # Markup() marks the cached fragment as already escaped (it was rendered by Jinja with autoescape).
     board = viewcache.cached(db, ("dashboard", on), lambda: Markup(_render_board(db, on)))
-    return render_template("dashboard/index.html", on=on, is_today=(on == lab_today()), board=board)
+    return render_template("dashboard/index.html", on=on, is_today=(on == lab_today()), board=board, first_steps=first_steps(db))
+
+
+def first_steps(db: Any) -> list[dict[str, Any]] | None:
+    """What to do first in a new prep room, each step with whether it is done; None once a batch exists.
+
+    The steps: look over the reagent policies (the starting ones are defaults to check against the
+    lab's own practice; done when someone has recorded a policy), register a primary-standard lot,
+    register a batch. The last step done hides the list.
+    """
+    if db.execute("SELECT 1 FROM batches LIMIT 1").fetchone():
+        return None
+    policy_set = db.execute("SELECT 1 FROM events WHERE action = 'policy.change' LIMIT 1").fetchone() is not None
+    lot_made = db.execute("SELECT 1 FROM standard_lots LIMIT 1").fetchone() is not None
+    return [
+        {"key": "policy", "done": policy_set, "permission": "policy.edit"},
+        {"key": "lot", "done": lot_made, "permission": "lot.register"},
+        {"key": "batch", "done": False, "permission": "batch.register"},
+    ]
 
 
 def _render_board(db: Any, on: dt.date) -> str:
@@ -39,6 +57,7 @@ def _render_board(db: Any, on: dt.date) -> str:
         Status=Status,
         total=total,
         recent_days=RECENT_DAYS,
+        undecided=records.undecided_runs(db),
     )
 
 

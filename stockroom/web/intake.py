@@ -29,6 +29,7 @@ from stockroom.formatting import significant as sig
 from stockroom.policy import ReagentPolicy, Status, release_in_force, status_on
 from stockroom.web import forms, lab_today, read_json_body
 from stockroom.web.access import anonymous_response, current_user, login_required, public, refuse, require
+from stockroom.web.formatting import on_screen
 from stockroom.web.inputs import Parser
 from stockroom.web.once import once
 
@@ -52,6 +53,11 @@ WATER_GRADES: tuple[str, ...] = (
 _CO2_FREE = re.compile(r"(co2|co₂|carbon dioxide|carbonate)[\s-]*free", re.IGNORECASE)
 
 MIN_VOLUME_L, MAX_VOLUME_L = 0.1, 50.0
+# An amount measured: at most what any batch up to 50 L of 2 mol/L could need (about 6 L of a 37 %
+# concentrate, or 6 kg of pellets), so a slip of units is caught; beyond 10 % from the calculator's
+# figure a warning says so (the standardization still finds the real strength).
+MAX_MEASURED = {"mL": 10_000.0, "g": 10_000.0}
+MEASURED_WARN_REL = 0.10
 MAX_NOMINAL_MOL_L = 2.0  # above every nominal in the starting policies; catches mmol/L typed as mol/L
 # Aqueous concentrates lie between water and about 1.9 g/mL (sulfuric acid): the same wide bounds the
 # preparation module applies, here so a bad density is reported at registration too.
@@ -65,6 +71,7 @@ BATCH_LABELS: dict[str, str] = {
     "concentrate_lot": "Concentrate lot",
     "concentrate_assay_pct": "Assay",
     "concentrate_density_g_ml": "Density",
+    "measured_amount": "Amount measured",
     "prepared_on": "Prepared on",
     "prepared_by": "Prepared by",
     "water_grade": "Water",
@@ -264,8 +271,8 @@ def _catalogue(pols: Mapping[str, ReagentPolicy]) -> dict[str, Any]:
             "role": t.role,
             "solid": preparation.solid_allowed(t),
             "nominals": [f"{n:g}" for n in pols[t.key].nominal_molarities],
-            "typical": _typical_hint(t.key),
-            "cautions": list(preparation.cautions_for(t.key)),
+            "typical": on_screen(_typical_hint(t.key)),
+            "cautions": [on_screen(c) for c in preparation.cautions_for(t.key)],
         }
     return out
 
@@ -460,6 +467,10 @@ def read_batch(
     water = p.text(form.get("water_grade"), "water_grade", required=False, max_length=80)
     container = p.text(form.get("container"), "container", required=False, max_length=80)
     notes = p.text(form.get("notes"), "notes", required=False, max_length=2000)
+    unit = "g" if fields["source_form"] == SOLID else "mL"
+    measured = p.number(
+        form.get("measured_amount") or None, "measured_amount", required=False, gt=0, le=MAX_MEASURED[unit], unit=unit
+    )
     p.raise_if_errors()
     t = fields["reagent"]
     values = {
@@ -475,7 +486,19 @@ def read_batch(
         "container": container,
         "notes": notes,
     }
+    suggested = _suggested_amount(fields)
+    values["preparation"] = {
+        "source_form": fields["source_form"] or LIQUID,
+        "measured_amount": measured,
+        "measured_unit": unit,
+        "suggested_amount": suggested,
+    }
     warnings = []
+    if measured is not None and suggested is not None and abs(measured - suggested) > MEASURED_WARN_REL * suggested:
+        warnings.append(
+            f"{sig(measured)} {unit} was measured where the calculator gives {sig(suggested)} {unit} "
+            f"({(measured - suggested) / suggested * 100:+.0f} %): recorded as done; the standardization finds the real strength."
+        )
     usual = pols[t.key].nominal_molarities
     if not any(math.isclose(fields["nominal_molarity"], n, rel_tol=1e-9) for n in usual):
         warnings.append(
@@ -486,6 +509,25 @@ def read_batch(
     if warning:
         warnings.append(warning)
     return values, warnings
+
+
+def _suggested_amount(fields: Mapping[str, Any]) -> float | None:
+    """What the calculator gives for the checked fields: mL of liquid concentrate or g of pellets; None
+    when the fields do not make a plan (no assay, say)."""
+    if fields["assay_w_w"] is None or (fields["source_form"] != SOLID and fields["density_g_ml"] is None):
+        return None
+    try:
+        plan = preparation.preparation_plan(
+            fields["reagent"],
+            fields["nominal_molarity"],
+            fields["volume_l"],
+            fields["assay_w_w"],
+            fields["density_g_ml"],
+            form=fields["source_form"],
+        )
+    except InvalidInput:
+        return None
+    return plan.concentrate_mass_g if plan.form == SOLID else plan.concentrate_volume_ml
 
 
 # ------------------------------------------------------------------------------- showing a plan
@@ -530,9 +572,9 @@ def plan_display(plan: preparation.PreparationPlan) -> dict[str, Any]:
         )
     return {
         "figures": figures,
-        "instructions": list(plan.instructions),
-        "notes": list(plan.notes),
-        "cautions": list(plan.cautions),
+        "instructions": [on_screen(t) for t in plan.instructions],
+        "notes": [on_screen(t) for t in plan.notes],
+        "cautions": [on_screen(t) for t in plan.cautions],
         "summary": f"{sig(plan.final_volume_l, 3)} L of {plan.target_molarity_mol_l:g} mol/L {plan.reagent}",
     }
 

@@ -365,19 +365,35 @@ def _held_message(entry: ld.LabDayEntry, choices: list[ld.LabDayEntry]) -> str:
     )
 
 
+def _choices_for(args: Mapping[str, Any]) -> list[ld.LabDayEntry]:
+    """The batches in force for the day and titrant a link carried, so the form offers them; [] when unclear."""
+    if not args.get("titrant"):
+        return []
+    p = Parser()
+    day = _date(p, args.get("date") or MISSING, "lab_day", lab_today())
+    titrant = _titrant_key(p, args.get("titrant"), "titrant", True)
+    bench = p.number(
+        args.get("bench_temperature_c") or None, "bench_temperature_c", required=False, ge=ld.BENCH_MIN_C, le=ld.BENCH_MAX_C
+    )
+    if not p.ok or day is None or titrant is None:
+        return []
+    return list(look_up(day, titrant, bench).entries)
+
+
 @bp.route("/lab-day/correct", methods=["GET", "POST"])
 @require("classdata.correct")
 @once
 def correct() -> Any:
     """Upload a class's results for a lab day; each is recomputed with the molarity in force that day."""
     if request.method != "POST":  # HEAD answers like GET and never writes
+        # Carried from the lab-day page: the day, titrant, bench temperature and batch it showed.
         values = {
             "lab_day": request.args.get("date") or lab_today().isoformat(),
             "titrant": request.args.get("titrant", ""),
             "bench_temperature_c": request.args.get("bench_temperature_c", ""),
-            "batch": "",
+            "batch": request.args.get("batch", ""),
         }
-        return _correct_form(values, {}, [], [])
+        return _correct_form(values, {}, [], _choices_for(request.args))
     form = request.form
     p = forms.parser()
     day = _date(p, form.get("lab_day", MISSING), "lab_day", None)

@@ -2,6 +2,8 @@
 
     GET/POST /batches/<code>/labels           choose a layout, copies and start position; POST records the
                                               print (label.print) and answers with the PDF
+    GET      /label-prints/<id>.pdf           the PDF of a recorded print, built again (same serials), while
+                                              a label would still show what that print showed
     GET      /releases/<id>/certificate.pdf   the certificate of standardization of one release
     GET      /batches/<code>/certificate.pdf  the certificate of the release in force (else the latest)
 
@@ -15,11 +17,12 @@ import base64
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from flask import Blueprint, Response, current_app, render_template, request
+from flask import Blueprint, Response, current_app, redirect, render_template, request, url_for
 
+from stockroom import db as dbmod
 from stockroom import readmodel, records
 from stockroom.db import get_db
-from stockroom.errors import Conflict, FieldError, InvalidInput
+from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
 from stockroom.pdf import certificates, ghs, layouts
 from stockroom.pdf import labels as pdflabels
 from stockroom.policy import Status, release_in_force, status_on
@@ -109,7 +112,15 @@ def _context(
     report = status_on(facts, on)
     in_force = release_in_force(facts, on)
     current = pdflabels.current_value_text(history, in_force, report.status)
-    prints = [dict(p, serials=_serial_range(p), current=p["value_printed"] == current) for p in reversed(history["prints"])]
+    prints = [
+        dict(
+            p,
+            serials=_serial_range(p),
+            current=p["value_printed"] == current,
+            layout_title=available[p["layout"]].title if p["layout"] in available else p["layout"],
+        )
+        for p in reversed(history["prints"])
+    ]
     return {
         "batch": batch,
         "content": content,
@@ -117,7 +128,6 @@ def _context(
         "layouts": list(available.values()),
         "broken": broken,
         "labels": PRINT_LABELS,
-        "layout_options": [(lay.name, f"{lay.title} [{lay.name}]") for lay in available.values()],
         "prints": prints,
         "report": report,
         "pictograms": [(code, ghs.name(code), pictogram_uri(code)) for code in (content.elements.pictograms if content else ())],
@@ -155,7 +165,8 @@ def print_labels(code: str) -> Any:
             "copies": request.args.get("copies", "1"),
             "start": "1",
         }
-        return render_template("printing/labels.html", values=values, errors={}, **ctx)
+        printed = _printed(batch, available, request.args.get("printed"), request.args.get("start"))
+        return render_template("printing/labels.html", values=values, errors={}, printed=printed, **ctx)
     layout, copies, start, p = _read_print_form(request.form, available)
     if ctx["problem"]:
         p.error("_", ctx["problem"])
@@ -169,9 +180,72 @@ def print_labels(code: str) -> Any:
         return _reshow(ctx, InvalidInput([FieldError("layout", exc.message)]))
     except InvalidInput as exc:
         return _reshow(ctx, exc)
-    name = f"labels-{batch['code']}-{pdflabels.format_serial(job.record['serial_first'])}.pdf"
+    if request.form.get("then") == "confirm":
+        # The page's own form: answer with the page confirming what was printed, which downloads the
+        # PDF by itself (and offers it again); a second submission lands on the same confirmation.
+        return redirect(url_for("printing.print_labels", code=batch["code"], printed=job.record["id"], start=start), 303)
     once_mod.made()  # a second submission is sent to this page (its list of prints), not printed again
-    return _pdf_response(job.pdf, name)
+    return _pdf_response(job.pdf, _print_filename(batch, job.record))
+
+
+def _print_filename(batch: Mapping[str, Any], row: Mapping[str, Any]) -> str:
+    return f"labels-{batch['code']}-{pdflabels.format_serial(row['serial_first'])}.pdf"
+
+
+def _print_row(batch: Mapping[str, Any], print_id: int) -> dict[str, Any]:
+    rows = dbmod.query(get_db(), "SELECT * FROM label_prints WHERE id = ? AND batch_id = ?", [print_id, batch["id"]])
+    if not rows:
+        raise NotFound(f"{batch['code']} has no such label print")
+    return rows[0]
+
+
+def _printed(
+    batch: Mapping[str, Any], available: Mapping[str, layouts.Layout], raw_id: str | None, raw_start: str | None
+) -> dict[str, Any] | None:
+    """The confirmation of a print just made (?printed=<id>&start=<n>), or None when none was asked for."""
+    if not raw_id:
+        return None
+    p = Parser()
+    print_id = p.integer(raw_id, "printed", ge=1)
+    start = p.integer(raw_start or "1", "start", ge=1, le=1000)
+    p.raise_if_errors()
+    assert print_id is not None and start is not None
+    row = _print_row(batch, print_id)
+    layout = available.get(row["layout"])
+    return dict(
+        row,
+        serials=_serial_range(row),
+        layout_title=layout.title if layout else row["layout"],
+        pdf_url=url_for("printing.print_pdf", print_id=print_id, start=start),
+    )
+
+
+@bp.get("/label-prints/<int:print_id>.pdf")
+@require("label.print")
+def print_pdf(print_id: int) -> Response:
+    """A recorded print's PDF, built again with its own serials; 409 once a label would show another value."""
+    db = get_db()
+    rows = dbmod.query(db, "SELECT * FROM label_prints WHERE id = ?", [print_id])
+    if not rows:
+        raise NotFound(f"no label print with id {print_id}")
+    row = rows[0]
+    batch = records.batch_by_id(db, row["batch_id"])
+    p = Parser()
+    start = p.integer(request.args.get("start") or "1", "start", ge=1, le=1000)
+    p.raise_if_errors()
+    available, _ = layouts.load_all()
+    layout = available.get(row["layout"])
+    if layout is None:
+        raise Conflict(f"the layout {row['layout']} of this print is no longer installed; print again with another")
+    content = pdflabels.label_content(db, _label_config(), batch, lab_today())
+    if content.certified != row["value_printed"] or content.release_id != row["release_id"]:
+        raise Conflict(
+            f"a label of {batch['code']} would now show {content.certified}, not {row['value_printed']} as this print "
+            "did: print again from the labels page"
+        )
+    assert start is not None
+    pdf = pdflabels.build_labels(content, layout, row["copies"], min(start, layout.per_page), row["serial_first"])
+    return _pdf_response(pdf, _print_filename(batch, row))
 
 
 def _reshow(ctx: dict[str, Any], exc: InvalidInput) -> tuple[str, int]:

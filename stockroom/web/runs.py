@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+from collections.abc import Mapping
 from typing import Any
 
 from flask import (
@@ -16,10 +17,10 @@ from flask import (
     url_for,
 )
 
-from stockroom import chemistry, csvio, readmodel, records, run_input, standardization, workflow
+from stockroom import chemistry, csvio, drift, readmodel, records, run_input, standardization, workflow
 from stockroom.db import get_db
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
-from stockroom.policy import release_in_force
+from stockroom.policy import expiry_for, release_in_force
 from stockroom.web import instruments as web_instruments
 from stockroom.web import lab_today
 from stockroom.web.access import current_user, require
@@ -181,6 +182,7 @@ def show(run_id: int) -> Any:
     from stockroom import instruments
 
     used = instruments.instruments_of_run(db, run_id)
+    today = lab_today()
     return render_template(
         "runs/show.html",
         run=run,
@@ -189,10 +191,59 @@ def show(run_id: int) -> Any:
         reference=reference,
         used=used,
         result=run["current"]["result"],
-        today=lab_today(),
+        today=today,
         excluded={e["position"]: e for e in run["exclusions"]},
         in_force=release_in_force(readmodel.batch_facts(db, batch["id"]), lab_today()),
+        against=recheck_against(db, run),
+        expiry=expiry_preview(db, run, batch, today),
     )
+
+
+def recheck_against(db: Any, run: dict[str, Any]) -> dict[str, Any] | None:
+    """A re-check's result against the certified value in force on the day it was performed, or None.
+
+    Returns the release (ReleaseFact), the deviation in mol/L and as a fraction of the certified value,
+    the tolerance (a fraction, from the release's policy) and whether the result lies within it.
+    """
+    if run["purpose"] != "recheck" or run["current"] is None:
+        return None
+    return against_release(readmodel.batch_facts(db, run["batch_id"]), run)
+
+
+def against_release(facts: Any, run: Mapping[str, Any]) -> dict[str, Any] | None:
+    """recheck_against with the batch's facts already read (a batch page reads them once for all its runs)."""
+    if run["purpose"] != "recheck" or not run.get("current"):
+        return None
+    rel = release_in_force(facts, dt.date.fromisoformat(run["performed_on"]))
+    if rel is None:
+        return None
+    band = drift.Band(rel.molarity, rel.tolerance_rel)
+    measured = float(run["current"]["molarity"])
+    return {
+        "release": rel,
+        "difference": measured - rel.molarity,
+        "relative": band.deviation(measured),
+        "tolerance_rel": rel.tolerance_rel,
+        "within": band.contains(measured),
+    }
+
+
+def expiry_preview(db: Any, run: dict[str, Any], batch: dict[str, Any], today: dt.date) -> dict[str, Any] | None:
+    """For an undecided certifying run: the expiry accepting it today would set, and the policy's terms."""
+    if run["purpose"] != "certify" or run["decisions"]:
+        return None
+    try:
+        policy = records.policy_for(db, batch["reagent"], today)
+    except StockroomError:
+        return None
+    prepared_on = dt.date.fromisoformat(batch["prepared_on"])
+    return {
+        "expires_on": expiry_for(today, policy, prepared_on=prepared_on),
+        "shelf_life_days": policy.shelf_life_days,
+        "prepared_on": prepared_on,
+        "recheck_interval_days": policy.recheck_interval_days,
+        "tolerance_rel": policy.tolerance_rel,
+    }
 
 
 @bp.post("/runs/<int:run_id>/exclude")
@@ -236,7 +287,7 @@ def decide(run_id: int) -> Any:
     if decision == "accept":
         release_id = workflow.accept(db, run_id, actor, released_on=released_on, reason=reason, shown_version=shown_version)
         if release_id:
-            flash(f"{batch['code']} released with its new certified value.", "ok")
+            flash(f"{batch['code']} released with its new certified value. Print its labels next (the button below).", "ok")
         else:
             flash("Re-check accepted; the certified value is unchanged.", "ok")
     else:
