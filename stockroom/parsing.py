@@ -30,9 +30,10 @@ _FALSE = {"false", "0", "no", "off"}
 
 # ---- the bounds every request value is held to, whichever door it comes through
 
-# The earliest date anyone may type: nothing in a prep room's records predates the register, and a
-# year such as 0001 or 1899 would make a batch code (YYMM) that looks plausible but is not.
-EARLIEST_DATE = dt.date(2000, 1, 1)
+# The earliest date anyone may type: a department's register may go back decades (1970 leaves room
+# for more than fifty years of records), and a year such as 0001 or 1899 would make a batch code
+# (YYMM) that looks plausible but is not.
+EARLIEST_DATE = dt.date(1970, 1, 1)
 # The latest date at all (an expiry, a calibration due date): batch codes carry two-digit years.
 LATEST_DATE = dt.date(2099, 12, 31)
 # How far ahead a date may be where the future makes sense (a lab day looked up, a planned date).

@@ -26,9 +26,12 @@ __all__ = [
     "batch_history",
     "batch_page",
     "batch_views",
+    "coarse_count",
+    "coarse_counts",
     "coarse_statuses",
     "facts_of",
     "review_facts",
+    "status_summary_problems",
     "views_of",
 ]
 
@@ -66,57 +69,137 @@ def batch_facts(db: sqlite_utils.Database, batch_id: int) -> BatchFacts:
     return facts
 
 
+# The coarse status in SQL, from the per-batch summary the schema keeps (batch_status_summary): exactly
+# policy.status_on's first three tests. The expiry is that of the newest release made by the date; the
+# summary holds it for every date on or after the batch's last release, so the releases themselves are
+# only read for a date before it (a look back in time).
+_EXPIRES = (
+    "CASE WHEN s.last_released_on <= :day THEN s.last_expires_on ELSE "
+    "(SELECT r.expires_on FROM releases r WHERE r.batch_id = b.id AND r.released_on <= :day "
+    "ORDER BY r.released_on DESC, r.id DESC LIMIT 1) END"
+)
+_COARSE = (
+    "CASE WHEN s.in_error_on IS NOT NULL THEN 'registered_in_error' "  # policy.status_on: whatever the date asked
+    "WHEN s.withdrawn_on IS NOT NULL AND s.withdrawn_on <= :day THEN 'withdrawn' "
+    "WHEN s.first_released_on IS NULL OR s.first_released_on > :day THEN 'awaiting' "
+    f"WHEN ({_EXPIRES}) < :day THEN 'expired' ELSE 'live' END"
+)
+COARSE = ("awaiting", "live", "expired", "withdrawn", "registered_in_error")
+# The statuses SQL alone tells; "live" stands for the finer ones (in service, re-check due, drifting).
+COARSE_WITHOUT_HISTORY = tuple(c for c in COARSE if c != "live")
+
+
+def _coarse_sql(
+    on: dt.date, reagent: str | None, search: str | None, only: Iterable[str] | None, out_since: dt.date | None
+) -> tuple[str, dict[str, Any]]:
+    """The rows (id, coarse, since, prepared_on) of the batches that existed on `on`, filtered; SQL and parameters."""
+    params: dict[str, Any] = {"day": on.isoformat()}
+    inner = (
+        f"SELECT b.id, b.prepared_on, {_COARSE} AS coarse, s.withdrawn_on, s.in_error_on, {_EXPIRES} AS expires_on "
+        "FROM batches b JOIN batch_status_summary s ON s.batch_id = b.id WHERE b.prepared_on <= :day"
+    )
+    if reagent:
+        inner += " AND b.reagent = :reagent"
+        params["reagent"] = reagent
+    if search:
+        inner += " AND (b.code LIKE :like ESCAPE '\\' OR b.prepared_by LIKE :like ESCAPE '\\' OR b.notes LIKE :like ESCAPE '\\')"
+        params["like"] = f"%{like_literal(search)}%"
+    outer, conditions = "", []
+    if only is not None:
+        wanted = [c for c in only if c in COARSE]
+        conditions.append(f"coarse IN ({','.join(repr(c) for c in wanted) or 'NULL'})")
+    if out_since is not None:
+        conditions.append("since >= :out_since")
+        params["out_since"] = out_since.isoformat()
+    if conditions:
+        outer = " WHERE " + " OR ".join(conditions)
+    sql = (
+        "SELECT id, coarse, since FROM (SELECT id, prepared_on, coarse, "
+        "CASE coarse WHEN 'withdrawn' THEN withdrawn_on WHEN 'expired' THEN expires_on "
+        "WHEN 'registered_in_error' THEN in_error_on END AS since "
+        f"FROM ({inner})){outer}"
+    )
+    return sql, params
+
+
 def coarse_statuses(
     db: sqlite_utils.Database,
     on: dt.date,
     *,
     reagent: str | None = None,
     search: str | None = None,
+    only: Iterable[str] | None = None,
+    out_since: dt.date | None = None,
+    limit: int | None = None,
+    offset: int = 0,
 ) -> list[tuple[int, str, str | None]]:
-    """(batch id, coarse status, since) of every batch that existed on `on`, newest first, from SQL alone.
+    """(batch id, coarse status, since) of the batches that existed on `on`, newest first, from SQL alone.
 
     The coarse status is "registered_in_error", "withdrawn", "expired" or "awaiting" exactly as
     policy.status_on would say, or
     "live" for a batch whose finer status (in service, re-check due, drifting) needs its history; `since`
-    is the ISO date withdrawn or the expiry date, else None. Lists
-    that show thousands of batches use this so that only the rows they display pay for the rest.
+    is the ISO date marked in error or withdrawn, or the expiry date, else None. only: keep these coarse statuses;
+    out_since: keep also (or only, without `only`) the batches out of use since that date or later;
+    limit/offset: one page of the rows. Lists that show thousands of batches use this so that only
+    the rows they display pay for the rest.
     """
-    day = on.isoformat()
-    sql = (
-        "SELECT b.id, "
-        "(SELECT min(w.withdrawn_on) FROM withdrawals w WHERE w.batch_id = b.id) AS withdrawn_on, "
-        "(SELECT r.expires_on FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ? "
-        " ORDER BY r.released_on DESC, r.id DESC LIMIT 1) AS expires_on, "
-        "EXISTS (SELECT 1 FROM releases r WHERE r.batch_id = b.id AND r.released_on <= ?) AS released, "
-        "(SELECT e.marked_on FROM registrations_in_error e WHERE e.batch_id = b.id) AS in_error_on "
-        "FROM batches b WHERE b.prepared_on <= ?"
-    )
-    params: list[Any] = [day, day, day]
-    if reagent:
-        sql += " AND b.reagent = ?"
-        params.append(reagent)
-    if search:
-        sql += " AND (b.code LIKE ? ESCAPE '\\' OR b.prepared_by LIKE ? ESCAPE '\\' OR b.notes LIKE ? ESCAPE '\\')"
-        params += [f"%{like_literal(search)}%"] * 3
-    sql += " ORDER BY b.prepared_on DESC, b.id DESC"
-    out = []
-    for r in db.execute(sql, params):
-        since = None
-        if r["in_error_on"] is not None:  # policy.status_on: registered in error whatever the date asked
-            coarse, since = "registered_in_error", r["in_error_on"]
-        elif r["withdrawn_on"] is not None and r["withdrawn_on"] <= day:
-            coarse, since = "withdrawn", r["withdrawn_on"]
-        elif not r["released"]:
-            coarse = "awaiting"
-        elif r["expires_on"] < day:
-            coarse, since = "expired", r["expires_on"]
-        else:
-            coarse = "live"
-        out.append((int(r["id"]), coarse, since))
+    sql, params = _coarse_sql(on, reagent, search, only, out_since)
+    sql += " ORDER BY prepared_on DESC, id DESC"
+    if limit is not None:
+        sql += " LIMIT :limit OFFSET :offset"
+        params.update(limit=limit, offset=offset)
+    return [(int(r[0]), str(r[1]), r[2]) for r in db.execute(sql, params)]
+
+
+def coarse_count(
+    db: sqlite_utils.Database,
+    on: dt.date,
+    *,
+    reagent: str | None = None,
+    search: str | None = None,
+    only: Iterable[str] | None = None,
+) -> int:
+    """How many batches coarse_statuses would list (without a page), counted in SQL."""
+    if only is None and not search:
+        # Every batch that existed: counted from the date index alone, no status needed.
+        sql, params = "SELECT count(*) FROM batches WHERE prepared_on <= :day", {"day": on.isoformat()}
+        if reagent:
+            sql, params = sql + " AND reagent = :reagent", {**params, "reagent": reagent}
+        return int(db.execute(sql, params).fetchone()[0])
+    sql, params = _coarse_sql(on, reagent, search, only, None)
+    return int(db.execute(f"SELECT count(*) FROM ({sql})", params).fetchone()[0])
+
+
+def coarse_counts(db: sqlite_utils.Database, on: dt.date) -> dict[str, int]:
+    """How many batches that existed on `on` are in each coarse status (every key of COARSE present)."""
+    sql, params = _coarse_sql(on, None, None, None, None)
+    out = dict.fromkeys(COARSE, 0)
+    for coarse, n in db.execute(f"SELECT coarse, count(*) FROM ({sql}) GROUP BY coarse", params):
+        out[str(coarse)] = int(n)
     return out
 
 
-COARSE = ("registered_in_error", "expired", "withdrawn", "awaiting")  # the statuses SQL alone tells
+def status_summary_problems(db: sqlite_utils.Database) -> list[int]:
+    """Ids of the batches whose kept status summary differs from the one computed from their records now.
+
+    The summary (batch_status_summary) is derived: this recomputes it from the releases and withdrawals
+    and compares, so that a test (or an operator) can prove the kept copy equal to the records.
+    """
+    rows = db.execute(
+        "SELECT b.id FROM batches b LEFT JOIN batch_status_summary s ON s.batch_id = b.id WHERE s.batch_id IS NULL "
+        "OR s.first_released_on IS NOT (SELECT min(r.released_on) FROM releases r WHERE r.batch_id = b.id) "
+        "OR s.last_released_on IS NOT (SELECT r.released_on FROM releases r WHERE r.batch_id = b.id "
+        " ORDER BY r.released_on DESC, r.id DESC LIMIT 1) "
+        "OR s.last_expires_on IS NOT (SELECT r.expires_on FROM releases r WHERE r.batch_id = b.id "
+        " ORDER BY r.released_on DESC, r.id DESC LIMIT 1) "
+        "OR s.withdrawn_on IS NOT (SELECT min(w.withdrawn_on) FROM withdrawals w WHERE w.batch_id = b.id) "
+        "OR s.in_error_on IS NOT (SELECT e.marked_on FROM registrations_in_error e WHERE e.batch_id = b.id) "
+        "ORDER BY b.id"
+    )
+    extra = db.execute(
+        "SELECT s.batch_id FROM batch_status_summary s LEFT JOIN batches b ON b.id = s.batch_id WHERE b.id IS NULL"
+    )
+    return [int(r[0]) for r in rows] + [int(r[0]) for r in extra]
 
 
 def views_of(db: sqlite_utils.Database, ids: list[int], on: dt.date) -> list[BatchView]:
@@ -145,17 +228,20 @@ def batch_page(
 ) -> tuple[list[BatchView], int]:
     """One page of the batches that existed on `on` (optionally filtered), newest first, and how many match.
 
-    Only the page's batches are computed in full, except for the finer statuses (in service, re-check
-    due, drifting), which need every live batch's history to filter on.
+    Only the page's batches are read and computed in full (the coarse status filters and counts in SQL),
+    except for the finer statuses (in service, re-check due, drifting), which need every live batch's
+    history to filter on (the live batches are those within their shelf life: a number that does not
+    grow with the years on record).
     """
-    coarse = coarse_statuses(db, on, reagent=reagent, search=search)
-    end = None if limit is None else offset + limit
-    if status is not None and status not in COARSE:
-        live = views_of(db, [i for i, c, _ in coarse if c == "live"], on)
-        matching = [v for v in live if v.report.status.value == status]
+    if status is not None and status not in COARSE_WITHOUT_HISTORY:
+        live = coarse_statuses(db, on, reagent=reagent, search=search, only=("live",))
+        matching = [v for v in views_of(db, [i for i, _, _ in live], on) if v.report.status.value == status]
+        end = None if limit is None else offset + limit
         return matching[offset:end], len(matching)
-    ids = [i for i, c, _ in coarse if status is None or c == status]
-    return views_of(db, ids[offset:end], on), len(ids)
+    only = None if status is None else (status,)
+    rows = coarse_statuses(db, on, reagent=reagent, search=search, only=only, limit=limit, offset=offset)
+    total = coarse_count(db, on, reagent=reagent, search=search, only=only)
+    return views_of(db, [i for i, _, _ in rows], on), total
 
 
 def batch_views(

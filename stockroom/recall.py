@@ -164,6 +164,39 @@ def read_graph(db: sqlite_utils.Database) -> Graph:
     return _graph_of(db, dbmod.query(db, _RELEASES_SQL + " ORDER BY rl.batch_id, rl.released_on, rl.id"), whole=True)
 
 
+def read_reach_graph(db: sqlite_utils.Database, suspects: Iterable[traceability.Suspect]) -> Graph:
+    """The part of the graph that suspect items can reach: what traceability.downstream needs, no more.
+
+    The releases resting on each item directly (a lot's primary runs, an instrument's runs, a batch's
+    own releases), then those standardized against them, level by level: a few queries per level,
+    so a recall costs what it reaches rather than the whole record. downstream() over this graph
+    gives what it gives over read_graph (tests/test_scale.py).
+    """
+    rows: dict[int, dict[str, Any]] = {}
+    wanted: list[dict[str, Any]] = []
+    for suspect in suspects:
+        if suspect.kind == LOT:
+            wanted += dbmod.query(db, _RELEASES_SQL + " WHERE r.standard_lot_id = ?", [suspect.id])
+        elif suspect.kind == INSTRUMENT:
+            wanted += dbmod.query(
+                db,
+                _RELEASES_SQL + " WHERE rl.run_id IN (SELECT run_id FROM run_instruments WHERE instrument_id = ?)",
+                [suspect.id],
+            )
+        elif suspect.kind == BATCH:
+            wanted += dbmod.query(db, _RELEASES_SQL + " WHERE rl.batch_id = ?", [suspect.id])
+    while wanted:
+        fresh = [r for r in wanted if r["id"] not in rows]
+        rows.update((r["id"], r) for r in fresh)
+        ids = sorted({r["id"] for r in fresh})
+        wanted = []
+        for i in range(0, len(ids), 500):
+            chunk = ids[i : i + 500]
+            wanted += dbmod.query(db, _RELEASES_SQL + " WHERE " + _in("r.reference_release_id", chunk), chunk)
+    ordered = sorted(rows.values(), key=lambda r: (r["batch_id"], r["released_on"], r["id"]))
+    return _graph_of(db, ordered, whole=False)
+
+
 def read_chain_graph(db: sqlite_utils.Database, release_id: int) -> Graph:
     """The graph of one release and what it rests on, up to its primary lot: a few queries per link, not the
     whole record (what a batch page needs)."""
@@ -385,7 +418,7 @@ def open_recall(
             },
         )
         recall = recall_by_id(db, rid)
-        reached = traceability.downstream(read_graph(db), recall.suspect)
+        reached = traceability.downstream(read_reach_graph(db, [recall.suspect]), recall.suspect)
         records.append_event(
             db,
             actor,
@@ -419,7 +452,7 @@ def clear_recall(
         if cleared_on < recall.opened_on:
             raise InvalidInput([FieldError("cleared_on", f"cannot be earlier than the recall ({recall.opened_on})")])
         if batch_id is not None:
-            graph = read_graph(db)
+            graph = read_reach_graph(db, [recall.suspect])
             batches = {graph.node(k).batch_id for k in traceability.downstream(graph, recall.suspect)}
             if batch_id not in batches:
                 raise InvalidInput([FieldError("batch", "this recall does not reach that batch")])
@@ -473,9 +506,10 @@ def review_facts(db: sqlite_utils.Database) -> dict[int, tuple[ReviewFact, ...]]
     cached = _REVIEW_CACHE.get(db)
     if cached is not None and cached[0] == mark:
         return cached[1]
-    graph = read_graph(db)
+    recalls = sorted(list_recalls(db), key=lambda r: r.id)
+    graph = read_reach_graph(db, [r.suspect for r in recalls])
     out: dict[int, list[ReviewFact]] = defaultdict(list)
-    for recall in sorted(list_recalls(db), key=lambda r: r.id):
+    for recall in recalls:
         for key in traceability.downstream(graph, recall.suspect):
             node = graph.node(key)
             assert node.batch_id is not None
@@ -644,7 +678,7 @@ def _via(graph: Graph, key: str, numbers: dict[int, int] | None = None) -> str:
 def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
     """The impact report of a recall as the records stand, with states and days counted up to `on`."""
     recall = recall_by_id(db, recall_id)
-    graph = read_graph(db)
+    graph = read_reach_graph(db, [recall.suspect])
     reached = traceability.downstream(graph, recall.suspect)
     nodes = {k: graph.node(k) for k in reached}
     batch_ids = sorted({n.batch_id for n in nodes.values() if n.batch_id is not None})

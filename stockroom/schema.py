@@ -1311,9 +1311,63 @@ def _batch_preparations(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
+# Lists that cost what they show, however long the history. The batch register reads its pages in
+# date order from an index, and filters on a batch's coarse status (awaiting, live, expired, withdrawn)
+# through a per-batch summary of its release and withdrawal dates. The summary is derived, not a record:
+# triggers keep it current as each batch, release and withdrawal is inserted (in the same transaction),
+# the backfill below computes it from the records, and readmodel.status_summary_problems recomputes it
+# to prove it equal (tests/test_scale.py). The audit trail's filters get indexes of their own.
+_SCALE_INDEXES = [
+    "CREATE INDEX ix_batches_prepared ON batches (prepared_on, id)",
+    "CREATE INDEX ix_events_action ON events (action, id)",
+    "CREATE INDEX ix_events_occurred ON events (occurred_at)",
+    # A recall follows what rests on its item: the runs made with a lot, or against a reference release.
+    "CREATE INDEX ix_runs_lot ON runs (standard_lot_id)",
+    "CREATE INDEX ix_runs_reference ON runs (reference_release_id)",
+    "CREATE INDEX ix_releases_run ON releases (run_id)",
+    """CREATE TABLE batch_status_summary (
+        batch_id INTEGER PRIMARY KEY REFERENCES batches (id),
+        first_released_on TEXT,                     -- the earliest release date (NULL: none yet)
+        last_released_on TEXT,                      -- the newest release by (released_on, id)
+        last_expires_on TEXT,                       -- that release's expiry
+        withdrawn_on TEXT,                          -- the earliest withdrawal date (NULL: none)
+        in_error_on TEXT                            -- the date it was marked registered in error (NULL: not)
+    )""",
+    "CREATE TRIGGER batch_status_summary_batch AFTER INSERT ON batches "
+    "BEGIN INSERT INTO batch_status_summary (batch_id) VALUES (NEW.id); END",
+    # SET expressions all read the row as it was before the update.
+    "CREATE TRIGGER batch_status_summary_release AFTER INSERT ON releases BEGIN "
+    "UPDATE batch_status_summary SET "
+    "first_released_on = min(coalesce(first_released_on, NEW.released_on), NEW.released_on), "
+    "last_expires_on = CASE WHEN last_released_on IS NULL OR NEW.released_on >= last_released_on "
+    "THEN NEW.expires_on ELSE last_expires_on END, "
+    "last_released_on = CASE WHEN last_released_on IS NULL OR NEW.released_on >= last_released_on "
+    "THEN NEW.released_on ELSE last_released_on END "
+    "WHERE batch_id = NEW.batch_id; END",
+    "CREATE TRIGGER batch_status_summary_withdrawal AFTER INSERT ON withdrawals BEGIN "
+    "UPDATE batch_status_summary SET withdrawn_on = min(coalesce(withdrawn_on, NEW.withdrawn_on), NEW.withdrawn_on) "
+    "WHERE batch_id = NEW.batch_id; END",
+    "CREATE TRIGGER batch_status_summary_in_error AFTER INSERT ON registrations_in_error BEGIN "
+    "UPDATE batch_status_summary SET in_error_on = NEW.marked_on WHERE batch_id = NEW.batch_id; END",
+    "INSERT INTO batch_status_summary "
+    "(batch_id, first_released_on, last_released_on, last_expires_on, withdrawn_on, in_error_on) "
+    "SELECT b.id, "
+    "(SELECT min(r.released_on) FROM releases r WHERE r.batch_id = b.id), "
+    "(SELECT r.released_on FROM releases r WHERE r.batch_id = b.id ORDER BY r.released_on DESC, r.id DESC LIMIT 1), "
+    "(SELECT r.expires_on FROM releases r WHERE r.batch_id = b.id ORDER BY r.released_on DESC, r.id DESC LIMIT 1), "
+    "(SELECT min(w.withdrawn_on) FROM withdrawals w WHERE w.batch_id = b.id), "
+    "(SELECT e.marked_on FROM registrations_in_error e WHERE e.batch_id = b.id) "
+    "FROM batches b",
+]
+
+
+@MIGRATIONS(name="0015_scale_indexes")
+def _scale_indexes(db: sqlite_utils.Database) -> None:
+    for statement in _SCALE_INDEXES:
+        db.execute(statement)
+
+
 APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY_TABLES_AT_0008 + ("registrations_in_error", "batch_preparations")
-
-
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 
 

@@ -15,6 +15,7 @@ from typing import Any
 
 from stockroom import chemistry, records, run_input, schema, settings, workflow
 from stockroom import db as dbmod
+from stockroom import recall as recall_mod
 
 SYNTH_USERS = ("synth-staff-1", "synth-staff-2", "synth-staff-3")
 
@@ -73,14 +74,44 @@ def _primary_reps(rng: random.Random, recipe: Recipe, c_true: float, n: int, sca
     return reps
 
 
+# The history's length: up to fifty years (a department's records kept for decades), never before
+# the register's earliest date.
+MAX_YEARS = 50
+# About this many batches a year at full volume (the default); a smaller per_year thins them out.
+FULL_PER_YEAR = 200
+
+
+def _policies_from(conn: Any, start: dt.date) -> None:
+    """Put the starting policies in force from `start` when the history begins before they do.
+
+    The migrations record the starting policies from a fixed date; a longer history needs the same
+    policy in force from its first day, recorded (as any policy change is) with its reason.
+    """
+    first = conn.execute("SELECT min(effective_from) FROM reagent_policies").fetchone()[0]
+    if first is None or dt.date.fromisoformat(first) <= start:
+        return
+    for policy in records.policies(conn, dt.date.fromisoformat(first)).values():
+        records.add_policy(conn, policy, start, "the synthetic history begins before the starting policies (synthetic)", "synth")
+
+
 def build(
-    path: str, years: int = 10, seed: int = 1, end: dt.date | None = None, progress: Callable[[str], None] | None = None
+    path: str,
+    years: int = 10,
+    seed: int = 1,
+    end: dt.date | None = None,
+    progress: Callable[[str], None] | None = None,
+    per_year: int = FULL_PER_YEAR,
 ) -> dict[str, int]:
     """Write a synthetic history of `years` years ending on `end` into a new database at `path`.
 
-    About 200 batches a year, each standardized with 3-5 replicates and re-checked on its policy's
-    interval until it is used up; NaOH and KOH slowly lose strength. Returns row counts.
+    About `per_year` batches a year (at most FULL_PER_YEAR, 200), each standardized with 3-5 replicates
+    and re-checked on its policy's interval until it is used up; NaOH and KOH slowly lose strength.
+    years: 1..MAX_YEARS. Returns row counts.
     """
+    if not 1 <= years <= MAX_YEARS:
+        raise ValueError(f"years must be between 1 and {MAX_YEARS}")
+    if not 1 <= per_year <= FULL_PER_YEAR:
+        raise ValueError(f"per_year must be between 1 and {FULL_PER_YEAR}")
     rng = random.Random(seed)
     end = end or dt.date.today()
     start = end - dt.timedelta(days=365 * years)
@@ -89,7 +120,10 @@ def build(
     conn = dbmod.connect(path)
     schema.migrate(conn)
     weights = [r.weight for r in RECIPES]
+    keep = per_year / FULL_PER_YEAR
+    thin = random.Random(seed + 1)
     with dbmod.write(conn):
+        _policies_from(conn, start)
         lots: dict[tuple[str, int], dict[str, Any]] = {}
         for year in range(years + 1):
             for key in {r.standard for r in RECIPES}:
@@ -114,18 +148,41 @@ def build(
         n_batches = 0
         while day <= end:
             for _ in range(rng.choice((0, 1, 1, 1, 2, 2))):
+                # Thinning draws from its own stream only when asked, so full volume keeps its history.
+                if keep < 1 and thin.random() >= keep:
+                    continue
                 recipe = rng.choices(RECIPES, weights)[0]
                 _one_batch(conn, config, rng, recipe, day, end, lots[(recipe.standard, (day - start).days // 365)])
                 n_batches += 1
             day += dt.timedelta(days=rng.choice((1, 2, 2, 3)))
             if progress and day.day == 1:
                 progress(f"{day.isoformat()}: {n_batches} batches")
+        _recall(conn, start, end, lots[("KHP", 0)])
     counts = {
         t: conn.execute(f"SELECT count(*) FROM {t}").fetchone()[0]
         for t in ("batches", "runs", "replicates", "releases", "withdrawals", "events")
     }
     conn.close()
     return counts
+
+
+def _recall(conn: Any, start: dt.date, end: dt.date, lot: dict[str, Any]) -> None:
+    """One recall of the first year's KHP lot, opened in the history's first year and cleared a month later.
+
+    The recall pages and every status look-up then have a recall to follow, as a real register does.
+    """
+    opened = min(end, start + dt.timedelta(days=200))
+    rid = recall_mod.open_recall(
+        conn, "lot", lot["id"], start, "supplier reissued the certificate of analysis (synthetic)", opened, SYNTH_USERS[0]
+    )
+    recall_mod.clear_recall(
+        conn,
+        rid,
+        None,
+        min(end, opened + dt.timedelta(days=30)),
+        "supplier confirmed the original assay (synthetic)",
+        SYNTH_USERS[0],
+    )
 
 
 def _one_batch(

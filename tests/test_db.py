@@ -130,7 +130,7 @@ def _seeded_rows(conn) -> dict[str, list[dict]]:
     for table in conn.table_names():
         if table.startswith(("_", "sqlite")) or table == "trail_keying":  # checked on its own below
             continue
-        rows = dbmod.query(conn, f"SELECT * FROM {table} ORDER BY id")
+        rows = dbmod.query(conn, f"SELECT * FROM {table} ORDER BY rowid")  # batch_status_summary keys on batch_id
         if rows:
             for r in rows:
                 r.pop("recorded_at", None)

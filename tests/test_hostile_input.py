@@ -56,8 +56,8 @@ def test_dates_at_the_ends_of_the_calendar_are_refused_in_query_strings(world, u
 
 
 def test_date_bounds_name_the_rule():
-    # 2000-01-01: the register's earliest date (a year 0001 or 1899 would make a YYMM batch code).
-    assert parsing.date_problem("1999-12-31")[1] == "cannot be earlier than 2000-01-01"
+    # 1970-01-01: the register's earliest date (a year 0001 or 1899 would make a YYMM batch code).
+    assert parsing.date_problem("1969-12-31")[1] == "cannot be earlier than 1970-01-01"
     assert parsing.date_problem("2100-01-01")[1] == "cannot be later than 2099-12-31"
     assert "use the digits 0-9" in parsing.date_problem("٢٠٢٤-٠١-٠١")[1]
     assert parsing.date_problem("2024-02-29") == (parsing.dt.date(2024, 2, 29), None)  # a leap day
@@ -70,7 +70,7 @@ def test_a_batch_cannot_be_registered_in_the_year_1899(world):
         json.dumps({"reagent": "HCl", "nominal_molarity": 0.1, "volume_l": 5, "prepared_on": "1899-12-31", "prepared_by": "x"}),
     )
     assert resp.status_code == 422
-    assert "2000-01-01" in _errors(resp)["prepared_on"]
+    assert "1970-01-01" in _errors(resp)["prepared_on"]
 
 
 # ---- 2. huge page numbers and ids

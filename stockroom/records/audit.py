@@ -493,16 +493,26 @@ def unaudited_records(db: sqlite_utils.Database) -> list[tuple[str, int]]:
     return out
 
 
-def verify_chain(db: sqlite_utils.Database) -> int | None:
+def verify_chain(db: sqlite_utils.Database, after: tuple[int, str] | None = None) -> int | None:
     """Recompute the audit chain (plain SHA-256 before keying, HMAC after); id of the first broken entry, or None.
 
-    Without the key the keyed entries are checked for their links only; verify() says so.
+    Without the key the keyed entries are checked for their links only; verify() says so. after: (id,
+    hash) of an entry already checked, to check only that entry and the ones after it (it must still
+    carry that hash and its own content must still match it; otherwise its id is the answer).
     """
     first_keyed = _first_keyed(db)
     key = _key_for_reading(db)
     prev = GENESIS_HASH
     expected_id = None
-    for row in db.execute("SELECT * FROM events ORDER BY id"):
+    sql, params = "SELECT * FROM events ORDER BY id", []
+    if after is not None:
+        row = db.execute("SELECT prev_hash, hash FROM events WHERE id = ?", [after[0]]).fetchone()
+        if row is None or row[1] != after[1]:
+            return after[0]
+        # Its MAC covers the link it carries: an edit of that entry or of its link shows at once.
+        prev, expected_id = str(row[0]), after[0]
+        sql, params = "SELECT * FROM events WHERE id >= ? ORDER BY id", [after[0]]
+    for row in db.execute(sql, params):
         r = dict(row)
         if expected_id is not None and r["id"] != expected_id:
             return expected_id  # a row was deleted

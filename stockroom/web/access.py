@@ -272,9 +272,11 @@ def _gate() -> Any:
     view = current_app.view_functions.get(request.endpoint)
     if getattr(view, "access_rule", None) == "public":
         return None
-    if current_user() is not None:
-        return None
+    # An open read passes whoever asks, so the session and token are only read (by the view, when it
+    # needs the user) for what the settings keep closed: a cached answer then costs no session look-up.
     if request.method in SAFE_METHODS and current_app.config.get("OPEN_READS", True):
+        return None
+    if current_user() is not None:
         return None
     return anonymous_response()
 

@@ -4,20 +4,62 @@ from __future__ import annotations
 
 import datetime as dt
 import json
+import threading
+import time
 from typing import Any
 from zoneinfo import ZoneInfo
 
 from flask import Blueprint, current_app, render_template, request
 
 from stockroom import records
-from stockroom.db import get_db, query
-from stockroom.readmodel import like_literal
+from stockroom.db import database_file, get_db, query
 from stockroom.web import int_arg, parse_date_arg
 from stockroom.web.access import login_required
 
 bp = Blueprint("audit", __name__)
 
 PAGE_SIZE = 100
+
+# The first page checks the hash chain. Checking it whole costs a moment per ten thousand entries, so
+# this process remembers the newest entry it found whole and, between full checks (at most every
+# FULL_CHECK_SECONDS), checks only the entries added since: the page says when the whole chain was
+# last checked. `stockroom verify` checks every entry and every record's content from the file.
+FULL_CHECK_SECONDS = 600
+_CHECKED: dict[str, tuple[int, str, float, str]] = {}  # file -> (entry id, its hash, monotonic s, local time)
+_CHECKED_LOCK = threading.Lock()
+
+
+def _check_chain(db: Any, zone: ZoneInfo) -> tuple[int | None, str | None]:
+    """(the first broken entry or None, the local time of the last full check or None when it was now)."""
+    name = database_file(db)
+    now = time.monotonic()
+    with _CHECKED_LOCK:
+        seen = _CHECKED.get(name)
+    full = seen is None or now - seen[2] > FULL_CHECK_SECONDS
+    # Read the newest entry first: whatever is appended meanwhile is checked next time.
+    newest = db.execute("SELECT id, hash FROM events ORDER BY id DESC LIMIT 1").fetchone()
+    broken = records.verify_chain(db, None if full or seen is None else (seen[0], seen[1]))
+    with _CHECKED_LOCK:
+        if broken is not None or newest is None:
+            _CHECKED.pop(name, None)
+            return broken, None
+        if full:
+            when = dt.datetime.now(dt.UTC).astimezone(zone).strftime("%Y-%m-%d %H:%M")
+            _CHECKED[name] = (int(newest[0]), str(newest[1]), now, when)
+            return None, None
+        assert seen is not None
+        _CHECKED[name] = (int(newest[0]), str(newest[1]), seen[2], seen[3])
+        return None, seen[3]
+
+
+def _actions(db: Any) -> list[str]:
+    """The action codes present in the trail, in order: one index look-up per code, not a scan of the trail."""
+    out: list[str] = []
+    row = db.execute("SELECT min(action) FROM events").fetchone()
+    while row is not None and row[0] is not None:
+        out.append(str(row[0]))
+        row = db.execute("SELECT min(action) FROM events WHERE action > ?", [out[-1]]).fetchone()
+    return out
 
 
 def _local(utc_text: str, zone: ZoneInfo) -> str:
@@ -45,23 +87,27 @@ def trail() -> Any:
         where.append("e.actor = ?")
         params.append(actor)
     if action:
-        where.append("e.action LIKE ? ESCAPE '\\'")
-        params.append(like_literal(action) + "%")
+        # A prefix of the (lower-case ASCII) action codes, as an index range rather than a LIKE scan.
+        where.append("{+}e.action >= ? AND {+}e.action < ?")
+        params += [action.lower(), action.lower() + "\U0010ffff"]
     if code:
         where.append("e.batch_id = (SELECT id FROM batches WHERE code = ?)")
         params.append(code)
     if since:
-        where.append("e.occurred_at >= ?")
+        where.append("{+}e.occurred_at >= ?")
         params.append(since.isoformat())
     if until:
-        where.append("e.occurred_at < ?")
+        where.append("{+}e.occurred_at < ?")
         params.append((until + dt.timedelta(days=1)).isoformat())
-    sql_where = " AND ".join(where)
-    total = db.execute(f"SELECT count(*) FROM events e WHERE {sql_where}", params).fetchone()[0]
+    # The count reads the range filters' indexes; the page walks the trail newest first and stops at
+    # its last row (a unary + keeps SQLite from sorting every match of a range by id instead).
+    count_where = " AND ".join(where).replace("{+}", "")
+    page_where = " AND ".join(where).replace("{+}", "+")
+    total = db.execute(f"SELECT count(*) FROM events e WHERE {count_where}", params).fetchone()[0]
     rows = query(
         db,
         f"SELECT e.*, b.code AS batch_code FROM events e LEFT JOIN batches b ON b.id = e.batch_id "
-        f"WHERE {sql_where} ORDER BY e.id DESC LIMIT ? OFFSET ?",
+        f"WHERE {page_where} ORDER BY e.id DESC LIMIT ? OFFSET ?",
         [*params, PAGE_SIZE, (page - 1) * PAGE_SIZE],
     )
     for r in rows:
@@ -70,8 +116,8 @@ def trail() -> Any:
             r["detail_items"] = sorted(json.loads(r["detail"] or "{}").items())
         except ValueError:
             r["detail_items"] = [("detail", r["detail"])]
-    actions = [r[0] for r in db.execute("SELECT DISTINCT action FROM events ORDER BY action")]
-    broken = records.verify_chain(db) if page == 1 else None
+    actions = _actions(db)
+    broken, full_check_at = _check_chain(db, zone) if page == 1 else (None, None)
     return render_template(
         "audit/trail.html",
         rows=rows,
@@ -80,6 +126,7 @@ def trail() -> Any:
         pages=max(1, -(-total // PAGE_SIZE)),
         actions=actions,
         broken=broken,
+        full_check_at=full_check_at,
         checked=(page == 1),
         zone=current_app.config["LAB_TIMEZONE"],
         args={

@@ -63,13 +63,14 @@ def _render_board(db: Any, on: dt.date) -> str:
 
 def _board(db: Any, on: dt.date) -> tuple[dict[Status, list[readmodel.BatchView]], dict[Status, int], int]:
     """Batches shown on the board by status, the count of each status, and how many batches existed."""
-    coarse = readmodel.coarse_statuses(db, on)
-    recent_from = (on - dt.timedelta(days=RECENT_DAYS)).isoformat()
-    shown = [i for i, c, since in coarse if c in ("live", "awaiting") or (since is not None and since >= recent_from)]
+    # Only the batches shown are read in full; the rest are counted in SQL.
+    recent_from = on - dt.timedelta(days=RECENT_DAYS)
+    shown = readmodel.coarse_statuses(db, on, only=("live", "awaiting"), out_since=recent_from)
     groups: dict[Status, list[readmodel.BatchView]] = {s: [] for s in URGENCY}
-    for v in readmodel.views_of(db, shown, on):
+    for v in readmodel.views_of(db, [i for i, _, _ in shown], on):
         groups[v.report.status].append(v)
     counts = {s: len(groups[s]) for s in URGENCY}
+    coarse = readmodel.coarse_counts(db, on)
     for s in (Status.EXPIRED, Status.WITHDRAWN):
-        counts[s] = sum(1 for _, c, _ in coarse if c == s.value)
-    return groups, counts, len(coarse)
+        counts[s] = coarse[s.value]
+    return groups, counts, sum(coarse.values())

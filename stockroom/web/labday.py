@@ -8,6 +8,7 @@ from stockroom.labday; the correction stores one append-only row per upload plus
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import json
 from collections.abc import Mapping
 from typing import Any
@@ -98,13 +99,20 @@ def referral_model(reagent: str, molarity: float) -> str:
 # ---------------------------------------------------------------- parsing the question
 
 
+@functools.lru_cache(maxsize=256)
+def _catalogue_key(text: str) -> str:
+    # The catalogue is fixed for the process: a name once looked up need not be matched again on
+    # every request (programs ask the lab-day question many times with the same few names).
+    return chemistry.titrant(text).key
+
+
 def _titrant_key(p: Parser, raw: Any, field: str, required: bool) -> str | None:
     if raw is MISSING or raw is None or (isinstance(raw, str) and not raw.strip()):
         if required:
             p.error(field, "is required: a titrant such as HCl or NaOH")
         return None
     try:
-        return chemistry.titrant(str(raw)).key
+        return _catalogue_key(str(raw))
     except UnknownSubstance:
         known = ", ".join(t.key for t in chemistry.list_titrants())
         p.error(field, f"unknown titrant {str(raw)!r}; known: {known}")

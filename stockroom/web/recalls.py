@@ -65,7 +65,7 @@ def list_recalls() -> str:
     db = get_db()
     today = lab_today()
     recalls = recall_mod.list_recalls(db)
-    graph = recall_mod.read_graph(db)
+    graph = recall_mod.read_reach_graph(db, [rc.suspect for rc in recalls])  # what the recalls reach, not every release
     releases = recall_mod.reached_release_ids(graph, recalls)
     batches = recall_mod.reached_batch_ids(graph, recalls)
     return render_template("recalls/list.html", recalls=recalls, releases=releases, batches=batches, today=today)

@@ -48,7 +48,7 @@ def _references_for(batch: dict[str, Any], on: dt.date) -> list[tuple[dict[str, 
     titrant = chemistry.titrant(batch["reagent"])
     # Only live batches (released, not expired or withdrawn) can have a value in force; their release
     # in the status report is that value.
-    live = [i for i, c, _ in readmodel.coarse_statuses(db, on) if c == "live" and i != batch["id"]]
+    live = [i for i, _, _ in readmodel.coarse_statuses(db, on, only=("live",)) if i != batch["id"]]
     out = []
     for v in readmodel.views_of(db, live, on):
         try:

@@ -8,6 +8,7 @@ people open at once (the front page, the lab-day answer) reuse their computation
 from __future__ import annotations
 
 import threading
+import weakref
 from collections import OrderedDict
 from collections.abc import Callable, Hashable
 from typing import Any, TypeVar
@@ -18,6 +19,7 @@ T = TypeVar("T")
 _LOCK = threading.Lock()
 _ENTRIES: OrderedDict[Hashable, Any] = OrderedDict()
 MAX_ENTRIES = 128
+_FILES: weakref.WeakKeyDictionary[sqlite_utils.Database, str] = weakref.WeakKeyDictionary()
 
 
 def data_version(db: sqlite_utils.Database) -> int:
@@ -26,9 +28,23 @@ def data_version(db: sqlite_utils.Database) -> int:
     return int(row[0] or 0)
 
 
+def _file_of(db: sqlite_utils.Database) -> str:
+    """The connection's main database file, asked of SQLite once per connection (connections are pooled)."""
+    with _LOCK:
+        name = _FILES.get(db)
+    if name is None:
+        name = str(db.conn.execute("PRAGMA database_list").fetchone()[2])
+        with _LOCK:
+            _FILES[db] = name
+    return name
+
+
 def cached(db: sqlite_utils.Database, key: tuple[Hashable, ...], compute: Callable[[], T]) -> T:
-    """compute(), or its result from an earlier call with the same key at the same data version."""
-    full = (str(db.conn.execute("PRAGMA database_list").fetchone()[2]), data_version(db), *key)
+    """compute(), or its result from an earlier call with the same key at the same data version.
+
+    A hit costs one indexed look-up (the newest audit entry's id) and a dictionary read.
+    """
+    full = (_file_of(db), data_version(db), *key)
     with _LOCK:
         if full in _ENTRIES:
             _ENTRIES.move_to_end(full)
