@@ -423,6 +423,11 @@ def test_api_lists_batches_in_force_with_the_fields_asked_for(client):
     assert one["flags"][0]["kind"] == "recheck_overdue"
 
 
+def _dates_unwrapped(html: str) -> str:
+    """The page with each date's no-break wrapper removed, to read its sentences as text."""
+    return re.sub(r'<span class="nowrap">([^<]*)</span>', r"\1", html)
+
+
 def test_api_every_batch_carries_use_molarity_and_hold(client):
     # The JSON contract (README, JSON API): use_molarity in mol/L or null, hold null or the reason in words.
     body = client.get(f"/api/v1/lab-day?date={TODAY}&titrant=NaOH&bench_temperature_c=23").get_json()
@@ -445,7 +450,7 @@ def test_api_every_batch_carries_use_molarity_and_hold(client):
 
 def test_past_day_page_shows_the_record_that_day_and_what_was_learnt_later(client):
     earlier = (TODAY - dt.timedelta(days=12)).isoformat()
-    html = client.get(f"/lab-day?date={earlier}&titrant=NaOH").get_data(as_text=True)
+    html = _dates_unwrapped(client.get(f"/lab-day?date={earlier}&titrant=NaOH").get_data(as_text=True))
     held = html.split('id="entry-NAOH-2610-01"')[1].split("</section>")[0]
     assert "chip chip-in_service" in held  # as it stood that day
     assert "Learnt after 2026-11-19" in held and "A re-check on 2026-11-28 found 0.09965 mol/L" in held
@@ -490,7 +495,7 @@ def test_api_bad_question_is_422_naming_the_field(client, query, field):
 
 
 def test_page_shows_value_bench_value_prediction_and_flags(client):
-    html = client.get(f"/lab-day?date={TODAY}&titrant=NaOH&bench_temperature_c=23").get_data(as_text=True)
+    html = _dates_unwrapped(client.get(f"/lab-day?date={TODAY}&titrant=NaOH&bench_temperature_c=23").get_data(as_text=True))
     assert "Titrants for the lab day 2026-12-01" in html
     assert html.count('class="panel labday-entry') == 2 and html.count("labday-held") == 1
     assert "On hold: no value of NAOH-2610-01 is to be used for 2026-12-01." in html

@@ -180,7 +180,8 @@ def test_accept_racing_an_exclusion_never_releases_a_stale_value(served):
         page_a = ana.get(f"/runs/{run_id}")[1]
         page_b = ben.get(f"/runs/{run_id}")[1]
         exclude_extra: dict[str, str] = {}
-        accept = {"decision": "accept", "released_on": TODAY.isoformat()}
+        # Every run is on the same batch: from the second on, accepting supersedes the value in force.
+        accept = {"decision": "accept", "released_on": TODAY.isoformat(), "reason": "re-standardized (race test)"}
         if i % 2 == 0:
             exclude_extra = {k: v for k, v in _form_fields(page_a, f"/runs/{run_id}/exclude").items() if k == "form_id"}
             shown = _accept_fields(page_b, run_id)

@@ -54,7 +54,8 @@ def world(app, database):
             "burette_capacity_ml": 50.0,
         }
         run_id, _ = record(db, config, b, meta, good_replicates(), "setup", lot=lot)
-        return workflow.accept(db, run_id, "setup")
+        # Superseding a value in force asks why (the second release of B).
+        return workflow.accept(db, run_id, "setup", reason="re-standardized after the carboy was topped up")
 
     a, b = batch(9), batch(8)
     ids = [release(a, 6), release(b, 5), release(b, 1)]

@@ -70,6 +70,8 @@ def layout_site(tmp_path_factory):
         "code": db.execute("SELECT code FROM batches ORDER BY id LIMIT 1").fetchone()[0],
         "run_id": db.execute("SELECT max(id) FROM runs").fetchone()[0],
         "lot_id": lot_id,
+        # A lot's pages are addressed by the lot's own code, under the same argument name as a batch's.
+        "lot_code": db.execute("SELECT code FROM standard_lots WHERE id = ?", [lot_id]).fetchone()[0],
         "instrument_id": inst.id,
         "recall_id": recall_id,
     }
@@ -108,7 +110,8 @@ def _paths(page, base: str, rules, ids: dict) -> list[str]:
         assert not missing, f"the layout walk has no id for {rule.rule}: add one to layout_site"
         path = rule.rule
         for name in rule.arguments:
-            path = re.sub(r"<(?:\w+:)?" + name + ">", str(ids[name]), path)
+            value = ids["lot_code"] if name == "code" and rule.endpoint.startswith("lots.") else ids[name]
+            path = re.sub(r"<(?:\w+:)?" + name + ">", str(value), path)
         paths.append(path)
     # The batch page of each status (the fullest pages of the product) besides the first batch.
     page.goto(base + "/batches/")
