@@ -22,7 +22,7 @@ def khp_with_naoh(volumes_ml, *, khp_mol=0.001, v0_ml=50.0, c_naoh=0.1):
         total_l = (v0_ml + v) / 1000
         c_p, na = khp_mol / total_l, c_naoh * v / 1000 / total_l
 
-        def balance(h):  # [H+] + [Na+] + [K+] = [OH-] + [HP-] + 2 [P2-], with [K+] = c_p
+        def balance(h, na=na, c_p=c_p):  # [H+] + [Na+] + [K+] = [OH-] + [HP-] + 2 [P2-], with [K+] = c_p
             a2 = KA2_PHTHALIC / (h + KA2_PHTHALIC)
             return h + na - KW / h - c_p * a2
 
@@ -38,7 +38,7 @@ def carbonate_with_hcl(volumes_ml, *, na2co3_mol=0.00125, v0_ml=50.0, c_hcl=0.1)
         c_c, cl = na2co3_mol / total_l, c_hcl * v / 1000 / total_l
         na = 2 * c_c
 
-        def balance(h):  # [H+] + [Na+] = [OH-] + [Cl-] + [HCO3-] + 2 [CO3 2-]
+        def balance(h, na=na, cl=cl, c_c=c_c):  # [H+] + [Na+] = [OH-] + [Cl-] + [HCO3-] + 2 [CO3 2-]
             d = h * h + KA1_CARBONIC * h + KA1_CARBONIC * KA2_CARBONIC
             return h + na - KW / h - cl - c_c * (KA1_CARBONIC * h + 2 * KA1_CARBONIC * KA2_CARBONIC) / d
 
