@@ -50,6 +50,8 @@ UNITS = {PH: "pH", MV: "mV"}
 MIN_POINTS = 5
 MAX_POINTS = 500
 MAX_VOLUME_ML = 1000.0
+# The smallest rise between two recorded volumes: a burette is read to 0.01 mL, a piston burette to 0.001.
+MIN_STEP_ML = 0.001
 # Readings a glass or metal electrode can give in water (wide on purpose: a typing slip is still caught).
 READING_RANGE = {PH: (-2.0, 16.0), MV: (-2000.0, 2000.0)}
 # The resolution a bench meter shows (common practice), used as the reading's standard uncertainty.
@@ -119,12 +121,13 @@ def check_points(volumes: Sequence[float], readings: Sequence[float], kind: str)
             errors.append(FieldError(f"points[{i}].volume_ml", f"must be from 0 to {MAX_VOLUME_ML:g} mL"))
         if not low <= ei <= high:
             errors.append(FieldError(f"points[{i}].{kind}", f"must be from {low:g} to {high:g} {UNITS[kind]}"))
-        if i and vi <= v[i - 1]:
-            word = "repeats" if vi == v[i - 1] else "goes back from"
+        if i and vi < v[i - 1] + MIN_STEP_ML:
+            word = "repeats" if vi >= v[i - 1] else "goes back from"
             errors.append(
                 FieldError(
                     f"points[{i}].volume_ml",
-                    f"{word} the volume before it ({v[i - 1]:g} mL): the volumes added must rise from point to point",
+                    f"{word} the volume before it ({v[i - 1]:g} mL): the volumes added must rise from point to point "
+                    f"(by {MIN_STEP_ML:g} mL at least)",
                 )
             )
     if errors:
@@ -244,7 +247,7 @@ def locate(
         )
     n_d = len(v) - 1
     for j in peaks:
-        if j < 1 or j > n_d - 2:
+        if j < 2 or j > n_d - 3:  # two readings either side of the interval the break is in
             raise _refuse(
                 "points",
                 f"have too few readings past the break near {v[j]:g} mL: record at least two on each side of the end point",
@@ -261,7 +264,11 @@ def locate(
     for j in peaks:
         x = func(v, e, j)
         window = range(max(j - 2, 0), min(j + 4, len(v)))
-        u_noise = _noise_u(lambda ee, j=j: func(v, ee, j), e, window, u_e)
+
+        def at(ee: np.ndarray, j: int = j) -> float:
+            return func(v, ee, j)
+
+        u_noise = _noise_u(at, e, window, u_e)
         step = _step_containing(v, x)
         if step > MAX_STEP_SHARE * x:
             raise _refuse(
