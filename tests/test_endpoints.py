@@ -200,6 +200,11 @@ def test_api_locates_both_carbonate_end_points(client):
     assert [round(p["volume_ml"], 2) for p in out["end_points"]] == [12.5, 25.0]
     assert all(p["method"] == "derivative" and p["u_ml"] > 0 for p in out["end_points"])
     assert out["points"] == len(v)
+    first = out["end_points"][0]
+    # The weak first break at the default 0.01 pH: u near 0.2 mL, so U (k = 2) reads to two figures.
+    assert first["u_ml"] == pytest.approx(0.21, abs=0.02)
+    assert first["display"]["volume"] == "12.50 ± 0.43 mL (k = 2)"
+    assert first["display"]["reading"] == "pH 8.34"
 
 
 def test_api_gran_in_millivolts_is_refused_by_field(client):

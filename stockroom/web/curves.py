@@ -12,7 +12,7 @@ from typing import Any
 
 from flask import Blueprint, current_app, jsonify
 
-from stockroom import endpoints
+from stockroom import endpoints, formatting
 from stockroom.errors import FieldError, InvalidInput
 from stockroom.web import read_json_body
 from stockroom.web.access import anonymous_response, current_user, public
@@ -65,6 +65,17 @@ def read_curve(data: dict[str, Any]) -> tuple[list[float], list[float], str, dic
     return volumes, readings, kind, {"method": method, "u_reading": u_reading, "initial_volume_ml": v0}
 
 
+# The expanded uncertainty people read, as everywhere in stockroom: U = k u with k = 2 (about 95 %).
+DISPLAY_K = 2.0
+
+
+def _with_display(body: dict[str, Any], point: endpoints.EndPoint, kind: str) -> dict[str, Any]:
+    """The end point's JSON plus the words a person reads: the volume ± U (k = 2) in mL, the reading."""
+    reading = f"pH {point.reading:.2f}" if kind == endpoints.PH else f"{point.reading:.1f} mV"
+    body["display"] = {"volume": formatting.volume_u(point.volume_ml, DISPLAY_K * point.u_ml, DISPLAY_K), "reading": reading}
+    return body
+
+
 @bp.post(URL_RULE)
 @public
 def end_points() -> Any:
@@ -81,7 +92,7 @@ def end_points() -> Any:
         return jsonify({"errors": [FieldError("points", f"these values cannot be computed: {exc}").as_dict()]}), 422
     return jsonify(
         {
-            "end_points": [endpoints.as_dict(p, kind) for p in found],
+            "end_points": [_with_display(endpoints.as_dict(p, kind), p, kind) for p in found],
             "method": options["method"],
             "reading": kind,
             "points": len(volumes),
