@@ -35,6 +35,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.parsing",
             "stockroom.run_input",
             "stockroom.glassware",
+            "stockroom.endpoints",
         ),
     ),
     # Connections, pragmas, the per-thread pool, the write lock, queries and the clock.
@@ -103,6 +104,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.web.admin",
             "stockroom.web.api",
             "stockroom.web.audit",
+            "stockroom.web.curves",
             "stockroom.web.batches",
             "stockroom.web.dashboard",
             "stockroom.web.formatting",

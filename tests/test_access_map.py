@@ -12,6 +12,7 @@ PUBLIC_WRITES = {
     "account.sign_in": "signing in is how a person stops being anonymous",
     "account.first_run": "creates the first admin, and only while no user exists",
     "preview.preview": "computes without storing; follows OPEN_READS itself",
+    "curves.end_points": "locates end points without storing; follows OPEN_READS itself",
     "account.sign_out": "ending one's own session must work even when it has already expired",
 }
 # Public computations that store nothing may be added here with their reason.

@@ -288,3 +288,35 @@ def test_run_api_never_fails_with_5xx_and_stores_nothing_when_refused(world, fie
         assert _counts(world) == before
         errors = resp.get_json()["errors"]
         assert errors and all(e["field"] and e["message"] for e in errors)
+
+
+@FUZZ
+@given(
+    fields=st.dictionaries(st.sampled_from(["method", "u_reading", "initial_volume_ml", "extra"]), json_value, max_size=3),
+    points=st.lists(
+        st.dictionaries(st.sampled_from(["volume_ml", "ph", "mv", "bogus"]), st.one_of(nasty_number, nasty_text), max_size=3),
+        max_size=8,
+    ),
+)
+def test_end_points_api_never_fails_with_5xx(world, fields, points):
+    try:
+        data = json.dumps({**fields, "points": points})
+    except (ValueError, TypeError):
+        return
+    resp = world["client"].post("/api/v1/end-points", data=data, content_type="application/json")
+    _check_answer(resp)
+    if resp.status_code != 200:
+        errors = resp.get_json()["errors"]
+        assert errors and all(e["field"] and e["message"] for e in errors)
+
+
+@FUZZ
+@given(
+    volumes=st.lists(st.floats(min_value=0, max_value=1000), min_size=5, max_size=30),
+    readings=st.lists(st.floats(min_value=-2, max_value=16), min_size=30, max_size=30),
+    method=st.sampled_from(["derivative", "second-derivative", "gran"]),
+)
+def test_end_points_api_on_valid_looking_curves_never_fails_with_5xx(world, volumes, readings, method):
+    points = [{"volume_ml": v, "ph": e} for v, e in zip(sorted(volumes), readings, strict=False)]
+    resp = world["client"].post("/api/v1/end-points", json={"points": points, "method": method})
+    _check_answer(resp)

@@ -20,6 +20,7 @@ def register(app: Flask) -> None:
         api,
         audit,
         batches,
+        curves,
         dashboard,
         formatting,
         hazards_admin,
@@ -37,7 +38,7 @@ def register(app: Flask) -> None:
 
     install(app)  # the request guards every route shares (stockroom.web)
     csrf.init_app(app)
-    for module in (health, dashboard, batches, api, preview, account, runs, intake, lots, labday):
+    for module in (health, dashboard, batches, api, preview, curves, account, runs, intake, lots, labday):
         app.register_blueprint(module.bp)
     for module in (printing, hazards_admin):  # labels, certificates and hazard data
         app.register_blueprint(module.bp)
@@ -53,6 +54,7 @@ def register(app: Flask) -> None:
     # (access.api_require), so it needs no CSRF token.
     csrf.exempt(api.bp)
     csrf.exempt(preview.bp)
+    csrf.exempt(curves.bp)  # end points of a recorded curve: computes, stores nothing
     csrf.exempt(intake.api_bp)  # the preparation calculator: computes, stores nothing
     csrf.exempt(labday.api_bp)  # the lab-day look-up: JSON reads only
     formatting.install(app)
