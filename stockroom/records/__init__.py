@@ -18,6 +18,7 @@ from stockroom.records.audit import (
     record_row,
     unaudited_records,
     verify_chain,
+    verify_chain_since_last_check,
 )
 from stockroom.records.batches import (
     AMENDABLE_BATCH_FIELDS,
@@ -107,6 +108,7 @@ __all__ = [
     "undecided_runs",
     "utc_now",
     "verify_chain",
+    "verify_chain_since_last_check",
     "with_amendments",
     "mark_registered_in_error",
     "registration_in_error_of",

@@ -23,11 +23,14 @@ that is not registered.
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 import hmac
 import json
 import os
 import secrets
+import threading
+import time
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -598,6 +601,37 @@ class _Namer:
         if table == "api_token_revocations" and "token_id" in row:
             return f"revocation of API token {row['token_id']}"
         return f"{noun} {row_id}"
+
+
+# The audit page checks the hash chain on its first page. Checking it whole costs a moment per ten
+# thousand entries, so this process remembers the newest entry it found whole and, between full checks
+# (at most every FULL_CHECK_SECONDS), checks only the entries added since: the page says when the whole
+# chain was last checked. `stockroom verify` checks every entry and every record's content from the file.
+FULL_CHECK_SECONDS = 600
+_CHECKED: dict[str, tuple[int, str, float, dt.datetime]] = {}  # file -> (entry id, its hash, monotonic s, UTC time)
+_CHECKED_LOCK = threading.Lock()
+
+
+def verify_chain_since_last_check(db: sqlite_utils.Database) -> tuple[int | None, dt.datetime | None]:
+    """(the first broken entry or None, when (UTC) the whole chain was last checked, or None when it was now)."""
+    name = dbmod.database_file(db)
+    now = time.monotonic()
+    with _CHECKED_LOCK:
+        seen = _CHECKED.get(name)
+    full = seen is None or now - seen[2] > FULL_CHECK_SECONDS
+    # Read the newest entry first: whatever is appended meanwhile is checked next time.
+    newest = db.execute("SELECT id, hash FROM events ORDER BY id DESC LIMIT 1").fetchone()
+    broken = verify_chain(db, None if full or seen is None else (seen[0], seen[1]))
+    with _CHECKED_LOCK:
+        if broken is not None or newest is None:
+            _CHECKED.pop(name, None)
+            return broken, None
+        if full:
+            _CHECKED[name] = (int(newest[0]), str(newest[1]), now, dt.datetime.now(dt.UTC))
+            return None, None
+        assert seen is not None
+        _CHECKED[name] = (int(newest[0]), str(newest[1]), seen[2], seen[3])
+        return None, seen[3]
 
 
 def _changed_fields(row: Mapping[str, Any], hints: str) -> list[str]:

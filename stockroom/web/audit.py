@@ -4,52 +4,19 @@ from __future__ import annotations
 
 import datetime as dt
 import json
-import threading
-import time
 from typing import Any
 from zoneinfo import ZoneInfo
 
 from flask import Blueprint, current_app, render_template, request
 
 from stockroom import records
-from stockroom.db import database_file, get_db, query
+from stockroom.db import get_db, query
 from stockroom.web import int_arg, parse_date_arg
 from stockroom.web.access import login_required
 
 bp = Blueprint("audit", __name__)
 
 PAGE_SIZE = 100
-
-# The first page checks the hash chain. Checking it whole costs a moment per ten thousand entries, so
-# this process remembers the newest entry it found whole and, between full checks (at most every
-# FULL_CHECK_SECONDS), checks only the entries added since: the page says when the whole chain was
-# last checked. `stockroom verify` checks every entry and every record's content from the file.
-FULL_CHECK_SECONDS = 600
-_CHECKED: dict[str, tuple[int, str, float, str]] = {}  # file -> (entry id, its hash, monotonic s, local time)
-_CHECKED_LOCK = threading.Lock()
-
-
-def _check_chain(db: Any, zone: ZoneInfo) -> tuple[int | None, str | None]:
-    """(the first broken entry or None, the local time of the last full check or None when it was now)."""
-    name = database_file(db)
-    now = time.monotonic()
-    with _CHECKED_LOCK:
-        seen = _CHECKED.get(name)
-    full = seen is None or now - seen[2] > FULL_CHECK_SECONDS
-    # Read the newest entry first: whatever is appended meanwhile is checked next time.
-    newest = db.execute("SELECT id, hash FROM events ORDER BY id DESC LIMIT 1").fetchone()
-    broken = records.verify_chain(db, None if full or seen is None else (seen[0], seen[1]))
-    with _CHECKED_LOCK:
-        if broken is not None or newest is None:
-            _CHECKED.pop(name, None)
-            return broken, None
-        if full:
-            when = dt.datetime.now(dt.UTC).astimezone(zone).strftime("%Y-%m-%d %H:%M")
-            _CHECKED[name] = (int(newest[0]), str(newest[1]), now, when)
-            return None, None
-        assert seen is not None
-        _CHECKED[name] = (int(newest[0]), str(newest[1]), seen[2], seen[3])
-        return None, seen[3]
 
 
 def _actions(db: Any) -> list[str]:
@@ -117,7 +84,8 @@ def trail() -> Any:
         except ValueError:
             r["detail_items"] = [("detail", r["detail"])]
     actions = _actions(db)
-    broken, full_check_at = _check_chain(db, zone) if page == 1 else (None, None)
+    broken, full_at = records.verify_chain_since_last_check(db) if page == 1 else (None, None)
+    full_check_at = full_at.astimezone(zone).strftime("%Y-%m-%d %H:%M") if full_at else None
     return render_template(
         "audit/trail.html",
         rows=rows,

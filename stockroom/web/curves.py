@@ -65,14 +65,12 @@ def read_curve(data: dict[str, Any]) -> tuple[list[float], list[float], str, dic
     return volumes, readings, kind, {"method": method, "u_reading": u_reading, "initial_volume_ml": v0}
 
 
-# The expanded uncertainty people read, as everywhere in stockroom: U = k u with k = 2 (about 95 %).
-DISPLAY_K = 2.0
-
-
 def _with_display(body: dict[str, Any], point: endpoints.EndPoint, kind: str) -> dict[str, Any]:
-    """The end point's JSON plus the words a person reads: the volume ± U (k = 2) in mL, the reading."""
+    """The end point's JSON plus the words a person reads: the volume ± U in mL (k: COVERAGE_FACTOR), the reading."""
     reading = f"pH {point.reading:.2f}" if kind == endpoints.PH else f"{point.reading:.1f} mV"
-    body["display"] = {"volume": formatting.volume_u(point.volume_ml, DISPLAY_K * point.u_ml, DISPLAY_K), "reading": reading}
+    # The expanded uncertainty people read: U = k u with the lab's fixed coverage factor (2 by default).
+    k = float(current_app.config["COVERAGE_FACTOR"])
+    body["display"] = {"volume": formatting.volume_u(point.volume_ml, k * point.u_ml, k), "reading": reading}
     return body
 
 
