@@ -50,6 +50,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.records.audit",
             "stockroom.records.batches",
             "stockroom.records.class_corrections",
+            "stockroom.records.containers",
             "stockroom.records.facts",
             "stockroom.records.hazard_data",
             "stockroom.records.label_prints",

@@ -1367,7 +1367,95 @@ def _scale_indexes(db: sqlite_utils.Database) -> None:
         db.execute(statement)
 
 
+# Where a released batch's solution goes. A dispensing fills one container (a bench bottle, a burette
+# reservoir, a smaller carboy) from a batch: the container row is the dispensing, with its readable code,
+# the volume put in it (L), its fill date, its expiry (never later than the batch's release in force on the
+# fill date; a container shelf life in the reagent policy may shorten it) and where it went (room, course,
+# section). Losses and disposals of the batch's own remaining volume (spills, evaporation, the rest poured
+# away) are rows with a reason; a container taken out of use early is marked so once, with the reason.
+# All append-only. The volume remaining of a batch is its registered volume less its containers and losses.
+_TRACKING = [
+    """CREATE TABLE containers (
+        id INTEGER PRIMARY KEY,
+        code TEXT NOT NULL UNIQUE,                  -- readable, e.g. NAOH-2611-02-C03
+        batch_id INTEGER NOT NULL REFERENCES batches (id),
+        kind TEXT NOT NULL CHECK (kind IN ('bench bottle', 'burette reservoir', 'carboy')),
+        volume_l REAL NOT NULL CHECK (volume_l > 0),  -- volume dispensed into it, L
+        filled_on TEXT NOT NULL,                    -- the lab's date (YYYY-MM-DD)
+        expires_on TEXT NOT NULL,                   -- no later than the batch's expiry in force on filled_on
+        room TEXT NOT NULL DEFAULT '',
+        course TEXT NOT NULL DEFAULT '',
+        section TEXT NOT NULL DEFAULT '',
+        notes TEXT NOT NULL DEFAULT '',
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_containers_batch ON containers (batch_id, filled_on)",
+    "CREATE INDEX ix_containers_destination ON containers (course COLLATE NOCASE, section COLLATE NOCASE, filled_on)",
+    """CREATE TABLE batch_volume_losses (
+        id INTEGER PRIMARY KEY,
+        batch_id INTEGER NOT NULL REFERENCES batches (id),
+        kind TEXT NOT NULL CHECK (kind IN ('loss', 'disposal')),
+        volume_l REAL NOT NULL CHECK (volume_l > 0),
+        occurred_on TEXT NOT NULL,
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_volume_losses_batch ON batch_volume_losses (batch_id, occurred_on)",
+    """CREATE TABLE container_disposals (
+        id INTEGER PRIMARY KEY,
+        container_id INTEGER NOT NULL UNIQUE REFERENCES containers (id),
+        disposed_on TEXT NOT NULL,
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    # The lab schedule: a lab session on a date for a course and section, in a room, needing a volume of
+    # one titrant (reagent and nominal mol/L). Entered or imported; a session called off is marked so once.
+    """CREATE TABLE lab_sessions (
+        id INTEGER PRIMARY KEY,
+        session_on TEXT NOT NULL,                   -- the lab's date (YYYY-MM-DD)
+        course TEXT NOT NULL CHECK (length(trim(course)) > 0),
+        section TEXT NOT NULL DEFAULT '',
+        room TEXT NOT NULL DEFAULT '',
+        reagent TEXT NOT NULL,
+        nominal_molarity REAL NOT NULL CHECK (nominal_molarity > 0),
+        volume_needed_l REAL NOT NULL CHECK (volume_needed_l > 0),
+        notes TEXT NOT NULL DEFAULT '',
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    "CREATE INDEX ix_lab_sessions_on ON lab_sessions (session_on, id)",
+    "CREATE INDEX ix_lab_sessions_titrant ON lab_sessions (reagent, nominal_molarity, session_on)",
+    """CREATE TABLE lab_session_cancellations (
+        id INTEGER PRIMARY KEY,
+        session_id INTEGER NOT NULL UNIQUE REFERENCES lab_sessions (id),
+        reason TEXT NOT NULL CHECK (length(trim(reason)) > 0),
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL
+    )""",
+    # Days a container filled from a batch may be used, counted from its fill date (NULL: the batch's own).
+    "ALTER TABLE reagent_policies ADD COLUMN container_shelf_life_days INTEGER "
+    "CHECK (container_shelf_life_days IS NULL OR container_shelf_life_days > 0)",
+]
+_TRACKING_TABLES = (
+    "containers",
+    "batch_volume_losses",
+    "container_disposals",
+    "lab_sessions",
+    "lab_session_cancellations",
+)
+
+
+@MIGRATIONS(name="0012_tracking")
+def _tracking(db: sqlite_utils.Database) -> None:
+    for statement in _TRACKING + _append_only_triggers(_TRACKING_TABLES) + _no_replace_triggers(_TRACKING_TABLES):
+        db.execute(statement)
+
+
 APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY_TABLES_AT_0008 + ("registrations_in_error", "batch_preparations")
+APPEND_ONLY_TABLES = APPEND_ONLY_TABLES + _TRACKING_TABLES
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 
 
