@@ -23,7 +23,8 @@ class ReagentPolicy:
     """How long a titrant keeps, how often it is re-checked, and what it must meet.
 
     shelf_life_days and recheck_interval_days in days; tolerance_rel and max_rsd as fractions
-    (0.005 = 0.5 %); nominal_molarities in mol/L.
+    (0.005 = 0.5 %); nominal_molarities in mol/L; container_shelf_life_days: days a container filled
+    from a batch may be used from its fill date (None: as long as the batch itself).
     """
 
     reagent: str
@@ -33,6 +34,7 @@ class ReagentPolicy:
     tolerance_rel: float = 0.005
     max_rsd: float = 0.002
     min_replicates: int = 3
+    container_shelf_life_days: int | None = None
 
 
 # Starting policy, written into a new database by a migration and editable there afterwards.

@@ -88,6 +88,9 @@ _ACTIONS = (
     Action("instrument.calibrate", "recorded a calibration", "calibrations", every_row=True),
     Action("recall.open", "opened a recall", "recalls", every_row=True),
     Action("recall.clear", "cleared a recall", "recall_clearances", every_row=True),
+    Action("container.fill", "filled a container from a batch", "containers", every_row=True),
+    Action("batch.volume_loss", "recorded a loss or disposal of batch volume", "batch_volume_losses", every_row=True),
+    Action("container.dispose", "took a container out of use", "container_disposals", every_row=True),
     # The first keyed entry of a database names every record row already there (the starting data a
     # migration wrote, or a whole history made before keying), so each row has an entry that names it.
     Action("trail.begin", "began the keyed audit trail"),

@@ -29,6 +29,7 @@ def add_policy(db: sqlite_utils.Database, policy: ReagentPolicy, effective_from:
             "tolerance_rel": policy.tolerance_rel,
             "max_rsd": policy.max_rsd,
             "min_replicates": policy.min_replicates,
+            "container_shelf_life_days": policy.container_shelf_life_days,
             "effective_from": effective_from.isoformat(),
             "recorded_at": dbmod.utc_now(),
             "recorded_by": actor,
@@ -45,6 +46,7 @@ def add_policy(db: sqlite_utils.Database, policy: ReagentPolicy, effective_from:
             "tolerance_rel": policy.tolerance_rel,
             "max_rsd": policy.max_rsd,
             "min_replicates": policy.min_replicates,
+            "container_shelf_life_days": policy.container_shelf_life_days,
         },
     )
 
@@ -63,6 +65,7 @@ def _policy_from_row(r: dict[str, Any]) -> ReagentPolicy:
         tolerance_rel=r["tolerance_rel"],
         max_rsd=r["max_rsd"],
         min_replicates=r["min_replicates"],
+        container_shelf_life_days=r.get("container_shelf_life_days"),
     )
 
 
