@@ -232,7 +232,7 @@ def check_volume(field: str, volume_l: float, remaining_l: float) -> None:
             [
                 FieldError(
                     field,
-                    f"{label(field)} {volume_l:g} L is more than remains in the batch ({max(remaining_l, 0.0):.3f} L)",
+                    f"{volume_l:g} L is more than remains in the batch ({max(remaining_l, 0.0):.3f} L left)",
                 )
             ]
         )

@@ -155,7 +155,7 @@ def test_dispensing_refusals():
     stock.check_dispensing(status_on(facts, on), policy.release_in_force(facts, on), 20.0, 20.0)  # exactly all of it
     with pytest.raises(InvalidInput) as exc:
         stock.check_dispensing(status_on(facts, on), policy.release_in_force(facts, on), 2.5, 2.0)
-    assert exc.value.fields["volume_l"] == "Volume dispensed 2.5 L is more than remains in the batch (2.000 L)"
+    assert exc.value.fields["volume_l"] == "2.5 L is more than remains in the batch (2.000 L left)"
     late = D(2026, 12, 1)
     with pytest.raises(Conflict, match="expired"):
         stock.check_dispensing(status_on(facts, late), policy.release_in_force(facts, late), 1.0, 20.0)
@@ -203,7 +203,7 @@ def test_dispense_refuses_more_than_remains_and_writes_nothing(world):
     before = db.execute("SELECT count(*) FROM events").fetchone()[0]
     with pytest.raises(InvalidInput) as exc:
         containers.dispense(db, batch, _d(world, 0.6), "ana")
-    assert "(0.500 L)" in exc.value.fields["volume_l"]
+    assert "(0.500 L left)" in exc.value.fields["volume_l"]
     assert db.execute("SELECT count(*) FROM events").fetchone()[0] == before
     assert db.execute("SELECT count(*) FROM containers").fetchone()[0] == 1
 

@@ -24,6 +24,7 @@ import math
 import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
+from dataclasses import field as dc_field
 from typing import Any
 from urllib.parse import quote
 
@@ -104,6 +105,8 @@ class LabelContent:
     release_id: int | None = None
     regulations: str = REGULATIONS
     institution: str = ""  # setting INSTITUTION_NAME; empty prints nothing
+    # A container's own values (container_code, filled_on, destination...) on a container label; empty on a batch's.
+    extra: Mapping[str, str] = dc_field(default_factory=dict)
 
 
 def value_text(molarity: float, U: float, k: float, reference_temperature_c: float) -> str:
@@ -163,6 +166,7 @@ def placeholder_values(content: LabelContent, serial: int, codes_only: bool = Fa
         "serial": format_serial(serial),
         "printed_on": content.printed_on,
         "institution": content.institution,
+        **{k: _unbreakable_figures(v) if k == "container_volume" else v for k, v in content.extra.items()},
     }
 
 

@@ -65,6 +65,13 @@ PLACEHOLDERS: dict[str, str] = {
     "serial": "this label's print serial (unique in the database)",
     "printed_on": "the date of printing",
     "institution": "the institution's name (setting INSTITUTION_NAME; empty when it is not set)",
+    # A container's label (purpose = "container"): one dispensing from a batch.
+    "container_code": "the container's code, e.g. NAOH-2611-02-C03 (container labels)",
+    "container_kind": "bench bottle, burette reservoir or carboy (container labels)",
+    "filled_on": "the date the container was filled (container labels)",
+    "container_volume": "the volume put in it, e.g. 1.5 L (container labels)",
+    "container_expires_on": "the container's own expiry, never later than the batch's (container labels)",
+    "destination": "where it went, e.g. CHM 110 · section B · room 214 (container labels)",
 }
 REQUIRED = (
     "batch_id",
@@ -80,6 +87,23 @@ REQUIRED = (
     "regulations",
     "serial",
 )
+# A container label (purpose = "container") carries its own code, fill date, expiry and destination with
+# its parent's value and hazards; it is not a print of the batch register, so it has no serial.
+REQUIRED_CONTAINER = (
+    "container_code",
+    "batch_id",
+    "reagent",
+    "nominal",
+    "certified",
+    "filled_on",
+    "container_expires_on",
+    "destination",
+    "signal_word",
+    "hazard_statements",
+    "precautionary_statements",
+    "regulations",
+)
+PURPOSES = ("batch", "container")
 # A required item any one of whose forms will do.
 ALTERNATIVES: dict[str, tuple[str, ...]] = {"regulations": ("regulations", "regulations_short")}
 KINDS = ("text", "qr", "pictograms")
@@ -161,6 +185,7 @@ class Layout:
     font_bold: str
     fields: tuple[Field, ...]
     source: str = ""
+    purpose: str = "batch"  # or "container": a container's label (labels/containers/)
 
     @property
     def per_page(self) -> int:
@@ -289,7 +314,7 @@ class _Reader:
         return raw
 
 
-_TOP_KEYS = ("title", "description", "page", "grid", "label", "font", "field")
+_TOP_KEYS = ("title", "description", "purpose", "page", "grid", "label", "font", "field")
 _PAGE_KEYS = ("size", "orientation", "width_mm", "height_mm")
 _GRID_KEYS = ("rows", "columns", "margin_top_mm", "margin_left_mm", "gutter_x_mm", "gutter_y_mm")
 _LABEL_KEYS = ("width_mm", "height_mm", "corner_radius_mm", "outline")
@@ -327,6 +352,7 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
     r.known(data, "", _TOP_KEYS)
     title = r.text(data, "title", "")
     description = r.text(data, "description", "", default="")
+    purpose = r.text(data, "purpose", "", default="batch", choices=PURPOSES)
 
     page = r.table(data, "page")
     r.known(page, "[page] ", _PAGE_KEYS)
@@ -471,7 +497,8 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
 
     _check_overlaps(r, fields)
     used = {p for f in fields if f.kind == "text" for p in _safe_placeholders(f)}
-    missing = [p for p in REQUIRED if not any(a in used for a in ALTERNATIVES.get(p, (p,)))]
+    required = REQUIRED_CONTAINER if purpose == "container" else REQUIRED
+    missing = [p for p in required if not any(a in used for a in ALTERNATIVES.get(p, (p,)))]
     if missing:
         r.problem("[[field]]", "every label must show " + ", ".join("{" + p + "}" for p in missing))
     for kind in ("qr", "pictograms"):
@@ -500,6 +527,7 @@ def parse_layout(name: str, text: str, source: str = "") -> Layout:
         font_bold=bold,
         fields=tuple(fields),
         source=source,
+        purpose=purpose,
     )
 
 
@@ -573,6 +601,11 @@ def load_layout(path: str | Path) -> Layout:
 def layouts_folder() -> Path:
     """The labels/ folder shipped with stockroom (checkout or wheel)."""
     return resource_dir("labels")
+
+
+def container_layouts_folder() -> Path:
+    """labels/containers/: the layouts of a container's label (purpose = "container")."""
+    return resource_dir("labels") / "containers"
 
 
 def load_all(folder: str | Path | None = None) -> tuple[dict[str, Layout], list[LayoutError]]:

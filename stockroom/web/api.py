@@ -10,6 +10,8 @@ from flask import Blueprint, current_app, jsonify, request
 from stockroom import accounts, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import StatusReport
+from stockroom.records import containers
+from stockroom.web import containers as web_containers
 from stockroom.web import int_arg, lab_today, parse_date_arg, read_json_body
 from stockroom.web.access import api_require, current_user
 
@@ -73,7 +75,8 @@ def batch(code: str) -> Any:
     b = records.batch_by_code(db, code)
     from stockroom.policy import status_on
 
-    report = status_on(readmodel.batch_facts(db, b["id"]), on)
+    facts = readmodel.batch_facts(db, b["id"])
+    report = status_on(facts, on)
     history = readmodel.batch_history(db, b["id"])
     # Open reads show who released by display name: a sign-in name here would tell guessers whom to lock out.
     shown = {u.username.lower(): u.display_name for u in accounts.list_users(db)}
@@ -114,9 +117,38 @@ def batch(code: str) -> Any:
                 if r["purpose"] == "recheck"
             ],
             "withdrawn_on": history["withdrawals"][0]["withdrawn_on"] if history["withdrawals"] else None,
+            "volume_remaining_l": round(containers.volume_remaining_l(db, b["id"]), 6),
+            "containers": [web_containers.container_json(c) for c in web_containers.container_rows(db, b["id"], facts, on)],
         }
     )
     return jsonify(body)
+
+
+@bp.post("/batches/<code>/dispensings")
+@api_require("stock.dispense")
+def create_dispensing(code: str) -> Any:
+    """Fill a container from a batch: {volume_l, dispensed_on, container, destination}; the form's reader and rules.
+
+    201 with the container; 422 for bad input or more than remains; 409 when the batch has no value in
+    force that day (not released, expired, withdrawn) or is on hold.
+    """
+    db = get_db()
+    batch = records.batch_by_code(db, code)
+    row = web_containers.record_dispensing(db, batch, _json_body(), form=False)
+    remaining = containers.volume_remaining_l(db, batch["id"])
+    return jsonify(
+        {
+            "container_id": row["id"],
+            "code": row["code"],
+            "batch": batch["code"],
+            "kind": row["kind"],
+            "volume_l": row["volume_l"],
+            "filled_on": row["filled_on"],
+            "expires_on": row["expires_on"],
+            "destination": {"room": row["room"], "course": row["course"], "section": row["section"]},
+            "volume_remaining_l": round(remaining, 6),
+        }
+    ), 201
 
 
 # ---------------------------------------------------------------- writes (API token only)

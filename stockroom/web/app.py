@@ -20,6 +20,7 @@ def register(app: Flask) -> None:
         api,
         audit,
         batches,
+        containers,
         curves,
         dashboard,
         formatting,
@@ -38,7 +39,7 @@ def register(app: Flask) -> None:
 
     install(app)  # the request guards every route shares (stockroom.web)
     csrf.init_app(app)
-    for module in (health, dashboard, batches, api, preview, curves, account, runs, intake, lots, labday):
+    for module in (health, dashboard, batches, containers, api, preview, curves, account, runs, intake, lots, labday):
         app.register_blueprint(module.bp)
     for module in (printing, hazards_admin):  # labels, certificates and hazard data
         app.register_blueprint(module.bp)

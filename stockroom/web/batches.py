@@ -9,6 +9,7 @@ from flask import Blueprint, flash, redirect, render_template, request, url_for
 from stockroom import chemistry, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, release_in_force
+from stockroom.web import containers as web_containers
 from stockroom.web import forms, int_arg, lab_today, parse_date_arg
 from stockroom.web import runs as web_runs
 from stockroom.web.access import current_user, require
@@ -80,6 +81,7 @@ def show(code: str) -> str:
         amend_labels=_AMEND_LABELS,
         preparation=records.preparation_of(db, batch["id"]),
         against={r["id"]: a for r in history["runs"] if (a := web_runs.against_release(facts, r)) is not None},
+        tracking=web_containers.batch_tracking(db, batch, facts, on),
     )
 
 
