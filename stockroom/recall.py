@@ -24,7 +24,7 @@ from typing import Any
 
 import sqlite_utils
 
-from stockroom import csvsafe, formatting, records, traceability
+from stockroom import csvsafe, formatting, records, stock, traceability
 from stockroom import db as dbmod
 from stockroom import instruments as inst_mod
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
@@ -601,6 +601,43 @@ class ReachedBatch:
 
 
 @dataclass(frozen=True)
+class ReachedContainer:
+    """A container filled from a reached batch that was in use while a reached value was in force and suspect.
+
+    volume_l in L; filled_on and expires_on as recorded; disposed_on: taken out of use, or None; from_day
+    and to_day: the days (inclusive) it was in use while suspect, up to the report's date; destination:
+    where it went, in words ("CHM 110 · section B · room 214"), with its parts.
+    """
+
+    container_id: int
+    code: str
+    batch_code: str
+    release_id: int
+    kind: str
+    volume_l: float
+    filled_on: dt.date
+    expires_on: dt.date
+    disposed_on: dt.date | None
+    room: str
+    course: str
+    section: str
+    destination: str
+    from_day: dt.date
+    to_day: dt.date
+
+
+@dataclass(frozen=True)
+class ReachedDestination:
+    """A destination that received suspect solution: its words, the containers, first and last day in use."""
+
+    destination: str
+    containers: tuple[str, ...]
+    first_day: dt.date
+    last_day: dt.date
+    volume_l: float
+
+
+@dataclass(frozen=True)
 class Impact:
     """The impact report of one recall as of a date (`on`)."""
 
@@ -608,6 +645,26 @@ class Impact:
     on: dt.date
     releases: tuple[ReachedRelease, ...]
     batches: tuple[ReachedBatch, ...]
+    # Containers and destinations that received suspect solution (stockroom.records.containers).
+    containers: tuple[ReachedContainer, ...] = ()
+
+    @property
+    def destinations(self) -> tuple[ReachedDestination, ...]:
+        """Each destination that had a reached container in use while suspect, first day first."""
+        grouped: dict[str, list[ReachedContainer]] = defaultdict(list)
+        for c in self.containers:
+            grouped[c.destination].append(c)
+        out = [
+            ReachedDestination(
+                words,
+                tuple(c.code for c in cs),
+                min(c.from_day for c in cs),
+                max(c.to_day for c in cs),
+                sum(c.volume_l for c in cs),
+            )
+            for words, cs in grouped.items()
+        ]
+        return tuple(sorted(out, key=lambda d: (d.first_day, d.destination)))
 
     @property
     def corrections(self) -> tuple[dict[str, Any], ...]:
@@ -782,7 +839,68 @@ def impact(db: sqlite_utils.Database, recall_id: int, on: dt.date) -> Impact:
         states.append(ReachedBatch(bid, b["code"], b["reagent"], float(b["nominal_molarity"]), state, report.status.label, note))
     order = {"under review": 0, "cleared": 1, "re-standardized": 2, "expired": 3, "withdrawn": 4}
     states.sort(key=lambda s: (order.get(s.state, 9), s.code))
-    return Impact(recall=recall, on=on, releases=tuple(out), batches=tuple(states))
+    return Impact(
+        recall=recall, on=on, releases=tuple(out), batches=tuple(states), containers=_reached_containers(db, out, batches, on)
+    )
+
+
+def _reached_containers(
+    db: sqlite_utils.Database, reached: Sequence[ReachedRelease], batches: dict[int, dict[str, Any]], on: dt.date
+) -> tuple[ReachedContainer, ...]:
+    """The containers of reached batches in use on some day a reached value of their batch was in force while suspect.
+
+    A container is in use from its fill date to the day before it is taken out of use, or to its expiry;
+    the days counted stop at `on`. One query for every reached batch.
+    """
+    periods: dict[int, list[tuple[int, Period]]] = defaultdict(list)
+    for r in reached:
+        for p in r.periods:
+            periods[r.batch_id].append((r.release_id, p))
+    if not periods:
+        return ()
+    ids = sorted(periods)
+    rows = dbmod.query(
+        db,
+        "SELECT c.*, d.disposed_on AS disposed_on FROM containers c LEFT JOIN container_disposals d ON d.container_id = c.id "
+        f"WHERE c.batch_id IN ({','.join('?' * len(ids))}) ORDER BY c.filled_on, c.id",
+        ids,
+    )
+    out: list[ReachedContainer] = []
+    for c in rows:
+        filled, expires = _d(c["filled_on"]), _d(c["expires_on"])
+        disposed = _d(c["disposed_on"]) if c["disposed_on"] else None
+        last_in_use = min(expires, disposed - ONE_DAY if disposed else expires, on)
+        for release_id, p in periods[c["batch_id"]]:
+            start, end = max(filled, p.start), min(last_in_use, p.end)
+            if start > end:
+                continue
+            dest = traceability_destination(c["room"], c["course"], c["section"])
+            out.append(
+                ReachedContainer(
+                    container_id=c["id"],
+                    code=c["code"],
+                    batch_code=batches[c["batch_id"]]["code"],
+                    release_id=release_id,
+                    kind=c["kind"],
+                    volume_l=float(c["volume_l"]),
+                    filled_on=filled,
+                    expires_on=expires,
+                    disposed_on=disposed,
+                    room=c["room"],
+                    course=c["course"],
+                    section=c["section"],
+                    destination=dest,
+                    from_day=start,
+                    to_day=end,
+                )
+            )
+            break  # one row per container: its first suspect stretch names it
+    return tuple(out)
+
+
+def traceability_destination(room: str, course: str, section: str) -> str:
+    """A destination in words, as every page reads it (stockroom.stock.Destination.words)."""
+    return stock.Destination(room or "", course or "", section or "").words()
 
 
 # ---------------------------------------------------------------------------------------------------------
@@ -816,8 +934,9 @@ def impact_csv(report: Impact) -> str:
     """The impact report as CSV text: `# key: value` lines about the recall, then one row per finding.
 
     section is "release" (a reached release), "in_force" (a stretch of days it was in force while
-    suspect), "batch" (a batch resting on the suspect item, with its state) or "correction" (a
-    class-data correction made with a reached release). Molarities in mol/L.
+    suspect), "batch" (a batch resting on the suspect item, with its state), "container" (a container
+    in use while suspect, its destination in the note) or "correction" (a class-data correction made
+    with a reached release). Molarities in mol/L.
     """
     rc = report.recall
     out = csvsafe.SafeCsv()
@@ -869,6 +988,15 @@ def impact_csv(report: Impact) -> str:
             )
     for b in report.batches:
         row(section="batch", batch=b.code, titrant=b.reagent, state=b.state, note=b.note)
+    for c in report.containers:
+        row(
+            section="container",
+            batch=c.batch_code,
+            release_id=c.release_id,
+            **{"from": c.from_day.isoformat(), "to": c.to_day.isoformat()},
+            days=(c.to_day - c.from_day).days + 1,
+            note=f"{c.code}, {c.kind}, {c.volume_l:g} L filled {c.filled_on.isoformat()} for {c.destination}",
+        )
     for c in report.corrections:
         row(
             section="correction",

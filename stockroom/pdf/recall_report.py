@@ -264,6 +264,41 @@ def recall_report_pdf(report: Impact, *, printed_on: dt.date) -> bytes:
     else:
         story.append(Paragraph("None up to the report's date.", st["body"]))
 
+    story.append(Paragraph("Containers and destinations that received suspect solution", st["h2"]))
+    if report.containers:
+        story.append(
+            _table(
+                ["Container", "Batch", "Filled", "Volume", "Destination", "In use while suspect"],
+                [
+                    [
+                        c.code,
+                        c.batch_code,
+                        c.filled_on.isoformat(),
+                        fmt.quantity(c.volume_l, "L", 3),
+                        c.destination,
+                        f"{c.from_day.isoformat()} to {c.to_day.isoformat()}",
+                    ]
+                    for c in report.containers
+                ],
+                [34 * mm, 28 * mm, 20 * mm, 16 * mm, 38 * mm, None],
+                st,
+            )
+        )
+        story.append(
+            Paragraph(
+                "Destinations: "
+                + "; ".join(
+                    f"{d.destination} ({len(d.containers)} container{'s' if len(d.containers) != 1 else ''}, "
+                    f"{d.first_day.isoformat()} to {d.last_day.isoformat()})"
+                    for d in report.destinations
+                )
+                + ". Tell the instructors of these sections which days their values are in doubt.",
+                st["note"],
+            )
+        )
+    else:
+        story.append(Paragraph("None recorded: no container filled from a reached batch was in use while suspect.", st["body"]))
+
     story.append(Paragraph("Class-data corrections made with a suspect value", st["h2"]))
     if report.corrections:
         story.append(
