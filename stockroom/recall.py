@@ -988,14 +988,14 @@ def impact_csv(report: Impact) -> str:
             )
     for b in report.batches:
         row(section="batch", batch=b.code, titrant=b.reagent, state=b.state, note=b.note)
-    for c in report.containers:
+    for box in report.containers:
         row(
             section="container",
-            batch=c.batch_code,
-            release_id=c.release_id,
-            **{"from": c.from_day.isoformat(), "to": c.to_day.isoformat()},
-            days=(c.to_day - c.from_day).days + 1,
-            note=f"{c.code}, {c.kind}, {c.volume_l:g} L filled {c.filled_on.isoformat()} for {c.destination}",
+            batch=box.batch_code,
+            release_id=box.release_id,
+            **{"from": box.from_day.isoformat(), "to": box.to_day.isoformat()},
+            days=(box.to_day - box.from_day).days + 1,
+            note=f"{box.code}, {box.kind}, {box.volume_l:g} L filled {box.filled_on.isoformat()} for {box.destination}",
         )
     for c in report.corrections:
         row(

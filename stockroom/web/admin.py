@@ -85,14 +85,24 @@ def _policy_form(p: Parser, form: Any) -> tuple[ReagentPolicy | None, dt.date | 
     tol = p.number(form.get("tolerance_pct") or None, "tolerance_pct", gt=0, le=10, unit="%")
     rsd = p.number(form.get("max_rsd_pct") or None, "max_rsd_pct", gt=0, le=5, unit="%")
     min_n = p.integer(form.get("min_replicates") or None, "min_replicates", ge=1, le=50)
+    # Optional: empty keeps containers to the batch's own expiry.
+    container_days = p.integer(
+        form.get("container_shelf_life_days") or None, "container_shelf_life_days", required=False, ge=1, le=3650
+    )
     since = form_date(p, form.get("effective_from"), "effective_from")
     reason = p.text(form.get("reason") or None, "reason", max_length=500)
     if shelf and interval and interval > shelf:
         p.error("recheck_interval_days", "cannot be longer than the shelf life")
+    if shelf and container_days and container_days > shelf:
+        p.error("container_shelf_life_days", "cannot be longer than the shelf life (a container never outlasts its batch)")
     if not p.ok or reagent is None:
         return None, None, None
     assert shelf is not None and interval is not None and tol is not None and rsd is not None and min_n is not None
-    return (ReagentPolicy(reagent, tuple(sorted(set(nominals))), shelf, interval, tol / 100, rsd / 100, min_n), since, reason)
+    return (
+        ReagentPolicy(reagent, tuple(sorted(set(nominals))), shelf, interval, tol / 100, rsd / 100, min_n, container_days),
+        since,
+        reason,
+    )
 
 
 def _policy_start(in_force: list[ReagentPolicy], reagent: str | None, today: dt.date) -> dict[str, str]:
@@ -108,6 +118,7 @@ def _policy_start(in_force: list[ReagentPolicy], reagent: str | None, today: dt.
             "tolerance_pct": f"{chosen.tolerance_rel * 100:g}",
             "max_rsd_pct": f"{chosen.max_rsd * 100:g}",
             "min_replicates": str(chosen.min_replicates),
+            "container_shelf_life_days": str(chosen.container_shelf_life_days or ""),
         }
     return values
 
