@@ -85,6 +85,7 @@ def build_demo(path: str, today: dt.date | None = None, password: str | None = N
                     "okafor",
                 )
         lines.append(f"{len(batches)} batches, {len(lots)} standard lots, {len(runs)} runs")
+        lines += demo_dispensings(conn, batches, today)
     finally:
         conn.close()
     return lines
@@ -115,3 +116,60 @@ def _demo_users(conn: Any, users: list[dict[str, Any]], password: str | None = N
         accounts.create_user(conn, u["username"], u["display_name"], u["role"], password, "demo-loader")
     names = ", ".join(f"{u['username']} ({u['role']})" for u in users)
     return [f"sign in as any of: {names}", f"demo password (this database only): {password}"]
+
+
+# ------------------------------------------------------------------------------------ tracking (dispensings)
+
+
+def load_dispensings() -> dict[str, Any]:
+    """The invented dispensings, losses and disposals of the demo (demo_data/dispensings.json)."""
+    return json.loads((resource_dir("demo_data") / "dispensings.json").read_text(encoding="utf-8"))
+
+
+def demo_dispensings(conn: Any, batches: dict[str, dict[str, Any]], today: dt.date) -> list[str]:
+    """Fill the demo's invented bench bottles and reservoirs through the same write the forms use; summary lines.
+
+    batches: scenario key -> batches row; days in the file are relative to `today`.
+    """
+    from dataclasses import replace
+
+    from stockroom import readmodel, stock
+    from stockroom.records import containers
+
+    data = load_dispensings()
+
+    def at(n: int) -> dt.date:
+        return today + dt.timedelta(days=n)
+
+    def noon(n: int) -> Any:
+        return dbmod.clock_at(dt.datetime.combine(at(n), dt.time(12), dt.UTC))
+
+    pol = data["policy"]
+    current = records.policy_for(conn, pol["reagent"], at(pol["from_day"]))
+    with noon(pol["from_day"]):
+        records.add_policy(
+            conn,
+            replace(current, container_shelf_life_days=pol["container_shelf_life_days"]),
+            at(pol["from_day"]),
+            pol["reason"],
+            "demo-admin",
+        )
+    events = [(d["day"], 0, d) for d in data["dispensings"]] + [(x["day"], 1, x) for x in data["losses"]]
+    made: list[dict[str, Any]] = []
+    for day_n, kind, item in sorted(events, key=lambda t: (t[0], t[1])):
+        actor = item["by"].lower()
+        batch = batches[item["batch"]]
+        with noon(day_n):
+            if kind == 0:
+                d = stock.Dispensing(
+                    item["volume_l"], at(day_n), item["kind"], stock.Destination(item["room"], item["course"], item["section"])
+                )
+                made.append(containers.dispense(conn, batch, d, actor, facts_of=readmodel.batch_facts))
+            else:
+                change = stock.VolumeChange(item["kind"], item["volume_l"], at(day_n), item["reason"])
+                containers.record_volume_change(conn, batch, change, actor)
+    for x in data["disposals"]:
+        with noon(x["day"]):
+            box = containers.container_by_code(conn, made[x["container"] - 1]["code"])
+            containers.dispose_container(conn, box, at(x["day"]), x["reason"], x["by"].lower())
+    return [f"{len(made)} containers filled for invented lab sections, {len(data['losses'])} loss recorded"]
