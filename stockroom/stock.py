@@ -328,7 +328,7 @@ def container_state(
         return ContainerState(ContainerStatus.ON_HOLD, on, "its batch is " + batch.under_review.message)
     if batch.status is Status.AWAITING or batch.release is None:
         return ContainerState(ContainerStatus.ON_HOLD, on, "its batch has no certified value in force")
-    note = f"until {expires_on.isoformat()}"
+    note = f"use by {expires_on.isoformat()}"
     if batch.status is Status.RECHECK_DUE:
         note += "; its batch's re-check is due"
     return ContainerState(ContainerStatus.IN_USE, on, note)

@@ -216,3 +216,10 @@ def test_policy_container_shelf_life_shortens_the_container_expiry(app, batch, s
     )
     (row,) = _rows(app, "SELECT expires_on FROM containers")
     assert row["expires_on"] == (TODAY + dt.timedelta(days=7)).isoformat()
+
+
+def test_batch_page_offers_no_dispensing_from_a_withdrawn_batch(app, database, batch, signed_in_client):
+    records.withdraw_batch(database, batch["id"], TODAY, "cloudy", "test")
+    page = signed_in_client("staff").get(f"/batches/{batch['code']}").get_data(as_text=True)
+    assert "Nothing may be dispensed: the batch is withdrawn on" in page
+    assert 'class="dispense-form"' not in page

@@ -24,7 +24,7 @@ from stockroom import csvsafe, readmodel, records, stock
 from stockroom.db import get_db
 from stockroom.errors import Conflict, InvalidInput
 from stockroom.pdf import container_label
-from stockroom.policy import BatchFacts, status_on
+from stockroom.policy import BatchFacts, release_in_force, status_on
 from stockroom.records import containers
 from stockroom.web import forms, lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
@@ -71,6 +71,8 @@ def batch_tracking(db: sqlite_utils.Database, batch: Mapping[str, Any], facts: B
     """The batch page's "Where it went": registered and remaining litres, the containers and the losses."""
     rows = container_rows(db, int(batch["id"]), facts, on)
     return {
+        # Why nothing may be dispensed on the day shown (None: it may): the form is offered only then.
+        "refusal": stock.dispensing_refusal(status_on(facts, on), release_in_force(facts, on)),
         "registered_l": float(batch["volume_l"]),
         "remaining_l": containers.volume_remaining_l(db, int(batch["id"])),
         "dispensed_l": sum(float(c["volume_l"]) for c in rows),
@@ -166,8 +168,6 @@ def _container_context(db: sqlite_utils.Database, code: str, on: dt.date) -> dic
     batch = records.batch_by_id(db, c["batch_id"])
     facts = readmodel.batch_facts(db, int(batch["id"]))
     row = next(r for r in container_rows(db, int(batch["id"]), facts, on) if r["id"] == c["id"])
-    from stockroom.policy import release_in_force
-
     return {
         "container": row,
         "batch": batch,
