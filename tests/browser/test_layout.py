@@ -74,6 +74,7 @@ def layout_site(tmp_path_factory):
         "lot_code": db.execute("SELECT code FROM standard_lots WHERE id = ?", [lot_id]).fetchone()[0],
         "instrument_id": inst.id,
         "recall_id": recall_id,
+        "container_code": db.execute("SELECT code FROM containers ORDER BY id LIMIT 1").fetchone()[0],
     }
     db.conn.close()
     app = create_app({"DATABASE": str(path), "SECRET_KEY": "browser-layout", "LAB_TIMEZONE": "UTC"})
@@ -111,6 +112,8 @@ def _paths(page, base: str, rules, ids: dict) -> list[str]:
         path = rule.rule
         for name in rule.arguments:
             value = ids["lot_code"] if name == "code" and rule.endpoint.startswith("lots.") else ids[name]
+            if name == "code" and rule.rule.startswith("/containers/"):  # a container's own code
+                value = ids["container_code"]
             path = re.sub(r"<(?:\w+:)?" + name + ">", str(value), path)
         paths.append(path)
     # The batch page of each status (the fullest pages of the product) besides the first batch.
