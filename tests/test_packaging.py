@@ -29,9 +29,11 @@ def test_wheel_contains_templates_labels_demo_data_and_static(tmp_path):
     assert "stockroom/demo_data/scenario.json" in names
     assert "stockroom/static/stockroom.css" in names
     assert "stockroom/data/dixon_q_r10.csv" in names
-    for layout in (ROOT / "labels").glob("*"):
+    for layout in (ROOT / "labels").rglob("*"):
         if layout.is_file() and not layout.name.startswith("."):
-            assert f"stockroom/labels/{layout.name}" in names
+            assert f"stockroom/labels/{layout.relative_to(ROOT / 'labels').as_posix()}" in names
+    assert "stockroom/labels/containers/bench-bottle.toml" in names  # the container label's layout
+    assert "stockroom/demo_data/dispensings.json" in names
     # The PDFs' typeface and its licence (stockroom.pdf.typeface).
     fonts = sorted(p.name for p in (ROOT / "stockroom" / "pdf" / "fonts").iterdir())
     assert "LICENSE.txt" in fonts and "DejaVuSans.ttf" in fonts
