@@ -77,4 +77,6 @@ def container_label_pdf(
 ) -> bytes:
     """One label for a container on the container layout `layout` (labels/containers/<layout>.toml)."""
     chosen = layout_files.get(layout, layout_files.container_layouts_folder())
-    return labels.build_labels(container_content(db, config, container, batch, on), chosen, copies=1)
+    return labels.build_labels(
+        container_content(db, config, container, batch, on), chosen, copies=1, title=f"Label of container {container['code']}"
+    )

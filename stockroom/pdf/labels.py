@@ -589,10 +589,13 @@ def drawn_boxes(content: LabelContent, layout: Layout, serial: int = 999999) -> 
     return out
 
 
-def build_labels(content: LabelContent, layout: Layout, copies: int, start: int = 1, first_serial: int = 1) -> bytes:
+def build_labels(
+    content: LabelContent, layout: Layout, copies: int, start: int = 1, first_serial: int = 1, title: str | None = None
+) -> bytes:
     """A PDF of `copies` labels on `layout`, the first at sheet position `start` (1-based, row by row).
 
     Serials run from first_serial, one per label. Further copies continue on new sheets from position 1.
+    title: the PDF's title (default: the batch ID and the serials).
     Raises LabelOverflow when a field cannot fit, ValueError for copies or start out of range.
     """
     if not 1 <= copies <= MAX_COPIES:
@@ -602,7 +605,7 @@ def build_labels(content: LabelContent, layout: Layout, copies: int, start: int 
     buf = io.BytesIO()
     c = Canvas(buf, pagesize=layout.page_size_pt, invariant=1, pageCompression=1, initialFontName=typeface.REGULAR)
     last = first_serial + copies - 1
-    c.setTitle(printable(f"Labels {content.batch_id}, serials {format_serial(first_serial)}-{format_serial(last)}"))
+    c.setTitle(printable(title or f"Labels {content.batch_id}, serials {format_serial(first_serial)}-{format_serial(last)}"))
     c.setAuthor("stockroom")
     c.setCreator("stockroom")
     c.setSubject(printable(f"{content.reagent} {content.nominal}: {content.certified}"))
