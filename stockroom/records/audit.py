@@ -152,6 +152,9 @@ _NOUNS: Mapping[str, str] = {
     "api_token_revocations": "API token revocation",
     "users": "user account",
     "batch_preparations": "amount measured for a batch",
+    "containers": "container filled from a batch",
+    "batch_volume_losses": "loss or disposal of batch volume",
+    "container_disposals": "container taken out of use",
     # Not records, named only when one of their append-only guards is reported.
     "events": "audit entry",
     "signin_attempts": "sign-in attempt",
