@@ -40,7 +40,7 @@ def world(tmp_path_factory):
         {"DATABASE": str(path), "TESTING": True, "SECRET_KEY": "t", "WTF_CSRF_ENABLED": False, "LAB_TIMEZONE": "UTC"}
     )
     conn = dbmod.connect(path)
-    accounts.HASH_METHOD = "pbkdf2:sha256:1000"
+    method, accounts.HASH_METHOD = accounts.HASH_METHOD, "pbkdf2:sha256:1000"  # cheap hashes, restored after
     user = accounts.create_user(conn, "fuzzer", "Fuzzer", "staff", "fuzzing-Test-91ab", "test")
     token = tokens.create(conn, user.id, user.username, "fuzzing")[1]
     batch, _ = released_batch(conn, app.config, prepared_on=TODAY - dt.timedelta(days=5), volume_l=5.0)
@@ -48,6 +48,7 @@ def world(tmp_path_factory):
     assert client.post("/sign-in", data={"username": "fuzzer", "password": "fuzzing-Test-91ab"}).status_code == 303
     yield {"client": client, "batch": batch, "conn": conn, "token": token}
     conn.close()
+    accounts.HASH_METHOD = method
 
 
 def _count(world):

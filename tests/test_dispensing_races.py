@@ -71,7 +71,7 @@ def served(tmp_path):
     path = tmp_path / "dispense-races.db"
     conn = dbmod.connect(path)
     schema.migrate(conn)
-    accounts.HASH_METHOD = "pbkdf2:sha256:1000"
+    method, accounts.HASH_METHOD = accounts.HASH_METHOD, "pbkdf2:sha256:1000"  # cheap hashes, restored after
     users = {name: accounts.create_user(conn, name, name.title(), "staff", PASSWORD, "test") for name in ("ana", "ben")}
     token = tokens.create(conn, users["ben"].id, "ben", "races")[1]
     app = create_app({"DATABASE": str(path), "SECRET_KEY": "races", "LAB_TIMEZONE": "UTC"})
@@ -81,6 +81,7 @@ def served(tmp_path):
     finally:
         server.stop()
         conn.close()
+        accounts.HASH_METHOD = method
 
 
 def test_two_dispensings_at_once_cannot_take_the_batch_below_zero(served):
