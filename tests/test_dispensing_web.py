@@ -223,3 +223,17 @@ def test_batch_page_offers_no_dispensing_from_a_withdrawn_batch(app, database, b
     page = signed_in_client("staff").get(f"/batches/{batch['code']}").get_data(as_text=True)
     assert "Nothing may be dispensed: the batch is withdrawn on" in page
     assert 'class="dispense-form"' not in page
+
+
+def test_dispense_page_says_why_not_and_a_conflict_is_409(app, database, batch, signed_in_client, form_token):
+    records.withdraw_batch(database, batch["id"], TODAY - dt.timedelta(days=1), "cloudy", "test")
+    staff = signed_in_client("staff")
+    assert "Today nothing may be dispensed: the batch is withdrawn on" in staff.get(
+        f"/batches/{batch['code']}/dispense"
+    ).get_data(as_text=True)
+    form = {"volume_l": "1", "dispensed_on": TODAY.isoformat(), "container": "bench bottle", "course": "CHM 110"}
+    resp = post(staff, form_token, f"/batches/{batch['code']}/dispense", form)
+    assert resp.status_code == 409 and "Nothing dispensed: the batch is withdrawn on" in resp.get_data(as_text=True)
+    # Before the withdrawal it was in service: a fill that day is recorded.
+    earlier = dict(form, dispensed_on=(TODAY - dt.timedelta(days=2)).isoformat())
+    assert post(staff, form_token, f"/batches/{batch['code']}/dispense", earlier).status_code == 303

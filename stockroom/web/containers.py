@@ -112,7 +112,9 @@ def record_dispensing(
 
 
 def _dispense_context(db: sqlite_utils.Database, batch: Mapping[str, Any]) -> dict[str, Any]:
+    facts, today = readmodel.batch_facts(db, int(batch["id"])), lab_today()
     return {
+        "refusal": stock.dispensing_refusal(status_on(facts, today), release_in_force(facts, today)),
         "batch": batch,
         "remaining_l": containers.volume_remaining_l(db, int(batch["id"])),
         "kinds": KIND_OPTIONS,
