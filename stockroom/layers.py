@@ -36,6 +36,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.run_input",
             "stockroom.glassware",
             "stockroom.endpoints",
+            "stockroom.curve_synth",
         ),
     ),
     # Connections, pragmas, the per-thread pool, the write lock, queries and the clock.
