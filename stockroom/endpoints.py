@@ -139,6 +139,11 @@ def _first_derivative(v: np.ndarray, e: np.ndarray) -> tuple[np.ndarray, np.ndar
     return (v[:-1] + v[1:]) / 2.0, np.diff(e) / np.diff(v)
 
 
+def first_derivative(volumes: Sequence[float], readings: Sequence[float]) -> tuple[np.ndarray, np.ndarray]:
+    """The first difference of a curve: (interval midpoints, mL; dE/dV, reading unit per mL)."""
+    return _first_derivative(np.asarray(volumes, dtype=float), np.asarray(readings, dtype=float))
+
+
 def _peaks(v: np.ndarray, e: np.ndarray, kind: str, u_e: float) -> list[int]:
     """Indices (intervals) of the prominent peaks of the first derivative taken in the curve's direction."""
     _, d = _first_derivative(v, e)

@@ -85,6 +85,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.pdf",
             "stockroom.pdf.certificates",
             "stockroom.pdf.chain_drawing",
+            "stockroom.pdf.curve_drawing",
             "stockroom.pdf.charts",
             "stockroom.pdf.ghs",
             "stockroom.pdf.labday_sheet",

@@ -16,10 +16,12 @@ from flask import (
     request,
     url_for,
 )
+from markupsafe import Markup
 
-from stockroom import chemistry, csvio, drift, readmodel, records, run_input, standardization, workflow
+from stockroom import chemistry, csvio, drift, formatting, readmodel, records, run_input, standardization, workflow
 from stockroom.db import get_db
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
+from stockroom.pdf import curve_drawing
 from stockroom.policy import expiry_for, release_in_force
 from stockroom.web import instruments as web_instruments
 from stockroom.web import lab_today
@@ -203,7 +205,47 @@ def show(run_id: int) -> Any:
         in_force=release_in_force(readmodel.batch_facts(db, batch["id"]), lab_today()),
         against=recheck_against(db, run),
         expiry=expiry_preview(db, run, batch, today),
+        curves=curve_figures(run["replicates"], float(current_app.config["COVERAGE_FACTOR"])),
     )
+
+
+def curve_figures(replicates: list[dict[str, Any]], k: float) -> list[dict[str, Any]]:
+    """Each stored curve of a run drawn (inline SVG) with the words of its caption; k: the coverage factor."""
+    out = []
+    for rep in replicates:
+        curve = rep.get("curve")
+        if not curve:
+            continue
+        method = run_input.CURVE_METHODS.get(curve["method"], curve["method"])
+        U = k * float(curve["u_ml"])
+        svg = curve_drawing.curve_svg(
+            curve["points"],
+            reading=curve["reading"],
+            volume_ml=float(curve["volume_ml"]),
+            U_ml=U,
+            k=k,
+            method=method,
+            title=f"Replicate {rep['position']}: titration curve",
+            key=f"r{rep['position']}",
+        )
+        parts = [f"the step {formatting.quantity(curve['u_step_ml'], 'mL', 3)}"] if curve.get("u_step_ml") else []
+        if curve.get("u_noise_ml") is not None:
+            parts.append(f"the reading noise {formatting.quantity(curve['u_noise_ml'], 'mL', 3)}")
+        if curve.get("u_fit_ml") is not None:
+            parts.append(f"the line's fit {formatting.quantity(curve['u_fit_ml'], 'mL', 3)}")
+        out.append(
+            {
+                "position": rep["position"],
+                "svg": Markup(svg),  # renderSVG escapes the drawing's strings; title and desc are escaped in curve_svg
+                "located": formatting.volume_u(float(curve["volume_ml"]), U, k),
+                "method": method,
+                "points": len(curve["points"]),
+                "reading": run_input.CURVE_READINGS.get(curve["reading"], curve["reading"]),
+                "u_parts": parts,
+                "titre_from_curve": rep.get("initial_ml") is None,
+            }
+        )
+    return out
 
 
 def recheck_against(db: Any, run: dict[str, Any]) -> dict[str, Any] | None:
