@@ -10,6 +10,7 @@ from __future__ import annotations
 from urllib.parse import urlparse
 
 import pytest
+from playwright.sync_api import expect
 
 pytestmark = pytest.mark.browser
 
@@ -42,3 +43,23 @@ def test_the_curves_fit_the_screen_and_keep_their_look(browser, demo_server, wid
     assert size in ("7.5px", "8px")
     assert urlparse(page.url).path == f"/runs/{run_link}"
     context.close()
+
+
+def test_a_pasted_curve_gives_the_titre_in_the_live_result(staff_page, staff_demo_server):
+    """Paste a replicate's pH curve and leave its burette readings empty: the live result computes from it."""
+    from stockroom import curve_synth
+
+    page = staff_page
+    page.goto(staff_demo_server + "/batches/")
+    code = page.locator("a.batch-code", has_text="NAOH").first.inner_text()
+    page.goto(f"{staff_demo_server}/batches/{code}/runs/new")
+    page.select_option("#f-standard_lot_id", index=1)
+    page.fill("#f-r1_mass_g", "0.8179")
+    page.locator("#curves details").first.locator("summary").click()
+    # 0.8179 g KHP with 0.1 mol/L NaOH: V_e = 1000 · 0.8179 / (204.22 · 0.1) = 40.05 mL (invented curve).
+    page.fill("#f-r1_curve", curve_synth.as_text(curve_synth.khp_curve(0.8179, 0.1, seed=4)))
+    cell = page.locator('td.live-molarity[data-row="1"]')
+    expect(cell).to_contain_text("0.10", timeout=10_000)
+    # A reading past the range is named at its box's label, live.
+    page.fill("#f-r1_curve", "0, 3.2\n1, 3.9\n2, 4.1\n3, 4.3\n4, 17.5")
+    expect(page.locator("#preview-body")).to_contain_text("line 5: the reading must be", timeout=10_000)
