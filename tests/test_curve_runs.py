@@ -320,3 +320,28 @@ def test_the_stored_curve_keeps_its_u_when_a_replicate_is_excluded(app, client, 
     # Two included replicates, each with its located u: √(u1² + u2²) / 2 (mL), relative to the effective titre.
     expected_ml = math.sqrt(u1[0] ** 2 + u1[1] ** 2) / 2
     assert f"({expected_ml:.2g} mL)" in line["derivation"]
+
+
+@pytest.mark.parametrize(
+    ("text", "line", "words"),
+    [
+        ("replicate,volume_ml,ph,mv\n1,0,3", 1, "one of ph or mv"),
+        ("replicate,volume_ml,ph\n4,0,3.2", 2, "replicate must be a whole number from 1 to 3"),
+        ("replicate,volume_ml,ph\n1,,3.2", 2, "needs both volume_ml and ph"),
+        ("replicate,volume_ml,ph\n1,0", 2, "has 2 cells; the header has 3"),
+        ("replicate,volume_ml,ph\n", 0, "a header but no points"),
+    ],
+)
+def test_a_broken_curve_file_is_refused_line_by_line(text, line, words):
+    from stockroom import csvio
+
+    sheet = csvio.read_curve_sheet(text, 3, 500)
+    assert any(n == line and words in message for n, message in sheet.problems), sheet.problems
+
+
+def test_the_curve_file_fills_each_replicates_box_with_its_own_points():
+    from stockroom import csvio
+
+    sheet = csvio.read_curve_sheet("# meter export (invented)\nreplicate,mv,volume_ml\n2,-120,0\n1,-118,0\n2,-110,1.5", 3, 500)
+    assert sheet.problems == [] and sheet.reading == "mv"
+    assert sheet.curves == {2: ["0, -120", "1.5, -110"], 1: ["0, -118"]}
