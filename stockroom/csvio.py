@@ -9,6 +9,15 @@ Masses in g (either gross_g and tare_g for mass by difference, or mass_g), volum
 readings as read, temperature in °C; decimal point only. `aliquot_ml` is for a run against a
 certified titrant batch (then the mass columns stay empty). A non-empty `exclude_reason` leaves that
 replicate out of the result, with that reason.
+
+Curve sheet, one row per point of the replicates' titration curves, header row required:
+
+    replicate,volume_ml,ph        (or replicate,volume_ml,mv)
+
+`replicate` counts the replicate sheet's rows from 1; `volume_ml` is the volume added since the start
+of that titration (mL); `ph` or `mv` the reading. Points of one replicate need not be adjacent but keep
+their order. Each replicate's points become the text the run form's curve box holds, read (with every
+limit) by stockroom.run_input.read_curve, as a pasted or a JSON curve is.
 """
 
 from __future__ import annotations
@@ -252,3 +261,73 @@ def columns_unused(rows: Iterable[SheetRow], secondary: bool) -> list[str]:
     """Columns with values that this kind of run does not use (e.g. masses in a run against a titrant)."""
     unused = {"gross_g", "tare_g", "mass_g"} if secondary else {"aliquot_ml"}
     return sorted({c for r in rows for c in unused if r.values.get(c)})
+
+
+CURVE_COLUMNS = ("replicate", "volume_ml", "ph", "mv")
+
+
+@dataclass
+class CurveSheet:
+    """A parsed curve sheet: the reading kind ("ph" or "mv"), each replicate's points as text lines, problems by line."""
+
+    reading: str = "ph"
+    curves: dict[int, list[str]] = field(default_factory=dict)
+    problems: list[tuple[int, str]] = field(default_factory=list)
+
+
+def read_curve_sheet(text: str, max_replicates: int, max_points: int) -> CurveSheet:
+    """Read a curve sheet's text: structure checked here (line by line), the numbers by run_input.read_curve.
+
+    max_replicates: the highest replicate number taken; max_points: the most points one replicate may give
+    (more is refused here, before any text is built).
+    """
+    sheet = CurveSheet()
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    lines = [
+        (i, line)
+        for i, line in enumerate(text.splitlines(), start=1)
+        if line.strip() and not line.lstrip().lstrip('"').startswith("#")
+    ]
+    if not lines:
+        sheet.problems.append((0, "the curve file has no header row and no data"))
+        return sheet
+    if any(len(line) > MAX_LINE_CHARS for _, line in lines):
+        sheet.problems.append((0, f"the curve file has a line longer than {MAX_LINE_CHARS} characters"))
+        return sheet
+    reader = csv.reader([line for _, line in lines])
+    try:
+        header = [h.strip().lower() for h in next(reader)]
+    except csv.Error as exc:
+        sheet.problems.append((lines[0][0], f"the curve file's header row cannot be read: {exc}"))
+        return sheet
+    kinds = [h for h in header if h in ("ph", "mv")]
+    if sorted(header) != sorted({"replicate", "volume_ml", *kinds}) or len(kinds) != 1:
+        sheet.problems.append(
+            (
+                lines[0][0],
+                "the curve file's header must be replicate, volume_ml and one of ph or mv (got " + ",".join(header) + ")",
+            )
+        )
+        return sheet
+    sheet.reading = kinds[0]
+    for (line_no, _), cells in zip(lines[1:], reader, strict=False):
+        if len(cells) != len(header):
+            sheet.problems.append((line_no, f"has {len(cells)} cells; the header has {len(header)}"))
+            continue
+        row = {h: c.strip() for h, c in zip(header, cells, strict=True)}
+        number = row["replicate"]
+        if not (number.isascii() and number.isdigit() and 1 <= int(number) <= max_replicates):
+            sheet.problems.append((line_no, f"replicate must be a whole number from 1 to {max_replicates}"))
+            continue
+        if not row["volume_ml"] or not row[sheet.reading]:
+            sheet.problems.append((line_no, f"needs both volume_ml and {sheet.reading}"))
+            continue
+        points = sheet.curves.setdefault(int(number), [])
+        if len(points) >= max_points:
+            sheet.problems.append((line_no, f"replicate {number} has more than {max_points} points"))
+            continue
+        points.append(f"{row['volume_ml']}, {row[sheet.reading]}")
+    if not sheet.curves and not sheet.problems:
+        sheet.problems.append((0, "the curve file has a header but no points"))
+    return sheet

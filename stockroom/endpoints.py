@@ -25,6 +25,10 @@ Uncertainty u_ml of each located volume (standard uncertainty, mL):
   meter shows: common practice); its effect on the located volume is propagated through the method's
   arithmetic with the sensitivity coefficients found numerically (central differences, GUM 5.1.3):
   u_noise = u_reading * sqrt(sum_i (dV_e / dE_i)^2);
+- a weak, broad break: noise also moves which interval holds the peak, a jump the linear propagation
+  cannot see; so u_noise is the larger of that propagation and a parametric bootstrap (the readings
+  redrawn BOOTSTRAP_DRAWS times with N(0, u_reading), the end point located again each time near the
+  same peak, u the standard deviation of the results; fixed seed, so one curve always gives one u);
 - derivative methods: u_ml = sqrt(u_step^2 + u_noise^2);
 - Gran: u_ml is the larger of the fit's standard error of the intercept volume
   (u^2 = (var a + Ve^2 var b + 2 Ve cov(a, b)) / b^2 for G = a + b V, Ve = -a / b) and u_noise.
@@ -139,6 +143,11 @@ def _first_derivative(v: np.ndarray, e: np.ndarray) -> tuple[np.ndarray, np.ndar
     return (v[:-1] + v[1:]) / 2.0, np.diff(e) / np.diff(v)
 
 
+def first_derivative(volumes: Sequence[float], readings: Sequence[float]) -> tuple[np.ndarray, np.ndarray]:
+    """The first difference of a curve: (interval midpoints, mL; dE/dV, reading unit per mL)."""
+    return _first_derivative(np.asarray(volumes, dtype=float), np.asarray(readings, dtype=float))
+
+
 def _peaks(v: np.ndarray, e: np.ndarray, kind: str, u_e: float) -> list[int]:
     """Indices (intervals) of the prominent peaks of the first derivative taken in the curve's direction."""
     _, d = _first_derivative(v, e)
@@ -215,6 +224,38 @@ def _noise_u(func: Callable[[np.ndarray], float], e: np.ndarray, idx: Iterable[i
     return u_reading * math.sqrt(total)
 
 
+# The parametric bootstrap of a derivative end point (see _bootstrap_u): draws, the generator's fixed seed
+# (the same curve always gives the same u), and how many intervals either side the peak may move to.
+BOOTSTRAP_DRAWS = 200
+BOOTSTRAP_SEED = 20_261_203
+BOOTSTRAP_REACH = 4
+
+
+def _bootstrap_u(func: Callable[[np.ndarray, np.ndarray, int], float], v: np.ndarray, e: np.ndarray, j: int, u_e: float) -> float:
+    """u of a derivative end point from re-locating it on the curve with fresh reading noise (mL).
+
+    The linear propagation (_noise_u) holds while noise only nudges the parabola through the peak; on a
+    weak, broad break it also moves which interval holds the peak, a jump no derivative sees. So the
+    readings get BOOTSTRAP_DRAWS fresh draws of N(0, u_e) each (a parametric bootstrap, JCGM 101 in
+    spirit), the peak is found again within BOOTSTRAP_REACH intervals of j and refined the same way, and
+    the standard deviation of the located volumes is returned. v, e: mL and pH or mV; u_e: reading unit.
+    """
+    if u_e <= 0:
+        return 0.0
+    rng = np.random.default_rng(BOOTSTRAP_SEED)
+    n_d = len(v) - 1
+    lo, hi = max(j - BOOTSTRAP_REACH, 1), min(j + BOOTSTRAP_REACH, n_d - 2)
+    sign = 1.0 if e[-1] >= e[0] else -1.0
+    dv = np.diff(v)
+    located = np.empty(BOOTSTRAP_DRAWS)
+    for k in range(BOOTSTRAP_DRAWS):
+        ee = e + rng.normal(0.0, u_e, len(e))
+        sd = sign * np.diff(ee) / dv
+        jj = lo + int(np.argmax(sd[lo : hi + 1]))
+        located[k] = func(v, ee, jj)
+    return float(np.std(located, ddof=1))
+
+
 def _step_containing(v: np.ndarray, x: float) -> float:
     i = int(np.clip(np.searchsorted(v, x) - 1, 0, len(v) - 2))
     return float(v[i + 1] - v[i])
@@ -269,7 +310,9 @@ def locate(
         def at(ee: np.ndarray, j: int = j) -> float:
             return func(v, ee, j)
 
-        u_noise = _noise_u(at, e, window, u_e)
+        # The larger of the linear propagation and the bootstrap: the bootstrap sees a weak break's peak
+        # wander between intervals (docs/measurement-model.md, section 9).
+        u_noise = max(_noise_u(at, e, window, u_e), _bootstrap_u(func, v, e, j, u_e))
         step = _step_containing(v, x)
         if step > MAX_STEP_SHARE * x:
             raise _refuse(

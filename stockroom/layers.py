@@ -37,6 +37,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.glassware",
             "stockroom.endpoints",
             "stockroom.stock",
+            "stockroom.curve_synth",
         ),
     ),
     # Connections, pragmas, the per-thread pool, the write lock, queries and the clock.
@@ -86,6 +87,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.pdf.certificates",
             "stockroom.pdf.chain_drawing",
             "stockroom.pdf.container_label",
+            "stockroom.pdf.curve_drawing",
             "stockroom.pdf.charts",
             "stockroom.pdf.ghs",
             "stockroom.pdf.labday_sheet",

@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Any
 
+import stockroom.endpoints as endpoints
 from stockroom.errors import FieldError, InvalidInput
 from stockroom.parsing import MISSING, Parser, date_problem, field_path, kind_of
 from stockroom.standardization import OVERRIDABLE_CHECKS
@@ -65,6 +66,16 @@ class Limits:
     max_notes: int = 2000
     max_reason: int = 500
     max_batch_code: int = 40
+    # A replicate's titration curve: from endpoints' MIN_POINTS to MAX_POINTS points (fewer cannot show a
+    # break; more is a logger's whole file, not a manual titration), volumes added from 0 mL up to the
+    # burette's scale, readings within endpoints.READING_RANGE (pH -2 to 16, mV -2000 to 2000). The
+    # pasted text is at most 40 characters a point.
+    min_curve_points: int = endpoints.MIN_POINTS
+    max_curve_points: int = endpoints.MAX_POINTS
+    max_curve_chars: int = 40 * endpoints.MAX_POINTS
+    # A typed titre and the end point located on the curve may differ by at most this many standard
+    # uncertainties of the located volume; past it the run is refused (the two cannot both be right).
+    curve_titre_max_u: float = 3.0
 
     @property
     def max_reading_ml(self) -> float:
@@ -89,6 +100,8 @@ COMMON_KEYS = (
     "titration_temperature_c",
     "endpoint",
     "notes",
+    "curve_reading",
+    "curve_method",
 )
 PARTNER_KEY = {"primary": "standard_lot_id", "secondary": "reference_batch"}
 REPLICATE_KEYS: dict[str, tuple[str, ...]] = {
@@ -97,6 +110,15 @@ REPLICATE_KEYS: dict[str, tuple[str, ...]] = {
 }
 # The numeric columns of the grid, in the order the form shows them.
 GRID_COLUMNS: dict[str, tuple[str, ...]] = {m: tuple(k for k in REPLICATE_KEYS[m] if k != "exclude_reason") for m in METHODS}
+# A replicate may carry its titration curve (lines of "volume, reading"): a text box below the grid's row.
+CURVE_KEY = "curve"
+# What a curve's readings are and how its end point is located (the run's choice, for every replicate).
+CURVE_READINGS = {endpoints.PH: "pH", endpoints.MV: "mV (electrode potential)"}
+CURVE_METHODS = {
+    endpoints.DERIVATIVE: "derivative method",
+    endpoints.SECOND_DERIVATIVE: "second-derivative method",
+    endpoints.GRAN: "Gran's method",
+}
 # Paths the science core names that the grid shows under another column (the titre is typed as readings).
 PATH_ALIASES = {"volume_ml": "final_ml"}
 
@@ -110,6 +132,8 @@ LABELS = {
     "titration_temperature_c": "Temperature of the titrated solution",
     "endpoint": "End point / indicator",
     "notes": "Notes",
+    "curve_reading": "Curve readings",
+    "curve_method": "End point located by",
     "standard_lot_id": "Primary-standard lot",
     "reference_batch": "Certified reference batch",
     "balance_id": "Balance used",
@@ -129,7 +153,37 @@ REPLICATE_LABELS = {
     "blank_ml": "blank",
     "temperature_c": "temperature",
     "exclude_reason": "reason for leaving it out",
+    "curve": "titration curve",
 }
+
+
+@dataclass(frozen=True)
+class CurveInput:
+    """A replicate's titration curve as read and its located end point.
+
+    reading: endpoints.PH or endpoints.MV; method: one of endpoints.METHODS; points: (volume added, mL;
+    reading, pH or mV) pairs as recorded; end_point: the located volume (mL, counted from the first
+    point's 0 of added titrant) and its standard uncertainty.
+    """
+
+    reading: str
+    method: str
+    points: tuple[tuple[float, float], ...]
+    end_point: endpoints.EndPoint
+
+    def stored(self) -> dict[str, Any]:
+        """The curve as the record layer stores it (one row per replicate, the points as JSON)."""
+        ep = self.end_point
+        return {
+            "reading": self.reading,
+            "method": self.method,
+            "points": [list(pt) for pt in self.points],
+            "volume_ml": ep.volume_ml,
+            "u_ml": ep.u_ml,
+            "u_step_ml": ep.u_step_ml,
+            "u_noise_ml": ep.u_noise_ml,
+            "u_fit_ml": ep.u_fit_ml,
+        }
 
 
 @dataclass(frozen=True)
@@ -146,6 +200,7 @@ class ReplicateInput:
     gross_g: float | None = None
     tare_g: float | None = None
     aliquot_ml: float | None = None
+    curve: CurveInput | None = None
 
     def stored(self) -> dict[str, Any]:
         """The replicate as the record layer stores it (mass by difference as mass_gross_g/mass_tare_g)."""
@@ -161,6 +216,11 @@ class ReplicateInput:
         row["volume_ml"] = self.volume_ml
         row["blank_ml"] = self.blank_ml
         row["temperature_c"] = self.temperature_c
+        if self.curve is not None:
+            # The located u is the end-point term of this replicate's titre in the budget.
+            row["curve"] = self.curve.stored()
+            row["endpoint_u_ml"] = self.curve.end_point.u_ml
+            row["endpoint_method"] = self.curve.method
         return row
 
 
@@ -245,7 +305,16 @@ def parse_run(data: Any, *, today: dt.date, prepared_on: dt.date | None = None, 
         iid = p.integer(data.get(f"{role}_id", MISSING), f"{role}_id", required=False, ge=1)
         if iid is not None:
             instruments[role] = iid
-    reps, excluded = read_replicates(p, data.get("replicates", MISSING), method, capacity_ml=capacity, run_temperature=run_t)
+    curve_reading, curve_method = read_curve_options(p, data)
+    reps, excluded = read_replicates(
+        p,
+        data.get("replicates", MISSING),
+        method,
+        capacity_ml=capacity,
+        run_temperature=run_t,
+        curve_reading=curve_reading,
+        curve_method=curve_method,
+    )
     overrides = read_overrides(p, data.get("overrides", MISSING))
     # A field refused for its type is named once (not again as "is required").
     first = {e.field: e for e in reversed(p.errors) if e.field in bad}
@@ -372,6 +441,94 @@ def temperature(p: Parser, raw: Any, name: str) -> float | None:
     return p.number(raw, name, required=False, ge=LIMITS.min_temperature_c, le=LIMITS.max_temperature_c, unit="°C")
 
 
+def read_curve_options(p: Parser, data: Mapping[str, Any]) -> tuple[str, str]:
+    """The run's curve_reading (pH or mV; default pH) and curve_method (default the derivative method)."""
+    reading = p.choice(data.get("curve_reading", MISSING), "curve_reading", tuple(CURVE_READINGS), default=endpoints.PH)
+    method = p.choice(data.get("curve_method", MISSING), "curve_method", tuple(CURVE_METHODS), default=endpoints.DERIVATIVE)
+    return reading or endpoints.PH, method or endpoints.DERIVATIVE
+
+
+# A curve's line: two numbers (decimal point) separated by a comma, a semicolon, a tab or spaces.
+_CURVE_LINE = re.compile(r"\s*([^,;\s]+)\s*(?:[,;\t]|\s)\s*([^,;\s]+)\s*")
+
+
+def _curve_pairs(p: Parser, raw: Any, here: str) -> list[tuple[Any, Any, str]] | None:
+    """The raw (volume, reading, where) of each point: from text lines or a JSON list of pairs."""
+    if isinstance(raw, str):
+        if len(raw) > LIMITS.max_curve_chars:
+            p.error(here, f"is longer than {LIMITS.max_curve_chars} characters: at most {LIMITS.max_curve_points} points")
+            return None
+        out = []
+        for n, line in enumerate(raw.splitlines(), start=1):
+            if not line.strip() or line.lstrip().startswith("#"):
+                continue
+            m = _CURVE_LINE.fullmatch(line)
+            if m is None:
+                p.error(here, f"line {n} ({line.strip()[:40]!r}) must be a volume and a reading, such as 12.50, 7.83")
+                return None
+            out.append((m.group(1), m.group(2), f"line {n}"))
+        return out
+    if isinstance(raw, list):
+        out = []
+        for n, item in enumerate(raw, start=1):
+            if not (isinstance(item, list) and len(item) == 2):
+                p.error(here, f"point {n} must be a pair [volume in mL, reading]")
+                return None
+            out.append((item[0], item[1], f"point {n}"))
+        return out
+    p.error(here, f"must be lines of volume and reading, or a list of [volume, reading] pairs, not {kind_of(raw)}")
+    return None
+
+
+def read_curve(p: Parser, raw: Any, here: str, *, reading: str, method: str, scale_ml: float) -> CurveInput | None:
+    """One replicate's curve -> CurveInput with its located end point, or None (errors go to `p`, on `here`).
+
+    raw: text lines "volume, reading" (form, CSV import) or a list of [volume, reading] pairs (JSON);
+    reading: endpoints.PH or MV; method: one of endpoints.METHODS; scale_ml: the burette's scale (mL),
+    the largest volume added a point may give. Every door reads a curve here, under LIMITS.
+    """
+    pairs = _curve_pairs(p, raw, here)
+    if pairs is None:
+        return None
+    n = len(pairs)
+    if n < LIMITS.min_curve_points or n > LIMITS.max_curve_points:
+        p.error(here, f"must have {LIMITS.min_curve_points} to {LIMITS.max_curve_points} points (it has {n})")
+        return None
+    low, high = endpoints.READING_RANGE[reading]
+    unit = endpoints.UNITS[reading]
+    check = Parser(decimal_comma=False)
+    volumes: list[float] = []
+    readings: list[float] = []
+    for v_raw, e_raw, where in pairs:
+        v = check.number(v_raw, "volume", ge=0, le=scale_ml, unit="mL")
+        e = check.number(e_raw, "reading", ge=low, le=high, unit=unit)
+        if check.errors:
+            first = check.errors[0]
+            p.error(here, f"{where}: the {'volume added' if first.field == 'volume' else 'reading'} {first.message}")
+            return None
+        assert v is not None and e is not None
+        volumes.append(v)
+        readings.append(e)
+    try:
+        found = endpoints.locate(volumes, readings, kind=reading, method=method)
+    except InvalidInput as exc:
+        first = exc.errors[0]
+        m = re.fullmatch(r"points\[(\d+)\]\.\w+", first.field)
+        where = f"{pairs[int(m.group(1))][2]}: the volume added " if m else "the points "
+        p.error(here, where + first.message)
+        return None
+    except (ArithmeticError, ValueError, FloatingPointError):
+        p.error(here, "no end point can be computed from these points")
+        return None
+    if len(found) > 1:
+        at = ", ".join(f"{f.volume_ml:.2f}" for f in found)
+        p.error(
+            here, f"shows {len(found)} end points (at {at} mL): a titre needs one; give the points up to the break titrated to"
+        )
+        return None
+    return CurveInput(reading=reading, method=method, points=tuple(zip(volumes, readings, strict=True)), end_point=found[0])
+
+
 def read_replicates(
     p: Parser,
     raw: Any,
@@ -381,12 +538,15 @@ def read_replicates(
     run_temperature: float | None = None,
     allow_volume: bool = False,
     base: str = "replicates",
+    curve_reading: str = endpoints.PH,
+    curve_method: str = endpoints.DERIVATIVE,
 ) -> tuple[list[ReplicateInput], dict[int, str]]:
     """The replicate list of a run -> ReplicateInputs and exclusions (1-based position -> reason).
 
     capacity_ml: the burette's scale (mL; None: the largest offered); run_temperature: °C, taken by
     each replicate that gives none; allow_volume: a titre may be given as volume_ml instead of two
-    readings (the preview's standalone form). Errors go to `p`, named under `base`.
+    readings (the preview's standalone form); curve_reading, curve_method: how each replicate's curve
+    (key `curve`, read by read_curve) is read and its end point located. Errors go to `p`, named under `base`.
     """
     reps: list[ReplicateInput] = []
     excluded: dict[int, str] = {}
@@ -395,7 +555,7 @@ def read_replicates(
         if p.errors and p.errors[-1].field == base and "at least 1" in p.errors[-1].message:
             p.errors[-1] = FieldError(base, "enter at least one replicate")
         return reps, excluded
-    keys = (*REPLICATE_KEYS[method], "volume_ml") if allow_volume else REPLICATE_KEYS[method]
+    keys = (*REPLICATE_KEYS[method], CURVE_KEY, *(("volume_ml",) if allow_volume else ()))
     for i, item in enumerate(items):
         here = field_path(base, i)
         obj = p.mapping(item, here)
@@ -404,7 +564,19 @@ def read_replicates(
         _refuse_unknown(p, obj, keys, method, here)
         if _refuse_non_text(p, obj, ("exclude_reason",), here):
             obj = {k: v for k, v in obj.items() if k != "exclude_reason"}
-        rep = _replicate(p, obj, here, method, capacity_ml, run_temperature, allow_volume)
+        curve = None
+        if obj.get(CURVE_KEY) not in (None, "", []) and not (isinstance(obj.get(CURVE_KEY), str) and not obj[CURVE_KEY].strip()):
+            curve = read_curve(
+                p,
+                obj[CURVE_KEY],
+                field_path(here, CURVE_KEY),
+                reading=curve_reading,
+                method=curve_method,
+                scale_ml=capacity_ml or LIMITS.max_reading_ml,
+            )
+            if curve is None:
+                continue
+        rep = _replicate(p, obj, here, method, capacity_ml, run_temperature, allow_volume, curve)
         if "exclude_reason" in obj:
             reason = p.text(
                 obj["exclude_reason"], field_path(here, "exclude_reason"), required=False, max_length=LIMITS.max_reason
@@ -426,6 +598,7 @@ def _replicate(
     capacity_ml: float | None,
     run_t: float | None,
     allow_volume: bool,
+    curve: CurveInput | None = None,
 ) -> ReplicateInput | None:
     def path(key: str) -> str:
         return field_path(here, key)
@@ -466,6 +639,9 @@ def _replicate(
     titre_given = allow_volume and "volume_ml" in obj
     if titre_given and (given("initial_ml") or given("final_ml")):
         p.error(path("volume_ml"), "give volume_ml, or initial_ml and final_ml, not both")
+    elif curve is not None and not (given("initial_ml") or given("final_ml") or titre_given):
+        # No readings typed: the end point located on the curve is the titre (volume added from 0 mL).
+        volume = round(curve.end_point.volume_ml, 4)
     elif titre_given:
         volume = p.number(obj["volume_ml"], path("volume_ml"), gt=0, le=scale_ml, unit="mL")
         if volume is not None and volume < LIMITS.min_volume_ml:
@@ -486,6 +662,8 @@ def _replicate(
     if blank is not None and volume is not None and volume - blank < LIMITS.min_volume_ml:
         p.error(path("blank_ml"), f"the blank must be smaller than the titre ({volume:g} mL)")
     t = temperature(p, obj.get("temperature_c", MISSING), path("temperature_c"))
+    if curve is not None and volume is not None and len(p.errors) == before:
+        _check_titre_against_curve(p, volume, curve, path("volume_ml" if titre_given else "final_ml"))
     if len(p.errors) > before or volume is None:
         return None
     return ReplicateInput(
@@ -498,7 +676,27 @@ def _replicate(
         gross_g=gross,
         tare_g=tare,
         aliquot_ml=aliquot,
+        curve=curve,
     )
+
+
+def _check_titre_against_curve(p: Parser, titre_ml: float, curve: CurveInput, here: str) -> None:
+    """Refuse a typed titre (mL) that differs from the located end point by more than LIMITS.curve_titre_max_u u.
+
+    Refused rather than warned about: a replicate has one titre, and when the burette readings and the
+    curve disagree that far one of them was misread or mistyped; storing either would hide which.
+    """
+    ep = curve.end_point
+    gap = abs(titre_ml - ep.volume_ml)
+    allowed = LIMITS.curve_titre_max_u * ep.u_ml
+    if gap > allowed:
+        p.error(
+            here,
+            f"the titre from the readings, {titre_ml:.2f} mL, and the end point located on the curve, "
+            f"{ep.volume_ml:.3f} mL (standard uncertainty {ep.u_ml:.3f} mL), differ by {gap:.3f} mL, more than "
+            f"{LIMITS.curve_titre_max_u:g} standard uncertainties ({allowed:.3f} mL): check the readings and the curve, "
+            "or leave the readings empty to take the located end point as the titre",
+        )
 
 
 # ------------------------------------------------------------------------------ paths and form fields
@@ -567,7 +765,7 @@ def _rows_with_data(form: Mapping[str, Any]) -> list[int]:
     return sorted(r for r in rows if r >= 1)
 
 
-_ALL_GRID_KEYS = {k for m in METHODS for k in GRID_COLUMNS[m]}
+_ALL_GRID_KEYS = {k for m in METHODS for k in GRID_COLUMNS[m]} | {CURVE_KEY}
 
 
 def from_form_rows(form: Mapping[str, Any]) -> list[int]:

@@ -1456,6 +1456,38 @@ def _tracking(db: sqlite_utils.Database) -> None:
 
 APPEND_ONLY_TABLES: tuple[str, ...] = APPEND_ONLY_TABLES_AT_0008 + ("registrations_in_error", "batch_preparations")
 APPEND_ONLY_TABLES = APPEND_ONLY_TABLES + _TRACKING_TABLES
+# A replicate's titration curve and the end point located on it. One row per replicate with its points
+# as JSON rather than one row per point: the curve is one measurement, read and located whole (its end
+# point rests on every point together), never queried point by point; one row keeps the run's entry
+# naming one part per curve, and at most 500 points is under 20 KB. Written with the run, in the same
+# transaction and before its entry, like the replicates; append-only like them.
+_REPLICATE_CURVES = """CREATE TABLE replicate_curves (
+        id INTEGER PRIMARY KEY,
+        run_id INTEGER NOT NULL REFERENCES runs (id),
+        position INTEGER NOT NULL,                  -- the replicate's position in its run (1-based)
+        reading TEXT NOT NULL CHECK (reading IN ('ph', 'mv')),
+        method TEXT NOT NULL CHECK (method IN ('derivative', 'second-derivative', 'gran')),
+        points_json TEXT NOT NULL,                  -- [[volume added, mL; reading, pH or mV], ...] as recorded
+        point_count INTEGER NOT NULL CHECK (point_count >= 5 AND point_count <= 500),
+        volume_ml REAL NOT NULL CHECK (volume_ml > 0),  -- the located end point, mL added
+        u_ml REAL NOT NULL CHECK (u_ml >= 0),       -- its standard uncertainty, mL
+        u_step_ml REAL,                             -- the contributions (stockroom.endpoints.EndPoint)
+        u_noise_ml REAL,
+        u_fit_ml REAL,
+        recorded_at TEXT NOT NULL,
+        recorded_by TEXT NOT NULL,
+        UNIQUE (run_id, position)
+    )"""
+
+
+@MIGRATIONS(name="0014_replicate_curves")
+def _replicate_curves(db: sqlite_utils.Database) -> None:
+    db.execute(_REPLICATE_CURVES)
+    for statement in _append_only_triggers(("replicate_curves",)) + _no_replace_triggers(("replicate_curves",)):
+        db.execute(statement)
+
+
+APPEND_ONLY_TABLES = APPEND_ONLY_TABLES + ("replicate_curves",)
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 
 

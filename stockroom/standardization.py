@@ -239,7 +239,9 @@ class Replicate:
 
     Either mass_g (direct weighing) or gross_g and tare_g (mass by difference, gross − tare), all
     balance readings in air, g. volume_ml: titre delivered, mL; blank_ml: blank titre, mL;
-    temperature_c: titrant temperature during the titration, °C, or None (taken as 20 °C).
+    temperature_c: titrant temperature during the titration, °C, or None (taken as 20 °C);
+    endpoint_u_ml: standard uncertainty of the end point located on this replicate's curve, mL, and
+    endpoint_method the method that located it (stockroom.endpoints), or None when no curve was given.
     """
 
     volume_ml: float
@@ -248,6 +250,8 @@ class Replicate:
     tare_g: float | None = None
     blank_ml: float = 0.0
     temperature_c: float | None = None
+    endpoint_u_ml: float | None = None
+    endpoint_method: str | None = None
 
     @property
     def by_difference(self) -> bool:
@@ -268,13 +272,15 @@ class AliquotReplicate:
     """One titration of a pipetted aliquot (secondary standardization).
 
     aliquot_ml: pipetted volume, mL; volume_ml: titre delivered by the burette, mL; blank_ml: blank
-    titre, mL; temperature_c: °C or None.
+    titre, mL; temperature_c: °C or None; endpoint_u_ml, endpoint_method: as for Replicate.
     """
 
     aliquot_ml: float
     volume_ml: float
     blank_ml: float = 0.0
     temperature_c: float | None = None
+    endpoint_u_ml: float | None = None
+    endpoint_method: str | None = None
 
 
 @dataclass(frozen=True)
@@ -574,6 +580,31 @@ def _temperature_source(volume_ml: float, instruments: Instruments, what: str, a
     )
 
 
+def _located(
+    replicates: Sequence[Replicate | AliquotReplicate],
+    included: Sequence[int],
+    molarities: Sequence[float],
+    titres_ml: Sequence[float],
+    v_star_ml: float,
+) -> list[tuple[float, str] | None]:
+    """(weighted u in mL, method) of each included replicate's located end point, None where it has no curve.
+
+    A replicate's end-point error δ_i moves the mean by c_i / (n T_i) · δ_i (c ∝ T^±1); the titre factor
+    carries the sensitivity c̄ / V*, so u_i enters weighted by w_i = c_i V* / (c̄ T_i) (1 for equal replicates).
+    molarities: mol/L of every replicate; titres_ml: each one's effective titre (mL); v_star_ml: mL.
+    """
+    c_bar = math.fsum(molarities[i] for i in included) / len(included)
+    out: list[tuple[float, str] | None] = []
+    for i in included:
+        r = replicates[i]
+        if r.endpoint_u_ml is None:
+            out.append(None)
+            continue
+        w = molarities[i] * v_star_ml / (c_bar * titres_ml[i])
+        out.append((abs(w) * float(r.endpoint_u_ml), r.endpoint_method or "derivative"))
+    return out
+
+
 def _titre_terms(
     titre: float,
     blanks: Sequence[float],
@@ -584,13 +615,18 @@ def _titre_terms(
     alpha: float | None = None,
     temperature: bool = True,
     second_fill_share: float = 0.0,
+    located: Sequence[tuple[float, str] | None] = (),
 ) -> list[InputQuantity | Term]:
     """The titre volume and its error sources (burette, temperature, end point, blank).
 
     burette_tolerance_ml: ± mL of the burette used (default the instruments'); alpha: 1/K for the
     temperature term (default the instruments'); temperature: False when a shared temperature input
     carries it instead; second_fill_share: fraction of the included replicates whose titre took a second
-    fill of the burette, whose own calibration error enters with that weight.
+    fill of the burette, whose own calibration error enters with that weight; located: for each included
+    replicate, (u in mL weighted by its sensitivity, see _located; method) of the end point located on its
+    curve, or None when it has no curve. When any has one, the located figures replace the stated
+    end-point u: the mean titre's end-point error is u = √(Σ (w_i u_i)²) / n over the n included
+    replicates (independent locations, GUM 5.1.2; a replicate without a curve adds none).
     """
     tol = instruments.burette_tolerance_ml if burette_tolerance_ml is None else burette_tolerance_ml
     terms: list[InputQuantity | Term] = [
@@ -622,7 +658,24 @@ def _titre_terms(
             )
         if temperature:
             terms.append(_temperature_source(titre, instruments, "titre", alpha))
-    if instruments.endpoint_u_ml > 0:
+    curves = [c for c in located if c is not None]
+    if curves:
+        n = len(located)
+        u_ep = math.sqrt(math.fsum(u * u for u, _ in curves)) / n
+        methods = sorted({m for _, m in curves})
+        words = " and ".join(f"{m} method" for m in methods)
+        share = "every replicate" if len(curves) == n else f"{len(curves)} of the {n} included replicates"
+        terms.append(
+            InputQuantity.normal(
+                "end point (located)",
+                0.0,
+                u_ep,
+                "mL",
+                f"located from the curve, {words}: √(Σu²)/n over {share}, each u weighted by its replicate's "
+                f"sensitivity ({u_ep:.2g} mL)",
+            )
+        )
+    elif instruments.endpoint_u_ml > 0:
         terms.append(
             InputQuantity.normal(
                 "end point", 0.0, instruments.endpoint_u_ml, "mL", "stated standard uncertainty of locating the end point"
@@ -1278,6 +1331,7 @@ def standardize_primary(
                 burette_tolerance_ml=tolerance,
                 alpha=budget_alpha,
                 second_fill_share=two_fill_share,
+                located=_located(run.replicates, included, molarities, [p["titre_ml"] for p in per_rep], v_star),
             ),
             unit="mL",
         ),
@@ -1483,6 +1537,7 @@ def standardize_secondary(
                 alpha=alpha_titre,
                 temperature=not shared,
                 second_fill_share=two_fill_share,
+                located=_located(run.replicates, included, molarities, [p["titre_ml"] for p in per_rep], t_star),
             ),
             unit="mL",
         ),

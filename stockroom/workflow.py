@@ -79,6 +79,8 @@ def compute_primary(
             tare_g=r.get("mass_tare_g"),
             blank_ml=float(r.get("blank_ml") or 0.0),
             temperature_c=r.get("temperature_c"),
+            endpoint_u_ml=r.get("endpoint_u_ml"),
+            endpoint_method=r.get("endpoint_method"),
         )
         for r in replicates
     )
@@ -131,6 +133,8 @@ def compute_secondary(
             volume_ml=float(r["volume_ml"]),
             blank_ml=float(r.get("blank_ml") or 0.0),
             temperature_c=r.get("temperature_c"),
+            endpoint_u_ml=r.get("endpoint_u_ml"),
+            endpoint_method=r.get("endpoint_method"),
         )
         for r in replicates
     )

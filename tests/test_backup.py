@@ -171,7 +171,7 @@ def test_the_manifest_states_the_backups_head_counts_and_hash(tmp_path):
         conn.close()
     assert head is not None
     assert manifest["trail_head"] == {"entry_id": head[0], "mac": head[1]}
-    assert manifest["row_counts"]["batches"] == batches == 8  # the invented demo scenario's 8 batches
+    assert manifest["row_counts"]["batches"] == batches == 9  # the scenario's 8 invented batches and the potentiometric one
     assert manifest["schema_version"] == version == schema.SCHEMA_VERSION
     assert manifest["sha256"] == hashlib.sha256(copy.read_bytes()).hexdigest()  # hashlib, independently
     assert dt.datetime.fromisoformat(manifest["written_at"]).tzinfo is not None

@@ -204,7 +204,8 @@ def test_demo_builds_a_fresh_file_and_refuses_an_existing_one(tmp_path):
     assert result.exit_code == 0, result.output
     assert "invented" in result.output
     conn = dbmod.connect(path)
-    assert conn.execute("SELECT count(*) FROM batches").fetchone()[0] == 8
+    # The scenario's 8 invented batches and the potentiometric demo run's batch (demo.add_potentiometric_run).
+    assert conn.execute("SELECT count(*) FROM batches").fetchone()[0] == 9
     again = CliRunner().invoke(main, ["demo", "--db", str(path), "--no-serve"])
     assert again.exit_code != 0 and "already exists" in again.output
 

@@ -37,12 +37,12 @@ def test_healthz_is_plain_text(demo_client):
 
 def test_api_lists_every_batch_with_required_fields(demo_client):
     listed = batches(demo_client)
-    assert len(listed) == 8
+    assert len(listed) == 9  # the scenario's 8 batches and the potentiometric run's (demo.add_potentiometric_run)
     for b in listed:
         assert {"id", "titrant", "nominal_molarity", "status"} <= set(b)
     statuses = sorted(b["status"] for b in listed)
     assert statuses == sorted(
-        ["awaiting", "recheck_due", "drifting", "in_service", "in_service", "in_service", "expired", "withdrawn"]
+        ["awaiting", "awaiting", "recheck_due", "drifting", "in_service", "in_service", "in_service", "expired", "withdrawn"]
     )
 
 
@@ -88,7 +88,7 @@ def test_dashboard_groups_and_values(demo_client):
 
 def test_batch_list_filters(demo_client):
     html = demo_client.get(f"/batches/?{on()}&reagent=NaOH").get_data(as_text=True)
-    assert html.count('class="batch-code"') == 3
+    assert html.count('class="batch-code"') == 4  # three in the scenario, one standardized potentiometrically
     html = demo_client.get(f"/batches/?{on()}&q=Lindqvist").get_data(as_text=True)
     assert html.count('class="batch-code"') == 3
 

@@ -22,6 +22,7 @@ from typing import Any
 from xml.sax.saxutils import escape
 
 import sqlite_utils
+from reportlab.graphics.shapes import Group
 from reportlab.lib import colors
 from reportlab.lib.enums import TA_LEFT
 from reportlab.lib.pagesizes import A4
@@ -34,18 +35,20 @@ from reportlab.platypus import (
     SimpleDocTemplate,
     Spacer,
     Table,
+    TableStyle,
 )
 
 from stockroom import chemistry, readmodel, records
 from stockroom import db as dbmod
 from stockroom import formatting as fmt
 from stockroom.errors import NotFound
-from stockroom.pdf import typeface
+from stockroom.pdf import curve_drawing, typeface
 from stockroom.pdf.ghs import GHS_RED
 from stockroom.pdf.labels import value_text
 from stockroom.pdf.typeface import printable
 from stockroom.policy import ReleaseFact
 from stockroom.records import audit
+from stockroom.run_input import CURVE_METHODS
 
 HEAD_MAC_DIGITS = 16  # hex digits of the head's MAC the footer prints (64 bits: enough to anchor, short to copy)
 MAX_CHAIN = 12  # reference steps followed before giving up (a loop in the records would be a data fault)
@@ -174,6 +177,49 @@ def _drift_flowable(report: Any, width: float) -> Any:
     except ImportError:  # charts not installed: the certificate states that below instead
         return None
     return drift_drawing(report, width, width * 0.36)
+
+
+# The coverage factor of an end point's ±U band when the caller gives none (data["curve_k"]: the lab's k).
+CURVE_K_DEFAULT = 2.0
+_CURVE_SCALE = 0.7  # each curve drawing at 70 %: two side by side across the text width
+
+
+def _curve_flowables(data: Mapping[str, Any]) -> list[Any]:
+    """The run's stored titration curves as vector drawings (stockroom.pdf.curve_drawing), two to a row."""
+    k = float(data.get("curve_k") or CURVE_K_DEFAULT)
+    cells = []
+    for rep in data["run"]["replicates"]:
+        curve = rep.get("curve")
+        if not curve:
+            continue
+        method = CURVE_METHODS.get(curve["method"], curve["method"])
+        inner = curve_drawing.curve_drawing(
+            curve["points"], reading=curve["reading"], volume_ml=curve["volume_ml"], U_ml=k * curve["u_ml"], k=k, method=method
+        )
+        outer = typeface.drawing(inner.width * _CURVE_SCALE, inner.height * _CURVE_SCALE)
+        group = Group(*inner.contents)
+        group.scale(_CURVE_SCALE, _CURVE_SCALE)
+        outer.add(group)
+        taken = ", its titre" if rep.get("initial_ml") is None else ""
+        cells.append(
+            (outer, _p(f"Replicate {rep['position']}: {len(curve['points'])} points, end point by the {method}{taken}", _SMALL))
+        )
+    if not cells:
+        return []
+    tables = []
+    for i in range(0, len(cells), 2):
+        pair = cells[i : i + 2]
+        rows = [[c[0] for c in pair] + [""] * (2 - len(pair)), [c[1] for c in pair] + [""] * (2 - len(pair))]
+        table = Table(rows, colWidths=[90 * mm, 90 * mm])
+        table.setStyle(TableStyle([("VALIGN", (0, 0), (-1, -1), "TOP"), ("BOTTOMPADDING", (0, 1), (-1, 1), 6)]))
+        tables.append(table)
+    intro = _p(
+        "Titration curves as recorded, with the first derivative (right-hand scale) and the located end point; "
+        "the shaded band is its ± U. The located standard uncertainty enters the budget's end-point line.",
+        _BODY,
+    )
+    # The heading stays with the first pair of drawings.
+    return [KeepTogether([Paragraph("Titration curves", _H2), intro, Spacer(1, 2 * mm), tables[0]]), *tables[1:]]
 
 
 # ---------------------------------------------------------------- the document
@@ -513,6 +559,7 @@ def _story(data: Mapping[str, Any]) -> list[Any]:
     )
     header, rows, widths, shaded = _replicate_rows(data)
     story += [Spacer(1, 3 * mm), _grid(header, rows, widths, shaded)]
+    story += _curve_flowables(data)
 
     story.append(Paragraph("Statistics", _H2))
     story.append(_kv_table(_statistics(data), (68 * mm, 112 * mm)))

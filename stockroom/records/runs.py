@@ -42,6 +42,8 @@ REPLICATE_FIELDS = (
     "temperature_c",
     "molarity",
 )
+# A replicate's curve (migration 0014): stored beside it, the points as JSON.
+CURVE_FIELDS = ("reading", "method", "volume_ml", "u_ml", "u_step_ml", "u_noise_ml", "u_fit_ml")
 
 
 def _result_row(run_id: int, result: dict[str, Any], cause: str, actor: str) -> dict[str, Any]:
@@ -91,6 +93,18 @@ def record_run(
                 rep_row["blank_ml"] = rep_row["blank_ml"] or 0.0
                 rep_row["run_id"] = run_id
                 dbmod.insert_row(db, "replicates", rep_row)
+                curve = rep.get("curve")
+                if curve:
+                    curve_row = {k: curve.get(k) for k in CURVE_FIELDS}
+                    curve_row.update(
+                        run_id=run_id,
+                        position=rep_row["position"],
+                        points_json=json.dumps(curve["points"]),
+                        point_count=len(curve["points"]),
+                        recorded_at=row["recorded_at"],
+                        recorded_by=actor,
+                    )
+                    dbmod.insert_row(db, "replicate_curves", curve_row)
             for position, reason in exclusions:
                 dbmod.insert_row(
                     db,
@@ -120,6 +134,18 @@ def record_run(
                 # Checks that fired and the reasons given for going ahead despite them.
                 "checks": [c.get("code") for c in result.get("checks") or []],
                 "overrides": dict(result.get("overrides") or {}),
+                # The curves the titres rest on: where each end point was located, and how surely.
+                "curves": [
+                    {
+                        "position": i,
+                        "method": rep["curve"]["method"],
+                        "points": len(rep["curve"]["points"]),
+                        "volume_ml": rep["curve"]["volume_ml"],
+                        "u_ml": rep["curve"]["u_ml"],
+                    }
+                    for i, rep in enumerate(replicates, start=1)
+                    if rep.get("curve")
+                ],
             },
             parts=write_parts,
         )
@@ -151,9 +177,29 @@ def run_by_id(db: sqlite_utils.Database, run_id: int) -> dict[str, Any]:
     run = rows[0]
     run["current"] = latest_results(db, [run_id]).get(run_id)
     run["replicates"] = dbmod.query(db, "SELECT * FROM replicates WHERE run_id = ? ORDER BY position", [run_id])
+    attach_curves(db, run_id, run["replicates"])
     run["exclusions"] = dbmod.query(db, "SELECT * FROM exclusions WHERE run_id = ? ORDER BY id", [run_id])
     run["decisions"] = dbmod.query(db, "SELECT * FROM decisions WHERE run_id = ? ORDER BY id", [run_id])
     return run
+
+
+def attach_curves(db: sqlite_utils.Database, run_id: int, replicates: list[dict[str, Any]]) -> None:
+    """Give each replicate of the run its stored curve (under "curve", points decoded) and located u.
+
+    endpoint_u_ml and endpoint_method are what standardization reads, so a recomputation of the run
+    (an exclusion) carries the same end-point term as when it was recorded.
+    """
+    rows = dbmod.query(db, "SELECT * FROM replicate_curves WHERE run_id = ? ORDER BY position", [run_id])
+    by_position = {r["position"]: r for r in rows}
+    for rep in replicates:
+        row = by_position.get(rep["position"])
+        if row is None:
+            continue
+        row = dict(row)
+        row["points"] = [tuple(pt) for pt in json.loads(row.pop("points_json"))]
+        rep["curve"] = row
+        rep["endpoint_u_ml"] = row["u_ml"]
+        rep["endpoint_method"] = row["method"]
 
 
 def exclude_replicate(

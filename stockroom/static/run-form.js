@@ -63,6 +63,8 @@
       req.reference = { molarity: parseFloat(ref.dataset.molarity), u: parseFloat(ref.dataset.u),
                         titrant: ref.dataset.titrant };
     }
+    // A replicate's curve sits in its own box below the grid; it goes with its row, read by the same parser.
+    ["curve_reading", "curve_method"].forEach(function (name) { if (val(name)) { req[name] = val(name); } });
     var map = [];
     rows().forEach(function (tr) {
       var rep = {};
@@ -72,6 +74,8 @@
         if (key === "exclude" || key === "exclude_reason") { return; }
         if (input.value.trim()) { rep[key] = input.value.trim(); any = true; }
       });
+      var curve = document.getElementById("f-r" + tr.dataset.row + "_curve");
+      if (curve && curve.value.trim()) { rep.curve = curve.value; any = true; }
       if (!any) { return; }  // a blank row is skipped, as the server skips it
       var excl = tr.querySelector('input[data-key="exclude"]');
       if (excl && excl.checked) {
@@ -100,6 +104,7 @@
     var tr = tbody.querySelector('tr[data-row="' + map[parseInt(m[1], 10)] + '"]');
     if (!tr) { return null; }
     var key = aliases[m[2]] || m[2];
+    if (key === "curve") { return document.getElementById("f-r" + tr.dataset.row + "_curve"); }
     return tr.querySelector('input[data-key="' + key + '"]') || tr.querySelector("input[data-key]");
   }
 

@@ -73,6 +73,8 @@ _COMMON_KEYS = {
     "max_rsd",
     "monte_carlo_draws",
     "overrides",
+    "curve_reading",
+    "curve_method",
     *INSTRUMENT_KEYS,
 }
 PRIMARY_KEYS = _COMMON_KEYS | {
@@ -220,6 +222,7 @@ def compute_preview(
     }
     # The replicates by the run parser every door uses (a titre may also be given as volume_ml here).
     reps_raw = data.get("replicates", MISSING)
+    curve_reading, curve_method = run_input.read_curve_options(p, data)
     reps, excluded = run_input.read_replicates(
         p,
         reps_raw,
@@ -227,6 +230,8 @@ def compute_preview(
         capacity_ml=common["burette_capacity_ml"],
         run_temperature=run_input.temperature(p, data.get("temperature_c", MISSING), "temperature_c"),
         allow_volume=True,
+        curve_reading=curve_reading,
+        curve_method=curve_method,
     )
     n = len(reps_raw) if isinstance(reps_raw, list) else 0
     exclusions = _exclusions(p, data.get("exclusions", MISSING), n)
@@ -289,6 +294,8 @@ def _primary_replicates(reps: list[run_input.ReplicateInput]) -> list[Replicate]
             tare_g=r.tare_g,
             blank_ml=r.blank_ml,
             temperature_c=r.temperature_c,
+            endpoint_u_ml=r.curve.end_point.u_ml if r.curve else None,
+            endpoint_method=r.curve.method if r.curve else None,
         )
         for r in reps
     ]
@@ -462,7 +469,12 @@ def _secondary(
     u_aliquot = p.number(data.get("u_aliquot_ml", MISSING), "u_aliquot_ml", required=False, ge=0, le=MAX_U_VOLUME_ML, unit="mL")
     replicates = [
         AliquotReplicate(
-            aliquot_ml=float(r.aliquot_ml or 0.0), volume_ml=r.volume_ml, blank_ml=r.blank_ml, temperature_c=r.temperature_c
+            aliquot_ml=float(r.aliquot_ml or 0.0),
+            volume_ml=r.volume_ml,
+            blank_ml=r.blank_ml,
+            temperature_c=r.temperature_c,
+            endpoint_u_ml=r.curve.end_point.u_ml if r.curve else None,
+            endpoint_method=r.curve.method if r.curve else None,
         )
         for r in reps
     ]

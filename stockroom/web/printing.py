@@ -255,6 +255,7 @@ def _reshow(ctx: dict[str, Any], exc: InvalidInput) -> tuple[str, int]:
 @bp.get("/releases/<int:release_id>/certificate.pdf")
 def release_certificate(release_id: int) -> Response:
     data = certificates.certificate_data(get_db(), release_id, lab_today())
+    data["curve_k"] = float(current_app.config["COVERAGE_FACTOR"])  # the end points' ±U, as the run page draws them
     pdf = certificates.build_certificate(data, institution=str(current_app.config.get("INSTITUTION_NAME") or ""))
     return _pdf_response(pdf, f"certificate-{data['batch']['code']}-release-{data['release_number']}.pdf")
 
@@ -262,5 +263,6 @@ def release_certificate(release_id: int) -> Response:
 @bp.get("/batches/<code>/certificate.pdf")
 def batch_certificate(code: str) -> Response:
     data = certificates.certificate_data_for_batch(get_db(), code, lab_today())
+    data["curve_k"] = float(current_app.config["COVERAGE_FACTOR"])  # the end points' ±U, as the run page draws them
     pdf = certificates.build_certificate(data, institution=str(current_app.config.get("INSTITUTION_NAME") or ""))
     return _pdf_response(pdf, f"certificate-{data['batch']['code']}-release-{data['release_number']}.pdf")

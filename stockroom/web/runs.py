@@ -16,10 +16,12 @@ from flask import (
     request,
     url_for,
 )
+from markupsafe import Markup
 
-from stockroom import chemistry, csvio, drift, readmodel, records, run_input, standardization, workflow
+from stockroom import chemistry, csvio, drift, formatting, readmodel, records, run_input, standardization, workflow
 from stockroom.db import get_db
 from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
+from stockroom.pdf import curve_drawing
 from stockroom.policy import expiry_for, release_in_force
 from stockroom.web import instruments as web_instruments
 from stockroom.web import lab_today
@@ -81,6 +83,13 @@ def _form_context(batch: dict[str, Any], method: str, purpose: str, on: dt.date)
         "instrument_choices": web_instruments.run_choices(method, on),
         "instrument_figures": web_instruments.preview_figures(method, on),
         "rows": GRID_ROWS,
+        "curve_readings": list(run_input.CURVE_READINGS.items()),
+        "curve_methods": list(run_input.CURVE_METHODS.items()),
+        "curve_limits": {
+            "min": run_input.LIMITS.min_curve_points,
+            "max": run_input.LIMITS.max_curve_points,
+            "max_u": f"{run_input.LIMITS.curve_titre_max_u:g}",
+        },
         "today": on,
         "standards": {s.key: s for s in chemistry.list_standards(titrant)},
         "pair_notes": chemistry.pair_notes(titrant),
@@ -196,7 +205,47 @@ def show(run_id: int) -> Any:
         in_force=release_in_force(readmodel.batch_facts(db, batch["id"]), lab_today()),
         against=recheck_against(db, run),
         expiry=expiry_preview(db, run, batch, today),
+        curves=curve_figures(run["replicates"], float(current_app.config["COVERAGE_FACTOR"])),
     )
+
+
+def curve_figures(replicates: list[dict[str, Any]], k: float) -> list[dict[str, Any]]:
+    """Each stored curve of a run drawn (inline SVG) with the words of its caption; k: the coverage factor."""
+    out = []
+    for rep in replicates:
+        curve = rep.get("curve")
+        if not curve:
+            continue
+        method = run_input.CURVE_METHODS.get(curve["method"], curve["method"])
+        U = k * float(curve["u_ml"])
+        svg = curve_drawing.curve_svg(
+            curve["points"],
+            reading=curve["reading"],
+            volume_ml=float(curve["volume_ml"]),
+            U_ml=U,
+            k=k,
+            method=method,
+            title=f"Replicate {rep['position']}: titration curve",
+            key=f"r{rep['position']}",
+        )
+        parts = [f"the step {formatting.quantity(curve['u_step_ml'], 'mL', 3)}"] if curve.get("u_step_ml") else []
+        if curve.get("u_noise_ml") is not None:
+            parts.append(f"the reading noise {formatting.quantity(curve['u_noise_ml'], 'mL', 3)}")
+        if curve.get("u_fit_ml") is not None:
+            parts.append(f"the line's fit {formatting.quantity(curve['u_fit_ml'], 'mL', 3)}")
+        out.append(
+            {
+                "position": rep["position"],
+                "svg": Markup(svg),  # renderSVG escapes the drawing's strings; title and desc are escaped in curve_svg
+                "located": formatting.volume_u(float(curve["volume_ml"]), U, k),
+                "method": method,
+                "points": len(curve["points"]),
+                "reading": run_input.CURVE_READINGS.get(curve["reading"], curve["reading"]),
+                "u_parts": parts,
+                "titre_from_curve": rep.get("initial_ml") is None,
+            }
+        )
+    return out
 
 
 def recheck_against(db: Any, run: dict[str, Any]) -> dict[str, Any] | None:
@@ -322,8 +371,11 @@ def import_sheet(code: str) -> Any:
             unused = csvio.columns_unused(sheet.rows, method == "secondary")
             if unused:
                 problems.append((0, "columns " + ", ".join(unused) + " have values but this kind of run does not use them"))
+            curves = _curve_upload(problems, len(sheet.rows))
             if not problems:
                 replicates = csvio.rows_as_replicates(sheet.rows, method == "secondary")
+                for number, lines in (curves.curves if curves else {}).items():
+                    replicates[number - 1]["curve"] = "\n".join(lines)
                 today = lab_today()
                 user = current_user()
                 values = {
@@ -333,12 +385,16 @@ def import_sheet(code: str) -> Any:
                     "method": method,
                     **run_input.to_form({"replicates": replicates}),
                 }
+                if curves:
+                    values["curve_reading"] = curves.reading
                 ctx = _form_context(batch, method, "certify", today)
                 values["purpose"] = "recheck" if ctx["in_force"] else "certify"
                 ctx["rows"] = max(GRID_ROWS, len(sheet.rows))
                 # Check every row by the run's own rules now, so row-level problems show before recording.
                 check = Parser()
-                run_input.read_replicates(check, replicates, method, capacity_ml=None)
+                run_input.read_replicates(
+                    check, replicates, method, capacity_ml=None, curve_reading=curves.reading if curves else "ph"
+                )
                 flash(
                     f"{len(sheet.rows)} replicate rows read from {upload.filename}. Check them, choose the "
                     "standard and record the run; nothing is stored yet.",
@@ -347,6 +403,21 @@ def import_sheet(code: str) -> Any:
                 page = _render_form(ctx, values, check.errors, None, result=None, imported=len(sheet.rows))
                 return page, (422 if check.errors else 200)
     return render_template("runs/import.html", batch=batch, method=method, problems=problems, columns=csvio.SHEET_COLUMNS), 422
+
+
+def _curve_upload(problems: list[tuple[int, str]], n_replicates: int) -> csvio.CurveSheet | None:
+    """The optional curve file of an import (replicate, volume_ml, ph|mv), or None; its problems added to `problems`."""
+    upload = request.files.get("curves")
+    if upload is None or not upload.filename:
+        return None
+    try:
+        text = upload.read().decode("utf-8")
+    except UnicodeDecodeError:
+        problems.append((0, "the curve file is not UTF-8 text; save it as CSV (UTF-8)"))
+        return None
+    sheet = csvio.read_curve_sheet(text, max(n_replicates, 1), run_input.LIMITS.max_curve_points)
+    problems.extend((line, f"curve file: {message}" if line else message) for line, message in sheet.problems)
+    return sheet
 
 
 def _csv_response(text: str, filename: str) -> Response:
