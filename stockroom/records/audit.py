@@ -88,6 +88,8 @@ _ACTIONS = (
     Action("instrument.calibrate", "recorded a calibration", "calibrations", every_row=True),
     Action("recall.open", "opened a recall", "recalls", every_row=True),
     Action("recall.clear", "cleared a recall", "recall_clearances", every_row=True),
+    Action("schedule.add", "entered a lab session", "lab_sessions", every_row=True),
+    Action("schedule.cancel", "cancelled a lab session", "lab_session_cancellations", every_row=True),
     # The first keyed entry of a database names every record row already there (the starting data a
     # migration wrote, or a whole history made before keying), so each row has an entry that names it.
     Action("trail.begin", "began the keyed audit trail"),
@@ -149,6 +151,8 @@ _NOUNS: Mapping[str, str] = {
     "api_token_revocations": "API token revocation",
     "users": "user account",
     "batch_preparations": "amount measured for a batch",
+    "lab_sessions": "lab session",
+    "lab_session_cancellations": "lab session cancellation",
     # Not records, named only when one of their append-only guards is reported.
     "events": "audit entry",
     "signin_attempts": "sign-in attempt",
