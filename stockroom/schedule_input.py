@@ -261,3 +261,43 @@ def read_schedule(text: str, *, max_rows: int, today: dt.date) -> Schedule:
 
 def _row_problems(line_no: int, errors: Sequence[FieldError]) -> list[Problem]:
     return [Problem(line_no, label(e.field), e.message) for e in errors]
+
+
+# ---------------------------------------------------------------- a destination in a query
+
+DESTINATION_RULE = 'write the course, then "/" and the section if there is one, e.g. "CHM 110/B" or "CHM 110"'
+
+
+def read_destination(p: Parser, raw: Any, name: str = "destination") -> tuple[str, str] | None:
+    """(course, section) from a query's destination, "CHM 110/B" (section "" for "CHM 110"); None if absent or bad.
+
+    The course and section are compared without regard to case; an empty section means every section
+    of the course. Errors are recorded in `p` under `name`.
+    """
+    text = p.text(raw, name, required=False, max_length=LIMITS.max_course + 1 + LIMITS.max_section)
+    if text is None:
+        return None
+    if text.count("/") > 1:
+        p.error(name, f"has more than one '/': {DESTINATION_RULE}")
+        return None
+    course, _, section = (part.strip() for part in text.partition("/"))
+    if not course:
+        p.error(name, f"names no course: {DESTINATION_RULE}")
+        return None
+    if len(course) > LIMITS.max_course:
+        p.error(name, f"the course must be at most {LIMITS.max_course} characters")
+        return None
+    if len(section) > LIMITS.max_section:
+        p.error(name, f"the section must be at most {LIMITS.max_section} characters")
+        return None
+    return course, section
+
+
+def destination_text(course: str, section: str = "", room: str = "") -> str:
+    """A destination as a person reads it: "CHM 110 · section B · room 214" (parts left out when empty)."""
+    parts = [course.strip()]
+    if section.strip():
+        parts.append(f"section {section.strip()}")
+    if room.strip():
+        parts.append(f"room {room.strip()}")
+    return " · ".join(parts)

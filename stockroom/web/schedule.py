@@ -15,6 +15,7 @@ Every door reads a session with stockroom.schedule_input (one parser, one table 
 from __future__ import annotations
 
 import datetime as dt
+from urllib.parse import urlencode
 from collections.abc import Mapping
 from typing import Any
 
@@ -32,21 +33,13 @@ from stockroom.web.once import once
 bp = Blueprint("schedule", __name__)
 api_bp = Blueprint("schedule_api", __name__, url_prefix="/api/v1")
 
+destination = schedule_input.destination_text
+
 # The schedule page shows this many weeks from the week of `from` when `to` is not given.
 DEFAULT_WEEKS = 6
 # A window asked for (schedule or plan) may span at most this many days.
 MAX_WINDOW_DAYS = 400
 WINDOW_LABELS = {"from": "From", "to": "To", "titrant": "Titrant", "course": "Course"}
-
-
-def destination(course: str, section: str = "", room: str = "") -> str:
-    """A destination as a person reads it: "CHM 110 · section B · room 214" (parts left out when empty)."""
-    parts = [course.strip()]
-    if section.strip():
-        parts.append(f"section {section.strip()}")
-    if room.strip():
-        parts.append(f"room {room.strip()}")
-    return " · ".join(parts)
 
 
 def _titrant_options() -> list[tuple[str, str]]:
@@ -87,6 +80,11 @@ def read_window(
 
 def _week_of(day: dt.date) -> dt.date:
     return day - dt.timedelta(days=day.weekday())
+
+
+def _week_url(start: str) -> str:
+    """The schedule page from a date (YYYY-MM-DD); "from" is a Python keyword, hence the query built by hand."""
+    return url_for("schedule.list_sessions") + "?" + urlencode({"from": start})
 
 
 def _weeks(sessions: list[dict[str, Any]]) -> list[tuple[dt.date, list[dict[str, Any]]]]:
@@ -152,7 +150,7 @@ def add() -> Any:
         f"{session.volume_needed_l:g} L of {session.nominal_molarity:g} mol/L {session.reagent}.",
         "info",
     )
-    return redirect(url_for("schedule.list_sessions", **{"from": _week_of(session.session_on).isoformat()}), 303)
+    return redirect(_week_url(_week_of(session.session_on).isoformat()), 303)
 
 
 # ---------------------------------------------------------------- the CSV import
@@ -202,7 +200,7 @@ def import_schedule() -> Any:
     ids = lab_sessions.add_sessions(get_db(), [s for _, s in read.sessions], user.username, source="csv")
     flash(f"Entered {len(ids)} lab session{'s' if len(ids) != 1 else ''} from the file.", "info")
     first = min(s.session_on for _, s in read.sessions)
-    return redirect(url_for("schedule.list_sessions", **{"from": _week_of(first).isoformat()}), 303)
+    return redirect(_week_url(_week_of(first).isoformat()), 303)
 
 
 # ---------------------------------------------------------------- cancelling
@@ -225,9 +223,7 @@ def cancel(session_id: int) -> Any:
             "schedule/cancel.html", s=session, values=request.form, errors=exc.fields, labels={"reason": "Reason"}
         ), 422
     flash(f"Cancelled {session['destination']} on {session['session_on']}.", "info")
-    return redirect(
-        url_for("schedule.list_sessions", **{"from": _week_of(dt.date.fromisoformat(session["session_on"])).isoformat()}), 303
-    )
+    return redirect(_week_url(_week_of(dt.date.fromisoformat(session["session_on"])).isoformat()), 303)
 
 
 # ---------------------------------------------------------------- the prep plan
