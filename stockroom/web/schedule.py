@@ -15,9 +15,9 @@ Every door reads a session with stockroom.schedule_input (one parser, one table 
 from __future__ import annotations
 
 import datetime as dt
-from urllib.parse import urlencode
 from collections.abc import Mapping
 from typing import Any
+from urllib.parse import urlencode
 
 from flask import Blueprint, current_app, flash, jsonify, redirect, render_template, request, url_for
 
