@@ -97,6 +97,8 @@ class TitrantPlan:
     short_by_l: float
     make_by: dt.date | None
     late: bool
+    # At the shortfall date, the batches that still hold solution but cannot be drawn on, in words.
+    unusable: tuple[str, ...] = ()
 
     @property
     def short(self) -> bool:
@@ -201,6 +203,15 @@ def _titrant_plan(
             continue
         lines.append(SessionLine(demand=d, in_force_l=available, draws=tuple(draws), short_l=short))
     make_by = shortfall_on - dt.timedelta(days=lead_days) if shortfall_on is not None else None
+    unusable: list[str] = []
+    if shortfall_on is not None:
+        # What still holds solution on the shortfall date but cannot be drawn on, so a person sees whether a
+        # re-check (rather than a new batch) would close the gap.
+        for s in supplies:
+            if left[s.code] > EPSILON_L and usable(s, shortfall_on) is None:
+                report = status_on(s.facts, shortfall_on)
+                why = report.status.label.lower() if report.under_review is None else "under review"
+                unusable.append(f"{s.code}: {left[s.code]:.2f} L left, {why} on {shortfall_on.isoformat()}")
     return TitrantPlan(
         reagent=key[0],
         nominal_molarity=key[1],
@@ -213,4 +224,5 @@ def _titrant_plan(
         short_by_l=short_total,
         make_by=make_by,
         late=make_by is not None and make_by < today,
+        unusable=tuple(unusable),
     )

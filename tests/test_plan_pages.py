@@ -110,3 +110,26 @@ def test_low_stock_waits_until_the_shortfall_is_near(app, client, world):
     assert "Low stock" not in client.get("/").get_data(as_text=True)
     app.config["LOW_STOCK_NOTICE_DAYS"] = 5
     assert "Low stock" in client.get("/").get_data(as_text=True)
+
+
+def test_the_demo_term_schedule_shows_one_coming_shortfall(tmp_path):
+    from stockroom import planning, settings
+    from stockroom.demo import DEMO_SHORT, DEMO_SHORT_FROM_DAY, build_demo
+
+    day = dt.date(2026, 12, 3)
+    lines = build_demo(str(tmp_path / "demo.db"), today=day, password="demo-Test-7c1e")
+    conn = dbmod.connect(tmp_path / "demo.db")
+    try:
+        lead = planning.lead_days(settings.resolve({"DATABASE": str(tmp_path / "demo.db"), "SECRET_KEY": "t"}))
+        plan = planning.build_plan(conn, today=day, start=day, end=day + dt.timedelta(weeks=8), lead=lead)
+        sessions = lab_sessions.sessions_between(conn, day - dt.timedelta(weeks=2), day + dt.timedelta(weeks=8))
+        assert {s["notes"] for s in sessions} == {"invented term schedule (demo)"}  # marked as invented
+    finally:
+        conn.close()
+    short = [t for t in plan.titrants if t.short]
+    assert [(t.reagent, t.nominal_molarity) for t in short] == [DEMO_SHORT]
+    (t,) = short
+    assert day + dt.timedelta(days=DEMO_SHORT_FROM_DAY) <= t.shortfall_on <= day + dt.timedelta(days=DEMO_SHORT_FROM_DAY + 6)
+    assert t.make_by == t.shortfall_on - dt.timedelta(days=lead) and not t.late
+    assert any("runs short on" in line for line in lines)
+    assert len(plan.titrants) == 2  # the other titrant's sessions stay within what is in force

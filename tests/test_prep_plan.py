@@ -89,6 +89,7 @@ def test_a_batch_due_for_recheck_does_not_count():
     assert t.in_force_now_l == pytest.approx(8.0)
     assert t.shortfall_on == D(2026, 2, 10) and t.short_by_l == pytest.approx(1.0)
     assert t.make_by == D(2026, 2, 7)
+    assert t.unusable == ("C: 8.00 L left, re-check due on 2026-02-10",)
     # A re-check on 2026-02-01 within tolerance keeps it in service past 2026-02-10 (next due 2026-03-03).
     checked = BatchFacts(prepared_on=due.prepared_on, releases=due.releases, rechecks=(CheckFact(D(2026, 2, 1), 0.1003, 0.0001),))
     p2 = prep_plan.plan(

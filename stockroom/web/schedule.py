@@ -280,6 +280,7 @@ def plan_json(plan: prep_plan.Plan) -> dict[str, Any]:
                 "short_by_l": round(t.short_by_l, 6),
                 "make_new_batch_by": t.make_by.isoformat() if t.make_by else None,
                 "late": t.late,
+                "not_usable_at_shortfall": list(t.unusable),
                 "sessions": [
                     {
                         "session_id": line.demand.session_id,
