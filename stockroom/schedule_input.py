@@ -208,13 +208,18 @@ def read_schedule(text: str, *, max_rows: int, today: dt.date) -> Schedule:
     if long_line is not None:
         out.problems.append(Problem(long_line, "", f"is longer than {MAX_LINE_CHARS} characters"))
         return out
-    reader = csv.reader([line for _, line in lines])
-    try:
-        rows = list(reader)
-    except csv.Error as exc:
-        out.problems.append(Problem(0, "", f"cannot be read as CSV: {exc}"))
-        return out
+    # Each line is read on its own: a session is one line, so a quote left open cannot swallow the
+    # lines after it (the csv module would join them into one cell).
+    rows: list[list[str]] = []
+    for line_no, line in lines:
+        try:
+            rows.append(next(csv.reader([line], strict=True), []))
+        except csv.Error as exc:
+            out.problems.append(Problem(line_no, "", f"cannot be read as CSV ({exc}); a session is one line"))
+            rows.append([])
     header_line = lines[0][0]
+    if out.problems and out.problems[0].line == header_line:
+        return out
     header = [h.strip().lower() for h in rows[0]]
     unknown = [h for h in header if h not in KEYS]
     if unknown:
@@ -230,7 +235,7 @@ def read_schedule(text: str, *, max_rows: int, today: dt.date) -> Schedule:
     missing = [c for c in REQUIRED_COLUMNS if c not in header]
     if missing:
         out.problems.append(Problem(header_line, "", "the header needs the column(s) " + ", ".join(missing)))
-    if out.problems:
+    if any(p.line == header_line for p in out.problems):
         return out
     data = list(zip([n for n, _ in lines[1:]], rows[1:], strict=True))
     if not data:
@@ -241,6 +246,8 @@ def read_schedule(text: str, *, max_rows: int, today: dt.date) -> Schedule:
         return out
     seen: dict[tuple[Any, ...], int] = {}
     for line_no, cells in data:
+        if not cells:  # could not be read: reported above
+            continue
         if len(cells) != len(header):
             out.problems.append(Problem(line_no, "", f"has {len(cells)} cells; the header has {len(header)}"))
             continue

@@ -135,6 +135,10 @@ def test_read_schedule_good_file_with_comments_and_any_column_order():
         (GOOD_CSV + f"{D2},CHM 110,B,214,NaOX,0.1,2.5,\n", ["line 3, Titrant: 'NaOX' is not a titrant"]),
         (GOOD_CSV + GOOD_CSV.splitlines()[1] + "\n", ["line 3: repeats the session on line 2"]),
         (GOOD_CSV + "x" * 2001 + "\n", ["line 3: is longer than 2000 characters"]),
+        (
+            GOOD_CSV + f'{D2},"CHM 110,B,214,NaOH,0.1,2.5,\n' + GOOD_CSV.splitlines()[1] + "\n",
+            ["line 3: cannot be read as CSV", "line 4: repeats the session on line 2"],
+        ),
     ],
 )
 def test_read_schedule_reports_each_problem_by_line_and_field(text, expected):
