@@ -74,6 +74,7 @@ def layout_site(tmp_path_factory):
         "lot_code": db.execute("SELECT code FROM standard_lots WHERE id = ?", [lot_id]).fetchone()[0],
         "instrument_id": inst.id,
         "recall_id": recall_id,
+        "session_id": db.execute("SELECT min(id) FROM lab_sessions").fetchone()[0],  # the demo's term schedule
     }
     db.conn.close()
     app = create_app({"DATABASE": str(path), "SECRET_KEY": "browser-layout", "LAB_TIMEZONE": "UTC"})
