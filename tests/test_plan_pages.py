@@ -99,6 +99,8 @@ def test_plan_page_and_low_stock_on_today(client, world):
     assert f"First shortfall on <strong>{shortfall}</strong>, 2.00 L lacking" in page
     assert f"Make a new batch by {make_by}" in page
     assert "Lead time 5 days (2 to make up a batch, 3 to standardize and release it)" in page
+    # Making up NaOH: the usual cautions, deferring to the SDS and the local rules (preparation.cautions_for).
+    assert "Making up NaOH" in page and "safety data sheet" in page
     front = client.get("/").get_data(as_text=True)
     assert "Low stock" in front and f"short from {shortfall}" in front and f"make a new batch by {make_by}" in front
     assert client.get("/plan?from=nope").status_code == 422

@@ -21,7 +21,7 @@ from urllib.parse import urlencode
 
 from flask import Blueprint, current_app, flash, jsonify, redirect, render_template, request, url_for
 
-from stockroom import chemistry, planning, prep_plan, schedule_input
+from stockroom import chemistry, planning, prep_plan, preparation, schedule_input
 from stockroom.db import get_db
 from stockroom.errors import InvalidInput, StockroomError
 from stockroom.records import lab_sessions
@@ -247,6 +247,9 @@ def plan_page() -> Any:
         start, end, titrant, errors, status = today, today + dt.timedelta(days=7 * planning.DEFAULT_WEEKS), None, exc.fields, 422
     plan = current_plan(start, end, titrant)
     cfg = current_app.config
+    # "Make a new batch" tells someone to prepare a titrant, often from a concentrated acid or base:
+    # the usual cautions go with it, deferring to the SDS and the local rules (preparation.cautions_for).
+    cautions = {t.reagent: preparation.cautions_for(t.reagent) for t in plan.titrants if t.short}
     return render_template(
         "schedule/plan.html",
         plan=plan,
@@ -257,6 +260,7 @@ def plan_page() -> Any:
         destination=destination,
         preparation_days=int(cfg.get("PREP_LEAD_PREPARATION_DAYS") or 0),
         standardization_days=int(cfg.get("PREP_LEAD_STANDARDIZATION_DAYS") or 0),
+        cautions=cautions,
     ), status
 
 
