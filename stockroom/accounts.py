@@ -46,6 +46,7 @@ PERMISSIONS: dict[str, str] = {
     "recall.manage": "mark a lot, instrument or batch as suspect, or clear a recall",
     "labday.lookup": "look up the titrants in use on a lab day",
     "classdata.correct": "correct class data",
+    "schedule.edit": "enter, import or cancel lab sessions in the schedule",
     "users.manage": "manage user accounts",
     "policy.edit": "change reagent policy",
     "hazard.edit": "change hazard data",
@@ -66,9 +67,10 @@ _STAFF = frozenset(
         "label.print",
         "instrument.register",
         "recall.manage",
+        "schedule.edit",
     }
 )
-_INSTRUCTOR = frozenset({"labday.lookup", "classdata.correct"})
+_INSTRUCTOR = frozenset({"labday.lookup", "classdata.correct", "schedule.edit"})
 _ADMIN = frozenset({"users.manage", "policy.edit", "hazard.edit", "settings.edit"})
 
 # Admin also does prep-staff work and the lab-day look-up (a read); correcting class data stays with

@@ -7,9 +7,11 @@ import json
 import secrets
 from typing import Any
 
-from stockroom import curve_synth, records, run_input, schema, settings, workflow
+from stockroom import curve_synth, planning, prep_plan, records, run_input, schema, settings, workflow
 from stockroom import db as dbmod
+from stockroom.records import lab_sessions
 from stockroom.resources import resource_dir
+from stockroom.schedule_input import SessionInput
 
 
 def load_scenario() -> dict[str, Any]:
@@ -87,6 +89,7 @@ def build_demo(path: str, today: dt.date | None = None, password: str | None = N
         lines.append(f"{len(batches)} batches, {len(lots)} standard lots, {len(runs)} runs")
         lines += demo_dispensings(conn, batches, today)
         lines.append(add_potentiometric_run(conn, config, lots["khp"], today))
+        lines += demo_term_schedule(conn, today, config)
     finally:
         conn.close()
     return lines
@@ -227,3 +230,64 @@ def demo_dispensings(conn: Any, batches: dict[str, dict[str, Any]], today: dt.da
             box = containers.container_by_code(conn, made[x["container"] - 1]["code"])
             containers.dispose_container(conn, box, at(x["day"]), x["reason"], x["by"].lower())
     return [f"{len(made)} containers filled for invented lab sections, {len(data['losses'])} loss recorded"]
+
+
+# ---------------------------------------------------------------- the invented term schedule
+
+# Invented courses and sections (no real institution's timetable): course, sections, room, weekday of
+# each section's lab (0 = Monday), titrant, nominal mol/L, litres one section's session needs.
+DEMO_TERM = (
+    ("CHM 110", ("A", "B", "C"), "214", (0, 2, 3), "H2SO4", 0.1, None),
+    ("CHM 120", ("A", "B"), "118", (1, 3), "HCl", 1.0, 0.6),
+)
+DEMO_SHORT = ("H2SO4", 0.1)  # the titrant the demo's schedule runs short of
+DEMO_SHORT_FROM_DAY = 10  # its first shortfall falls on the first of its sessions from this day on
+DEMO_WEEKS_BACK, DEMO_WEEKS_AHEAD = 2, 8
+
+
+def demo_term_schedule(conn: Any, today: dt.date, config: dict[str, Any]) -> list[str]:
+    """Enter an invented term's lab schedule so that the prep plan shows one coming shortfall; summary lines.
+
+    The sessions of every titrant but DEMO_SHORT are kept within what stays in force (a titrant's
+    sessions stop at the first date it would run short, a re-check falling due included); DEMO_SHORT's
+    volume per session is sized from the litres in force when the demo is built, so that it runs short
+    at its first session on or after DEMO_SHORT_FROM_DAY days from today, whatever was dispensed before.
+    """
+    lead = planning.lead_days(config)
+    monday = today - dt.timedelta(days=today.weekday())
+    end = monday + dt.timedelta(weeks=DEMO_WEEKS_AHEAD)
+    supplies = planning.supplies(conn, {row[4] for row in DEMO_TERM})
+    note = "invented term schedule (demo)"
+    chosen: list[SessionInput] = []
+    for course, sections, room, weekdays, reagent, nominal, litres in DEMO_TERM:
+        dates = sorted(
+            (monday + dt.timedelta(weeks=w, days=wd), section)
+            for w in range(-DEMO_WEEKS_BACK, DEMO_WEEKS_AHEAD)
+            for section, wd in zip(sections, weekdays, strict=True)
+        )
+        key = prep_plan.titrant_key(reagent, nominal)
+        mine = [s for s in supplies if prep_plan.titrant_key(s.reagent, s.nominal_molarity) == key]
+        if litres is None:  # the short titrant: size each session from the litres in force today
+            in_force = sum(s.remaining_l for s in mine if prep_plan.usable_on(s.facts, today) is not None)
+            before = sum(1 for d, _ in dates if today <= d < today + dt.timedelta(days=DEMO_SHORT_FROM_DAY))
+            litres = min(50.0, max(0.5, round(in_force / (before + 0.5) * 20) / 20))
+        sessions = [SessionInput(d, course, section, room, reagent, nominal, litres, note) for d, section in dates]
+        if key != DEMO_SHORT:
+            demands = [
+                prep_plan.Demand(i, s.session_on, s.course, s.section, s.room, s.reagent, s.nominal_molarity, s.volume_needed_l)
+                for i, s in enumerate(sessions)
+            ]
+            short_on = prep_plan.plan(mine, demands, today=today, start=today, end=end, lead_days=lead).titrants
+            cut = short_on[0].shortfall_on if short_on else None
+            if cut is not None:
+                sessions = [s for s in sessions if s.session_on < cut]
+        chosen += sessions
+    lab_sessions.add_sessions(conn, chosen, "demo-loader", source="demo")
+    plan = planning.build_plan(conn, today=today, start=today, end=end, lead=lead)
+    short = [t for t in plan.titrants if t.short]
+    lines = [f"{len(chosen)} lab sessions in an invented term schedule"]
+    lines += [
+        f"prep plan: {t.reagent} {t.nominal_molarity:g} mol/L runs short on {t.shortfall_on}; make a new batch by {t.make_by}"
+        for t in short
+    ]
+    return lines

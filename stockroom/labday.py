@@ -46,7 +46,7 @@ import io
 import math
 import re
 from collections.abc import Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from enum import StrEnum
 
 from stockroom import chemistry, corrections, drift
@@ -520,6 +520,72 @@ BENCH_CAUTIONS: dict[str, str] = {
     "HClO4-AcOH": "Perchloric acid in acetic acid is flammable and corrosive: no flames or hot plates near it, burettes "
     "filled in the fume hood, and any splash rinsed off at once with plenty of water (common practice).",
 }
+
+
+@dataclass(frozen=True)
+class Received:
+    """A container a destination had in use on the day: its code, the batch it was filled from, when, litres."""
+
+    container: str
+    batch_code: str
+    filled_on: dt.date
+    volume_l: float
+
+
+@dataclass(frozen=True)
+class DestinationAnswer:
+    """The lab day as one destination saw it: the day narrowed to the batches it received, and why, in words.
+
+    received: whether anything of the titrant dispensed to the destination was in use that day; when not,
+    `day` is the whole answer (every batch in force) and `note` says so.
+    """
+
+    day: LabDay
+    destination: str
+    received: tuple[Received, ...]
+    note: str
+
+    @property
+    def found(self) -> bool:
+        return bool(self.received)
+
+
+def for_destination(day: LabDay, received: Sequence[Received], destination: str) -> DestinationAnswer:
+    """Narrow a lab day's answer to the batches a destination received (containers in use that day).
+
+    day: the answer for every batch in force; received: the destination's containers in use that day
+    (of the titrant asked, newest fill first); destination: how a person reads it ("CHM 110 · section B").
+    When nothing was received the whole answer stands, with a note saying so; a received batch with
+    no value in force that day is named in the note and leaves no entry.
+    """
+    what = day.titrant or "titrant"
+    on = day.on.isoformat()
+    if not received:
+        note = (
+            f"No {what} dispensed to {destination} was in use on {on}, so the answer cannot say which batch it used: "
+            "every batch in force that day is listed."
+        )
+        return DestinationAnswer(day, destination, (), note)
+    codes = list(dict.fromkeys(r.batch_code for r in received))
+    bottles = "; ".join(f"{r.container} (filled {r.filled_on.isoformat()} from {r.batch_code})" for r in received)
+    note = f"{destination} had in use on {on}: {bottles}."
+    in_force = {e.batch.code for e in day.entries}
+    absent = [c for c in codes if c not in in_force]
+    if absent:
+        note += (
+            f" {', '.join(absent)} had no value in force that day: the results made with it cannot be corrected with "
+            "a certified value; ask the prep room."
+        )
+    chosen = tuple(e for e in day.entries if e.batch.code in codes)
+    if not chosen:
+        narrowed = replace(
+            day,
+            entries=(),
+            headline=f"{destination} received {', '.join(codes)}, which had no value in force on {on}.",
+            detail=day.reason,
+        )
+        return DestinationAnswer(narrowed, destination, tuple(received), note)
+    return DestinationAnswer(replace(day, entries=chosen), destination, tuple(received), note)
 
 
 def cautions(entries: Sequence[LabDayEntry]) -> tuple[str, ...]:

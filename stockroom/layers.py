@@ -38,6 +38,8 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.endpoints",
             "stockroom.stock",
             "stockroom.curve_synth",
+            "stockroom.schedule_input",
+            "stockroom.prep_plan",
         ),
     ),
     # Connections, pragmas, the per-thread pool, the write lock, queries and the clock.
@@ -55,6 +57,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.records.containers",
             "stockroom.records.facts",
             "stockroom.records.hazard_data",
+            "stockroom.records.lab_sessions",
             "stockroom.records.label_prints",
             "stockroom.records.lots",
             "stockroom.records.policies",
@@ -76,7 +79,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
         ),
     ),
     # Batches as people see them: status, pages, history.
-    ("readmodel", ("stockroom.readmodel",)),
+    ("readmodel", ("stockroom.readmodel", "stockroom.planning")),
     # The prep room's actions.
     ("workflow", ("stockroom.workflow",)),
     # PDF and SVG.
@@ -127,6 +130,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
             "stockroom.web.printing",
             "stockroom.web.recalls",
             "stockroom.web.runs",
+            "stockroom.web.schedule",
             "stockroom.web.viewcache",
         ),
     ),

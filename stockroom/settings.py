@@ -136,6 +136,28 @@ SETTINGS: tuple[Setting, ...] = (
         float,
     ),
     Setting("MONTE_CARLO_DRAWS", 100_000, "Monte Carlo draws for the uncertainty cross-check.", int),
+    # The prep plan's lead time: "make a new batch by" is the first shortfall less these days.
+    Setting(
+        "PREP_LEAD_PREPARATION_DAYS",
+        2,
+        "Days from starting a new batch to having it made up and mixed (sodium hydroxide is usually left to stand "
+        "for its carbonate to settle). Part of the prep plan's lead time.",
+        int,
+    ),
+    Setting(
+        "PREP_LEAD_STANDARDIZATION_DAYS",
+        3,
+        "Days from a made-up batch to its release: standardization runs, review and the certificate. The prep plan's "
+        "lead time is these plus PREP_LEAD_PREPARATION_DAYS.",
+        int,
+    ),
+    Setting(
+        "LOW_STOCK_NOTICE_DAYS",
+        7,
+        "Days beyond the lead time within which a coming shortfall is named under low stock on the front page "
+        "(0: only shortfalls inside the lead time).",
+        int,
+    ),
 )
 
 _BY_NAME = {s.name: s for s in SETTINGS}

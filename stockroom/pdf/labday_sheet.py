@@ -151,11 +151,12 @@ def _footer(printed_on: dt.date):  # type: ignore[no-untyped-def]
     return draw
 
 
-def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date, institution: str = "") -> bytes:
+def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date, institution: str = "", destination_note: str = "") -> bytes:
     """The lab-day sheet as PDF bytes (A4 portrait).
 
     day: the look-up's answer (stockroom.labday.lab_day); printed_on: the date the sheet is made;
-    institution: the INSTITUTION_NAME setting, printed above the title (nothing when empty).
+    institution: the INSTITUTION_NAME setting, printed above the title (nothing when empty);
+    destination_note: what a destination asked about received, printed under the title (nothing when empty).
     Molarities in mol/L; the certified value at 20 °C, the bench value at day.bench_temperature_c °C.
     """
     st = _styles()
@@ -195,7 +196,10 @@ def labday_sheet_pdf(day: LabDay, *, printed_on: dt.date, institution: str = "")
             f"standardizations made up to then), and what was learnt after it up to {printed_on.isoformat()}. "
             "A batch on hold gives no value to use."
         )
-    story += [Paragraph(escape(sub), st["sub"]), Spacer(1, 5 * mm)]
+    story.append(Paragraph(escape(sub), st["sub"]))
+    if destination_note:
+        story.append(Paragraph(escape(typeface.printable(destination_note)), st["body"]))
+    story.append(Spacer(1, 5 * mm))
     if not day.entries:
         story.append(Paragraph(escape(day.headline or "No titrant batch was in force that day."), st["reason"]))
         if day.detail:

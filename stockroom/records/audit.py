@@ -91,6 +91,8 @@ _ACTIONS = (
     Action("container.fill", "filled a container from a batch", "containers", every_row=True),
     Action("batch.volume_loss", "recorded a loss or disposal of batch volume", "batch_volume_losses", every_row=True),
     Action("container.dispose", "took a container out of use", "container_disposals", every_row=True),
+    Action("schedule.add", "entered a lab session", "lab_sessions", every_row=True),
+    Action("schedule.cancel", "cancelled a lab session", "lab_session_cancellations", every_row=True),
     # The first keyed entry of a database names every record row already there (the starting data a
     # migration wrote, or a whole history made before keying), so each row has an entry that names it.
     Action("trail.begin", "began the keyed audit trail"),
@@ -155,6 +157,8 @@ _NOUNS: Mapping[str, str] = {
     "containers": "container filled from a batch",
     "batch_volume_losses": "loss or disposal of batch volume",
     "container_disposals": "container taken out of use",
+    "lab_sessions": "lab session",
+    "lab_session_cancellations": "lab session cancellation",
     # Not records, named only when one of their append-only guards is reported.
     "events": "audit entry",
     "signin_attempts": "sign-in attempt",

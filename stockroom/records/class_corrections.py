@@ -24,8 +24,13 @@ def record_correction(
     upload: bytes,
     upload_name: str,
     actor: str,
+    destination: str = "",
 ) -> int:
-    """Store one class-data correction (molarity_used in mol/L) and its audit event in one write; return its id."""
+    """Store one class-data correction (molarity_used in mol/L) and its audit event in one write; return its id.
+
+    destination: the destination whose received batch was used ("CHM 110 · section B"), kept in the audit
+    entry's detail; "" when the batch was chosen from those in force.
+    """
     row = {
         "lab_day": lab_day.isoformat(),
         "titrant": entry.batch.reagent,
@@ -56,6 +61,7 @@ def record_correction(
             "molarity_used": molarity_used,
             "rows": len(rows),
             "upload_sha256": row["upload_sha256"],
+            **({"destination": destination} if destination else {}),
         },
     )
 

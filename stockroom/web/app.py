@@ -35,6 +35,7 @@ def register(app: Flask) -> None:
         printing,
         recalls,
         runs,
+        schedule,
     )
 
     install(app)  # the request guards every route shares (stockroom.web)
@@ -50,6 +51,8 @@ def register(app: Flask) -> None:
     app.register_blueprint(admin.bp)
     app.register_blueprint(intake.api_bp)
     app.register_blueprint(labday.api_bp)
+    app.register_blueprint(schedule.bp)  # the lab schedule and the prep plan
+    app.register_blueprint(schedule.api_bp)
     access.init_app(app)
     # The JSON API is for programs: its writes take an API token and refuse the session cookie
     # (access.api_require), so it needs no CSRF token.
@@ -58,6 +61,7 @@ def register(app: Flask) -> None:
     csrf.exempt(curves.bp)  # end points of a recorded curve: computes, stores nothing
     csrf.exempt(intake.api_bp)  # the preparation calculator: computes, stores nothing
     csrf.exempt(labday.api_bp)  # the lab-day look-up: JSON reads only
+    csrf.exempt(schedule.api_bp)  # the schedule's JSON: writes take an API token (access.api_require)
     formatting.install(app)
     once.install(app)  # once_field(): the one-time form id of every creating form
 

@@ -5,10 +5,10 @@ from __future__ import annotations
 import datetime as dt
 from typing import Any
 
-from flask import Blueprint, render_template, request
+from flask import Blueprint, current_app, render_template, request
 from markupsafe import Markup
 
-from stockroom import readmodel, records
+from stockroom import planning, prep_plan, readmodel, records
 from stockroom.db import get_db
 from stockroom.policy import URGENCY, Status
 from stockroom.web import lab_today, parse_date_arg, viewcache
@@ -25,7 +25,21 @@ def index() -> str:
     db = get_db()
     # Markup() marks the cached fragment as already escaped (it was rendered by Jinja with autoescape).
     board = viewcache.cached(db, ("dashboard", on), lambda: Markup(_render_board(db, on)))
-    return render_template("dashboard/index.html", on=on, is_today=(on == lab_today()), board=board, first_steps=first_steps(db))
+    cfg = current_app.config
+    # The settings are part of the key: the answer depends on the lead time and the notice days.
+    key = ("low-stock", on, planning.lead_days(cfg), cfg.get("LOW_STOCK_NOTICE_DAYS"))
+    low = viewcache.cached(db, key, lambda: low_stock(db, on, cfg))
+    return render_template(
+        "dashboard/index.html", on=on, is_today=(on == lab_today()), board=board, first_steps=first_steps(db), low_stock=low
+    )
+
+
+def low_stock(db: Any, on: dt.date, config: Any) -> tuple[prep_plan.TitrantPlan, ...]:
+    """Titrants whose first shortfall, as the schedule stands, falls within the lead time (plus the notice days) of `on`."""
+    lead = planning.lead_days(config)
+    notice = max(0, int(config.get("LOW_STOCK_NOTICE_DAYS") or 0))
+    plan = planning.build_plan(db, today=on, start=on, end=on + dt.timedelta(days=lead + notice), lead=lead)
+    return plan.low_stock(notice)
 
 
 def first_steps(db: Any) -> list[dict[str, Any]] | None:

@@ -16,7 +16,7 @@ from typing import Any
 import sqlite_utils
 from flask import Blueprint, Response, current_app, redirect, render_template, request, url_for
 
-from stockroom import chemistry, corrections, readmodel, records
+from stockroom import chemistry, corrections, readmodel, records, schedule_input
 from stockroom import db as dbmod
 from stockroom import labday as ld
 from stockroom.chemistry import UnknownSubstance
@@ -25,6 +25,7 @@ from stockroom.errors import InvalidInput, NotFound, StockroomError
 from stockroom.pdf.charts import drift_svg
 from stockroom.pdf.labday_sheet import labday_sheet_pdf
 from stockroom.policy import drift_on
+from stockroom.records.containers import received_by
 from stockroom.web import forms, lab_today, viewcache
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import MISSING, Parser
@@ -33,7 +34,7 @@ from stockroom.web.once import once
 bp = Blueprint("labday", __name__)
 api_bp = Blueprint("labday_api", __name__, url_prefix="/api/v1")
 
-API_KEYS = ("date", "titrant", "bench_temperature_c")
+API_KEYS = ("date", "titrant", "bench_temperature_c", "destination")
 CHART_WIDTH, CHART_HEIGHT = 1080, 430  # px: the width of a batch page's panel
 
 
@@ -131,12 +132,16 @@ def _date(p: Parser, raw: Any, field: str, default: dt.date | None) -> dt.date |
         return None
 
 
+Destination = tuple[str, str]  # (course, section): schedule_input.read_destination
+
+
 def parse_question(
     args: Mapping[str, Any], *, strict: bool, default_day: dt.date | None = None
-) -> tuple[dt.date, str | None, float | None]:
-    """(day, titrant key or None, bench temperature °C or None) from a query; InvalidInput naming each field.
+) -> tuple[dt.date, str | None, float | None, Destination | None]:
+    """(day, titrant key or None, bench temperature °C or None, destination or None) from a query.
 
-    strict (the API): date and titrant are required and unknown keys are refused.
+    strict (the API): date and titrant are required and unknown keys are refused. destination is
+    written "CHM 110/B" (course, "/", section; "CHM 110" for every section). InvalidInput names each field.
     """
     p = Parser()
     if strict:
@@ -151,9 +156,37 @@ def parse_question(
         le=ld.BENCH_MAX_C,
         unit="°C",
     )
+    destination = schedule_input.read_destination(p, args.get("destination", MISSING))
     p.raise_if_errors()
     assert day is not None
-    return day, titrant, bench
+    return day, titrant, bench, destination
+
+
+def received(day: dt.date, titrant: str | None, destination: Destination) -> list[ld.Received]:
+    """The containers of a titrant (any when None) the destination had in use on a day, newest fill first."""
+    db = get_db()
+    rows = received_by(db, destination[0], destination[1], day)
+    if not rows:
+        return []
+    ids = sorted({r["batch_id"] for r in rows})
+    marks = ",".join("?" * len(ids))
+    batches = {b["id"]: b for b in dbmod.query(db, f"SELECT id, code, reagent FROM batches WHERE id IN ({marks})", ids)}
+    return [
+        ld.Received(r["code"], batches[r["batch_id"]]["code"], dt.date.fromisoformat(r["filled_on"]), float(r["volume_l"]))
+        for r in rows
+        if titrant is None or batches[r["batch_id"]]["reagent"] == titrant
+    ]
+
+
+def answer(
+    day: dt.date, titrant: str | None, bench: float | None, destination: Destination | None
+) -> tuple[ld.LabDay, ld.DestinationAnswer | None]:
+    """The lab day, narrowed to what the destination received when one is asked (with the words saying how)."""
+    result = look_up(day, titrant, bench)
+    if destination is None:
+        return result, None
+    said = ld.for_destination(result, received(day, titrant, destination), schedule_input.destination_text(*destination))
+    return said.day, said
 
 
 def look_up(day: dt.date, titrant: str | None, bench: float | None) -> ld.LabDay:
@@ -181,6 +214,7 @@ def page() -> Any:
         "date": request.args.get("date") or today.isoformat(),
         "titrant": request.args.get("titrant", ""),
         "bench_temperature_c": request.args.get("bench_temperature_c", ""),
+        "destination": request.args.get("destination", ""),
     }
     context: dict[str, Any] = {
         "values": values,
@@ -191,7 +225,7 @@ def page() -> Any:
         "titrants": [(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
     }
     try:
-        day, titrant, bench = parse_question(request.args, strict=False, default_day=today)
+        day, titrant, bench, destination = parse_question(request.args, strict=False, default_day=today)
     except InvalidInput as exc:
         context["errors"] = exc.fields
         return forms.render_form("labday/index.html", **context), 422
@@ -199,10 +233,12 @@ def page() -> Any:
         "date": day.isoformat(),
         **({"titrant": titrant} if titrant else {}),
         **({"bench_temperature_c": f"{bench:g}"} if bench is not None else {}),
+        **({"destination": "/".join(p for p in destination if p)} if destination else {}),
     }
-    result = look_up(day, titrant, bench)
+    result, said = answer(day, titrant, bench, destination)
     context.update(
         day=result,
+        destination=said,
         cautions=ld.cautions(result.entries),
         query=query,
         pdf_url=url_for("labday.sheet", **query),
@@ -214,9 +250,14 @@ def page() -> Any:
 @bp.get("/lab-day.pdf")
 def sheet() -> Response:
     """The printable lab-day sheet (A4 PDF) for the same question as the page."""
-    day, titrant, bench = parse_question(request.args, strict=False, default_day=lab_today())
-    result = look_up(day, titrant, bench)
-    pdf = labday_sheet_pdf(result, printed_on=lab_today(), institution=str(current_app.config.get("INSTITUTION_NAME") or ""))
+    day, titrant, bench, destination = parse_question(request.args, strict=False, default_day=lab_today())
+    result, said = answer(day, titrant, bench, destination)
+    pdf = labday_sheet_pdf(
+        result,
+        printed_on=lab_today(),
+        institution=str(current_app.config.get("INSTITUTION_NAME") or ""),
+        destination_note=said.note if said else "",
+    )
     name = f"lab-day-{day.isoformat()}{'-' + titrant if titrant else ''}.pdf"
     return Response(pdf, mimetype="application/pdf", headers={"Content-Disposition": f'inline; filename="{name}"'})
 
@@ -290,12 +331,12 @@ def entry_json(e: ld.LabDayEntry, bench_asked: bool) -> dict[str, Any]:
 
 @api_bp.get("/lab-day")
 def lab_day_json() -> Any:
-    """GET /api/v1/lab-day?date=YYYY-MM-DD&titrant=HCl[&bench_temperature_c=23]."""
-    day, titrant, bench = parse_question(request.args, strict=True)
+    """GET /api/v1/lab-day?date=YYYY-MM-DD&titrant=HCl[&bench_temperature_c=23][&destination=CHM 110/B]."""
+    day, titrant, bench, destination = parse_question(request.args, strict=True)
     today = lab_today()
 
-    def answer() -> bytes:
-        result = look_up(day, titrant, bench)
+    def serialized() -> bytes:
+        result, said = answer(day, titrant, bench, destination)
         body: dict[str, Any] = {
             "date": day.isoformat(),
             "titrant": titrant,
@@ -305,11 +346,19 @@ def lab_day_json() -> Any:
         }
         if bench is not None:
             body["bench_temperature_c"] = bench
+        if destination is not None and said is not None:
+            body["destination"] = {"course": destination[0], "section": destination[1], "text": said.destination}
+            body["received"] = said.found
+            body["containers"] = [
+                {"id": r.container, "batch_id": r.batch_code, "filled_on": r.filled_on.isoformat(), "volume_l": r.volume_l}
+                for r in said.received
+            ]
+            body["destination_note"] = said.note
         return json.dumps(body, separators=(",", ":")).encode("utf-8")
 
     # Instructors' programs ask the same question many times a lab day; the answer only changes
     # with the records, so its serialized form is kept until the next write.
-    text = viewcache.cached(get_db(), ("lab-day.json", day, titrant, bench, today), answer)
+    text = viewcache.cached(get_db(), ("lab-day.json", day, titrant, bench, destination, today), serialized)
     return Response(text, mimetype="application/json")
 
 
@@ -345,6 +394,7 @@ def _correct_form(
     problems: list[tuple[int, str]],
     choices: list[ld.LabDayEntry],
     status: int = 200,
+    destination_note: str = "",
 ) -> tuple[str, int]:
     return forms.render_form(
         "labday/correct.html",
@@ -352,6 +402,7 @@ def _correct_form(
         errors=errors,
         problems=problems,
         choices=choices,
+        destination_note=destination_note,
         titrants=[(t.key, f"{t.key} ({t.name})") for t in chemistry.list_titrants()],
         columns=ld.CLASS_COLUMNS,
         max_rows=int(current_app.config["CSV_MAX_ROWS"]),
@@ -373,19 +424,22 @@ def _held_message(entry: ld.LabDayEntry, choices: list[ld.LabDayEntry]) -> str:
     )
 
 
-def _choices_for(args: Mapping[str, Any]) -> list[ld.LabDayEntry]:
-    """The batches in force for the day and titrant a link carried, so the form offers them; [] when unclear."""
+def _choices_for(args: Mapping[str, Any]) -> tuple[list[ld.LabDayEntry], str]:
+    """The batches in force for the day, titrant and destination a link carried, so the form offers them
+    (with the words on what the destination received); [] when unclear."""
     if not args.get("titrant"):
-        return []
+        return [], ""
     p = Parser()
     day = _date(p, args.get("date") or MISSING, "lab_day", lab_today())
     titrant = _titrant_key(p, args.get("titrant"), "titrant", True)
     bench = p.number(
         args.get("bench_temperature_c") or None, "bench_temperature_c", required=False, ge=ld.BENCH_MIN_C, le=ld.BENCH_MAX_C
     )
+    destination = schedule_input.read_destination(p, args.get("destination") or None)
     if not p.ok or day is None or titrant is None:
-        return []
-    return list(look_up(day, titrant, bench).entries)
+        return [], ""
+    result, said = answer(day, titrant, bench, destination)
+    return list(result.entries), said.note if said else ""
 
 
 @bp.route("/lab-day/correct", methods=["GET", "POST"])
@@ -400,8 +454,10 @@ def correct() -> Any:
             "titrant": request.args.get("titrant", ""),
             "bench_temperature_c": request.args.get("bench_temperature_c", ""),
             "batch": request.args.get("batch", ""),
+            "destination": request.args.get("destination", ""),
         }
-        return _correct_form(values, {}, [], _choices_for(request.args))
+        offered, offered_note = _choices_for(request.args)
+        return _correct_form(values, {}, [], offered, destination_note=offered_note)
     form = request.form
     p = forms.parser()
     day = _date(p, form.get("lab_day", MISSING), "lab_day", None)
@@ -414,17 +470,29 @@ def correct() -> Any:
         le=ld.BENCH_MAX_C,
         unit="°C",
     )
+    destination = schedule_input.read_destination(p, form.get("destination", MISSING))
     chosen = (form.get("batch") or "").strip()
     choices: list[ld.LabDayEntry] = []
     entry = None
+    note = ""
     if p.ok and day is not None and titrant is not None:
-        result = look_up(day, titrant, bench)
+        result, said = answer(day, titrant, bench, destination)
+        note = said.note if said else ""
         choices = list(result.entries)
         if not choices:
-            p.error("lab_day", result.reason or f"no {titrant} batch was in force that day")
+            if said is not None and said.found:
+                p.error("destination", result.reason or note)
+            else:
+                p.error("lab_day", result.reason or f"no {titrant} batch was in force that day")
         elif chosen:
             entry = next((e for e in choices if e.batch.code == chosen), None)
-            if entry is None:
+            if entry is None and said is not None and said.found:
+                p.error(
+                    "batch",
+                    f"{said.destination} received {', '.join(e.batch.code for e in choices)} that day, not {chosen}; "
+                    "leave the batch empty to use what it received",
+                )
+            elif entry is None:
                 p.error(
                     "batch",
                     f"{chosen} was not in force on {day.isoformat()}; in force then: " + ", ".join(e.batch.code for e in choices),
@@ -457,7 +525,7 @@ def correct() -> Any:
             if problems:
                 p.error("sheet", f"{len(problems)} problem(s) in the file; nothing was recorded")
     if not p.ok:
-        return _correct_form(form, InvalidInput(p.errors).fields, problems, choices, 422)
+        return _correct_form(form, InvalidInput(p.errors).fields, problems, choices, 422, destination_note=note)
     assert entry is not None and day is not None and sheet is not None and upload is not None
     molarity_used = entry.use_molarity
     assert molarity_used is not None  # a batch on hold was refused above
@@ -472,6 +540,7 @@ def correct() -> Any:
         upload=raw,
         upload_name=upload.filename or "",
         actor=user.username,
+        destination=schedule_input.destination_text(*destination) if destination else "",
     )
     return redirect(url_for("labday.correction", cid=cid), 303)
 

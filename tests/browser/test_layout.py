@@ -75,6 +75,7 @@ def layout_site(tmp_path_factory):
         "instrument_id": inst.id,
         "recall_id": recall_id,
         "container_code": db.execute("SELECT code FROM containers ORDER BY id LIMIT 1").fetchone()[0],
+        "session_id": db.execute("SELECT min(id) FROM lab_sessions").fetchone()[0],  # the demo's term schedule
     }
     db.conn.close()
     app = create_app({"DATABASE": str(path), "SECRET_KEY": "browser-layout", "LAB_TIMEZONE": "UTC"})
