@@ -23,6 +23,7 @@ import mmap
 import sqlite3
 import threading
 from collections import OrderedDict
+from pathlib import Path
 
 _HEADER = 48  # bytes of one copy of the WAL-index header
 _IS_INIT = 12  # offset of its "initialized" flag
@@ -33,7 +34,8 @@ class _Watch:
     """A read-only mapping of one database's WAL-index and the connection that keeps it in place."""
 
     def __init__(self, path: str) -> None:
-        self.conn = sqlite3.connect(path, check_same_thread=False)
+        # mode=rw: a watch never creates a database where there is none.
+        self.conn = sqlite3.connect(Path(path).resolve().as_uri() + "?mode=rw", uri=True, check_same_thread=False)
         try:
             mode = self.conn.execute("PRAGMA journal_mode").fetchone()[0]
             if str(mode).lower() != "wal":
@@ -97,7 +99,11 @@ def token(path: str) -> bytes | None:
 
 
 def forget(path: str) -> None:
-    """Stop watching the database at `path` (before it is replaced or removed); the next token() maps it anew."""
+    """Stop watching the database at `path`; the next token() maps it anew.
+
+    For a file removed and made again under the same name while this process runs: the watch would
+    otherwise keep the old file's index, whose token no longer moves.
+    """
     with _LOCK:
         watch = _WATCHES.pop(path, None)
     if watch is not None:

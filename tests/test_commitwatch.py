@@ -56,6 +56,8 @@ def test_a_database_not_in_wal_mode_gives_no_token(tmp_path):
     assert commitwatch.token(str(path)) is None
     assert commitwatch.token("") is None  # an in-memory database names no file
     conn.close()
+    missing = tmp_path / "never-made.db"
+    assert commitwatch.token(str(missing)) is None and not missing.exists()  # a watch creates no database
 
 
 def test_watches_are_bounded_and_close_their_files(tmp_path):
