@@ -43,7 +43,7 @@ LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
         ),
     ),
     # Connections, pragmas, the per-thread pool, the write lock, queries and the clock.
-    ("db", ("stockroom.db",)),
+    ("db", ("stockroom.db", "stockroom.commitwatch")),
     # Versioned migrations with literal data.
     ("schema", ("stockroom.schema",)),
     # One module per table family, and the audit trail with its action registry.

@@ -31,6 +31,7 @@ __all__ = [
     "coarse_statuses",
     "facts_of",
     "review_facts",
+    "search_index_problems",
     "status_summary_problems",
     "views_of",
 ]
@@ -89,6 +90,27 @@ COARSE = ("awaiting", "live", "expired", "withdrawn", "registered_in_error")
 COARSE_WITHOUT_HISTORY = tuple(c for c in COARSE if c != "live")
 
 
+# The register's text search: a literal, ASCII-case-blind substring of the code, the preparer or the notes
+# of a batch as it now reads (corrections applied), exactly SQLite's LIKE. It reads the trigram index the
+# schema keeps (0016_search_index, table batch_search): a search of 3 characters or more asks the index
+# for the batches holding the text (trigrams fold case a little more widely than LIKE, so the index's
+# answer is a superset) and LIKE decides among those few. A trigram index cannot answer a search of 1
+# or 2 characters; such a search reads the index's copy of the three fields of every batch with LIKE:
+# it finds most of the register anyway (every code holds digits and hyphens), so it costs what it shows.
+SEARCH_INDEX_MIN_CHARS = 3
+_SEARCH_LIKE = "(code LIKE :like ESCAPE '\\' OR prepared_by LIKE :like ESCAPE '\\' OR notes LIKE :like ESCAPE '\\')"
+
+
+def _search_condition(search: str, params: dict[str, Any]) -> str:
+    """The WHERE term on batches b that keeps the batches whose code, preparer or notes hold `search`."""
+    params["like"] = f"%{like_literal(search)}%"
+    if len(search) >= SEARCH_INDEX_MIN_CHARS:
+        # One FTS5 phrase (double quotes doubled): the text's trigrams in order, nothing of the query syntax.
+        params["match"] = '"' + search.replace('"', '""') + '"'
+        return f"b.id IN (SELECT rowid FROM batch_search WHERE batch_search MATCH :match AND {_SEARCH_LIKE})"
+    return f"b.id IN (SELECT rowid FROM batch_search WHERE {_SEARCH_LIKE})"
+
+
 def _coarse_sql(
     on: dt.date, reagent: str | None, search: str | None, only: Iterable[str] | None, out_since: dt.date | None
 ) -> tuple[str, dict[str, Any]]:
@@ -102,8 +124,7 @@ def _coarse_sql(
         inner += " AND b.reagent = :reagent"
         params["reagent"] = reagent
     if search:
-        inner += " AND (b.code LIKE :like ESCAPE '\\' OR b.prepared_by LIKE :like ESCAPE '\\' OR b.notes LIKE :like ESCAPE '\\')"
-        params["like"] = f"%{like_literal(search)}%"
+        inner += " AND " + _search_condition(search, params)
     outer, conditions = "", []
     if only is not None:
         wanted = [c for c in only if c in COARSE]
@@ -200,6 +221,18 @@ def status_summary_problems(db: sqlite_utils.Database) -> list[int]:
         "SELECT s.batch_id FROM batch_status_summary s LEFT JOIN batches b ON b.id = s.batch_id WHERE b.id IS NULL"
     )
     return [int(r[0]) for r in rows] + [int(r[0]) for r in extra]
+
+
+def search_index_problems(db: sqlite_utils.Database) -> list[int]:
+    """Ids of the batches whose entry in the search index differs from the batch as it now reads.
+
+    The index (batch_search) is derived: this rebuilds what it should hold from the batches and their
+    corrections (records.with_amendments) and compares, so that a test (or an operator) can prove it equal.
+    """
+    rows = records.with_amendments(dbmod.query(db, "SELECT id, code, prepared_by, notes FROM batches"), db)
+    want = {int(r["id"]): (r["code"], r["prepared_by"], r["notes"]) for r in rows}
+    have = {int(r[0]): (r[1], r[2], r[3]) for r in db.execute("SELECT rowid, code, prepared_by, notes FROM batch_search")}
+    return sorted(i for i in want.keys() | have.keys() if want.get(i) != have.get(i))
 
 
 def views_of(db: sqlite_utils.Database, ids: list[int], on: dt.date) -> list[BatchView]:

@@ -1488,6 +1488,46 @@ def _replicate_curves(db: sqlite_utils.Database) -> None:
 
 
 APPEND_ONLY_TABLES = APPEND_ONLY_TABLES + ("replicate_curves",)
+
+# The register's text search: a trigram full-text index of each batch's code, preparer and notes as the
+# batch now reads (its corrections applied), so that a search costs what it finds instead of a read of
+# every batch. Like batch_status_summary it is derived, not a record: triggers keep it in the same
+# transaction as the batch or the correction, the backfill below builds it from the records, and
+# readmodel.search_index_problems recomputes it to prove it equal. Only the literal statements below
+# ever write it; it carries no append-only guard (a correction must update it), and the audit trail
+# names no row of it. SQLite keeps the index in shadow tables named batch_search_*.
+SEARCH_INDEX_TABLES = ("batch_search",)
+_SEARCH_INDEX = [
+    "CREATE VIRTUAL TABLE batch_search USING fts5(code, prepared_by, notes, tokenize = 'trigram')",
+    "CREATE TRIGGER batch_search_batch AFTER INSERT ON batches BEGIN "
+    "INSERT INTO batch_search (rowid, code, prepared_by, notes) VALUES (NEW.id, NEW.code, NEW.prepared_by, NEW.notes); END",
+    # A correction's new value is JSON (records.batches.amend_batch); the index holds it decoded.
+    "CREATE TRIGGER batch_search_amendment AFTER INSERT ON amendments "
+    "WHEN NEW.entity = 'batches' AND NEW.field IN ('prepared_by', 'notes') BEGIN "
+    "UPDATE batch_search SET "
+    "prepared_by = CASE WHEN NEW.field = 'prepared_by' THEN json_extract(NEW.new_value, '$') ELSE prepared_by END, "
+    "notes = CASE WHEN NEW.field = 'notes' THEN json_extract(NEW.new_value, '$') ELSE notes END "
+    "WHERE rowid = NEW.entity_id; END",
+    "INSERT INTO batch_search (rowid, code, prepared_by, notes) "
+    "SELECT b.id, b.code, "
+    "CASE WHEN EXISTS (SELECT 1 FROM amendments a WHERE a.entity = 'batches' AND a.entity_id = b.id "
+    " AND a.field = 'prepared_by') THEN (SELECT json_extract(a.new_value, '$') FROM amendments a "
+    " WHERE a.entity = 'batches' AND a.entity_id = b.id AND a.field = 'prepared_by' ORDER BY a.id DESC LIMIT 1) "
+    "ELSE b.prepared_by END, "
+    "CASE WHEN EXISTS (SELECT 1 FROM amendments a WHERE a.entity = 'batches' AND a.entity_id = b.id "
+    " AND a.field = 'notes') THEN (SELECT json_extract(a.new_value, '$') FROM amendments a "
+    " WHERE a.entity = 'batches' AND a.entity_id = b.id AND a.field = 'notes' ORDER BY a.id DESC LIMIT 1) "
+    "ELSE b.notes END "
+    "FROM batches b",
+]
+
+
+@MIGRATIONS(name="0016_search_index")
+def _search_index(db: sqlite_utils.Database) -> None:
+    for statement in _SEARCH_INDEX:
+        db.execute(statement)
+
+
 SCHEMA_VERSION = len(MIGRATIONS._migrations)
 
 

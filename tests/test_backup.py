@@ -19,7 +19,9 @@ def _tables(path):
     conn = sqlite3.connect(path)
     try:
         names = [r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")]
-        return {n: conn.execute(f"SELECT * FROM {n} ORDER BY rowid").fetchall() for n in names}
+        # By the first column (the id; the key of the search index's FTS5 shadow tables, some of which
+        # have no rowid).
+        return {n: conn.execute(f"SELECT * FROM {n} ORDER BY 1").fetchall() for n in names}
     finally:
         conn.close()
 

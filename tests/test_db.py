@@ -130,6 +130,8 @@ def _seeded_rows(conn) -> dict[str, list[dict]]:
     for table in conn.table_names():
         if table.startswith(("_", "sqlite")) or table == "trail_keying":  # checked on its own below
             continue
+        if table.startswith(schema.SEARCH_INDEX_TABLES):  # the search index and SQLite's shadow tables: derived
+            continue
         rows = dbmod.query(conn, f"SELECT * FROM {table} ORDER BY rowid")  # batch_status_summary keys on batch_id
         if rows:
             for r in rows:
