@@ -67,6 +67,20 @@ class Sheet:
 MAX_LINE_CHARS = 2000
 
 
+def _content_lines(text: str) -> list[tuple[int, str]]:
+    """The lines of a sheet's text that hold something, with their line numbers (1-based).
+
+    A byte-order mark is dropped; blank lines and comment lines (starting with "#", quoted or not) are skipped.
+    """
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    return [
+        (i, line)
+        for i, line in enumerate(text.splitlines(), start=1)
+        if line.strip() and not line.lstrip().lstrip('"').startswith("#")
+    ]
+
+
 def read_sheet(text: str, max_rows: int) -> Sheet:
     """Read a replicate sheet's text; structure problems are reported per line, values stay text.
 
@@ -74,13 +88,7 @@ def read_sheet(text: str, max_rows: int) -> Sheet:
     and a typed run can never be judged differently.
     """
     sheet = Sheet()
-    if text.startswith("\ufeff"):
-        text = text[1:]
-    lines = [
-        (i, line)
-        for i, line in enumerate(text.splitlines(), start=1)
-        if line.strip() and not line.lstrip().lstrip('"').startswith("#")
-    ]
+    lines = _content_lines(text)
     if not lines:
         sheet.problems.append((0, "the file has no header row and no data"))
         return sheet
@@ -282,13 +290,7 @@ def read_curve_sheet(text: str, max_replicates: int, max_points: int) -> CurveSh
     (more is refused here, before any text is built).
     """
     sheet = CurveSheet()
-    if text.startswith("\ufeff"):
-        text = text[1:]
-    lines = [
-        (i, line)
-        for i, line in enumerate(text.splitlines(), start=1)
-        if line.strip() and not line.lstrip().lstrip('"').startswith("#")
-    ]
+    lines = _content_lines(text)
     if not lines:
         sheet.problems.append((0, "the curve file has no header row and no data"))
         return sheet
