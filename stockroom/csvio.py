@@ -18,6 +18,10 @@ Curve sheet, one row per point of the replicates' titration curves, header row r
 of that titration (mL); `ph` or `mv` the reading. Points of one replicate need not be adjacent but keep
 their order. Each replicate's points become the text the run form's curve box holds, read (with every
 limit) by stockroom.run_input.read_curve, as a pasted or a JSON curve is.
+
+A run's curves are exported in that same layout (write_curves), so the file is read back by this
+reader; each replicate's located end point and its standard uncertainty u are `#` comment lines above
+the header, which the reader skips.
 """
 
 from __future__ import annotations
@@ -27,7 +31,9 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from stockroom import formatting
 from stockroom.csvsafe import SafeCsv
+from stockroom.run_input import CURVE_METHODS, CURVE_READINGS
 
 SHEET_COLUMNS = (
     "replicate",
@@ -333,3 +339,34 @@ def read_curve_sheet(text: str, max_replicates: int, max_points: int) -> CurveSh
     if not sheet.curves and not sheet.problems:
         sheet.problems.append((0, "the curve file has a header but no points"))
     return sheet
+
+
+def write_curves(run: Mapping[str, Any], batch: Mapping[str, Any], k: float) -> str:
+    """A run's titration curves as a curve sheet (replicate, volume_ml, ph|mv) that read_curve_sheet reads back.
+
+    run: as records.run_by_id gives it (each replicate's "curve" with its points, volume_ml and u_ml in mL);
+    k: the coverage factor of the U beside each end point (dimensionless). The located end points and
+    their u come first as comment lines; the points are written with every digit stored (mL, pH or mV).
+    A run's curves share one reading (the run's choice); a run without curves gives the header alone.
+    """
+    curved = [rep for rep in run["replicates"] if rep.get("curve")]
+    reading = curved[0]["curve"]["reading"] if curved else "ph"
+    out = SafeCsv()
+    out.comment(f"stockroom titration curves of run {run['id']} of batch {batch['code']} ({batch['reagent']})")
+    out.comment(
+        f"readings in {CURVE_READINGS.get(reading, reading)}; volume_ml is the volume added since the start (mL); "
+        "the import page takes this file back as the curve file beside a replicate sheet"
+    )
+    for rep in curved:
+        curve = rep["curve"]
+        volume, u = float(curve["volume_ml"]), float(curve["u_ml"])
+        out.comment(
+            f"replicate {rep['position']}: end point located at {volume:.4f} mL, standard uncertainty "
+            f"u = {formatting.uncertainty(u, 'mL')}, that is {formatting.volume_u(volume, k * u, k)}; "
+            f"{CURVE_METHODS.get(curve['method'], curve['method'])}, {len(curve['points'])} points"
+        )
+    out.row(("replicate", "volume_ml", reading))
+    for rep in curved:
+        for volume_ml, value in rep["curve"]["points"]:
+            out.row((rep["position"], float(volume_ml), float(value)))
+    return out.text()

@@ -143,3 +143,26 @@ def test_every_export_defuses_typed_text(app, setup, signed_in_client, form_toke
     history = list(csv.DictReader(line for line in staff.get(f"/batches/{code}/history.csv").get_data(as_text=True).splitlines()))
     assert [r["decision_reason"] for r in history] == ["'" + ACCEPT_REASON, "'" + REJECT_REASON, "'" + WITHDRAW_REASON]
     assert float(history[0]["molarity_mol_l"]) == pytest.approx(0.1, rel=0.05)
+
+
+def test_the_curve_export_opens_as_data_with_negative_readings_as_numbers(app, setup, signed_in_client, form_token):  # noqa: F811
+    from stockroom import curve_synth
+
+    staff = signed_in_client("staff")
+    gross, tare, _, _ = GOOD[0]
+    pts = curve_synth.khp_curve(float(gross) - float(tare), 0.1, seed=7)
+    # The pH curve as a glass electrode's potential, E = -59.16 mV (pH - 7) (the Nernst slope at 25 °C,
+    # from memory): the readings run from about +230 to -300 mV, so many cells start with "-".
+    curve = "\n".join(f"{v:g}, {-59.16 * (e - 7):.1f}" for v, e in pts)
+    form = run_form(setup, rows=[], action="record", curve_reading="mv")
+    form.update(r1_gross_g=gross, r1_tare_g=tare, r1_curve=curve)
+    resp = post(staff, form_token, f"/batches/{setup['batch']['code']}/runs/new", form)
+    assert resp.status_code == 303, resp.get_data(as_text=True)[:1500]
+    run_id = int(re.search(r"/runs/(\d+)", resp.headers["Location"]).group(1))
+    resp = staff.get(f"/runs/{run_id}/curves.csv")
+    assert resp.status_code == 200 and resp.mimetype == "text/csv"
+    text = resp.get_data(as_text=True)
+    cells = assert_no_live_formula(text)
+    negative = [c for c in cells if c.startswith("-")]
+    assert len(negative) > 10 and all(csvsafe.is_number(c) for c in negative)
+    assert f"\n1,{float(f'{pts[-1][0]:g}')!r},{float(f'{-59.16 * (pts[-1][1] - 7):.1f}')!r}\n" in text

@@ -345,3 +345,121 @@ def test_the_curve_file_fills_each_replicates_box_with_its_own_points():
     sheet = csvio.read_curve_sheet("# meter export (invented)\nreplicate,mv,volume_ml\n2,-120,0\n1,-118,0\n2,-110,1.5", 3, 500)
     assert sheet.problems == [] and sheet.reading == "mv"
     assert sheet.curves == {2: ["0, -120", "1.5, -110"], 1: ["0, -118"]}
+
+
+def test_the_curve_export_reads_back_through_the_curve_sheet_reader(app, conn, world, form_token):
+    from stockroom import csvio
+
+    batch = new_batch(conn, 0)
+    run_id = by_form(world, form_token, batch)
+    run = records.run_by_id(conn, run_id)
+    resp = world["staff"].get(f"/runs/{run_id}/curves.csv")
+    assert resp.status_code == 200 and resp.mimetype == "text/csv"
+    assert resp.headers["Content-Disposition"] == f'attachment; filename="{batch["code"]}-run-{run_id}-curves.csv"'
+    text = resp.get_data(as_text=True)
+    sheet = csvio.read_curve_sheet(text, 3, run_input.LIMITS.max_curve_points)
+    assert sheet.problems == [] and sheet.reading == "ph"
+    assert sorted(sheet.curves) == [1, 2, 3]
+    for rep, pasted in zip(run["replicates"], world["curves"], strict=True):
+        lines = sheet.curves[rep["position"]]
+        # Every digit stored comes back: the points equal what was pasted (as the form's box held it).
+        assert [tuple(float(x) for x in line.split(",")) for line in lines] == [(float(f"{v:g}"), round(e, 2)) for v, e in pasted]
+        # Read again by the one curve parser, the end point is the stored one.
+        p = run_input.Parser()
+        again = run_input.read_curve(p, "\n".join(lines), "curve", reading="ph", method="derivative", scale_ml=50.0)
+        assert p.errors == []
+        assert again.end_point.volume_ml == pytest.approx(rep["curve"]["volume_ml"], rel=1e-12)
+        assert again.end_point.u_ml == pytest.approx(rep["curve"]["u_ml"], rel=1e-12)
+    # The located end point and its u stand in a comment line per replicate (U = k u with the app's k).
+    k = float(app.config["COVERAGE_FACTOR"])
+    first = run["replicates"][0]["curve"]
+    comments = [line for line in text.splitlines() if line.startswith('"#')]
+    assert any(
+        f"replicate 1: end point located at {first['volume_ml']:.4f} mL, standard uncertainty u = " in c
+        and f"± {k * first['u_ml']:.3f}"[:6] in c
+        for c in comments
+    ), comments
+    assert text.splitlines()[len(comments)] == '"replicate","volume_ml","ph"'
+
+
+def test_exported_curves_imported_again_store_the_same_curves(app, conn, world, form_token):
+    """Export a run's curves, upload the file as the curve file of a CSV import, record: the same curve rows."""
+    original = by_form(world, form_token, new_batch(conn, 0))
+    exported = world["staff"].get(f"/runs/{original}/curves.csv").get_data(as_text=True)
+    staff = world["staff"]
+    initial, final = readings_for(world)
+    sheet = ["replicate,mass_g,initial_ml,final_ml", f"1,{MASSES[0]},,", f"2,{MASSES[1]},{initial},{final}", f"3,{MASSES[2]},,"]
+    batch = new_batch(conn, 1)
+    data = {
+        "csrf_token": form_token(staff, "/"),
+        "sheet": (io.BytesIO("\n".join(sheet).encode()), "bench.csv"),
+        "curves": (io.BytesIO(exported.encode()), "exported-curves.csv"),
+    }
+    page = staff.post(f"/batches/{batch['code']}/runs/import", data=data, content_type="multipart/form-data")
+    html = page.get_data(as_text=True)
+    assert page.status_code == 200, unescape(html)[:3000]
+    grid = {m.group(1): unescape(m.group(2)) for m in re.finditer(r'name="(r\d+_\w+)" id="[^"]+" value="([^"]*)"', html)}
+    grid.update(
+        {
+            m.group(1): unescape(m.group(2))
+            for m in re.finditer(r'<textarea id="f-(r\d+_curve)"[^>]*>(.*?)</textarea>', html, re.S)
+        }
+    )
+    form = {**top(world), "action": "record", "curve_method": "derivative", **{k: v for k, v in grid.items() if v}}
+    resp = post(staff, form_token, f"/batches/{batch['code']}/runs/new", form)
+    assert resp.status_code == 303, unescape(resp.get_data(as_text=True))[:3000]
+    again = int(re.search(r"/runs/(\d+)", resp.headers["Location"]).group(1))
+    before, after = stored(conn, original), stored(conn, again)
+    drop = ("recorded_by",)
+    assert [{k: v for k, v in c.items() if k not in drop} for c in after["curves"]] == [
+        {k: v for k, v in c.items() if k not in drop} for c in before["curves"]
+    ]
+    assert after["replicates"] == before["replicates"]
+
+
+def test_a_run_without_curves_has_no_curve_export(app, conn, world, form_token):
+    batch = new_batch(conn, 0)
+    form = {**top(world), "action": "record", "r1_mass_g": MASSES[0], "r1_initial_ml": "0.10", "r1_final_ml": "40.15"}
+    resp = post(world["staff"], form_token, f"/batches/{batch['code']}/runs/new", form)
+    assert resp.status_code == 303, unescape(resp.get_data(as_text=True))[:3000]
+    run_id = int(re.search(r"/runs/(\d+)", resp.headers["Location"]).group(1))
+    missing = world["staff"].get(f"/runs/{run_id}/curves.csv")
+    assert missing.status_code == 404 and "has no titration curves" in missing.get_data(as_text=True)
+    # The run page offers the download only where it shows curves.
+    assert "curves.csv" not in world["staff"].get(f"/runs/{run_id}").get_data(as_text=True)
+
+
+def test_a_curve_in_a_row_past_the_server_rendered_ones_is_read_and_shown_again(app, conn, world, form_token):
+    """Row 7 (one the script adds): its curve is read as row 1's, and a refused form shows it again in its box."""
+    batch = new_batch(conn, 0)
+    text = curve_synth.as_text(world["curves"][0])
+    form = {**top(world), "action": "record", "r7_mass_g": MASSES[0], "r7_curve": text, "analyst": ""}
+    resp = post(world["staff"], form_token, f"/batches/{batch['code']}/runs/new", form)
+    assert resp.status_code == 422
+    html = resp.get_data(as_text=True)
+    shown = re.search(r'<textarea id="f-r7_curve" name="r7_curve"[^>]*>(.*?)</textarea>', html, re.S)
+    assert shown is not None and unescape(shown.group(1)) == text
+    assert "Replicate 7, titration curve (volume mL, reading)" in html
+    assert 'name="r7_mass_g" id="f-r7_mass_g" value="0.8179"' in html
+
+
+def test_the_curve_export_keeps_numbers_bare_and_text_in_one_defused_cell():
+    """OWASP "CSV Injection": comment text is one quoted cell; negative mV readings stay numbers."""
+    import csv
+
+    from stockroom import csvio, csvsafe
+
+    points = [(0.0, -310.5), (5.0, -250.0), (10.0, -120.25), (10.5, 80.0), (15.0, 150.0)]
+    curve = {"reading": "mv", "method": "derivative", "points": points, "volume_ml": 10.25, "u_ml": 0.0125}
+    run = {"id": 4, "replicates": [{"position": 1, "curve": curve}, {"position": 2}]}
+    text = csvio.write_curves(run, {"code": "=HYPERLINK(1)", "reagent": "+cmd"}, 2.0)
+    rows = list(csv.reader(io.StringIO(text)))
+    comments = [r for r in rows if r[0].startswith("#")]
+    assert all(len(r) == 1 for r in comments) and "=HYPERLINK(1)" in comments[0][0]
+    # u = 0.0125 mL, so U = 0.025 mL at k = 2: "10.250 ± 0.025 mL (k = 2)" (two significant figures of U).
+    assert "end point located at 10.2500 mL, standard uncertainty u = 0.013 mL, that is 10.250 ± 0.025 mL (k = 2)" in text
+    data = rows[len(comments) :]
+    assert data[0] == ["replicate", "volume_ml", "mv"]
+    assert [(int(a), float(b), float(c)) for a, b, c in data[1:]] == [(1, v, e) for v, e in points]
+    assert "\n1,0.0,-310.5\n" in text  # bare, not a quoted or apostrophed cell
+    assert all(csvsafe.is_number(c) for r in data[1:] for c in r)

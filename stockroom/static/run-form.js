@@ -286,7 +286,33 @@
     cell.textContent = "";
     tbody.appendChild(copy);
     offPath(copy);
+    appendCurveBox(n);
     return copy;
+  }
+
+  // An added row gets its curve box below the grid, a copy of the server's last one renamed to
+  // r<n>_curve with the same label and help, so the form posts it as it posts a first row's curve.
+  function appendCurveBox(n) {
+    var boxes = document.querySelectorAll("#curves details.curve-box");
+    if (!boxes.length) { return; }
+    var last = boxes[boxes.length - 1];
+    var box = last.cloneNode(true);
+    var name = "r" + n + "_curve";
+    box.dataset.row = String(n);
+    box.open = false;
+    box.querySelector("summary").textContent = "Replicate " + n;
+    var area = box.querySelector("textarea");
+    area.name = name;
+    area.id = "f-" + name;
+    area.textContent = "";  // the default value too, so a form reset leaves it empty
+    area.value = "";
+    area.removeAttribute("aria-invalid");
+    var label = box.querySelector("label");
+    label.htmlFor = area.id;
+    label.textContent = label.textContent.replace(/\d+/, String(n));
+    box.querySelectorAll(".field-error").forEach(function (e) { e.remove(); });
+    box.querySelectorAll(".has-error").forEach(function (e) { e.classList.remove("has-error"); });
+    last.after(box);
   }
 
   if (addRow) {

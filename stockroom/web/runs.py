@@ -20,7 +20,7 @@ from markupsafe import Markup
 
 from stockroom import chemistry, csvio, drift, formatting, readmodel, records, run_input, standardization, workflow
 from stockroom.db import get_db
-from stockroom.errors import Conflict, FieldError, InvalidInput, StockroomError
+from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound, StockroomError
 from stockroom.pdf import curve_drawing
 from stockroom.policy import expiry_for, release_in_force
 from stockroom.web import instruments as web_instruments
@@ -163,6 +163,8 @@ def new_run(code: str) -> Any:
     data["method"] = method
     rows = run_input.from_form_rows(form)
     ctx["purpose"] = form.get("purpose") if form.get("purpose") in run_input.PURPOSES else "certify"
+    # Rows the script added (a reading or a curve in row 7 and on) are shown again with the form.
+    ctx["rows"] = min(max([GRID_ROWS, *rows]), run_input.LIMITS.max_replicates)
     actor = user.username if user else "?"
     try:
         run = run_input.parse_run(data, today=today, prepared_on=_prepared_on(batch), decimal_comma=True)
@@ -431,6 +433,18 @@ def export_run(run_id: int) -> Response:
     run = records.run_by_id(db, run_id)
     batch = records.batch_by_id(db, run["batch_id"])
     return _csv_response(csvio.write_run(run, batch), f"{batch['code']}-run-{run_id}.csv")
+
+
+@bp.get("/runs/<int:run_id>/curves.csv")
+def export_curves(run_id: int) -> Response:
+    """A run's titration curves as a curve sheet, which the import page takes back as its curve file; 404 when it has none."""
+    db = get_db()
+    run = records.run_by_id(db, run_id)
+    if not any(rep.get("curve") for rep in run["replicates"]):
+        raise NotFound(f"Run {run_id} has no titration curves.")
+    batch = records.batch_by_id(db, run["batch_id"])
+    text = csvio.write_curves(run, batch, float(current_app.config["COVERAGE_FACTOR"]))
+    return _csv_response(text, f"{batch['code']}-run-{run_id}-curves.csv")
 
 
 @bp.get("/batches/<code>/history.csv")

@@ -63,3 +63,67 @@ def test_a_pasted_curve_gives_the_titre_in_the_live_result(staff_page, staff_dem
     # A reading past the range is named at its box's label, live.
     page.fill("#f-r1_curve", "0, 3.2\n1, 3.9\n2, 4.1\n3, 4.3\n4, 17.5")
     expect(page.locator("#preview-body")).to_contain_text("line 5: the reading must be", timeout=10_000)
+
+
+def test_a_row_added_by_the_script_gets_a_curve_box_stored_like_a_first_rows(staff_page, staff_demo_server):
+    """Add a row, paste a curve in its box: the run stores it as it stores row 1's, and exports both back."""
+    from stockroom import csvio, curve_synth
+
+    page = staff_page
+    base = staff_demo_server
+    # A batch of this test's own, so the demo's batches keep their runs as the scenario made them.
+    page.goto(base + "/batches/new")
+    page.select_option("#f-reagent", "NaOH")
+    page.fill("#f-nominal_molarity", "0.1")
+    page.fill("#f-volume_l", "10")
+    page.fill("#f-water_grade", "boiled, CO2-free deionized")
+    page.fill("#f-container", "10 L polyethylene carboy (invented)")
+    page.click("button[value=register]")
+    page.wait_for_load_state()
+    code = page.locator("h1 .batch-code").inner_text()
+    page.goto(f"{base}/batches/{code}/runs/new")
+    page.select_option("#f-standard_lot_id", index=1)
+    boxes = page.locator("#curves details.curve-box")
+    served = boxes.count()
+    page.click("#add-row")
+    n = served + 1
+    assert boxes.count() == n
+    added = boxes.nth(n - 1)
+    # The same box as the server's: its name, label and a closed summary, empty.
+    assert added.locator("summary").inner_text() == f"Replicate {n}"
+    assert added.locator("label").text_content().strip() == f"Replicate {n}, titration curve (volume mL, reading)"
+    assert added.get_attribute("open") is None  # closed, as the served empty boxes are
+    assert added.locator("textarea").get_attribute("name") == f"r{n}_curve"
+    assert page.input_value(f"#f-r{n}_curve") == ""
+    # Invented curves: 0.8179 g and 0.8012 g KHP with 0.1 mol/L NaOH (curve_synth, exact charge balance).
+    masses = ("0.8179", "0.8012")
+    pasted = [curve_synth.khp_curve(float(m), 0.1, seed=s) for m, s in zip(masses, (4, 5), strict=True)]
+    page.fill("#f-r1_mass_g", masses[0])
+    page.locator("#curves details").first.locator("summary").click()
+    page.fill("#f-r1_curve", curve_synth.as_text(pasted[0]))
+    page.fill(f"#f-r{n}_mass_g", masses[1])
+    added.locator("summary").click()
+    page.fill(f"#f-r{n}_curve", curve_synth.as_text(pasted[1]))
+    # The live result reads the added box too: row n's molarity comes from its curve.
+    expect(page.locator(f'td.live-molarity[data-row="{n}"]')).to_contain_text("0.10", timeout=10_000)
+    page.click("button[value=record]")
+    page.wait_for_load_state()
+    assert "/runs/" in page.url, page.locator("main").inner_text()[:1500]
+    # Both curves drawn; the added row is the run's replicate 2 (blank rows between are skipped).
+    captions = page.locator("figure.curve figcaption")
+    assert captions.count() == 2
+    assert captions.nth(1).inner_text().startswith(f"Replicate 2 · {len(pasted[1])} points in pH · end point ")
+    # The export gives each curve back point for point, as pasted.
+    link = page.locator("#curves a", has_text="Download the curves as CSV")
+    resp = page.request.get(base + link.get_attribute("href"))
+    assert resp.status == 200
+    sheet = csvio.read_curve_sheet(resp.text(), 2, 500)
+    assert sheet.problems == [] and sheet.reading == "ph"
+    for number, points in ((1, pasted[0]), (2, pasted[1])):
+        got = [tuple(float(x) for x in line.split(",")) for line in sheet.curves[number]]
+        assert got == [(float(f"{v:g}"), round(e, 2)) for v, e in points]
+    # Each end point sits where the invented mass puts it: V_e = 1000 m / (M c), M(KHP) 204.22 g/mol
+    # (IUPAC atomic weights), 40.05 and 39.23 mL; the page shows it to U's place.
+    for i, m in enumerate(masses):
+        ve = 1000 * float(m) / curve_synth.KHP_MOLAR_MASS_G_MOL / 0.1
+        assert f"end point {ve:.1f}" in captions.nth(i).inner_text(), (captions.nth(i).inner_text(), ve)
