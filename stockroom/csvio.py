@@ -1,7 +1,7 @@
 """stockroom's CSV layouts: the replicate sheet (import and export) and the batch history export.
 
 Replicate sheet, one row per replicate, header row required, columns in any order, unknown columns
-refused, `#` lines are comments:
+refused (but the export's computed molarity_mol_l, which is skipped), `#` lines are comments:
 
     replicate,gross_g,tare_g,mass_g,aliquot_ml,initial_ml,final_ml,blank_ml,temperature_c,exclude_reason
 
@@ -48,6 +48,9 @@ SHEET_COLUMNS = (
     "exclude_reason",
 )
 NUMERIC_COLUMNS = SHEET_COLUMNS[1:9]
+# Written by the run export after the sheet's columns (write_run); read back, it is skipped, since a
+# run's molarities are always computed again from its readings, so an exported run imports as it is.
+COMPUTED_COLUMNS = ("molarity_mol_l",)
 
 
 @dataclass(frozen=True)
@@ -104,7 +107,7 @@ def read_sheet(text: str, max_rows: int) -> Sheet:
     except csv.Error as exc:
         sheet.problems.append((lines[0][0], f"the header row cannot be read: {exc}"))
         return sheet
-    unknown = [h for h in header if h not in SHEET_COLUMNS]
+    unknown = [h for h in header if h not in SHEET_COLUMNS and h not in COMPUTED_COLUMNS]
     if unknown:
         sheet.problems.append(
             (
@@ -132,7 +135,9 @@ def read_sheet(text: str, max_rows: int) -> Sheet:
         if len(cells) != len(header):
             sheet.problems.append((line_no, f"has {len(cells)} cells; the header has {len(header)}"))
             continue
-        sheet.rows.append(SheetRow(line_no, {h: c.strip() for h, c in zip(header, cells, strict=True)}))
+        sheet.rows.append(
+            SheetRow(line_no, {h: c.strip() for h, c in zip(header, cells, strict=True) if h not in COMPUTED_COLUMNS})
+        )
     if not sheet.rows and not sheet.problems:
         sheet.problems.append((0, "the file has a header but no replicate rows"))
     return sheet
@@ -158,7 +163,7 @@ def write_run(run: Mapping[str, Any], batch: Mapping[str, Any]) -> str:
         f"result: {current['molarity']:.6f} mol/L, U = {current['expanded_u']:.6f} mol/L "
         f"(k = {current['k']:g}), n = {current['n']}, at 20 °C"
     )
-    out.row([*SHEET_COLUMNS, "molarity_mol_l"])
+    out.row([*SHEET_COLUMNS, *COMPUTED_COLUMNS])
     excluded = {e["position"]: e["reason"] for e in run["exclusions"]}
     for rep in run["replicates"]:
         out.row(

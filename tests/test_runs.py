@@ -403,3 +403,20 @@ def test_superseding_through_the_api_asks_for_a_reason_too(app, setup, make_user
     assert count(app, "releases") == 1
     ok = client.post(f"/api/v1/runs/{ids[1]}/decision", json={"decision": "accept", "reason": "re-made"}, headers=headers)
     assert ok.status_code == 200 and count(app, "releases") == 2
+
+
+def test_an_exported_run_reads_back_as_a_replicate_sheet(app, setup, signed_in_client, form_token):
+    """The run export is a replicate sheet plus its computed molarities: read back, the molarity column is
+    skipped and every replicate's readings are what was recorded."""
+    from stockroom import csvio
+
+    staff = signed_in_client("staff")
+    code = setup["batch"]["code"]
+    resp = post(staff, form_token, f"/batches/{code}/runs/new", run_form(setup, action="record"))
+    run_id = int(re.search(r"/runs/(\d+)", resp.headers["Location"]).group(1))
+    text = staff.get(f"/runs/{run_id}.csv").get_data(as_text=True)
+    assert "molarity_mol_l" in text.splitlines()[3]  # the export does carry the computed column
+    sheet = csvio.read_sheet(text, max_rows=50)
+    assert sheet.problems == []
+    assert [float(r.values["final_ml"]) for r in sheet.rows] == [float(f) for *_, f in GOOD]
+    assert all("molarity_mol_l" not in r.values for r in sheet.rows)
