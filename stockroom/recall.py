@@ -874,7 +874,7 @@ def _reached_containers(
             start, end = max(filled, p.start), min(last_in_use, p.end)
             if start > end:
                 continue
-            dest = traceability_destination(c["room"], c["course"], c["section"])
+            dest = stock.Destination.of(c).words()
             out.append(
                 ReachedContainer(
                     container_id=c["id"],
@@ -896,11 +896,6 @@ def _reached_containers(
             )
             break  # one row per container: its first suspect stretch names it
     return tuple(out)
-
-
-def traceability_destination(room: str, course: str, section: str) -> str:
-    """A destination in words, as every page reads it (stockroom.stock.Destination.words)."""
-    return stock.Destination(room or "", course or "", section or "").words()
 
 
 # ---------------------------------------------------------------------------------------------------------

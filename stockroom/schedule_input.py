@@ -24,6 +24,7 @@ from typing import Any
 from stockroom import chemistry
 from stockroom.errors import FieldError, StockroomError
 from stockroom.parsing import MISSING, Parser
+from stockroom.stock import Destination
 
 
 @dataclass(frozen=True)
@@ -302,9 +303,4 @@ def read_destination(p: Parser, raw: Any, name: str = "destination") -> tuple[st
 
 def destination_text(course: str, section: str = "", room: str = "") -> str:
     """A destination as a person reads it: "CHM 110 · section B · room 214" (parts left out when empty)."""
-    parts = [course.strip()]
-    if section.strip():
-        parts.append(f"section {section.strip()}")
-    if room.strip():
-        parts.append(f"room {room.strip()}")
-    return " · ".join(parts)
+    return Destination(room.strip(), course.strip(), section.strip()).words()

@@ -66,6 +66,11 @@ class Destination:
     course: str = ""
     section: str = ""
 
+    @classmethod
+    def of(cls, row: Mapping[str, Any]) -> Destination:
+        """The destination a row records in its room, course and section columns (missing or NULL: empty)."""
+        return cls(row.get("room") or "", row.get("course") or "", row.get("section") or "")
+
     def words(self) -> str:
         """As a person reads it: 'CHM 110 · section B · room 214' (empty parts left out)."""
         parts = [self.course] if self.course else []

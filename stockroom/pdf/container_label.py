@@ -30,11 +30,6 @@ def container_url(base_url: str, code: str) -> str:
     return f"{base_url.rstrip('/')}/containers/{quote(code, safe='')}"
 
 
-def destination_of(container: Mapping[str, Any]) -> stock.Destination:
-    """The destination of a containers row."""
-    return stock.Destination(container.get("room") or "", container.get("course") or "", container.get("section") or "")
-
-
 def container_content(
     db: sqlite_utils.Database, config: Mapping[str, Any], container: Mapping[str, Any], batch: Mapping[str, Any], on: dt.date
 ) -> labels.LabelContent:
@@ -62,7 +57,7 @@ def container_content(
             "filled_on": container["filled_on"],
             "container_volume": f"{float(container['volume_l']):g} L",
             "container_expires_on": container["expires_on"],
-            "destination": destination_of(container).words(),
+            "destination": stock.Destination.of(container).words(),
         },
     )
 

@@ -22,13 +22,18 @@ from stockroom.records.facts import recorded_facts
 from stockroom.records.policies import policies
 
 
+# A containers row with its disposal, if any (each container is taken out of use once at most).
+_WITH_DISPOSAL = (
+    "SELECT c.*, d.disposed_on AS disposed_on, d.reason AS disposal_reason, d.recorded_by AS disposed_by "
+    "FROM containers c LEFT JOIN container_disposals d ON d.container_id = c.id "
+)
+
+
 def containers_of(db: sqlite_utils.Database, batch_id: int) -> list[dict[str, Any]]:
     """The containers filled from a batch, oldest fill first, each with `disposed_on` (None while in use)."""
     return dbmod.query(
         db,
-        "SELECT c.*, d.disposed_on AS disposed_on, d.reason AS disposal_reason FROM containers c "
-        "LEFT JOIN container_disposals d ON d.container_id = c.id "
-        "WHERE c.batch_id = ? ORDER BY c.filled_on, c.id",
+        _WITH_DISPOSAL + "WHERE c.batch_id = ? ORDER BY c.filled_on, c.id",
         [batch_id],
     )
 
@@ -70,9 +75,7 @@ def received_by(db: sqlite_utils.Database, course: str, section: str, on: dt.dat
     matches every section of the course."""
     day = on.isoformat()
     sql = (
-        "SELECT c.*, d.disposed_on AS disposed_on FROM containers c "
-        "LEFT JOIN container_disposals d ON d.container_id = c.id "
-        "WHERE c.course = ? COLLATE NOCASE AND c.filled_on <= ? AND c.expires_on >= ? "
+        _WITH_DISPOSAL + "WHERE c.course = ? COLLATE NOCASE AND c.filled_on <= ? AND c.expires_on >= ? "
         "AND (d.disposed_on IS NULL OR d.disposed_on > ?)"
     )
     params: list[Any] = [course.strip(), day, day, day]
@@ -90,8 +93,7 @@ def container_by_code(db: sqlite_utils.Database, code: str) -> dict[str, Any]:
     """One container row by its code, with `disposed_on` and `disposal_reason`; NotFound when there is none."""
     rows = dbmod.query(
         db,
-        "SELECT c.*, d.disposed_on AS disposed_on, d.reason AS disposal_reason, d.recorded_by AS disposed_by "
-        "FROM containers c LEFT JOIN container_disposals d ON d.container_id = c.id WHERE c.code = ?",
+        _WITH_DISPOSAL + "WHERE c.code = ?",
         [code],
     )
     if not rows:

@@ -63,7 +63,7 @@ def container_rows(db: sqlite_utils.Database, batch_id: int, facts: BatchFacts, 
             dt.date.fromisoformat(c["disposed_on"]) if c["disposed_on"] else None,
             on,
         )
-        out.append({**c, "state": state, "destination": container_label.destination_of(c).words()})
+        out.append({**c, "state": state, "destination": stock.Destination.of(c).words()})
     return out
 
 
@@ -139,7 +139,7 @@ def dispense(code: str) -> Any:
     except Conflict as exc:
         return render_template("containers/dispense.html", values=request.form, errors={}, conflict=exc.message, **context), 409
     flash(
-        f"{row['code']} filled: {row['volume_l']:g} L for {container_label.destination_of(row).words()}, "
+        f"{row['code']} filled: {row['volume_l']:g} L for {stock.Destination.of(row).words()}, "
         f"use by {row['expires_on']}. Print its label from its page.",
         "ok",
     )
