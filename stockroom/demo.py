@@ -256,7 +256,7 @@ def demo_term_schedule(conn: Any, today: dt.date, config: dict[str, Any]) -> lis
     lead = planning.lead_days(config)
     monday = today - dt.timedelta(days=today.weekday())
     end = monday + dt.timedelta(weeks=DEMO_WEEKS_AHEAD)
-    supplies = planning.supplies(conn, {row[4] for row in DEMO_TERM})
+    supplies = planning.supplies(conn, {row[4] for row in DEMO_TERM}, today)
     note = "invented term schedule (demo)"
     chosen: list[SessionInput] = []
     for course, sections, room, weekdays, reagent, nominal, litres in DEMO_TERM:

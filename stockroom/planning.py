@@ -44,15 +44,26 @@ def demands(db: sqlite_utils.Database, start: dt.date, end: dt.date, reagent: st
     ]
 
 
-def supplies(db: sqlite_utils.Database, reagents: set[str]) -> list[prep_plan.Supply]:
-    """Every batch of the given titrants (catalogue keys) with its litres remaining and its facts."""
+def supplies(db: sqlite_utils.Database, reagents: set[str], today: dt.date) -> list[prep_plan.Supply]:
+    """The batches of the given titrants (catalogue keys) that may still serve from `today` on, with their
+    litres remaining and their facts.
+
+    A batch marked registered in error, withdrawn by today, or whose newest release expired before
+    today, can serve no later session (policy.status_on): the per-batch status summary (schema 0015) leaves it out in SQL,
+    so a plan reads the batches that may serve, not the titrant's whole history.
+    """
     if not reagents:
         return []
     marks = ",".join("?" * len(reagents))
+    day = today.isoformat()
     rows = dbmod.query(
         db,
-        f"SELECT id, code, reagent, nominal_molarity, volume_l FROM batches WHERE reagent IN ({marks}) ORDER BY code",
-        sorted(reagents),
+        "SELECT b.id, b.code, b.reagent, b.nominal_molarity, b.volume_l FROM batches b "
+        "JOIN batch_status_summary s ON s.batch_id = b.id "
+        f"WHERE b.reagent IN ({marks}) "
+        "AND (s.withdrawn_on IS NULL OR s.withdrawn_on > ?) AND s.in_error_on IS NULL "
+        "AND (s.last_expires_on IS NULL OR s.last_expires_on >= ?) ORDER BY b.code",
+        [*sorted(reagents), day, day],
     )
     ids = [r["id"] for r in rows]
     facts = facts_of(db, ids)
@@ -74,4 +85,6 @@ def build_plan(
 ) -> prep_plan.Plan:
     """The prep plan for sessions dated start..end (sessions from today on draw; earlier ones already did)."""
     wanted = demands(db, today, end, reagent) if end >= today else []
-    return prep_plan.plan(supplies(db, {d.reagent for d in wanted}), wanted, today=today, start=start, end=end, lead_days=lead)
+    return prep_plan.plan(
+        supplies(db, {d.reagent for d in wanted}, today), wanted, today=today, start=start, end=end, lead_days=lead
+    )

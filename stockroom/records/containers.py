@@ -21,7 +21,6 @@ from stockroom.records.audit import record_row
 from stockroom.records.facts import recorded_facts
 from stockroom.records.policies import policies
 
-
 # A containers row with its disposal, if any (each container is taken out of use once at most).
 _WITH_DISPOSAL = (
     "SELECT c.*, d.disposed_on AS disposed_on, d.reason AS disposal_reason, d.recorded_by AS disposed_by "
