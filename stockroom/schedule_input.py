@@ -98,8 +98,9 @@ class SessionInput:
         }
 
 
-def _titrant(p: Parser, raw: Any, name: str) -> str | None:
-    text = p.text(raw, name, max_length=80)
+def read_titrant(p: Parser, raw: Any, name: str, *, required: bool = True) -> str | None:
+    """A titrant's catalogue key from its typed name (case as the catalogue reads it), or None with an error on `name`."""
+    text = p.text(raw, name, required=required, max_length=80)
     if text is None:
         return None
     try:
@@ -127,7 +128,7 @@ def read_session(p: Parser, data: Mapping[str, Any], today: dt.date, prefix: str
     course = p.text(data.get("course", MISSING), name("course"), max_length=LIMITS.max_course)
     section = p.text(data.get("section", MISSING), name("section"), required=False, max_length=LIMITS.max_section)
     room = p.text(data.get("room", MISSING), name("room"), required=False, max_length=LIMITS.max_room)
-    reagent = _titrant(p, data.get("titrant", MISSING), name("titrant"))
+    reagent = read_titrant(p, data.get("titrant", MISSING), name("titrant"))
     nominal = p.number(
         data.get("nominal_molarity", MISSING), name("nominal_molarity"), gt=0, le=LIMITS.max_nominal_molarity, unit="mol/L"
     )

@@ -23,7 +23,7 @@ from flask import Blueprint, current_app, flash, jsonify, redirect, render_templ
 
 from stockroom import chemistry, planning, prep_plan, preparation, schedule_input
 from stockroom.db import get_db
-from stockroom.errors import InvalidInput, StockroomError
+from stockroom.errors import InvalidInput
 from stockroom.records import lab_sessions
 from stockroom.web import forms, lab_today, read_json_body
 from stockroom.web.access import api_require, current_user, require
@@ -59,13 +59,7 @@ def read_window(
         p.known_keys(args, ("from", "to", "titrant", "course", *extra))
     start = p.date(args.get("from", MISSING), "from", required=False) or today
     end = p.date(args.get("to", MISSING), "to", required=False)
-    titrant = None
-    raw = args.get("titrant")
-    if raw is not None and str(raw).strip():
-        try:
-            titrant = chemistry.titrant(str(raw)).key
-        except StockroomError:
-            p.error("titrant", f"{str(raw)[:40]!r} is not a titrant the catalogue holds")
+    titrant = schedule_input.read_titrant(p, args.get("titrant", MISSING), "titrant", required=False)
     course = p.text(args.get("course", MISSING), "course", required=False, max_length=schedule_input.LIMITS.max_course)
     if p.ok:
         end = end or start + dt.timedelta(days=default_days)
