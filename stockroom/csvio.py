@@ -27,7 +27,7 @@ the header, which the reader skips.
 from __future__ import annotations
 
 import csv
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -90,6 +90,14 @@ def _content_lines(text: str) -> list[tuple[int, str]]:
     ]
 
 
+def _header(reader: Iterator[list[str]], what: str) -> tuple[list[str], str | None]:
+    """A sheet's header row, its names trimmed and in lower case; or why it cannot be read (`what` names it)."""
+    try:
+        return [h.strip().lower() for h in next(reader)], None
+    except csv.Error as exc:
+        return [], f"{what} cannot be read: {exc}"
+
+
 def read_sheet(text: str, max_rows: int) -> Sheet:
     """Read a replicate sheet's text; structure problems are reported per line, values stay text.
 
@@ -102,10 +110,9 @@ def read_sheet(text: str, max_rows: int) -> Sheet:
         sheet.problems.append((0, "the file has no header row and no data"))
         return sheet
     reader = csv.reader([line for _, line in lines])
-    try:
-        header = [h.strip().lower() for h in next(reader)]
-    except csv.Error as exc:
-        sheet.problems.append((lines[0][0], f"the header row cannot be read: {exc}"))
+    header, problem = _header(reader, "the header row")
+    if problem is not None:
+        sheet.problems.append((lines[0][0], problem))
         return sheet
     unknown = [h for h in header if h not in SHEET_COLUMNS and h not in COMPUTED_COLUMNS]
     if unknown:
@@ -309,10 +316,9 @@ def read_curve_sheet(text: str, max_replicates: int, max_points: int) -> CurveSh
         sheet.problems.append((0, f"the curve file has a line longer than {MAX_LINE_CHARS} characters"))
         return sheet
     reader = csv.reader([line for _, line in lines])
-    try:
-        header = [h.strip().lower() for h in next(reader)]
-    except csv.Error as exc:
-        sheet.problems.append((lines[0][0], f"the curve file's header row cannot be read: {exc}"))
+    header, problem = _header(reader, "the curve file's header row")
+    if problem is not None:
+        sheet.problems.append((lines[0][0], problem))
         return sheet
     kinds = [h for h in header if h in ("ph", "mv")]
     if sorted(header) != sorted({"replicate", "volume_ml", *kinds}) or len(kinds) != 1:
