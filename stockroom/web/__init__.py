@@ -15,7 +15,7 @@ import re
 from collections.abc import Callable, Iterable
 from typing import Any
 
-from flask import Flask, current_app, request
+from flask import Flask, Response, current_app, request
 from flask_wtf.csrf import CSRFProtect
 from werkzeug.routing import IntegerConverter
 
@@ -40,6 +40,12 @@ _HOST = re.compile(rf"(?:{_LABEL}(?:\.{_LABEL})*\.?|\[[0-9a-f:.]+\])(?::([0-9]{{
 def lab_today() -> dt.date:
     """Today's date in the lab's time zone."""
     return dbmod.lab_today(current_app.config["LAB_TIMEZONE"])
+
+
+def csv_attachment(text: str, filename: str) -> Response:
+    """A CSV download: `text` as an attachment named `filename` (characters other than letters, digits, - _ . made _)."""
+    safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in filename)
+    return Response(text, mimetype="text/csv", headers={"Content-Disposition": f'attachment; filename="{safe}"'})
 
 
 def wants_json() -> bool:

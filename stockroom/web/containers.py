@@ -26,7 +26,7 @@ from stockroom.errors import Conflict, InvalidInput
 from stockroom.pdf import container_label
 from stockroom.policy import BatchFacts, release_in_force, status_on
 from stockroom.records import containers
-from stockroom.web import forms, lab_today, parse_date_arg
+from stockroom.web import csv_attachment, forms, lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
 from stockroom.web.once import FIELD as ONCE_FIELD
 from stockroom.web.once import once
@@ -271,10 +271,8 @@ def dispensings_csv(batch: Mapping[str, Any], tracking: Mapping[str, Any], on: d
 
 @bp.get("/batches/<code>/dispensings.csv")
 def export_dispensings(code: str) -> Any:
-    from stockroom.web.runs import _csv_response
-
     db = get_db()
     on = lab_today()
     batch = records.batch_by_code(db, code)
     tracking = batch_tracking(db, batch, readmodel.batch_facts(db, int(batch["id"])), on)
-    return _csv_response(dispensings_csv(batch, tracking, on), f"{batch['code']}-dispensings.csv")
+    return csv_attachment(dispensings_csv(batch, tracking, on), f"{batch['code']}-dispensings.csv")

@@ -26,7 +26,7 @@ from stockroom.pdf.charts import drift_svg
 from stockroom.pdf.labday_sheet import labday_sheet_pdf
 from stockroom.policy import drift_on
 from stockroom.records.containers import received_by
-from stockroom.web import forms, lab_today, viewcache
+from stockroom.web import csv_attachment, forms, lab_today, viewcache
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import MISSING, Parser
 from stockroom.web.once import once
@@ -587,9 +587,4 @@ def _about(row: Mapping[str, Any]) -> dict[str, str]:
 def correction_csv(cid: int) -> Response:
     row, results, _ = _stored(cid)
     name = f"class-data-{row['lab_day']}-{row['batch_code']}-{cid}.csv"
-    safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in name)
-    return Response(
-        ld.results_to_csv(results, _about(row)),
-        mimetype="text/csv",
-        headers={"Content-Disposition": f'attachment; filename="{safe}"'},
-    )
+    return csv_attachment(ld.results_to_csv(results, _about(row)), name)

@@ -25,7 +25,7 @@ from stockroom.db import get_db
 from stockroom.errors import InvalidInput
 from stockroom.pdf import chain_drawing
 from stockroom.pdf.recall_report import recall_report_pdf
-from stockroom.web import forms, lab_today, parse_date_arg
+from stockroom.web import csv_attachment, forms, lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
 from stockroom.web.inputs import Parser
 from stockroom.web.once import once
@@ -114,9 +114,7 @@ def show(recall_id: int) -> Any:
 def report_csv(recall_id: int) -> Response:
     report = _report(recall_id)
     name = f"recall-{recall_id}-impact-{report.on.isoformat()}.csv"
-    return Response(
-        recall_mod.impact_csv(report), mimetype="text/csv", headers={"Content-Disposition": f'attachment; filename="{name}"'}
-    )
+    return csv_attachment(recall_mod.impact_csv(report), name)
 
 
 @bp.get("/<int:recall_id>.pdf")

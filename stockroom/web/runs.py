@@ -23,8 +23,8 @@ from stockroom.db import get_db
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound, StockroomError
 from stockroom.pdf import curve_drawing
 from stockroom.policy import expiry_for, release_in_force
+from stockroom.web import csv_attachment, lab_today
 from stockroom.web import instruments as web_instruments
-from stockroom.web import lab_today
 from stockroom.web.access import current_user, require
 from stockroom.web.forms import date as form_date
 from stockroom.web.forms import field
@@ -422,17 +422,12 @@ def _curve_upload(problems: list[tuple[int, str]], n_replicates: int) -> csvio.C
     return sheet
 
 
-def _csv_response(text: str, filename: str) -> Response:
-    safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in filename)
-    return Response(text, mimetype="text/csv", headers={"Content-Disposition": f'attachment; filename="{safe}"'})
-
-
 @bp.get("/runs/<int:run_id>.csv")
 def export_run(run_id: int) -> Response:
     db = get_db()
     run = records.run_by_id(db, run_id)
     batch = records.batch_by_id(db, run["batch_id"])
-    return _csv_response(csvio.write_run(run, batch), f"{batch['code']}-run-{run_id}.csv")
+    return csv_attachment(csvio.write_run(run, batch), f"{batch['code']}-run-{run_id}.csv")
 
 
 @bp.get("/runs/<int:run_id>/curves.csv")
@@ -444,11 +439,11 @@ def export_curves(run_id: int) -> Response:
         raise NotFound(f"Run {run_id} has no titration curves.")
     batch = records.batch_by_id(db, run["batch_id"])
     text = csvio.write_curves(run, batch, float(current_app.config["COVERAGE_FACTOR"]))
-    return _csv_response(text, f"{batch['code']}-run-{run_id}-curves.csv")
+    return csv_attachment(text, f"{batch['code']}-run-{run_id}-curves.csv")
 
 
 @bp.get("/batches/<code>/history.csv")
 def export_history(code: str) -> Response:
     db = get_db()
     batch = records.batch_by_code(db, code)
-    return _csv_response(csvio.write_history(batch, readmodel.batch_history(db, batch["id"])), f"{batch['code']}-history.csv")
+    return csv_attachment(csvio.write_history(batch, readmodel.batch_history(db, batch["id"])), f"{batch['code']}-history.csv")
