@@ -30,7 +30,7 @@ from stockroom.web import csv_attachment, forms, lab_today, parse_date_arg
 from stockroom.web.access import current_user, require
 from stockroom.web.once import FIELD as ONCE_FIELD
 from stockroom.web.once import once
-from stockroom.web.printing import _pdf_response
+from stockroom.web.printing import pdf_attachment
 
 bp = Blueprint("containers", __name__)
 
@@ -222,7 +222,7 @@ def label(code: str) -> Any:
     config = dict(current_app.config)
     config.setdefault("REQUEST_ROOT", request.host_url)
     pdf = container_label.container_label_pdf(db, config, c, batch, lab_today())
-    return _pdf_response(pdf, f"label-{c['code']}.pdf")
+    return pdf_attachment(pdf, f"label-{c['code']}.pdf")
 
 
 CSV_COLUMNS = (

@@ -49,7 +49,8 @@ def safe_filename(text: str) -> str:
     return "".join(ch if ch.isascii() and (ch.isalnum() or ch in "-_.") else "_" for ch in text)[:120] or "file"
 
 
-def _pdf_response(pdf: bytes, filename: str) -> Response:
+def pdf_attachment(pdf: bytes, filename: str) -> Response:
+    """A PDF download named `filename` (made safe), never cached."""
     resp = Response(pdf, mimetype="application/pdf")
     resp.headers["Content-Disposition"] = f'attachment; filename="{safe_filename(filename)}"'
     resp.headers["Cache-Control"] = "no-store"
@@ -185,7 +186,7 @@ def print_labels(code: str) -> Any:
         # PDF by itself (and offers it again); a second submission lands on the same confirmation.
         return redirect(url_for("printing.print_labels", code=batch["code"], printed=job.record["id"], start=start), 303)
     once_mod.made()  # a second submission is sent to this page (its list of prints), not printed again
-    return _pdf_response(job.pdf, _print_filename(batch, job.record))
+    return pdf_attachment(job.pdf, _print_filename(batch, job.record))
 
 
 def _print_filename(batch: Mapping[str, Any], row: Mapping[str, Any]) -> str:
@@ -245,7 +246,7 @@ def print_pdf(print_id: int) -> Response:
         )
     assert start is not None
     pdf = pdflabels.build_labels(content, layout, row["copies"], min(start, layout.per_page), row["serial_first"])
-    return _pdf_response(pdf, _print_filename(batch, row))
+    return pdf_attachment(pdf, _print_filename(batch, row))
 
 
 def _reshow(ctx: dict[str, Any], exc: InvalidInput) -> tuple[str, int]:
@@ -257,7 +258,7 @@ def release_certificate(release_id: int) -> Response:
     data = certificates.certificate_data(get_db(), release_id, lab_today())
     data["curve_k"] = float(current_app.config["COVERAGE_FACTOR"])  # the end points' ±U, as the run page draws them
     pdf = certificates.build_certificate(data, institution=str(current_app.config.get("INSTITUTION_NAME") or ""))
-    return _pdf_response(pdf, f"certificate-{data['batch']['code']}-release-{data['release_number']}.pdf")
+    return pdf_attachment(pdf, f"certificate-{data['batch']['code']}-release-{data['release_number']}.pdf")
 
 
 @bp.get("/batches/<code>/certificate.pdf")
@@ -265,4 +266,4 @@ def batch_certificate(code: str) -> Response:
     data = certificates.certificate_data_for_batch(get_db(), code, lab_today())
     data["curve_k"] = float(current_app.config["COVERAGE_FACTOR"])  # the end points' ±U, as the run page draws them
     pdf = certificates.build_certificate(data, institution=str(current_app.config.get("INSTITUTION_NAME") or ""))
-    return _pdf_response(pdf, f"certificate-{data['batch']['code']}-release-{data['release_number']}.pdf")
+    return pdf_attachment(pdf, f"certificate-{data['batch']['code']}-release-{data['release_number']}.pdf")
