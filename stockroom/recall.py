@@ -29,6 +29,7 @@ from stockroom import db as dbmod
 from stockroom import instruments as inst_mod
 from stockroom.errors import Conflict, FieldError, InvalidInput, NotFound
 from stockroom.policy import ReviewFact, Status, release_in_force, status_on
+from stockroom.records.containers import containers_of_batches
 from stockroom.traceability import BATCH, INSTRUMENT, LOT, PRIMARY, REFERENCE, RELEASE, Graph, node_key
 
 SUBJECT_LABELS = {LOT: "primary-standard lot", INSTRUMENT: "instrument", BATCH: "batch"}
@@ -858,13 +859,7 @@ def _reached_containers(
             periods[r.batch_id].append((r.release_id, p))
     if not periods:
         return ()
-    ids = sorted(periods)
-    rows = dbmod.query(
-        db,
-        "SELECT c.*, d.disposed_on AS disposed_on FROM containers c LEFT JOIN container_disposals d ON d.container_id = c.id "
-        f"WHERE c.batch_id IN ({','.join('?' * len(ids))}) ORDER BY c.filled_on, c.id",
-        ids,
-    )
+    rows = containers_of_batches(db, periods)
     out: list[ReachedContainer] = []
     for c in rows:
         filled, expires = _d(c["filled_on"]), _d(c["expires_on"])

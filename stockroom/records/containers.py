@@ -30,10 +30,18 @@ _WITH_DISPOSAL = (
 
 def containers_of(db: sqlite_utils.Database, batch_id: int) -> list[dict[str, Any]]:
     """The containers filled from a batch, oldest fill first, each with `disposed_on` (None while in use)."""
+    return containers_of_batches(db, [batch_id])
+
+
+def containers_of_batches(db: sqlite_utils.Database, batch_ids: Iterable[int]) -> list[dict[str, Any]]:
+    """The containers filled from any of the batches, in one query: oldest fill first, each with `disposed_on`."""
+    ids = sorted({int(b) for b in batch_ids})
+    if not ids:
+        return []
     return dbmod.query(
         db,
-        _WITH_DISPOSAL + "WHERE c.batch_id = ? ORDER BY c.filled_on, c.id",
-        [batch_id],
+        _WITH_DISPOSAL + f"WHERE c.batch_id IN ({','.join('?' * len(ids))}) ORDER BY c.filled_on, c.id",
+        ids,
     )
 
 
