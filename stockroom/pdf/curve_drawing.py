@@ -25,11 +25,8 @@ from reportlab.lib import colors
 from stockroom import endpoints
 from stockroom import formatting as fmt
 from stockroom.pdf import typeface
+from stockroom.pdf.charts import FONT, GRID, INK, MUTED  # the charts' palette and typeface
 
-FONT = typeface.REGULAR
-INK = colors.HexColor("#1d2327")
-MUTED = colors.HexColor("#5b6770")
-GRID = colors.HexColor("#e3e7e9")
 SLOPE = colors.HexColor("#8a5a00")
 MARK = colors.HexColor("#23527c")
 BAND = colors.HexColor("#dce8f4")
